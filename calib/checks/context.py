@@ -1,0 +1,77 @@
+"""What a rule sees of one curve: its standards, how each back-calculates, and the fit."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from calib.fit.curve import CurveFit
+from calib.run import Point
+
+__all__ = ["CurveContext", "StandardResult"]
+
+
+@dataclass(frozen=True)
+class StandardResult:
+    """One calibration standard after fitting.
+
+    Attributes
+    ----------
+    point : Point
+        The standard as read.
+    level : int
+        Concentration level, 1 for the lowest nominal concentration.
+    used : bool
+        Whether the point is in the fit.
+    exclusion_reason : str or None
+        The analyst's reason, or calib's (e.g. a weighting that cannot use it).
+    fitted : float or None
+        ŷ at the nominal concentration.
+    back_calculated : float or None
+        Concentration read back from the curve at the response.
+    deviation_pct : float or None
+        100·(x̂ − x)/x; None at nominal 0, where only the absolute deviation means anything.
+    """
+
+    point: Point
+    level: int
+    used: bool
+    exclusion_reason: str | None
+    fitted: float | None
+    back_calculated: float | None
+    deviation_pct: float | None
+
+    @property
+    def deviation(self) -> float | None:
+        """Absolute deviation x̂ − x."""
+        if self.back_calculated is None:
+            return None
+        return self.back_calculated - self.point.concentration
+
+
+@dataclass(frozen=True)
+class CurveContext:
+    """One analyte's curve as the rules see it.
+
+    ``fit`` is None when the standards cannot be fitted; ``unfitted_reason``
+    then says why, and rules report ``not-evaluated`` with it.
+    """
+
+    analyte: str
+    standards: tuple[StandardResult, ...]
+    fit: CurveFit | None
+    unfitted_reason: str = ""
+
+    @property
+    def used(self) -> tuple[StandardResult, ...]:
+        """Standards in the fit."""
+        return tuple(s for s in self.standards if s.used)
+
+    @property
+    def n_levels(self) -> int:
+        """Distinct concentration levels in the fit (a zero standard counts)."""
+        return len({s.point.concentration for s in self.used})
+
+    @property
+    def n_nonzero_levels(self) -> int:
+        """Distinct non-zero concentration levels in the fit."""
+        return len({s.point.concentration for s in self.used if s.point.concentration != 0})

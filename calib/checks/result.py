@@ -1,0 +1,110 @@
+"""Check results and the verdicts they add up to.
+
+A failed check is data, not an exception: callers read ``verdict``; raising is
+opt-in through :meth:`CurveAssessment.raise_for_verdict` in
+:mod:`calib.checks.evaluate`.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass
+from enum import StrEnum
+
+__all__ = ["CheckResult", "CurveVerdict", "Severity", "Verdict", "combine_verdicts", "worst"]
+
+
+class Verdict(StrEnum):
+    """Outcome of one check."""
+
+    PASS = "pass"
+    FAIL = "fail"
+    WARN = "warn"
+    NOT_EVALUATED = "not-evaluated"
+
+
+class Severity(StrEnum):
+    """What a check's failure does to the curve's verdict."""
+
+    REJECT = "reject"  # a fail rejects the curve
+    REVIEW = "review"  # a fail sends the curve to a reviewer
+    INFO = "info"  # reported only
+
+
+class CurveVerdict(StrEnum):
+    """Verdict on a curve, or on a run (the worst of its curves)."""
+
+    ACCEPTED = "accepted"
+    NEEDS_REVIEW = "needs-review"
+    REJECTED = "rejected"
+
+
+_RANK = {CurveVerdict.ACCEPTED: 0, CurveVerdict.NEEDS_REVIEW: 1, CurveVerdict.REJECTED: 2}
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    """One acceptance check on one curve.
+
+    Attributes
+    ----------
+    id : str
+        Stable check id (``intercept-zero``, ``back-calculation``...).
+    title : str
+        Plain-words title.
+    verdict : Verdict
+        ``pass``, ``fail``, ``warn`` or ``not-evaluated`` (then ``detail`` says why).
+    severity : Severity
+        From the profile rule.
+    value : float or None
+        The measured quantity or test statistic (for ``intercept-zero`` the p-value).
+    limit : float or None
+        The limit ``value`` is judged against.
+    detail : str
+        One-line explanation in plain words.
+    """
+
+    id: str
+    title: str
+    verdict: Verdict
+    severity: Severity
+    value: float | None
+    limit: float | None
+    detail: str
+
+    def __post_init__(self) -> None:
+        # A NaN never passes: it can only mean the check could not be evaluated.
+        if self.verdict is Verdict.PASS and self.value is not None and math.isnan(self.value):
+            raise ValueError(f"check {self.id} cannot pass with a NaN value")
+
+
+def combine_verdicts(checks: Iterable[CheckResult], *, fitted: bool = True) -> CurveVerdict:
+    """Curve verdict from its checks.
+
+    ``rejected`` when the curve could not be fitted or a ``reject`` check
+    fails; ``needs-review`` when a ``review`` check fails or warns, or a
+    ``reject`` check warns or could not be evaluated; ``accepted`` otherwise.
+    ``info`` checks never change the verdict.
+
+    Examples
+    --------
+    >>> c = CheckResult("intercept-zero", "t", Verdict.FAIL, Severity.REVIEW, 0.01, 0.05, "")
+    >>> combine_verdicts([c])
+    <CurveVerdict.NEEDS_REVIEW: 'needs-review'>
+    """
+    verdict = CurveVerdict.ACCEPTED if fitted else CurveVerdict.REJECTED
+    for check in checks:
+        if check.severity is Severity.REJECT:
+            if check.verdict is Verdict.FAIL:
+                verdict = worst([verdict, CurveVerdict.REJECTED])
+            elif check.verdict in (Verdict.WARN, Verdict.NOT_EVALUATED):
+                verdict = worst([verdict, CurveVerdict.NEEDS_REVIEW])
+        elif check.severity is Severity.REVIEW and check.verdict in (Verdict.FAIL, Verdict.WARN):
+            verdict = worst([verdict, CurveVerdict.NEEDS_REVIEW])
+    return verdict
+
+
+def worst(verdicts: Iterable[CurveVerdict]) -> CurveVerdict:
+    """The worst of several verdicts (``accepted`` for none)."""
+    return max(verdicts, key=_RANK.__getitem__, default=CurveVerdict.ACCEPTED)

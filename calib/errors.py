@@ -1,0 +1,77 @@
+"""The exceptions calib raises.
+
+One tree, so callers can catch everything calib means to raise with a single
+``except CalibError``::
+
+    CalibError                 base of everything below
+    ├── InputError             a run file cannot be read or used (names file, sheet, row, column)
+    ├── ProfileError           an acceptance profile is malformed (names file and line)
+    ├── TemplateError          a report template is malformed or points outside its folder
+    └── NotAcceptedError       raised only on request, by CurveAssessment.raise_for_verdict()
+
+Wrong *arguments* (an unknown model name, a confidence of 1.5) raise the
+built-in ``ValueError`` naming the parameter and the value.  A curve that fails
+its acceptance rules is *not* an error: it is a verdict in the result.
+"""
+
+from __future__ import annotations
+
+__all__ = ["CalibError", "InputError", "NotAcceptedError", "ProfileError", "TemplateError"]
+
+
+class CalibError(Exception):
+    """Base class of every exception calib raises on purpose."""
+
+
+class InputError(CalibError):
+    """A run file cannot be read or used.
+
+    The message names the place: file, and where known sheet, row (1-based,
+    as the spreadsheet shows it) and column (header text or letter), and says
+    what was expected there.
+
+    Examples
+    --------
+    >>> str(InputError("not a number", file="run.csv", row=7, column="response"))
+    'run.csv, row 7, column response: not a number'
+    """
+
+    def __init__(
+        self,
+        message: str,
+        *,
+        file: str | None = None,
+        sheet: str | None = None,
+        row: int | None = None,
+        column: str | None = None,
+    ) -> None:
+        self.message = message
+        self.file = file
+        self.sheet = sheet
+        self.row = row
+        self.column = column
+        super().__init__(self.__str__())
+
+    def __str__(self) -> str:
+        place = []
+        if self.file:
+            place.append(self.file)
+        if self.sheet:
+            place.append(f"sheet {self.sheet}")
+        if self.row is not None:
+            place.append(f"row {self.row}")
+        if self.column:
+            place.append(f"column {self.column}")
+        return f"{', '.join(place)}: {self.message}" if place else self.message
+
+
+class ProfileError(CalibError):
+    """An acceptance profile cannot be used (the message names file and line)."""
+
+
+class TemplateError(CalibError):
+    """A report template cannot be used."""
+
+
+class NotAcceptedError(CalibError):
+    """A curve was not accepted and the caller asked for an exception."""

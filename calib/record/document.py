@@ -1,0 +1,109 @@
+"""The ``calib.check/1`` document: a run's assessment as plain JSON-ready data."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from calib import __version__
+from calib.checks.evaluate import CurveAssessment, RunAssessment
+
+__all__ = ["CHECK_SCHEMA", "check_document", "finite_or_none"]
+
+CHECK_SCHEMA = "calib.check/1"
+
+
+def finite_or_none(value: float | None) -> float | None:
+    """``value`` as a float, or None where it is missing, NaN or infinite (JSON has no NaN).
+
+    Examples
+    --------
+    >>> finite_or_none(float("nan")) is None, finite_or_none(2)
+    (True, 2.0)
+    """
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def check_document(assessment: RunAssessment) -> dict[str, Any]:
+    """Build the ``calib.check/1`` document of SPEC §7 for ``assessment``.
+
+    Every number keeps full double precision; values that cannot be computed
+    are ``None``.
+    """
+    run, profile = assessment.run, assessment.profile
+    return {
+        "schema": CHECK_SCHEMA,
+        "tool_version": __version__,
+        "source": {"file": run.source.file, "sha256": run.source.sha256, "sheet": run.source.sheet},
+        "profile": {"name": profile.name, "version": profile.version, "sha256": profile.sha256},
+        "curves": [curve_document(c) for c in assessment.curves],
+        "verdict": assessment.verdict.value,
+    }
+
+
+def curve_document(curve: CurveAssessment) -> dict[str, Any]:
+    """One entry of ``curves`` in the ``calib.check/1`` document."""
+    fit = curve.fit
+    coefficients: dict[str, Any] = {}
+    if fit is not None:
+        for row in fit.coefficient_table():
+            coefficients[row.name] = {
+                "estimate": finite_or_none(row.estimate),
+                "std_error": finite_or_none(row.std_error),
+                "t_value": finite_or_none(row.t_value),
+                "p_value": finite_or_none(row.p_value),
+                "ci_low": finite_or_none(row.ci_low),
+                "ci_high": finite_or_none(row.ci_high),
+            }
+    used = [s for s in curve.standards if s.used]
+    return {
+        "analyte": curve.analyte,
+        "model": curve.model.value,
+        "weighting": curve.weighting.value,
+        "confidence": curve.confidence,
+        "n_points": len(used),
+        "n_levels": len({s.point.concentration for s in used}),
+        "residual_df": fit.residual_df if fit is not None else None,
+        "coefficients": coefficients,
+        "residual_sd": finite_or_none(fit.residual_sd) if fit is not None else None,
+        "r_squared": finite_or_none(fit.r_squared) if fit is not None else None,
+        "r": finite_or_none(fit.r) if fit is not None else None,
+        "lod": _limit(curve.lod),
+        "loq": _limit(curve.loq),
+        "points": [
+            {
+                "source_cell": s.point.source_cell,
+                "level": s.level,
+                "concentration": s.point.concentration,
+                "response": s.point.response,
+                "fitted": finite_or_none(s.fitted),
+                "back_calculated": finite_or_none(s.back_calculated),
+                "deviation_pct": finite_or_none(s.deviation_pct),
+                "included": s.used,
+                "exclusion_reason": s.exclusion_reason,
+            }
+            for s in curve.standards
+        ],
+        "checks": [
+            {
+                "id": c.id,
+                "title": c.title,
+                "verdict": c.verdict.value,
+                "severity": c.severity.value,
+                "value": finite_or_none(c.value),
+                "limit": finite_or_none(c.limit),
+                "detail": c.detail,
+            }
+            for c in curve.checks
+        ],
+        "verdict": curve.verdict.value,
+    }
+
+
+def _limit(limit: Any) -> dict[str, Any] | None:
+    if limit is None:
+        return None
+    return {"value": finite_or_none(limit.value), "method": limit.method}

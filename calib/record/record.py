@@ -1,0 +1,151 @@
+"""The calibration record: canonical JSON, its digest and the record id derived from it."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import platform
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from importlib import metadata
+from typing import Any
+
+from calib import __version__
+from calib.cautions import CAUTIONS
+from calib.checks.evaluate import RunAssessment
+from calib.record.document import check_document, finite_or_none
+
+__all__ = ["RECORD_SCHEMA", "Record", "build_record", "canonical_json"]
+
+RECORD_SCHEMA = "calib.record/1"
+PREPARED_MEANING = "Prepared: I evaluated this calibration and issued this record"
+
+
+def canonical_json(data: Any) -> bytes:
+    """Canonical JSON bytes: sorted keys, UTF-8, no insignificant whitespace, no NaN.
+
+    Floats are written with the shortest text that reads back to the same
+    double, so nothing is rounded.
+
+    Examples
+    --------
+    >>> canonical_json({"b": 0.1, "a": "µg"})
+    b'{"a":"\\xc2\\xb5g","b":0.1}'
+    """
+    return json.dumps(
+        data, sort_keys=True, ensure_ascii=False, separators=(",", ":"), allow_nan=False
+    ).encode("utf-8")
+
+
+@dataclass(frozen=True)
+class Record:
+    """An issued calibration record.
+
+    Attributes
+    ----------
+    body : dict
+        The record data (schema ``calib.record/1``).
+    """
+
+    body: dict[str, Any]
+
+    @property
+    def canonical(self) -> bytes:
+        """The canonical JSON bytes the digest is computed on."""
+        return canonical_json(self.body)
+
+    @property
+    def digest(self) -> str:
+        """SHA-256 of :attr:`canonical`, in hex."""
+        return hashlib.sha256(self.canonical).hexdigest()
+
+    @property
+    def record_id(self) -> str:
+        """Short identifier derived from the digest, e.g. ``CR-3F9A1C2B77DE``."""
+        return "CR-" + self.digest[:12].upper()
+
+    @classmethod
+    def from_json(cls, data: bytes | str) -> Record:
+        """Read a record back from its JSON."""
+        body = json.loads(data)
+        if not isinstance(body, dict) or body.get("schema") != RECORD_SCHEMA:
+            raise ValueError(f"not a {RECORD_SCHEMA} document")
+        return cls(body)
+
+
+def build_record(
+    assessment: RunAssessment,
+    *,
+    prepared_by: str | None = None,
+    created_at: datetime | None = None,
+) -> Record:
+    """Assemble the record of an assessed run.
+
+    Parameters
+    ----------
+    assessment : RunAssessment
+        The fitted and checked run.
+    prepared_by : str, optional
+        Printed name of the analyst issuing the record.
+    created_at : datetime, optional
+        Issue time (UTC); now when omitted.
+    """
+    when = (created_at or datetime.now(UTC)).astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
+    run, profile = assessment.run, assessment.profile
+    signatures = []
+    if prepared_by:
+        signatures.append(
+            {"role": "prepared", "name": prepared_by, "signed_at": when, "meaning": PREPARED_MEANING}
+        )
+    body = {
+        "schema": RECORD_SCHEMA,
+        "created_at": when,
+        "tool": {"name": "calib", "version": __version__},
+        "libraries": _library_versions(),
+        "prepared_by": prepared_by,
+        "signatures": signatures,
+        "run": {
+            "file": run.source.file,
+            "sha256": run.source.sha256,
+            "sheet": run.source.sheet,
+            "layout": run.source.layout,
+            "metadata": dict(run.metadata),
+            "units": dict(run.units),
+        },
+        "settings": {
+            "model": assessment.model.value,
+            "weighting": assessment.weighting.value,
+            "confidence": assessment.confidence,
+        },
+        "profile": {
+            "name": profile.name,
+            "version": profile.version,
+            "sha256": profile.sha256,
+            "text": profile.text,
+        },
+        "cautions": CAUTIONS,
+        "check": check_document(assessment),
+        "fit_details": [
+            {
+                "analyte": c.analyte,
+                "coefficient_names": list(c.fit.names),
+                "covariance": [[finite_or_none(v) for v in row] for row in c.fit.covariance.tolist()],
+                "t_critical": finite_or_none(c.fit.t_critical()),
+                "x_min": float(c.fit.x.min()),
+                "x_max": float(c.fit.x.max()),
+            }
+            for c in assessment.curves
+            if c.fit is not None
+        ],
+    }
+    return Record(body)
+
+
+def _library_versions() -> dict[str, str]:
+    versions = {"python": platform.python_version()}
+    for name in ("numpy", "scipy", "reportlab"):
+        try:
+            versions[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            versions[name] = "not installed"
+    return versions

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from numbers import Real
 
 import numpy as np
 from scipy import stats
@@ -29,7 +30,7 @@ class CoefficientRow:
     ci_high: float
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class CurveFit:
     """A weighted least-squares calibration fit and the inference on it.
 
@@ -217,7 +218,7 @@ class CurveFit:
 
 
 def _check_confidence(confidence: float) -> float:
-    if not (isinstance(confidence, (int, float)) and 0.5 <= confidence < 1):
+    if isinstance(confidence, bool) or not (isinstance(confidence, Real) and 0.5 <= confidence < 1):
         raise ValueError(f"confidence must be a number from 0.5 to below 1; got {confidence!r}")
     return float(confidence)
 

@@ -1,0 +1,1 @@
+"""The ``calib`` command line (the only layer that parses arguments, prints and exits)."""

@@ -1,0 +1,46 @@
+"""Options and helpers shared by the commands."""
+
+from __future__ import annotations
+
+import argparse
+
+MODELS = ("linear", "origin", "quadratic")
+WEIGHTINGS = ("none", "1/x", "1/x2")
+
+
+def confidence_level(text: str) -> float:
+    """argparse type: a confidence level from 0.5 to below 1 (``95`` is read as 0.95)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number such as 0.95, got {text!r}") from None
+    if 50 <= value < 100:
+        value /= 100
+    if not 0.5 <= value < 1:
+        raise argparse.ArgumentTypeError(f"must be from 0.5 to below 1 (e.g. 0.95), got {text!r}")
+    return value
+
+
+def add_fit_options(parser: argparse.ArgumentParser) -> None:
+    """--model, --weighting, --confidence, --profile, --sheet."""
+    parser.add_argument("--model", choices=MODELS, help="calibration model (default: the profile's)")
+    parser.add_argument("--weighting", choices=WEIGHTINGS,
+                        help="weights of the standards (default: the profile's)")
+    parser.add_argument("--confidence", type=confidence_level, metavar="C",
+                        help="confidence level of intervals, e.g. 0.95 (default: the profile's)")
+    parser.add_argument("--profile", default="default", metavar="P",
+                        help="acceptance profile: a shipped name or a TOML file (default: default)")
+    parser.add_argument("--sheet", metavar="S",
+                        help="sheet name or 0-based index (default: first sheet with standards)")
+
+
+def add_debug(parser: argparse.ArgumentParser) -> None:
+    """--debug: show the traceback instead of one line."""
+    parser.add_argument("--debug", action="store_true", help="show tracebacks on errors")
+
+
+def sheet_arg(value: str | None) -> str | int | None:
+    """A --sheet value: an index when it is a whole number, else a name."""
+    if value is None:
+        return None
+    return int(value) if value.isdigit() else value

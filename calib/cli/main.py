@@ -1,0 +1,78 @@
+"""``calib`` command line: parse, call the library, render, exit.
+
+Exit codes: 0 accepted, 1 rejected or needs review, 2 usage error,
+3 input that cannot be read or used, 4 internal error (a bug: please report).
+Heavy libraries are imported inside the commands so ``calib --help`` is fast.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+
+from calib import __version__
+from calib.cli import check, demo
+
+EXIT_OK, EXIT_NOT_ACCEPTED, EXIT_USAGE, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3, 4
+
+DESCRIPTION = """\
+Validate calibration curves from instrument exports and issue calibration records.
+
+examples:
+  calib demo                                   check the bundled demo runs, write their PDF records
+  calib check run.xlsx                         fit and judge every analyte, print the verdicts
+  calib check run.csv --weighting 1/x2 --pdf record.pdf --prepared-by "A. Analyst"
+  calib check run.xlsx --json > result.json    machine-readable result (schema calib.check/1)
+
+exit codes: 0 accepted, 1 rejected or needs review, 2 usage error, 3 unusable input,
+            4 internal error
+"""
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of every command."""
+    parser = argparse.ArgumentParser(
+        prog="calib", description=DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter
+    )
+    parser.add_argument("--version", action="version", version=f"calib {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+    for module in (check, demo):
+        module.add_parser(sub)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    from calib.errors import CalibError
+
+    try:
+        return int(args.handler(args))
+    except CalibError as exc:
+        if args.debug:
+            raise
+        print(f"calib: error: {_one_line(str(exc))}", file=sys.stderr)
+        return EXIT_INPUT
+    except KeyboardInterrupt:
+        print("calib: interrupted; no output file was written", file=sys.stderr)
+        return 130
+    except Exception as exc:  # noqa: BLE001 - the last line of defence against tracebacks
+        if args.debug:
+            raise
+        print(
+            f"calib: internal error: {type(exc).__name__}: {_one_line(str(exc))} "
+            "(run again with --debug for the traceback, and please report it)",
+            file=sys.stderr,
+        )
+        return EXIT_INTERNAL
+
+
+def _one_line(text: str) -> str:
+    return " ".join(text.split())
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,1 @@
+"""Report layout and wording (installed as calib.report_templates)."""

@@ -1,0 +1,1 @@
+"""Invented demo runs of the fictional Fernbrook Water Laboratory (installed as calib.sample_runs)."""

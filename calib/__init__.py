@@ -56,7 +56,13 @@ _EXPORTS = {
     "CAUTIONS": "calib.cautions",
 }
 
-__all__ = sorted([*_EXPORTS, "__version__"])
+__all__ = [
+    "CAUTIONS", "CalibError", "CheckResult", "CurveAssessment", "CurveFit", "CurveVerdict",
+    "InputError", "Model", "NotAcceptedError", "Point", "Profile", "ProfileError", "Record", "Run",
+    "RunAssessment", "SampleType", "Severity", "SourceInfo", "TemplateError", "Verdict",
+    "Weighting", "__version__", "build_record", "check_document", "evaluate_run", "fit_curve",
+    "load_profile", "read_run", "write_pdf",
+]
 
 
 def __getattr__(name: str) -> Any:

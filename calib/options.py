@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from enum import StrEnum
 
-__all__ = ["Model", "Weighting", "SampleType", "parse_option"]
+__all__ = ["Model", "SampleType", "Weighting", "parse_option"]
 
 
 class Model(StrEnum):

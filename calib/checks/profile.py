@@ -215,12 +215,12 @@ def _parse_rule(raw: Any, index: int, text: str, origin: str, seen: set[str]) ->
 
 def _line_of(text: str, key: str) -> int:
     """1-based line where ``key`` is first assigned (or its table opens); 1 if not found."""
-    pattern = re.compile(rf"^[ \t]*(\[+[ \t]*{re.escape(key)}\s*\]+|{re.escape(key)}\s*=)", re.M)
+    pattern = re.compile(rf"^[ \t]*(\[+[ \t]*{re.escape(key)}\s*\]+|{re.escape(key)}\s*=)", re.MULTILINE)
     match = pattern.search(text)
     return text.count("\n", 0, match.start()) + 1 if match else 1
 
 
 def _rule_line(text: str, index: int) -> int:
     """1-based line of the ``index``-th ``[[rules]]`` header."""
-    starts = [m.start() for m in re.finditer(r"^[ \t]*\[\[[ \t]*rules[ \t]*\]\]", text, re.M)]
+    starts = [m.start() for m in re.finditer(r"^[ \t]*\[\[[ \t]*rules[ \t]*\]\]", text, re.MULTILINE)]
     return text.count("\n", 0, starts[index]) + 1 if index < len(starts) else 1

@@ -15,7 +15,7 @@ from typing import Any
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
 
-__all__ = ["Param", "Rule", "RULES"]
+__all__ = ["RULES", "Param", "Rule"]
 
 
 @dataclass(frozen=True)
@@ -31,15 +31,10 @@ class Param:
 
     def check(self, value: Any) -> str | None:
         """Why ``value`` is not allowed, or None."""
-        if self.kind is float:
-            if isinstance(value, bool) or not isinstance(value, (int, float)):
-                return f"must be a number, got {value!r}"
-            value = float(value)
-            if not math.isfinite(value):
-                return f"must be a finite number, got {value!r}"
-        elif self.kind is int:
-            if isinstance(value, bool) or not isinstance(value, int):
-                return f"must be a whole number, got {value!r}"
+        if isinstance(value, bool) or not isinstance(value, (int, float) if self.kind is float else int):
+            return f"must be {'a number' if self.kind is float else 'a whole number'}, got {value!r}"
+        if not math.isfinite(value):
+            return f"must be a finite number, got {value!r}"
         if self.nonzero and value == 0:
             return "must not be 0"
         if self.low is not None and (value <= self.low if self.low_open else value < self.low):

@@ -59,7 +59,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("calib: interrupted; no output file was written", file=sys.stderr)
         return 130
-    except Exception as exc:  # noqa: BLE001 - the last line of defence against tracebacks
+    except Exception as exc:
         if args.debug:
             raise
         print(

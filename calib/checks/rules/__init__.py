@@ -1,0 +1,16 @@
+"""The acceptance checks a profile can name, each a function of one curve.
+
+Every rule declares its parameters (:class:`Param`) so that profiles are
+validated before anything is computed, and returns a
+:class:`~calib.checks.result.CheckResult`; it never raises on bad data.
+Rules live in modules by theme; :data:`RULES` collects them by id.
+"""
+
+from __future__ import annotations
+
+from calib.checks.rules.base import Param, Rule
+from calib.checks.rules.basic import BASIC_RULES
+
+__all__ = ["RULES", "Param", "Rule"]
+
+RULES: dict[str, Rule] = {rule.id: rule for rule in BASIC_RULES}

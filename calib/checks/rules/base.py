@@ -1,0 +1,69 @@
+"""What every rule is made of: declared parameters and a function of one curve."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from calib.checks.context import CurveContext
+from calib.checks.result import CheckResult, Severity, Verdict
+
+__all__ = ["Param", "Rule", "fmt", "not_evaluated", "result"]
+
+
+@dataclass(frozen=True)
+class Param:
+    """A rule parameter: its type, the range allowed and its default (None = optional)."""
+
+    kind: type
+    low: float | None = None
+    high: float | None = None
+    default: Any = None
+    low_open: bool = False
+    nonzero: bool = False
+
+    def check(self, value: Any) -> str | None:
+        """Why ``value`` is not allowed, or None."""
+        if isinstance(value, bool) or not isinstance(value, (int, float) if self.kind is float else int):
+            return f"must be {'a number' if self.kind is float else 'a whole number'}, got {value!r}"
+        if not math.isfinite(value):
+            return f"must be a finite number, got {value!r}"
+        if self.nonzero and value == 0:
+            return "must not be 0"
+        if self.low is not None and (value <= self.low if self.low_open else value < self.low):
+            return f"must be {'above' if self.low_open else 'at least'} {self.low:g}, got {value!r}"
+        if self.high is not None and value > self.high:
+            return f"must be at most {self.high:g}, got {value!r}"
+        return None
+
+
+@dataclass(frozen=True)
+class Rule:
+    """A check that profiles can name by ``id``."""
+
+    id: str
+    title: str
+    params: Mapping[str, Param]
+    run: Callable[[CurveContext, Mapping[str, Any], Severity], CheckResult]
+
+
+def result(rule_id: str, severity: Severity, verdict: Verdict, value: float | None,
+           limit: float | None, detail: str) -> CheckResult:
+    """A CheckResult carrying the registered title of ``rule_id``."""
+    from calib.checks.rules import RULES
+
+    return CheckResult(rule_id, RULES[rule_id].title, verdict, severity, value, limit, detail)
+
+
+def not_evaluated(rule_id: str, severity: Severity, reason: str) -> CheckResult:
+    """A ``not-evaluated`` result with its reason."""
+    return result(rule_id, severity, Verdict.NOT_EVALUATED, None, None, reason)
+
+
+def fmt(value: float) -> str:
+    """A figure in four significant digits for explanations."""
+    return f"{value:.4g}"
+
+

@@ -38,6 +38,8 @@ class Point:
         The analyst's reason for excluding the point.
     sample_id : str or None
         Sample name or identifier when the file gives one.
+    injection_order : int or None
+        Position of the injection in the run sequence when the file gives one.
     """
 
     analyte: str
@@ -49,6 +51,7 @@ class Point:
     included: bool = True
     exclusion_reason: str | None = None
     sample_id: str | None = None
+    injection_order: int | None = None
 
 
 @dataclass(frozen=True)

@@ -10,7 +10,14 @@ from __future__ import annotations
 
 from calib.checks.rules.base import Param, Rule
 from calib.checks.rules.basic import BASIC_RULES
+from calib.checks.rules.linearity import LINEARITY_RULES
+from calib.checks.rules.outliers import OUTLIERS_RULES
+from calib.checks.rules.variance import VARIANCE_RULES
 
 __all__ = ["RULES", "Param", "Rule"]
 
-RULES: dict[str, Rule] = {rule.id: rule for rule in BASIC_RULES}
+RULES: dict[str, Rule] = {
+    rule.id: rule
+    for group in (BASIC_RULES, LINEARITY_RULES, VARIANCE_RULES, OUTLIERS_RULES)
+    for rule in group
+}

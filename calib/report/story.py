@@ -1,0 +1,520 @@
+"""Turn a calibration record (the parsed ``calib.record/1`` JSON) into reportlab flowables.
+
+Only the record is read, never live fit objects, so a stored record renders
+again to the same pages.  Every figure printed comes from the record; the
+one thing computed here is the drawing of the confidence band, through
+:func:`calib.fit.bands.mean_band` from the stored coefficients and covariance.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from typing import Any
+from xml.sax.saxutils import escape
+
+import numpy as np
+from reportlab.platypus import (
+    CondPageBreak,
+    Flowable,
+    KeepTogether,
+    PageBreak,
+    Paragraph,
+    Spacer,
+    Table,
+)
+
+from calib.fit.bands import mean_band
+from calib.report.charts import (
+    CurveBand,
+    PlotPoint,
+    calibration_chart,
+    residual_chart,
+    wants_log_axis,
+)
+from calib.report.formatting import (
+    MISSING,
+    as_float,
+    format_compact,
+    format_number,
+    format_p,
+    format_percent,
+    format_utc,
+)
+from calib.report.pages import SectionMark
+from calib.report.styles import INK, SHADE, get_styles
+from calib.report.tables import TableMaker
+from calib.report.template import ReportTemplate
+
+__all__ = ["build_story", "verdict_sentence"]
+
+_MODELS = {
+    "linear": "straight line, y = a + b·x",
+    "origin": "straight line through the origin, y = b·x",
+    "quadratic": "quadratic, y = a + b·x + c·x²",
+}
+_WEIGHTINGS = {"none": "none (equal weights)", "1/x": "1/x", "1/x2": "1/x²"}
+_COEFFICIENTS = {"intercept": "Intercept a", "slope": "Slope b", "quadratic": "Quadratic term c"}
+_CHECK_VERDICTS = {"pass": "Pass", "fail": "Fail", "warn": "Warning",
+                   "not-evaluated": "Not evaluated"}
+_SEVERITIES = {"reject": "Reject", "review": "Review", "info": "Information"}
+_ROLES = ("prepared", "reviewed", "approved")
+_BAND_POINTS = 61
+_PLOT_HEIGHT = 190
+
+
+def _str(value: Any) -> str:
+    """Record text as printed: the dash when missing."""
+    if value is None or value == "":
+        return MISSING
+    return str(value)
+
+
+def _dict(value: Any) -> Mapping[str, Any]:
+    return value if isinstance(value, Mapping) else {}
+
+
+def _list(value: Any) -> Sequence[Any]:
+    return value if isinstance(value, list) else []
+
+
+def _fixed(value: Any, decimals: int = 6) -> str:
+    v = as_float(value)
+    return MISSING if v is None else f"{v:.{decimals}f}"
+
+
+def verdict_sentence(curve: Mapping[str, Any], template: ReportTemplate) -> str:
+    """The verdict in words, naming the checks that failed, warned or could not be evaluated.
+
+    Examples
+    --------
+    >>> from calib.report.template import load_template
+    >>> curve = {"verdict": "rejected", "checks": [
+    ...     {"title": "Intercept is near zero", "verdict": "fail", "severity": "reject"},
+    ...     {"title": "Enough levels", "verdict": "pass", "severity": "reject"}]}
+    >>> verdict_sentence(curve, load_template())
+    'Rejected. Failed: Intercept is near zero.'
+    """
+    word = template.verdicts.word(curve.get("verdict"))
+    groups: dict[str, list[str]] = {"fail": [], "warn": [], "not-evaluated": []}
+    for check in _list(curve.get("checks")):
+        check = _dict(check)
+        verdict = check.get("verdict")
+        if verdict == "not-evaluated" and check.get("severity") == "info":
+            continue
+        if verdict in groups:
+            groups[verdict].append(str(check.get("title") or check.get("id") or "?"))
+    parts = [f"{word}."]
+    labels = (("fail", "Failed"), ("warn", "Warnings"), ("not-evaluated", "Not evaluated"))
+    for key, label in labels:
+        if groups[key]:
+            parts.append(f"{label}: {'; '.join(groups[key])}.")
+    return " ".join(parts)
+
+
+class _Builder:
+    """Holds what every section needs while the story is assembled."""
+
+    def __init__(self, record: Mapping[str, Any], *, record_id: str, digest: str,
+                 template: ReportTemplate, width: float) -> None:
+        self.record = record
+        self.record_id = record_id
+        self.digest = digest
+        self.t = template
+        self.width = width
+        self.s = get_styles()
+        self.tables = TableMaker(self.s, width)
+        units = _dict(_dict(record.get("run")).get("units"))
+        self.conc_unit = str(units.get("concentration") or "")
+        self.resp_unit = str(units.get("response") or "")
+        self.curves = [_dict(c) for c in _list(_dict(record.get("check")).get("curves"))]
+        self.details = {
+            _dict(d).get("analyte"): _dict(d) for d in _list(record.get("fit_details"))
+        }
+
+    # -- small pieces ----------------------------------------------------------------------
+    def para(self, text: str, style: Any = None) -> Paragraph:
+        """A paragraph of plain text (escaped: record text is never markup)."""
+        return Paragraph(escape(text), style or self.s.body)
+
+    def heading(self, text: str) -> Paragraph:
+        p = self.para(text, self.s.heading)
+        p.keepWithNext = 1
+        return p
+
+    def table_heading(self, text: str) -> list[Flowable]:
+        """Heading of a table that may split across pages: never left alone at a page foot."""
+        # keepWithNext would move a whole long table to the next page; a conditional
+        # break only moves the heading when the table could not start below it.
+        return [CondPageBreak(80), self.para(text, self.s.heading)]
+
+    def unit(self, which: str) -> str:
+        unit = self.conc_unit if which == "concentration" else self.resp_unit
+        return f" ({unit})" if unit else ""
+
+    def lab_block(self) -> list[Flowable]:
+        lab = self.t.lab
+        lines = [" · ".join(lab.address), lab.method, lab.accreditation]
+        return [self.para(lab.name, self.s.lab),
+                *(self.para(line, self.s.lab_line) for line in lines if line)]
+
+    def boxed(self, bold: str, rest: str = "") -> Table:
+        markup = f"<b>{escape(bold)}</b>{escape(rest)}"
+        table = Table([[Paragraph(markup, self.s.verdict)]], colWidths=[self.width])
+        table.setStyle([
+            ("BOX", (0, 0), (-1, -1), 0.8, INK),
+            ("BACKGROUND", (0, 0), (-1, -1), SHADE),
+            ("LEFTPADDING", (0, 0), (-1, -1), 6),
+            ("RIGHTPADDING", (0, 0), (-1, -1), 6),
+            ("TOPPADDING", (0, 0), (-1, -1), 4),
+            ("BOTTOMPADDING", (0, 0), (-1, -1), 5),
+        ])
+        return table
+
+    # -- sections --------------------------------------------------------------------------
+    def run_items(self, curve: Mapping[str, Any] | None) -> list[tuple[str, str, bool]]:
+        record, run = self.record, _dict(self.record.get("run"))
+        profile = _dict(record.get("profile"))
+        tool = _dict(record.get("tool"))
+        units = _dict(run.get("units"))
+        source = curve if curve is not None else _dict(record.get("settings"))
+        confidence = as_float(source.get("confidence"))
+        profile_sha = str(profile.get("sha256") or "")
+        items = [
+            ("Record id", _str(self.record_id), False),
+            ("Created", format_utc(record.get("created_at")), False),
+            ("Record digest (SHA-256)", _str(self.digest), True),
+            ("Source file", _str(run.get("file")), True),
+            ("Source file SHA-256", _str(run.get("sha256")), True),
+            ("Sheet", _str(run.get("sheet")), False),
+            ("Layout", _str(run.get("layout")), False),
+            ("Profile", f"{_str(profile.get('name'))}, version {_str(profile.get('version'))}",
+             False),
+            ("Profile SHA-256", f"{profile_sha[:16]} …" if profile_sha else MISSING, False),
+            ("Model", _str(_MODELS.get(str(source.get("model")), source.get("model"))), False),
+            ("Weighting", _str(_WEIGHTINGS.get(str(source.get("weighting")),
+                                               source.get("weighting"))), False),
+            ("Confidence level", f"{confidence * 100:g} %" if confidence else MISSING, False),
+            ("Prepared by", _str(record.get("prepared_by")), False),
+        ]
+        if units:
+            items.append(("Units", "; ".join(f"{k}: {v}" for k, v in units.items()), False))
+        made = f"{tool.get('name') or 'calib'} {tool.get('version') or ''}".strip()
+        libraries = _dict(record.get("libraries"))
+        if libraries:
+            made += " (" + ", ".join(f"{k} {v}" for k, v in libraries.items()) + ")"
+        items.append(("Issued with", made, True))
+        for key, value in _dict(run.get("metadata")).items():
+            items.append((str(key), _str(value), len(str(value)) > 38))
+        return items
+
+    def fit_section(self, curve: Mapping[str, Any]) -> list[Flowable]:
+        coefficients = _dict(curve.get("coefficients"))
+        if not coefficients:
+            return [self.para("The curve could not be fitted, so there are no coefficients. "
+                              "The checks and standards below say why.")]
+        confidence = as_float(curve.get("confidence"))
+        level = f"{confidence * 100:g} %" if confidence else ""
+        resp, conc = self.resp_unit, self.conc_unit
+        unit_of = {
+            "intercept": resp,
+            "slope": f"{resp} per {conc}" if resp and conc else "",
+            "quadratic": f"{resp} per ({conc})²" if resp and conc else "",
+        }
+        rows: list[list[Any]] = [["Coefficient", "Unit", "Estimate", "Standard error", "t",
+                                  "p", f"Lower {level} limit", f"Upper {level} limit"]]
+        for name, row in coefficients.items():
+            row = _dict(row)
+            rows.append([
+                _COEFFICIENTS.get(name, name),
+                unit_of.get(name, ""),
+                format_number(row.get("estimate"), 6),
+                format_number(row.get("std_error"), 4),
+                format_number(row.get("t_value"), 4),
+                format_p(row.get("p_value")),
+                format_number(row.get("ci_low"), 6),
+                format_number(row.get("ci_high"), 6),
+            ])
+        table = self.tables.grid(rows, [0.13, 0.17, 0.12, 0.11, 0.09, 0.09, 0.145, 0.145],
+                                 right=range(2, 8))
+        lod, loq = _dict(curve.get("lod")), _dict(curve.get("loq"))
+
+        def with_unit(text: str, unit: str) -> str:
+            return f"{text} {unit}" if unit and text != MISSING else text
+
+        stats = self.tables.pairs([
+            ("Residual SD σ̂", with_unit(format_number(curve.get("residual_sd"), 5), resp),
+             False),
+            ("R²", _fixed(curve.get("r_squared")), False),
+            ("Correlation r", _fixed(curve.get("r")), False),
+            ("Points in the fit N", _str(curve.get("n_points")), False),
+            ("Levels", _str(curve.get("n_levels")), False),
+            ("Residual df ν", _str(curve.get("residual_df")), False),
+            ("LOD", with_unit(format_number(lod.get("value"), 4), conc), False),
+            ("LOQ", with_unit(format_number(loq.get("value"), 4), conc), False),
+        ])
+        notes = [f"{label}: {entry['method']}." for label, entry in (("LOD", lod), ("LOQ", loq))
+                 if entry.get("method")]
+        out: list[Flowable] = [table, Spacer(1, 4), stats]
+        if notes:
+            out += [Spacer(1, 2), self.para(" ".join(notes), self.s.note)]
+        return out
+
+    def checks_table(self, curve: Mapping[str, Any]) -> Flowable:
+        checks = [_dict(c) for c in _list(curve.get("checks"))]
+        if not checks:
+            return self.para("No acceptance checks were evaluated.")
+        rows: list[list[Any]] = [["Check", "Value", "Limit", "Verdict", "Severity", "Detail"]]
+        bold = []
+        for i, c in enumerate(checks, start=1):
+            verdict = str(c.get("verdict") or "")
+            if verdict in ("fail", "warn"):
+                bold.append((3, i))
+            severity = str(c.get("severity") or "")
+            rows.append([
+                _str(c.get("title") or c.get("id")),
+                format_compact(c.get("value")),
+                format_compact(c.get("limit")),
+                _CHECK_VERDICTS.get(verdict, verdict or MISSING),
+                _SEVERITIES.get(severity, severity or MISSING),
+                _str(c.get("detail")),
+            ])
+        return self.tables.grid(rows, [0.25, 0.08, 0.07, 0.115, 0.105, 0.38], right=(1, 2),
+                                bold=bold)
+
+    def standards_table(self, curve: Mapping[str, Any]) -> Flowable:
+        points = [_dict(p) for p in _list(curve.get("points"))]
+        if not points:
+            return self.para("The record holds no standards for this analyte.")
+        conc, resp = self.unit("concentration"), self.unit("response")
+        rows: list[list[Any]] = [[
+            "Source cell", "Level", f"Nominal{conc}", f"Response{resp}",
+            f"Fitted response{resp}", f"Back-calculated{conc}", "Deviation %", "Used in the fit",
+        ]]
+        for p in points:
+            if p.get("included", True):
+                used = "Yes"
+            else:
+                used = "No: " + str(p.get("exclusion_reason") or "no reason given")
+            rows.append([
+                _str(p.get("source_cell")),
+                _str(p.get("level")),
+                format_compact(p.get("concentration"), 6),
+                format_compact(p.get("response"), 7),
+                format_number(p.get("fitted"), 6),
+                format_number(p.get("back_calculated"), 5),
+                format_percent(p.get("deviation_pct")),
+                used,
+            ])
+        return self.tables.grid(rows, [0.12, 0.06, 0.11, 0.13, 0.13, 0.14, 0.09, 0.22],
+                                right=range(1, 7))
+
+    def band(self, curve: Mapping[str, Any], log_x: bool) -> CurveBand | None:
+        """Fitted curve and confidence band from the stored fit details, or None."""
+        details = self.details.get(curve.get("analyte"))
+        coefficients = _dict(curve.get("coefficients"))
+        if not details or not coefficients:
+            return None
+        names = [str(n) for n in _list(details.get("coefficient_names"))]
+        beta = [as_float(_dict(coefficients.get(n)).get("estimate")) for n in names]
+        cov = [[as_float(v) for v in _list(row)] for row in _list(details.get("covariance"))]
+        t_crit = as_float(details.get("t_critical"))
+        lo, hi = as_float(details.get("x_min")), as_float(details.get("x_max"))
+        if not (
+            names and None not in beta and t_crit is not None and lo is not None
+            and hi is not None and hi > lo and len(cov) == len(names)
+            and all(len(r) == len(names) and None not in r for r in cov)
+        ):
+            return None
+        grid = (np.geomspace(lo, hi, _BAND_POINTS) if log_x and lo > 0
+                else np.linspace(lo, hi, _BAND_POINTS))
+        try:
+            yhat, half = mean_band(str(curve.get("model")), np.array(beta), np.array(cov),
+                                   t_crit, grid)
+        except ValueError:
+            return None  # a model the band cannot draw: the points are shown alone
+        if not (np.all(np.isfinite(yhat)) and np.all(np.isfinite(half))):
+            return None
+        return CurveBand(tuple(grid.tolist()), tuple(yhat.tolist()), tuple(half.tolist()),
+                         as_float(curve.get("confidence")) or 0.95)
+
+    def plots(self, curve: Mapping[str, Any]) -> list[Flowable]:
+        s, show = self.s, self.t.show
+        if not (show.calibration_plot or show.residual_plot):
+            return []
+        xy = []
+        for p in (_dict(p) for p in _list(curve.get("points"))):
+            x, y = as_float(p.get("concentration")), as_float(p.get("response"))
+            if x is not None and y is not None:
+                xy.append((x, y, as_float(p.get("fitted")), bool(p.get("included", True))))
+        log_x = wants_log_axis([x for x, *_ in xy])
+        x_title = "Concentration" + self.unit("concentration")
+        gap = 10
+        w = (self.width - gap) / 2
+        titles: list[Any] = []
+        drawings: list[Any] = []
+        if show.calibration_plot:
+            titles.append(self.para("Response against concentration", s.head_cell))
+            drawings.append(calibration_chart(
+                [PlotPoint(x, y, used) for x, y, _, used in xy], self.band(curve, log_x),
+                width=w, height=_PLOT_HEIGHT, x_title=x_title,
+                y_title="Response" + self.unit("response"), log_x=log_x))
+        if show.residual_plot:
+            residuals = [PlotPoint(x, y - f, used) for x, y, f, used in xy if f is not None]
+            titles.append(self.para("Residuals (response − fitted) against concentration",
+                                    s.head_cell))
+            if residuals:
+                drawings.append(residual_chart(
+                    residuals, width=w, height=_PLOT_HEIGHT, x_title=x_title,
+                    y_title="Residual" + self.unit("response"), log_x=log_x))
+            else:
+                drawings.append(self.para("No residuals: the curve was not fitted."))
+        table = Table([titles, drawings], colWidths=[w + gap / 2] * len(drawings))
+        table.setStyle([("LEFTPADDING", (0, 0), (-1, -1), 0),
+                        ("RIGHTPADDING", (0, 0), (-1, -1), 0),
+                        ("VALIGN", (0, 0), (-1, -1), "TOP")])
+        notes = []
+        if log_x:
+            all_positive = bool(xy) and min(y for _, y, _, _ in xy) > 0
+            notes.append("The concentration axes are logarithmic"
+                         + (", and so is the response axis of the calibration plot."
+                            if all_positive else "."))
+        weighting = str(curve.get("weighting") or "none")
+        if weighting != "none" and show.residual_plot:
+            notes.append("Residuals are plotted unweighted, in response units; the fit "
+                         f"weighted the standards by {_WEIGHTINGS.get(weighting, weighting)}.")
+        out: list[Flowable] = [self.heading(self.t.titles.plots), table]
+        if notes:
+            out.append(self.para(" ".join(notes), s.note))
+        return [KeepTogether(out)]
+
+    def cautions(self) -> list[Flowable]:
+        # The template's wording is the lab's; the record's own text is the fallback.
+        text = self.t.cautions or str(self.record.get("cautions") or "")
+        body: list[Flowable] = []
+        for i, chunk in enumerate(c for c in text.split("\n\n") if c.strip()):
+            if i:
+                body.append(Spacer(1, 3))
+            body.append(self.para(" ".join(chunk.split()), self.s.small))
+        return [KeepTogether([self.heading(self.t.titles.cautions), *body])]
+
+    def signoff(self) -> list[Flowable]:
+        meanings = self.t.meanings
+        signatures = [_dict(x) for x in _list(self.record.get("signatures"))]
+        rows: list[list[Any]] = [["Role", "Printed name", "Signature", "Date and time (UTC)",
+                                  "Meaning"]]
+        blank_rows = []
+        others = {str(x.get("role")) for x in signatures if x.get("role")} - set(_ROLES)
+        for role in [*_ROLES, *sorted(others)]:
+            signed = [x for x in signatures if x.get("role") == role]
+            for x in signed:
+                rows.append([role.capitalize(), _str(x.get("name")), "Entered in the record",
+                             format_utc(x.get("signed_at")),
+                             _str(x.get("meaning") or getattr(meanings, role, ""))])
+            if not signed:
+                name = self.record.get("prepared_by") if role == "prepared" else None
+                blank_rows.append(len(rows))
+                rows.append([role.capitalize(), str(name or ""), "", "",
+                             getattr(meanings, role, "")])
+        # Blank rows get room to sign by hand on a printed copy.
+        extra = [cmd for r in blank_rows for cmd in (("TOPPADDING", (0, r), (-1, r), 9),
+                                                      ("BOTTOMPADDING", (0, r), (-1, r), 9))]
+        table = self.tables.grid(rows, [0.11, 0.2, 0.2, 0.17, 0.32], extra=extra)
+        return [KeepTogether([self.heading(self.t.titles.signoff), table])]
+
+    # -- whole sections ----------------------------------------------------------------------
+    def analyte(self, curve: Mapping[str, Any]) -> list[Flowable]:
+        t = self.t
+        name = str(curve.get("analyte") or "Analyte")
+        sentence = verdict_sentence(curve, t)
+        cut = len(t.verdicts.word(curve.get("verdict"))) + 1
+        out: list[Flowable] = [SectionMark(name), *self.lab_block(),
+                               self.para(f"{t.titles.document}: {name}", self.s.title),
+                               self.boxed(sentence[:cut], sentence[cut:])]
+        if t.show.run:
+            out += [self.heading(t.titles.run), self.tables.pairs(self.run_items(curve))]
+        if t.show.fit:
+            out += [self.heading(t.titles.fit), *self.fit_section(curve)]
+        if t.show.checks:
+            out += [*self.table_heading(t.titles.checks), self.checks_table(curve)]
+        if t.show.standards:
+            out += [*self.table_heading(t.titles.standards), self.standards_table(curve)]
+        return out + self.plots(curve) + self.cautions() + self.signoff()
+
+    def summary(self) -> list[Flowable]:
+        t = self.t
+        counts: dict[str, int] = {}
+        for c in self.curves:
+            counts[str(c.get("verdict"))] = counts.get(str(c.get("verdict")), 0) + 1
+        tally = ", ".join(f"{t.verdicts.word(k).lower()}: {n}" for k, n in counts.items())
+        rows: list[list[Any]] = [["Analyte", "Verdict", "Slope", "R²", "Failing checks"]]
+        for c in self.curves:
+            slope = _dict(_dict(c.get("coefficients")).get("slope")).get("estimate")
+            failing = [str(_dict(x).get("title") or _dict(x).get("id"))
+                       for x in _list(c.get("checks")) if _dict(x).get("verdict") == "fail"]
+            rows.append([_str(c.get("analyte")), t.verdicts.word(c.get("verdict")),
+                         format_number(slope, 5), _fixed(c.get("r_squared")),
+                         "; ".join(failing) or MISSING])
+        table = self.tables.grid(rows, [0.2, 0.12, 0.13, 0.12, 0.43], right=(2, 3))
+        verdict = t.verdicts.word(_dict(self.record.get("check")).get("verdict"))
+        out: list[Flowable] = [
+            SectionMark(t.titles.summary), *self.lab_block(),
+            self.para(t.titles.document, self.s.title),
+            self.boxed(f"{verdict}.", f" {len(self.curves)} analytes; {tally}."),
+        ]
+        if t.show.run:
+            out += [self.heading(t.titles.run), self.tables.pairs(self.run_items(None))]
+        return out + [*self.table_heading(t.titles.summary), table]
+
+    def story(self) -> list[Flowable]:
+        if not self.curves:
+            return [SectionMark(""), *self.lab_block(),
+                    self.para(self.t.titles.document, self.s.title),
+                    self.boxed("This record holds no analytes."),
+                    self.heading(self.t.titles.run), self.tables.pairs(self.run_items(None)),
+                    *self.cautions(), *self.signoff()]
+        out: list[Flowable] = []
+        if len(self.curves) > 1 and self.t.show.summary:
+            out += self.summary()
+            out.append(PageBreak())
+        for i, curve in enumerate(self.curves):
+            if i:
+                out.append(PageBreak())
+            out += self.analyte(curve)
+        return out
+
+
+def build_story(
+    record: Mapping[str, Any],
+    *,
+    record_id: str,
+    digest: str,
+    template: ReportTemplate,
+    width: float,
+) -> list[Flowable]:
+    """Flowables of a whole record: a summary page (several analytes), then one section each.
+
+    Parameters
+    ----------
+    record : mapping
+        The parsed ``calib.record/1`` JSON.
+    record_id, digest : str
+        Identifier and SHA-256 of the record (not part of the record itself).
+    template : ReportTemplate
+        Lab details and wording.
+    width : float
+        Width of the text frame in points.
+
+    Returns
+    -------
+    list of Flowable
+
+    Examples
+    --------
+    >>> from calib.report.template import load_template
+    >>> story = build_story({"check": {"curves": []}}, record_id="CR-0", digest="0" * 64,
+    ...                     template=load_template(), width=480)
+    >>> len(story) > 5
+    True
+    """
+    return _Builder(record, record_id=record_id, digest=digest, template=template,
+                    width=width).story()

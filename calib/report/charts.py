@@ -12,7 +12,7 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from reportlab.graphics.shapes import Circle, Drawing, Group, Line, PolyLine, Polygon, Rect, String
+from reportlab.graphics.shapes import Drawing, Group, Line, Path, Polygon, PolyLine, Rect, String
 from reportlab.lib import colors
 from reportlab.pdfbase.pdfmetrics import stringWidth
 
@@ -117,6 +117,8 @@ class _Axis:
             high = max(math.ceil(math.log10(max(finite)) - 1e-9), low + 1)
             return cls([10.0**k for k in range(low, high + 1)], start, length, True)
         lo, hi = (min(finite), max(finite)) if finite else (0.0, 1.0)
+        if lo == hi and lo > 0:
+            lo, hi = 0.0, 2 * hi  # a single value sits mid-axis above zero
         if symmetric:
             m = max(abs(lo), abs(hi)) * 1.1 or 1.0
             lo, hi = -m, m
@@ -162,14 +164,36 @@ def _frame(d: Drawing, xa: _Axis, ya: _Axis, *, x_title: str, y_title: str) -> N
     d.add(label)
 
 
-def _marker(d: Drawing, x: float, y: float, included: bool) -> None:
-    if included:
-        d.add(Circle(x, y, 2.1, fillColor=POINT, strokeColor=POINT, strokeWidth=0.4))
-    else:
-        # An open diamond: unlike the filled dots, it stays distinct in black and white.
-        s = 2.8
-        d.add(Polygon([x - s, y, x, y + s, x + s, y, x, y - s], fillColor=colors.white,
-                      strokeColor=EXCLUDED, strokeWidth=0.9))
+def _dots(d: Drawing, centres: Sequence[tuple[float, float]]) -> None:
+    """Filled dots, all in one path: each a very short line with round caps.
+
+    One path instead of a circle shape per standard keeps a plot to a few
+    hundred PDF operators, which matters for records of hundreds of analytes.
+    """
+    if not centres:
+        return
+    points: list[float] = []
+    for x, y in centres:
+        points += [x - 0.01, y, x + 0.01, y]
+    d.add(Path(points=points, operators=[0, 1] * len(centres), strokeColor=POINT,
+               strokeWidth=4.2, strokeLineCap=1, fillColor=None))
+
+
+def _diamond(d: Drawing, x: float, y: float) -> None:
+    # Open, unlike the filled dots, so it stays distinct in black and white.
+    s = 2.8
+    d.add(Polygon([x - s, y, x, y + s, x + s, y, x, y - s], fillColor=colors.white,
+                  strokeColor=EXCLUDED, strokeWidth=0.9))
+
+
+def _markers(d: Drawing, xa: _Axis, ya: _Axis, points: Sequence[PlotPoint]) -> None:
+    """Standards inside the axes: dots for those used, diamonds for those excluded."""
+    shown = [p for p in points if math.isfinite(p.x) and math.isfinite(p.y)
+             and (p.x > 0 or not xa.log) and (p.y > 0 or not ya.log)]
+    _dots(d, [(xa(p.x), ya(p.y)) for p in shown if p.included])
+    for p in shown:
+        if not p.included:
+            _diamond(d, xa(p.x), ya(p.y))
 
 
 def _legend(d: Drawing, items: list[tuple[str, str]], x: float, y: float, width: float) -> None:
@@ -181,8 +205,10 @@ def _legend(d: Drawing, items: list[tuple[str, str]], x: float, y: float, width:
         if col + w > x + width and col > x:
             col, row_y = x, row_y - 10
         cx, cy = col + 5, row_y + 2.2
-        if kind in ("included", "excluded"):
-            _marker(d, cx, cy, kind == "included")
+        if kind == "included":
+            _dots(d, [(cx, cy)])
+        elif kind == "excluded":
+            _diamond(d, cx, cy)
         elif kind == "off":
             _pinned(d, cx, cy + 1.6, up=True)
         elif kind == "curve":
@@ -264,9 +290,7 @@ def calibration_chart(
         line = [c for x, m in zip(band.x, band.yhat) for c in at(x, m)]
         d.add(PolyLine(line, strokeColor=CURVE, strokeWidth=1.1))
     _frame(d, xa, ya, x_title=x_title, y_title=y_title)
-    for p in sorted(points, key=lambda p: p.included):
-        if math.isfinite(p.x) and math.isfinite(p.y) and (p.x > 0 or not log_x):
-            _marker(d, xa(p.x), ya(p.y), p.included)
+    _markers(d, xa, ya, points)
     _legend(d, legend_items, 46, bottom - 38, width - 40)
     return d
 
@@ -314,13 +338,10 @@ def residual_chart(
     d.add(Line(xa.start, zero, xa.start + xa.length, zero, strokeColor=MUTED, strokeWidth=0.6,
                strokeDashArray=[2, 1.5]))
     _frame(d, xa, ya, x_title=x_title, y_title=y_title)
-    for p in sorted(points, key=lambda p: p.included):
-        if not (math.isfinite(p.x) and math.isfinite(p.y) and (p.x > 0 or not log_x)):
-            continue
-        if p in off:
+    _markers(d, xa, ya, [p for p in points if p not in off])
+    for p in off:
+        if math.isfinite(p.x) and (p.x > 0 or not log_x):
             _pinned(d, xa(p.x), ya(high if p.y > high else low), up=p.y > high)
-        else:
-            _marker(d, xa(p.x), ya(p.y), p.included)
     _legend(d, legend_items, 46, bottom - 38, width - 40)
     return d
 

@@ -54,6 +54,18 @@ def embed_file(
         Media type of the content.
     description : str
         Shown by viewers beside the file name.
+
+    Examples
+    --------
+    >>> import io
+    >>> from pypdf import PdfReader
+    >>> out = io.BytesIO()
+    >>> canvas = Canvas(out, invariant=1)
+    >>> canvas.drawString(72, 720, "See the attached file.")
+    >>> embed_file(canvas, name="notes.txt", data=b"hello", mime_type="text/plain")
+    >>> canvas.save()
+    >>> PdfReader(out).attachments["notes.txt"]
+    [b'hello']
     """
     doc = canvas._doc
     stream = pdfdoc.PDFStream(

@@ -98,7 +98,7 @@ class SectionMark(Flowable):
         self.name = name
         self.width = self.height = 0
 
-    def wrap(self, availWidth: float, availHeight: float) -> tuple[float, float]:  # noqa: N803
+    def wrap(self, availWidth: float, availHeight: float) -> tuple[float, float]:
         return 0, 0
 
     def draw(self) -> None:
@@ -127,13 +127,15 @@ class RecordCanvas(Canvas):
         self._calib_pages: list[dict[str, Any]] = []
         self._calib_section: str | None = None
 
-    def showPage(self) -> None:  # noqa: N802 - reportlab's name
+    def showPage(self) -> None:
         # Keep the finished page's state; a fresh page starts as Canvas.showPage would leave it.
         self._calib_pages.append(dict(self.__dict__))
         self._startPage()
 
     def save(self) -> None:
         """Draw the furniture on every held page, then write the document."""
+        if self._code:
+            self.showPage()
         pages = self._calib_pages
         total = len(pages)
         for number, state in enumerate(pages, start=1):

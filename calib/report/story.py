@@ -58,7 +58,7 @@ _CHECK_VERDICTS = {"pass": "Pass", "fail": "Fail", "warn": "Warning",
                    "not-evaluated": "Not evaluated"}
 _SEVERITIES = {"reject": "Reject", "review": "Review", "info": "Information"}
 _ROLES = ("prepared", "reviewed", "approved")
-_BAND_POINTS = 61
+_BAND_POINTS = 41
 _PLOT_HEIGHT = 190
 
 
@@ -82,6 +82,16 @@ def _fixed(value: Any, decimals: int = 6) -> str:
     return MISSING if v is None else f"{v:.{decimals}f}"
 
 
+def _coefficient_order(coefficients: Mapping[str, Any]) -> list[str]:
+    """Design order (intercept, slope, quadratic), whatever order the mapping has.
+
+    A record read back from its canonical JSON has its keys sorted, and it must
+    print exactly as it did when it was issued.
+    """
+    known = [name for name in _COEFFICIENTS if name in coefficients]
+    return known + sorted(set(coefficients) - set(known))
+
+
 def verdict_sentence(curve: Mapping[str, Any], template: ReportTemplate) -> str:
     """The verdict in words, naming the checks that failed, warned or could not be evaluated.
 
@@ -99,7 +109,8 @@ def verdict_sentence(curve: Mapping[str, Any], template: ReportTemplate) -> str:
     for check in _list(curve.get("checks")):
         check = _dict(check)
         verdict = check.get("verdict")
-        if verdict == "not-evaluated" and check.get("severity") == "info":
+        # Only what moves the verdict: an unevaluated check matters when it could reject.
+        if verdict == "not-evaluated" and check.get("severity") != "reject":
             continue
         if verdict in groups:
             groups[verdict].append(str(check.get("title") or check.get("id") or "?"))
@@ -109,6 +120,22 @@ def verdict_sentence(curve: Mapping[str, Any], template: ReportTemplate) -> str:
         if groups[key]:
             parts.append(f"{label}: {'; '.join(groups[key])}.")
     return " ".join(parts)
+
+
+def _common_sheet(cells: Any) -> tuple[str, str]:
+    """The ``Sheet!`` prefix every source cell shares, and the column title naming it.
+
+    Examples
+    --------
+    >>> _common_sheet(["Run!C7", "Run!C8"])
+    ('Run!', 'Cell in Run')
+    >>> _common_sheet(["A!C7", "B!C8"])
+    ('', 'Source cell')
+    """
+    prefixes = {str(c).rpartition("!")[0] for c in cells if c}
+    if len(prefixes) == 1 and (sheet := prefixes.pop()):
+        return f"{sheet}!", f"Cell in {sheet.strip(chr(39))}"
+    return "", "Source cell"
 
 
 class _Builder:
@@ -182,7 +209,7 @@ class _Builder:
         items = [
             ("Record id", _str(self.record_id), False),
             ("Created", format_utc(record.get("created_at")), False),
-            ("Record digest (SHA-256)", _str(self.digest), True),
+            ("Digest (SHA-256)", _str(self.digest), True),
             ("Source file", _str(run.get("file")), True),
             ("Source file SHA-256", _str(run.get("sha256")), True),
             ("Sheet", _str(run.get("sheet")), False),
@@ -197,13 +224,15 @@ class _Builder:
             ("Prepared by", _str(record.get("prepared_by")), False),
         ]
         if units:
-            items.append(("Units", "; ".join(f"{k}: {v}" for k, v in units.items()), False))
+            items.append(("Units", "; ".join(f"{k}: {units[k]}" for k in sorted(units)), False))
         made = f"{tool.get('name') or 'calib'} {tool.get('version') or ''}".strip()
         libraries = _dict(record.get("libraries"))
         if libraries:
-            made += " (" + ", ".join(f"{k} {v}" for k, v in libraries.items()) + ")"
+            made += " (" + ", ".join(f"{k} {libraries[k]}" for k in sorted(libraries)) + ")"
         items.append(("Issued with", made, True))
-        for key, value in _dict(run.get("metadata")).items():
+        metadata = _dict(run.get("metadata"))
+        for key in sorted(metadata, key=str):
+            value = metadata[key]
             items.append((str(key), _str(value), len(str(value)) > 38))
         return items
 
@@ -222,8 +251,8 @@ class _Builder:
         }
         rows: list[list[Any]] = [["Coefficient", "Unit", "Estimate", "Standard error", "t",
                                   "p", f"Lower {level} limit", f"Upper {level} limit"]]
-        for name, row in coefficients.items():
-            row = _dict(row)
+        for name in _coefficient_order(coefficients):
+            row = _dict(coefficients[name])
             rows.append([
                 _COEFFICIENTS.get(name, name),
                 unit_of.get(name, ""),
@@ -286,8 +315,9 @@ class _Builder:
         if not points:
             return self.para("The record holds no standards for this analyte.")
         conc, resp = self.unit("concentration"), self.unit("response")
+        prefix, cell_title = _common_sheet(p.get("source_cell") for p in points)
         rows: list[list[Any]] = [[
-            "Source cell", "Level", f"Nominal{conc}", f"Response{resp}",
+            cell_title, "Level", f"Nominal{conc}", f"Response{resp}",
             f"Fitted response{resp}", f"Back-calculated{conc}", "Deviation %", "Used in the fit",
         ]]
         for p in points:
@@ -296,7 +326,7 @@ class _Builder:
             else:
                 used = "No: " + str(p.get("exclusion_reason") or "no reason given")
             rows.append([
-                _str(p.get("source_cell")),
+                _str(p.get("source_cell")).removeprefix(prefix),
                 _str(p.get("level")),
                 format_compact(p.get("concentration"), 6),
                 format_compact(p.get("response"), 7),
@@ -442,10 +472,11 @@ class _Builder:
 
     def summary(self) -> list[Flowable]:
         t = self.t
-        counts: dict[str, int] = {}
-        for c in self.curves:
-            counts[str(c.get("verdict"))] = counts.get(str(c.get("verdict")), 0) + 1
-        tally = ", ".join(f"{t.verdicts.word(k).lower()}: {n}" for k, n in counts.items())
+        verdicts = [str(c.get("verdict")) for c in self.curves]
+        order = ["accepted", "needs-review", "rejected"]
+        order += sorted(set(verdicts) - set(order))
+        tally = ", ".join(f"{t.verdicts.word(k).lower()}: {verdicts.count(k)}" for k in order
+                          if k in verdicts)
         rows: list[list[Any]] = [["Analyte", "Verdict", "Slope", "R²", "Failing checks"]]
         for c in self.curves:
             slope = _dict(_dict(c.get("coefficients")).get("slope")).get("estimate")

@@ -62,7 +62,13 @@ class Styles:
 
 @functools.cache
 def get_styles() -> Styles:
-    """The record's paragraph styles (built once; reportlab styles are not mutated)."""
+    """The record's paragraph styles (built once; reportlab styles are not mutated).
+
+    Examples
+    --------
+    >>> get_styles().body.fontName
+    'CalibSans'
+    """
     register_fonts()
     base = ParagraphStyle("body", fontName=REGULAR, fontSize=8.5, leading=11, textColor=INK,
                           alignment=TA_LEFT)
@@ -100,6 +106,11 @@ def grid_style(*, header_rows: int = 1, font_size: float = 7,
         Text size of plain-string cells.
     right_from : int, optional
         First column whose cells are right-aligned (numbers); None for none.
+
+    Examples
+    --------
+    >>> ("FONTNAME", (0, 0), (-1, 0), BOLD) in grid_style().getCommands()
+    True
     """
     commands: list[tuple] = [
         ("FONTNAME", (0, 0), (-1, -1), REGULAR),

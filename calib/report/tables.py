@@ -39,7 +39,17 @@ class TableMaker:
         self.width = width
 
     def fit(self, text: str, width: float, style: ParagraphStyle) -> str | Paragraph:
-        """``text`` as a plain cell when it fits on one line of ``width``, else a paragraph."""
+        """``text`` as a plain cell when it fits on one line of ``width``, else a paragraph.
+
+        Examples
+        --------
+        >>> from calib.report.styles import get_styles
+        >>> maker = TableMaker(get_styles(), 480)
+        >>> maker.fit("Run!C7", 60, get_styles().cell)
+        'Run!C7'
+        >>> type(maker.fit("Air bubble in the sample loop, re-injected", 60, get_styles().cell))
+        <class 'reportlab.platypus.paragraph.Paragraph'>
+        """
         if "\n" not in text and (
             stringWidth(text, style.fontName, style.fontSize) <= width - _PADDING
         ):

@@ -134,7 +134,8 @@ class ReportTemplate:
     titles, verdicts, meanings : Titles, Verdicts, Meanings
         Wording.
     cautions : str
-        The cautions printed in every analyte section (paragraphs split on blank lines).
+        The cautions printed in every analyte section (paragraphs split on blank
+        lines); when empty, the record's own ``cautions`` text is printed instead.
     source : str
         Where the template was read from (for messages).
     """

@@ -7,7 +7,11 @@ One tree, so callers can catch everything calib means to raise with a single
     ├── InputError             a run file cannot be read or used (names file, sheet, row, column)
     ├── ProfileError           an acceptance profile is malformed (names file and line)
     ├── TemplateError          a report template is malformed or points outside its folder
-    └── NotAcceptedError       raised only on request, by CurveAssessment.raise_for_verdict()
+    ├── NotAcceptedError       raised only on request, by CurveAssessment.raise_for_verdict()
+    ├── SignOffError           a sign-off the rules refuse (calib.record.signing)
+    ├── KeyFileError           a signing key cannot be read (calib.record.keys)
+    ├── PassphraseError        no passphrase for a signing key (calib.record.keys)
+    └── ArchiveError           the archive cannot be opened or refuses a write (calib.archive.store)
 
 Wrong *arguments* (an unknown model name, a confidence of 1.5) raise the
 built-in ``ValueError`` naming the parameter and the value.  A curve that fails

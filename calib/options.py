@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from enum import StrEnum
 
-__all__ = ["Model", "SampleType", "Weighting", "parse_option"]
+__all__ = ["LimitMethod", "Model", "SampleType", "Weighting", "parse_option"]
 
 
 class Model(StrEnum):
@@ -13,6 +13,7 @@ class Model(StrEnum):
     LINEAR = "linear"  # y = a + b·x
     ORIGIN = "origin"  # y = b·x
     QUADRATIC = "quadratic"  # y = a + b·x + c·x²
+    MEAN_RF = "mean-rf"  # y = RF·x, RF the mean of the response factors yᵢ/xᵢ
 
 
 class Weighting(StrEnum):
@@ -21,6 +22,17 @@ class Weighting(StrEnum):
     NONE = "none"
     INV_X = "1/x"
     INV_X2 = "1/x2"
+    INV_Y = "1/y"
+    INV_Y2 = "1/y2"
+    INV_S2 = "1/s2"  # inverse variance of the replicate responses at each level
+
+
+class LimitMethod(StrEnum):
+    """How the detection and quantitation limits are worked out."""
+
+    ICH_SD = "ich-sd"  # ICH Q2: 3.3·σ/S and 10·σ/S, σ the residual SD
+    ICH_INTERCEPT_SE = "ich-intercept-se"  # the same with σ the SE of the intercept
+    ISO_11843 = "iso-11843"  # ISO 11843-2 minimum detectable value from the line
 
 
 class SampleType(StrEnum):
@@ -43,7 +55,7 @@ def parse_option(enum: type[StrEnum], value: str | StrEnum, *, name: str) -> Str
     >>> parse_option(Model, "cubic", name="model")
     Traceback (most recent call last):
     ...
-    ValueError: model must be one of linear, origin, quadratic; got 'cubic'
+    ValueError: model must be one of linear, origin, quadratic, mean-rf; got 'cubic'
     """
     try:
         return enum(value)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from calib.checks.history import SlopeHistory
 from calib.fit.curve import CurveFit
 from calib.run import Point
 
@@ -53,13 +54,20 @@ class CurveContext:
     """One analyte's curve as the rules see it.
 
     ``fit`` is None when the standards cannot be fitted; ``unfitted_reason``
-    then says why, and rules report ``not-evaluated`` with it.
+    then says why, and rules report ``not-evaluated`` with it.  ``blanks``
+    holds the analyte's blank and zero samples and its zero-concentration
+    standards (the ``blank`` rule judges them); ``slope_history`` the earlier
+    accepted slopes when a front end read them from an archive; ``qcs`` the
+    analyte's QC samples (the ``qc`` rule reads them back from the curve).
     """
 
     analyte: str
     standards: tuple[StandardResult, ...]
     fit: CurveFit | None
     unfitted_reason: str = ""
+    blanks: tuple[Point, ...] = ()
+    slope_history: SlopeHistory | None = None
+    qcs: tuple[Point, ...] = ()
 
     @property
     def used(self) -> tuple[StandardResult, ...]:

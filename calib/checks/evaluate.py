@@ -3,20 +3,31 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from calib.checks.context import CurveContext, StandardResult
+from calib.checks.exclusions import AppliedExclusion, Exclusion, apply_exclusions
+from calib.checks.history import SlopeHistory
+from calib.checks.narrowing import (
+    AppliedRange,
+    RangeError,
+    RangeProposal,
+    WorkingRange,
+    kept_levels,
+    narrow_points,
+    propose_range,
+)
 from calib.checks.profile import Profile, load_profile
-from calib.checks.result import CheckResult, CurveVerdict, combine_verdicts, worst
+from calib.checks.result import CheckResult, CurveVerdict, combine_verdicts, verdict_reasons, worst
 from calib.checks.rules import RULES
 from calib.errors import NotAcceptedError
 from calib.fit.curve import CurveFit, fit_curve
-from calib.fit.design import COEFFICIENTS, weighting_refuses
-from calib.fit.limits import DetectionLimit, ich_limits
-from calib.options import Model, Weighting, parse_option
+from calib.fit.design import COEFFICIENTS, model_refuses, weighting_refuses
+from calib.fit.limits import DetectionLimit, detection_limits
+from calib.options import Model, SampleType, Weighting, parse_option
 from calib.run import Point, Run
 
 __all__ = ["CurveAssessment", "RunAssessment", "assess_curve", "evaluate_run"]
@@ -40,6 +51,30 @@ class CurveAssessment:
     loq: DetectionLimit | None
     checks: tuple[CheckResult, ...]
     verdict: CurveVerdict
+    #: The working range the analyst set, when one was; ``original`` is then the curve
+    #: on its full range, shown beside.
+    working_range: AppliedRange | None = None
+    #: A narrowed range calib proposes (never applied by itself), when the profile allows.
+    proposal: RangeProposal | None = None
+    original: CurveAssessment | None = None
+
+    @property
+    def reasons(self) -> tuple[str, ...]:
+        """Why the curve is not accepted, in plain words, the weightiest first."""
+        return verdict_reasons(self.checks, unfitted_reason=self.unfitted_reason
+                               if self.fit is None else "")
+
+    @property
+    def lloq(self) -> float | None:
+        """Lowest non-zero nominal concentration in the fit."""
+        levels = [s.point.concentration for s in self.standards if s.used and s.point.concentration]
+        return min(levels) if levels else None
+
+    @property
+    def uloq(self) -> float | None:
+        """Highest nominal concentration in the fit."""
+        levels = [s.point.concentration for s in self.standards if s.used and s.point.concentration]
+        return max(levels) if levels else None
 
     def raise_for_verdict(self) -> None:
         """Raise :class:`~calib.errors.NotAcceptedError` unless the curve was accepted."""
@@ -61,6 +96,8 @@ class RunAssessment:
     weighting: Weighting
     confidence: float
     curves: tuple[CurveAssessment, ...]
+    #: Exclusions the analyst asked for when checking (beside those the run file makes).
+    exclusions: tuple[AppliedExclusion, ...] = ()
 
     @property
     def verdict(self) -> CurveVerdict:
@@ -76,6 +113,9 @@ def evaluate_run(
     weighting: Weighting | str | None = None,
     confidence: float | None = None,
     progress: Progress | None = None,
+    exclusions: Sequence[Exclusion] = (),
+    ranges: Sequence[WorkingRange] = (),
+    slope_history: Mapping[str, SlopeHistory] | None = None,
 ) -> RunAssessment:
     """Fit and check every analyte of ``run``.
 
@@ -89,27 +129,96 @@ def evaluate_run(
         Override the profile's defaults.
     progress : callable, optional
         ``progress(done, total)`` after each analyte.
+    exclusions : sequence of Exclusion
+        Points the analyst leaves out, each with a reason.
+    ranges : sequence of WorkingRange
+        Working ranges the analyst sets (one per analyte, or one for all).
+    slope_history : mapping of analyte to SlopeHistory, optional
+        Earlier accepted slopes, for ``slope-reference`` with ``recent_curves``.
 
     Returns
     -------
     RunAssessment
+
+    Raises
+    ------
+    InputError
+        If an exclusion names no point of the run.
+    RangeError
+        If a range names no analyte of the run, or gives no reason and is not
+        the range calib proposes.
     """
     profile = profile or load_profile("default")
     model = parse_option(Model, model or profile.model, name="model")
     weighting = parse_option(Weighting, weighting or profile.weighting, name="weighting")
     confidence = profile.confidence if confidence is None else confidence
+    run, applied = apply_exclusions(run, exclusions) if exclusions else (run, ())
     analytes = run.analytes
+    wanted = _ranges_by_analyte(ranges, analytes)
+    history = slope_history or {}
     curves = []
     for done, analyte in enumerate(analytes, start=1):
-        curves.append(
-            assess_curve(
-                analyte, run.standards(analyte),
-                model=model, weighting=weighting, confidence=confidence, profile=profile,
-            )
-        )
+        blanks = tuple(p for p in run.points if p.analyte == analyte
+                       and p.sample_type in (SampleType.BLANK, SampleType.ZERO))
+        qcs = tuple(p for p in run.points
+                    if p.analyte == analyte and p.sample_type is SampleType.QC)
+
+        def assess(standards: Sequence[Point], analyte: str = analyte,
+                   blanks: tuple[Point, ...] = blanks,
+                   qcs: tuple[Point, ...] = qcs) -> CurveAssessment:
+            return assess_curve(analyte, standards, model=model, weighting=weighting,
+                                confidence=confidence, profile=profile, blanks=blanks,
+                                slope_history=history.get(analyte), qcs=qcs)
+
+        curves.append(_with_ranges(assess, run.standards(analyte), profile, wanted.get(analyte)))
         if progress is not None:
             progress(done, len(analytes))
-    return RunAssessment(run, profile, model, weighting, confidence, tuple(curves))
+    return RunAssessment(run, profile, model, weighting, confidence, tuple(curves), applied)
+
+
+def _ranges_by_analyte(ranges: Sequence[WorkingRange],
+                       analytes: Sequence[str]) -> dict[str, WorkingRange]:
+    by_name = {a.casefold(): a for a in analytes}
+    wanted: dict[str, WorkingRange] = {}
+    for working in ranges:
+        if working.analyte is None:
+            for analyte in analytes:
+                wanted.setdefault(analyte, working)
+            continue
+        analyte = by_name.get(working.analyte.casefold())
+        if analyte is None:
+            raise RangeError(f"range {working.analyte}:{working.text} names no analyte of the "
+                             f"run; its analytes are {', '.join(analytes)}")
+        wanted[analyte] = working
+    return wanted
+
+
+def _with_ranges(assess: Callable[[Sequence[Point]], CurveAssessment],
+                 standards: Sequence[Point], profile: Profile,
+                 working: WorkingRange | None) -> CurveAssessment:
+    """The curve, with calib's proposed range and the analyst's range when one is set."""
+    curve = assess(standards)
+    proposal = None
+    if profile.narrowing.propose:
+        proposal = propose_range(curve, standards, assess,
+                                 max_dropped=profile.narrowing.max_dropped_levels)
+    if working is None:
+        return replace(curve, proposal=proposal)
+    as_proposed = (proposal is not None
+                   and kept_levels(curve, working) == kept_levels(curve, proposal.range))
+    reason = working.reason
+    if reason is None:
+        if proposal is None or not as_proposed:
+            offered = (f"calib proposed {proposal.range.text}" if proposal is not None
+                       else "calib proposed no narrowing of this curve")
+            raise RangeError(f"range {working.text} for {curve.analyte} needs a reason ({offered})")
+        reason = f"as calib proposed: {proposal.reason}"
+    why = f"outside the working range {working.text} set by the analyst: {reason}"
+    narrowed = assess(narrow_points(standards, working, why))
+    left_out = tuple(s.point.source_cell for s, before in zip(narrowed.standards, curve.standards)
+                     if before.used and not s.used)
+    applied = AppliedRange(working.low, working.high, reason, as_proposed, left_out)
+    return replace(narrowed, working_range=applied, proposal=proposal, original=curve)
 
 
 def assess_curve(
@@ -120,19 +229,30 @@ def assess_curve(
     weighting: Weighting,
     confidence: float,
     profile: Profile,
+    blanks: Sequence[Point] = (),
+    slope_history: SlopeHistory | None = None,
+    qcs: Sequence[Point] = (),
 ) -> CurveAssessment:
-    """Fit one analyte's standards and apply the profile's rules to the curve."""
+    """Fit one analyte's standards and apply the profile's rules to the curve.
+
+    ``blanks`` are the analyte's blank and zero samples; its zero-concentration
+    standards join them for the ``blank`` rule.  ``slope_history`` holds earlier
+    accepted slopes for the ``slope-reference`` rule's archive form.  ``qcs`` are
+    the analyte's QC samples, for the ``qc`` rule.
+    """
     levels = {c: i for i, c in enumerate(sorted({p.concentration for p in standards}), start=1)}
-    reasons = [_exclusion_reason(p, weighting, profile) for p in standards]
+    reasons = _exclusion_reasons(standards, model, weighting, profile)
     used = [p for p, r in zip(standards, reasons) if r is None]
     fit, unfitted = _try_fit(used, model=model, weighting=weighting, confidence=confidence)
     results = tuple(
         _standard_result(p, levels[p.concentration], reason, fit)
         for p, reason in zip(standards, reasons)
     )
-    ctx = CurveContext(analyte, results, fit, unfitted)
+    zero = tuple(p for p in standards if p.concentration == 0)
+    ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
+                       slope_history=slope_history, qcs=tuple(qcs))
     checks = tuple(RULES[spec.id].run(ctx, spec.params, spec.severity) for spec in profile.rules)
-    lod, loq = ich_limits(fit) if fit is not None else (None, None)
+    lod, loq = detection_limits(fit, method=profile.lod_method) if fit is not None else (None, None)
     return CurveAssessment(
         analyte=analyte, model=model, weighting=weighting, confidence=confidence,
         standards=results, fit=fit, unfitted_reason=unfitted, lod=lod, loq=loq,
@@ -140,12 +260,31 @@ def assess_curve(
     )
 
 
-def _exclusion_reason(point: Point, weighting: Weighting, profile: Profile) -> str | None:
+def _exclusion_reasons(standards: Sequence[Point], model: Model, weighting: Weighting,
+                       profile: Profile) -> list[str | None]:
+    reasons = [_exclusion_reason(p, model, weighting, profile) for p in standards]
+    if weighting is Weighting.INV_S2:
+        # A level's replicate variance is judged on the standards still in the fit.
+        replicates: dict[float, list[float]] = {}
+        for p, r in zip(standards, reasons):
+            if r is None:
+                replicates.setdefault(p.concentration, []).append(p.response)
+        reasons = [
+            r if r is not None else weighting_refuses(
+                p.concentration, weighting, replicates=replicates[p.concentration])
+            for p, r in zip(standards, reasons)
+        ]
+    return reasons
+
+
+def _exclusion_reason(point: Point, model: Model, weighting: Weighting,
+                      profile: Profile) -> str | None:
     if not point.included:
         return point.exclusion_reason or "excluded by the analyst"
     if point.concentration == 0 and profile.zero_standards == "exclude":
         return f"profile {profile.name} leaves zero-concentration standards out of the fit"
-    return weighting_refuses(point.concentration, weighting)
+    return (model_refuses(point.concentration, model)
+            or weighting_refuses(point.concentration, weighting, response=point.response))
 
 
 def _try_fit(points: Sequence[Point], *, model: Model, weighting: Weighting,

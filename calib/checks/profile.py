@@ -1,10 +1,16 @@
 """Acceptance profiles: a laboratory's written rules as a TOML file.
 
 A profile has ``name``, ``version``, ``description``, ``sources``, a
-``[defaults]`` table (model, weighting, confidence, zero_standards) and a list
+``[defaults]`` table (model, weighting, confidence, zero_standards, lod_method) and a list
 of ``[[rules]]``, each with an ``id`` from :data:`calib.checks.rules.RULES`, a
-``severity`` and the rule's parameters.  Anything unknown or out of range is a
-:class:`~calib.errors.ProfileError` naming the file and line.
+``severity`` and the rule's parameters.  An optional ``[signoff]`` table says
+whether the analyst who prepared a record may also review or approve it
+(both false unless the profile says so; see :class:`SignoffPolicy`).  An
+optional ``[narrowing]`` table lets calib propose a narrowed working range
+(see :class:`NarrowingPolicy`).  A profile that uses ``correlation`` must
+also use a relative-error or lack-of-fit rule (AMC Technical Brief No. 3).
+Anything unknown or out of range is a :class:`~calib.errors.ProfileError`
+naming the file and line.
 """
 
 from __future__ import annotations
@@ -20,12 +26,17 @@ from typing import Any
 from calib.checks.result import Severity
 from calib.checks.rules import RULES
 from calib.errors import ProfileError
-from calib.options import Model, Weighting
+from calib.options import LimitMethod, Model, Weighting
 
-__all__ = ["Profile", "RuleSpec", "load_profile", "shipped_profiles"]
+__all__ = ["NarrowingPolicy", "Profile", "RuleSpec", "SignoffPolicy", "load_profile",
+           "shipped_profiles", "signoff_policy"]
 
-_TOP_KEYS = {"name", "version", "description", "sources", "defaults", "rules"}
-_DEFAULT_KEYS = {"model", "weighting", "confidence", "zero_standards"}
+_TOP_KEYS = {"name", "version", "description", "sources", "defaults", "rules", "signoff",
+             "narrowing"}
+_NARROWING_KEYS = ("propose", "max_dropped_levels")
+_SEVERITY_RANK = {Severity.INFO: 0, Severity.REVIEW: 1, Severity.REJECT: 2}
+_SIGNOFF_KEYS = ("allow_preparer_to_review", "allow_preparer_to_approve")
+_DEFAULT_KEYS = {"model", "weighting", "confidence", "zero_standards", "lod_method"}
 _ZERO_CHOICES = ("fit", "exclude")
 
 
@@ -36,6 +47,46 @@ class RuleSpec:
     id: str
     severity: Severity
     params: dict[str, Any]
+    source: str = ""
+
+
+@dataclass(frozen=True)
+class NarrowingPolicy:
+    """Whether calib may propose a narrowed working range: the ``[narrowing]`` table.
+
+    When a curve is not accepted, calib tries dropping up to
+    ``max_dropped_levels`` levels from the ends of the range and proposes the
+    narrowest change that improves the verdict.  It never applies one: the
+    analyst does, explicitly, and the record shows the range and the reason.
+
+    Attributes
+    ----------
+    propose : bool
+        Propose narrowed ranges (false unless the profile says so).
+    max_dropped_levels : int
+        Most levels dropped in all, from either end.
+    """
+
+    propose: bool = False
+    max_dropped_levels: int = 1
+
+
+@dataclass(frozen=True)
+class SignoffPolicy:
+    """Who may sign a record off: the profile's optional ``[signoff]`` table.
+
+    The same person preparing and then reviewing or approving a record is
+    refused unless the profile allows it (SPEC §6; a second person's review is
+    what makes the record trustworthy).
+
+    Attributes
+    ----------
+    allow_preparer_to_review, allow_preparer_to_approve : bool
+        Whether the analyst who prepared the record may review / approve it.
+    """
+
+    allow_preparer_to_review: bool = False
+    allow_preparer_to_approve: bool = False
 
 
 @dataclass(frozen=True)
@@ -54,6 +105,11 @@ class Profile:
         The checks, in the order they are reported.
     text : str
         The file's full text, kept in the record.
+    signoff : SignoffPolicy
+        Whether the preparer may also review or approve.
+    lod_method : LimitMethod
+        How the detection and quantitation limits are worked out
+        (``ich-sd`` when the profile does not say).
     """
 
     name: str
@@ -66,6 +122,9 @@ class Profile:
     zero_standards: str
     rules: tuple[RuleSpec, ...]
     text: str = field(repr=False)
+    signoff: SignoffPolicy = field(default_factory=SignoffPolicy)
+    lod_method: LimitMethod = LimitMethod.ICH_SD
+    narrowing: NarrowingPolicy = field(default_factory=NarrowingPolicy)
 
     @property
     def sha256(self) -> str:
@@ -158,6 +217,10 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
     zero = defaults.get("zero_standards", "fit")
     if zero not in _ZERO_CHOICES:
         raise fail("zero_standards", f"zero_standards must be one of {', '.join(_ZERO_CHOICES)}, got {zero!r}")
+    lod_method = defaults.get("lod_method", LimitMethod.ICH_SD.value)
+    if lod_method not in {m.value for m in LimitMethod}:
+        raise fail("lod_method", f"lod_method must be one of "
+                                 f"{', '.join(m.value for m in LimitMethod)}, got {lod_method!r}")
 
     rules_data = data.get("rules", [])
     if not isinstance(rules_data, list) or not rules_data:
@@ -166,6 +229,7 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
     seen: set[str] = set()
     for index, raw in enumerate(rules_data):
         specs.append(_parse_rule(raw, index, text, origin, seen))
+    _check_correlation(specs, text, origin)
     return Profile(
         name=data["name"].strip(),
         version=data["version"].strip(),
@@ -177,7 +241,87 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
         zero_standards=zero,
         rules=tuple(specs),
         text=text,
+        signoff=_parse_signoff(data.get("signoff", {}), text, origin),
+        lod_method=LimitMethod(lod_method),
+        narrowing=_parse_narrowing(data.get("narrowing", {}), text, origin),
     )
+
+
+def _parse_narrowing(table: Any, text: str, origin: str) -> NarrowingPolicy:
+    where = f"{origin}, line {_line_of(text, 'narrowing')}"
+    if not isinstance(table, dict):
+        raise ProfileError(f"{where}: 'narrowing' must be a table")
+    for key in table:
+        if key not in _NARROWING_KEYS:
+            raise ProfileError(f"{where}: unknown key {key!r} in [narrowing]; expected one of "
+                               f"{', '.join(_NARROWING_KEYS)}")
+    propose = table.get("propose", False)
+    if not isinstance(propose, bool):
+        raise ProfileError(f"{where}: [narrowing] propose must be true or false, got {propose!r}")
+    most = table.get("max_dropped_levels", 1)
+    if isinstance(most, bool) or not isinstance(most, int) or not 1 <= most <= 10:
+        raise ProfileError(f"{where}: [narrowing] max_dropped_levels must be a whole number "
+                           f"from 1 to 10, got {most!r}")
+    return NarrowingPolicy(propose=propose, max_dropped_levels=most)
+
+
+def _check_correlation(specs: list[RuleSpec], text: str, origin: str) -> None:
+    """r or r² never decides alone (AMC Technical Brief No. 3; Van Loco et al. 2002)."""
+    from calib.checks.rules.acceptance import CORRELATION_COMPANIONS
+
+    index = next((i for i, s in enumerate(specs) if s.id == "correlation"), None)
+    if index is None:
+        return
+    judged = specs[index].severity is not Severity.INFO
+    companions = [s for s in specs if s.id in CORRELATION_COMPANIONS
+                  and (not judged or s.severity is not Severity.INFO)]
+    if companions:
+        return
+    strength = " with severity reject or review" if judged else ""
+    raise ProfileError(
+        f"{origin}, line {_rule_line(text, index)}: rule 'correlation' needs a relative-error "
+        f"or lack-of-fit rule beside it ({', '.join(CORRELATION_COMPANIONS)}{strength}): r or "
+        "r² alone never shows that a curve is linear (AMC Technical Brief No. 3; Van Loco et "
+        "al., Accred. Qual. Assur. 2002)")
+
+
+def signoff_policy(text: str, *, origin: str = "profile") -> SignoffPolicy:
+    """The ``[signoff]`` policy of profile TOML text, reading nothing else.
+
+    A record keeps the text of the profile it was judged with; signing reads
+    the policy from there, so a profile whose rules a later calib no longer
+    knows still says who may sign.
+
+    Raises
+    ------
+    ProfileError
+        If the text is not TOML or the ``[signoff]`` table is malformed.
+
+    Examples
+    --------
+    >>> signoff_policy('[signoff]\\nallow_preparer_to_review = true\\n')
+    SignoffPolicy(allow_preparer_to_review=True, allow_preparer_to_approve=False)
+    >>> signoff_policy('name = "x"\\n').allow_preparer_to_approve
+    False
+    """
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ProfileError(f"{origin}: not valid TOML ({exc})") from None
+    return _parse_signoff(data.get("signoff", {}), text, origin)
+
+
+def _parse_signoff(table: Any, text: str, origin: str) -> SignoffPolicy:
+    where = f"{origin}, line {_line_of(text, 'signoff')}"
+    if not isinstance(table, dict):
+        raise ProfileError(f"{where}: 'signoff' must be a table")
+    for key, value in table.items():
+        if key not in _SIGNOFF_KEYS:
+            raise ProfileError(f"{where}: unknown key {key!r} in [signoff]; expected one of "
+                               f"{', '.join(_SIGNOFF_KEYS)}")
+        if not isinstance(value, bool):
+            raise ProfileError(f"{where}: [signoff] {key} must be true or false, got {value!r}")
+    return SignoffPolicy(**table)
 
 
 def _parse_rule(raw: Any, index: int, text: str, origin: str, seen: set[str]) -> RuleSpec:
@@ -197,6 +341,9 @@ def _parse_rule(raw: Any, index: int, text: str, origin: str, seen: set[str]) ->
             f"{where}: rule {rule_id!r} needs severity reject, review or info; "
             f"got {raw.get('severity')!r}") from None
     rule = RULES[rule_id]
+    source = raw.get("source", "")
+    if not isinstance(source, str):
+        raise ProfileError(f"{where}: rule {rule_id!r} 'source' must be a text")
     params: dict[str, Any] = {}
     for key, value in raw.items():
         if key in ("id", "severity", "source", "note"):
@@ -208,9 +355,13 @@ def _parse_rule(raw: Any, index: int, text: str, origin: str, seen: set[str]) ->
         if problem:
             raise ProfileError(f"{where}: rule {rule_id!r} parameter {key!r} {problem}")
         params[key] = float(value) if rule.params[key].kind is float else value
+    problem = rule.validate(params) if rule.validate is not None else None
+    if problem:
+        raise ProfileError(f"{where}: rule {rule_id!r}: {problem}")
     for key, param in rule.params.items():
-        params.setdefault(key, param.default)
-    return RuleSpec(id=rule_id, severity=severity, params=params)
+        if param.default is not None:  # optional parameters stay absent unless given
+            params.setdefault(key, param.default)
+    return RuleSpec(id=rule_id, severity=severity, params=params, source=source)
 
 
 def _line_of(text: str, key: str) -> int:

@@ -12,7 +12,8 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 from enum import StrEnum
 
-__all__ = ["CheckResult", "CurveVerdict", "Severity", "Verdict", "combine_verdicts", "worst"]
+__all__ = ["CheckResult", "CurveVerdict", "Severity", "Verdict", "combine_verdicts",
+           "verdict_reasons", "worst"]
 
 
 class Verdict(StrEnum):
@@ -108,3 +109,37 @@ def combine_verdicts(checks: Iterable[CheckResult], *, fitted: bool = True) -> C
 def worst(verdicts: Iterable[CurveVerdict]) -> CurveVerdict:
     """The worst of several verdicts (``accepted`` for none)."""
     return max(verdicts, key=_RANK.__getitem__, default=CurveVerdict.ACCEPTED)
+
+
+def _weight(check: CheckResult) -> int | None:
+    """Order of a check among the reasons for a verdict; None if it is no reason."""
+    if check.severity is Severity.REJECT:
+        return {Verdict.FAIL: 0, Verdict.WARN: 2, Verdict.NOT_EVALUATED: 3}.get(check.verdict)
+    if check.severity is Severity.REVIEW:
+        return {Verdict.FAIL: 1, Verdict.WARN: 4}.get(check.verdict)
+    return None
+
+
+def verdict_reasons(checks: Iterable[CheckResult], *, unfitted_reason: str = "") -> tuple[str, ...]:
+    """The checks that keep a curve from being accepted, in plain words.
+
+    Failing ``reject`` rules come first, then failing ``review`` rules, then
+    ``reject`` rules that warn or could not be evaluated, then ``review``
+    rules that warn; ``info`` rules are never a reason.  A curve that could
+    not be fitted gives that reason first, and the rules that could therefore
+    not be evaluated are not repeated.
+
+    Examples
+    --------
+    >>> c = CheckResult("min-levels", "Number of levels", Verdict.FAIL,
+    ...                 Severity.REJECT, 4.0, 5.0, "4 levels; at least 5 required")
+    >>> verdict_reasons([c])
+    ('Number of levels (min-levels, reject rule: fail): 4 levels; at least 5 required',)
+    """
+    ranked = sorted((w, i, c) for i, c in enumerate(checks)
+                    if (w := _weight(c)) is not None
+                    and not (unfitted_reason and c.verdict is Verdict.NOT_EVALUATED))
+    out = [f"The curve could not be fitted: {unfitted_reason}"] if unfitted_reason else []
+    out += [f"{c.title} ({c.id}, {c.severity.value} rule: {c.verdict.value}): {c.detail}"
+            for _, _, c in ranked]
+    return tuple(out)

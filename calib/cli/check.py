@@ -4,16 +4,35 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
+from typing import TYPE_CHECKING
 
-from calib.cli.common import add_debug, add_fit_options, sheet_arg
+from calib.cli.archive import add_archive_option, archive_path
+from calib.cli.common import add_debug, add_fit_options, add_import_options, sheet_arg
+
+if TYPE_CHECKING:
+    from calib.checks.evaluate import RunAssessment
+    from calib.checks.exclusions import Exclusion
+    from calib.checks.history import SlopeHistory
+    from calib.checks.narrowing import WorkingRange
+    from calib.checks.profile import Profile
+    from calib.io import ImportMap
+    from calib.record import Record
 
 EXAMPLES = """\
 examples:
   calib check sample_runs/fernbrook_nitrate_2026-11-30.xlsx
   calib check run.csv --model quadratic --weighting 1/x --confidence 0.99
   calib check run.xlsx --pdf nitrate-record.pdf --prepared-by "R. Okafor"
+  calib check run.xlsx --prepared-by "R. Okafor" --archive records.sqlite
   calib check run.xlsx --json | python -m json.tool
+  calib check export.txt --show-import          what the importer recognised, then stop
+  calib check export.txt --map ic2-anions.toml  read with an import map
+  calib check kx214.xlsx --profile bioanalytical --exclude "Run!D12=vial cap not seated"
+  calib check kx214.xlsx --profile bioanalytical --range "KX-214:2..1000"   apply the proposed range
+  calib check run.xlsx --range "2..500=LLOQ outside ±20 %, SOP 7.3" --xlsx results.xlsx
+  calib check run.xlsx --csv results.csv       one row per curve, for a LIMS or a script
 
 exit codes: 0 every curve accepted, 1 a curve rejected or needs review,
             2 usage error, 3 unusable input
@@ -27,13 +46,29 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "verdicts; optionally issue the PDF calibration record.",
         epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    parser.add_argument("run", metavar="RUN", help="instrument export: .xlsx or .csv")
+    parser.add_argument("run", metavar="RUN",
+                        help="instrument export: .xlsx, .xlsm, .xls, .ods, .csv, .tsv or .txt")
     add_fit_options(parser)
     parser.add_argument("--json", action="store_true",
                         help="print the calib.check/1 JSON document instead of tables")
     parser.add_argument("--pdf", metavar="OUT", help="write the PDF calibration record to OUT")
     parser.add_argument("--prepared-by", metavar="NAME",
                         help="printed name of the analyst issuing the record")
+    parser.add_argument("--exclude", action="append", default=[], metavar="CELL=REASON",
+                        type=_exclusion,
+                        help="leave a point out of the fit, named by its source cell (Run!C7, or "
+                             "C7) or sample name, with the reason; repeatable")
+    parser.add_argument("--range", action="append", default=[], metavar="[ANALYTE:]LOW..HIGH",
+                        type=_working_range, dest="ranges",
+                        help="apply a working range: standards outside LOW..HIGH leave the fit; "
+                             "append =REASON unless it is the range calib proposes; repeatable, "
+                             "one per analyte")
+    parser.add_argument("--xlsx", metavar="OUT", help="write the results workbook to OUT")
+    parser.add_argument("--csv", metavar="OUT", help="write the results, one row per curve, to OUT")
+    add_archive_option(parser, help_text="file the issued record (JSON and PDF) in this archive; "
+                                         "default: the CALIB_ARCHIVE environment variable, "
+                                         "when set")
+    add_import_options(parser)
     add_debug(parser)
     parser.set_defaults(handler=run)
 
@@ -43,23 +78,127 @@ def run(args: argparse.Namespace) -> int:
     from calib.cli import render
     from calib.output import write_atomic
     from calib.record import check_document
-    from calib.workflow import check_file, issue_record
+    from calib.workflow import issue_record
 
-    assessment = check_file(
-        args.run, sheet=sheet_arg(args.sheet), profile=args.profile, model=args.model,
-        weighting=args.weighting, confidence=args.confidence,
-    )
-    written = None
-    if args.pdf:
+    imap = None
+    if args.map or args.show_import:
+        from calib.io import describe_import, load_map, read_run
+
+        imap = load_map(args.map) if args.map else None
+        if args.show_import:
+            print(describe_import(read_run(args.run, sheet=sheet_arg(args.sheet), map=imap)))
+            return 0
+    from calib.checks.narrowing import RangeError
+
+    try:
+        assessment = _check(args, imap)
+    except RangeError as exc:
+        print(f"calib check: error: {exc}; write --range LOW..HIGH=REASON", file=sys.stderr)
+        return 2
+    document = check_document(assessment)
+    exported = _write_exports(args, document)
+    written = filed = None
+    archive = archive_path(args)
+    if args.pdf or archive:
         record, pdf = issue_record(assessment, prepared_by=args.prepared_by)
-        written = (write_atomic(args.pdf, pdf), record)
+        if archive:
+            filed = _file(archive, record, pdf)
+        if args.pdf:
+            written = (write_atomic(args.pdf, pdf), record)
     if args.json:
-        json.dump(check_document(assessment), sys.stdout, ensure_ascii=False, allow_nan=False)
+        json.dump(document, sys.stdout, ensure_ascii=False, allow_nan=False)
         sys.stdout.write("\n")
         print(f"calib: caution: {CAUTIONS}", file=sys.stderr)
+        if filed:
+            print(f"calib: {filed}", file=sys.stderr)
+        for line in exported:
+            print(f"calib: {line}", file=sys.stderr)
     else:
+        from calib.export import verdict_text
+
+        print(verdict_text(document, colour=_colour()) + "\n")
         print(render.assessment_text(assessment))
         if written:
             print(f"\nRecord {written[1].record_id} written to {written[0]}")
+        if filed:
+            print(f"\n{filed}")
+        for line in exported:
+            print(f"\n{line}")
         print("\n" + render.cautions_text())
     return 0 if assessment.verdict.value == "accepted" else 1
+
+
+def _check(args: argparse.Namespace, imap: ImportMap | None) -> RunAssessment:
+    """Read and judge the run with the analyst's exclusions, ranges and the archive's slopes."""
+    from calib.checks.evaluate import evaluate_run
+    from calib.checks.profile import load_profile
+    from calib.io import read_run
+
+    profile = load_profile(args.profile)
+    run = read_run(args.run, sheet=sheet_arg(args.sheet), map=imap)
+    return evaluate_run(run, profile=profile, model=args.model, weighting=args.weighting,
+                        confidence=args.confidence, exclusions=args.exclude, ranges=args.ranges,
+                        slope_history=_slope_history(args, profile, run.analytes))
+
+
+def _slope_history(args: argparse.Namespace, profile: Profile,
+                   analytes: tuple[str, ...]) -> dict[str, SlopeHistory] | None:
+    """Earlier accepted slopes from the archive, when the profile compares with them."""
+    from calib.checks.history import slope_history
+
+    path = archive_path(args)
+    if path is None or not os.path.isfile(path) or not any(
+            r.id == "slope-reference" and r.params.get("recent_curves") for r in profile.rules):
+        return None
+    from calib.archive import Archive
+
+    model, weighting = args.model or profile.model, args.weighting or profile.weighting
+    with Archive(path, create=False) as archive:
+        return {a: slope_history(archive.curve_history(a), model=model, weighting=weighting,
+                                 source=os.path.basename(path)) for a in analytes}
+
+
+def _write_exports(args: argparse.Namespace, document: dict) -> list[str]:
+    """Write --xlsx and --csv; returns the sentences saying where they went."""
+    from calib.export import results_csv, results_xlsx
+    from calib.output import write_atomic
+
+    done = []
+    for path, build, what in ((args.xlsx, results_xlsx, "Results workbook"),
+                              (args.csv, results_csv, "Results CSV")):
+        if path:
+            done.append(f"{what} written to {write_atomic(path, build(document))}")
+    return done
+
+
+def _colour() -> bool:
+    """Colour the verdict words only on a terminal, and never when NO_COLOR is set."""
+    return (sys.stdout.isatty() and not os.environ.get("NO_COLOR")
+            and os.environ.get("TERM") != "dumb")
+
+
+def _exclusion(text: str) -> Exclusion:
+    from calib.checks.exclusions import parse_exclusion
+
+    try:
+        return parse_exclusion(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
+def _working_range(text: str) -> WorkingRange:
+    from calib.checks.narrowing import parse_range
+
+    try:
+        return parse_range(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
+def _file(path: str, record: Record, pdf: bytes) -> str:
+    """Append the issued record to the archive; returns the sentence saying where it went."""
+    from calib.archive import Archive
+
+    with Archive(path) as archive:
+        entry = archive.append(record, pdf, kind="issued")
+    return f"Record {entry.record_id} filed in archive {path} as entry seq {entry.seq}"

@@ -4,8 +4,10 @@ from __future__ import annotations
 
 import argparse
 
-MODELS = ("linear", "origin", "quadratic")
-WEIGHTINGS = ("none", "1/x", "1/x2")
+from calib.options import Model, Weighting
+
+MODELS = tuple(m.value for m in Model)
+WEIGHTINGS = tuple(w.value for w in Weighting)
 
 
 def confidence_level(text: str) -> float:
@@ -32,6 +34,16 @@ def add_fit_options(parser: argparse.ArgumentParser) -> None:
                         help="acceptance profile: a shipped name or a TOML file (default: default)")
     parser.add_argument("--sheet", metavar="S",
                         help="sheet name or 0-based index (default: first sheet with standards)")
+
+
+def add_import_options(parser: argparse.ArgumentParser) -> None:
+    """--map, --show-import: how the run file is read, and showing what was recognised."""
+    parser.add_argument("--map", metavar="TOML",
+                        help="import map for this instrument method's exports (column names, "
+                             "sheet, header row, sample-type patterns, units)")
+    parser.add_argument("--show-import", action="store_true",
+                        help="print what the importer recognised (sheet, layout, columns, units, "
+                             "metadata, sample types, exclusions) and stop")
 
 
 def add_debug(parser: argparse.ArgumentParser) -> None:

@@ -12,7 +12,7 @@ import sys
 from collections.abc import Sequence
 
 from calib import __version__
-from calib.cli import check, demo
+from calib.cli import archive, check, demo, keys, profiles, quantify, sign, trend, verify
 
 EXIT_OK, EXIT_NOT_ACCEPTED, EXIT_USAGE, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3, 4
 
@@ -24,6 +24,12 @@ examples:
   calib check run.xlsx                         fit and judge every analyte, print the verdicts
   calib check run.csv --weighting 1/x2 --pdf record.pdf --prepared-by "A. Analyst"
   calib check run.xlsx --json > result.json    machine-readable result (schema calib.check/1)
+  calib quantify record.pdf batch.xlsx --pdf results.pdf   samples with intervals and flags
+  calib profiles show bioanalytical > sop.toml a shipped acceptance profile to copy and edit
+  calib sign record.pdf --role reviewed --name "B. Reviewer" --out record-v2.pdf
+  calib verify record-v2.pdf --keyring lab-keys/
+  calib archive list --analyte Nitrate-N       records filed with --archive (or CALIB_ARCHIVE)
+  calib trend Nitrate-N --pdf trend.pdf        slope, intercept and residual SD over time
 
 exit codes: 0 accepted, 1 rejected or needs review, 2 usage error, 3 unusable input,
             4 internal error
@@ -38,7 +44,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"calib {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
-    for module in (check, demo):
+    for module in (check, quantify, demo, profiles, sign, verify, keys, archive, trend):
         module.add_parser(sub)
     return parser
 
@@ -56,6 +62,12 @@ def main(argv: Sequence[str] | None = None) -> int:
             raise
         print(f"calib: error: {_one_line(str(exc))}", file=sys.stderr)
         return EXIT_INPUT
+    except BrokenPipeError:
+        # The reader of our output went away (e.g. `calib check ... | head`): not an error of ours.
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
     except KeyboardInterrupt:
         print("calib: interrupted; no output file was written", file=sys.stderr)
         return 130

@@ -33,6 +33,10 @@ def assessment_text(assessment: RunAssessment) -> str:
             f"{assessment.model.value}, weighting {assessment.weighting.value}, "
             f"{100 * assessment.confidence:g} % intervals")
     parts = [head]
+    if assessment.run.warnings:
+        parts.append("\n".join(textwrap.fill(f"Import note: {w}", width=100,
+                                              subsequent_indent="  ")
+                                for w in assessment.run.warnings))
     for curve in assessment.curves:
         parts.append(curve_text(curve, unit=assessment.run.units.get("concentration")))
     n = len(assessment.curves)
@@ -45,7 +49,8 @@ def assessment_text(assessment: RunAssessment) -> str:
 
 def curve_text(curve: CurveAssessment, *, unit: str | None = None) -> str:
     """One curve: verdict first, then the fit table, the checks, the standards outside tolerance."""
-    failing = [c.id for c in curve.checks if c.verdict.value in ("fail", "warn")]
+    failing = [c.id for c in curve.checks
+               if c.verdict.value in ("fail", "warn") and c.severity.value != "info"]
     lines = [f"{curve.analyte}: {_VERDICT_WORDS[curve.verdict.value]}"
              + (f" ({', '.join(failing)})" if failing else "")]
     fit = curve.fit

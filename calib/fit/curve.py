@@ -9,12 +9,21 @@ from numbers import Real
 import numpy as np
 from scipy import stats
 
-from calib.fit.bands import mean_band
-from calib.fit.design import COEFFICIENTS, design_matrix, fit_weights
+from calib.fit.bands import mean_band, prediction_band, weight_at
+from calib.fit.design import (
+    COEFFICIENTS,
+    design_matrix,
+    fit_weights,
+    level_variances,
+    raw_weights,
+    weight_basis,
+)
+from calib.fit.inverse import quadratic_root
+from calib.fit.response_factor import ResponseFactors, response_factors
 from calib.fit.wls import solve_wls
 from calib.options import Model, Weighting, parse_option
 
-__all__ = ["CoefficientRow", "CurveFit", "fit_curve"]
+__all__ = ["CoefficientRow", "CoefficientTest", "CurveFit", "fit_curve"]
 
 
 @dataclass(frozen=True)
@@ -28,6 +37,54 @@ class CoefficientRow:
     p_value: float
     ci_low: float
     ci_high: float
+
+
+@dataclass(frozen=True)
+class CoefficientTest:
+    """Two-sided t-test of one coefficient against a reference value.
+
+    Attributes
+    ----------
+    name : str
+        The coefficient (``slope``...).
+    estimate, reference : float
+        βⱼ and the value it is tested against (an expected or historical slope).
+    std_error, t_value : float
+        SE(βⱼ) and t = (βⱼ − reference)/SE(βⱼ).
+    df : int
+        ν = N − p.
+    p_value : float
+        Two-sided p of H₀: βⱼ = reference.
+    confidence, ci_low, ci_high : float
+        The interval βⱼ ± t(1 − α/2, ν)·SE(βⱼ) and its level.
+    """
+
+    name: str
+    estimate: float
+    reference: float
+    std_error: float
+    t_value: float
+    df: int
+    p_value: float
+    confidence: float
+    ci_low: float
+    ci_high: float
+
+    @property
+    def change_pct(self) -> float:
+        """100·(βⱼ − reference)/reference (``nan`` for a reference of 0)."""
+        if self.reference == 0:
+            return math.nan
+        return 100 * (self.estimate - self.reference) / self.reference
+
+    @property
+    def reference_inside(self) -> bool:
+        """Whether the reference lies inside the confidence interval."""
+        return self.ci_low <= self.reference <= self.ci_high
+
+    def differs(self, alpha: float = 0.05) -> bool:
+        """True when the coefficient differs significantly from the reference (p < α)."""
+        return self.p_value < alpha
 
 
 @dataclass(frozen=True, eq=False)
@@ -44,9 +101,12 @@ class CurveFit:
     confidence : float
         Default confidence level of intervals (e.g. 0.95).
     x, y, weights : ndarray
-        Concentrations, responses and the weights (scaled to a mean of 1).
+        Concentrations, responses and the weights (scaled to a mean of 1).  For
+        ``mean-rf`` the weights are 1/x² (see :attr:`weight_basis`): with them
+        the least-squares slope is the mean response factor.
     coefficients : dict of str to float
-        Estimates by name (``intercept``, ``slope``, ``quadratic``).
+        Estimates by name (``intercept``, ``slope``, ``quadratic``; the mean
+        response factor of ``mean-rf`` is its ``slope``).
     covariance : ndarray
         σ̂²·(XᵀWX)⁻¹, rows and columns in the order of ``coefficients``.
     residual_df : int
@@ -56,7 +116,7 @@ class CurveFit:
     fitted, residuals : ndarray
         ŷᵢ and yᵢ − ŷᵢ.
     r_squared : float
-        Weighted R², uncentred for ``origin``.
+        Weighted R², uncentred for ``origin`` and ``mean-rf``.
     """
 
     model: Model
@@ -90,6 +150,39 @@ class CurveFit:
         if self.model is Model.QUADRATIC:
             return root
         return math.copysign(root, self.coefficients["slope"])
+
+    @property
+    def weight_basis(self) -> Weighting:
+        """The weighting the weights follow: :attr:`weighting`, or ``1/x2`` for ``mean-rf``."""
+        return weight_basis(self.model, self.weighting)
+
+    @property
+    def weight_scale(self) -> float:
+        """Mean raw weight of the standards: raw wᵢ = weights[i]·weight_scale."""
+        return float(raw_weights(self.x, self.weight_basis, y=self.y).mean())
+
+    @property
+    def level_variances(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Distinct concentrations, replicate variance s² and count at each (``1/s2`` uses them)."""
+        return level_variances(self.x, self.y)
+
+    @property
+    def response_factors(self) -> ResponseFactors:
+        """Response factors yᵢ/xᵢ of the non-zero standards, with their mean and %RSD.
+
+        For ``mean-rf`` their mean is the slope, SE(slope) = s(RF)/√n and the
+        %RSD is what US EPA SW-846 Method 8000D judges (≤ 20 %, from memory).
+
+        Examples
+        --------
+        Factors 2.0, 2.1, 1.95, 2.05: mean 2.025, s = √(0.0125/3), %RSD 3.188 (by hand).
+
+        >>> fit = fit_curve([1, 2, 4, 8], [2.0, 4.2, 7.8, 16.4], model="mean-rf")
+        >>> rf = fit.response_factors
+        >>> round(fit.coefficients["slope"], 12), round(rf.rsd_pct, 3)
+        (2.025, 3.188)
+        """
+        return response_factors(self.x, self.y)
 
     def t_critical(self, confidence: float | None = None) -> float:
         """Two-sided Student's t quantile t(1 − α/2, ν).
@@ -134,6 +227,32 @@ class CurveFit:
         estimate = self.coefficients[name]
         return estimate - half, estimate + half
 
+    def coefficient_test(
+        self, name: str, reference: float, *, confidence: float | None = None
+    ) -> CoefficientTest:
+        """t-test of coefficient ``name`` against ``reference`` (e.g. the expected slope).
+
+        Notes
+        -----
+        t = (βⱼ − reference)/SE(βⱼ) on ν = N − p degrees of freedom, two-sided;
+        the reference lies inside the (1 − α) interval exactly when p ≥ α.
+
+        Examples
+        --------
+        >>> fit = fit_curve([1, 2, 3, 4, 5], [2.0, 4.1, 5.9, 8.2, 9.9])
+        >>> test = fit.coefficient_test("slope", 2.0)
+        >>> test.differs(0.05), test.reference_inside, round(test.change_pct, 2)
+        (False, True, -0.5)
+        """
+        level = self.confidence if confidence is None else _check_confidence(confidence)
+        low, high = self.confidence_interval(name, level)
+        return CoefficientTest(
+            name=name, estimate=self.coefficients[name], reference=float(reference),
+            std_error=self.std_error(name), t_value=self.t_value(name, reference),
+            df=self.residual_df, p_value=self.p_value(name, reference), confidence=level,
+            ci_low=low, ci_high=high,
+        )
+
     def coefficient_table(self, confidence: float | None = None) -> tuple[CoefficientRow, ...]:
         """One :class:`CoefficientRow` per coefficient."""
         rows = []
@@ -165,6 +284,37 @@ class CurveFit:
         """
         return mean_band(self.model, self._beta, self.covariance, self.t_critical(confidence), x)[1]
 
+    def prediction_band(self, x: np.ndarray, confidence: float | None = None) -> np.ndarray:
+        """Half-width of the prediction band for one new reading at ``x``.
+
+        Notes
+        -----
+        t(1 − α/2, ν)·√(gᵀ V g + σ̂²/w(x)), w(x) on the scale of the fit's
+        weights (see :func:`calib.fit.bands.prediction_band`).
+
+        Examples
+        --------
+        >>> fit = fit_curve([1, 2, 3, 4, 5], [2.0, 4.1, 5.9, 8.2, 9.9])
+        >>> bool(fit.prediction_band([3.0])[0] > fit.confidence_band([3.0])[0])
+        True
+        """
+        return prediction_band(
+            self.model, self._beta, self.covariance, self.t_critical(confidence), x,
+            residual_sd=self.residual_sd, weight_function=self.weight_basis,
+            weight_scale=self.weight_scale, level_variances=self._level_table(),
+        )[1]
+
+    def weight_at(self, x: np.ndarray) -> np.ndarray:
+        """w(x) of a new reading at ``x``, on the scale of :attr:`weights`."""
+        return weight_at(x, self.weight_basis, weight_scale=self.weight_scale,
+                         fitted=self.predict(x), level_variances=self._level_table())
+
+    def _level_table(self) -> list[list[float]]:
+        if self.weight_basis is not Weighting.INV_S2:
+            return []
+        c, s2, _ = self.level_variances
+        return np.column_stack([c, s2]).tolist()
+
     @property
     def _beta(self) -> np.ndarray:
         return np.array(list(self.coefficients.values()))
@@ -188,24 +338,7 @@ class CurveFit:
         b = c["slope"]
         if self.model is not Model.QUADRATIC or c["quadratic"] == 0:
             return (y - a) / b if b != 0 else np.full_like(y, np.nan)
-        q = c["quadratic"]
-        disc = b * b - 4 * q * (a - y)
-        with np.errstate(invalid="ignore"):
-            root = np.sqrt(disc)
-        # Citardauq form of the two roots avoids cancellation.
-        sign = np.where(b >= 0, 1.0, -1.0)
-        big = -(b + sign * root) / 2
-        with np.errstate(divide="ignore", invalid="ignore"):
-            r1 = big / q
-            r2 = np.where(big != 0, (a - y) / big, np.nan)
-        lo, hi = float(self.x.min()), float(self.x.max())
-        mid = (lo + hi) / 2
-        d1 = np.where(np.isfinite(r1), np.abs(r1 - np.clip(r1, lo, hi)), np.inf)
-        d2 = np.where(np.isfinite(r2), np.abs(r2 - np.clip(r2, lo, hi)), np.inf)
-        # The root nearer the calibrated range; if both lie in it, the one nearer its middle.
-        first = (d1 < d2) | ((d1 == d2) & (np.abs(r1 - mid) <= np.abs(r2 - mid)))
-        out = np.where(first, r1, r2)
-        return np.where(disc >= 0, out, np.nan)
+        return quadratic_root(a, b, c["quadratic"], y, self.x.min(), self.x.max())
 
     def _index(self, name: str) -> int:
         try:
@@ -237,10 +370,14 @@ def fit_curve(
     ----------
     x, y : array_like
         Nominal concentrations and responses of the standards used.
-    model : {"linear", "origin", "quadratic"}
-        y = a + b·x, y = b·x, or y = a + b·x + c·x².
-    weighting : {"none", "1/x", "1/x2"}
-        Weights wᵢ (scaled to a mean of 1).
+    model : {"linear", "origin", "quadratic", "mean-rf"}
+        y = a + b·x, y = b·x, y = a + b·x + c·x², or y = RF·x with RF the mean
+        of the response factors yᵢ/xᵢ (every xᵢ must then be above 0).
+    weighting : {"none", "1/x", "1/x2", "1/y", "1/y2", "1/s2"}
+        Weights wᵢ (scaled to a mean of 1): 1/xᵢ, 1/xᵢ², 1/yᵢ, 1/yᵢ², or the
+        inverse of the sample variance of the replicate responses at xᵢ's level
+        (each level needs at least 2 replicates with a non-zero variance).
+        ``mean-rf`` takes ``none`` only.
     confidence : float
         Confidence level of the intervals, default 0.95.
 
@@ -251,17 +388,26 @@ def fit_curve(
     Raises
     ------
     ValueError
-        For a wrong option, fewer points than parameters + 1, or a singular design.
+        For a wrong option, fewer points than parameters + 1, a singular design,
+        or data the weighting cannot use (see :func:`calib.fit.design.raw_weights`).
 
     Notes
     -----
     σ̂² = Σ wᵢ rᵢ² / ν with ν = N − p; SE(βⱼ) = σ̂·√Cⱼⱼ with C = (XᵀWX)⁻¹;
     (βⱼ − βⱼ⁰)/SE(βⱼ) follows Student's t with ν degrees of freedom.
-    R² = 1 − Σwr²/Σw(y − ȳ_w)², and 1 − Σwr²/Σwy² (uncentred) for ``origin``.
+    R² = 1 − Σwr²/Σw(y − ȳ_w)², and 1 − Σwr²/Σwy² (uncentred) for ``origin``
+    and ``mean-rf``.
+
+    ``mean-rf``: RF̄ = Σ(yᵢ/xᵢ)/n minimises Σ (yᵢ − RF·xᵢ)²/xᵢ², so it is
+    fitted as y = RF·x with weights 1/xᵢ²; then SE(RF̄) = s(RF)/√n and t has
+    n − 1 degrees of freedom, the figures of US EPA SW-846 Method 8000D
+    §11.5.1 (from memory).  ``1/y`` and ``1/y2`` weight by the observed
+    responses, so the weights carry the responses' own noise.
 
     References
     ----------
     NIST/SEMATECH e-Handbook of Statistical Methods, §4.4.4 (weighted least squares).
+    US EPA SW-846 Method 8000D (2018), §11.5.1 (average response factor).
 
     Examples
     --------
@@ -284,12 +430,16 @@ def fit_curve(
     p = len(names)
     if xs.size <= p:
         raise ValueError(f"model {model.value} needs at least {p + 1} points; got {xs.size}")
-    w = fit_weights(xs, weighting)
+    basis = weight_basis(model, weighting)
+    if model is Model.MEAN_RF and np.any(~(xs > 0)):
+        raise ValueError("model mean-rf needs concentrations above 0 (each response is "
+                         "divided by its concentration)")
+    w = fit_weights(xs, basis, y=ys)
     X = design_matrix(xs, model)
     sol = solve_wls(X, ys, w)
     nu = xs.size - p
     sigma2 = sol.weighted_ss / nu
-    if model is Model.ORIGIN:
+    if model in (Model.ORIGIN, Model.MEAN_RF):
         total = float(np.sum(w * ys**2))
     else:
         ybar = float(np.sum(w * ys) / np.sum(w))

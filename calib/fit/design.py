@@ -1,19 +1,36 @@
-"""Design matrices and weights of the calibration models."""
+"""Design matrices and weights of the calibration models.
+
+Weights are built in two steps: :func:`raw_weights` gives wᵢ as the weighting
+defines it (1/xᵢ, 1/yᵢ², 1/s²ᵢ...), :func:`fit_weights` scales them to a mean
+of 1.  The scale is kept apart because a prediction band needs w(x) at a new
+concentration on the same scale as the fit's weights.
+"""
 
 from __future__ import annotations
+
+from collections.abc import Sequence
 
 import numpy as np
 
 from calib.options import Model, Weighting
 
-__all__ = ["COEFFICIENTS", "design_matrix", "fit_weights", "weighting_refuses"]
+__all__ = [
+    "COEFFICIENTS", "design_matrix", "fit_weights", "level_variances", "model_refuses",
+    "raw_weights", "weight_basis", "weighting_refuses",
+]
 
 #: Coefficient names per model, in column order of the design matrix.
 COEFFICIENTS: dict[Model, tuple[str, ...]] = {
     Model.LINEAR: ("intercept", "slope"),
     Model.ORIGIN: ("slope",),
     Model.QUADRATIC: ("intercept", "slope", "quadratic"),
+    # The average response factor is the slope of y = RF·x; naming it ``slope``
+    # lets every downstream reader treat it like the origin line's slope.
+    Model.MEAN_RF: ("slope",),
 }
+
+_BY_X = (Weighting.INV_X, Weighting.INV_X2)
+_BY_Y = (Weighting.INV_Y, Weighting.INV_Y2)
 
 
 def design_matrix(x: np.ndarray, model: Model) -> np.ndarray:
@@ -28,15 +45,73 @@ def design_matrix(x: np.ndarray, model: Model) -> np.ndarray:
     x = np.asarray(x, dtype=float)
     if model is Model.LINEAR:
         return np.column_stack([np.ones_like(x), x])
-    if model is Model.ORIGIN:
+    if model in (Model.ORIGIN, Model.MEAN_RF):
         return x[:, None].copy()
     if model is Model.QUADRATIC:
         return np.column_stack([np.ones_like(x), x, x * x])
     raise ValueError(f"model must be a Model; got {model!r}")
 
 
-def weighting_refuses(concentration: float, weighting: Weighting) -> str | None:
+def weight_basis(model: Model, weighting: Weighting) -> Weighting:
+    """The weighting the least-squares weights of ``model`` actually follow.
+
+    The mean of the response factors yᵢ/xᵢ is the least-squares slope of
+    y = RF·x with weights 1/xᵢ², so ``mean-rf`` is fitted with 1/x² weights
+    and accepts no other weighting.
+
+    Examples
+    --------
+    >>> weight_basis(Model.MEAN_RF, Weighting.NONE).value
+    '1/x2'
+    >>> weight_basis(Model.MEAN_RF, Weighting.INV_X)
+    Traceback (most recent call last):
+    ...
+    ValueError: model mean-rf averages the response factors with equal weight; weighting must be none, got '1/x'
+    """
+    if model is not Model.MEAN_RF:
+        return weighting
+    if weighting is not Weighting.NONE:
+        raise ValueError("model mean-rf averages the response factors with equal weight; "
+                         f"weighting must be none, got {weighting.value!r}")
+    return Weighting.INV_X2
+
+
+def model_refuses(concentration: float, model: Model) -> str | None:
+    """Say why ``model`` cannot use a standard at ``concentration``, or None.
+
+    Examples
+    --------
+    >>> model_refuses(0.0, Model.MEAN_RF)
+    'model mean-rf divides the response by the concentration, which is 0 here'
+    >>> model_refuses(0.0, Model.LINEAR) is None
+    True
+    """
+    if model is Model.MEAN_RF and not concentration > 0:
+        return f"model mean-rf divides the response by the concentration, which is {concentration:g} here"
+    return None
+
+
+def weighting_refuses(
+    concentration: float,
+    weighting: Weighting,
+    *,
+    response: float | None = None,
+    replicates: Sequence[float] | None = None,
+) -> str | None:
     """Say why ``weighting`` cannot use a standard at ``concentration``, or None.
+
+    Parameters
+    ----------
+    concentration : float
+        Nominal concentration of the standard.
+    weighting : Weighting
+        The weighting asked for.
+    response : float, optional
+        The standard's response; needed to judge ``1/y`` and ``1/y2``.
+    replicates : sequence of float, optional
+        Responses of every standard in the fit at this concentration (this one
+        included); needed to judge ``1/s2``.  Without them those weightings
+        refuse nothing here and :func:`raw_weights` raises instead.
 
     Examples
     --------
@@ -44,27 +119,116 @@ def weighting_refuses(concentration: float, weighting: Weighting) -> str | None:
     'weighting 1/x divides by the concentration, which is 0 here'
     >>> weighting_refuses(0.0, Weighting.NONE) is None
     True
+    >>> weighting_refuses(1.0, Weighting.INV_Y2, response=-0.004)
+    'weighting 1/y2 divides by the response, which is -0.004 here'
+    >>> weighting_refuses(5.0, Weighting.INV_S2, replicates=[12.1])
+    'weighting 1/s2 needs at least 2 replicates at each level; concentration 5 has 1'
     """
-    if weighting in (Weighting.INV_X, Weighting.INV_X2) and concentration <= 0:
+    if weighting in _BY_X and not concentration > 0:
         return f"weighting {weighting.value} divides by the concentration, which is {concentration:g} here"
+    if weighting in _BY_Y and response is not None and not response > 0:
+        return f"weighting {weighting.value} divides by the response, which is {response:g} here"
+    if weighting is Weighting.INV_S2 and replicates is not None:
+        return _variance_problem(concentration, np.asarray(replicates, dtype=float))
     return None
 
 
-def fit_weights(x: np.ndarray, weighting: Weighting) -> np.ndarray:
+def _variance_problem(concentration: float, responses: np.ndarray) -> str | None:
+    n = responses.size
+    if n < 2:
+        return (f"weighting 1/s2 needs at least 2 replicates at each level; "
+                f"concentration {concentration:g} has {n}")
+    if not np.var(responses, ddof=1) > 0:
+        return (f"weighting 1/s2 cannot use concentration {concentration:g}: "
+                f"its {n} replicates have zero variance")
+    return None
+
+
+def level_variances(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Distinct concentrations, the sample variance s² of the responses at each, and their counts.
+
+    s² has n − 1 in the denominator; it is ``nan`` where a level has a single response.
+
+    Examples
+    --------
+    >>> levels, s2, n = level_variances([1, 1, 2, 2, 2], [1.0, 1.2, 2.0, 2.2, 2.4])
+    >>> levels.tolist(), s2.round(6).tolist(), n.tolist()
+    ([1.0, 2.0], [0.02, 0.04], [2, 3])
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    levels, index, counts = np.unique(x, return_inverse=True, return_counts=True)
+    sums = np.bincount(index, weights=y)
+    means = sums / counts
+    ss = np.bincount(index, weights=(y - means[index]) ** 2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s2 = np.where(counts > 1, ss / np.maximum(counts - 1, 1), np.nan)
+    return levels, s2, counts
+
+
+def raw_weights(x: np.ndarray, weighting: Weighting, *, y: np.ndarray | None = None) -> np.ndarray:
+    """Return the weights of ``weighting`` as it defines them, before scaling.
+
+    ``none`` → 1, ``1/x`` → 1/xᵢ, ``1/x2`` → 1/xᵢ², ``1/y`` → 1/yᵢ,
+    ``1/y2`` → 1/yᵢ², ``1/s2`` → 1/s²ⱼ with s²ⱼ the sample variance of the
+    responses at the level of point i.  Along the last axis, so a stack of
+    curves (one per row) gives one row of weights per curve.
+
+    Raises
+    ------
+    ValueError
+        When the weighting cannot be formed: concentrations or responses not
+        above zero where they divide, ``y`` missing, or a level without two
+        replicates or with zero variance for ``1/s2``.
+
+    Examples
+    --------
+    >>> raw_weights(np.array([1.0, 1.0, 2.0, 2.0]), Weighting.INV_S2,
+    ...             y=np.array([1.0, 1.2, 2.0, 2.4])).round(6).tolist()
+    [50.0, 50.0, 12.5, 12.5]
+    """
+    x = np.asarray(x, dtype=float)
+    if weighting is Weighting.NONE:
+        return np.ones_like(x)
+    if weighting in _BY_X:
+        if np.any(~(x > 0)):
+            raise ValueError(f"weighting {weighting.value} needs positive concentrations")
+        return 1.0 / x if weighting is Weighting.INV_X else 1.0 / (x * x)
+    if y is None:
+        raise ValueError(f"weighting {weighting.value} needs the responses y")
+    y = np.asarray(y, dtype=float)
+    if y.shape != x.shape:
+        raise ValueError(f"x and y must have the same shape; got {x.shape} and {y.shape}")
+    if weighting in _BY_Y:
+        if np.any(~(y > 0)):
+            raise ValueError(f"weighting {weighting.value} needs positive responses")
+        return 1.0 / y if weighting is Weighting.INV_Y else 1.0 / (y * y)
+    if weighting is Weighting.INV_S2:
+        if x.ndim > 1:
+            return np.stack([raw_weights(xr, weighting, y=yr) for xr, yr in zip(x, y)])
+        levels, s2, _ = level_variances(x, y)
+        for level in levels:
+            problem = _variance_problem(float(level), y[x == level])
+            if problem:
+                raise ValueError(problem)
+        return 1.0 / s2[np.searchsorted(levels, x)]
+    raise ValueError(f"weighting must be a Weighting; got {weighting!r}")
+
+
+def fit_weights(x: np.ndarray, weighting: Weighting, *, y: np.ndarray | None = None) -> np.ndarray:
     """Return the weights of ``weighting`` at ``x``, scaled to a mean of 1.
 
     Scaling leaves every estimate, standard error and test unchanged and keeps
-    the residual standard deviation in response units.
+    the residual standard deviation in response units.  ``y`` is needed for
+    ``1/y``, ``1/y2`` and ``1/s2`` (see :func:`raw_weights`); for a stack of
+    curves the mean is taken along the last axis.
 
     Examples
     --------
     >>> fit_weights(np.array([1.0, 3.0]), Weighting.INV_X)
     array([1.5, 0.5])
+    >>> fit_weights(np.array([1.0, 3.0]), Weighting.INV_Y, y=np.array([2.0, 6.0]))
+    array([1.5, 0.5])
     """
-    x = np.asarray(x, dtype=float)
-    if weighting is Weighting.NONE:
-        return np.ones_like(x)
-    if np.any(x <= 0):
-        raise ValueError(f"weighting {weighting.value} needs positive concentrations")
-    raw = 1.0 / x if weighting is Weighting.INV_X else 1.0 / (x * x)
-    return raw / raw.mean()
+    raw = raw_weights(x, weighting, y=y)
+    return raw / raw.mean(axis=-1, keepdims=True)

@@ -3,9 +3,25 @@
 :func:`read_run` picks a reader by file extension.  A reader is anything with
 the :class:`Reader` shape: the extensions it takes and a ``read`` method
 returning a Run.  New formats slot in by adding a reader to :data:`READERS`
-(or passing ``readers=`` to :func:`read_run`); they share the cell, heading
-and table logic in :mod:`calib.io.cells`, :mod:`calib.io.columns` and
-:mod:`calib.io.table`.
+(or passing ``readers=`` to :func:`read_run`); they share the cell, heading,
+layout and table logic of the modules beside this one:
+
+===========================  ======================================================
+:mod:`calib.io.numbers`      numbers as text, decimal marks, units after numbers, markers
+:mod:`calib.io.cells`        one raw cell as a number, flag or text
+:mod:`calib.io.columns`      headings to canonical columns (several languages), units
+:mod:`calib.io.sampletypes`  standard, blank, zero, QC or unknown, from a cell or a name
+:mod:`calib.io.metadata`     title and ``key: value`` lines above a table
+:mod:`calib.io.layout`       header rows, long / wide / stacked tables
+:mod:`calib.io.rows`         the body rows of a table as points
+:mod:`calib.io.assemble`     tables and sheets into one checked Run
+:mod:`calib.io.importmap`    TOML import maps (``--map``)
+:mod:`calib.io.limits`       limits on untrusted files
+:mod:`calib.io.workbook`     ``.xlsx`` ``.xlsm`` ``.xls`` ``.ods`` (python-calamine)
+:mod:`calib.io.detail`       hidden rows, error values, merges (openpyxl, ODS XML)
+:mod:`calib.io.csv_text`     ``.csv`` ``.tsv`` ``.txt``
+:mod:`calib.io.summary`      what was recognised, as text (``--show-import``)
+===========================  ======================================================
 """
 
 from __future__ import annotations
@@ -18,14 +34,20 @@ from typing import Protocol
 from calib.errors import InputError
 from calib.io.csv_text import CsvReader
 from calib.io.files import check_path
-from calib.io.xlsx import XlsxReader
+from calib.io.importmap import ImportMap, load_map
+from calib.io.summary import describe_import
+from calib.io.workbook import WorkbookReader
 from calib.run import Run
 
-__all__ = ["READERS", "Reader", "read_run"]
+__all__ = ["READERS", "ImportMap", "Reader", "describe_import", "load_map", "read_run"]
 
 
 class Reader(Protocol):
-    """What :func:`read_run` needs from a file-format reader."""
+    """What :func:`read_run` needs from a file-format reader.
+
+    ``read`` is also passed ``map=`` (an :class:`ImportMap`) when the caller
+    gives one; readers that take no maps may leave that keyword out.
+    """
 
     @property
     def suffixes(self) -> tuple[str, ...]:
@@ -43,7 +65,7 @@ class Reader(Protocol):
         ...
 
 
-READERS: tuple[Reader, ...] = (XlsxReader(), CsvReader())
+READERS: tuple[Reader, ...] = (WorkbookReader(), CsvReader())
 """The readers :func:`read_run` chooses from by default."""
 
 
@@ -52,6 +74,7 @@ def read_run(
     *,
     sheet: str | int | None = None,
     analyte: str | None = None,
+    map: ImportMap | str | os.PathLike[str] | None = None,
     readers: Sequence[Reader] = READERS,
 ) -> Run:
     """Read the standards, blanks, QCs and unknowns of one run file.
@@ -59,22 +82,27 @@ def read_run(
     Parameters
     ----------
     path : str or path-like
-        An ``.xlsx`` workbook or a ``.csv`` text file, long layout: one row
-        per injection under a header row.
+        A workbook (``.xlsx``, ``.xlsm``, ``.xls``, ``.ods``) or a delimited
+        text file (``.csv``, ``.tsv``, ``.txt``) in any layout calib knows:
+        long, wide, several tables stacked in a sheet, or a sheet per analyte.
     sheet : str or int, optional
         Workbook sheet by name or 0-based index; by default the first visible
-        sheet holding a standards table.  Text files have no sheets.
+        sheet holding a standards table (or every such sheet, when each holds
+        other analytes).  Text files have no sheets.
     analyte : str, optional
         Analyte name for a table without an analyte column; by default the
-        file name without its extension.
+        ``Analyte:`` line above the table, or the sheet or file name.
+    map : ImportMap or path, optional
+        An import map (or the path of its TOML file) for exports that
+        detection cannot read alone.
     readers : sequence of Reader, optional
         Readers to choose from by extension (tests pass fakes).
 
     Returns
     -------
     Run
-        Every row as a :class:`~calib.run.Point` with its source cell, the
-        file's SHA-256, and the units and metadata found.
+        Every injection as a :class:`~calib.run.Point` with its source cell,
+        the file's SHA-256, the layout, units, metadata and warnings found.
 
     Raises
     ------
@@ -86,21 +114,25 @@ def read_run(
     Examples
     --------
     >>> import tempfile, pathlib
-    >>> text = "Fernbrook Water Laboratory\\nConc (mg/L),Area\\n0.5,1010\\n1.0,2032\\n"
+    >>> text = "Fernbrook Water Laboratory\\nConc (mg/L),Area\\n0.5,1010\\n1.0,2032\\n2.0,4071\\n"
     >>> with tempfile.TemporaryDirectory() as folder:
     ...     path = pathlib.Path(folder, "nitrate.csv")
     ...     _ = path.write_text(text, encoding="utf-8")
     ...     run = read_run(path)
     >>> [(p.concentration, p.response, p.source_cell) for p in run.points]
-    [(0.5, 1010.0, 'nitrate.csv!B3'), (1.0, 2032.0, 'nitrate.csv!B4')]
-    >>> run.units["concentration"], run.source.layout
-    ('mg/L', 'long')
+    [(0.5, 1010.0, 'nitrate.csv!B3'), (1.0, 2032.0, 'nitrate.csv!B4'), (2.0, 4071.0, \
+'nitrate.csv!B5')]
+    >>> run.units["concentration"], run.source.layout, run.source.encoding
+    ('mg/L', 'long', 'utf-8')
     """
     checked = check_path(path)
+    imap = map if isinstance(map, ImportMap) or map is None else load_map(map)
     suffix = checked.suffix.lower()
     for reader in readers:
         if suffix in reader.suffixes:
-            return reader.read(checked, sheet=sheet, analyte=analyte)
+            if imap is None:
+                return reader.read(checked, sheet=sheet, analyte=analyte)
+            return reader.read(checked, sheet=sheet, analyte=analyte, map=imap)  # type: ignore[call-arg]
     supported = ", ".join(s for reader in readers for s in reader.suffixes)
     found = f"the file type {suffix!r}" if suffix else "a file name without an extension"
     raise InputError(f"found {found}; expected one of {supported}", file=str(Path(path)))

@@ -13,7 +13,14 @@ from __future__ import annotations
 
 import datetime as _dt
 import math
-import re
+
+from calib.io.numbers import (
+    ERROR_VALUES,
+    DecimalMark,
+    NumberTextError,
+    error_value,
+    parse_number_text,
+)
 
 __all__ = [
     "ERROR_VALUES",
@@ -32,35 +39,13 @@ Cell = (
 )
 """A raw cell as a reader hands it over."""
 
-ERROR_VALUES = frozenset(
-    {
-        "#DIV/0!",
-        "#N/A",
-        "#VALUE!",
-        "#REF!",
-        "#NAME?",
-        "#NUM!",
-        "#NULL!",
-        "#SPILL!",
-        "#CALC!",
-        "#GETTING_DATA",
-    }
-)
-"""Error values spreadsheet programs write into a cell whose formula failed."""
-
-# LibreOffice writes its own numbered errors ("Err:502") into exported text.
-_NUMBERED_ERROR = re.compile(r"err:\d{3}", re.IGNORECASE)
-_DOT_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
-_COMMA_NUMBER = re.compile(r"([+-]?)(\d+),(\d+)((?:[eE][+-]?\d+)?)")
-_GROUPED_NUMBER = re.compile(r"[+-]?\d{1,3}(?:[,.' ]\d{3})+(?:[.,]\d+)?")
-_NOT_FINITE = frozenset({"nan", "+nan", "-nan", "inf", "+inf", "-inf", "infinity", "+infinity",
-                         "-infinity"})
 _FLAGS = {
-    "yes": True, "y": True, "true": True, "1": True, "x": True,
-    "no": False, "n": False, "false": False, "0": False,
+    "yes": True, "y": True, "true": True, "1": True, "x": True, "ja": True, "j": True,
+    "oui": True, "si": True, "sí": True, "wahr": True, "vrai": True, "verdadero": True,
+    "no": False, "n": False, "false": False, "0": False, "nein": False, "non": False,
+    "falsch": False, "faux": False, "falso": False,
 }
-# Typographic minus signs that office programs put in front of numbers.
-_MINUS_SIGNS = str.maketrans({"\u2212": "-", "\u2013": "-"})
+_FLAG_WORDS = "yes/no, y/n, true/false, 1/0, x"
 
 
 class CellError(ValueError):
@@ -84,13 +69,6 @@ def is_blank(value: Cell) -> bool:
     return value is None
 
 
-def _error_value(text: str) -> str | None:
-    upper = text.strip().upper()
-    if upper in ERROR_VALUES or _NUMBERED_ERROR.fullmatch(upper):
-        return upper
-    return None
-
-
 def describe(value: Cell) -> str:
     """Say in plain words what a cell holds, for error messages.
 
@@ -110,7 +88,7 @@ def describe(value: Cell) -> str:
     if isinstance(value, bool):
         return f"the logical value {'TRUE' if value else 'FALSE'}"
     if isinstance(value, str):
-        error = _error_value(value)
+        error = error_value(value)
         if error is not None:
             return f"the spreadsheet error value {error}"
         return f"the text {value.strip()!r}"
@@ -129,39 +107,16 @@ def _problem(value: Cell, expected: str) -> CellError:
     return CellError(f"found {describe(value)}; expected {expected}")
 
 
-def _parse_number_text(text: str, *, decimal_comma: bool) -> float | None:
-    """Read number text; None when it is not a number we can read unambiguously."""
-    if _DOT_NUMBER.fullmatch(text):
-        return float(text)
-    comma = _COMMA_NUMBER.fullmatch(text)
-    if comma is None:
-        return None
-    sign, whole, fraction, exponent = comma.groups()
-    # "1,250" may be 1.25 written with a decimal comma or 1250 with a
-    # thousands separator; guessing would silently change a value by 1000x.
-    # A leading zero ("0,250") or a fraction of other than three digits cannot
-    # be a thousands group, and a file known to use decimal commas settles it.
-    ambiguous = len(fraction) == 3 and int(whole) != 0 and not exponent
-    if ambiguous and not decimal_comma:
-        raise CellError(
-            f"found the text {text!r}, where the comma may be a decimal comma or a "
-            f"thousands separator; expected a number written without thousands "
-            f"separators (for example {whole}{fraction} or {whole}.{fraction})"
-        )
-    return float(f"{sign}{whole}.{fraction}{exponent}")
-
-
-def to_number(value: Cell, *, decimal_comma: bool = False) -> float:
+def to_number(value: Cell, *, decimal: DecimalMark | None = None) -> float:
     """Read a cell as a finite float.
 
     Parameters
     ----------
     value : Cell
         The raw cell.
-    decimal_comma : bool, optional
-        True when the file is known to write decimal commas (a semicolon-separated
-        text file); then ``"1,250"`` is 1.25.  Otherwise a comma is read as a
-        decimal comma only where it cannot be a thousands separator.
+    decimal : {".", ","} or None, optional
+        The file's decimal mark when known; it settles text such as ``"1,250"``
+        (see :func:`calib.io.numbers.parse_number_text`).
 
     Returns
     -------
@@ -176,8 +131,9 @@ def to_number(value: Cell, *, decimal_comma: bool = False) -> float:
     Notes
     -----
     Accepted text: surrounding spaces, a leading ``+`` or ``-`` (also the
-    typographic minus), a decimal point or an unambiguous decimal comma, and
-    scientific notation (``1.5E-3``, ``1,5e-3``).
+    typographic minus), a decimal point or decimal comma, thousands separators
+    where the decimal mark is clear (``1,234.5``, ``1.234,5``, ``1 234,5``)
+    and scientific notation (``1.5E-3``, ``1,5e-3``).
 
     Examples
     --------
@@ -185,9 +141,7 @@ def to_number(value: Cell, *, decimal_comma: bool = False) -> float:
     12.5
     >>> to_number("1.2E+03")
     1200.0
-    >>> to_number("0,125")
-    0.125
-    >>> to_number("1,250", decimal_comma=True)
+    >>> to_number("1,250", decimal=",")
     1.25
     >>> to_number("#N/A")
     Traceback (most recent call last):
@@ -202,19 +156,16 @@ def to_number(value: Cell, *, decimal_comma: bool = False) -> float:
         raise CellError(f"found the number {value!r}; expected a finite number")
     if not isinstance(value, str) or is_blank(value):
         raise _problem(value, "a number")
-    text = value.strip().translate(_MINUS_SIGNS)
-    if text.lower() in _NOT_FINITE:
+    text = value.strip()
+    if text.lower().lstrip("+-") in ("nan", "inf", "infinity"):
         raise CellError(f"found the text {text!r}; expected a finite number")
-    number = _parse_number_text(text, decimal_comma=decimal_comma)
-    if number is not None:
-        if math.isfinite(number):
-            return number
-        raise CellError(f"found the text {text!r}, which overflows; expected a finite number")
-    if _GROUPED_NUMBER.fullmatch(text):
-        raise CellError(
-            f"found the text {text!r}; expected a number written without thousands separators"
-        )
-    raise _problem(value, "a number")
+    try:
+        number = parse_number_text(text, decimal=decimal)
+    except NumberTextError as exc:
+        raise CellError(str(exc)) from None
+    if number is None:
+        raise _problem(value, "a number")
+    return number
 
 
 def to_integer(value: Cell) -> int:
@@ -242,7 +193,8 @@ def to_flag(value: Cell) -> bool:
     """Read an include cell: True for included, False for excluded.
 
     Accepted, ignoring case and surrounding spaces: yes/no, y/n, true/false,
-    1/0 and ``x`` (a mark meaning included); an empty cell means included.
+    1/0 and ``x`` (a mark meaning included), also in German, French and
+    Spanish (ja/nein, oui/non, sí/no...); an empty cell means included.
 
     Examples
     --------
@@ -264,7 +216,7 @@ or an empty cell (included)
         flag = _FLAGS.get(value.strip().casefold())
         if flag is not None:
             return flag
-    raise _problem(value, "yes/no, y/n, true/false, 1/0, x or an empty cell (included)")
+    raise _problem(value, f"{_FLAG_WORDS} or an empty cell (included)")
 
 
 def to_text(value: Cell) -> str | None:

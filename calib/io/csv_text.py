@@ -1,14 +1,21 @@
-"""Reading a run from a delimited text file (``.csv``).
+"""Reading a run from a delimited text file (``.csv``, ``.tsv``, ``.txt``).
 
-The delimiter (comma, semicolon or tab) is guessed with :class:`csv.Sniffer`
-and confirmed by the header: the delimiter kept is the first one under which
-a row names both a concentration and a response column.  Title lines above
-the table often fool a guess made from the text alone; the header does not.
-A semicolon-separated file is taken to write decimal commas, as the
-programs that write such files do.
+Encoding: a byte-order mark decides (UTF-8, UTF-16 little- or big-endian);
+UTF-16 without a mark is recognised by its zero bytes; otherwise the text
+is UTF-8 if it decodes as UTF-8 and Windows-1252 (the Western European
+Windows code page office programs save "CSV" in) if not.  An import map may
+name the encoding.
 
-Text must be UTF-8, with or without a byte-order mark; other encodings are
-refused with a message saying so.
+Delimiter: comma, semicolon, tab or vertical bar, guessed with
+:class:`csv.Sniffer` and confirmed by the header: the delimiter kept is the
+first under which a row makes a header row.  Title lines above the table
+often fool a guess made from the text alone; the header does not.  ``.tsv``
+files try the tab first.
+
+Decimal mark: settled by the file's own unambiguous numbers (``0,5``,
+``12.75``); if none settles it, a semicolon-separated file is taken to write
+decimal commas, as the programs that write such files do.  An import map
+may name it.
 """
 
 from __future__ import annotations
@@ -20,59 +27,107 @@ import os
 from pathlib import Path
 
 from calib.errors import InputError
+from calib.io.assemble import assemble
 from calib.io.cells import Cell
 from calib.io.files import RawFile, load_file
-from calib.io.table import HEADER_SEARCH_ROWS, Grid, build_run, find_header
+from calib.io.importmap import ImportMap
+from calib.io.layout import find_first_header
+from calib.io.limits import check_text_rows
+from calib.io.table import HEADER_SEARCH_ROWS, Grid
 from calib.run import Run, SourceInfo
 
 __all__ = ["DELIMITERS", "CsvReader", "decode_text"]
 
-DELIMITERS = (",", ";", "\t")
+DELIMITERS = (",", ";", "\t", "|")
 """Delimiters tried, in this order after the sniffed one."""
 
-_WHAT = "a CSV text file (UTF-8)"
+_WHAT = "a delimited text file (CSV)"
 _SNIFF_CHARS = 64 * 1024
+_BOMS = ((b"\xef\xbb\xbf", "utf-8-sig"), (b"\xff\xfe", "utf-16"), (b"\xfe\xff", "utf-16"))
+_NAMES = {"utf-8-sig": "UTF-8 with BOM", "utf-16": "UTF-16", "utf-16-le": "UTF-16LE",
+          "utf-16-be": "UTF-16BE", "utf-8": "UTF-8", "cp1252": "Windows-1252"}
 
 
-def decode_text(raw: RawFile) -> str:
-    """Decode a text file's bytes as UTF-8, dropping a byte-order mark.
+def _utf16_without_bom(data: bytes) -> str | None:
+    """``"utf-16-le"`` or ``"utf-16-be"`` when every other byte of a text sample is zero."""
+    sample = data[:4096]
+    if len(sample) < 4 or len(sample) % 2:
+        sample = sample[: len(sample) - len(sample) % 2]
+    if len(sample) < 4:
+        return None
+    even, odd = sample[0::2], sample[1::2]
+    if odd.count(0) >= 0.9 * len(odd) and even.count(0) < 0.1 * len(even):
+        return "utf-16-le"
+    if even.count(0) >= 0.9 * len(even) and odd.count(0) < 0.1 * len(odd):
+        return "utf-16-be"
+    return None
+
+
+def _undecodable(raw: RawFile, exc: UnicodeDecodeError, encoding: str) -> InputError:
+    line = raw.data.count(b"\n", 0, exc.start) + 1
+    return InputError(
+        f"found the byte 0x{raw.data[exc.start]:02X}, which is not {_NAMES.get(encoding, encoding)} "
+        f"text; expected {_WHAT} in UTF-8, UTF-16 or Windows-1252 (or an import map naming the "
+        f"encoding)",
+        file=raw.given,
+        row=line,
+    )
+
+
+def decode_text(raw: RawFile, *, encoding: str | None = None) -> tuple[str, str]:
+    """Decode a text file's bytes; returns the text and the encoding used.
 
     Raises
     ------
     InputError
-        When the bytes are UTF-16, hold NUL bytes or are not valid UTF-8
-        (naming the line).
+        When the bytes hold NUL bytes that are not UTF-16, or cannot be
+        decoded (naming the line).
 
     Examples
     --------
     >>> from pathlib import Path
     >>> decode_text(RawFile(Path("run.csv"), b"\\xef\\xbb\\xbfConc,Area\\n", ""))
-    'Conc,Area\\n'
+    ('Conc,Area\\n', 'utf-8-sig')
+    >>> decode_text(RawFile(Path("run.csv"), "Fläche".encode("cp1252"), ""))
+    ('Fläche', 'cp1252')
+    >>> decode_text(RawFile(Path("run.csv"), "\\ufeffConc".encode("utf-16-le"), ""))
+    ('Conc', 'utf-16')
     """
     data = raw.data
-    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
-        raise InputError(
-            f"the file is UTF-16 text; expected {_WHAT}: save it as UTF-8 (CSV UTF-8)",
-            file=raw.given,
-        )
+    if encoding is not None:
+        try:
+            return data.decode(encoding), encoding
+        except UnicodeDecodeError as exc:
+            raise _undecodable(raw, exc, encoding) from None
+    for bom, name in _BOMS:
+        if data.startswith(bom):
+            try:
+                text = data.decode(name)
+            except UnicodeDecodeError as exc:
+                raise _undecodable(raw, exc, name) from None
+            return text.removeprefix("\ufeff"), name
     nul = data.find(b"\x00")
     if nul >= 0:
-        raise InputError(
-            f"found a NUL byte, which text does not hold (the file is UTF-16 without a "
-            f"byte-order mark, or not text at all); expected {_WHAT}",
-            file=raw.given,
-            row=data.count(b"\n", 0, nul) + 1,
-        )
+        wide = _utf16_without_bom(data)
+        if wide is None:
+            raise InputError(
+                f"found a NUL byte, which text does not hold (the file is not text); "
+                f"expected {_WHAT}",
+                file=raw.given,
+                row=data.count(b"\n", 0, nul) + 1,
+            )
+        try:
+            return data.decode(wide), wide
+        except UnicodeDecodeError as exc:
+            raise _undecodable(raw, exc, wide) from None
     try:
-        return data.decode("utf-8-sig")
+        return data.decode("utf-8"), "utf-8"
+    except UnicodeDecodeError:
+        pass
+    try:
+        return data.decode("cp1252"), "cp1252"
     except UnicodeDecodeError as exc:
-        line = data.count(b"\n", 0, exc.start) + 1
-        raise InputError(
-            f"found the byte 0x{data[exc.start]:02X}, which is not UTF-8 text; expected "
-            f"{_WHAT}: save it as UTF-8 (CSV UTF-8)",
-            file=raw.given,
-            row=line,
-        ) from None
+        raise _undecodable(raw, exc, "cp1252") from None
 
 
 def _rows(text: str, delimiter: str, *, raw: RawFile, limit: int | None) -> list[list[Cell]]:
@@ -87,19 +142,19 @@ def _rows(text: str, delimiter: str, *, raw: RawFile, limit: int | None) -> list
         ) from None
 
 
-def _candidates(text: str) -> list[str]:
+def _candidates(text: str, *, first: str | None) -> list[str]:
     try:
-        sniffed = csv.Sniffer().sniff(text[:_SNIFF_CHARS], delimiters="".join(DELIMITERS))
-        first = [sniffed.delimiter]
+        sniffed = [csv.Sniffer().sniff(text[:_SNIFF_CHARS], delimiters="".join(DELIMITERS))
+                   .delimiter]
     except csv.Error:
-        first = []
-    return list(dict.fromkeys([*first, *DELIMITERS]))
+        sniffed = []
+    return list(dict.fromkeys([*([first] if first else []), *sniffed, *DELIMITERS]))
 
 
 class CsvReader:
-    """Reader for delimited text files (``.csv``)."""
+    """Reader for delimited text files (``.csv``, ``.tsv``, ``.txt``)."""
 
-    suffixes: tuple[str, ...] = (".csv",)
+    suffixes: tuple[str, ...] = (".csv", ".tsv", ".txt")
 
     def read(
         self,
@@ -107,8 +162,9 @@ class CsvReader:
         *,
         sheet: str | int | None = None,
         analyte: str | None = None,
+        map: ImportMap | None = None,
     ) -> Run:
-        """Read the run in a CSV file.
+        """Read the run in a delimited text file.
 
         Parameters
         ----------
@@ -118,6 +174,9 @@ class CsvReader:
             Text files have no sheets; anything but None is refused.
         analyte : str, optional
             Analyte name for a table without an analyte column.
+        map : ImportMap, optional
+            How this kind of export is laid out (encoding, delimiter,
+            decimal mark, columns...).
 
         Returns
         -------
@@ -134,19 +193,35 @@ class CsvReader:
                 f"a text file has no sheets; got sheet {sheet!r} (leave the sheet out)",
                 file=raw.given,
             )
-        text = decode_text(raw)
-        source = SourceInfo(file=raw.name, sha256=raw.sha256, sheet=None, layout="long")
-        candidates = _candidates(text)
+        imap = map
+        text, encoding = decode_text(raw, encoding=imap.encoding if imap else None)
+        check_text_rows(text.count("\n"), file=raw.given)
+        preferred = imap.delimiter if imap and imap.delimiter else (
+            "\t" if raw.path.suffix.lower() == ".tsv" else None)
+        candidates = _candidates(text, first=preferred)
+        if imap is not None and imap.delimiter:
+            candidates = [imap.delimiter]
+        decimal = imap.decimal if imap is not None else None
         for delimiter in candidates:
             head = _rows(text, delimiter, raw=raw, limit=HEADER_SEARCH_ROWS)
-            header = find_header(self._grid(head, raw, delimiter))
-            if header is not None:
-                grid = self._grid(_rows(text, delimiter, raw=raw, limit=None), raw, delimiter)
-                return build_run(grid, source=source, analyte=analyte, header=header)
+            if find_first_header(self._grid(head, raw, delimiter, decimal), imap=imap) is None:
+                continue
+            grid = self._grid(_rows(text, delimiter, raw=raw, limit=None), raw, delimiter,
+                              decimal)
+            source = SourceInfo(file=raw.name, sha256=raw.sha256, encoding=encoding,
+                                delimiter=delimiter, decimal_mark=decimal)
+            return assemble([grid], source=source, analyte=analyte, imap=imap)
         # No delimiter gives a header: let the table builder say what it found.
-        head = _rows(text, candidates[0], raw=raw, limit=HEADER_SEARCH_ROWS)
-        return build_run(self._grid(head, raw, candidates[0]), source=source, analyte=analyte)
+        delimiter = candidates[0]
+        grid = self._grid(_rows(text, delimiter, raw=raw, limit=HEADER_SEARCH_ROWS), raw,
+                          delimiter, decimal)
+        source = SourceInfo(file=raw.name, sha256=raw.sha256, encoding=encoding,
+                            delimiter=delimiter)
+        return assemble([grid], source=source, analyte=analyte, imap=imap)
 
     @staticmethod
-    def _grid(rows: list[list[Cell]], raw: RawFile, delimiter: str) -> Grid:
-        return Grid(rows, file=raw.given, label=raw.name, decimal_comma=delimiter == ";")
+    def _grid(rows: list[list[Cell]], raw: RawFile, delimiter: str,
+              decimal: str | None) -> Grid:
+        return Grid(rows, file=raw.given, label=raw.name,
+                    decimal=decimal,  # type: ignore[arg-type]
+                    decimal_hint="," if delimiter == ";" else None)

@@ -13,7 +13,10 @@ from pathlib import Path
 
 from calib.errors import InputError
 
-__all__ = ["MAX_FILE_BYTES", "RawFile", "check_path", "load_file"]
+__all__ = ["MAX_FILE_BYTES", "RUN_FILES", "RawFile", "check_path", "load_file"]
+
+RUN_FILES = "a run file (.xlsx, .xlsm, .xls, .ods, .csv, .tsv or .txt)"
+"""What a run file is, for messages."""
 
 MAX_FILE_BYTES = 256 * 1024 * 1024
 """Largest run file read (an instrument export is far smaller; this guards memory)."""
@@ -58,9 +61,9 @@ def check_path(path: str | os.PathLike[str]) -> Path:
     """
     path = Path(path)
     if path.is_dir():
-        raise InputError("this is a folder; expected a run file (.csv or .xlsx)", file=str(path))
+        raise InputError(f"this is a folder; expected {RUN_FILES}", file=str(path))
     if not path.exists():
-        raise InputError("no such file; expected a run file (.csv or .xlsx)", file=str(path))
+        raise InputError(f"no such file; expected {RUN_FILES}", file=str(path))
     return path
 
 

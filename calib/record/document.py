@@ -31,16 +31,24 @@ def check_document(assessment: RunAssessment) -> dict[str, Any]:
     """Build the ``calib.check/1`` document of SPEC §7 for ``assessment``.
 
     Every number keeps full double precision; values that cannot be computed
-    are ``None``.
+    are ``None``.  Beyond the keys of SPEC §7 the document carries
+    ``exclusions`` (what the analyst excluded when checking) and, per curve,
+    ``reasons`` and ``working_range`` (see ``calib/record/schemas/check-1.json``).
     """
     run, profile = assessment.run, assessment.profile
     return {
         "schema": CHECK_SCHEMA,
         "tool_version": __version__,
-        "source": {"file": run.source.file, "sha256": run.source.sha256, "sheet": run.source.sheet},
+        "source": {"file": run.source.file, "sha256": run.source.sha256, "sheet": run.source.sheet,
+                   "layout": run.source.layout},
         "profile": {"name": profile.name, "version": profile.version, "sha256": profile.sha256},
         "curves": [curve_document(c) for c in assessment.curves],
         "verdict": assessment.verdict.value,
+        "exclusions": [
+            {"target": e.target, "reason": e.reason, "cells": list(e.cells),
+             "analytes": list(e.analytes)}
+            for e in assessment.exclusions
+        ],
     }
 
 
@@ -78,7 +86,7 @@ def curve_document(curve: CurveAssessment) -> dict[str, Any]:
                 "source_cell": s.point.source_cell,
                 "level": s.level,
                 "concentration": s.point.concentration,
-                "response": s.point.response,
+                "response": finite_or_none(s.point.response),
                 "fitted": finite_or_none(s.fitted),
                 "back_calculated": finite_or_none(s.back_calculated),
                 "deviation_pct": finite_or_none(s.deviation_pct),
@@ -87,20 +95,53 @@ def curve_document(curve: CurveAssessment) -> dict[str, Any]:
             }
             for s in curve.standards
         ],
-        "checks": [
-            {
-                "id": c.id,
-                "title": c.title,
-                "verdict": c.verdict.value,
-                "severity": c.severity.value,
-                "value": finite_or_none(c.value),
-                "limit": finite_or_none(c.limit),
-                "detail": c.detail,
-            }
-            for c in curve.checks
-        ],
+        "checks": _checks(curve),
         "verdict": curve.verdict.value,
+        "reasons": list(curve.reasons),
+        "working_range": _working_range(curve),
     }
+
+
+def _checks(curve: CurveAssessment) -> list[dict[str, Any]]:
+    return [
+        {
+            "id": c.id,
+            "title": c.title,
+            "verdict": c.verdict.value,
+            "severity": c.severity.value,
+            "value": finite_or_none(c.value),
+            "limit": finite_or_none(c.limit),
+            "detail": c.detail,
+        }
+        for c in curve.checks
+    ]
+
+
+def _outcome(curve: CurveAssessment) -> dict[str, Any]:
+    """A curve's result on another range: verdict, reasons, range, checks."""
+    return {
+        "verdict": curve.verdict.value,
+        "reasons": list(curve.reasons),
+        "lloq": curve.lloq,
+        "uloq": curve.uloq,
+        "n_points": sum(s.used for s in curve.standards),
+        "checks": _checks(curve),
+    }
+
+
+def _working_range(curve: CurveAssessment) -> dict[str, Any]:
+    """The range of the fit, the analyst's range (full-range result beside) and calib's proposal."""
+    applied = proposed = None
+    if curve.working_range is not None and curve.original is not None:
+        w = curve.working_range
+        applied = {"low": w.low, "high": w.high, "reason": w.reason, "as_proposed": w.proposed,
+                   "left_out": list(w.left_out), "original": _outcome(curve.original)}
+    if curve.proposal is not None:
+        proposal = curve.proposal
+        proposed = {"lloq": proposal.lloq, "uloq": proposal.uloq,
+                    "dropped_levels": list(proposal.dropped), "reason": proposal.reason,
+                    **_outcome(proposal.assessment)}
+    return {"lloq": curve.lloq, "uloq": curve.uloq, "applied": applied, "proposed": proposed}
 
 
 def _limit(limit: Any) -> dict[str, Any] | None:

@@ -1,4 +1,12 @@
-"""The calibration record: canonical JSON, its digest and the record id derived from it."""
+"""The calibration record: canonical JSON, its digests and the record id derived from them.
+
+A record goes through versions as it is signed off (prepared, then reviewed,
+then approved).  Its *content* is the body without ``signatures``; the
+content digest stays the same across versions, and so does the record id,
+which derives from it.  Each version, content plus the signatures so far,
+has its own version digest: the SHA-256 of the whole canonical body
+(:attr:`Record.digest`).  :mod:`calib.record.versions` builds on this.
+"""
 
 from __future__ import annotations
 
@@ -13,6 +21,7 @@ from typing import Any
 from calib import __version__
 from calib.cautions import CAUTIONS
 from calib.checks.evaluate import RunAssessment
+from calib.fit.bands import band_figures
 from calib.record.document import check_document, finite_or_none
 
 __all__ = ["RECORD_SCHEMA", "Record", "build_record", "canonical_json"]
@@ -56,13 +65,23 @@ class Record:
 
     @property
     def digest(self) -> str:
-        """SHA-256 of :attr:`canonical`, in hex."""
+        """Version digest: SHA-256 of :attr:`canonical` (content and signatures), in hex."""
         return hashlib.sha256(self.canonical).hexdigest()
 
     @property
+    def content_digest(self) -> str:
+        """SHA-256 (hex) of the canonical body without ``signatures``; the same in every version."""
+        content = {key: value for key, value in self.body.items() if key != "signatures"}
+        return hashlib.sha256(canonical_json(content)).hexdigest()
+
+    @property
     def record_id(self) -> str:
-        """Short identifier derived from the digest, e.g. ``CR-3F9A1C2B77DE``."""
-        return "CR-" + self.digest[:12].upper()
+        """Short identifier derived from the content digest, e.g. ``CR-3F9A1C2B77DE``.
+
+        Signing adds a version but keeps the id: the id names the calibration,
+        the version digest names one signed state of it.
+        """
+        return "CR-" + self.content_digest[:12].upper()
 
     @classmethod
     def from_json(cls, data: bytes | str) -> Record:
@@ -111,6 +130,8 @@ def build_record(
             "layout": run.source.layout,
             "metadata": dict(run.metadata),
             "units": dict(run.units),
+            "analyte_units": {a: dict(u) for a, u in run.analyte_units.items()},
+            "warnings": list(run.warnings),
         },
         "settings": {
             "model": assessment.model.value,
@@ -133,6 +154,8 @@ def build_record(
                 "t_critical": finite_or_none(c.fit.t_critical()),
                 "x_min": float(c.fit.x.min()),
                 "x_max": float(c.fit.x.max()),
+                # What the prediction band needs: calib.fit.bands.prediction_band.
+                **band_figures(c.fit),
             }
             for c in assessment.curves
             if c.fit is not None

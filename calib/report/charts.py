@@ -41,12 +41,17 @@ class PlotPoint:
 
 @dataclass(frozen=True)
 class CurveBand:
-    """The fitted curve on a grid of concentrations and its confidence half-width."""
+    """The fitted curve on a grid of concentrations, its confidence and prediction half-widths.
+
+    ``prediction_half_width`` (for one new reading) is None when the record
+    does not hold what it needs.
+    """
 
     x: tuple[float, ...]
     yhat: tuple[float, ...]
     half_width: tuple[float, ...]
     confidence: float
+    prediction_half_width: tuple[float, ...] | None = None
 
 
 def nice_ticks(lo: float, hi: float, *, target: int = 5) -> tuple[float, ...]:
@@ -215,6 +220,9 @@ def _legend(d: Drawing, items: list[tuple[str, str]], x: float, y: float, width:
             d.add(Line(col, cy, col + 11, cy, strokeColor=CURVE, strokeWidth=1.1))
         elif kind == "band":
             d.add(Rect(col, cy - 3, 11, 6, fillColor=BAND, strokeColor=None))
+        elif kind == "prediction":
+            d.add(Line(col, cy, col + 11, cy, strokeColor=CURVE, strokeWidth=0.6,
+                       strokeDashArray=[3, 2]))
         elif kind == "zero":
             d.add(Line(col, cy, col + 11, cy, strokeColor=MUTED, strokeWidth=0.6,
                        strokeDashArray=[2, 1.5]))
@@ -263,6 +271,9 @@ def calibration_chart(
     if band is not None:
         legend_items.append(("curve", "Fitted curve"))
         legend_items.append(("band", f"{band.confidence * 100:g} % confidence band of the mean"))
+        if band.prediction_half_width is not None:
+            legend_items.append(
+                ("prediction", f"{band.confidence * 100:g} % prediction limits for one reading"))
     legend_rows = _legend_rows(legend_items, width - 40)
     bottom = 30 + 10 * legend_rows
     d = Drawing(width, height)
@@ -271,10 +282,11 @@ def calibration_chart(
     # On a log concentration axis a log response axis keeps the low standards in view.
     log_y = log_x and bool(ys) and min(ys) > 0
     if band is not None:
+        widest = band.prediction_half_width or band.half_width
         xs += list(band.x)
-        ys += [m + h for m, h in zip(band.yhat, band.half_width)]
+        ys += [m + h for m, h in zip(band.yhat, widest)]
         if not log_y:
-            ys += [m - h for m, h in zip(band.yhat, band.half_width)]
+            ys += [m - h for m, h in zip(band.yhat, widest)]
     xa = _Axis.fit(xs, 46, width - 54, log=log_x, target=6)
     ya = _Axis.fit(ys, bottom, height - bottom - 6, log=log_y, target=5)
     if band is not None and band.x:
@@ -289,6 +301,12 @@ def calibration_chart(
         d.add(Polygon(outline, fillColor=BAND, strokeColor=None, strokeWidth=0))
         line = [c for x, m in zip(band.x, band.yhat) for c in at(x, m)]
         d.add(PolyLine(line, strokeColor=CURVE, strokeWidth=1.1))
+        if band.prediction_half_width is not None:
+            for sign in (1, -1):
+                edge = [c for x, m, h in zip(band.x, band.yhat, band.prediction_half_width)
+                        for c in at(x, m + sign * h)]
+                d.add(PolyLine(edge, strokeColor=CURVE, strokeWidth=0.6,
+                               strokeDashArray=[3, 2]))
     _frame(d, xa, ya, x_title=x_title, y_title=y_title)
     _markers(d, xa, ya, points)
     _legend(d, legend_items, 46, bottom - 38, width - 40)

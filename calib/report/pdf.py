@@ -88,7 +88,9 @@ def write_pdf(
         author=template.lab.name,
         subject=_subject(record),
         creator=_creator(record),
-        keywords=[record_id, digest],
+        # The template's fingerprint lets verification tell "laid out with another
+        # template" from "altered".
+        keywords=[record_id, digest, f"template {template.fingerprint[:16]}"],
         initialFontName=REGULAR,
         **page_margins(),
     )

@@ -8,14 +8,17 @@ one thing computed here is the drawing of the confidence band, through
 
 from __future__ import annotations
 
+import io
 from collections.abc import Mapping, Sequence
 from typing import Any
 from xml.sax.saxutils import escape
 
 import numpy as np
+from reportlab.lib.utils import ImageReader
 from reportlab.platypus import (
     CondPageBreak,
     Flowable,
+    Image,
     KeepTogether,
     PageBreak,
     Paragraph,
@@ -23,7 +26,7 @@ from reportlab.platypus import (
     Table,
 )
 
-from calib.fit.bands import mean_band
+from calib.fit.bands import mean_band, prediction_band
 from calib.report.charts import (
     CurveBand,
     PlotPoint,
@@ -45,7 +48,7 @@ from calib.report.styles import INK, SHADE, get_styles
 from calib.report.tables import TableMaker
 from calib.report.template import ReportTemplate
 
-__all__ = ["build_story", "verdict_sentence"]
+__all__ = ["build_story", "signature_words", "verdict_sentence"]
 
 _MODELS = {
     "linear": "straight line, y = a + b·x",
@@ -59,6 +62,8 @@ _CHECK_VERDICTS = {"pass": "Pass", "fail": "Fail", "warn": "Warning",
 _SEVERITIES = {"reject": "Reject", "review": "Review", "info": "Information"}
 _ROLES = ("prepared", "reviewed", "approved")
 _BAND_POINTS = 41
+_LOGO_HEIGHT = 40.0  # points (14 mm)
+_LOGO_WIDTH = 130.0
 _PLOT_HEIGHT = 190
 
 
@@ -122,6 +127,45 @@ def verdict_sentence(curve: Mapping[str, Any], template: ReportTemplate) -> str:
     return " ".join(parts)
 
 
+def signature_words(entry: Mapping[str, Any]) -> str:
+    """What the Signature column says: entered by name only, or signed with a key.
+
+    The key id is shown to 16 hex digits in groups of four, the start of the
+    fingerprint that ``calib verify`` prints in full.
+
+    Examples
+    --------
+    >>> signature_words({"role": "prepared", "name": "R. Okafor"})
+    'Entered in the record'
+    >>> signature_words({"key_id": "3f9a1c2b77de44108b0c5e6f7a8b9c0d", "algorithm": "ed25519"})
+    'Signed electronically (Ed25519, key 3f9a 1c2b 77de 4410)'
+    """
+    key_id = entry.get("key_id")
+    if not key_id:
+        return "Entered in the record"
+    digits = str(key_id)[:16]
+    grouped = " ".join(digits[i:i + 4] for i in range(0, len(digits), 4))
+    algorithm = "Ed25519" if entry.get("algorithm") == "ed25519" else _str(entry.get("algorithm"))
+    return f"Signed electronically ({algorithm}, key {grouped})"
+
+
+def _prediction(details: Mapping[str, Any], curve: Mapping[str, Any], beta: list[Any],
+                cov: list[list[Any]], t_crit: float, grid: np.ndarray) -> tuple[float, ...] | None:
+    """Prediction half-widths on ``grid`` from the stored figures, or None if they are missing."""
+    sd, scale = as_float(details.get("residual_sd")), as_float(details.get("weight_scale"))
+    if sd is None or scale is None:
+        return None
+    try:
+        _, half = prediction_band(
+            str(curve.get("model")), np.array(beta), np.array(cov), t_crit, grid,
+            residual_sd=sd, weight_function=str(details.get("weight_function") or "none"),
+            weight_scale=scale, level_variances=_list(details.get("level_variances")),
+        )
+    except ValueError:
+        return None
+    return tuple(half.tolist()) if np.all(np.isfinite(half)) else None
+
+
 def _common_sheet(cells: Any) -> tuple[str, str]:
     """The ``Sheet!`` prefix every source cell shares, and the column title naming it.
 
@@ -181,8 +225,26 @@ class _Builder:
     def lab_block(self) -> list[Flowable]:
         lab = self.t.lab
         lines = [" · ".join(lab.address), lab.method, lab.accreditation]
-        return [self.para(lab.name, self.s.lab),
-                *(self.para(line, self.s.lab_line) for line in lines if line)]
+        block = [self.para(lab.name, self.s.lab),
+                 *(self.para(line, self.s.lab_line) for line in lines if line)]
+        if not self.t.logo:
+            return block
+        logo = self.logo()
+        table = Table([[block, logo]], colWidths=[self.width - logo.drawWidth, logo.drawWidth])
+        table.setStyle([("LEFTPADDING", (0, 0), (-1, -1), 0),
+                        ("RIGHTPADDING", (0, 0), (-1, -1), 0),
+                        ("TOPPADDING", (0, 0), (-1, -1), 0),
+                        ("BOTTOMPADDING", (0, 0), (-1, -1), 0),
+                        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                        ("ALIGN", (1, 0), (1, 0), "RIGHT")])
+        return [table]
+
+    def logo(self) -> Image:
+        """The template's logo, at most ``_LOGO_HEIGHT`` high and ``_LOGO_WIDTH`` wide."""
+        reader = ImageReader(io.BytesIO(self.t.logo or b""))
+        width, height = reader.getSize()
+        scale = min(_LOGO_HEIGHT / height, _LOGO_WIDTH / width)
+        return Image(io.BytesIO(self.t.logo or b""), width=width * scale, height=height * scale)
 
     def boxed(self, bold: str, rest: str = "") -> Table:
         markup = f"<b>{escape(bold)}</b>{escape(rest)}"
@@ -209,7 +271,7 @@ class _Builder:
         items = [
             ("Record id", _str(self.record_id), False),
             ("Created", format_utc(record.get("created_at")), False),
-            ("Digest (SHA-256)", _str(self.digest), True),
+            ("Version digest (SHA-256)", _str(self.digest), True),
             ("Source file", _str(run.get("file")), True),
             ("Source file SHA-256", _str(run.get("sha256")), True),
             ("Sheet", _str(run.get("sheet")), False),
@@ -234,6 +296,8 @@ class _Builder:
         for key in sorted(metadata, key=str):
             value = metadata[key]
             items.append((str(key), _str(value), len(str(value)) > 38))
+        for note in _list(run.get("warnings")):
+            items.append(("Import note", _str(note), True))
         return items
 
     def fit_section(self, curve: Mapping[str, Any]) -> list[Flowable]:
@@ -365,7 +429,8 @@ class _Builder:
         if not (np.all(np.isfinite(yhat)) and np.all(np.isfinite(half))):
             return None
         return CurveBand(tuple(grid.tolist()), tuple(yhat.tolist()), tuple(half.tolist()),
-                         as_float(curve.get("confidence")) or 0.95)
+                         as_float(curve.get("confidence")) or 0.95,
+                         _prediction(details, curve, beta, cov, t_crit, grid))
 
     def plots(self, curve: Mapping[str, Any]) -> list[Flowable]:
         s, show = self.s, self.t.show
@@ -434,12 +499,16 @@ class _Builder:
                                   "Meaning"]]
         blank_rows = []
         others = {str(x.get("role")) for x in signatures if x.get("role")} - set(_ROLES)
+        # A rejected record is closed: no blank rows invite a review or approval by hand.
+        closed = any(x.get("role") == "rejected" for x in signatures)
         for role in [*_ROLES, *sorted(others)]:
             signed = [x for x in signatures if x.get("role") == role]
             for x in signed:
-                rows.append([role.capitalize(), _str(x.get("name")), "Entered in the record",
+                rows.append([role.capitalize(), _str(x.get("name")), signature_words(x),
                              format_utc(x.get("signed_at")),
                              _str(x.get("meaning") or getattr(meanings, role, ""))])
+            if not signed and closed and role != "prepared":
+                continue
             if not signed:
                 name = self.record.get("prepared_by") if role == "prepared" else None
                 blank_rows.append(len(rows))

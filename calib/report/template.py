@@ -10,6 +10,7 @@ taken from the bundled file::
     address = ["4 Weir Cottages, Millrace Lane", "Fernbrook FB3 9QD"]
     method = "Inorganic chemistry · ion chromatography"
     accreditation = "Testing laboratory accredited to ISO/IEC 17025:2017 (fictional)."
+    logo = "fernbrook-logo.png"   # optional; PNG or JPEG inside the template's folder
 
     [page]
     size = "A4"            # or "Letter"
@@ -22,12 +23,21 @@ taken from the bundled file::
 
 The cautions and the sign-off block cannot be switched off: every record
 shows them (SPEC §12 and §6).
+
+The logo path is read relative to the template file's folder and must stay
+inside it (no absolute paths, no ``..`` or symbolic link leading out): a
+template handed around between labs must not make calib read, and print,
+some other file of the machine.  The image is read when the template is
+loaded and kept as bytes, so every rendering uses the same picture.
 """
 
 from __future__ import annotations
 
 import dataclasses
 import functools
+import hashlib
+import io
+import json
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -48,6 +58,8 @@ __all__ = [
 ]
 
 PAGE_SIZES = ("A4", "Letter")
+_LOGO_MAX_BYTES = 2_000_000
+_IMAGE_MAGIC = (b"\x89PNG\r\n\x1a\n", b"\xff\xd8\xff")
 
 
 @dataclass(frozen=True)
@@ -58,6 +70,7 @@ class LabDetails:
     address: tuple[str, ...] = ()
     method: str = ""
     accreditation: str = ""
+    logo: str = ""
 
 
 @dataclass(frozen=True)
@@ -115,6 +128,7 @@ class Meanings:
     prepared: str
     reviewed: str
     approved: str
+    rejected: str = "Rejected: this calibration must not be used to report results"
 
 
 @dataclass(frozen=True)
@@ -126,7 +140,8 @@ class ReportTemplate:
     Attributes
     ----------
     lab : LabDetails
-        Lab name, address lines, method or department line, accreditation statement.
+        Lab name, address lines, method or department line, accreditation statement,
+        logo path (as written in the template).
     page_size : str
         ``"A4"`` or ``"Letter"``.
     show : Sections
@@ -138,6 +153,9 @@ class ReportTemplate:
         lines); when empty, the record's own ``cautions`` text is printed instead.
     source : str
         Where the template was read from (for messages).
+    logo : bytes or None
+        The logo image (PNG or JPEG) named by ``lab.logo``, read when the
+        template was loaded.
     """
 
     lab: LabDetails
@@ -148,6 +166,26 @@ class ReportTemplate:
     meanings: Meanings
     cautions: str
     source: str = "default.toml"
+    logo: bytes | None = dataclasses.field(default=None, repr=False)
+
+    @property
+    def fingerprint(self) -> str:
+        """SHA-256 (hex) of everything that shapes the pages: wording, layout and logo.
+
+        Two templates with the same fingerprint render a record to the same
+        bytes; the PDF names it so that verification can tell a record laid
+        out with another template from an altered one.
+
+        Examples
+        --------
+        >>> load_template().fingerprint == load_template().fingerprint
+        True
+        """
+        parts = dataclasses.asdict(self)
+        parts.pop("source")
+        parts["logo"] = hashlib.sha256(self.logo).hexdigest() if self.logo else None
+        text = json.dumps(parts, sort_keys=True, ensure_ascii=False, separators=(",", ":"))
+        return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
 def bundled_folder() -> Path:
@@ -194,13 +232,13 @@ def load_template(path: str | Path | None = None) -> ReportTemplate:
     if path is None:
         return _bundled()
     path = Path(path)
-    return _from_table(_read_toml(path), source=path.name, base=_bundled())
+    return _from_table(_read_toml(path), source=path.name, base=_bundled(), folder=path.parent)
 
 
 @functools.cache
 def _bundled() -> ReportTemplate:
     path = bundled_folder() / "default.toml"
-    return _from_table(_read_toml(path), source=path.name, base=None)
+    return _from_table(_read_toml(path), source=path.name, base=None, folder=path.parent)
 
 
 def _read_toml(path: Path) -> dict[str, Any]:
@@ -227,7 +265,7 @@ _TABLES: dict[str, type] = {
 
 
 def _from_table(
-    data: dict[str, Any], *, source: str, base: ReportTemplate | None
+    data: dict[str, Any], *, source: str, base: ReportTemplate | None, folder: Path
 ) -> ReportTemplate:
     known = set(_TABLES) | {"page", "cautions"}
     for key, value in data.items():
@@ -266,7 +304,43 @@ def _from_table(
     if text is None:
         raise TemplateError(f"template {source}: missing key 'cautions.text'")
 
-    return ReportTemplate(page_size=size, cautions=text.strip(), source=source, **parts)
+    logo = _read_logo(parts["lab"].logo, folder, source) if parts["lab"].logo else None
+    return ReportTemplate(page_size=size, cautions=text.strip(), source=source, logo=logo,
+                          **parts)
+
+
+def _read_logo(relative: str, folder: Path, source: str) -> bytes:
+    """The logo file's bytes, refusing any path that leads out of the template's folder."""
+    where = f"template {source}: key 'lab.logo'"
+    candidate = Path(relative)
+    if candidate.is_absolute() or candidate.drive or not relative.strip():
+        raise TemplateError(f"{where} must be a file name inside the template's folder; "
+                            f"got {relative!r}")
+    root = folder.resolve()
+    # resolve() follows symbolic links, so a link inside the folder to a file outside is caught.
+    target = (root / candidate).resolve()
+    if not target.is_relative_to(root):
+        raise TemplateError(f"{where} points outside the template's folder: {relative!r}")
+    try:
+        size = target.stat().st_size
+        if size > _LOGO_MAX_BYTES:
+            raise TemplateError(f"{where}: the logo {relative!r} is larger than "
+                                f"{_LOGO_MAX_BYTES // 1_000_000} MB")
+        data = target.read_bytes()
+    except FileNotFoundError:
+        raise TemplateError(f"{where}: logo file {relative!r} not found") from None
+    except OSError as exc:
+        raise TemplateError(f"{where}: logo file {relative!r} cannot be read "
+                            f"({exc.strerror})") from None
+    if not data.startswith(_IMAGE_MAGIC):
+        raise TemplateError(f"{where}: logo file {relative!r} is not a PNG or JPEG image")
+    from reportlab.lib.utils import ImageReader
+
+    try:
+        ImageReader(io.BytesIO(data)).getSize()
+    except Exception:  # noqa: BLE001 - reportlab and Pillow raise many kinds on a bad image
+        raise TemplateError(f"{where}: logo file {relative!r} is a damaged image") from None
+    return data
 
 
 def _plain_table(

@@ -25,7 +25,9 @@ def test_shipped_default_profile_loads():
     profile = load_profile("default")
     assert profile.name == "default" and profile.confidence == 0.95
     assert [r.id for r in profile.rules] == [
-        "min-levels", "intercept-zero", "slope-reference", "back-calculation"]
+        "min-levels", "intercept-zero", "slope-reference", "back-calculation", "lack-of-fit",
+        "quadratic-term", "mandel", "residual-runs", "drift", "outliers", "variance-ends",
+        "variance-levels", "weighting-advice", "rf-rsd", "method-sd"]
     assert len(profile.sha256) == 64
 
 
@@ -46,7 +48,8 @@ def test_file_profile_and_defaults_filled(tmp_path):
         (GOOD.replace("min_levels = 6", "min_levels = 1"),
          "line 7: rule 'min-levels' parameter 'min_levels' must be at least 2, got 1"),
         (GOOD.replace("min_levels = 6", "min_level = 6"),
-         "line 7: rule 'min-levels' has no parameter 'min_level' (known: min_levels)"),
+         ("line 7: rule 'min-levels' has no parameter 'min_level' (known: min_levels, "
+         "quadratic_min_levels)")),
         (GOOD.replace('"reject"', '"fatal"'),
          "line 7: rule 'min-levels' needs severity reject, review or info; got 'fatal'"),
         (GOOD.replace('"min-levels"', '"r-squared"'), "line 7: unknown rule id 'r-squared'"),

@@ -19,10 +19,13 @@ Y = [2.1, 3.9, 6.1, 8.0, 9.9]
 @pytest.mark.parametrize(
     ("option", "value", "message"),
     [
-        ("model", "cubic", "model must be one of linear, origin, quadratic; got 'cubic'"),
-        ("model", "Linear", "model must be one of linear, origin, quadratic; got 'Linear'"),
-        ("weighting", "1/y", "weighting must be one of none, 1/x, 1/x2; got '1/y'"),
-        ("weighting", "1/x^2", "weighting must be one of none, 1/x, 1/x2; got '1/x^2'"),
+        ("model", "cubic", "model must be one of linear, origin, quadratic, mean-rf; got 'cubic'"),
+        ("model", "Linear",
+         "model must be one of linear, origin, quadratic, mean-rf; got 'Linear'"),
+        ("weighting", "1/z",
+         "weighting must be one of none, 1/x, 1/x2, 1/y, 1/y2, 1/s2; got '1/z'"),
+        ("weighting", "1/x^2",
+         "weighting must be one of none, 1/x, 1/x2, 1/y, 1/y2, 1/s2; got '1/x^2'"),
         ("confidence", 1.5, "confidence must be a number from 0.5 to below 1; got 1.5"),
         ("confidence", 1, "confidence must be a number from 0.5 to below 1; got 1"),
         ("confidence", 0.05, "confidence must be a number from 0.5 to below 1; got 0.05"),

@@ -1,4 +1,4 @@
-"""Fixtures for the importer tests: tiny CSV and XLSX files written into tmp_path."""
+"""Fixtures for the importer tests: tiny CSV, XLSX, ODS and XLS files written into tmp_path."""
 
 from __future__ import annotations
 
@@ -8,7 +8,26 @@ from pathlib import Path
 import openpyxl
 import pytest
 
+from calib.errors import InputError
+from calib.io import read_run
+from sample_runs.make_import_examples import write_ods, write_xls
+
 DATA = Path(__file__).parent.parent / "data" / "io"
+
+LEVELS = (0.5, 1.0, 2.0, 5.0)
+"""Four concentration levels: enough for a curve (calib asks for 3 or more)."""
+
+
+def message(path, **kwargs) -> str:
+    """The InputError message read_run gives for ``path``."""
+    with pytest.raises(InputError) as err:
+        read_run(path, **kwargs)
+    return str(err.value)
+
+
+def curve_rows(levels: Sequence[float] = LEVELS, slope: float = 100.0) -> list[list[object]]:
+    """``[conc, response]`` rows of a clean straight line."""
+    return [[c, slope * c] for c in levels]
 
 
 @pytest.fixture
@@ -31,10 +50,11 @@ def write_csv(tmp_path: Path) -> Callable[..., Path]:
 
 @pytest.fixture
 def write_xlsx(tmp_path: Path) -> Callable[..., Path]:
-    """write_xlsx({sheet: rows}, name="run.xlsx", hidden=(), origin="A1") -> path.
+    """write_xlsx({sheet: rows}, name="run.xlsx", hidden=(), origin="A1", ...) -> path.
 
     ``origin`` places every sheet's first row and column, e.g. "C5" starts the
     rows at row 5, column C, to check source cells against an offset table.
+    ``hidden_rows`` (1-based) and ``merges`` (ranges) apply to every sheet.
     """
 
     def write(
@@ -42,6 +62,8 @@ def write_xlsx(tmp_path: Path) -> Callable[..., Path]:
         name: str = "run.xlsx",
         hidden: Sequence[str] = (),
         origin: str = "A1",
+        hidden_rows: Sequence[int] = (),
+        merges: Sequence[str] = (),
     ) -> Path:
         book = openpyxl.Workbook()
         book.remove(book.active)
@@ -54,8 +76,32 @@ def write_xlsx(tmp_path: Path) -> Callable[..., Path]:
                         sheet.cell(row=start[0] + r, column=start[1] + c, value=value)
             if title in hidden:
                 sheet.sheet_state = "hidden"
+            for number in hidden_rows:
+                sheet.row_dimensions[number].hidden = True
+            for ref in merges:
+                sheet.merge_cells(ref)
         path = tmp_path / name
         book.save(path)
         return path
+
+    return write
+
+
+@pytest.fixture
+def write_ods_file(tmp_path: Path) -> Callable[..., Path]:
+    """write_ods_file({sheet: rows}, name="run.ods", **options) -> path (hand-written ODS)."""
+
+    def write(sheets, name: str = "run.ods", **options) -> Path:
+        return write_ods(tmp_path / name, sheets, **options)
+
+    return write
+
+
+@pytest.fixture
+def write_xls_file(tmp_path: Path) -> Callable[..., Path]:
+    """write_xls_file({sheet: rows}, name="run.xls", **options) -> path (hand-written BIFF8)."""
+
+    def write(sheets, name: str = "run.xls", **options) -> Path:
+        return write_xls(tmp_path / name, sheets, **options)
 
     return write

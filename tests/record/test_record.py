@@ -20,17 +20,22 @@ POINT_KEYS = {"source_cell", "level", "concentration", "response", "fitted", "ba
               "deviation_pct", "included", "exclusion_reason"}
 CHECK_KEYS = {"id", "title", "verdict", "severity", "value", "limit", "detail"}
 COEF_KEYS = {"estimate", "std_error", "t_value", "p_value", "ci_low", "ci_high"}
+# Added beside the SPEC §7 keys, documented in calib/record/schemas/check-1.json.
+EXTENSION_KEYS = {"exclusions"}
+CURVE_EXTENSION_KEYS = {"reasons", "working_range"}
 
 
 def test_check_document_has_exactly_the_spec_keys(norris_run):
-    # SPEC §7: the calib.check/1 key names.
+    # SPEC §7: the calib.check/1 key names, plus only the documented extensions.
     doc = check_document(evaluate_run(norris_run))
-    assert set(doc) == {"schema", "tool_version", "source", "profile", "curves", "verdict"}
+    assert set(doc) == {"schema", "tool_version", "source", "profile", "curves", "verdict",
+                        *EXTENSION_KEYS}
     assert doc["schema"] == "calib.check/1"
-    assert set(doc["source"]) == {"file", "sha256", "sheet"}
+    # SPEC §7 names file, sha256 and sheet; the importer issue adds the layout read.
+    assert set(doc["source"]) == {"file", "sha256", "sheet", "layout"}
     assert set(doc["profile"]) == {"name", "version", "sha256"}
     curve = doc["curves"][0]
-    assert set(curve) == CURVE_KEYS
+    assert set(curve) == CURVE_KEYS | CURVE_EXTENSION_KEYS
     assert set(curve["coefficients"]) == {"intercept", "slope"}
     assert all(set(c) == COEF_KEYS for c in curve["coefficients"].values())
     assert all(set(p) == POINT_KEYS for p in curve["points"])
@@ -63,7 +68,10 @@ def test_record_digest_and_id_derive_from_canonical_bytes():
     when = datetime(2026, 12, 1, 9, 30, tzinfo=UTC)
     record = build_record(evaluate_run(run), prepared_by="Zoë Łukasiewicz-Ng", created_at=when)
     assert record.digest == hashlib.sha256(record.canonical).hexdigest()
-    assert record.record_id == "CR-" + record.digest[:12].upper()
+    # The id derives from the content (the body without signatures), so signing keeps it.
+    content = {k: v for k, v in record.body.items() if k != "signatures"}
+    assert record.content_digest == hashlib.sha256(canonical_json(content)).hexdigest()
+    assert record.record_id == "CR-" + record.content_digest[:12].upper()
     again = build_record(evaluate_run(run), prepared_by="Zoë Łukasiewicz-Ng", created_at=when)
     assert again.canonical == record.canonical
     assert Record.from_json(record.canonical).digest == record.digest

@@ -8,16 +8,21 @@ Rules live in modules by theme; :data:`RULES` collects them by id.
 
 from __future__ import annotations
 
+from calib.checks.rules.acceptance import ACCEPTANCE_RULES
 from calib.checks.rules.base import Param, Rule
 from calib.checks.rules.basic import BASIC_RULES
 from calib.checks.rules.linearity import LINEARITY_RULES
+from calib.checks.rules.models import MODELS_RULES
 from calib.checks.rules.outliers import OUTLIERS_RULES
+from calib.checks.rules.qc import QC_RULES
+from calib.checks.rules.standards import STANDARDS_RULES
 from calib.checks.rules.variance import VARIANCE_RULES
 
 __all__ = ["RULES", "Param", "Rule"]
 
 RULES: dict[str, Rule] = {
     rule.id: rule
-    for group in (BASIC_RULES, LINEARITY_RULES, VARIANCE_RULES, OUTLIERS_RULES)
+    for group in (BASIC_RULES, STANDARDS_RULES, ACCEPTANCE_RULES, MODELS_RULES, LINEARITY_RULES,
+                  VARIANCE_RULES, OUTLIERS_RULES, QC_RULES)
     for rule in group
 }

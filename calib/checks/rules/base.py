@@ -15,7 +15,10 @@ __all__ = ["Param", "Rule", "fmt", "not_evaluated", "result"]
 
 @dataclass(frozen=True)
 class Param:
-    """A rule parameter: its type, the range allowed and its default (None = optional)."""
+    """A rule parameter: its type, the range allowed and its default (None = optional).
+
+    ``kind`` is ``float``, ``int`` or ``bool`` (a switch, ``true`` or ``false`` in TOML).
+    """
 
     kind: type
     low: float | None = None
@@ -25,7 +28,17 @@ class Param:
     nonzero: bool = False
 
     def check(self, value: Any) -> str | None:
-        """Why ``value`` is not allowed, or None."""
+        """Why ``value`` is not allowed, or None.
+
+        Examples
+        --------
+        >>> Param(bool, default=False).check(1)
+        'must be true or false, got 1'
+        >>> Param(float, low=0, high=100).check(120)
+        'must be at most 100, got 120'
+        """
+        if self.kind is bool:
+            return None if isinstance(value, bool) else f"must be true or false, got {value!r}"
         if isinstance(value, bool) or not isinstance(value, (int, float) if self.kind is float else int):
             return f"must be {'a number' if self.kind is float else 'a whole number'}, got {value!r}"
         if not math.isfinite(value):
@@ -47,6 +60,9 @@ class Rule:
     title: str
     params: Mapping[str, Param]
     run: Callable[[CurveContext, Mapping[str, Any], Severity], CheckResult]
+    #: Checks the parameters together (one excludes another, one needs another); returns
+    #: what is wrong in words, or None.  Called on the parameters the profile gives.
+    validate: Callable[[Mapping[str, Any]], str | None] | None = None
 
 
 def result(rule_id: str, severity: Severity, verdict: Verdict, value: float | None,

@@ -1,0 +1,68 @@
+"""The archive of calibration records and the trends drawn from it.
+
+:class:`Archive` is the append-only, hash-chained SQLite store of every issued
+and signed record version (:mod:`calib.archive.store`, the chain in
+:mod:`calib.archive.chain`); :mod:`calib.archive.trend` charts each analyte's
+slope, intercept and residual SD over time with the control limits and run
+rules of :mod:`calib.archive.control`; :mod:`calib.archive.figures` derives
+what the archive indexes from the record JSON.
+"""
+
+from calib.archive.chain import (
+    GENESIS_HASH,
+    KINDS,
+    ArchiveEntry,
+    ChainProblem,
+    ChainReport,
+    compute_entry_hash,
+)
+from calib.archive.control import (
+    DEFAULT_BASELINE,
+    MIN_BASELINE,
+    RULES,
+    ControlChart,
+    ControlLimits,
+    RuleHit,
+    control_chart,
+    control_limits,
+    run_rules,
+)
+from calib.archive.figures import CurveFigures, RecordFacts, record_facts
+from calib.archive.store import Archive, ArchiveError
+from calib.archive.trend import (
+    QUANTITIES,
+    TREND_SCHEMA,
+    AnalyteTrend,
+    ArchivedCurve,
+    analyte_trend,
+    trend_document,
+)
+
+__all__ = [
+    "DEFAULT_BASELINE",
+    "GENESIS_HASH",
+    "KINDS",
+    "MIN_BASELINE",
+    "QUANTITIES",
+    "RULES",
+    "TREND_SCHEMA",
+    "AnalyteTrend",
+    "Archive",
+    "ArchiveEntry",
+    "ArchiveError",
+    "ArchivedCurve",
+    "ChainProblem",
+    "ChainReport",
+    "ControlChart",
+    "ControlLimits",
+    "CurveFigures",
+    "RecordFacts",
+    "RuleHit",
+    "analyte_trend",
+    "compute_entry_hash",
+    "control_chart",
+    "control_limits",
+    "record_facts",
+    "run_rules",
+    "trend_document",
+]

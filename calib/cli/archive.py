@@ -1,0 +1,252 @@
+"""``calib archive``: list, show, export and verify the archive of calibration records.
+
+The archive file comes from ``--archive DB`` or the ``CALIB_ARCHIVE``
+environment variable.  With neither, the command stops with exit code 2 (a
+usage error: say which archive); an archive path that does not exist is exit
+code 3 (reading never creates an archive, so a typing mistake is not taken
+for an empty one).
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import json
+import os
+import sys
+from pathlib import Path
+from typing import Any
+
+from calib.cli.common import add_debug
+
+ENV_VAR = "CALIB_ARCHIVE"
+NO_ARCHIVE = (f"no archive given: pass --archive DB or set the {ENV_VAR} environment variable "
+              "to the archive file")
+EXIT_USAGE = 2
+
+EXAMPLES = """\
+examples:
+  calib archive list --archive records.sqlite
+  calib archive list --analyte Nitrate-N --from 2026-11-01 --to 2026-11-30 --verdict accepted
+  calib archive show CR-3F9A1C2B77DE
+  calib archive export CR-3F9A1C2B77DE --out exported/ --all-versions
+  calib archive verify                       (with CALIB_ARCHIVE=records.sqlite set)
+
+exit codes: 0 done / archive intact, 1 archive damaged or altered, 2 usage error
+            (no archive named), 3 archive or record not found or unreadable
+"""
+
+
+def add_archive_option(parser: argparse.ArgumentParser, *, help_text: str | None = None) -> None:
+    """``--archive DB``, falling back on the ``CALIB_ARCHIVE`` environment variable."""
+    parser.add_argument("--archive", metavar="DB", help=help_text or (
+        f"archive file (SQLite); default: the {ENV_VAR} environment variable"))
+
+
+def archive_path(args: argparse.Namespace) -> str | None:
+    """The archive the user named, by option or environment; None when neither is set."""
+    return getattr(args, "archive", None) or os.environ.get(ENV_VAR) or None
+
+
+def report_no_archive() -> int:
+    """Say that no archive was named; returns the usage-error exit code."""
+    print(f"calib: error: {NO_ARCHIVE}", file=sys.stderr)
+    return EXIT_USAGE
+
+
+def iso_date(text: str) -> str:
+    """argparse type: a calendar date ``YYYY-MM-DD``.
+
+    Examples
+    --------
+    >>> iso_date("2026-11-30")
+    '2026-11-30'
+    """
+    try:
+        return dt.date.fromisoformat(text).isoformat()
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a date YYYY-MM-DD, got {text!r}") from None
+
+
+def add_parser(sub: argparse._SubParsersAction) -> None:
+    parser = sub.add_parser(
+        "archive", help="list, show, export and verify archived calibration records",
+        description="The archive holds every issued and signed version of each record (JSON "
+                    "and PDF), append-only and hash-chained.",
+        epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    actions = parser.add_subparsers(dest="action", metavar="ACTION")
+    actions.required = True
+
+    def action(name: str, help_text: str, handler: Any) -> argparse.ArgumentParser:
+        p = actions.add_parser(name, help=help_text, description=help_text.capitalize() + ".",
+                               epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
+        add_archive_option(p)
+        add_debug(p)
+        p.set_defaults(handler=handler)
+        return p
+
+    p = action("list", "list archive entries, oldest first", run_list)
+    p.add_argument("--analyte", metavar="A", help="only records with a curve of this analyte")
+    p.add_argument("--from", dest="date_from", type=iso_date, metavar="DATE",
+                   help="only runs dated on or after DATE (YYYY-MM-DD)")
+    p.add_argument("--to", dest="date_to", type=iso_date, metavar="DATE",
+                   help="only runs dated on or before DATE (YYYY-MM-DD)")
+    p.add_argument("--verdict", choices=("accepted", "rejected", "needs-review"),
+                   help="only records with this run verdict")
+    p.add_argument("--instrument", metavar="I", help="only runs on this instrument")
+    p.add_argument("--json", action="store_true", help="print the entries as a JSON list")
+    p = action("show", "show a record's versions, curves and signatures", run_show)
+    p.add_argument("record_id", metavar="RECORD_ID", help="record id, e.g. CR-3F9A1C2B77DE")
+    p.add_argument("--json", action="store_true", help="print the versions as JSON")
+    p = action("export", "write a record's PDF and JSON from the archive", run_export)
+    p.add_argument("record_id", metavar="RECORD_ID", help="record id, e.g. CR-3F9A1C2B77DE")
+    p.add_argument("--out", metavar="DIR", required=True, help="folder to write into")
+    p.add_argument("--all-versions", action="store_true",
+                   help="every version, not only the latest")
+    p = action("verify", "check every entry and the hash chain of the archive", run_verify)
+    p.add_argument("--head", metavar="HASH",
+                   help="an entry hash noted earlier; it must still be in the archive")
+
+
+def _open(path: str) -> Any:
+    from calib.archive import Archive
+
+    return Archive(path, create=False)
+
+
+def run_list(args: argparse.Namespace) -> int:
+    path = archive_path(args)
+    if path is None:
+        return report_no_archive()
+    with _open(path) as archive:
+        found = archive.entries(analyte=args.analyte, verdict=args.verdict,
+                                instrument=args.instrument, date_from=args.date_from,
+                                date_to=args.date_to, data=False)
+    if args.json:
+        json.dump([e.summary() for e in found], sys.stdout, ensure_ascii=False, indent=1)
+        sys.stdout.write("\n")
+        return 0
+    print(_entries_table(found) if found else f"No entries in {path} match.")
+    return 0
+
+
+def _entries_table(entries: list[Any]) -> str:
+    head = (f"{'seq':>5}  {'archived (UTC)':<20}  {'record':<15}  {'kind':<6}  "
+            f"{'run date':<10}  {'verdict':<12}  {'sign-off':<22}  analytes")
+    lines = [head]
+    for e in entries:
+        names = ", ".join(e.analytes[:3]) + (f" +{len(e.analytes) - 3} more"
+                                             if len(e.analytes) > 3 else "")
+        lines.append(f"{e.seq:>5}  {e.created_at:<20}  {e.record_id:<15}  {e.kind:<6}  "
+                     f"{e.run_date:<10}  {e.verdict:<12}  {', '.join(e.roles) or '—':<22}  {names}")
+    return "\n".join(lines)
+
+
+def run_show(args: argparse.Namespace) -> int:
+    path = archive_path(args)
+    if path is None:
+        return report_no_archive()
+    from calib.archive import ArchiveError
+
+    with _open(path) as archive:
+        versions = archive.entries(record_id=args.record_id)
+    if not versions:
+        raise ArchiveError(f"no record {args.record_id} in {path}")
+    body = _readable_body(versions[-1])
+    if args.json:
+        json.dump({"record_id": versions[0].record_id,
+                   "versions": [v.summary() for v in versions],
+                   "signatures": body.get("signatures", [])},
+                  sys.stdout, ensure_ascii=False, indent=1)
+        sys.stdout.write("\n")
+        return 0
+    print(_record_text(versions, body, path))
+    return 0
+
+
+def _readable_body(entry: Any) -> dict[str, Any]:
+    """The entry's record JSON, parsed; a damaged entry is an error pointing at verify."""
+    from calib.archive import ArchiveError
+
+    hint = f"entry seq {entry.seq} does not match its digest; run calib archive verify"
+    try:
+        body = json.loads(entry.json)
+    except ValueError:
+        raise ArchiveError(hint) from None
+    if not entry.digest_matches:
+        print(f"calib: warning: {hint}", file=sys.stderr)
+    return body if isinstance(body, dict) else {}
+
+
+def _record_text(versions: list[Any], body: dict[str, Any], path: str) -> str:
+    from calib.archive import record_facts
+    from calib.cli.render import num
+
+    latest = versions[-1]
+    run = body.get("run") or {}
+    facts = record_facts(body)
+    count = f"{len(versions)} version{'s' if len(versions) != 1 else ''}"
+    lines = [f"Record {latest.record_id}: {count} in {path}",
+             f"  run file    {run.get('file')} (SHA-256 {str(run.get('sha256'))[:16]}…)",
+             f"  run date    {latest.run_date}   instrument {latest.instrument or '—'}",
+             f"  verdict     {latest.verdict}",
+             "  curves"]
+    for c in facts.curves:
+        lines.append(f"    {c.analyte}: {c.verdict}, slope {num(c.slope)}, intercept "
+                     f"{num(c.intercept)}, residual SD {num(c.residual_sd)}")
+    lines.append("  versions")
+    for v in versions:
+        lines.append(f"    seq {v.seq:<5} {v.kind:<7} archived {v.created_at}  "
+                     f"version {v.version_digest[:16]}…  sign-off {', '.join(v.roles) or '—'}")
+    lines.append("  signatures (latest version)")
+    for s in body.get("signatures") or []:
+        key = f"  key {s['key_id'][:16]}" if s.get("key_id") else ""
+        lines.append(f"    {s.get('role', '?'):<9} {s.get('name', '?')}  {s.get('signed_at', '?')}"
+                     f"  “{s.get('meaning', '')}”{key}")
+    return "\n".join(lines)
+
+
+def run_export(args: argparse.Namespace) -> int:
+    path = archive_path(args)
+    if path is None:
+        return report_no_archive()
+    from calib.archive import ArchiveError
+    from calib.output import write_atomic
+
+    with _open(path) as archive:
+        versions = archive.entries(record_id=args.record_id)
+    if not versions:
+        raise ArchiveError(f"no record {args.record_id} in {path}")
+    damaged = [v.seq for v in versions if not v.digest_matches]
+    if damaged:
+        print(f"calib: error: entry seq {damaged[0]} of {versions[0].record_id} does not match "
+              "its digest; nothing was exported (run calib archive verify)", file=sys.stderr)
+        return 1
+    chosen = list(enumerate(versions, start=1)) if args.all_versions else [(0, versions[-1])]
+    out = Path(args.out)
+    for number, entry in chosen:
+        stem = entry.record_id + (f"-v{number}-{entry.kind}" if number else "")
+        pdf = write_atomic(out / f"{stem}.pdf", entry.pdf)
+        data = write_atomic(out / f"{stem}.record.json", entry.json)
+        print(f"seq {entry.seq} ({entry.kind}): {pdf}\n  record data: {data}")
+    return 0
+
+
+def run_verify(args: argparse.Namespace) -> int:
+    path = archive_path(args)
+    if path is None:
+        return report_no_archive()
+    with _open(path) as archive:
+        report = archive.verify_chain(expected_head=args.head)
+    head = (f"head seq {report.head_seq}, entry hash {report.head_hash}"
+            if report.head_seq else "empty")
+    if report.ok:
+        print(f"Archive {path}: {report.entries} entries, every digest and the hash chain "
+              f"intact; {head} (note the head to detect later truncation)")
+        return 0
+    print(f"Archive {path}: {len(report.problems)} problem"
+          f"{'s' if len(report.problems) != 1 else ''} in {report.entries} entries; {head}")
+    for problem in report.problems:
+        print(f"  {problem}")
+    return 1

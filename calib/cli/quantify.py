@@ -1,0 +1,88 @@
+"""``calib quantify``: concentrations, intervals and flags of a batch's samples."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+
+from calib.cli.common import add_debug, add_fit_options, sheet_arg
+
+EXAMPLES = """\
+examples:
+  calib quantify run.xlsx                      the run's own unknowns and QCs against its curves
+  calib quantify run.xlsx batch.csv            the samples in batch.csv against run.xlsx's curves
+  calib quantify record.pdf batch.xlsx --pdf results.pdf --xlsx results.xlsx
+  calib quantify record.json batch.csv --json > results.json   (schema calib.quantify/1)
+  calib quantify run.csv batch.csv --force     quantify against a rejected curve (flagged)
+
+A sample above the top standard is reported as "> ULOQ" (dilute and re-run), never as a number.
+exit codes: 0 every curve accepted and the QCs pass, 1 a curve rejected or needing review,
+            or the QC rule failed, 2 usage error, 3 unusable input
+"""
+
+
+def add_parser(sub: argparse._SubParsersAction) -> None:
+    parser = sub.add_parser(
+        "quantify", help="quantify unknown samples and QCs against a checked curve",
+        description="Read each sample's concentration back from the curve with its standard "
+                    "error and confidence interval, apply dilution factors, flag results outside "
+                    "the calibrated range and judge the QCs.",
+        epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("curve", metavar="CURVE",
+                        help="a run file (its standards are fitted and checked first) or an "
+                             "issued record (.pdf or .json)")
+    parser.add_argument("samples", metavar="SAMPLES", nargs="?",
+                        help="unknowns and QCs (.xlsx, .csv...); default: those in the run file")
+    add_fit_options(parser)
+    parser.set_defaults(profile=None)
+    parser.add_argument("--samples-sheet", metavar="S", help="sheet of the samples file")
+    parser.add_argument("--force", action="store_true",
+                        help="quantify against a rejected curve too; every such result is "
+                             "flagged 'forced' and the outputs say so")
+    parser.add_argument("--json", action="store_true",
+                        help="print the calib.quantify/1 JSON document instead of tables")
+    parser.add_argument("--xlsx", metavar="OUT", help="write the results workbook to OUT")
+    parser.add_argument("--pdf", metavar="OUT", help="write the batch report PDF to OUT")
+    add_debug(parser)
+    parser.set_defaults(handler=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from calib.output import write_atomic
+    from calib.quantify.document import quantify_document
+    from calib.quantify.source import is_record_file
+    from calib.quantify.text import batch_text
+    from calib.quantify.workflow import quantify_files
+
+    fixed = [f"--{n}" for n in ("model", "weighting", "sheet") if getattr(args, n) is not None]
+    if fixed and is_record_file(args.curve):
+        print(f"calib quantify: error: {' and '.join(fixed)} apply to a run file; an issued "
+              "record's curve is fixed", file=sys.stderr)
+        return 2
+    report = quantify_files(
+        args.curve, args.samples, sheet=sheet_arg(args.sheet),
+        samples_sheet=sheet_arg(args.samples_sheet), profile=args.profile, model=args.model,
+        weighting=args.weighting, confidence=args.confidence, force=args.force)
+    document = quantify_document(report)
+    written = []
+    if args.xlsx:
+        from calib.report.quantify_xlsx import write_quantify_xlsx
+
+        written.append(write_atomic(args.xlsx, write_quantify_xlsx(document)))
+    if args.pdf:
+        from calib.report.quantify_pdf import write_quantify_pdf
+
+        written.append(write_atomic(args.pdf, write_quantify_pdf(document)))
+    if args.json:
+        json.dump(document, sys.stdout, ensure_ascii=False, allow_nan=False)
+        sys.stdout.write("\n")
+        print(f"calib: caution: {document['cautions']}", file=sys.stderr)
+    else:
+        print(batch_text(document))
+        for path in written:
+            print(f"Written: {path}")
+    for analyte, why in document["refused"].items():
+        print(f"calib: {analyte}: {why}", file=sys.stderr)
+    return 0 if document["verdict"] == "accepted" else 1

@@ -1,0 +1,675 @@
+"""Is the curve the right shape?  Lack of fit, Mandel, the quadratic term, residual patterns.
+
+Each function takes a fitted :class:`~calib.fit.curve.CurveFit` and returns a
+frozen result with the inference as properties and methods.  When the data
+cannot answer the question (no replicates, too few levels, no scatter) the
+result carries a ``reason`` and its statistics are ``nan``; wrong arguments
+raise ``ValueError``.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+from calib.fit.curve import CurveFit
+from calib.fit.design import design_matrix
+from calib.fit.wls import WlsSolution, solve_wls
+from calib.options import Model
+
+__all__ = [
+    "DriftTest", "LackOfFit", "MandelTest", "QuadraticTerm", "RunsTest", "lack_of_fit",
+    "mandel_test", "quadratic_term", "residual_drift", "residual_runs", "runs_test",
+]
+
+# A sum of squares this small next to the total is rounding, not scatter: the
+# curve passes through the points and no test on the scatter means anything.
+_ROUNDING = 1e-20
+
+#: Up to this many signed residuals the runs test uses the exact distribution.
+EXACT_RUNS_LIMIT = 200
+
+
+def _total_ss(fit: CurveFit) -> float:
+    w = fit.weights
+    ybar = float(np.sum(w * fit.y) / np.sum(w))
+    total = float(np.sum(w * (fit.y - ybar) ** 2))
+    return total if total > 0 else float(np.sum(w * fit.y**2))
+
+
+def _negligible(ss: float, fit: CurveFit) -> bool:
+    return ss <= _ROUNDING * _total_ss(fit)
+
+
+def _weighted_ss(fit: CurveFit) -> float:
+    return float(np.sum(fit.weights * fit.residuals**2))
+
+
+def _described(fit: CurveFit) -> str:
+    return "weighted sums" if np.ptp(fit.weights) > 0 else "unweighted sums"
+
+
+# ---------------------------------------------------------------------------------------------
+# Lack of fit
+
+
+@dataclass(frozen=True)
+class LackOfFit:
+    """Lack-of-fit F-test: does the curve miss the level means by more than replicate scatter?
+
+    Attributes
+    ----------
+    ss_lack, df_lack : float, int
+        SS_lof = SS_res − SS_pure on ν_lof = m − p degrees of freedom.
+    ss_pure, df_pure : float, int
+        SS_pure = Σᵢ Σⱼ wᵢⱼ(yᵢⱼ − ȳᵢ,w)² on ν_pure = N − m.
+    n_levels : int
+        m, the distinct concentrations.
+    weighted : bool
+        Whether the sums carry the fit's (unequal) weights.
+    reason : str or None
+        Why the test cannot be evaluated, None when it can.
+    """
+
+    ss_lack: float
+    df_lack: int
+    ss_pure: float
+    df_pure: int
+    n_levels: int
+    weighted: bool
+    reason: str | None = None
+
+    @property
+    def f_value(self) -> float:
+        """F = (SS_lof/ν_lof) / (SS_pure/ν_pure); ``nan`` when not evaluable."""
+        if self.reason is not None:
+            return math.nan
+        return (max(self.ss_lack, 0.0) / self.df_lack) / (self.ss_pure / self.df_pure)
+
+    @property
+    def p_value(self) -> float:
+        """Upper-tail probability of F(ν_lof, ν_pure) at :attr:`f_value`."""
+        if self.reason is not None:
+            return math.nan
+        return float(stats.f.sf(self.f_value, self.df_lack, self.df_pure))
+
+    def critical(self, alpha: float = 0.05) -> float:
+        """F(1 − α; ν_lof, ν_pure)."""
+        if self.reason is not None:
+            return math.nan
+        return float(stats.f.isf(_alpha(alpha), self.df_lack, self.df_pure))
+
+    def significant(self, alpha: float = 0.05) -> bool:
+        """True when p < α: the curve does not describe the level means."""
+        return self.reason is None and self.p_value < _alpha(alpha)
+
+
+def lack_of_fit(fit: CurveFit) -> LackOfFit:
+    """Split the residual sum of squares into pure error and lack of fit.
+
+    Parameters
+    ----------
+    fit : CurveFit
+        Any fitted curve; levels are the distinct concentrations in ``fit.x``.
+
+    Returns
+    -------
+    LackOfFit
+        With a ``reason`` when no level has replicates (ν_pure = 0), when there
+        are no more levels than parameters (m ≤ p), or when the replicates agree
+        exactly (SS_pure = 0).
+
+    Notes
+    -----
+    With weighted level means ȳᵢ,w = Σⱼ wᵢⱼyᵢⱼ / Σⱼ wᵢⱼ,
+    SS_pure = Σᵢ Σⱼ wᵢⱼ(yᵢⱼ − ȳᵢ,w)² on N − m degrees of freedom and
+    SS_lof = Σ wr² − SS_pure on m − p; F = (SS_lof/ν_lof) / (SS_pure/ν_pure)
+    follows F(ν_lof, ν_pure) when the curve is the right shape.  The same
+    split holds for any curve whose fitted value depends on x only.  Weights
+    taken from the replicate variances themselves (``1/s2``) make the weighted
+    SS_pure equal N − m up to the weights' scale, so F then only indicates.
+
+    References
+    ----------
+    NIST/SEMATECH e-Handbook of Statistical Methods, §4.6.1 (load-cell
+    calibration case study, where the lack-of-fit test rejects the straight line).
+
+    Examples
+    --------
+    Level means 1.1, 2.6, 3.1 miss the line by −1/6, 1/3, −1/6 (SS_lof = 1/3 on
+    1 df); replicates differ by ±0.1 (SS_pure = 0.06 on 3 df); F = 50/3:
+
+    >>> from calib.fit.curve import fit_curve
+    >>> fit = fit_curve([1, 1, 2, 2, 3, 3], [1.0, 1.2, 2.5, 2.7, 3.0, 3.2])
+    >>> test = lack_of_fit(fit)
+    >>> test.df_lack, test.df_pure, round(test.f_value, 3)
+    (1, 3, 16.667)
+    >>> lack_of_fit(fit_curve([1, 2, 3], [1.0, 2.1, 2.9])).reason
+    'no concentration level has replicates, so there is no pure error to test against'
+    """
+    levels, index = np.unique(fit.x, return_inverse=True)
+    m = int(levels.size)
+    n = fit.n_points
+    p = n - fit.residual_df
+    w = fit.weights
+    sums = np.bincount(index, weights=w, minlength=m)
+    means = np.bincount(index, weights=w * fit.y, minlength=m) / sums
+    ss_pure = float(np.sum(w * (fit.y - means[index]) ** 2))
+    ss_res = _weighted_ss(fit)
+    weighted = bool(np.ptp(w) > 0)
+    reason = None
+    if n == m:
+        reason = "no concentration level has replicates, so there is no pure error to test against"
+    elif m <= p:
+        reason = (f"{m} concentration level{'s' if m != 1 else ''} for {p} fitted parameters; "
+                  "lack of fit needs more levels than parameters")
+    elif _negligible(ss_pure, fit):
+        reason = ("the replicates agree exactly at every level, so there is no pure error to "
+                  "test against")
+    return LackOfFit(ss_res - ss_pure, m - p, ss_pure, n - m, m, weighted, reason)
+
+
+def _alpha(alpha: float) -> float:
+    if isinstance(alpha, bool) or not (isinstance(alpha, (int, float)) and 0 < alpha < 1):
+        raise ValueError(f"alpha must be a number between 0 and 1; got {alpha!r}")
+    return float(alpha)
+
+
+# ---------------------------------------------------------------------------------------------
+# Mandel's fitting test and the quadratic term
+
+
+def _quadratic_refit(fit: CurveFit) -> WlsSolution | str:
+    """The quadratic with the fit's own weights, or why it cannot be fitted."""
+    if fit.n_points < 4:
+        return f"fitting a quadratic for comparison needs at least 4 standards; {fit.n_points} in the fit"
+    if np.unique(fit.x).size < 3:
+        return "fitting a quadratic for comparison needs at least 3 concentration levels"
+    try:
+        return solve_wls(design_matrix(fit.x, Model.QUADRATIC), fit.y, fit.weights)
+    except ValueError as exc:
+        return f"the quadratic for comparison could not be fitted: {exc}"
+
+
+@dataclass(frozen=True)
+class MandelTest:
+    """Mandel's fitting test: does a quadratic fit significantly better than the straight line?
+
+    Attributes
+    ----------
+    n_points : int
+        N.
+    s2_linear, s2_quadratic : float
+        Residual variances of the straight line (N − 2 df) and of the quadratic
+        (N − 3 df), both with the fit's weights.
+    weighted : bool
+        Whether both fits carry (unequal) weights.
+    reason : str or None
+        Why the test cannot be evaluated, None when it can.
+    """
+
+    n_points: int
+    s2_linear: float
+    s2_quadratic: float
+    weighted: bool
+    reason: str | None = None
+
+    @property
+    def ds2(self) -> float:
+        """DS² = (N − 2)·s²_linear − (N − 3)·s²_quadratic."""
+        return (self.n_points - 2) * self.s2_linear - (self.n_points - 3) * self.s2_quadratic
+
+    @property
+    def df(self) -> tuple[int, int]:
+        """Degrees of freedom (1, N − 3) of PG."""
+        return 1, self.n_points - 3
+
+    @property
+    def pg(self) -> float:
+        """Test value PG = DS² / s²_quadratic; ``nan`` when not evaluable."""
+        if self.reason is not None:
+            return math.nan
+        return max(self.ds2, 0.0) / self.s2_quadratic
+
+    @property
+    def p_value(self) -> float:
+        """Upper-tail probability of F(1, N − 3) at PG."""
+        if self.reason is not None:
+            return math.nan
+        return float(stats.f.sf(self.pg, *self.df))
+
+    def critical(self, confidence: float = 0.99) -> float:
+        """F(confidence; 1, N − 3); ISO 8466-1 uses 0.99."""
+        if self.reason is not None:
+            return math.nan
+        return float(stats.f.ppf(1 - _alpha(1 - confidence), *self.df))
+
+    def nonlinear(self, confidence: float = 0.99) -> bool:
+        """True when PG exceeds the critical value: the quadratic fits significantly better."""
+        return self.reason is None and self.pg > self.critical(confidence)
+
+
+def mandel_test(fit: CurveFit) -> MandelTest:
+    """Compare the straight line with the quadratic fitted to the same standards.
+
+    Parameters
+    ----------
+    fit : CurveFit
+        A straight-line fit (model ``linear``); the quadratic is fitted with its weights.
+
+    Returns
+    -------
+    MandelTest
+
+    Raises
+    ------
+    ValueError
+        If ``fit`` is not a straight line with intercept.
+
+    Notes
+    -----
+    DS² = (N − 2)·s²_linear − (N − 3)·s²_quadratic is the reduction of the
+    residual sum of squares by the quadratic term, and PG = DS²/s²_quadratic
+    follows F(1, N − 3) when the line is adequate.  PG equals the square of the
+    t value of the quadratic coefficient, so this test and
+    :func:`quadratic_term` agree; ISO 8466-1 judges it at 99 %.
+
+    References
+    ----------
+    ISO 8466-1:1990, Water quality — Calibration and evaluation of analytical
+    methods — Part 1: Linear calibration function; DIN 38402-51 (from memory).
+
+    Examples
+    --------
+    >>> from calib.fit.curve import fit_curve
+    >>> fit = fit_curve([1, 2, 3, 4, 5, 6], [1.1, 2.3, 2.9, 4.2, 4.9, 6.1])
+    >>> test = mandel_test(fit)
+    >>> test.df, bool(test.nonlinear())
+    ((1, 3), False)
+    """
+    if fit.model is not Model.LINEAR:
+        raise ValueError("Mandel's test compares a straight line with a quadratic; the curve is "
+                         f"fitted as {fit.model.value}")
+    n = fit.n_points
+    weighted = bool(np.ptp(fit.weights) > 0)
+    s2_linear = _weighted_ss(fit) / (n - 2)
+    refit = _quadratic_refit(fit)
+    if isinstance(refit, str):
+        return MandelTest(n, s2_linear, math.nan, weighted, refit)
+    if _negligible(refit.weighted_ss, fit):
+        return MandelTest(n, s2_linear, 0.0, weighted,
+                          "the quadratic passes through every standard, so there is no residual "
+                          "scatter to test against")
+    return MandelTest(n, s2_linear, refit.weighted_ss / (n - 3), weighted)
+
+
+@dataclass(frozen=True)
+class QuadraticTerm:
+    """t-test of the quadratic coefficient c against zero.
+
+    Attributes
+    ----------
+    estimate, std_error : float
+        c and SE(c).
+    df : int
+        Residual degrees of freedom of the quadratic (N − 3).
+    refitted : bool
+        True when the curve is a straight line and the quadratic was fitted to
+        test it; False when the curve itself is the quadratic.
+    weighted : bool
+        Whether the fit carries (unequal) weights.
+    reason : str or None
+        Why the test cannot be evaluated, None when it can.
+    """
+
+    estimate: float
+    std_error: float
+    df: int
+    refitted: bool
+    weighted: bool
+    reason: str | None = None
+
+    @property
+    def t_value(self) -> float:
+        """t = c / SE(c)."""
+        if self.reason is not None:
+            return math.nan
+        return self.estimate / self.std_error
+
+    @property
+    def p_value(self) -> float:
+        """Two-sided p-value of H₀: c = 0 on :attr:`df` degrees of freedom."""
+        if self.reason is not None:
+            return math.nan
+        return float(2 * stats.t.sf(abs(self.t_value), self.df))
+
+    def significant(self, alpha: float = 0.05) -> bool:
+        """True when p < α: the response curves."""
+        return self.reason is None and self.p_value < _alpha(alpha)
+
+
+def quadratic_term(fit: CurveFit) -> QuadraticTerm:
+    """Test whether a quadratic term is needed.
+
+    Parameters
+    ----------
+    fit : CurveFit
+        A ``quadratic`` fit (its own coefficient is tested) or a ``linear`` fit
+        (the quadratic is fitted with the same weights and its c tested).
+
+    Returns
+    -------
+    QuadraticTerm
+
+    Raises
+    ------
+    ValueError
+        For other models.
+
+    Notes
+    -----
+    t = c / SE(c) with SE(c) = σ̂·√C₃₃ of the quadratic, Student's t on N − 3
+    degrees of freedom.
+
+    Examples
+    --------
+    >>> from calib.fit.curve import fit_curve
+    >>> x = [1, 2, 3, 4, 5, 6]
+    >>> term = quadratic_term(fit_curve(x, [1.9, 4.3, 6.1, 7.4, 8.8, 9.6]))
+    >>> term.refitted, term.df, bool(term.significant(0.05)), term.estimate < 0
+    (True, 3, True, True)
+    """
+    weighted = bool(np.ptp(fit.weights) > 0)
+    if fit.model is Model.QUADRATIC:
+        se = fit.std_error("quadratic")
+        reason = None if se > 0 else "the quadratic coefficient has no standard error (no scatter)"
+        return QuadraticTerm(fit.coefficients["quadratic"], se, fit.residual_df, False, weighted,
+                             reason)
+    if fit.model is not Model.LINEAR:
+        raise ValueError("the quadratic-term test applies to linear and quadratic curves; the curve "
+                         f"is fitted as {fit.model.value}")
+    refit = _quadratic_refit(fit)
+    if isinstance(refit, str):
+        return QuadraticTerm(math.nan, math.nan, fit.n_points - 3, True, weighted, refit)
+    df = fit.n_points - 3
+    estimate = float(refit.beta[2])
+    if _negligible(refit.weighted_ss, fit):
+        return QuadraticTerm(estimate, 0.0, df, True, weighted,
+                             "the quadratic passes through every standard, so there is no residual "
+                             "scatter to test against")
+    se = math.sqrt(refit.weighted_ss / df * refit.unscaled_covariance[2, 2])
+    return QuadraticTerm(estimate, se, df, True, weighted)
+
+
+# ---------------------------------------------------------------------------------------------
+# Runs of residual signs
+
+
+@dataclass(frozen=True)
+class RunsTest:
+    """Wald–Wolfowitz runs test on a sequence of signs, against too few runs.
+
+    Attributes
+    ----------
+    n_positive, n_negative : int
+        Signs of each kind.
+    runs : int
+        Number of runs (maximal blocks of equal sign).
+    n_dropped : int
+        Zero residuals left out (they carry no sign).
+    reason : str or None
+        Why the test cannot be evaluated, None when it can.
+    """
+
+    n_positive: int
+    n_negative: int
+    runs: int
+    n_dropped: int = 0
+    reason: str | None = None
+
+    @property
+    def n(self) -> int:
+        """Signs counted."""
+        return self.n_positive + self.n_negative
+
+    @property
+    def method(self) -> str:
+        """``"exact"`` (combinatorial distribution) up to 200 signs, ``"normal"`` above."""
+        return "exact" if self.n <= EXACT_RUNS_LIMIT else "normal"
+
+    @property
+    def expected_runs(self) -> float:
+        """E(R) = 2·n₊·n₋/n + 1 for signs in random order."""
+        if self.n == 0:
+            return math.nan
+        return 2 * self.n_positive * self.n_negative / self.n + 1
+
+    @property
+    def p_value(self) -> float:
+        """P(R ≤ runs) for signs in random order: small when the signs cluster.
+
+        Exact from the combinatorial distribution up to 200 signs; beyond, the
+        normal approximation without continuity correction.
+        """
+        if self.reason is not None:
+            return math.nan
+        if self.method == "exact":
+            return _runs_cdf(self.runs, self.n_positive, self.n_negative)
+        n1, n2, n = self.n_positive, self.n_negative, self.n
+        var = 2 * n1 * n2 * (2 * n1 * n2 - n) / (n * n * (n - 1))
+        return float(stats.norm.cdf((self.runs - self.expected_runs) / math.sqrt(var)))
+
+    @property
+    def smallest_p(self) -> float:
+        """The p-value of the strongest pattern possible here (two runs).
+
+        When it is above α the test cannot find a pattern with this few signs.
+        """
+        if self.reason is not None:
+            return math.nan
+        return _runs_cdf(2, self.n_positive, self.n_negative)
+
+    def patterned(self, alpha: float = 0.05) -> bool:
+        """True when p < α: fewer runs than chance explains."""
+        return self.reason is None and self.p_value < _alpha(alpha)
+
+
+def _runs_cdf(r: int, n1: int, n2: int) -> float:
+    """P(R ≤ r) for n1 and n2 signs in random order, exact in integers."""
+    total = math.comb(n1 + n2, n1)
+    count = 0
+    for runs in range(2, r + 1):
+        k, odd = divmod(runs, 2)
+        if odd:
+            count += (math.comb(n1 - 1, k) * math.comb(n2 - 1, k - 1)
+                      + math.comb(n1 - 1, k - 1) * math.comb(n2 - 1, k))
+        else:
+            count += 2 * math.comb(n1 - 1, k - 1) * math.comb(n2 - 1, k - 1)
+    return min(count / total, 1.0)
+
+
+def runs_test(signs: Sequence[float] | np.ndarray) -> RunsTest:
+    """Count the runs in a sequence of signs and test them against random order.
+
+    Parameters
+    ----------
+    signs : sequence of numbers
+        Values whose sign is taken, in their order; zeros are dropped.
+
+    Returns
+    -------
+    RunsTest
+        With a ``reason`` when fewer than one sign of each kind remains.
+
+    Notes
+    -----
+    With n₁ signs of one kind and n₂ of the other in random order, the number
+    of runs R has P(R = 2k) = 2·C(n₁−1, k−1)·C(n₂−1, k−1) / C(n, n₁) and
+    P(R = 2k+1) = [C(n₁−1, k)·C(n₂−1, k−1) + C(n₁−1, k−1)·C(n₂−1, k)] / C(n, n₁).
+    Only too few runs (clustered signs) counts against a calibration curve.
+
+    References
+    ----------
+    Wald, A. and Wolfowitz, J. (1940), Ann. Math. Statist. 11, 147–162;
+    NIST/SEMATECH e-Handbook of Statistical Methods, §1.3.5.13 (runs test).
+
+    Examples
+    --------
+    Three positive then three negative signs: 2 runs, the least possible, with
+    probability 2/C(6, 3) = 0.1.
+
+    >>> test = runs_test([1, 1, 1, -1, -1, -1])
+    >>> test.runs, test.method, round(test.p_value, 12)
+    (2, 'exact', 0.1)
+    """
+    values = np.asarray(signs, dtype=float).ravel()
+    if not np.all(np.isfinite(values)):
+        raise ValueError("signs must be finite numbers")
+    kept = np.sign(values[values != 0])
+    dropped = int(values.size - kept.size)
+    n_pos = int(np.sum(kept > 0))
+    n_neg = int(kept.size - n_pos)
+    runs = int(1 + np.sum(kept[1:] != kept[:-1])) if kept.size else 0
+    reason = None
+    if n_pos == 0 or n_neg == 0:
+        reason = (f"all {kept.size} residuals have the same sign" if kept.size
+                  else "no residual has a sign")
+    return RunsTest(n_pos, n_neg, runs, dropped, reason)
+
+
+def residual_runs(fit: CurveFit) -> RunsTest:
+    """Runs test on the signs of the residuals ordered by concentration.
+
+    Points at the same concentration keep their order in the fit; residuals
+    that are zero to rounding are dropped (they carry no sign).
+
+    Examples
+    --------
+    >>> from calib.fit.curve import fit_curve
+    >>> fit = fit_curve([1, 2, 3, 4, 5, 6, 7, 8], [1.9, 4.3, 6.1, 7.4, 8.8, 9.6, 10.5, 11.0])
+    >>> residual_runs(fit).runs
+    3
+    """
+    order = np.argsort(fit.x, kind="stable")
+    r = fit.residuals[order]
+    if _negligible(_weighted_ss(fit), fit):
+        return RunsTest(0, 0, 0, int(r.size),
+                        "the curve passes through every standard, so the residuals have no sign")
+    scale = float(np.max(np.abs(fit.y)))
+    return runs_test(np.where(np.abs(r) <= 1e-12 * scale, 0.0, r))
+
+
+# ---------------------------------------------------------------------------------------------
+# Drift with injection order
+
+
+@dataclass(frozen=True)
+class DriftTest:
+    """Straight-line regression of residuals on injection order, and the t-test of its slope.
+
+    Attributes
+    ----------
+    slope, std_error : float
+        Change of the (weighted) residual per injection, and its SE.
+    df : int
+        n − 2.
+    weighted : bool
+        True when the residuals regressed are √wᵢ·rᵢ.
+    order_correlation : float
+        Correlation of injection order with concentration; near ±1 a drift
+        cannot be told apart from the curve's shape.
+    reason : str or None
+        Why the test cannot be evaluated, None when it can.
+    """
+
+    slope: float
+    std_error: float
+    df: int
+    weighted: bool
+    order_correlation: float
+    reason: str | None = None
+
+    @property
+    def t_value(self) -> float:
+        """t = slope / SE(slope)."""
+        if self.reason is not None:
+            return math.nan
+        return self.slope / self.std_error
+
+    @property
+    def p_value(self) -> float:
+        """Two-sided p-value of H₀: no trend, Student's t on :attr:`df` degrees of freedom."""
+        if self.reason is not None:
+            return math.nan
+        return float(2 * stats.t.sf(abs(self.t_value), self.df))
+
+    def drifting(self, alpha: float = 0.05) -> bool:
+        """True when p < α: the residuals trend with injection order."""
+        return self.reason is None and self.p_value < _alpha(alpha)
+
+
+def residual_drift(fit: CurveFit, order: Sequence[float] | np.ndarray) -> DriftTest:
+    """Test the residuals for a trend along the injection sequence.
+
+    Parameters
+    ----------
+    fit : CurveFit
+        The fitted curve.
+    order : sequence of numbers
+        Injection order of each point, in the order of ``fit.x``.
+
+    Returns
+    -------
+    DriftTest
+
+    Raises
+    ------
+    ValueError
+        If ``order`` does not have one finite number per point.
+
+    Notes
+    -----
+    eᵢ = √wᵢ·rᵢ is regressed on the injection order by ordinary least squares
+    and the slope's t = b/SE(b) taken on n − 2 degrees of freedom.  Residuals
+    of a fit are slightly correlated with each other, so the test is an
+    approximate screen for drift, not an exact one.
+
+    Examples
+    --------
+    >>> from calib.fit.curve import fit_curve
+    >>> fit = fit_curve([1, 2, 3, 1, 2, 3], [1.0, 2.0, 3.0, 1.1, 2.1, 3.1])
+    >>> test = residual_drift(fit, [1, 2, 3, 4, 5, 6])
+    >>> test.df, test.slope > 0
+    (4, True)
+    """
+    t = np.asarray(order, dtype=float).ravel()
+    if t.size != fit.n_points or not np.all(np.isfinite(t)):
+        raise ValueError(f"order must give one finite number per point ({fit.n_points}); "
+                         f"got {t.size} values")
+    weighted = bool(np.ptp(fit.weights) > 0)
+    e = np.sqrt(fit.weights) * fit.residuals
+    correlation = math.nan
+    if np.ptp(t) > 0 and np.ptp(fit.x) > 0:
+        correlation = float(np.corrcoef(t, fit.x)[0, 1])
+    if t.size < 3:
+        return DriftTest(math.nan, math.nan, t.size - 2, weighted, correlation,
+                         f"a trend needs at least 3 injections; {t.size} in the fit")
+    if np.ptp(t) == 0:
+        return DriftTest(math.nan, math.nan, t.size - 2, weighted, correlation,
+                         "every standard has the same injection order")
+    if _negligible(_weighted_ss(fit), fit):
+        return DriftTest(math.nan, math.nan, t.size - 2, weighted, correlation,
+                         "the curve passes through every standard, so there are no residuals "
+                         "to trend")
+    sol = solve_wls(np.column_stack([np.ones_like(t), t]), e)
+    df = t.size - 2
+    sigma2 = sol.weighted_ss / df
+    se = math.sqrt(sigma2 * sol.unscaled_covariance[1, 1])
+    if se == 0:
+        return DriftTest(float(sol.beta[1]), 0.0, df, weighted, correlation,
+                         "the residuals lie exactly on a line in injection order")
+    return DriftTest(float(sol.beta[1]), se, df, weighted, correlation)

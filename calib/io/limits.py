@@ -1,0 +1,339 @@
+"""Limits that keep an untrusted spreadsheet from exhausting the machine.
+
+An ``.xlsx``, ``.xlsm`` or ``.ods`` file is a zip archive of XML.  A small
+file can expand to gigabytes (a "zip bomb") or declare millions of rows.
+Before a workbook is parsed, :func:`inspect_archive` decompresses every
+member as a stream, counting bytes against :data:`MAX_UNZIPPED_BYTES`
+(the sizes an archive declares can lie) and rows against :data:`MAX_ROWS`;
+the same pass notes whether any sheet hides rows, merges cells, holds error
+values or carries macros, so that the slower cell-detail reader runs only
+for workbooks that need it.  Sheets are then held to :data:`MAX_ROWS` and
+:data:`MAX_CELLS` once parsed, and text files to :data:`MAX_ROWS` lines.
+
+XML inside workbooks is parsed by calamine (which expands no entities) or by
+openpyxl and :mod:`defusedxml` (installed with calib), never by a parser
+that resolves external entities.  Formulas are never evaluated and macros
+never run: calib reads the values the spreadsheet program saved.
+"""
+
+from __future__ import annotations
+
+import io
+import re
+import struct
+import zipfile
+from dataclasses import dataclass
+
+from calib.errors import InputError
+from calib.io.files import RawFile
+
+__all__ = [
+    "MAX_CELLS",
+    "MAX_ROWS",
+    "MAX_UNZIPPED_BYTES",
+    "ArchiveFacts",
+    "check_sheet_size",
+    "check_text_rows",
+    "check_xls",
+    "inspect_archive",
+]
+
+MAX_UNZIPPED_BYTES = 500_000_000
+"""Largest decompressed size of a workbook archive (500 MB)."""
+
+MAX_ROWS = 2_000_000
+"""Most rows read from one sheet or text file (2 million)."""
+
+MAX_CELLS = 40_000_000
+"""Most cells (rows × columns of the used range) read from one sheet."""
+
+_CHUNK = 1 << 20
+_OVERLAP = 64
+_FEATURES = {
+    "hidden": (b'hidden="1"', b'hidden="true"', b'table:visibility="collapse"',
+               b'table:visibility="filter"'),
+    "errors": (b't="e"', b'calcext:value-type="error"'),
+    "merged": (b"<mergeCell ", b"number-rows-spanned=", b"number-columns-spanned="),
+}
+_ROW_TAGS = (b"<row ", b"<row>", b":row ", b"<table:table-row")
+# The row number of an .xlsx row and the columns past Z of its cells: calamine builds a
+# dense grid up to the farthest cell, so one stray cell at XFD1048576 would ask for
+# 17 billion cells.  (calamine's own .ods reader stops at 100 million cells.)
+# Spreadsheet programs write r first; literal prefixes keep these scans fast.
+_ROW_NUMBERS = (re.compile(rb'<row r="(\d+)"'), re.compile(rb':row r="(\d+)"'))
+_WIDE_CELLS = (re.compile(rb'<c r="([A-Z]{2,3})\d'), re.compile(rb':c r="([A-Z]{2,3})\d'))
+
+
+@dataclass(frozen=True)
+class ArchiveFacts:
+    """What one pass over a workbook archive found.
+
+    Attributes
+    ----------
+    unzipped_bytes : int
+        Total decompressed size.
+    rows : int
+        Row elements in the largest sheet.
+    hidden, errors, merged : bool
+        Whether any sheet hides rows or columns, holds error values, or merges cells.
+    macros : bool
+        Whether the archive carries a macro project (never run).
+    """
+
+    unzipped_bytes: int
+    rows: int
+    hidden: bool = False
+    errors: bool = False
+    merged: bool = False
+    macros: bool = False
+
+
+def _is_sheet(name: str) -> bool:
+    return name.startswith("xl/worksheets/") or name == "content.xml"
+
+
+def inspect_archive(raw: RawFile, *, what: str) -> ArchiveFacts | None:
+    """Check a workbook archive against the limits; None for files that are not zip archives.
+
+    Raises
+    ------
+    InputError
+        When the archive expands past :data:`MAX_UNZIPPED_BYTES`, a sheet has
+        more than :data:`MAX_ROWS` rows, or the archive is damaged.
+    """
+    if not raw.data.startswith(b"PK"):
+        return None
+    try:
+        archive = zipfile.ZipFile(io.BytesIO(raw.data))
+    except (zipfile.BadZipFile, NotImplementedError, ValueError, OSError, EOFError) as exc:
+        raise InputError(f"cannot be read as a workbook (damaged zip archive: {exc}); "
+                         f"expected {what} saved by a spreadsheet program",
+                         file=raw.given) from None
+    total = 0
+    most_rows = 0
+    found = dict.fromkeys(_FEATURES, False)
+    macros = False
+    with archive:
+        for info in archive.infolist():
+            macros = macros or "vbaproject" in info.filename.casefold()
+            sheet = _is_sheet(info.filename)
+            rows = last_row = 0
+            widest = 1
+            tail = b""
+            try:
+                with archive.open(info) as member:
+                    while chunk := member.read(_CHUNK):
+                        total += len(chunk)
+                        if total > MAX_UNZIPPED_BYTES:
+                            raise _too_big(raw, what)
+                        if not sheet:
+                            continue
+                        rows += sum(chunk.count(tag) for tag in _ROW_TAGS)
+                        window = tail + chunk
+                        for feature, needles in _FEATURES.items():
+                            if not found[feature] and any(n in window for n in needles):
+                                found[feature] = True
+                        for pattern in _ROW_NUMBERS:
+                            numbers = pattern.findall(window)
+                            if numbers:
+                                last_row = max(last_row, max(map(int, numbers)))
+                        for pattern in _WIDE_CELLS:
+                            for letters in set(pattern.findall(window)):
+                                widest = max(widest, _column_number(letters))
+                        tail = chunk[-_OVERLAP:]
+            except InputError:
+                raise
+            except Exception as exc:  # noqa: BLE001 - zlib.error, BadZipFile, unsupported methods
+                raise InputError(
+                    f"cannot be read as a workbook (damaged member {info.filename}: {exc}); "
+                    f"expected {what} saved by a spreadsheet program",
+                    file=raw.given,
+                ) from None
+            rows = max(rows, last_row)
+            if rows > MAX_ROWS:
+                raise InputError(
+                    f"a sheet of the workbook has {rows:,} rows; calib reads at most "
+                    f"{MAX_ROWS:,} rows per sheet (split the export)",
+                    file=raw.given,
+                )
+            if rows * widest > MAX_CELLS:
+                raise _too_many_cells(raw, rows, widest)
+            most_rows = max(most_rows, rows)
+    return ArchiveFacts(total, most_rows, macros=macros, **found)
+
+
+def _column_number(letters: bytes) -> int:
+    number = 0
+    for letter in letters:
+        number = number * 26 + letter - 64
+    return number
+
+
+def _too_many_cells(raw: RawFile, rows: int, columns: int) -> InputError:
+    return InputError(
+        f"a sheet of the workbook reaches row {rows:,} and column {columns:,}; calib reads at "
+        f"most {MAX_CELLS:,} cells per sheet (delete stray cells far from the table, or split "
+        f"the export)",
+        file=raw.given,
+    )
+
+
+def _too_big(raw: RawFile, what: str) -> InputError:
+    return InputError(
+        f"the workbook expands to more than {MAX_UNZIPPED_BYTES:,} bytes when unzipped; "
+        f"calib refuses larger archives (a damaged or malicious file?); expected {what} "
+        f"of ordinary size",
+        file=raw.given,
+    )
+
+
+def check_sheet_size(rows: int, columns: int, *, file: str, sheet: str) -> None:
+    """Refuse a parsed sheet with more than :data:`MAX_ROWS` rows or :data:`MAX_CELLS` cells.
+
+    Examples
+    --------
+    >>> check_sheet_size(2_500_000, 3, file="big.xlsx", sheet="Run")
+    Traceback (most recent call last):
+    ...
+    calib.errors.InputError: big.xlsx, sheet Run: the sheet has 2,500,000 rows; calib reads at \
+most 2,000,000 rows per sheet (split the export)
+    """
+    if rows > MAX_ROWS:
+        raise InputError(
+            f"the sheet has {rows:,} rows; calib reads at most {MAX_ROWS:,} rows per sheet "
+            f"(split the export)",
+            file=file, sheet=sheet,
+        )
+    if rows * columns > MAX_CELLS:
+        raise InputError(
+            f"the sheet's used range is {rows:,} rows by {columns:,} columns; calib reads at "
+            f"most {MAX_CELLS:,} cells per sheet (delete stray cells far from the table, or "
+            f"split the export)",
+            file=file, sheet=sheet,
+        )
+
+
+def check_text_rows(lines: int, *, file: str) -> None:
+    """Refuse a text file with more than :data:`MAX_ROWS` lines."""
+    if lines > MAX_ROWS:
+        raise InputError(
+            f"the file has {lines:,} lines; calib reads at most {MAX_ROWS:,} rows (split the "
+            f"export)",
+            file=file,
+        )
+
+
+# --- Excel 97-2003 (.xls): a compound file holding a BIFF8 record stream ---------------------
+
+_CELL_RECORDS = frozenset({0x0006, 0x00BD, 0x00BE, 0x00D6, 0x00FD, 0x0201, 0x0203, 0x0204,
+                           0x0205, 0x027E})
+_END, _FREE = 0xFFFFFFFE, 0xFFFFFFFF
+
+
+def _chain(fat: list[int], start: int, limit: int) -> list[int]:
+    sectors, seen = [], set()
+    while start < len(fat) and start not in seen and len(sectors) < limit:
+        seen.add(start)
+        sectors.append(start)
+        start = fat[start]
+    return sectors
+
+
+def _xls_stream(data: bytes) -> bytes | None:
+    """The Workbook stream of a compound file, or None when the container cannot be followed."""
+    if len(data) < 512 or not data.startswith(bytes.fromhex("D0CF11E0A1B11AE1")):
+        return None
+    size = 1 << struct.unpack_from("<H", data, 30)[0]
+    mini_size = 1 << struct.unpack_from("<H", data, 32)[0]
+    n_fat, first_dir = struct.unpack_from("<II", data, 44)
+    cutoff, first_mini, n_mini, first_difat, n_difat = struct.unpack_from("<IIIII", data, 56)
+    if size not in (512, 4096):
+        return None
+    n_sectors = (len(data) - 512) // size + 1
+
+    def sector(number: int) -> bytes:
+        start = (number + 1) * size
+        return data[start : start + size]
+
+    fat_sectors = [n for n in struct.unpack_from("<109I", data, 76) if n != _FREE]
+    difat = first_difat
+    for _ in range(min(n_difat, n_sectors)):
+        if difat >= n_sectors:
+            break
+        entries = struct.unpack(f"<{size // 4}I", sector(difat))
+        fat_sectors += [n for n in entries[:-1] if n != _FREE]
+        difat = entries[-1]
+    fat: list[int] = []
+    for number in fat_sectors[: max(n_fat, 1)]:
+        chunk = sector(number)
+        fat += struct.unpack(f"<{len(chunk) // 4}I", chunk)
+
+    def read(start: int, length: int) -> bytes:
+        return b"".join(sector(n) for n in _chain(fat, start, n_sectors))[:length]
+
+    directory = read(first_dir, n_sectors * size)
+    entries = [directory[i : i + 128] for i in range(0, len(directory) - 127, 128)]
+    if not entries:
+        return None
+    root_start, root_size = struct.unpack_from("<IQ", entries[0], 116)
+    for entry in entries:
+        length = struct.unpack_from("<H", entry, 64)[0]
+        name = entry[: max(0, length - 2)].decode("utf-16-le", "replace")
+        if entry[66] != 2 or name not in ("Workbook", "Book"):
+            continue
+        start, stream_size = struct.unpack_from("<IQ", entry, 116)
+        stream_size &= 0xFFFFFFFF if size == 512 else stream_size
+        if stream_size >= cutoff:
+            return read(start, stream_size)
+        mini_stream = read(root_start, root_size)
+        mini_fat_bytes = read(first_mini, n_mini * size)
+        mini_fat = list(struct.unpack(f"<{len(mini_fat_bytes) // 4}I", mini_fat_bytes))
+        chunks = [mini_stream[n * mini_size : (n + 1) * mini_size]
+                  for n in _chain(mini_fat, start, len(mini_fat))]
+        return b"".join(chunks)[:stream_size]
+    return None
+
+
+def _damaged_xls(raw: RawFile, what: str) -> InputError:
+    return InputError(
+        f"{what} (the file is damaged); expected an .xls workbook saved by a spreadsheet program",
+        file=raw.given,
+    )
+
+
+def check_xls(raw: RawFile) -> None:
+    """Refuse an ``.xls`` whose cell records reach past BIFF8's 65,536 rows and 256 columns.
+
+    A damaged or crafted record naming column 20,000 would make the reader build
+    a grid of billions of cells; a well-formed file never names such a cell.
+    Files whose container cannot be followed are left to the workbook reader.
+    """
+    try:
+        stream = _xls_stream(raw.data)
+    except (struct.error, ValueError, IndexError):
+        stream = None  # a container this walk cannot follow: the reader will say so
+    if stream is None:
+        return
+    position, length = 0, len(stream)
+    rows = columns = 0
+    while position + 4 <= length:
+        kind, size = struct.unpack_from("<HH", stream, position)
+        body = position + 4
+        if kind == 0x0200 and size == 14 and body + size <= length:
+            # DIMENSIONS: the reader sizes its grid from it, so a reversed or oversized range
+            # (first row after last row) would make it ask for terabytes.
+            first_row, last_row, first_col, last_col = struct.unpack_from("<IIHH", stream, body)
+            if not (first_row <= last_row <= 65536 and first_col <= last_col <= 256):
+                raise _damaged_xls(raw, f"a sheet declares rows {first_row:,} to {last_row:,} "
+                                        f"and columns {first_col:,} to {last_col:,}")
+        if kind in _CELL_RECORDS and size >= 4 and body + size <= length:
+            row, column = struct.unpack_from("<HH", stream, body)
+            if kind in (0x00BD, 0x00BE) and size >= 6:  # MULRK, MULBLANK: last column at the end
+                column = max(column, struct.unpack_from("<H", stream, body + size - 2)[0])
+            rows, columns = max(rows, row + 1), max(columns, column + 1)
+        position = body + size
+    if columns > 256:
+        raise _damaged_xls(raw, f"a cell record names column {columns:,}, past the 256 columns "
+                                f"an .xls sheet can hold")
+    if rows * columns > MAX_CELLS:
+        raise _too_many_cells(raw, rows, columns)

@@ -1,0 +1,427 @@
+"""Quantifying a batch: each sample's concentration, interval, flags and reported value.
+
+For each sample (its replicate injections grouped by analyte, sample id, type
+and dilution factor) the mean of the m usable readings is read back from the
+analyte's curve (:func:`calib.quantify.inverse.inverse_predict`), then
+multiplied by the dilution factor.  The calibrated range is the span of the
+standards in the fit; the LLOQ is the lowest non-zero standard in the fit and
+the ULOQ the highest (ICH M10, from memory).  calib never extrapolates:
+
+=================  ===========================================================  ==============
+flag               when (measured concentration x₀, before dilution)            reported
+=================  ===========================================================  ==============
+``above-uloq``     x₀ above the top standard: dilute and re-run                 ``> ULOQ``
+``outside-range``  x₀ outside the calibrated range (with above-uloq or below)   —
+``below-lloq``     x₀ below the LLOQ                                            ``< LLOQ``
+``below-lod``      x₀ below the curve's LOD                                     ``< LOD``
+``no-reading``     no usable reading (all set aside)                            ``no result``
+``curve-rejected`` the curve was rejected, and quantifying was not forced       ``not reported``
+``forced``         quantified against a rejected curve on request (``force``)   as above
+=================  ===========================================================  ==============
+
+Outside the calibrated range no concentration, standard error or interval is
+given at all; a QC still gets its read-back value (``found``) and deviation,
+because judging a QC is not reporting a result.  Comparisons with the range
+ends allow for rounding (one part in 10⁹ of the range), so a response equal to
+the top standard's fitted response is inside.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from enum import StrEnum
+
+import numpy as np
+
+from calib.errors import InputError
+from calib.options import SampleType
+from calib.quantify.curve import CalibrationCurve
+from calib.quantify.inverse import InversePrediction, inverse_predict
+from calib.quantify.qc import QcRule, QcSummary, judge_qcs
+from calib.quantify.samples import Reading
+
+__all__ = ["Batch", "Flag", "ReportingConvention", "SampleResult", "group_readings",
+           "judge_qc_samples",
+           "quantify", "quantify_sample"]
+
+
+class Flag(StrEnum):
+    """Why a sample's result needs attention."""
+
+    BELOW_LOD = "below-lod"
+    BELOW_LLOQ = "below-lloq"
+    ABOVE_ULOQ = "above-uloq"
+    OUTSIDE_RANGE = "outside-range"
+    NO_READING = "no-reading"
+    CURVE_REJECTED = "curve-rejected"
+    FORCED = "forced"
+
+
+@dataclass(frozen=True)
+class ReportingConvention:
+    """How the lab writes results that are not numbers, and how many digits it reports.
+
+    Examples
+    --------
+    >>> ReportingConvention().number(12.3456), ReportingConvention(digits=4).number(0.0123456)
+    ('12.3', '0.01235')
+    """
+
+    below_lod: str = "< LOD"
+    below_lloq: str = "< LLOQ"
+    above_uloq: str = "> ULOQ"
+    no_reading: str = "no result"
+    refused: str = "not reported"
+    digits: int = 3
+
+    def number(self, value: float) -> str:
+        """``value`` rounded to :attr:`digits` significant digits, in fixed point."""
+        if value == 0 or not math.isfinite(value):
+            return "0" if value == 0 else "—"
+        exponent = math.floor(math.log10(abs(float(f"{value:.{self.digits}g}"))))
+        decimals = max(self.digits - 1 - exponent, 0)
+        return f"{round(value, decimals):.{decimals}f}"
+
+
+@dataclass(frozen=True)
+class SampleResult:
+    """One sample's result.
+
+    Attributes
+    ----------
+    sample_id : str
+        Sample name (the source cell of its first reading when the file names none).
+    analyte : str
+        Analyte.
+    sample_type : SampleType
+        Unknown or QC.
+    readings : tuple of Reading
+        Every injection of the sample, set-aside ones included.
+    n_replicates : int
+        m, the readings averaged.
+    mean_response : float or None
+        ȳ₀.
+    dilution_factor : float
+        The factor applied.
+    prediction : InversePrediction or None
+        The read-back on the measured scale (before dilution); None without a
+        usable reading or curve.
+    concentration, std_error, ci_low, ci_high : float or None
+        D·x₀, D·s(x₀) and D·(x₀ ∓ t·s(x₀)); None outside the calibrated range.
+    flags : tuple of str
+        :class:`Flag` values.
+    reported : str
+        The value as reported: a number, or the convention's words.
+    note : str
+        What to do or why, in plain words ("" when nothing).
+    nominal : float or None
+        A QC's nominal concentration.
+    found : float or None
+        A QC's read-back concentration D·x₀, also just outside the range (for
+        its deviation only).
+    deviation_pct : float or None
+        A QC's 100·(found − nominal)/nominal.
+    """
+
+    sample_id: str
+    analyte: str
+    sample_type: SampleType
+    readings: tuple[Reading, ...]
+    n_replicates: int
+    mean_response: float | None
+    dilution_factor: float
+    prediction: InversePrediction | None
+    concentration: float | None
+    std_error: float | None
+    ci_low: float | None
+    ci_high: float | None
+    flags: tuple[str, ...]
+    reported: str
+    note: str = ""
+    nominal: float | None = None
+    found: float | None = None
+    deviation_pct: float | None = None
+
+
+def _finite(value: float) -> float | None:
+    return float(value) if math.isfinite(value) else None
+
+
+def _side(curve: CalibrationCurve, x0: float, response: float) -> str:
+    """``above``, ``below`` or ``inside`` the calibrated range."""
+    eps = 1e-9 * max(curve.x_max - curve.x_min, abs(curve.x_max), 1e-300)
+    if math.isfinite(x0):
+        if x0 > curve.x_max + eps:
+            return "above"
+        if x0 < curve.x_min - eps:
+            return "below"
+        return "inside"
+    # The curve never reaches the response (a quadratic beyond its turning point):
+    # the side is the one the response lies beyond.
+    low, high = (float(v) for v in curve.predict(np.array([curve.x_min, curve.x_max])))
+    rising = high >= low
+    return "above" if (response > high) == rising else "below"
+
+
+def quantify_sample(
+    curve: CalibrationCurve | None,
+    readings: Sequence[Reading],
+    *,
+    confidence: float | None = None,
+    convention: ReportingConvention | None = None,
+    refused: str | None = None,
+    forced: bool = False,
+) -> SampleResult:
+    """Quantify one sample from its readings (all of one analyte, type and dilution).
+
+    Parameters
+    ----------
+    curve : CalibrationCurve or None
+        The analyte's curve; None when there is none (then ``refused`` says why).
+    readings : sequence of Reading
+        The sample's injections.
+    confidence : float, optional
+        Interval level (the curve's own by default).
+    convention : ReportingConvention, optional
+        How non-numeric results are written.
+    refused : str, optional
+        Why the curve may not be used; the sample is then not quantified.
+    forced : bool
+        The curve was rejected and quantifying was forced: the result carries
+        the ``forced`` flag.
+
+    Returns
+    -------
+    SampleResult
+
+    Examples
+    --------
+    A reading above the top standard is never reported as a number:
+
+    >>> from calib.fit import fit_curve
+    >>> from calib.quantify.samples import Reading
+    >>> from calib.run import Point
+    >>> curve = CalibrationCurve.from_fit(
+    ...     fit_curve([1, 2, 4, 6, 8, 10], [2.0, 4.1, 7.9, 12.2, 15.8, 20.1]), analyte="A")
+    >>> high = Reading(Point("A", float("nan"), 35.0, "S!C2", SampleType.UNKNOWN, sample_id="S1"))
+    >>> result = quantify_sample(curve, [high])
+    >>> result.reported, result.concentration, result.flags, result.note
+    ('> ULOQ', None, ('above-uloq', 'outside-range'), 'dilute and re-run')
+    """
+    convention = convention or ReportingConvention()
+    point = readings[0].point
+    kind = point.sample_type
+    dilution = readings[0].dilution_factor
+    usable = [r for r in readings if r.point.included and math.isfinite(r.point.response)]
+    mean = float(np.mean([r.point.response for r in usable])) if usable else None
+    nominal = point.concentration if kind is SampleType.QC else None
+    pred: InversePrediction | None = None
+    shown: tuple[float | None, ...] = (None, None, None, None)
+    found = deviation = None
+    flags: list[str] = [Flag.FORCED.value] if forced else []
+    note = ""
+    if curve is None or refused is not None:
+        flags = [Flag.CURVE_REJECTED.value]
+        reported, note = convention.refused, refused or "no curve"
+    elif mean is None:
+        flags.append(Flag.NO_READING.value)
+        reported = convention.no_reading
+        note = "; ".join(dict.fromkeys(r.point.exclusion_reason or "no reading"
+                                       for r in readings))
+    else:
+        pred = inverse_predict(curve, mean, m=len(usable), confidence=confidence)
+        x0 = pred.concentration
+        side = _side(curve, x0, mean)
+        if kind is SampleType.QC:
+            found = _finite(dilution * x0)
+            if found is not None and nominal:
+                deviation = 100 * (found - nominal) / nominal
+        if side == "above":
+            flags += [Flag.ABOVE_ULOQ.value, Flag.OUTSIDE_RANGE.value]
+            reported, note = convention.above_uloq, "dilute and re-run"
+        else:
+            below_lod = curve.lod is not None and (not math.isfinite(x0) or x0 < curve.lod)
+            below_lloq = side == "below" or x0 < curve.lloq * (1 - 1e-9)
+            if side == "below":
+                flags.append(Flag.OUTSIDE_RANGE.value)
+                note = "below the calibrated range"
+            else:
+                shown = tuple(_finite(dilution * v) for v in
+                              (x0, pred.std_error, pred.ci_low, pred.ci_high))
+            flags += [f.value for f, on in ((Flag.BELOW_LLOQ, below_lloq),
+                                            (Flag.BELOW_LOD, below_lod)) if on]
+            reported = (convention.below_lod if below_lod else convention.below_lloq
+                        if below_lloq else convention.number(dilution * x0))
+    return SampleResult(
+        sample_id=point.sample_id or point.source_cell, analyte=point.analyte, sample_type=kind,
+        readings=tuple(readings), n_replicates=len(usable), mean_response=mean,
+        dilution_factor=dilution, prediction=pred, concentration=shown[0], std_error=shown[1],
+        ci_low=shown[2], ci_high=shown[3], flags=tuple(flags), reported=reported, note=note,
+        nominal=nominal, found=found, deviation_pct=deviation,
+    )
+
+
+def group_readings(readings: Sequence[Reading]) -> list[list[Reading]]:
+    """Readings grouped into samples: same analyte, type, sample id and dilution factor.
+
+    Replicates at another dilution (a sample diluted and re-run) make a sample
+    of their own; without a sample id each injection is one sample.
+
+    Examples
+    --------
+    >>> from calib.run import Point
+    >>> def r(cell, name, d=1.0):
+    ...     return Reading(Point("A", float("nan"), 1.0, cell, SampleType.UNKNOWN, sample_id=name), d)
+    >>> [len(g) for g in group_readings([r("C2", "S1"), r("C3", "S1"), r("C4", "S1", 10.0),
+    ...                                   r("C5", None)])]
+    [2, 1, 1]
+    """
+    groups: dict[tuple[object, ...], list[Reading]] = {}
+    for r in readings:
+        p = r.point
+        # Without a sample id every injection is a sample of its own.
+        key = (p.analyte, p.sample_type.value, p.sample_id if p.sample_id else p.source_cell,
+               r.dilution_factor)
+        groups.setdefault(key, []).append(r)
+    return list(groups.values())
+
+
+def judge_qc_samples(results: Sequence[SampleResult], *, curve: CalibrationCurve | None,
+                     rule: QcRule | None = None, analyte: str = "") -> QcSummary:
+    """The QC rule applied to the QC results of one analyte."""
+    qcs = [(r.sample_id, float(r.nominal or 0.0), r.found) for r in results
+           if r.sample_type is SampleType.QC]
+    return judge_qcs(qcs, lloq=curve.lloq if curve is not None else None, rule=rule,
+                     analyte=analyte, unit=curve.unit if curve is not None else None)
+
+
+@dataclass(frozen=True)
+class Batch:
+    """A quantified batch.
+
+    Attributes
+    ----------
+    curves : dict of analyte to CalibrationCurve
+        The curves the samples were read against.
+    samples : tuple of SampleResult
+        Every sample, in order of first appearance.
+    qc : tuple of QcSummary
+        One per analyte of the samples whose curve was used, in order of first appearance
+        (``not-evaluated`` when it has no QCs).
+    confidence : float or None
+        The interval level asked for (None: each curve's own).
+    forced : tuple of str
+        Analytes quantified against a rejected curve because ``force`` was given.
+    refused : dict of analyte to str
+        Analytes whose samples were not quantified, with the reason.
+    verdict : str
+        ``accepted``, ``needs-review`` or ``rejected``; see :func:`quantify`.
+    reasons : tuple of str
+        Why the verdict is not ``accepted``, one line per cause.
+    """
+
+    curves: dict[str, CalibrationCurve]
+    samples: tuple[SampleResult, ...]
+    qc: tuple[QcSummary, ...]
+    confidence: float | None
+    forced: tuple[str, ...]
+    refused: dict[str, str]
+    verdict: str
+    reasons: tuple[str, ...] = field(default=())
+
+
+_RANK = {"accepted": 0, "needs-review": 1, "rejected": 2}
+
+
+def quantify(
+    curves: Mapping[str, CalibrationCurve],
+    readings: Sequence[Reading],
+    *,
+    confidence: float | None = None,
+    force: bool = False,
+    qc_rule: QcRule | None = None,
+    unfitted: Mapping[str, str] | None = None,
+    convention: ReportingConvention | None = None,
+) -> Batch:
+    """Quantify every sample against its analyte's curve and judge the QCs.
+
+    Parameters
+    ----------
+    curves : mapping of analyte to CalibrationCurve
+        The curves, each with its verdict.
+    readings : sequence of Reading
+        The unknowns' and QCs' injections.
+    confidence : float, optional
+        Interval level; each curve's own when None.
+    force : bool
+        Quantify against rejected curves too (every such result is flagged
+        ``forced``, and the batch says so).
+    qc_rule : QcRule, optional
+        The QC acceptance rule (the profile's); defaults when None.
+    unfitted : mapping of analyte to str, optional
+        Analytes without a fitted curve, with the reason.
+    convention : ReportingConvention, optional
+        How results that are not numbers are written.
+
+    Returns
+    -------
+    Batch
+        Verdict ``rejected`` when a curve the samples need was rejected (quantified
+        or not) or the QC rule fails at severity ``reject``; ``needs-review`` when
+        a curve needs review or the QC rule fails at severity ``review``;
+        ``accepted`` otherwise.
+
+    Raises
+    ------
+    InputError
+        When a reading's analyte has no curve at all.
+    """
+    unfitted = dict(unfitted or {})
+    for r in readings:
+        if r.point.analyte not in curves and r.point.analyte not in unfitted:
+            known = ", ".join(list(curves) + list(unfitted)) or "none"
+            raise InputError(f"sample {r.point.sample_id or r.point.source_cell} "
+                             f"({r.point.source_cell}) is of analyte {r.point.analyte!r}, which "
+                             f"has no curve (curves: {known})")
+    refused: dict[str, str] = {a: f"no fitted curve: {why}" for a, why in unfitted.items()}
+    forced: list[str] = []
+    for analyte, curve in curves.items():
+        if curve.verdict == "rejected":
+            if force:
+                forced.append(analyte)
+            else:
+                refused[analyte] = ("the curve was rejected; its samples are not quantified "
+                                    "(force quantifies them anyway, flagged)")
+    results = tuple(
+        quantify_sample(curves.get(g[0].point.analyte), g, confidence=confidence,
+                        convention=convention, refused=refused.get(g[0].point.analyte),
+                        forced=g[0].point.analyte in forced)
+        for g in group_readings(readings)
+    )
+    needed = list(dict.fromkeys(r.analyte for r in results))
+    summaries = []
+    verdict, reasons = "accepted", []
+    for analyte in needed:
+        curve = curves.get(analyte)
+        if curve is None or analyte in refused:
+            verdict = "rejected"
+            reasons.append(f"{analyte}: {refused.get(analyte, 'no curve')}")
+            continue
+        if curve.verdict != "accepted":
+            verdict = max(verdict, curve.verdict, key=_RANK.__getitem__)
+            state = "was rejected (quantified on request)" if analyte in forced else "needs review"
+            reasons.append(f"{analyte}: the curve {state}")
+        summary = judge_qc_samples([r for r in results if r.analyte == analyte], curve=curve,
+                                   rule=qc_rule, analyte=analyte)
+        summaries.append(summary)
+        if summary.verdict == "fail" and summary.rule.severity in ("reject", "review"):
+            verdict = max(verdict, "rejected" if summary.rule.severity == "reject"
+                          else "needs-review", key=_RANK.__getitem__)
+            reasons.append(f"{analyte}: the QC rule failed")
+        elif summary.verdict == "not-evaluated" and summary.rule.severity == "reject":
+            verdict = max(verdict, "needs-review", key=_RANK.__getitem__)
+            reasons.append(f"{analyte}: the QC rule could not be evaluated (no QC samples)")
+    return Batch(dict(curves), results, tuple(summaries), confidence, tuple(forced),
+                 {a: refused[a] for a in needed if a in refused}, verdict, tuple(reasons))

@@ -1,0 +1,424 @@
+"""Verification of record PDFs and JSON: intact records pass, every alteration is named."""
+
+from __future__ import annotations
+
+import io
+import json
+import re
+import sqlite3
+
+import pytest
+from pypdf import PdfReader, PdfWriter
+
+from calib.errors import InputError
+from calib.record import Record
+from calib.record.signing import sign_record
+from calib.record.verify import read_record_file, verify_file
+from calib.report import load_template
+from tests.record.integrity_helpers import (
+    APPROVED_AT,
+    APPROVER,
+    REVIEWED_AT,
+    REVIEWER,
+    issued,
+    make_keys,
+    render,
+)
+
+
+@pytest.fixture
+def signed(tmp_path):
+    """Versions 1–3 of the nitrate record, the last two signed with keys, as PDF files."""
+    keys, ring = make_keys(tmp_path / "keys", "t-overgaard", "a-mbeki-hale")
+    v1 = issued()
+    v2 = sign_record(v1, role="reviewed", name=REVIEWER, signed_at=REVIEWED_AT,
+                     key=keys["t-overgaard"])
+    v3 = sign_record(v2, role="approved", name=APPROVER, signed_at=APPROVED_AT,
+                     key=keys["a-mbeki-hale"])
+    paths = []
+    for n, version in enumerate((v1, v2, v3), start=1):
+        path = tmp_path / f"nitrate.v{n}.pdf"
+        path.write_bytes(render(version))
+        paths.append(path)
+    return {"versions": (v1, v2, v3), "paths": paths, "ring": ring, "keys": keys,
+            "tmp": tmp_path}
+
+
+def messages(report, area=None):
+    return [p.message for p in report.problems if area is None or p.area == area]
+
+
+def test_record_read_back_from_its_pdf_renders_to_the_same_bytes(signed):
+    for version, path in zip(signed["versions"], signed["paths"]):
+        file = read_record_file(path)
+        again = Record.from_json(file.attachment)
+        assert again.canonical == file.attachment == version.canonical
+        assert render(again) == path.read_bytes()
+
+
+def test_every_version_verifies_with_the_keyring(signed):
+    for n, path in enumerate(signed["paths"], start=1):
+        report = verify_file(path, keyring=signed["ring"])
+        assert report.ok, report.problems
+        assert report.record.digest == signed["versions"][n - 1].digest
+        assert "the PDF is byte for byte the rendering of its attached record data" in report.notes
+    report = verify_file(signed["paths"][2], keyring=signed["ring"])
+    assert [s.status for s in report.signatures] == ["unkeyed", "valid", "valid"]
+    data = report.to_json()
+    assert data["ok"] is True and data["schema"] == "calib.verify/1"
+    assert data["record_id"] == signed["versions"][0].record_id
+    assert [s["key_name"] for s in data["signatures"]] == [None, "t-overgaard", "a-mbeki-hale"]
+
+
+def test_key_signatures_without_a_keyring_are_not_confirmed(signed):
+    report = verify_file(signed["paths"][1])
+    key_id = signed["keys"]["t-overgaard"].key_id
+    assert not report.ok
+    assert messages(report) == [(f"signature 2 (reviewed by {REVIEWER}) was made with key "
+                                f"{key_id}, but no keyring was given to check it")]
+    assert report.problems[0].area == "unchecked"
+
+
+def test_signature_by_a_key_not_in_the_keyring(signed):
+    _, stranger = make_keys(signed["tmp"] / "other", "someone-else")
+    report = verify_file(signed["paths"][2], keyring=stranger)
+    key_ids = [signed["keys"][k].key_id for k in ("t-overgaard", "a-mbeki-hale")]
+    assert messages(report, "unchecked") == [
+        (f"signature 2 (reviewed by {REVIEWER}) was made with key {key_ids[0]}, which is not in "
+        f"the keyring {stranger.folder}"),
+        (f"signature 3 (approved by {APPROVER}) was made with key {key_ids[1]}, which is not in "
+        f"the keyring {stranger.folder}"),
+    ]
+
+
+def test_wrong_key_named_in_a_re_rendered_record(signed, tmp_path):
+    # Someone swaps the reviewer's key id for the approver's and re-renders a consistent PDF.
+    body = json.loads(signed["versions"][1].canonical)
+    wrong = signed["keys"]["a-mbeki-hale"].key_id
+    body["signatures"][1]["key_id"] = wrong
+    path = tmp_path / "swapped.pdf"
+    path.write_bytes(render(Record(body)))
+    report = verify_file(path, keyring=signed["ring"])
+    assert messages(report) == [
+        (f"signature 2 (reviewed by {REVIEWER}) does not verify with key {wrong} (a-mbeki-hale): "
+        "the signed data was changed, or the signature is not from this key")]
+    assert report.problems[0].area == "signatures"
+
+
+def test_edited_number_in_the_embedded_data(signed, tmp_path):
+    # The pages stay as issued; the attached JSON gets one response changed.
+    v2 = signed["versions"][1]
+    body = json.loads(v2.canonical)
+    body["check"]["curves"][0]["points"][3]["response"] = 0.9
+    edited = Record(body)
+    path = tmp_path / "edited.pdf"
+    path.write_bytes(render_pages_with_attachment(v2, edited.canonical))
+    report = verify_file(path, keyring=signed["ring"])
+    found = messages(report)
+    assert found[0] == (f"the PDF states version digest {v2.digest[:16]}…, but its attached "
+                        f"record data has digest {edited.digest[:16]}…: the attached data was "
+                        "changed")
+    assert found[1] == (f"the PDF states record id {v2.record_id}, but its attached record data "
+                        f"is {edited.record_id}")
+    assert found[2].startswith(f"signature 2 (reviewed by {REVIEWER}) was made on another "
+                               "version of the record")
+    # The footer of every page states the digest, so every page differs.
+    pages = len(PdfReader(path).pages)
+    assert found[3] == ("the PDF does not match a fresh rendering of its attached record data: "
+                        "the content of pages " + ", ".join(map(str, range(1, pages + 1)))
+                        + " differs")
+    assert found[4].startswith(f"signature 2 (reviewed by {REVIEWER}) does not verify with key")
+    assert [p.area for p in report.problems] == ["data", "data", "data", "pages", "signatures"]
+
+
+def test_embedded_data_edited_by_hand_is_not_canonical(signed, tmp_path):
+    v1 = signed["versions"][0]
+    text = v1.canonical.replace(b'"created_at":"2026-12-01T09:30:00Z"',
+                                b'"created_at": "2026-12-01T09:30:00Z"')
+    path = tmp_path / "spaced.pdf"
+    path.write_bytes(render_pages_with_attachment(v1, text))
+    report = verify_file(path)
+    assert messages(report, "data")[0] == ("the attached record data is not in calib's "
+                                           "canonical form: it was edited or written by other "
+                                           "software")
+    assert not report.ok
+
+
+def test_embedded_data_that_is_not_a_record(signed, tmp_path):
+    v1 = signed["versions"][0]
+    for data, message in [
+        (b'{"schema": "calib.check/1"}',
+         ("the attached record data is not a calib.record/1 document (not a calib.record/1 "
+         "document)")),
+        (b"{not json", ("the attached record data is not a calib.record/1 document (Expecting "
+                       "property name enclosed in double quotes: line 1 column 2 (char 1))")),
+        (b'{"a": "\xff"}', "the attached record data is not UTF-8 text"),
+    ]:
+        path = tmp_path / "bad.pdf"
+        path.write_bytes(render_pages_with_attachment(v1, data))
+        report = verify_file(path)
+        assert messages(report) == [message] and report.record is None
+
+
+def test_edited_byte_in_the_page_content(signed, tmp_path):
+    # Decode page 1, move the lab name by a hundredth of a point, write the PDF back.
+    original = signed["paths"][0].read_bytes()
+    writer = PdfWriter(clone_from=PdfReader(io.BytesIO(original)))
+    stream = writer.pages[0]["/Contents"].get_object()
+    content = stream.get_data()
+    assert b"770.1969 cm" in content
+    stream.set_data(content.replace(b"770.1969 cm", b"770.1968 cm", 1))
+    out = io.BytesIO()
+    writer.write(out)
+    path = tmp_path / "moved.pdf"
+    path.write_bytes(out.getvalue())
+    report = verify_file(path)
+    assert messages(report) == [("the PDF does not match a fresh rendering of its attached record "
+                                "data: the content of page 1 differs")]
+
+
+def test_one_flipped_byte_anywhere_in_a_page_stream(signed, tmp_path):
+    original = signed["paths"][0].read_bytes()
+    ref = PdfReader(io.BytesIO(original)).pages[1].raw_get("/Contents")
+    start = re.search(rb"\n%d 0 obj" % ref.idnum, original).end()
+    at = original.index(b"stream\n", start) + len(b"stream\n") + 300
+    damaged = bytearray(original)
+    damaged[at] ^= 0x04
+    path = tmp_path / "flipped.pdf"
+    path.write_bytes(bytes(damaged))
+    report = verify_file(path)
+    assert not report.ok
+    assert {p.area for p in report.problems} == {"pages"}
+    assert messages(report)[-1] in (
+        ("the PDF does not match a fresh rendering of its attached record data: the content of "
+        "page 2 differs"),
+        ("the PDF does not match a fresh rendering of its attached record data: the page content "
+        "is the same, but the file around it differs"))
+
+
+def test_removed_signature_in_a_re_rendered_record(signed, tmp_path):
+    # Dropping the review from the approved version and rendering it again gives a PDF that
+    # matches its data; the approval's link and the sign-off rules give it away.
+    body = json.loads(signed["versions"][2].canonical)
+    del body["signatures"][1]
+    path = tmp_path / "no-review.pdf"
+    path.write_bytes(render(Record(body)))
+    report = verify_file(path, keyring=signed["ring"])
+    found = messages(report)
+    assert found[0].startswith(f"signature 2 (approved by {APPROVER}) was made on another "
+                               "version of the record: it links to version digest "
+                               f"{signed['versions'][1].digest[:16]}…")
+    assert found[1] == (f"signature 2 (approved by {APPROVER}) breaks the sign-off rules: the "
+                        "record must be reviewed before it is approved")
+    # The approver's key signature itself still verifies: it signed the version with the
+    # review, which is exactly what the broken link says.
+    assert len(found) == 2
+    assert [s.status for s in report.signatures] == ["unkeyed", "valid"]
+
+
+def test_removed_signature_in_the_attached_data_only(signed, tmp_path):
+    v3 = signed["versions"][2]
+    body = json.loads(v3.canonical)
+    body["signatures"].pop()
+    path = tmp_path / "cut.pdf"
+    path.write_bytes(render_pages_with_attachment(v3, Record(body).canonical))
+    report = verify_file(path, keyring=signed["ring"])
+    assert messages(report)[0].startswith(f"the PDF states version digest {v3.digest[:16]}…")
+    assert "pages" in {p.area for p in report.problems}
+
+
+def test_json_record_verifies_digests_and_signatures(signed, tmp_path):
+    v3 = signed["versions"][2]
+    path = tmp_path / "nitrate.v3.json"
+    path.write_bytes(v3.canonical)
+    report = verify_file(path, keyring=signed["ring"])
+    assert report.ok and report.kind == "json"
+    assert "a JSON record has no pages to compare; verify its PDF to check those" in report.notes
+    body = json.loads(v3.canonical)
+    body["check"]["curves"][0]["coefficients"]["slope"]["estimate"] *= 1.01
+    path.write_bytes(Record(body).canonical)
+    report = verify_file(path, keyring=signed["ring"])
+    assert {p.area for p in report.problems} == {"data", "signatures"}
+    path.write_bytes(json.dumps(body, indent=1).encode())
+    assert messages(verify_file(path, keyring=signed["ring"]))[0] == (
+        "the file is not in calib's canonical form: it was edited or written by other software")
+
+
+def test_unreadable_files(tmp_path):
+    missing = tmp_path / "nowhere.pdf"
+    with pytest.raises(InputError) as info:
+        verify_file(missing)
+    assert str(info.value) == f"{missing}: file not found"
+    gif = tmp_path / "logo.gif"
+    gif.write_bytes(b"GIF89a....")
+    with pytest.raises(InputError) as info:
+        verify_file(gif)
+    assert str(info.value) == f"{gif}: neither a calib record PDF nor a record JSON file"
+    from reportlab.pdfgen.canvas import Canvas
+
+    plain = tmp_path / "plain.pdf"
+    canvas = Canvas(str(plain), invariant=1)
+    canvas.drawString(72, 720, "No record here.")
+    canvas.save()
+    with pytest.raises(InputError) as info:
+        verify_file(plain)
+    assert str(info.value) == (f"{plain}: not a calib record PDF: it has no attached "
+                               "calib-record.json")
+    broken = tmp_path / "broken.pdf"
+    broken.write_bytes(b"%PDF-1.4\n" + b"\x00" * 40)
+    with pytest.raises(InputError) as info:
+        verify_file(broken)
+    assert str(info.value).startswith(f"{broken}: not a readable PDF (")
+    bad_json = tmp_path / "bad.json"
+    bad_json.write_bytes(b'{"schema": "calib.check/1"}')
+    assert messages(verify_file(bad_json)) == [
+        "the file is not a calib.record/1 document (not a calib.record/1 document)"]
+
+
+def test_another_template_is_named_as_a_possible_cause(signed, tmp_path):
+    lab = tmp_path / "lab.toml"
+    lab.write_text('[lab]\nname = "Kestrel Bioanalytical"\n[page]\nsize = "Letter"\n',
+                   encoding="utf-8")
+    template = load_template(lab)
+    v1 = signed["versions"][0]
+    path = tmp_path / "kestrel.pdf"
+    path.write_bytes(render(v1, template))
+    assert verify_file(path, template=template).ok
+    report = verify_file(path)
+    assert [p.area for p in report.problems] == ["pages"]
+    default = load_template()
+    assert (f"the PDF names report template {template.fingerprint[:16]}, but it was rendered here "
+            f"with template {default.fingerprint[:16]} (default.toml): if the record was issued "
+            "with a lab template, verify with that template") in report.notes
+
+
+def test_archive_entry_and_chain(signed):
+    archive_module = pytest.importorskip("calib.archive")
+    db = signed["tmp"] / "records.sqlite"
+    v1, v2, _ = signed["versions"]
+    p1, p2, p3 = (p.read_bytes() for p in signed["paths"])
+    with archive_module.Archive(db) as archive:
+        archive.append(v1, p1, kind="issued")
+        archive.append(v2, p2, kind="signed")
+        report = verify_file(signed["paths"][1], keyring=signed["ring"], archive=archive)
+        assert report.ok, report.problems
+        assert f"this version is entry seq 2 of the archive {db}, byte for byte" in report.notes
+        assert f"the hash chain of the archive {db} verifies (2 entries)" in report.notes
+        older = verify_file(signed["paths"][0], archive=archive)
+        assert older.ok
+        assert (f"the archive {db} holds a later version of {v1.record_id}: entry seq 2 "
+                "(prepared, reviewed)") in older.notes
+        report = verify_file(signed["paths"][2], keyring=signed["ring"], archive=archive)
+        assert messages(report) == [(f"this version (digest {signed['versions'][2].digest[:16]}…) "
+                                    f"is not in the archive {db}")]
+    assert p3  # the approved version was never filed
+    # Tamper with the archive behind its back: drop the guard and rewrite an entry's verdict.
+    conn = sqlite3.connect(db)
+    for (name,) in conn.execute("SELECT name FROM sqlite_master WHERE type = 'trigger'"):
+        conn.execute(f"DROP TRIGGER {name}")
+    conn.execute("UPDATE entries SET verdict = 'rejected' WHERE seq = 1")
+    conn.commit()
+    conn.close()
+    with archive_module.Archive(db, create=False) as archive:
+        report = verify_file(signed["paths"][1], keyring=signed["ring"], archive=archive)
+    archive_problems = messages(report, "archive")
+    assert archive_problems and all(m.startswith(f"the archive {db}: ") for m in archive_problems)
+    assert any("seq 1" in m for m in archive_problems)
+
+
+def render_pages_with_attachment(record: Record, attachment: bytes) -> bytes:
+    """The record's own pages with other bytes attached as its JSON (a swapped attachment)."""
+    from calib.report import write_pdf
+
+    return write_pdf(record.body, digest=record.digest, record_id=record.record_id,
+                     attachment=attachment)
+
+
+def test_keywords_removed_from_the_pdf(signed, tmp_path):
+    writer = PdfWriter(clone_from=PdfReader(signed["paths"][0]))
+    writer.add_metadata({"/Keywords": "nothing to see"})
+    path = tmp_path / "no-keywords.pdf"
+    writer.write(path)
+    assert messages(verify_file(path)) == [
+        ("the PDF does not state a version digest in its document keywords, as every calib "
+        "record does"),
+        ("the PDF does not match a fresh rendering of its attached record data: the page "
+        "content is the same, but the file around it differs"),
+    ]
+
+
+def test_a_second_attachment_under_the_record_name(signed, tmp_path):
+    writer = PdfWriter(clone_from=PdfReader(signed["paths"][0]))
+    writer.add_attachment("calib-record.json", b"{}")
+    path = tmp_path / "two.pdf"
+    writer.write(path)
+    assert messages(verify_file(path), "data") == [
+        "the PDF holds 2 attached files named as the record; a calib record has one"]
+
+
+def test_attachment_with_a_value_json_cannot_carry(signed, tmp_path):
+    path = tmp_path / "nan.pdf"
+    path.write_bytes(render_pages_with_attachment(
+        signed["versions"][0], b'{"schema":"calib.record/1","x":NaN}'))
+    (message,) = messages(verify_file(path))
+    # The json module's own words follow (they vary a little between Python versions).
+    assert message.startswith("the attached record data holds a value JSON cannot carry (Out "
+                              "of range float values are not JSON compliant")
+
+
+def test_undecodable_parts_are_findings_not_unreadable_files(signed, monkeypatch):
+    from calib.report import embed
+
+    real = embed.read_back
+
+    def damaged(pdf):
+        contents = real(pdf)
+        return embed.PdfContents({}, contents.keywords, contents.pages,
+                                 ("the attached files cannot be read (error: bad stream)",))
+
+    monkeypatch.setattr(embed, "read_back", damaged)
+    report = verify_file(signed["paths"][0])
+    assert messages(report) == [
+        "the attached record data cannot be read: the PDF is damaged",
+        "the PDF is damaged: the attached files cannot be read (error: bad stream)",
+    ]
+    assert report.record is None
+
+
+class FakeEntry:
+    def __init__(self, seq, record, pdf, roles=()):
+        self.seq, self.json, self.pdf, self.roles = seq, record.canonical, pdf, roles
+        self.version_digest = record.digest
+
+
+class FakeArchive:
+    """Stands in for calib.archive.Archive: one entry, chain as given."""
+
+    path = "fake.sqlite"
+
+    def __init__(self, entry, problems=()):
+        self.entry, self.problems = entry, problems
+
+    def find_digest(self, digest):
+        return self.entry if self.entry.version_digest == digest else None
+
+    def latest(self, record_id):
+        return self.entry
+
+    def verify_chain(self):
+        from types import SimpleNamespace
+
+        return SimpleNamespace(ok=not self.problems, problems=self.problems, entries=1)
+
+
+def test_archive_copy_that_differs(signed):
+    v1 = signed["versions"][0]
+    entry = FakeEntry(4, v1, b"%PDF-other")
+    entry.json = b"{}"
+    report = verify_file(signed["paths"][0], archive=FakeArchive(entry, ("entry seq 4: bad",)))
+    assert messages(report, "archive") == [
+        ("entry seq 4 of the archive fake.sqlite holds other record data under this version "
+        "digest"),
+        "the PDF differs from the copy in the archive fake.sqlite (entry seq 4)",
+        "the archive fake.sqlite: entry seq 4: bad",
+    ]

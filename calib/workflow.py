@@ -5,13 +5,21 @@ The command line and any other front end call these and only render the result.
 
 from __future__ import annotations
 
+import os
+from collections.abc import Sequence
 from datetime import datetime
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from calib.checks.evaluate import Progress, RunAssessment, evaluate_run
-from calib.checks.profile import load_profile
-from calib.io import read_run
+from calib.checks.profile import Profile, load_profile
+from calib.io import ImportMap, read_run
 from calib.record.record import Record, build_record
+
+if TYPE_CHECKING:
+    from calib.checks.exclusions import Exclusion
+    from calib.checks.history import SlopeHistory
+    from calib.checks.narrowing import WorkingRange
 
 __all__ = ["check_file", "issue_record", "record_pdf"]
 
@@ -20,10 +28,14 @@ def check_file(
     path: str | Path,
     *,
     sheet: str | int | None = None,
-    profile: str | Path = "default",
+    profile: str | Path | Profile = "default",
     model: str | None = None,
     weighting: str | None = None,
     confidence: float | None = None,
+    map: ImportMap | str | Path | None = None,
+    exclusions: Sequence[Exclusion] = (),
+    ranges: Sequence[WorkingRange] = (),
+    archive: str | Path | None = None,
     progress: Progress | None = None,
 ) -> RunAssessment:
     """Read a run file and judge every curve in it.
@@ -31,13 +43,20 @@ def check_file(
     Parameters
     ----------
     path : str or Path
-        The instrument export (``.xlsx`` or ``.csv``).
+        The instrument export (any format :func:`calib.io.read_run` reads).
     sheet : str or int, optional
         Sheet name or 0-based index; default: the first sheet with a standards table.
-    profile : str or Path
-        Shipped profile name or profile file.
+    profile : str, Path or Profile
+        Shipped profile name, profile file, or a loaded profile.
     model, weighting, confidence : optional
         Override the profile's defaults.
+    map : ImportMap, str or Path, optional
+        Import map for unusual exports.
+    exclusions, ranges : sequences, optional
+        The analyst's exclusions (each with its reason) and applied working ranges.
+    archive : str or Path, optional
+        Archive whose recent accepted slopes feed the ``slope-reference`` rule when the
+        profile asks for them (``recent_curves``); only read, never written here.
     progress : callable, optional
         ``progress(done, total)`` after each curve.
 
@@ -48,12 +67,28 @@ def check_file(
     ProfileError
         If the profile is malformed.
     """
-    prof = load_profile(profile)
-    run = read_run(path, sheet=sheet)
+    prof = profile if isinstance(profile, Profile) else load_profile(profile)
+    run = read_run(path, sheet=sheet, map=map)
+    history = _slope_history(archive, prof, run.analytes, model=model, weighting=weighting)
     return evaluate_run(
         run, profile=prof, model=model, weighting=weighting, confidence=confidence,
-        progress=progress,
+        exclusions=exclusions, ranges=ranges, slope_history=history, progress=progress,
     )
+
+
+def _slope_history(archive: str | Path | None, profile: Profile, analytes: Sequence[str], *,
+                   model: str | None, weighting: str | None) -> dict[str, SlopeHistory] | None:
+    """Earlier accepted slopes from the archive, when the profile compares with them."""
+    if archive is None or not os.path.isfile(archive) or not any(
+            r.id == "slope-reference" and r.params.get("recent_curves") for r in profile.rules):
+        return None
+    from calib.archive import Archive
+    from calib.checks.history import slope_history
+
+    model, weighting = model or profile.model, weighting or profile.weighting
+    with Archive(archive, create=False) as store:
+        return {a: slope_history(store.curve_history(a), model=model, weighting=weighting,
+                                 source=os.path.basename(archive)) for a in analytes}
 
 
 def issue_record(

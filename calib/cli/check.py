@@ -14,9 +14,7 @@ from calib.cli.common import add_debug, add_fit_options, add_import_options, she
 if TYPE_CHECKING:
     from calib.checks.evaluate import RunAssessment
     from calib.checks.exclusions import Exclusion
-    from calib.checks.history import SlopeHistory
     from calib.checks.narrowing import WorkingRange
-    from calib.checks.profile import Profile
     from calib.io import ImportMap
     from calib.record import Record
 
@@ -130,32 +128,12 @@ def run(args: argparse.Namespace) -> int:
 
 def _check(args: argparse.Namespace, imap: ImportMap | None) -> RunAssessment:
     """Read and judge the run with the analyst's exclusions, ranges and the archive's slopes."""
-    from calib.checks.evaluate import evaluate_run
-    from calib.checks.profile import load_profile
-    from calib.io import read_run
+    from calib.workflow import check_file
 
-    profile = load_profile(args.profile)
-    run = read_run(args.run, sheet=sheet_arg(args.sheet), map=imap)
-    return evaluate_run(run, profile=profile, model=args.model, weighting=args.weighting,
-                        confidence=args.confidence, exclusions=args.exclude, ranges=args.ranges,
-                        slope_history=_slope_history(args, profile, run.analytes))
-
-
-def _slope_history(args: argparse.Namespace, profile: Profile,
-                   analytes: tuple[str, ...]) -> dict[str, SlopeHistory] | None:
-    """Earlier accepted slopes from the archive, when the profile compares with them."""
-    from calib.checks.history import slope_history
-
-    path = archive_path(args)
-    if path is None or not os.path.isfile(path) or not any(
-            r.id == "slope-reference" and r.params.get("recent_curves") for r in profile.rules):
-        return None
-    from calib.archive import Archive
-
-    model, weighting = args.model or profile.model, args.weighting or profile.weighting
-    with Archive(path, create=False) as archive:
-        return {a: slope_history(archive.curve_history(a), model=model, weighting=weighting,
-                                 source=os.path.basename(path)) for a in analytes}
+    return check_file(args.run, sheet=sheet_arg(args.sheet), profile=args.profile,
+                      model=args.model, weighting=args.weighting, confidence=args.confidence,
+                      map=imap, exclusions=args.exclude, ranges=args.ranges,
+                      archive=archive_path(args))
 
 
 def _write_exports(args: argparse.Namespace, document: dict) -> list[str]:

@@ -520,6 +520,27 @@ class _Builder:
         table = self.tables.grid(rows, [0.11, 0.2, 0.2, 0.17, 0.32], extra=extra)
         return [KeepTogether([self.heading(self.t.titles.signoff), table])]
 
+    def range_notes(self, curve: Mapping[str, Any]) -> list[Flowable]:
+        """The analyst's applied working range (with the full-range result) and calib's proposal."""
+        working = _dict(curve.get("working_range"))
+        words = self.t.verdicts.word
+        notes = []
+        applied = _dict(working.get("applied"))
+        if applied:
+            original = _dict(applied.get("original"))
+            notes.append(
+                f"Working range applied by the analyst: {format_compact(applied.get('low'))} to "
+                f"{format_compact(applied.get('high'))} ({_str(applied.get('reason'))}). On the full "
+                f"range the curve was: {words(original.get('verdict'))}.")
+        proposed = _dict(working.get("proposed"))
+        if proposed:
+            notes.append(
+                f"calib proposes the range {format_compact(proposed.get('lloq'))} to "
+                f"{format_compact(proposed.get('uloq'))} ({_str(proposed.get('reason'))}); on it "
+                f"the curve would be: {words(proposed.get('verdict'))}. Not applied: the analyst "
+                "applies a range only with --range, and the record then shows it.")
+        return [self.para(n) for n in notes]
+
     # -- whole sections ----------------------------------------------------------------------
     def analyte(self, curve: Mapping[str, Any]) -> list[Flowable]:
         t = self.t
@@ -529,6 +550,7 @@ class _Builder:
         out: list[Flowable] = [SectionMark(name), *self.lab_block(),
                                self.para(f"{t.titles.document}: {name}", self.s.title),
                                self.boxed(sentence[:cut], sentence[cut:])]
+        out += self.range_notes(curve)
         if t.show.run:
             out += [self.heading(t.titles.run), self.tables.pairs(self.run_items(curve))]
         if t.show.fit:

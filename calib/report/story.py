@@ -295,7 +295,8 @@ class _Builder:
         metadata = _dict(run.get("metadata"))
         for key in sorted(metadata, key=str):
             value = metadata[key]
-            items.append((str(key), _str(value), len(str(value)) > 38))
+            label = str(key).replace("_", " ")
+            items.append((label[:1].upper() + label[1:], _str(value), len(str(value)) > 38))
         for note in _list(run.get("warnings")):
             items.append(("Import note", _str(note), True))
         return items
@@ -568,11 +569,14 @@ class _Builder:
         order += sorted(set(verdicts) - set(order))
         tally = ", ".join(f"{t.verdicts.word(k).lower()}: {verdicts.count(k)}" for k in order
                           if k in verdicts)
-        rows: list[list[Any]] = [["Analyte", "Verdict", "Slope", "R²", "Failing checks"]]
+        rows: list[list[Any]] = [["Analyte", "Verdict", "Slope", "R²", "Checks behind the verdict"]]
         for c in self.curves:
             slope = _dict(_dict(c.get("coefficients")).get("slope")).get("estimate")
+            # What moved the verdict: failures and warnings of rules that are not info-only.
             failing = [str(_dict(x).get("title") or _dict(x).get("id"))
-                       for x in _list(c.get("checks")) if _dict(x).get("verdict") == "fail"]
+                       for x in _list(c.get("checks"))
+                       if _dict(x).get("verdict") in ("fail", "warn")
+                       and _dict(x).get("severity") != "info"]
             rows.append([_str(c.get("analyte")), t.verdicts.word(c.get("verdict")),
                          format_number(slope, 5), _fixed(c.get("r_squared")),
                          "; ".join(failing) or MISSING])

@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -24,11 +25,16 @@ from calib.checks.profile import Profile, load_profile
 from calib.checks.result import CheckResult, CurveVerdict, combine_verdicts, verdict_reasons, worst
 from calib.checks.rules import RULES
 from calib.errors import NotAcceptedError
+from calib.fit.batch import fit_batch
 from calib.fit.curve import CurveFit, fit_curve
 from calib.fit.design import COEFFICIENTS, model_refuses, weighting_refuses
 from calib.fit.limits import DetectionLimit, detection_limits
 from calib.options import Model, SampleType, Weighting, parse_option
 from calib.run import Point, Run
+from calib.tabular import Tabular
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 __all__ = ["CurveAssessment", "RunAssessment", "assess_curve", "evaluate_run"]
 
@@ -37,7 +43,7 @@ Progress = Callable[[int, int], None]
 
 
 @dataclass(frozen=True)
-class CurveAssessment:
+class CurveAssessment(Tabular):
     """One analyte's curve: the fit, every standard back-calculated, the checks, the verdict."""
 
     analyte: str
@@ -57,6 +63,12 @@ class CurveAssessment:
     #: A narrowed range calib proposes (never applied by itself), when the profile allows.
     proposal: RangeProposal | None = None
     original: CurveAssessment | None = None
+
+    def to_frame(self) -> pd.DataFrame:
+        """The standards, back-calculated, as a pandas DataFrame (shown as a table in Jupyter)."""
+        from calib.tabular import curve_frame
+
+        return curve_frame(self)
 
     @property
     def reasons(self) -> tuple[str, ...]:
@@ -87,7 +99,7 @@ class CurveAssessment:
 
 
 @dataclass(frozen=True)
-class RunAssessment:
+class RunAssessment(Tabular):
     """Every curve of a run, judged under one profile."""
 
     run: Run
@@ -98,6 +110,12 @@ class RunAssessment:
     curves: tuple[CurveAssessment, ...]
     #: Exclusions the analyst asked for when checking (beside those the run file makes).
     exclusions: tuple[AppliedExclusion, ...] = ()
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per curve, as a pandas DataFrame (shown as a table in Jupyter)."""
+        from calib.tabular import run_frame
+
+        return run_frame(self)
 
     @property
     def verdict(self) -> CurveVerdict:
@@ -156,12 +174,15 @@ def evaluate_run(
     analytes = run.analytes
     wanted = _ranges_by_analyte(ranges, analytes)
     history = slope_history or {}
+    by_analyte = _points_by_analyte(run.points)
+    standards = {a: tuple(by_analyte[a]["standards"]) for a in analytes}
+    fits = _batched_fits(standards, model=model, weighting=weighting, confidence=confidence,
+                         profile=profile)
     curves = []
     for done, analyte in enumerate(analytes, start=1):
-        blanks = tuple(p for p in run.points if p.analyte == analyte
-                       and p.sample_type in (SampleType.BLANK, SampleType.ZERO))
-        qcs = tuple(p for p in run.points
-                    if p.analyte == analyte and p.sample_type is SampleType.QC)
+        blanks = tuple(by_analyte[analyte]["blanks"])
+        qcs = tuple(by_analyte[analyte]["qcs"])
+        first = fits.get(analyte)
 
         def assess(standards: Sequence[Point], analyte: str = analyte,
                    blanks: tuple[Point, ...] = blanks,
@@ -170,7 +191,16 @@ def evaluate_run(
                                 confidence=confidence, profile=profile, blanks=blanks,
                                 slope_history=history.get(analyte), qcs=qcs)
 
-        curves.append(_with_ranges(assess, run.standards(analyte), profile, wanted.get(analyte)))
+        def assess_first(points: Sequence[Point], analyte: str = analyte,
+                         blanks: tuple[Point, ...] = blanks, qcs: tuple[Point, ...] = qcs,
+                         first: tuple[CurveFit | None, str] | None = first) -> CurveAssessment:
+            # The full-range curve takes its fit from the batch; narrowed trials refit alone.
+            return _assess(analyte, points, model=model, weighting=weighting,
+                           confidence=confidence, profile=profile, blanks=blanks,
+                           slope_history=history.get(analyte), qcs=qcs, fitted=first)
+
+        curves.append(_with_ranges(assess, standards[analyte], profile, wanted.get(analyte),
+                                   first=assess_first))
         if progress is not None:
             progress(done, len(analytes))
     return RunAssessment(run, profile, model, weighting, confidence, tuple(curves), applied)
@@ -195,9 +225,14 @@ def _ranges_by_analyte(ranges: Sequence[WorkingRange],
 
 def _with_ranges(assess: Callable[[Sequence[Point]], CurveAssessment],
                  standards: Sequence[Point], profile: Profile,
-                 working: WorkingRange | None) -> CurveAssessment:
-    """The curve, with calib's proposed range and the analyst's range when one is set."""
-    curve = assess(standards)
+                 working: WorkingRange | None, *,
+                 first: Callable[[Sequence[Point]], CurveAssessment] | None = None
+                 ) -> CurveAssessment:
+    """The curve, with calib's proposed range and the analyst's range when one is set.
+
+    ``first`` assesses the full-range curve when given (the batched fit); ``assess`` the rest.
+    """
+    curve = (first or assess)(standards)
     proposal = None
     if profile.narrowing.propose:
         proposal = propose_range(curve, standards, assess,
@@ -240,10 +275,30 @@ def assess_curve(
     accepted slopes for the ``slope-reference`` rule's archive form.  ``qcs`` are
     the analyte's QC samples, for the ``qc`` rule.
     """
+    return _assess(analyte, standards, model=model, weighting=weighting, confidence=confidence,
+                   profile=profile, blanks=blanks, slope_history=slope_history, qcs=qcs)
+
+
+def _assess(
+    analyte: str,
+    standards: Sequence[Point],
+    *,
+    model: Model,
+    weighting: Weighting,
+    confidence: float,
+    profile: Profile,
+    blanks: Sequence[Point] = (),
+    slope_history: SlopeHistory | None = None,
+    qcs: Sequence[Point] = (),
+    fitted: tuple[CurveFit | None, str] | None = None,
+) -> CurveAssessment:
+    """:func:`assess_curve`, taking the fit (or the reason there is none) when already made."""
     levels = {c: i for i, c in enumerate(sorted({p.concentration for p in standards}), start=1)}
     reasons = _exclusion_reasons(standards, model, weighting, profile)
-    used = [p for p, r in zip(standards, reasons) if r is None]
-    fit, unfitted = _try_fit(used, model=model, weighting=weighting, confidence=confidence)
+    if fitted is None:
+        used = [p for p, r in zip(standards, reasons) if r is None]
+        fitted = _try_fit(used, model=model, weighting=weighting, confidence=confidence)
+    fit, unfitted = fitted
     results = tuple(
         _standard_result(p, levels[p.concentration], reason, fit)
         for p, reason in zip(standards, reasons)
@@ -258,6 +313,51 @@ def assess_curve(
         standards=results, fit=fit, unfitted_reason=unfitted, lod=lod, loq=loq,
         checks=checks, verdict=combine_verdicts(checks, fitted=fit is not None),
     )
+
+
+def _points_by_analyte(points: Sequence[Point]) -> dict[str, dict[str, list[Point]]]:
+    """Each analyte's standards, blanks (and zeros) and QCs, in file order, in one pass."""
+    kinds = {SampleType.STANDARD: "standards", SampleType.BLANK: "blanks",
+             SampleType.ZERO: "blanks", SampleType.QC: "qcs"}
+    grouped: dict[str, dict[str, list[Point]]] = {}
+    for point in points:
+        groups = grouped.setdefault(point.analyte, {"standards": [], "blanks": [], "qcs": []})
+        kind = kinds.get(point.sample_type)
+        if kind is not None:
+            groups[kind].append(point)
+    return grouped
+
+
+def _batched_fits(standards: Mapping[str, Sequence[Point]], *, model: Model,
+                  weighting: Weighting, confidence: float,
+                  profile: Profile) -> dict[str, tuple[CurveFit | None, str]]:
+    """The full-range fit of every analyte, the fittable curves in one :func:`fit_batch` call.
+
+    The curves of a run share model, weighting and confidence, so they form one group.
+    A curve the batch cannot fit (or that fails the level and point counts) is left to
+    the per-curve path, which gives the reason in its own words.
+    """
+    p = len(COEFFICIENTS[model])
+    names, rows = [], []
+    for analyte, points in standards.items():
+        reasons = _exclusion_reasons(points, model, weighting, profile)
+        used = [pt for pt, r in zip(points, reasons) if r is None]
+        if len(used) > p and len({pt.concentration for pt in used}) >= p:
+            names.append(analyte)
+            rows.append(used)
+    if len(rows) < 2:
+        return {}
+    width = max(len(r) for r in rows)
+    x = np.full((len(rows), width), np.nan)
+    y = np.full((len(rows), width), np.nan)
+    mask = np.zeros((len(rows), width), dtype=bool)
+    for k, used in enumerate(rows):
+        x[k, :len(used)] = [pt.concentration for pt in used]
+        y[k, :len(used)] = [pt.response for pt in used]
+        mask[k, :len(used)] = True
+    batch = fit_batch(x, y, model=model, weighting=weighting, mask=mask, confidence=confidence)
+    return {analyte: (batch.curve(k), "") for k, analyte in enumerate(names)
+            if batch.problems[k] is None}
 
 
 def _exclusion_reasons(standards: Sequence[Point], model: Model, weighting: Weighting,

@@ -212,7 +212,7 @@ def run_export(args: argparse.Namespace) -> int:
     if path is None:
         return report_no_archive()
     from calib.archive import ArchiveError
-    from calib.output import write_atomic
+    from calib.output import safe_file_name, write_atomic
 
     with _open(path) as archive:
         versions = archive.entries(record_id=args.record_id)
@@ -226,7 +226,7 @@ def run_export(args: argparse.Namespace) -> int:
     chosen = list(enumerate(versions, start=1)) if args.all_versions else [(0, versions[-1])]
     out = Path(args.out)
     for number, entry in chosen:
-        stem = entry.record_id + (f"-v{number}-{entry.kind}" if number else "")
+        stem = safe_file_name(entry.record_id + (f"-v{number}-{entry.kind}" if number else ""))
         pdf = write_atomic(out / f"{stem}.pdf", entry.pdf)
         data = write_atomic(out / f"{stem}.record.json", entry.json)
         print(f"seq {entry.seq} ({entry.kind}): {pdf}\n  record data: {data}")

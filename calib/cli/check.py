@@ -6,10 +6,18 @@ import argparse
 import json
 import os
 import sys
+from pathlib import Path
 from typing import TYPE_CHECKING
 
 from calib.cli.archive import add_archive_option, archive_path
-from calib.cli.common import add_debug, add_fit_options, add_import_options, sheet_arg
+from calib.cli.common import (
+    add_debug,
+    add_fit_options,
+    add_force,
+    add_import_options,
+    refuse_existing,
+    sheet_arg,
+)
 
 if TYPE_CHECKING:
     from calib.checks.evaluate import RunAssessment
@@ -50,6 +58,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--json", action="store_true",
                         help="print the calib.check/1 JSON document instead of tables")
     parser.add_argument("--pdf", metavar="OUT", help="write the PDF calibration record to OUT")
+    add_force(parser, what="a --pdf record file")
     parser.add_argument("--prepared-by", metavar="NAME",
                         help="printed name of the analyst issuing the record")
     parser.add_argument("--exclude", action="append", default=[], metavar="CELL=REASON",
@@ -88,6 +97,8 @@ def run(args: argparse.Namespace) -> int:
             return 0
     from calib.checks.narrowing import RangeError
 
+    if args.pdf and refuse_existing("check", [Path(args.pdf)], force=args.force):
+        return 2
     try:
         assessment = _check(args, imap)
     except RangeError as exc:
@@ -102,7 +113,7 @@ def run(args: argparse.Namespace) -> int:
         if archive:
             filed = _file(archive, record, pdf)
         if args.pdf:
-            written = (write_atomic(args.pdf, pdf), record)
+            written = (write_atomic(args.pdf, pdf, replace=args.force), record)
     if args.json:
         json.dump(document, sys.stdout, ensure_ascii=False, allow_nan=False)
         sys.stdout.write("\n")
@@ -128,12 +139,18 @@ def run(args: argparse.Namespace) -> int:
 
 def _check(args: argparse.Namespace, imap: ImportMap | None) -> RunAssessment:
     """Read and judge the run with the analyst's exclusions, ranges and the archive's slopes."""
+    from calib.cli.progress import progress_for
     from calib.workflow import check_file
 
-    return check_file(args.run, sheet=sheet_arg(args.sheet), profile=args.profile,
-                      model=args.model, weighting=args.weighting, confidence=args.confidence,
-                      map=imap, exclusions=args.exclude, ranges=args.ranges,
-                      archive=archive_path(args))
+    bar = progress_for(json_output=args.json, label="checking curves")
+    try:
+        return check_file(args.run, sheet=sheet_arg(args.sheet), profile=args.profile,
+                          model=args.model, weighting=args.weighting, confidence=args.confidence,
+                          map=imap, exclusions=args.exclude, ranges=args.ranges,
+                          archive=archive_path(args), progress=bar)
+    finally:
+        if bar is not None:
+            bar.close()
 
 
 def _write_exports(args: argparse.Namespace, document: dict) -> list[str]:

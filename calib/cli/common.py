@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import argparse
+import sys
+from pathlib import Path
 
 from calib.options import Model, Weighting
 
@@ -44,6 +46,21 @@ def add_import_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--show-import", action="store_true",
                         help="print what the importer recognised (sheet, layout, columns, units, "
                              "metadata, sample types, exclusions) and stop")
+
+
+def add_force(parser: argparse.ArgumentParser, *, what: str) -> None:
+    """--force: replace existing record files instead of refusing."""
+    parser.add_argument("--force", action="store_true",
+                        help=f"replace {what} that already exist (default: refuse, exit 2)")
+
+
+def refuse_existing(command: str, paths: list[Path], *, force: bool) -> bool:
+    """Say so and return True when a record file would be overwritten without --force."""
+    existing = [p for p in paths if p.exists()] if not force else []
+    if existing:
+        print(f"calib {command}: error: {existing[0]} exists; records are never overwritten "
+              f"silently: choose another name, or add --force to replace it", file=sys.stderr)
+    return bool(existing)
 
 
 def add_debug(parser: argparse.ArgumentParser) -> None:

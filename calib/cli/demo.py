@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from calib.cli.common import add_debug
+from calib.cli.common import add_debug, add_force, refuse_existing
 
 DEMO_RUNS = ("fernbrook_nitrate_2026-11-30.xlsx", "fernbrook_fluoride_2026-11-30.csv")
 
@@ -29,6 +29,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     )
     parser.add_argument("--out", metavar="DIR", default="calib-demo",
                         help="folder for the records (default: ./calib-demo)")
+    add_force(parser, what="demo records")
     add_debug(parser)
     parser.set_defaults(handler=run)
 
@@ -43,16 +44,27 @@ def demo_runs() -> list[Path]:
 
 def run(args: argparse.Namespace) -> int:
     from calib.cli import render
-    from calib.output import write_atomic
+    from calib.cli.progress import progress_for
+    from calib.output import safe_file_name, write_atomic
     from calib.workflow import check_file, issue_record
 
     out = Path(args.out)
+    targets = [out / f"{safe_file_name(path.stem)}{suffix}" for path in demo_runs()
+               for suffix in (".pdf", ".record.json")]
+    if refuse_existing("demo", targets, force=args.force):
+        return 2
     for path in demo_runs():
-        assessment = check_file(path)
+        bar = progress_for(label=f"checking {path.name}")
+        try:
+            assessment = check_file(path, progress=bar)
+        finally:
+            if bar is not None:
+                bar.close()
         record, pdf = issue_record(assessment, prepared_by="R. Okafor (demo analyst)")
-        stem = path.stem
-        pdf_path = write_atomic(out / f"{stem}.pdf", pdf)
-        json_path = write_atomic(out / f"{stem}.record.json", record.canonical)
+        stem = safe_file_name(path.stem)
+        pdf_path = write_atomic(out / f"{stem}.pdf", pdf, replace=args.force)
+        json_path = write_atomic(out / f"{stem}.record.json", record.canonical,
+                                 replace=args.force)
         print(render.assessment_text(assessment))
         print(f"Record {record.record_id}: {pdf_path}\n  record data: {json_path}\n")
     print(render.cautions_text())

@@ -12,7 +12,7 @@ import sys
 from collections.abc import Sequence
 
 from calib import __version__
-from calib.cli import archive, check, demo, keys, profiles, quantify, sign, trend, verify
+from calib.cli import archive, check, demo, keys, profiles, quantify, serve, sign, trend, verify
 
 EXIT_OK, EXIT_NOT_ACCEPTED, EXIT_USAGE, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3, 4
 
@@ -30,6 +30,7 @@ examples:
   calib verify record-v2.pdf --keyring lab-keys/
   calib archive list --analyte Nitrate-N       records filed with --archive (or CALIB_ARCHIVE)
   calib trend Nitrate-N --pdf trend.pdf        slope, intercept and residual SD over time
+  calib serve --archive records.sqlite         the same in a browser, on this computer
 
 exit codes: 0 accepted, 1 rejected or needs review, 2 usage error, 3 unusable input,
             4 internal error
@@ -44,7 +45,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"calib {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
-    for module in (check, quantify, demo, profiles, sign, verify, keys, archive, trend):
+    for module in (check, quantify, demo, profiles, sign, verify, keys, archive, trend, serve):
         module.add_parser(sub)
     return parser
 

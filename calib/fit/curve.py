@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from numbers import Real
+from typing import TYPE_CHECKING
 
 import numpy as np
 from scipy import stats
@@ -22,6 +23,10 @@ from calib.fit.inverse import quadratic_root
 from calib.fit.response_factor import ResponseFactors, response_factors
 from calib.fit.wls import solve_wls
 from calib.options import Model, Weighting, parse_option
+from calib.tabular import Tabular
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 __all__ = ["CoefficientRow", "CoefficientTest", "CurveFit", "fit_curve"]
 
@@ -88,7 +93,7 @@ class CoefficientTest:
 
 
 @dataclass(frozen=True, eq=False)
-class CurveFit:
+class CurveFit(Tabular):
     """A weighted least-squares calibration fit and the inference on it.
 
     Build one with :func:`fit_curve`.  Arrays hold the points used in the fit
@@ -133,6 +138,12 @@ class CurveFit:
     residuals: np.ndarray
     r_squared: float
 
+    def to_frame(self) -> pd.DataFrame:
+        """The coefficient table as a pandas DataFrame (shown as a table in Jupyter)."""
+        from calib.tabular import fit_frame
+
+        return fit_frame(self)
+
     @property
     def n_points(self) -> int:
         """N, the number of points in the fit."""
@@ -142,6 +153,18 @@ class CurveFit:
     def names(self) -> tuple[str, ...]:
         """Coefficient names in design-matrix order."""
         return tuple(self.coefficients)
+
+    @property
+    def exact(self) -> bool:
+        """Whether the curve passes through every point, up to floating-point rounding.
+
+        Then the residual SD and every standard error are rounding noise, and a
+        t-test on them would judge that noise.  "Negligible" is a weighted
+        residual sum of squares at most 1e-20 of the weighted spread of y about
+        its mean, or at most (1e-12)² of its uncentred sum of squares (which
+        covers responses that are all equal, where the spread is itself noise).
+        """
+        return residuals_negligible(float(np.sum(self.weights * self.residuals**2)), self)
 
     @property
     def r(self) -> float:
@@ -460,3 +483,15 @@ def fit_curve(
         residuals=sol.residuals,
         r_squared=r_squared,
     )
+
+
+def residuals_negligible(ss: float, fit: CurveFit) -> bool:
+    """Whether a weighted residual sum of squares ``ss`` on ``fit``'s points is rounding noise.
+
+    See :attr:`CurveFit.exact` for the thresholds.
+    """
+    w = fit.weights
+    uncentred = float(np.sum(w * fit.y**2))
+    ybar = float(np.sum(w * fit.y) / np.sum(w))
+    spread = float(np.sum(w * (fit.y - ybar) ** 2))
+    return ss <= max(1e-20 * spread, 1e-24 * uncentred)

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from calib.fit.curve import CurveFit
+from calib.fit.curve import CurveFit, residuals_negligible
 from calib.fit.design import design_matrix
 from calib.fit.wls import WlsSolution, solve_wls
 from calib.options import Model
@@ -42,7 +42,7 @@ def _total_ss(fit: CurveFit) -> float:
 
 
 def _negligible(ss: float, fit: CurveFit) -> bool:
-    return ss <= _ROUNDING * _total_ss(fit)
+    return ss <= _ROUNDING * _total_ss(fit) or residuals_negligible(ss, fit)
 
 
 def _weighted_ss(fit: CurveFit) -> float:
@@ -544,8 +544,10 @@ def runs_test(signs: Sequence[float] | np.ndarray) -> RunsTest:
 def residual_runs(fit: CurveFit) -> RunsTest:
     """Runs test on the signs of the residuals ordered by concentration.
 
-    Points at the same concentration keep their order in the fit; residuals
-    that are zero to rounding are dropped (they carry no sign).
+    Points at the same concentration are taken from the most negative residual
+    to the most positive, so the result does not depend on the order of the rows
+    in the file (replicates at one level have no order along the concentration);
+    residuals that are zero to rounding are dropped (they carry no sign).
 
     Examples
     --------
@@ -554,7 +556,7 @@ def residual_runs(fit: CurveFit) -> RunsTest:
     >>> residual_runs(fit).runs
     3
     """
-    order = np.argsort(fit.x, kind="stable")
+    order = np.lexsort((fit.residuals, fit.x))
     r = fit.residuals[order]
     if _negligible(_weighted_ss(fit), fit):
         return RunsTest(0, 0, 0, int(r.size),

@@ -149,7 +149,7 @@ def influence(fit: CurveFit) -> Influence:
     e = np.sqrt(w) * fit.residuals
     ss = float(np.sum(e * e))
     ybar = float(np.sum(w * fit.y) / np.sum(w))
-    if ss <= _ROUNDING * float(np.sum(w * (fit.y - ybar) ** 2)):
+    if ss <= _ROUNDING * float(np.sum(w * (fit.y - ybar) ** 2)) or fit.exact:
         raise ValueError("the curve passes through every standard, so there is no residual "
                          "scatter to judge outliers against")
     A = design_matrix(fit.x, fit.model) * np.sqrt(w)[:, None]

@@ -281,7 +281,10 @@ def variance_levels(
     grand = np.concatenate(groups).mean()
     between = sum(g.size * (g.mean() - grand) ** 2 for g in groups)
     within = sum(float(np.sum((g - g.mean()) ** 2)) for g in groups)
-    if not within > 0:
+    # With 2 replicates the two deviations from the median (or mean) are equal by
+    # construction, so "within" is rounding noise (1e-35, not 0) and W would be ~1e27.
+    scale = float(sum(np.sum(g * g) for g in groups))
+    if all(g.size <= 2 for g in groups) or not within > 1e-24 * scale:
         return unavailable("with 2 replicates at every level (or identical deviations) the "
                            "deviations cannot be compared; the test needs a level with 3 or more")
     w_stat = (n - k) / (k - 1) * between / within

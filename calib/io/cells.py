@@ -30,6 +30,7 @@ __all__ = [
     "is_blank",
     "to_flag",
     "to_integer",
+    "to_name",
     "to_number",
     "to_text",
 ]
@@ -241,3 +242,43 @@ def to_text(value: Cell) -> str | None:
     if isinstance(value, (_dt.date, _dt.time)):
         return value.isoformat()
     return str(value)
+
+
+# Characters that change how the text around them is shown: C0/C1 controls (a terminal obeys
+# ESC sequences) and the bidirectional controls that reverse what follows (U+202E makes
+# "Nitrate-N" print as something else).  A name holding one would not read as written.
+_HIDDEN_CONTROLS = frozenset(
+    [*range(0x20), *range(0x7F, 0xA0), 0x061C, 0x200E, 0x200F, *range(0x202A, 0x202F),
+     *range(0x2066, 0x206A), 0xFEFF]
+)
+
+
+def to_name(value: Cell) -> str | None:
+    r"""Read a cell as a name (analyte, sample): text without control characters.
+
+    Raises
+    ------
+    CellError
+        When the text holds a control character or a bidirectional control
+        (such as the right-to-left override U+202E), which would change how the
+        name is shown in the record and on a terminal.
+
+    Examples
+    --------
+    >>> to_name(" Nitrate-N ")
+    'Nitrate-N'
+    >>> try:  # doctest: +NORMALIZE_WHITESPACE
+    ...     to_name("Nitrate\u202e-N")
+    ... except CellError as exc:
+    ...     print(exc)
+    found the text 'Nitrate\u202e-N' holding the control character U+202E; expected a name of
+    printable characters
+    """
+    text = to_text(value)
+    if text is None or text.isprintable():
+        return text
+    for char in text:
+        if ord(char) in _HIDDEN_CONTROLS:
+            raise CellError(f"found the text {text!r} holding the control character "
+                            f"U+{ord(char):04X}; expected a name of printable characters")
+    return text

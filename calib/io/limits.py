@@ -32,6 +32,7 @@ __all__ = [
     "MAX_ROWS",
     "MAX_UNZIPPED_BYTES",
     "ArchiveFacts",
+    "check_compound",
     "check_sheet_size",
     "check_text_rows",
     "check_xls",
@@ -228,6 +229,7 @@ def check_text_rows(lines: int, *, file: str) -> None:
 _CELL_RECORDS = frozenset({0x0006, 0x00BD, 0x00BE, 0x00D6, 0x00FD, 0x0201, 0x0203, 0x0204,
                            0x0205, 0x027E})
 _END, _FREE = 0xFFFFFFFE, 0xFFFFFFFF
+_COMPOUND = bytes.fromhex("D0CF11E0A1B11AE1")
 
 
 def _chain(fat: list[int], start: int, limit: int) -> list[int]:
@@ -301,13 +303,80 @@ def _damaged_xls(raw: RawFile, what: str) -> InputError:
     )
 
 
-def check_xls(raw: RawFile) -> None:
+def _compound_problem(data: bytes) -> str | None:
+    """What makes a compound file's sector tables unusable, or None when they can be followed.
+
+    calamine loops forever on a compound file whose allocation table is missing or
+    whose directory chain runs in a circle, so those are refused before it sees them.
+    """
+    if len(data) < 512:
+        return "the compound file header is cut short"
+    shift, mini_shift = struct.unpack_from("<HH", data, 30)
+    if shift not in (9, 12) or mini_shift != 6:
+        return "the compound file header gives an impossible sector size"
+    size = 1 << shift
+    n_sectors = (len(data) - 512) // size + 1
+    n_fat, first_dir = struct.unpack_from("<II", data, 44)
+    listed = [n for n in struct.unpack_from("<109I", data, 76) if n != _FREE]
+    if n_fat == 0 or not listed or any(n >= n_sectors for n in listed[:n_fat]):
+        return "the compound file's sector allocation table is missing or outside the file"
+    fat: list[int] = []
+    for number in listed[:n_fat]:
+        chunk = data[(number + 1) * size : (number + 2) * size]
+        fat += struct.unpack(f"<{len(chunk) // 4}I", chunk)
+    sector, seen = first_dir, set()
+    while sector != _END:
+        if sector >= min(n_sectors, len(fat)) or sector in seen:
+            return "the compound file's directory chain is broken or runs in a circle"
+        seen.add(sector)
+        sector = fat[sector]
+    return None
+
+
+def _compound_names(data: bytes) -> set[str]:
+    """Names of the directory entries in the first directory sector of a compound file."""
+    size = 1 << struct.unpack_from("<H", data, 30)[0]
+    first_dir = struct.unpack_from("<I", data, 48)[0]
+    directory = data[(first_dir + 1) * size : (first_dir + 2) * size]
+    names = set()
+    for i in range(0, len(directory) - 127, 128):
+        length = min(struct.unpack_from("<H", directory, i + 64)[0], 64)
+        names.add(directory[i : i + max(0, length - 2)].decode("utf-16-le", "replace"))
+    return names
+
+
+def check_compound(raw: RawFile, *, what: str) -> None:
+    """Refuse a compound (OLE) file the workbook reader cannot safely open.
+
+    Office stores a password-protected ``.xlsx`` as a compound file holding an
+    encrypted package; a damaged compound file would hang the reader.  Files that
+    are not compound files are left alone.
+
+    Raises
+    ------
+    InputError
+        When the container is damaged or holds an encrypted workbook.
+    """
+    if not raw.data.startswith(_COMPOUND):
+        return
+    problem = _compound_problem(raw.data)
+    if problem is not None:
+        raise InputError(f"cannot be read as a workbook ({problem}; the file is damaged); "
+                         f"expected {what} saved by a spreadsheet program", file=raw.given)
+    if "EncryptedPackage" in _compound_names(raw.data):
+        raise InputError(f"the workbook is password-protected (encrypted); expected {what} "
+                         f"without a password (save an unprotected copy)", file=raw.given)
+
+
+def check_xls(raw: RawFile, *, what: str = "an .xls workbook") -> None:
     """Refuse an ``.xls`` whose cell records reach past BIFF8's 65,536 rows and 256 columns.
 
     A damaged or crafted record naming column 20,000 would make the reader build
     a grid of billions of cells; a well-formed file never names such a cell.
-    Files whose container cannot be followed are left to the workbook reader.
+    A compound file whose sector tables cannot be followed, or that holds an
+    encrypted workbook, is refused first (:func:`check_compound`).
     """
+    check_compound(raw, what=what)
     try:
         stream = _xls_stream(raw.data)
     except (struct.error, ValueError, IndexError):

@@ -26,7 +26,16 @@ from dataclasses import dataclass, field
 from typing import TypeVar
 
 from calib.errors import InputError
-from calib.io.cells import Cell, CellError, describe, is_blank, to_flag, to_integer, to_text
+from calib.io.cells import (
+    Cell,
+    CellError,
+    describe,
+    is_blank,
+    to_flag,
+    to_integer,
+    to_name,
+    to_text,
+)
 from calib.io.columns import Column
 from calib.io.layout import Table
 from calib.io.numbers import (
@@ -332,7 +341,8 @@ class _TableReader:
         return False
 
     def row_points(self, row_index: int, row: Sequence[Cell]) -> None:
-        name = to_text(self.raw(row, "sample_id"))
+        name = self.parse("sample_id", row_index, row, to_name) if "sample_id" in self.index \
+            else None
         kind = self.sample_type(row_index, row, name)
         included = True
         if "include" in self.index:
@@ -353,7 +363,7 @@ class _TableReader:
         level = to_text(self.raw(row, "level"))
         row_analyte = self.analyte
         if "analyte" in self.index:
-            row_analyte = to_text(self.raw(row, "analyte"))
+            row_analyte = self.parse("analyte", row_index, row, to_name)
             if row_analyte is None:
                 raise self.fail(row_index, self.shared["analyte"],
                                 "found an empty cell; expected the analyte name")

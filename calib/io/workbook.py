@@ -272,7 +272,7 @@ class WorkbookReader:
         raw = load_file(Path(path), what=_what_for(path))
         facts = inspect_archive(raw, what=_what(raw))
         if facts is None:
-            check_xls(raw)
+            check_xls(raw, what=_what(raw))
         warnings = []
         if facts is not None and facts.macros:
             warnings.append("the workbook carries macros; calib read the saved cell values and "

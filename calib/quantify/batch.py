@@ -32,6 +32,7 @@ import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from enum import StrEnum
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -41,6 +42,10 @@ from calib.quantify.curve import CalibrationCurve
 from calib.quantify.inverse import InversePrediction, inverse_predict
 from calib.quantify.qc import QcRule, QcSummary, judge_qcs
 from calib.quantify.samples import Reading
+from calib.tabular import Tabular
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 __all__ = ["Batch", "Flag", "ReportingConvention", "SampleResult", "group_readings",
            "judge_qc_samples",
@@ -298,7 +303,7 @@ def judge_qc_samples(results: Sequence[SampleResult], *, curve: CalibrationCurve
 
 
 @dataclass(frozen=True)
-class Batch:
+class Batch(Tabular):
     """A quantified batch.
 
     Attributes
@@ -330,6 +335,12 @@ class Batch:
     refused: dict[str, str]
     verdict: str
     reasons: tuple[str, ...] = field(default=())
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per sample, as a pandas DataFrame (shown as a table in Jupyter)."""
+        from calib.tabular import batch_frame
+
+        return batch_frame(self)
 
 
 _RANK = {"accepted": 0, "needs-review": 1, "rejected": 2}

@@ -38,7 +38,7 @@ from calib.io.cells import Cell, CellError, is_blank, to_flag, to_integer, to_nu
 from calib.io.columns import column_letter, match_heading, split_unit, squash
 from calib.io.csv_text import DELIMITERS, decode_text
 from calib.io.files import RawFile, load_file
-from calib.io.limits import check_sheet_size, check_text_rows, inspect_archive
+from calib.io.limits import check_sheet_size, check_text_rows, check_xls, inspect_archive
 from calib.io.numbers import find_marker
 from calib.io.sampletypes import SampleTyper, type_from_name
 from calib.io.table import HEADER_SEARCH_ROWS, Grid
@@ -350,7 +350,8 @@ def _text_grid(raw: RawFile) -> tuple[Grid, SourceInfo, str | None]:
 
 def _book_grid(raw: RawFile, sheet: str | int | None) -> tuple[Grid, SourceInfo]:
     what = f"a workbook ({raw.path.suffix.lower()})"
-    inspect_archive(raw, what=what)
+    if inspect_archive(raw, what=what) is None:
+        check_xls(raw, what=what)
     try:
         book = python_calamine.CalamineWorkbook.from_filelike(io.BytesIO(raw.data))
     except Exception as exc:  # noqa: BLE001 - calamine raises several unrelated types

@@ -71,7 +71,8 @@ def nice_ticks(lo: float, hi: float, *, target: int = 5) -> tuple[float, ...]:
         lo, hi = 0.0, 1.0
     if hi < lo:
         lo, hi = hi, lo
-    if hi == lo:
+    # A span within rounding of the values themselves is one value: pad it like one.
+    if hi - lo <= 64 * math.ulp(max(abs(lo), abs(hi))):
         pad = abs(lo) * 0.1 or 1.0
         lo, hi = lo - pad, hi + pad
     raw = (hi - lo) / max(target, 1)

@@ -24,9 +24,9 @@ from openpyxl import Workbook
 from openpyxl.styles import Font
 from openpyxl.utils import get_column_letter
 
-__all__ = ["neutralise", "write_quantify_xlsx"]
+from calib.export.cells import neutralise as export_neutralise
 
-_RISKY = ("=", "+", "-", "@", "\t", "\r")
+__all__ = ["neutralise", "write_quantify_xlsx"]
 
 
 def neutralise(value: Any) -> Any:
@@ -37,9 +37,9 @@ def neutralise(value: Any) -> Any:
     >>> neutralise("=HYPERLINK(\\"x\\")"), neutralise("-12"), neutralise("< LLOQ"), neutralise(2.5)
     ('\\'=HYPERLINK("x")', "'-12", '< LLOQ', 2.5)
     """
-    if isinstance(value, str) and value.startswith(_RISKY):
-        return "'" + value
-    return value
+    # One rule for every writer: the export's neutralise also drops the control characters
+    # a workbook cannot hold (openpyxl would refuse the whole file) and empties NaN.
+    return export_neutralise(value)
 
 
 def _sheet(book: Workbook, title: str, rows: Sequence[Sequence[Any]], *, first: bool = False

@@ -284,17 +284,19 @@ def test_large_runs_test_uses_the_normal_approximation_of_statsmodels():
     assert test.p_value == pytest.approx(stats.norm.cdf(z), rel=1e-12)
 
 
-def test_residual_runs_follow_concentration_with_ties_in_fit_order():
+def test_residual_runs_follow_concentration_with_ties_from_low_to_high_residual():
     x = np.array([1, 1, 2, 2, 3, 3, 4, 4, 5, 5], dtype=float)
     y = np.array([1.2, 0.8, 2.1, 1.9, 3.3, 2.9, 3.8, 4.1, 5.2, 4.9])
     base = residual_runs(fit_curve(x, y))
-    # Shuffling the levels but keeping each level's replicates in order changes nothing.
+    # Shuffling the levels changes nothing.
     order = [6, 7, 0, 1, 8, 9, 2, 3, 4, 5]
     assert residual_runs(fit_curve(x[order], y[order])) == base
-    # Swapping the replicates of the lowest level turns the signs + − + − … into − + + − …:
-    # one run fewer.
+    # Nor does swapping the replicates of a level: within a level the residuals are taken
+    # from low to high (− then +), whatever the order of the rows.
     swapped = [1, 0, 2, 3, 4, 5, 6, 7, 8, 9]
-    assert residual_runs(fit_curve(x[swapped], y[swapped])).runs == base.runs - 1
+    assert residual_runs(fit_curve(x[swapped], y[swapped])) == base
+    # Signs by level: (−,+) (−,+) (−,+) (−,+) (−,+): 10 runs.
+    assert base.runs == 10
 
 
 def test_runs_need_both_signs():

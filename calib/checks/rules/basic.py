@@ -36,6 +36,11 @@ def intercept_zero(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Ch
         return not_evaluated("intercept-zero", sev, ctx.unfitted_reason)
     if "intercept" not in fit.coefficients:
         return not_evaluated("intercept-zero", sev, f"the {fit.model.value} model has no intercept")
+    if fit.exact:
+        return not_evaluated("intercept-zero", sev,
+                             "the curve passes through every standard, so the intercept's "
+                             "standard error is rounding noise and there is nothing to test "
+                             "against")
     alpha = p["alpha"]
     pval = fit.p_value("intercept")
     if not math.isfinite(pval):

@@ -1,0 +1,677 @@
+"""The pages of ``calib serve``: routes that call the library and render what it returns.
+
+No statistics happen here.  A route reads the form, calls :mod:`calib.workflow`,
+:mod:`calib.record`, :mod:`calib.archive` or :mod:`calib.quantify`, and renders a
+template; a :class:`~calib.errors.CalibError` becomes one sentence on the page,
+the same words the command line prints.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Awaitable, Callable
+from pathlib import Path
+from typing import Any
+
+from jinja2 import Environment, PackageLoader, select_autoescape
+from starlette.applications import Starlette
+from starlette.concurrency import run_in_threadpool
+from starlette.datastructures import FormData, UploadFile
+from starlette.exceptions import HTTPException
+from starlette.middleware import Middleware
+from starlette.middleware.base import BaseHTTPMiddleware, RequestResponseEndpoint
+from starlette.requests import Request
+from starlette.responses import HTMLResponse, RedirectResponse, Response
+from starlette.routing import Mount, Route
+from starlette.staticfiles import StaticFiles
+
+from calib.errors import CalibError
+from calib.web import pages
+from calib.web.security import (
+    ACCESS_COOKIE,
+    CSRF_COOKIE,
+    CSRF_FIELD,
+    DEFAULT_MAX_UPLOAD,
+    new_token,
+    same_origin,
+    same_token,
+)
+from calib.web.state import Download, OpenRun, Store, private_copy, scrub
+
+__all__ = ["PageError", "create_app"]
+
+Handler = Callable[[Request], Awaitable[Response]]
+
+
+class PageError(Exception):
+    """A request the page refuses, with the one sentence to show and the HTTP status."""
+
+    def __init__(self, message: str, status: int = 400) -> None:
+        super().__init__(message)
+        self.message = message
+        self.status = status
+
+
+def one_line(text: str) -> str:
+    """``text`` on one line, as the command line prints errors (no private folder named)."""
+    return " ".join(scrub(str(text)).split())
+
+
+def _environment() -> Environment:
+    env = Environment(loader=PackageLoader("calib.web", "templates"),
+                      autoescape=select_autoescape(default=True, default_for_string=True),
+                      trim_blocks=True, lstrip_blocks=True)
+    env.filters["num"] = pages.num
+    env.filters["verdict_word"] = pages.verdict_word
+    env.filters["check_word"] = pages.check_word
+    return env
+
+
+class _Guard(BaseHTTPMiddleware):
+    """The access token (when not on loopback) and the origin check of every POST."""
+
+    async def dispatch(self, request: Request, call_next: RequestResponseEndpoint) -> Response:
+        app_state = request.app.state
+        token = app_state.access_token
+        if token and not same_token(request.cookies.get(ACCESS_COOKIE), token):
+            given = request.query_params.get("token")
+            if not same_token(given, token):
+                return _render(request, "error.html", status=403, message=(
+                    "This page needs the access token printed when calib serve started: "
+                    "open the address it printed, with ?token=… at the end."))
+            # Keep the token in a cookie and drop it from the address bar.
+            response = RedirectResponse(request.url.remove_query_params("token"), 303)
+            response.set_cookie(ACCESS_COOKIE, token, httponly=True, samesite="strict")
+            return response
+        if request.method == "POST":
+            if not same_origin(request.headers.get("origin"), request.headers.get("host")):
+                return _render(request, "error.html", status=403, message=(
+                    "This form was sent from another site, so it was refused."))
+            length = request.headers.get("content-length")
+            if length is None or not length.isdigit():
+                return _render(request, "error.html", status=411, message=(
+                    "The form was sent without its length, so it was refused; send it again "
+                    "from the page."))
+            if int(length) > app_state.max_upload:
+                return _render(request, "error.html", status=413, message=(
+                    f"The file is too large: at most {pages.size_text(app_state.max_upload)} "
+                    "can be uploaded."))
+        return await call_next(request)
+
+
+def _csrf(request: Request) -> str:
+    """The form token of this browser (made on its first page)."""
+    token = request.cookies.get(CSRF_COOKIE)
+    if not token:
+        token = request.state.__dict__.setdefault("new_csrf", new_token())
+    return token
+
+
+def _render(request: Request, name: str, *, status: int = 200, **context: Any) -> HTMLResponse:
+    state = request.app.state
+    context.setdefault("archive", state.archive)
+    html = state.env.get_template(name).render(
+        request=request, csrf_field=CSRF_FIELD, csrf=_csrf(request), **context)
+    response = HTMLResponse(html, status_code=status)
+    fresh = request.state.__dict__.get("new_csrf")
+    if fresh and not request.cookies.get(CSRF_COOKIE):
+        response.set_cookie(CSRF_COOKIE, fresh, httponly=True, samesite="strict")
+    return response
+
+
+async def _form(request: Request) -> FormData:
+    """The POSTed form, after checking its cross-site token."""
+    form = await request.form(max_files=4, max_fields=50,
+                              max_part_size=request.app.state.max_upload)
+    request.state.form = form
+    if not same_token(_text(form, CSRF_FIELD), request.cookies.get(CSRF_COOKIE)):
+        raise PageError("The form had no valid page token (the page may be old, or the form "
+                        "came from another site); reload the page and send it again.", 403)
+    return form
+
+
+def _closing(handler: Handler) -> Handler:
+    """``handler``, closing the uploaded files' spools when it is done, however it ends."""
+
+    async def handle(request: Request) -> Response:
+        try:
+            return await handler(request)
+        finally:
+            form = getattr(request.state, "form", None)
+            if form is not None:
+                await form.close()
+
+    return handle
+
+
+def _text(form: FormData, name: str) -> str:
+    value = form.get(name)
+    return " ".join(value.split()) if isinstance(value, str) else ""
+
+
+async def _file(form: FormData, name: str, *, what: str,
+                required: bool = True) -> tuple[str, bytes] | None:
+    value = form.get(name)
+    if not isinstance(value, UploadFile) or not value.filename:
+        if required:
+            raise PageError(f"Choose the {what} to upload.")
+        return None
+    data = await value.read()
+    await value.close()
+    return value.filename, data
+
+
+def _open_run(request: Request) -> tuple[str, OpenRun]:
+    run_id = request.path_params["run_id"]
+    run = request.app.state.store.run(run_id)
+    if run is None:
+        raise PageError("This run is no longer open (the server was restarted, or many runs "
+                        "were opened since); upload the file again.", 404)
+    return run_id, run
+
+
+def _archive_path(request: Request) -> str:
+    path = request.app.state.archive
+    if not path:
+        raise PageError("No archive is open: start the server with calib serve --archive DB.",
+                        409)
+    return path
+
+
+# ---------------------------------------------------------------------- check a run
+
+async def home(request: Request) -> Response:
+    return _render(request, "home.html", choices=pages.choices(request.app.state.profiles))
+
+
+async def check_upload(request: Request) -> Response:
+    form = await _form(request)
+    name, data = await _file(form, "run", what="run file (the instrument export)")
+    run = OpenRun(name=name, data=data, **_settings(form, request))
+    await run_in_threadpool(_assess, run)
+    run_id = request.app.state.store.add_run(run)
+    return RedirectResponse(f"/run/{run_id}", 303)
+
+
+def _settings(form: FormData, request: Request) -> dict[str, Any]:
+    from calib.options import Model, Weighting
+
+    profile = _text(form, "profile") or "default"
+    if profile not in request.app.state.profiles:
+        raise PageError(f"Unknown profile {profile!r}: choose one from the list.")
+    model, weighting = _text(form, "model") or None, _text(form, "weighting") or None
+    if model is not None and model not in {m.value for m in Model}:
+        raise PageError(f"Unknown model {model!r}: choose one from the list.")
+    if weighting is not None and weighting not in {w.value for w in Weighting}:
+        raise PageError(f"Unknown weighting {weighting!r}: choose one from the list.")
+    return {"profile": profile, "model": model, "weighting": weighting}
+
+
+def _assess(run: OpenRun) -> None:
+    """Check the run's bytes with its settings and exclusions (the library does the work)."""
+    from calib.checks.exclusions import parse_exclusion
+    from calib.workflow import check_file
+
+    exclusions = [parse_exclusion(f"{t}={r}") for t, r in run.exclusions]
+    with private_copy(run.name, run.data) as path:
+        run.assessment = check_file(path, profile=run.profile, model=run.model,
+                                    weighting=run.weighting, exclusions=exclusions)
+    run.issued = run.issued_pdf = None
+    run.filed = ""
+
+
+async def run_page(request: Request) -> Response:
+    run_id, run = _open_run(request)
+    return _run_view(request, run_id, run)
+
+
+def _run_view(request: Request, run_id: str, run: OpenRun, *, error: str = "",
+              status: int = 200, notice: str = "") -> Response:
+    show = request.query_params.get("show", "all")
+    summary = pages.run_summary(run.assessment, show=show)
+    single = None
+    if len(run.assessment.curves) == 1:
+        single = pages.curve_view(run.assessment, 0)
+    return _render(request, "run.html", status=status, run_id=run_id, run=run, summary=summary,
+                   curve=single, error=error, notice=notice, show=show,
+                   choices=pages.choices(request.app.state.profiles))
+
+
+async def curve_page(request: Request) -> Response:
+    run_id, run = _open_run(request)
+    index = request.path_params["index"]
+    if not 0 <= index < len(run.assessment.curves):
+        raise PageError(f"This run has no curve number {index + 1}.", 404)
+    return _render(request, "curve.html", run_id=run_id, run=run,
+                   curve=pages.curve_view(run.assessment, index))
+
+
+async def run_settings(request: Request) -> Response:
+    form = await _form(request)
+    run_id, run = _open_run(request)
+    before = (run.profile, run.model, run.weighting)
+    for key, value in _settings(form, request).items():
+        setattr(run, key, value)
+    try:
+        await run_in_threadpool(_assess, run)
+    except CalibError as exc:
+        run.profile, run.model, run.weighting = before
+        await run_in_threadpool(_assess, run)
+        return _run_view(request, run_id, run, error=one_line(str(exc)), status=400)
+    return RedirectResponse(f"/run/{run_id}", 303)
+
+
+async def run_exclude(request: Request) -> Response:
+    form = await _form(request)
+    run_id, run = _open_run(request)
+    target, reason = _text(form, "target"), _text(form, "reason")
+    back = _text(form, "back")
+    from calib.checks.exclusions import parse_exclusion
+
+    try:
+        parse_exclusion(f"{target}={reason}")
+        run.exclusions.append((target, reason))
+        await run_in_threadpool(_assess, run)
+    except (ValueError, CalibError) as exc:
+        if (target, reason) in run.exclusions:
+            run.exclusions.remove((target, reason))
+            await run_in_threadpool(_assess, run)
+        return _run_view(request, run_id, run, error=one_line(str(exc)), status=400)
+    return RedirectResponse(_back(run_id, back), 303)
+
+
+async def run_include(request: Request) -> Response:
+    form = await _form(request)
+    run_id, run = _open_run(request)
+    target, reason = _text(form, "target"), _text(form, "reason")
+    back = _text(form, "back")
+    kept = [(t, r) for t, r in run.exclusions if t != target]
+    if len(kept) == len(run.exclusions):
+        return _run_view(request, run_id, run, status=400, error=(
+            f"{target or 'That point'} was not excluded on this page, so it cannot be put back "
+            "here (a point the run file excludes stays out)."))
+    if not reason:
+        return _run_view(request, run_id, run, status=400, error=(
+            f"Putting {target} back needs a reason: type it in the box beside the point."))
+    run.exclusions = kept
+    run.reinclusions.append((target, reason))
+    await run_in_threadpool(_assess, run)
+    return RedirectResponse(_back(run_id, back), 303)
+
+
+def _back(run_id: str, back: str) -> str:
+    """Where to return after a form: this run's page or one of its curves (never elsewhere)."""
+    if back.isdigit():
+        return f"/run/{run_id}/curve/{int(back)}"
+    return f"/run/{run_id}"
+
+
+async def run_close(request: Request) -> Response:
+    await _form(request)
+    run_id, _ = _open_run(request)
+    request.app.state.store.close_run(run_id)
+    return RedirectResponse("/", 303)
+
+
+# ---------------------------------------------------------------------- issue the record
+
+async def issue_page(request: Request) -> Response:
+    run_id, run = _open_run(request)
+    return _render(request, "issue.html", run_id=run_id, run=run,
+                   templates=request.app.state.report_templates)
+
+
+async def issue_post(request: Request) -> Response:
+    form = await _form(request)
+    run_id, run = _open_run(request)
+    prepared_by = _text(form, "prepared_by")
+    if not prepared_by:
+        raise PageError("Type the printed name of the analyst issuing the record.")
+    template = _template_path(request, _text(form, "template"))
+    file_it = form.get("file_in_archive") == "yes"
+    if file_it:
+        _archive_path(request)
+
+    def issue() -> None:
+        from calib.record.record import build_record
+        from calib.workflow import record_pdf
+
+        record = build_record(run.assessment, prepared_by=prepared_by)
+        run.issued, run.issued_pdf = record, record_pdf(record, template=template)
+        run.filed = ""
+        if file_it:
+            from calib.archive import Archive
+
+            with Archive(request.app.state.archive) as store:
+                entry = store.append(record, run.issued_pdf, kind="issued")
+            run.filed = (f"Record {entry.record_id} filed in the archive as entry seq "
+                         f"{entry.seq}.")
+
+    await run_in_threadpool(issue)
+    return RedirectResponse(f"/run/{run_id}/issued", 303)
+
+
+def _template_path(request: Request, name: str) -> Path | None:
+    """A report template chosen by name from the folder given at start (never a path)."""
+    if not name:
+        return None
+    found = request.app.state.report_templates.get(name)
+    if found is None:
+        raise PageError(f"Unknown report template {name!r}: choose one from the list.")
+    return found
+
+
+async def issued_page(request: Request) -> Response:
+    run_id, run = _open_run(request)
+    if run.issued is None:
+        return RedirectResponse(f"/run/{run_id}/issue", 303)
+    return _render(request, "issued.html", run_id=run_id, run=run, record=run.issued)
+
+
+async def issued_pdf(request: Request) -> Response:
+    _, run = _open_run(request)
+    if run.issued_pdf is None:
+        raise PageError("No record has been issued for this run yet.", 404)
+    return _attachment(f"{run.issued.record_id}.pdf", "application/pdf", run.issued_pdf)
+
+
+def _attachment(filename: str, media_type: str, data: bytes) -> Response:
+    return Response(data, media_type=media_type, headers={
+        "Content-Disposition": f'attachment; filename="{filename}"',
+        "Cache-Control": "no-store"})
+
+
+# ---------------------------------------------------------------------- sign and verify
+
+async def sign_page(request: Request) -> Response:
+    return _render(request, "sign.html")
+
+
+async def sign_post(request: Request) -> Response:
+    form = await _form(request)
+    upload = await _file(form, "record", what="record (its PDF or JSON)")
+    assert upload is not None
+    role, name = _text(form, "role"), _text(form, "name")
+    if role not in ("reviewed", "approved", "rejected"):
+        raise PageError("Choose what the signature means: reviewed, approved or rejected.")
+    if not name:
+        raise PageError("Type the printed name of the signer.")
+    meaning = _text(form, "meaning") or None
+    key_file = await _file(form, "key", what="key file", required=False)
+    passphrase = form.get("passphrase")
+    passphrase = passphrase if isinstance(passphrase, str) else ""
+    if key_file and not passphrase:
+        raise PageError("A key file needs its passphrase: type it in the passphrase box.")
+    file_it = form.get("file_in_archive") == "yes"
+    if file_it:
+        _archive_path(request)
+
+    def sign() -> tuple[Any, list[Any]]:
+        from calib.record.keys import load_signing_key
+        from calib.record.signoff import file_versions, sign_file
+
+        key = None
+        if key_file:
+            with private_copy(key_file[0], key_file[1]) as path:
+                key = load_signing_key(path, passphrase=passphrase.encode())
+        with private_copy(upload[0], upload[1]) as path:
+            signed = sign_file(path, role=role, name=name, meaning=meaning, key=key)
+        entries = []
+        if file_it:
+            from calib.archive import Archive
+
+            with Archive(request.app.state.archive) as store:
+                entries = file_versions(store, signed)
+        return signed, entries
+
+    signed, entries = await run_in_threadpool(sign)
+    record = signed.record
+    version = len(record.body["signatures"])
+    download = request.app.state.store.add_download(Download(
+        f"{record.record_id}-v{version + 1}.pdf", "application/pdf", signed.pdf))
+    return _render(request, "signed.html", record=record, signature=record.body["signatures"][-1],
+                   version=version + 1, download=download, entries=entries, keyed=bool(key_file))
+
+
+async def verify_page(request: Request) -> Response:
+    return _render(request, "verify.html", report=None)
+
+
+async def verify_post(request: Request) -> Response:
+    form = await _form(request)
+    upload = await _file(form, "record", what="record (its PDF or JSON)")
+    assert upload is not None
+
+    def verify() -> Any:
+        from calib.record.verify import verify_file
+
+        with private_copy(upload[0], upload[1]) as path:
+            return verify_file(path)
+
+    report = await run_in_threadpool(verify)
+    return _render(request, "verify.html", report=pages.verify_view(report, upload[0]))
+
+
+async def download(request: Request) -> Response:
+    item = request.app.state.store.download(request.path_params["download_id"])
+    if item is None:
+        raise PageError("This download is no longer available; make the file again.", 404)
+    return _attachment(item.filename, item.media_type, item.data)
+
+
+# ---------------------------------------------------------------------- archive and trend
+
+def _store(request: Request) -> Any:
+    from calib.archive import Archive
+
+    return Archive(_archive_path(request), create=False)
+
+
+async def archive_page(request: Request) -> Response:
+    query = {k: " ".join(request.query_params.get(k, "").split())
+             for k in ("analyte", "from", "to", "verdict", "instrument")}
+    for key in ("from", "to"):
+        if query[key]:
+            pages.check_date(query[key], key)
+    if query["verdict"] and query["verdict"] not in ("accepted", "rejected", "needs-review"):
+        raise PageError(f"Unknown verdict {query['verdict']!r}: choose one from the list.")
+    with _store(request) as store:
+        found = store.entries(analyte=query["analyte"] or None, verdict=query["verdict"] or None,
+                              instrument=query["instrument"] or None,
+                              date_from=query["from"] or None, date_to=query["to"] or None,
+                              data=False)
+        analytes = store.analytes()
+    return _render(request, "archive.html", query=query, entries=found, analytes=analytes)
+
+
+async def archive_record(request: Request) -> Response:
+    record_id = request.path_params["record_id"]
+    with _store(request) as store:
+        versions = store.entries(record_id=record_id)
+    if not versions:
+        raise PageError(f"No record {record_id} in the archive.", 404)
+    return _render(request, "record.html", view=pages.record_view(versions))
+
+
+async def archive_pdf(request: Request) -> Response:
+    record_id, seq = request.path_params["record_id"], request.path_params["seq"]
+    with _store(request) as store:
+        versions = store.entries(record_id=record_id)
+    entry = next((v for v in versions if v.seq == seq), None)
+    if entry is None:
+        raise PageError(f"No entry seq {seq} of record {record_id} in the archive.", 404)
+    return _attachment(f"{entry.record_id}-seq{entry.seq}.pdf", "application/pdf", entry.pdf)
+
+
+async def archive_verify_record(request: Request) -> Response:
+    record_id = request.path_params["record_id"]
+
+    def verify() -> Any:
+        from calib.record.verify import verify_file
+
+        with _store(request) as store:
+            versions = store.entries(record_id=record_id)
+            if not versions:
+                raise PageError(f"No record {record_id} in the archive.", 404)
+            latest = versions[-1]
+            with private_copy(f"{latest.record_id}.pdf", latest.pdf) as path:
+                return versions, verify_file(path, archive=store)
+
+    versions, report = await run_in_threadpool(verify)
+    return _render(request, "record.html", view=pages.record_view(versions),
+                   verified=pages.verify_view(report, f"{record_id} (latest version)"))
+
+
+async def archive_chain(request: Request) -> Response:
+    with _store(request) as store:
+        report = store.verify_chain()
+    return _render(request, "chain.html", report=report)
+
+
+async def trend_page(request: Request) -> Response:
+    analyte = " ".join(request.query_params.get("analyte", "").split())
+    with _store(request) as store:
+        analytes = store.analytes()
+        trend = store.trend(analyte) if analyte else None
+    view = None
+    if trend is not None:
+        if not (trend.points or trend.left_out):
+            raise PageError(f"No curve of {analyte!r} in the archive; analytes archived: "
+                            + (", ".join(analytes) or "none") + ".", 404)
+        view = await run_in_threadpool(pages.trend_view, trend)
+    return _render(request, "trend.html", analyte=analyte, analytes=analytes, trend=view)
+
+
+# ---------------------------------------------------------------------- quantify
+
+async def quantify_page(request: Request) -> Response:
+    return _render(request, "quantify.html", result=None)
+
+
+async def quantify_post(request: Request) -> Response:
+    form = await _form(request)
+    curve = await _file(form, "curve", what="curve (an issued record, or a run file)")
+    samples = await _file(form, "samples", what="samples file", required=False)
+    force = form.get("force") == "yes"
+    assert curve is not None
+
+    def quantify() -> dict[str, Any]:
+        from calib.quantify.document import quantify_document
+        from calib.quantify.workflow import quantify_files
+
+        with private_copy(curve[0], curve[1]) as curve_path:
+            if samples is None:
+                report = quantify_files(curve_path, None, force=force)
+            else:
+                with private_copy(samples[0], samples[1]) as samples_path:
+                    report = quantify_files(curve_path, samples_path, force=force)
+        return quantify_document(report)
+
+    document = await run_in_threadpool(quantify)
+
+    def workbook() -> bytes:
+        from calib.report.quantify_xlsx import write_quantify_xlsx
+
+        return write_quantify_xlsx(document)
+
+    xlsx = request.app.state.store.add_download(Download(
+        "quantify-results.xlsx",
+        "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet",
+        await run_in_threadpool(workbook)))
+    return _render(request, "quantify.html", result=pages.quantify_view(document), xlsx=xlsx)
+
+
+# ---------------------------------------------------------------------- errors
+
+async def _page_error(request: Request, exc: Exception) -> Response:
+    assert isinstance(exc, PageError)
+    return _render(request, "error.html", status=exc.status, message=exc.message)
+
+
+async def _calib_error(request: Request, exc: Exception) -> Response:
+    return _render(request, "error.html", status=400, message=one_line(str(exc)))
+
+
+async def _http_error(request: Request, exc: Exception) -> Response:
+    assert isinstance(exc, HTTPException)
+    message = ("There is no such page." if exc.status_code == 404 else
+               "That request is not allowed here." if exc.status_code == 405 else
+               one_line(exc.detail))
+    return _render(request, "error.html", status=exc.status_code, message=message)
+
+
+async def _internal_error(request: Request, exc: Exception) -> Response:
+    message = (f"Internal error: {type(exc).__name__}: {one_line(str(exc))} (a bug in calib: "
+               "please report it with the file you used).")
+    return _render(request, "error.html", status=500, message=message)
+
+
+def create_app(*, archive: str | os.PathLike[str] | None = None,
+               templates: str | os.PathLike[str] | None = None,
+               access_token: str | None = None,
+               max_upload: int = DEFAULT_MAX_UPLOAD) -> Starlette:
+    """The web application behind ``calib serve``.
+
+    Parameters
+    ----------
+    archive : path, optional
+        The archive to search, file records in and chart trends from.
+    templates : path, optional
+        A folder of the lab's report templates (``*.toml``), offered by name when
+        issuing a record.
+    access_token : str, optional
+        When set, every browser must present it once (``?token=…``); ``calib serve``
+        sets one whenever it listens beyond the loopback interface.
+    max_upload : int
+        Largest request body accepted, in bytes.
+
+    Examples
+    --------
+    >>> app = create_app()
+    >>> sorted(r.path for r in app.routes)[:3]
+    ['/', '/archive', '/archive/chain']
+    """
+    from calib.checks.profile import shipped_profiles
+
+    routes = [
+        Route("/", home),
+        Route("/check", _closing(check_upload), methods=["POST"]),
+        Route("/run/{run_id}", run_page),
+        Route("/run/{run_id}/curve/{index:int}", curve_page),
+        Route("/run/{run_id}/settings", _closing(run_settings), methods=["POST"]),
+        Route("/run/{run_id}/exclude", _closing(run_exclude), methods=["POST"]),
+        Route("/run/{run_id}/include", _closing(run_include), methods=["POST"]),
+        Route("/run/{run_id}/close", _closing(run_close), methods=["POST"]),
+        Route("/run/{run_id}/issue", issue_page),
+        Route("/run/{run_id}/issue", _closing(issue_post), methods=["POST"]),
+        Route("/run/{run_id}/issued", issued_page),
+        Route("/run/{run_id}/record.pdf", issued_pdf),
+        Route("/sign", sign_page),
+        Route("/sign", _closing(sign_post), methods=["POST"]),
+        Route("/verify", verify_page),
+        Route("/verify", _closing(verify_post), methods=["POST"]),
+        Route("/download/{download_id}", download),
+        Route("/archive", archive_page),
+        Route("/archive/chain", archive_chain),
+        Route("/archive/trend", trend_page),
+        Route("/archive/record/{record_id}", archive_record),
+        Route("/archive/record/{record_id}/verify", archive_verify_record),
+        Route("/archive/record/{record_id}/{seq:int}.pdf", archive_pdf),
+        Route("/quantify", quantify_page),
+        Route("/quantify", _closing(quantify_post), methods=["POST"]),
+        Mount("/static", StaticFiles(packages=[("calib.web", "static")]), name="static"),
+    ]
+    app = Starlette(
+        routes=routes, middleware=[Middleware(_Guard)],
+        exception_handlers={PageError: _page_error, CalibError: _calib_error,
+                            HTTPException: _http_error, Exception: _internal_error},
+    )
+    app.state.env = _environment()
+    app.state.store = Store()
+    app.state.archive = os.fspath(archive) if archive is not None else None
+    app.state.access_token = access_token
+    app.state.max_upload = max_upload
+    app.state.profiles = tuple(shipped_profiles())
+    app.state.report_templates = (
+        {p.stem: p for p in sorted(Path(templates).glob("*.toml"))} if templates else {})
+    return app

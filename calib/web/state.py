@@ -1,0 +1,127 @@
+"""What the server holds between pages: open runs and files waiting to be downloaded.
+
+An uploaded file is kept as bytes in memory only; each time the library needs it
+on disk it is written into a private temporary folder (mode 0700) that is
+removed as soon as the call returns (:func:`private_copy`).  Nothing the browser
+sends names a path: runs and downloads are looked up by random ids.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import re
+import shutil
+import tempfile
+import threading
+from collections import OrderedDict
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from calib.web.security import new_token, safe_filename
+
+__all__ = ["Download", "OpenRun", "Store", "private_copy", "scrub"]
+
+_PREFIX = "calib-web-"
+_PRIVATE = re.compile(re.escape(os.path.join(tempfile.gettempdir(), _PREFIX)) + r"[^/\\]+[/\\]")
+
+#: How many runs and downloads are kept before the oldest is forgotten.
+KEEP = 64
+
+
+@contextlib.contextmanager
+def private_copy(name: str, data: bytes) -> Iterator[Path]:
+    """Write ``data`` as ``name`` in a fresh private folder; remove the folder afterwards.
+
+    Examples
+    --------
+    >>> with private_copy("run.csv", b"a,b") as path:
+    ...     path.read_bytes(), path.name
+    (b'a,b', 'run.csv')
+    >>> path.exists(), path.parent.exists()
+    (False, False)
+    """
+    folder = Path(tempfile.mkdtemp(prefix=_PREFIX))
+    try:
+        path = folder / safe_filename(name)
+        path.write_bytes(data)
+        yield path
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+def scrub(text: str) -> str:
+    """``text`` without the private folder's path: the page names files as uploaded.
+
+    Examples
+    --------
+    >>> with private_copy("run.csv", b"") as path:
+    ...     scrub(f"{path}: no standards found")
+    'run.csv: no standards found'
+    """
+    return _PRIVATE.sub("", text)
+
+
+@dataclass
+class OpenRun:
+    """A run file being checked: its bytes, the analyst's choices and the latest result."""
+
+    name: str
+    data: bytes
+    profile: str = "default"
+    model: str | None = None
+    weighting: str | None = None
+    #: (target, reason) pairs, in the order the analyst gave them.
+    exclusions: list[tuple[str, str]] = field(default_factory=list)
+    #: Points put back, with the reason typed for it (shown on the page).
+    reinclusions: list[tuple[str, str]] = field(default_factory=list)
+    assessment: Any = None
+    issued: Any = None
+    issued_pdf: bytes | None = None
+    filed: str = ""
+
+
+@dataclass(frozen=True)
+class Download:
+    """A file made for the browser to download."""
+
+    filename: str
+    media_type: str
+    data: bytes
+
+
+class Store:
+    """Open runs and downloads by random id, the oldest forgotten past :data:`KEEP`."""
+
+    def __init__(self) -> None:
+        self._runs: OrderedDict[str, OpenRun] = OrderedDict()
+        self._downloads: OrderedDict[str, Download] = OrderedDict()
+        self._lock = threading.Lock()
+
+    def add_run(self, run: OpenRun) -> str:
+        return self._add(self._runs, run)
+
+    def run(self, run_id: str) -> OpenRun | None:
+        with self._lock:
+            return self._runs.get(run_id)
+
+    def close_run(self, run_id: str) -> None:
+        with self._lock:
+            self._runs.pop(run_id, None)
+
+    def add_download(self, download: Download) -> str:
+        return self._add(self._downloads, download)
+
+    def download(self, download_id: str) -> Download | None:
+        with self._lock:
+            return self._downloads.get(download_id)
+
+    def _add(self, table: OrderedDict[str, Any], item: Any) -> str:
+        key = new_token()[:22]
+        with self._lock:
+            table[key] = item
+            while len(table) > KEEP:
+                table.popitem(last=False)
+        return key

@@ -1,0 +1,17 @@
+// A file dropped on a drop area goes into its file input; nothing else needs script.
+document.querySelectorAll("[data-drop]").forEach(function (zone) {
+  var input = zone.querySelector("input[type=file]");
+  if (!input) { return; }
+  zone.addEventListener("dragover", function (event) {
+    event.preventDefault();
+    zone.classList.add("over");
+  });
+  zone.addEventListener("dragleave", function () { zone.classList.remove("over"); });
+  zone.addEventListener("drop", function (event) {
+    event.preventDefault();
+    zone.classList.remove("over");
+    if (event.dataTransfer && event.dataTransfer.files.length) {
+      input.files = event.dataTransfer.files;
+    }
+  });
+});

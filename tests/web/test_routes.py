@@ -1,0 +1,553 @@
+"""Route tests of calib serve's pages with Starlette's test client.
+
+Every page, every error path, the form token on every POST, the origin check,
+the upload limit and the access token.  The figures on the pages are the
+library's (tested elsewhere); here we check that each page shows them, and
+says what went wrong in one sentence.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import pytest
+from starlette.testclient import TestClient
+
+from calib.web import create_app
+from calib.web.security import CSRF_FIELD, safe_filename
+from tests.archive.helpers import FAKE_PDF, make_record, variant
+
+ROOT = Path(__file__).resolve().parents[2]
+RUNS = ROOT / "sample_runs"
+FLUORIDE = RUNS / "fernbrook_fluoride_2026-11-30.csv"
+ANIONS = RUNS / "fernbrook_anions_wide_2026-12-01.xlsx"
+PHOSPHATE = RUNS / "fernbrook_phosphate_2026-12-06.tsv"
+FIRST_CELL = "'fernbrook_fluoride_2026-11-30.csv'!D9"
+
+
+def token_of(html: str) -> str:
+    found = re.search(rf'name="{CSRF_FIELD}" value="([^"]+)"', html)
+    assert found, "the page has no form token"
+    return found.group(1)
+
+
+def error_of(html: str) -> str:
+    found = re.search(r'<p class="error" role="alert">(.*?)</p>', html, re.DOTALL)
+    assert found, "the page shows no error sentence"
+    return " ".join(found.group(1).split())
+
+
+@pytest.fixture
+def archive(tmp_path: Path) -> Path:
+    return tmp_path / "records.sqlite"
+
+
+@pytest.fixture
+def client(archive: Path) -> TestClient:
+    with TestClient(create_app(archive=archive), base_url="http://127.0.0.1:8750") as c:
+        c.form_token = token_of(c.get("/").text)
+        yield c
+
+
+def post(client: TestClient, url: str, data: dict | None = None, files: dict | None = None,
+         **kw):
+    return client.post(url, data={CSRF_FIELD: client.form_token, **(data or {})}, files=files,
+                       **kw)
+
+
+def upload(client: TestClient, path: Path = FLUORIDE, **data) -> str:
+    with path.open("rb") as f:
+        r = post(client, "/check", {"profile": "default", **data}, {"run": (path.name, f)})
+    assert r.status_code == 200, r.text
+    return str(r.url).rsplit("/", 1)[-1]
+
+
+def fill_archive(path: Path, n: int = 4) -> None:
+    from calib.archive import Archive
+
+    with Archive(path) as store:
+        for i in range(n):
+            store.append(variant(make_record(seed=i, run=i), i), FAKE_PDF, kind="issued")
+
+
+# ---------------------------------------------------------------------- check a run
+
+def test_home_page_has_the_upload_form_and_sets_the_form_token_cookie(client):
+    r = client.get("/")
+    assert r.status_code == 200
+    assert 'type="file"' in r.text and 'action="/check"' in r.text
+    assert client.cookies.get("calib_form") == client.form_token
+    assert 'href="/static/calib.css"' in r.text
+    assert client.get("/static/calib.css").status_code == 200
+    assert client.get("/static/calib.js").status_code == 200
+
+
+def test_fluoride_run_shows_the_verdict_in_words_plots_fit_checks_and_standards(client):
+    run_id = upload(client)
+    html = client.get(f"/run/{run_id}").text
+    assert "! Needs review" in html
+    assert "The intercept differs significantly from zero" in html
+    assert html.count("<svg") == 2 and 'aria-label="Fluoride: residuals' in html
+    assert "prediction limits" in html  # the calibration plot's legend
+    assert "Intercept against zero (t-test)" in html and "Pass" in html
+    assert FIRST_CELL.replace("'", "&#39;") in html
+    assert html.index("Needs review") < html.index("<svg")  # the verdict first
+
+
+def test_multi_analyte_summary_filters_by_verdict_and_links_each_curve(client):
+    from calib.workflow import check_file
+
+    expected = check_file(ANIONS)
+    run_id = upload(client, ANIONS)
+    html = client.get(f"/run/{run_id}").text
+    for i, curve in enumerate(expected.curves):
+        assert f'href="/run/{run_id}/curve/{i}"' in html
+    accepted = [c.analyte for c in expected.curves if c.verdict.value == "accepted"]
+    others = [c.analyte for c in expected.curves if c.verdict.value != "accepted"]
+    shown = client.get(f"/run/{run_id}?show=accepted").text
+    for name in accepted:
+        assert f">{name}</a>" in shown
+    for name in others:
+        assert f">{name}</a>" not in shown
+    detail = client.get(f"/run/{run_id}/curve/0")
+    assert detail.status_code == 200 and expected.curves[0].analyte in detail.text
+    r = client.get(f"/run/{run_id}/curve/99")
+    assert r.status_code == 404 and "This run has no curve number 100." in r.text
+
+
+def test_settings_recompute_with_another_weighting(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/settings", {"profile": "default", "weighting": "1/x"})
+    assert r.status_code == 200 and "weighting 1/x." in r.text
+    r = post(client, f"/run/{run_id}/settings", {"profile": "nonsense"})
+    assert r.status_code == 400
+    assert "Unknown profile &#39;nonsense&#39;: choose one from the list." in r.text
+
+
+@pytest.mark.parametrize(("data", "message"), [
+    ({"profile": "nonsense"}, "Unknown profile &#39;nonsense&#39;: choose one from the list."),
+    ({"model": "cubic"}, "Unknown model &#39;cubic&#39;: choose one from the list."),
+    ({"weighting": "1/z"}, "Unknown weighting &#39;1/z&#39;: choose one from the list."),
+])
+def test_check_refuses_unknown_choices(client, data, message):
+    with FLUORIDE.open("rb") as f:
+        r = post(client, "/check", data, {"run": (FLUORIDE.name, f)})
+    assert r.status_code == 400 and error_of(r.text) == message
+
+
+def test_check_without_a_file_asks_for_one(client):
+    r = post(client, "/check", {"profile": "default"})
+    assert r.status_code == 400
+    assert error_of(r.text) == "Choose the run file (the instrument export) to upload."
+
+
+def test_unreadable_run_file_is_one_sentence_naming_the_upload_not_a_temp_folder(client):
+    r = post(client, "/check", {}, {"run": ("notes.csv", b"nothing,here\n1,2\n")})
+    assert r.status_code == 400
+    sentence = error_of(r.text)
+    assert sentence.startswith("notes.csv")
+    assert "calib-web-" not in r.text and "Traceback" not in r.text
+
+
+def test_exclude_a_point_with_a_reason_recomputes_and_put_it_back(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/exclude", {"target": FIRST_CELL, "reason": "vial cap loose"})
+    assert r.status_code == 200
+    assert "Excluded " in r.text and "vial cap loose" in r.text
+    assert "17 standards in the fit" in r.text
+    r = post(client, f"/run/{run_id}/include", {"target": FIRST_CELL, "reason": ""})
+    assert r.status_code == 400
+    assert error_of(r.text) == (f"Putting {FIRST_CELL} back needs a reason: type it in the box "
+                                "beside the point.").replace("'", "&#39;")
+    r = post(client, f"/run/{run_id}/include",
+             {"target": FIRST_CELL, "reason": "cap was fine on inspection"})
+    assert r.status_code == 200 and "18 standards in the fit" in r.text
+    assert "Put back " in r.text and "cap was fine on inspection" in r.text
+
+
+def test_exclude_without_a_reason_is_refused_with_the_cli_message(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/exclude", {"target": FIRST_CELL, "reason": " "})
+    assert r.status_code == 400
+    assert error_of(r.text) == (
+        f"exclusion {FIRST_CELL + '='!r} has no reason: write CELL=REASON (every exclusion "
+        "needs one)").replace("'", "&#39;").replace('"', "&#34;")
+    assert "18 standards in the fit" in r.text
+
+
+def test_exclude_of_an_unknown_cell_is_refused_and_leaves_the_run_as_it_was(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/exclude", {"target": "Z99", "reason": "typo"})
+    assert r.status_code == 400
+    assert error_of(r.text).startswith(
+        "fernbrook_fluoride_2026-11-30.csv: exclusion &#39;Z99&#39; matches no point of the run")
+    assert "Your exclusions" not in r.text
+
+
+def test_put_back_of_a_point_not_excluded_here(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/include", {"target": "Z99", "reason": "x"})
+    assert r.status_code == 400
+    assert error_of(r.text) == ("Z99 was not excluded on this page, so it cannot be put back "
+                                "here (a point the run file excludes stays out).")
+
+
+def test_unknown_run_and_unknown_page(client):
+    r = client.get("/run/nope")
+    assert r.status_code == 404
+    assert error_of(r.text) == ("This run is no longer open (the server was restarted, or many "
+                                "runs were opened since); upload the file again.")
+    r = client.get("/no/such/page")
+    assert r.status_code == 404 and error_of(r.text) == "There is no such page."
+    r = client.put("/")
+    assert r.status_code == 405 and error_of(r.text) == "That request is not allowed here."
+
+
+def test_close_forgets_the_run(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/close")
+    assert r.status_code == 200 and str(r.url).endswith("/")
+    assert client.get(f"/run/{run_id}").status_code == 404
+
+
+# ---------------------------------------------------------------------- issue
+
+def test_issue_files_the_record_and_offers_the_pdf(client, archive):
+    from calib.archive import Archive
+
+    run_id = upload(client)
+    assert client.get(f"/run/{run_id}/issued").url.path == f"/run/{run_id}/issue"
+    r = client.get(f"/run/{run_id}/record.pdf")
+    assert r.status_code == 404
+    assert error_of(r.text) == "No record has been issued for this run yet."
+    page = client.get(f"/run/{run_id}/issue")
+    assert 'name="prepared_by"' in page.text and 'name="file_in_archive"' in page.text
+    r = post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                              "file_in_archive": "yes"})
+    assert r.status_code == 200 and "filed in the archive as entry seq 1" in r.text
+    pdf = client.get(f"/run/{run_id}/record.pdf")
+    assert pdf.content.startswith(b"%PDF") and "attachment" in pdf.headers["content-disposition"]
+    with Archive(archive, create=False) as store:
+        (entry,) = store.entries()
+    assert entry.pdf == pdf.content and entry.record_id in r.text
+
+
+def test_issue_needs_a_name(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/issue", {"prepared_by": ""})
+    assert r.status_code == 400
+    assert error_of(r.text) == "Type the printed name of the analyst issuing the record."
+
+
+def test_issue_with_an_unknown_template_name(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                              "template": "../../etc/passwd"})
+    assert r.status_code == 400
+    assert error_of(r.text) == ("Unknown report template &#39;../../etc/passwd&#39;: choose one "
+                                "from the list.")
+
+
+def test_report_templates_are_offered_by_name_from_the_folder(tmp_path):
+    folder = tmp_path / "templates"
+    folder.mkdir()
+    (folder / "fernbrook.toml").write_text(
+        '[lab]\nname = "Fernbrook Water Laboratory (fictional)"\n', encoding="utf-8")
+    with TestClient(create_app(templates=folder)) as c:
+        c.form_token = token_of(c.get("/").text)
+        run_id = upload(c)
+        page = c.get(f"/run/{run_id}/issue").text
+        assert '<option value="fernbrook">fernbrook</option>' in page
+        r = post(c, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                             "template": "fernbrook"})
+        assert r.status_code == 200 and "issued" in r.text
+
+
+def test_without_an_archive_filing_and_archive_pages_say_how_to_open_one():
+    with TestClient(create_app()) as c:
+        c.form_token = token_of(c.get("/").text)
+        message = "No archive is open: start the server with calib serve --archive DB."
+        for url in ("/archive", "/archive/trend", "/archive/chain", "/archive/record/CR-1"):
+            r = c.get(url)
+            assert r.status_code == 409 and error_of(r.text) == message
+        run_id = upload(c)
+        r = post(c, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                             "file_in_archive": "yes"})
+        assert r.status_code == 409 and error_of(r.text) == message
+
+
+# ---------------------------------------------------------------------- sign and verify
+
+def issued_pdf(client: TestClient, preparer: str = "R. Okafor") -> bytes:
+    run_id = upload(client)
+    post(client, f"/run/{run_id}/issue", {"prepared_by": preparer})
+    return client.get(f"/run/{run_id}/record.pdf").content
+
+
+def test_sign_as_reviewed_then_the_preparer_cannot_approve(client):
+    pdf = issued_pdf(client)
+    assert 'name="role"' in client.get("/sign").text
+    r = post(client, "/sign", {"role": "reviewed", "name": "T. Overgaard"},
+             {"record": ("record.pdf", pdf)})
+    assert r.status_code == 200 and "Signed: reviewed by T. Overgaard" in r.text
+    link = re.search(r'href="(/download/[^"]+)"', r.text).group(1)
+    signed = client.get(link).content
+    assert signed.startswith(b"%PDF") and signed != pdf
+    r = post(client, "/sign", {"role": "approved", "name": "R. Okafor"},
+             {"record": ("record-v2.pdf", signed)})
+    assert r.status_code == 400
+    assert "R. Okafor prepared this record" in error_of(r.text) or "preparer" in error_of(r.text)
+
+
+@pytest.mark.parametrize(("data", "message"), [
+    ({"role": "", "name": "T. Overgaard"},
+     "Choose what the signature means: reviewed, approved or rejected."),
+    ({"role": "reviewed", "name": ""}, "Type the printed name of the signer."),
+])
+def test_sign_form_errors(client, data, message):
+    r = post(client, "/sign", data, {"record": ("record.pdf", b"%PDF-1.7")})
+    assert r.status_code == 400 and error_of(r.text) == message
+
+
+def test_sign_without_a_record_and_key_without_passphrase(client):
+    r = post(client, "/sign", {"role": "reviewed", "name": "T. Overgaard"})
+    assert error_of(r.text) == "Choose the record (its PDF or JSON) to upload."
+    r = post(client, "/sign", {"role": "reviewed", "name": "T. Overgaard"},
+             {"record": ("record.pdf", b"%PDF"), "key": ("t.key.pem", b"key")})
+    assert error_of(r.text) == "A key file needs its passphrase: type it in the passphrase box."
+
+
+def test_sign_with_a_key_file_and_its_passphrase(client, tmp_path):
+    from calib.record.keys import new_key
+
+    private = new_key("t-overgaard", folder=tmp_path, passphrase=b"correct horse").private_path
+    pdf = issued_pdf(client)
+    r = post(client, "/sign", {"role": "reviewed", "name": "T. Overgaard",
+                               "passphrase": "correct horse"},
+             {"record": ("record.pdf", pdf), "key": (Path(private).name,
+                                                     Path(private).read_bytes())})
+    assert r.status_code == 200 and "with a key" in r.text
+    r = post(client, "/sign", {"role": "reviewed", "name": "T. Overgaard",
+                               "passphrase": "wrong"},
+             {"record": ("record.pdf", pdf), "key": (Path(private).name,
+                                                     Path(private).read_bytes())})
+    assert r.status_code == 400 and "Traceback" not in r.text and error_of(r.text)
+
+
+def test_verify_an_intact_record_and_an_altered_one(client):
+    pdf = issued_pdf(client)
+    r = post(client, "/verify", {}, {"record": ("CR.pdf", pdf)})
+    assert r.status_code == 200 and "CR.pdf: intact. Every check passed." in r.text
+    # Change the version digest the PDF states: verification must say so.
+    digest = re.search(rb"/Keywords \(CR-[0-9A-F]+, ([0-9a-f]{64})", pdf).group(1)
+    altered = pdf.replace(digest, (b"1" if digest[:1] == b"0" else b"0") + digest[1:])
+    r = post(client, "/verify", {}, {"record": ("CR.pdf", altered)})
+    assert r.status_code == 200 and "CR.pdf: NOT VERIFIED, 2 problems found." in r.text
+    assert "Problem: the PDF states version digest" in r.text
+    r = post(client, "/verify", {}, {"record": ("notes.txt", b"hello")})
+    assert r.status_code == 400 and "calib-web-" not in r.text and error_of(r.text)
+
+
+def test_download_that_is_gone(client):
+    r = client.get("/download/nothing")
+    assert r.status_code == 404
+    assert error_of(r.text) == "This download is no longer available; make the file again."
+
+
+# ---------------------------------------------------------------------- archive and trend
+
+def test_archive_search_open_verify_and_chain(client, archive):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                              "file_in_archive": "yes"})
+    record_id = re.search(r"Record (CR-[0-9A-F]+) issued", r.text).group(1)
+    listing = client.get("/archive", params={"analyte": "fluoride",
+                                             "verdict": "needs-review"}).text
+    assert f'href="/archive/record/{record_id}"' in listing
+    none = client.get("/archive", params={"analyte": "Nitrate-N"}).text
+    assert "No entries match." in none
+    page = client.get(f"/archive/record/{record_id}").text
+    assert "Fluoride" in page and "issued" in page
+    verified = client.get(f"/archive/record/{record_id}/verify").text
+    assert f"{record_id} (latest version): intact. Every check passed." in verified
+    pdf = client.get(f"/archive/record/{record_id}/1.pdf")
+    assert pdf.content.startswith(b"%PDF")
+    chain = client.get("/archive/chain").text
+    assert "Intact." in chain and "1 entries" in chain
+    r = client.get(f"/archive/record/{record_id}/9.pdf")
+    assert r.status_code == 404
+    assert error_of(r.text) == f"No entry seq 9 of record {record_id} in the archive."
+    r = client.get("/archive/record/CR-000000000000")
+    assert error_of(r.text) == "No record CR-000000000000 in the archive."
+
+
+def test_archive_search_errors(client, archive):
+    fill_archive(archive, 1)
+    r = client.get("/archive", params={"from": "30/11/2026"})
+    assert r.status_code == 400
+    assert error_of(r.text) == ("The From date must be written YYYY-MM-DD, e.g. 2026-11-30; "
+                                "got &#39;30/11/2026&#39;.")
+    r = client.get("/archive", params={"verdict": "great"})
+    assert error_of(r.text) == "Unknown verdict &#39;great&#39;: choose one from the list."
+
+
+def test_archive_that_does_not_exist_is_not_created(client, archive):
+    r = client.get("/archive")
+    assert r.status_code == 400 and error_of(r.text)
+    assert not archive.exists()
+
+
+def test_trend_page_draws_control_charts(client, archive):
+    fill_archive(archive, 4)
+    r = client.get("/archive/trend")
+    assert '<option value="Nitrate-N"' in r.text
+    r = client.get("/archive/trend", params={"analyte": "nitrate-n"})
+    assert r.status_code == 200
+    assert r.text.count("<svg") == 3 and "control chart of slope b" in r.text
+    assert "Limits from the first 4 accepted curves" in r.text
+    r = client.get("/archive/trend", params={"analyte": "Arsenic"})
+    assert r.status_code == 404
+    assert error_of(r.text) == ("No curve of &#39;Arsenic&#39; in the archive; analytes "
+                                "archived: Nitrate-N.")
+
+
+def test_trend_with_too_few_curves_says_so(client, archive):
+    fill_archive(archive, 2)
+    r = client.get("/archive/trend", params={"analyte": "Nitrate-N"})
+    assert "Not evaluated: 2 accepted curves (0 not accepted)" in r.text
+
+
+# ---------------------------------------------------------------------- quantify
+
+def test_quantify_the_runs_own_samples_and_download_the_workbook(client):
+    assert 'name="samples"' in client.get("/quantify").text
+    with PHOSPHATE.open("rb") as f:
+        r = post(client, "/quantify", {}, {"curve": (PHOSPHATE.name, f)})
+    assert r.status_code == 200 and "Batch verdict" in r.text and "✓ Accepted" in r.text
+    link = re.search(r'href="(/download/[^"]+)"', r.text).group(1)
+    xlsx = client.get(link)
+    assert xlsx.content[:2] == b"PK" and "quantify-results.xlsx" in xlsx.headers[
+        "content-disposition"]
+
+
+def test_quantify_errors_are_one_sentence(client):
+    r = post(client, "/quantify")
+    assert error_of(r.text) == "Choose the curve (an issued record, or a run file) to upload."
+    with FLUORIDE.open("rb") as f:
+        r = post(client, "/quantify", {}, {"curve": (FLUORIDE.name, f)})
+    assert r.status_code == 400
+    assert error_of(r.text).startswith("fernbrook_fluoride_2026-11-30.csv: no unknown or QC "
+                                       "samples found to quantify")
+
+
+# ---------------------------------------------------------------------- safety
+
+POSTS = ["/check", "/run/x/settings", "/run/x/exclude", "/run/x/include", "/run/x/close",
+         "/run/x/issue", "/sign", "/verify", "/quantify"]
+
+
+@pytest.mark.parametrize("url", POSTS)
+def test_every_post_needs_the_form_token(client, url):
+    r = client.post(url, data={"profile": "default"})
+    assert r.status_code == 403
+    assert error_of(r.text) == ("The form had no valid page token (the page may be old, or the "
+                                "form came from another site); reload the page and send it "
+                                "again.")
+    r = client.post(url, data={CSRF_FIELD: "forged"})
+    assert r.status_code == 403
+
+
+def test_a_post_from_another_site_is_refused(client):
+    r = post(client, "/check", {}, headers={"Origin": "https://elsewhere.example"})
+    assert r.status_code == 403
+    assert error_of(r.text) == "This form was sent from another site, so it was refused."
+
+
+def test_uploads_above_the_limit_are_refused(tmp_path):
+    with TestClient(create_app(max_upload=1000)) as c:
+        c.form_token = token_of(c.get("/").text)
+        r = post(c, "/check", {}, {"run": ("big.csv", b"x" * 5000)})
+    assert r.status_code == 413
+    assert error_of(r.text) == "The file is too large: at most 1 kB can be uploaded."
+
+
+def test_access_token_is_needed_beyond_loopback():
+    with TestClient(create_app(access_token="s3cret")) as c:
+        r = c.get("/")
+        assert r.status_code == 403
+        assert error_of(r.text) == ("This page needs the access token printed when calib "
+                                    "serve started: open the address it printed, with "
+                                    "?token=… at the end.")
+        assert c.get("/", params={"token": "wrong"}).status_code == 403
+        r = c.get("/archive/chain", params={"token": "s3cret"}, follow_redirects=False)
+        assert r.status_code == 303 and r.headers["location"].endswith("/archive/chain")
+        assert c.get("/").status_code == 200  # the cookie now carries it
+        c.cookies.clear()
+        assert c.post("/check").status_code == 403
+
+
+def test_internal_errors_show_a_sentence_and_no_traceback(client, monkeypatch):
+    import calib.workflow
+
+    def broken(*args, **kwargs):
+        raise ZeroDivisionError("float division by zero")
+
+    monkeypatch.setattr(calib.workflow, "check_file", broken)
+    with TestClient(client.app, raise_server_exceptions=False) as c:
+        token = token_of(c.get("/").text)
+        r = c.post("/check", data={CSRF_FIELD: token},
+                   files={"run": ("run.csv", b"a")})
+    assert r.status_code == 500
+    assert error_of(r.text) == ("Internal error: ZeroDivisionError: float division by zero (a "
+                                "bug in calib: please report it with the file you used).")
+    assert "Traceback" not in r.text
+
+
+def test_file_names_are_escaped_on_the_page(client):
+    name = "<script>alert(1)</script>.csv"
+    r = post(client, "/check", {}, {"run": (name, FLUORIDE.read_bytes())})
+    assert "<script>alert" not in r.text
+
+
+def test_safe_filename_never_keeps_a_folder():
+    assert safe_filename("/etc/passwd") == "passwd"
+    assert safe_filename("a\\b\\..\\c.csv") == "c.csv"
+    assert safe_filename("") == "upload"
+
+
+def test_the_private_folder_is_gone_after_each_check(client, monkeypatch):
+    import calib.workflow
+
+    seen = []
+    real = calib.workflow.check_file
+
+    def spy(path, **kwargs):
+        seen.append(Path(path))
+        assert Path(path).parent.stat().st_mode & 0o077 == 0  # private to us
+        return real(path, **kwargs)
+
+    monkeypatch.setattr(calib.workflow, "check_file", spy)
+    upload(client)
+    assert seen and not seen[0].exists() and not seen[0].parent.exists()
+
+
+def test_serve_command_prints_the_url_and_needs_a_token_beyond_loopback(monkeypatch, capsys):
+    import uvicorn
+
+    from calib.cli.main import main
+
+    calls = []
+    monkeypatch.setattr(uvicorn, "run", lambda app, **kw: calls.append((app, kw)))
+    assert main(["serve", "--port", "8799"]) == 0
+    out = capsys.readouterr().out
+    assert "calib: serving on http://127.0.0.1:8799/\n" in out
+    assert calls[-1][1]["host"] == "127.0.0.1" and calls[-1][0].state.access_token is None
+    assert main(["serve", "--host", "0.0.0.0"]) == 0
+    out = capsys.readouterr().out
+    token = calls[-1][0].state.access_token
+    assert token and f"http://0.0.0.0:8750/?token={token}" in out
+    assert main(["serve", "--port", "0"]) == 2
+    assert "--port must be from 1 to 65535, got 0" in capsys.readouterr().err
+    assert main(["serve", "--templates", "no-such-folder"]) == 3
+    assert "--templates no-such-folder is not a folder" in capsys.readouterr().err

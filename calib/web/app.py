@@ -26,6 +26,7 @@ from starlette.routing import Mount, Route
 from starlette.staticfiles import StaticFiles
 
 from calib.errors import CalibError
+from calib.output import safe_file_name
 from calib.web import pages
 from calib.web.security import (
     ACCESS_COOKIE,
@@ -377,7 +378,7 @@ async def issued_pdf(request: Request) -> Response:
 
 def _attachment(filename: str, media_type: str, data: bytes) -> Response:
     return Response(data, media_type=media_type, headers={
-        "Content-Disposition": f'attachment; filename="{filename}"',
+        "Content-Disposition": f'attachment; filename="{safe_file_name(filename)}"',
         "Cache-Control": "no-store"})
 
 

@@ -13,9 +13,10 @@ from __future__ import annotations
 
 import hmac
 import ipaddress
-import re
 import secrets
 from urllib.parse import urlsplit
+
+from calib.output import safe_file_name
 
 __all__ = [
     "ACCESS_COOKIE",
@@ -35,7 +36,6 @@ ACCESS_COOKIE = "calib_access"
 #: Instrument exports are small; 20 MB leaves room for a large multi-analyte workbook.
 DEFAULT_MAX_UPLOAD = 20 * 1024 * 1024
 
-_UNSAFE = re.compile(r"[^A-Za-z0-9._ -]+")
 
 
 def new_token() -> str:
@@ -112,5 +112,6 @@ def safe_filename(name: str | None, *, fallback: str = "upload") -> str:
     'upload'
     """
     base = (name or "").replace("\\", "/").rsplit("/", 1)[-1]
-    base = _UNSAFE.sub("_", base).strip(" .")
-    return base[:120] or fallback
+    if base.strip(" .") == "":
+        return fallback
+    return safe_file_name(base, fallback=fallback)

@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 from enum import StrEnum
+from numbers import Real
 
-__all__ = ["LimitMethod", "Model", "SampleType", "Weighting", "parse_option"]
+__all__ = ["LimitMethod", "Model", "SampleType", "Weighting", "check_confidence", "parse_option"]
 
 
 class Model(StrEnum):
@@ -62,3 +63,20 @@ def parse_option(enum: type[StrEnum], value: str | StrEnum, *, name: str) -> Str
     except ValueError:
         choices = ", ".join(member.value for member in enum)
         raise ValueError(f"{name} must be one of {choices}; got {value!r}") from None
+
+
+def check_confidence(confidence: object) -> float:
+    """``confidence`` as a float from 0.5 to below 1, or ``ValueError`` naming it.
+
+    Examples
+    --------
+    >>> check_confidence(0.95)
+    0.95
+    >>> check_confidence(95)
+    Traceback (most recent call last):
+    ...
+    ValueError: confidence must be a number from 0.5 to below 1; got 95
+    """
+    if isinstance(confidence, bool) or not (isinstance(confidence, Real) and 0.5 <= confidence < 1):
+        raise ValueError(f"confidence must be a number from 0.5 to below 1; got {confidence!r}")
+    return float(confidence)

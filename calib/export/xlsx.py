@@ -8,7 +8,6 @@ a formula.
 
 from __future__ import annotations
 
-import io
 import re
 from collections.abc import Iterable, Mapping, Sequence
 from datetime import datetime
@@ -26,6 +25,7 @@ from calib.export.tables import (
     point_rows,
     summary_rows,
 )
+from calib.export.workbook_bytes import workbook_bytes
 
 __all__ = ["results_xlsx", "sheet_name"]
 
@@ -175,6 +175,7 @@ def results_xlsx(document: Mapping[str, Any]) -> bytes:
 
     Examples
     --------
+    >>> import io
     >>> from openpyxl import load_workbook
     >>> doc = {"verdict": "accepted", "curves": [{"analyte": "=cmd", "verdict": "accepted"}]}
     >>> wb = load_workbook(io.BytesIO(results_xlsx(doc)))
@@ -185,13 +186,10 @@ def results_xlsx(document: Mapping[str, Any]) -> bytes:
 
     wb = Workbook()
     wb.properties.creator = "calib"
-    wb.properties.created = wb.properties.modified = _EPOCH
     summary = wb.active
     summary.title = "Summary"
     _summary(summary, document)
     taken = {"summary"}
     for curve in document.get("curves", []):
         _curve(wb.create_sheet(sheet_name(str(curve.get("analyte") or "Analyte"), taken)), curve)
-    out = io.BytesIO()
-    wb.save(out)
-    return out.getvalue()
+    return workbook_bytes(wb, when=_EPOCH)

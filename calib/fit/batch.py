@@ -12,7 +12,6 @@ downstream consumes batch results unchanged.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from numbers import Real
 
 import numpy as np
 from scipy import stats
@@ -21,7 +20,7 @@ from calib.fit.batch_wls import solve_wls_batch
 from calib.fit.curve import CurveFit
 from calib.fit.design import COEFFICIENTS, design_matrix, fit_weights, weight_basis
 from calib.fit.inverse import quadratic_root
-from calib.options import Model, Weighting, parse_option
+from calib.options import Model, Weighting, check_confidence, parse_option
 
 __all__ = ["BatchFit", "fit_batch"]
 
@@ -123,7 +122,7 @@ class BatchFit:
         >>> batch.t_critical(0.95).round(3)   # ν = 5: 2.571 in any handbook table
         array([2.571])
         """
-        level = self.confidence if confidence is None else _check_confidence(confidence)
+        level = self.confidence if confidence is None else check_confidence(confidence)
         # Curves share few distinct ν: one quantile each, spread back over the curves.
         nus, where = np.unique(self.residual_df, return_inverse=True)
         return stats.t.ppf(0.5 + level / 2, nus)[where]
@@ -257,11 +256,6 @@ class BatchFit:
                 f"{self.model.value}; got {name!r}"
             ) from None
 
-
-def _check_confidence(confidence: float) -> float:
-    if isinstance(confidence, bool) or not (isinstance(confidence, Real) and 0.5 <= confidence < 1):
-        raise ValueError(f"confidence must be a number from 0.5 to below 1; got {confidence!r}")
-    return float(confidence)
 
 
 def _per_curve(value: float | np.ndarray, K: int, name: str) -> np.ndarray:
@@ -406,7 +400,7 @@ def fit_batch(
     weighting = parse_option(Weighting, Weighting.NONE if weighting is None else weighting,
                              name="weighting")
     basis = weight_basis(model, weighting)
-    confidence = _check_confidence(confidence)
+    confidence = check_confidence(confidence)
     xs = np.array(x, dtype=float)
     ys = np.array(y, dtype=float)
     if xs.ndim != 2 or xs.shape != ys.shape:

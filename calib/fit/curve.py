@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from numbers import Real
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -22,7 +21,7 @@ from calib.fit.design import (
 from calib.fit.inverse import quadratic_root
 from calib.fit.response_factor import ResponseFactors, response_factors
 from calib.fit.wls import solve_wls
-from calib.options import Model, Weighting, parse_option
+from calib.options import Model, Weighting, check_confidence, parse_option
 from calib.tabular import Tabular
 
 if TYPE_CHECKING:
@@ -216,7 +215,7 @@ class CurveFit(Tabular):
         >>> round(fit.t_critical(0.95), 3)   # ν = 5: 2.571 in any handbook table
         2.571
         """
-        level = self.confidence if confidence is None else _check_confidence(confidence)
+        level = self.confidence if confidence is None else check_confidence(confidence)
         return float(stats.t.ppf(0.5 + level / 2, self.residual_df))
 
     def std_error(self, name: str) -> float:
@@ -267,7 +266,7 @@ class CurveFit(Tabular):
         >>> test.differs(0.05), test.reference_inside, round(test.change_pct, 2)
         (False, True, -0.5)
         """
-        level = self.confidence if confidence is None else _check_confidence(confidence)
+        level = self.confidence if confidence is None else check_confidence(confidence)
         low, high = self.confidence_interval(name, level)
         return CoefficientTest(
             name=name, estimate=self.coefficients[name], reference=float(reference),
@@ -373,11 +372,6 @@ class CurveFit(Tabular):
             ) from None
 
 
-def _check_confidence(confidence: float) -> float:
-    if isinstance(confidence, bool) or not (isinstance(confidence, Real) and 0.5 <= confidence < 1):
-        raise ValueError(f"confidence must be a number from 0.5 to below 1; got {confidence!r}")
-    return float(confidence)
-
 
 def fit_curve(
     x: np.ndarray | list[float],
@@ -442,7 +436,7 @@ def fit_curve(
     """
     model = parse_option(Model, model, name="model")
     weighting = parse_option(Weighting, weighting, name="weighting")
-    confidence = _check_confidence(confidence)
+    confidence = check_confidence(confidence)
     xs = np.asarray(x, dtype=float).ravel()
     ys = np.asarray(y, dtype=float).ravel()
     if xs.shape != ys.shape:

@@ -15,7 +15,6 @@ written as numbers.  The workbook's document times are the batch's
 
 from __future__ import annotations
 
-import io
 from collections.abc import Mapping, Sequence
 from datetime import datetime
 from typing import Any
@@ -25,6 +24,7 @@ from openpyxl.styles import Font
 from openpyxl.utils import get_column_letter
 
 from calib.export.cells import neutralise as export_neutralise
+from calib.export.workbook_bytes import workbook_bytes
 
 __all__ = ["neutralise", "write_quantify_xlsx"]
 
@@ -146,6 +146,7 @@ def write_quantify_xlsx(document: Mapping[str, Any]) -> bytes:
 
     Examples
     --------
+    >>> import io
     >>> from openpyxl import load_workbook
     >>> doc = {"samples": [{"sample_id": "=1+1", "analyte": "A", "sample_type": "unknown",
     ...        "n_replicates": 1, "dilution_factor": 1.0, "reported": "> ULOQ",
@@ -163,8 +164,5 @@ def write_quantify_xlsx(document: Mapping[str, Any]) -> bytes:
         when = datetime.strptime(str(document.get("created_at")), "%Y-%m-%dT%H:%M:%SZ")
     except ValueError:
         when = datetime(2000, 1, 1)
-    book.properties.created = book.properties.modified = when
     book.properties.creator = "calib"
-    out = io.BytesIO()
-    book.save(out)
-    return out.getvalue()
+    return workbook_bytes(book, when=when)

@@ -92,3 +92,15 @@ def test_terminal_text_lists_reasons_first_and_colours_only_on_request(document)
     assert "Run!D9: bubble" in plain
     coloured = verdict_text(document, colour=True)
     assert "\x1b[1;31mREJECTED\x1b[0m" in coloured  # the word is there, the colour only helps
+
+
+def test_workbook_bytes_do_not_depend_on_the_clock(document, monkeypatch):
+    # openpyxl stamps the save time into the file and the zip entries carry the clock time;
+    # a saved export must not change with either.
+    import time as time_module
+
+    first = results_xlsx(document)
+    real = time_module.time
+    monkeypatch.setattr(time_module, "time", lambda: real() + 3600)
+    monkeypatch.setattr(time_module, "localtime", lambda t=None: time_module.gmtime(real() + 7200))
+    assert results_xlsx(document) == first

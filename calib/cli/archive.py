@@ -143,16 +143,22 @@ def _entries_table(entries: list[Any]) -> str:
     return "\n".join(lines)
 
 
+def _record_versions(path: str, record_id: str) -> list[Any]:
+    """Every archived version of ``record_id``, oldest first; an unknown id is an error."""
+    from calib.archive import ArchiveError
+
+    with _open(path) as archive:
+        versions = archive.entries(record_id=record_id)
+    if not versions:
+        raise ArchiveError(f"no record {record_id} in {path}")
+    return versions
+
+
 def run_show(args: argparse.Namespace) -> int:
     path = archive_path(args)
     if path is None:
         return report_no_archive()
-    from calib.archive import ArchiveError
-
-    with _open(path) as archive:
-        versions = archive.entries(record_id=args.record_id)
-    if not versions:
-        raise ArchiveError(f"no record {args.record_id} in {path}")
+    versions = _record_versions(path, args.record_id)
     body = _readable_body(versions[-1])
     if args.json:
         json.dump({"record_id": versions[0].record_id,
@@ -211,13 +217,9 @@ def run_export(args: argparse.Namespace) -> int:
     path = archive_path(args)
     if path is None:
         return report_no_archive()
-    from calib.archive import ArchiveError
     from calib.output import safe_file_name, write_atomic
 
-    with _open(path) as archive:
-        versions = archive.entries(record_id=args.record_id)
-    if not versions:
-        raise ArchiveError(f"no record {args.record_id} in {path}")
+    versions = _record_versions(path, args.record_id)
     damaged = [v.seq for v in versions if not v.digest_matches]
     if damaged:
         print(f"calib: error: entry seq {damaged[0]} of {versions[0].record_id} does not match "

@@ -110,17 +110,24 @@ def verdict_sentence(curve: Mapping[str, Any], template: ReportTemplate) -> str:
     'Rejected. Failed: Intercept is near zero.'
     """
     word = template.verdicts.word(curve.get("verdict"))
-    groups: dict[str, list[str]] = {"fail": [], "warn": [], "not-evaluated": []}
+    groups: dict[str, list[str]] = {"fail": [], "warn": [], "not-evaluated": [], "info": []}
     for check in _list(curve.get("checks")):
         check = _dict(check)
-        verdict = check.get("verdict")
-        # Only what moves the verdict: an unevaluated check matters when it could reject.
-        if verdict == "not-evaluated" and check.get("severity") != "reject":
+        verdict, severity = check.get("verdict"), check.get("severity")
+        title = str(check.get("title") or check.get("id") or "?")
+        if severity == "info":
+            # Reported for information: named apart, since they never move the verdict.
+            if verdict in ("fail", "warn"):
+                groups["info"].append(title)
+            continue
+        # An unevaluated check matters when it could reject.
+        if verdict == "not-evaluated" and severity != "reject":
             continue
         if verdict in groups:
-            groups[verdict].append(str(check.get("title") or check.get("id") or "?"))
+            groups[verdict].append(title)
     parts = [f"{word}."]
-    labels = (("fail", "Failed"), ("warn", "Warnings"), ("not-evaluated", "Not evaluated"))
+    labels = (("fail", "Failed"), ("warn", "Warnings"), ("not-evaluated", "Not evaluated"),
+              ("info", "For information, not affecting the verdict"))
     for key, label in labels:
         if groups[key]:
             parts.append(f"{label}: {'; '.join(groups[key])}.")

@@ -379,7 +379,7 @@ class _Builder:
                 _SEVERITIES.get(severity, severity or MISSING),
                 _str(c.get("detail")),
             ])
-        return self.tables.grid(rows, [0.25, 0.08, 0.07, 0.115, 0.105, 0.38], right=(1, 2),
+        return self.tables.grid(rows, [0.235, 0.095, 0.07, 0.115, 0.105, 0.38], right=(1, 2),
                                 bold=bold)
 
     def standards_table(self, curve: Mapping[str, Any]) -> Flowable:

@@ -16,8 +16,8 @@ import resource
 import subprocess
 import sys
 import tempfile
+import time
 import traceback
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -143,27 +143,37 @@ def _child(path: Path, folder: str) -> None:
         os._exit(code)
 
 
-def _check(path: Path) -> Outcome:
-    """Run ``calib check PATH --pdf`` in a forked child with a timeout and a memory limit.
+def _check_all(files: list[Path], *, at_once: int = 4) -> dict[str, Outcome]:
+    """Run ``calib check FILE --pdf`` for every file in forked children, a few at a time.
 
     Forking after calib and its libraries are imported spares each child the seconds a
     fresh interpreter spends on imports; :func:`test_a_fresh_interpreter_refuses_hostile_files`
-    runs the real command line.
+    runs the real command line.  Children are forked from this one thread only: forking
+    while other threads run can copy a lock one of them holds, and the child then hangs.
     """
+    context = multiprocessing.get_context("fork")
+    waiting, running, outcomes = list(files), [], {}
     with tempfile.TemporaryDirectory() as top:
-        folder = Path(top, "out")
-        folder.mkdir()
-        child = multiprocessing.get_context("fork").Process(target=_child, args=(path, str(folder)))
-        child.start()
-        child.join(TIMEOUT)
-        if child.is_alive():
-            child.kill()
-            child.join()
-            return Outcome(-9, "", f"timed out after {TIMEOUT} s", ())
-        read = (lambda name: Path(top, name).read_text(encoding="utf-8", errors="replace")
-                if Path(top, name).exists() else "")
-        return Outcome(child.exitcode, read("stdout.txt"), read("stderr.txt"),
-                       tuple(sorted(os.listdir(folder))))
+        while waiting or running:
+            while waiting and len(running) < at_once:
+                path = waiting.pop(0)
+                folder = Path(top, path.name, "out")
+                folder.mkdir(parents=True)
+                child = context.Process(target=_child, args=(path, str(folder)))
+                child.start()
+                running.append((path, folder, child, time.monotonic() + TIMEOUT))
+            path, folder, child, deadline = running.pop(0)
+            child.join(max(deadline - time.monotonic(), 0))
+            if child.is_alive():
+                child.kill()
+                child.join()
+                outcomes[path.name] = Outcome(-9, "", f"timed out after {TIMEOUT} s", ())
+                continue
+            read = (lambda name, f=folder: Path(f.parent, name).read_text(
+                encoding="utf-8", errors="replace") if Path(f.parent, name).exists() else "")
+            outcomes[path.name] = Outcome(child.exitcode, read("stdout.txt"),
+                                          read("stderr.txt"), tuple(sorted(os.listdir(folder))))
+    return outcomes
 
 
 @pytest.fixture(scope="session")
@@ -174,8 +184,8 @@ def outcomes(tmp_path_factory) -> dict[str, Outcome]:
         importlib.import_module(module)
     large = corpus.write_large(tmp_path_factory.mktemp("bad-large"))
     files = sorted(p for p in BAD.iterdir() if p.name != "make_corpus.py") + large
-    with ThreadPoolExecutor(max_workers=4) as pool:
-        return dict(zip((p.name for p in files), pool.map(_check, files), strict=True))
+    outcomes = _check_all(files)
+    return {p.name: outcomes[p.name] for p in files}
 
 
 def test_the_corpus_is_large_and_every_file_is_classified(outcomes):

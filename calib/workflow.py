@@ -102,12 +102,15 @@ def issue_record(
 
 def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:
     """Render ``record`` as its PDF calibration record (the record JSON attached inside)."""
+    import hashlib
+
     from calib.report import load_template, write_pdf
 
+    canonical = record.canonical  # serialised once: the digest is of these bytes
     return write_pdf(
         record.body,
-        digest=record.digest,
+        digest=hashlib.sha256(canonical).hexdigest(),
         record_id=record.record_id,
         template=load_template(template) if template is not None else None,
-        attachment=record.canonical,
+        attachment=canonical,
     )

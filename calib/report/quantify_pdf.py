@@ -250,10 +250,9 @@ class _Story:
                   for chunk in caution.split("\n\n") if chunk.strip())]
         rows = [["Role", "Printed name", "Signature", "Date and time (UTC)", "Meaning"],
                 *[[role, "", "", "", meaning] for role, meaning in _SIGNOFF]]
-        extra = [cmd for r in range(1, len(rows)) for cmd in
-                 (("TOPPADDING", (0, r), (-1, r), 9), ("BOTTOMPADDING", (0, r), (-1, r), 9))]
-        out.append(KeepTogether([*self.heading(self.t.titles.signoff),
-                                 self.tables.grid(rows, [0.14, 0.2, 0.2, 0.17, 0.29], extra=extra)]))
+        table = self.tables.grid(rows, [0.14, 0.2, 0.2, 0.17, 0.29],
+                                 tall_rows=range(1, len(rows)))
+        out.append(KeepTogether([*self.heading(self.t.titles.signoff), table]))
         return out
 
     def story(self) -> list[Flowable]:

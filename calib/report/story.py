@@ -11,7 +11,6 @@ from __future__ import annotations
 import io
 from collections.abc import Mapping, Sequence
 from typing import Any
-from xml.sax.saxutils import escape
 
 import numpy as np
 from reportlab.lib.utils import ImageReader
@@ -21,12 +20,12 @@ from reportlab.platypus import (
     Image,
     KeepTogether,
     PageBreak,
-    Paragraph,
     Spacer,
     Table,
 )
 
 from calib.fit.bands import mean_band, prediction_band
+from calib.report.blocks import SideBySide, TextBlock, plain
 from calib.report.charts import (
     CurveBand,
     PlotPoint,
@@ -44,9 +43,10 @@ from calib.report.formatting import (
     format_utc,
 )
 from calib.report.pages import SectionMark
-from calib.report.styles import INK, SHADE, get_styles
+from calib.report.styles import BOLD, get_styles
 from calib.report.tables import TableMaker
 from calib.report.template import ReportTemplate
+from calib.report.vector import as_flowable
 
 __all__ = ["build_story", "signature_words", "verdict_sentence"]
 
@@ -210,14 +210,17 @@ class _Builder:
         }
 
     # -- small pieces ----------------------------------------------------------------------
-    def para(self, text: str, style: Any = None) -> Paragraph:
-        """A paragraph of plain text (escaped: record text is never markup)."""
-        return Paragraph(escape(text), style or self.s.body)
+    def para(self, text: str, style: Any = None) -> TextBlock:
+        """A block of plain text (record text is never markup)."""
+        return plain(text, style or self.s.body)
 
-    def heading(self, text: str) -> Paragraph:
-        p = self.para(text, self.s.heading)
-        p.keepWithNext = 1
-        return p
+    def heading(self, text: str) -> TextBlock:
+        return plain(text, self.s.heading, keep_with_next=True)
+
+    def plot_title(self, text: str) -> TextBlock:
+        title = plain(text, self.s.head_cell)
+        title.spaceAfter = 3
+        return title
 
     def table_heading(self, text: str) -> list[Flowable]:
         """Heading of a table that may split across pages: never left alone at a page foot."""
@@ -253,18 +256,10 @@ class _Builder:
         scale = min(_LOGO_HEIGHT / height, _LOGO_WIDTH / width)
         return Image(io.BytesIO(self.t.logo or b""), width=width * scale, height=height * scale)
 
-    def boxed(self, bold: str, rest: str = "") -> Table:
-        markup = f"<b>{escape(bold)}</b>{escape(rest)}"
-        table = Table([[Paragraph(markup, self.s.verdict)]], colWidths=[self.width])
-        table.setStyle([
-            ("BOX", (0, 0), (-1, -1), 0.8, INK),
-            ("BACKGROUND", (0, 0), (-1, -1), SHADE),
-            ("LEFTPADDING", (0, 0), (-1, -1), 6),
-            ("RIGHTPADDING", (0, 0), (-1, -1), 6),
-            ("TOPPADDING", (0, 0), (-1, -1), 4),
-            ("BOTTOMPADDING", (0, 0), (-1, -1), 5),
-        ])
-        return table
+    def boxed(self, bold: str, rest: str = "") -> TextBlock:
+        style = self.s.verdict
+        return TextBlock([(bold, BOLD), (rest, style.fontName)], size=style.fontSize,
+                         leading=style.leading, color=style.textColor, boxed=True)
 
     # -- sections --------------------------------------------------------------------------
     def run_items(self, curve: Mapping[str, Any] | None) -> list[tuple[str, str, bool]]:
@@ -456,25 +451,22 @@ class _Builder:
         titles: list[Any] = []
         drawings: list[Any] = []
         if show.calibration_plot:
-            titles.append(self.para("Response against concentration", s.head_cell))
-            drawings.append(calibration_chart(
+            titles.append(self.plot_title("Response against concentration"))
+            drawings.append(as_flowable(calibration_chart(
                 [PlotPoint(x, y, used) for x, y, _, used in xy], self.band(curve, log_x),
                 width=w, height=_PLOT_HEIGHT, x_title=x_title,
-                y_title="Response" + self.unit("response"), log_x=log_x))
+                y_title="Response" + self.unit("response"), log_x=log_x)))
         if show.residual_plot:
             residuals = [PlotPoint(x, y - f, used) for x, y, f, used in xy if f is not None]
-            titles.append(self.para("Residuals (response − fitted) against concentration",
-                                    s.head_cell))
+            titles.append(self.plot_title("Residuals (response − fitted) against concentration"))
             if residuals:
-                drawings.append(residual_chart(
+                drawings.append(as_flowable(residual_chart(
                     residuals, width=w, height=_PLOT_HEIGHT, x_title=x_title,
-                    y_title="Residual" + self.unit("response"), log_x=log_x))
+                    y_title="Residual" + self.unit("response"), log_x=log_x)))
             else:
                 drawings.append(self.para("No residuals: the curve was not fitted."))
-        table = Table([titles, drawings], colWidths=[w + gap / 2] * len(drawings))
-        table.setStyle([("LEFTPADDING", (0, 0), (-1, -1), 0),
-                        ("RIGHTPADDING", (0, 0), (-1, -1), 0),
-                        ("VALIGN", (0, 0), (-1, -1), "TOP")])
+        table = SideBySide([[t, d] for t, d in zip(titles, drawings)],
+                           [w + gap / 2] * len(drawings))
         notes = []
         if log_x:
             all_positive = bool(xy) and min(y for _, y, _, _ in xy) > 0
@@ -523,9 +515,7 @@ class _Builder:
                 rows.append([role.capitalize(), str(name or ""), "", "",
                              getattr(meanings, role, "")])
         # Blank rows get room to sign by hand on a printed copy.
-        extra = [cmd for r in blank_rows for cmd in (("TOPPADDING", (0, r), (-1, r), 9),
-                                                      ("BOTTOMPADDING", (0, r), (-1, r), 9))]
-        table = self.tables.grid(rows, [0.11, 0.2, 0.2, 0.17, 0.32], extra=extra)
+        table = self.tables.grid(rows, [0.11, 0.2, 0.2, 0.17, 0.32], tall_rows=blank_rows)
         return [KeepTogether([self.heading(self.t.titles.signoff), table])]
 
     def range_notes(self, curve: Mapping[str, Any]) -> list[Flowable]:

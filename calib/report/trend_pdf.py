@@ -214,7 +214,7 @@ def _limits_table(trend: AnalyteTrend, tables: TableMaker) -> Flowable:
     for chart in trend.charts:
         lim = chart.limits
         if lim is None:
-            spans.append(("SPAN", (1, len(rows)), (-1, len(rows))))
+            spans.append(len(rows))
             rows.append([QUANTITIES[chart.quantity], "not evaluated: " + chart.reason,
                          "", "", "", "", "", ""])
             continue
@@ -224,7 +224,7 @@ def _limits_table(trend: AnalyteTrend, tables: TableMaker) -> Flowable:
                      *(format_number(v) for v in (lim.mean, lim.sd, low3, low2, high2, high3)),
                      str(len(chart.flagged_points()))])
     return tables.grid(rows, [0.16, 0.13, 0.11, 0.12, 0.12, 0.12, 0.12, 0.12],
-                       right=range(1, 8), extra=spans)
+                       right=range(1, 8), spans=spans)
 
 
 def _charts(trend: AnalyteTrend, width: float, s: Styles) -> list[Flowable]:

@@ -12,7 +12,8 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from reportlab.graphics.shapes import Drawing, Group, Line, Path, Polygon, PolyLine, Rect, String
+from reportlab.graphics import shapes
+from reportlab.graphics.shapes import Drawing, Group
 from reportlab.lib import colors
 from reportlab.pdfbase.pdfmetrics import stringWidth
 
@@ -20,6 +21,23 @@ from calib.report.styles import INK, LINE, MUTED, REGULAR, register_fonts
 
 __all__ = ["CurveBand", "PlotPoint", "calibration_chart", "nice_ticks", "residual_chart",
            "wants_log_axis"]
+
+
+
+def _unchecked(cls: type) -> type:
+    """``cls`` without reportlab's check of every attribute assignment.
+
+    The check (a development aid) took two thirds of the time to build a chart,
+    and a record of hundreds of analytes builds a thousand charts.  The shapes
+    here are set by this module's tested code only; drawing them is unchanged.
+    """
+    return type(cls.__name__, (cls,), {"__setattr__": object.__setattr__,
+                                       "__module__": __name__})
+
+
+Line, Path, Polygon, PolyLine, Rect, String = (
+    _unchecked(c) for c in (shapes.Line, shapes.Path, shapes.Polygon, shapes.PolyLine,
+                            shapes.Rect, shapes.String))
 
 POINT = colors.HexColor("#23466b")
 EXCLUDED = colors.HexColor("#b04a00")

@@ -26,6 +26,9 @@ from calib.report.styles import INK
 
 __all__ = ["Run", "TextWriter", "document_cache", "measure", "wrap_runs", "wrap_words"]
 
+#: Printable ASCII, the characters of numbers and most labels.
+_PRINTABLE = "".join(chr(c) for c in range(32, 127))
+
 #: A piece of a line: its text, face and width in points.
 Run = tuple[str, str, float]
 
@@ -182,10 +185,28 @@ class TextWriter:
         if found is None:
             face = getFont(font)
             doc = self.canvas._doc
-            found = [(face.getSubsetInternalName(subset, doc), escapePDF(chunk))
-                     for subset, chunk in face.splitString(text, doc)]
+            if text.isascii() and text.isprintable() and self._ascii_as_is(font):
+                # Numbers and most labels: no new character to assign a code to.
+                found = [(face.getSubsetInternalName(0, doc), escapePDF(text))]
+            else:
+                found = [(face.getSubsetInternalName(subset, doc), escapePDF(chunk))
+                         for subset, chunk in face.splitString(text, doc)]
             self._encoded[key] = found
         return found
+
+    def _ascii_as_is(self, font: str) -> bool:
+        """Whether printable ASCII keeps its own codes in the font's first subset.
+
+        reportlab sets fonts up so by default (``ttfAsciiReadable``); asked once
+        per document and font through the font's own encoder, so a font set up
+        otherwise takes the general path.
+        """
+        answers = document_cache(self.canvas, "ascii as is")
+        known = answers.get(font)
+        if known is None:
+            known = answers[font] = getFont(font).splitString(_PRINTABLE, self.canvas._doc) == [
+                (0, _PRINTABLE.encode("ascii"))]
+        return known
 
     def add(self, text: str, font: str, x: float, y: float, *, size: float | None = None,
             matrix: tuple[float, float, float, float] | None = None,

@@ -5,18 +5,18 @@ from __future__ import annotations
 import functools
 import hashlib
 import io
-from collections.abc import Mapping
+from collections.abc import Iterator, Mapping
 from datetime import UTC, datetime
 from typing import Any
 
 from reportlab.lib.utils import TimeStamp
 from reportlab.pdfbase import pdfdoc
 from reportlab.pdfgen.canvas import Canvas
-from reportlab.platypus import BaseDocTemplate, Frame, PageTemplate
+from reportlab.platypus import BaseDocTemplate, Flowable, Frame, PageTemplate
 
 from calib.report.embed import embed_file
 from calib.report.pages import PAGE_SIZES, Furniture, RecordCanvas, page_margins
-from calib.report.story import build_story
+from calib.report.story import story_sections
 from calib.report.styles import REGULAR, register_fonts
 from calib.report.template import ReportTemplate, load_template
 
@@ -79,7 +79,7 @@ def write_pdf(
         digest=digest,
     )
     buffer = io.BytesIO()
-    doc = BaseDocTemplate(
+    doc = _RecordDoc(
         buffer,
         pagesize=PAGE_SIZES[template.page_size],
         invariant=1,
@@ -101,11 +101,45 @@ def write_pdf(
     before_save = functools.partial(
         _finish, attachment=bytes(attachment), digest=digest, created_at=record.get("created_at")
     )
-    story = build_story(record, record_id=record_id, digest=digest, template=template,
-                        width=doc.width)
-    doc.build(story, canvasmaker=functools.partial(RecordCanvas, furniture=furniture,
-                                                   before_save=before_save))
+    doc.stream(story_sections(record, record_id=record_id, digest=digest, template=template,
+                              width=doc.width))
+    doc.build(doc.story, canvasmaker=functools.partial(RecordCanvas, furniture=furniture,
+                                                       before_save=before_save))
     return buffer.getvalue()
+
+
+class _SectionEnd(Flowable):
+    """Invisible marker after each section: its drawing asks for the next section."""
+
+    def wrap(self, availWidth: float, availHeight: float) -> tuple[float, float]:
+        return 0, 0
+
+    def drawOn(self, canvas: Canvas, x: float, y: float, _sW: float = 0) -> None:
+        pass  # nothing to draw, not even a saved and restored graphics state
+
+
+class _RecordDoc(BaseDocTemplate):
+    """A document laid out section by section (summary, then each analyte).
+
+    The next section's flowables are made only once the previous section has
+    been drawn, so a record of hundreds of analytes never holds all its tables
+    and charts at once.  After :meth:`stream`, ``story`` is the list to :meth:`build`.
+    """
+
+    def stream(self, sections: Iterator[list[Flowable]]) -> None:
+        """Take the sections to lay out; the first is made now, the others when wanted."""
+        self._sections = sections
+        self.story: list[Flowable] = []
+        self._more()
+
+    def _more(self) -> None:
+        section = next(self._sections, None)
+        if section is not None:
+            self.story.extend([*section, _SectionEnd()])
+
+    def afterFlowable(self, flowable: Flowable) -> None:
+        if isinstance(flowable, _SectionEnd):
+            self._more()
 
 
 def _finish(canvas: Canvas, *, attachment: bytes, digest: str, created_at: Any) -> None:

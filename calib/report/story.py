@@ -9,7 +9,7 @@ one thing computed here is the drawing of the confidence band, through
 from __future__ import annotations
 
 import io
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -48,7 +48,7 @@ from calib.report.tables import TableMaker
 from calib.report.template import ReportTemplate
 from calib.report.vector import as_flowable
 
-__all__ = ["build_story", "signature_words", "verdict_sentence"]
+__all__ = ["build_story", "signature_words", "story_sections", "verdict_sentence"]
 
 _MODELS = {
     "linear": "straight line, y = a + b·x",
@@ -588,22 +588,48 @@ class _Builder:
             out += [self.heading(t.titles.run), self.tables.pairs(self.run_items(None))]
         return out + [*self.table_heading(t.titles.summary), table]
 
-    def story(self) -> list[Flowable]:
+    def sections(self) -> Iterator[list[Flowable]]:
+        """The story section by section: the summary (several analytes), then each analyte."""
         if not self.curves:
-            return [SectionMark(""), *self.lab_block(),
-                    self.para(self.t.titles.document, self.s.title),
-                    self.boxed("This record holds no analytes."),
-                    self.heading(self.t.titles.run), self.tables.pairs(self.run_items(None)),
-                    *self.cautions(), *self.signoff()]
-        out: list[Flowable] = []
+            yield [SectionMark(""), *self.lab_block(),
+                   self.para(self.t.titles.document, self.s.title),
+                   self.boxed("This record holds no analytes."),
+                   self.heading(self.t.titles.run), self.tables.pairs(self.run_items(None)),
+                   *self.cautions(), *self.signoff()]
+            return
+        started = False
         if len(self.curves) > 1 and self.t.show.summary:
-            out += self.summary()
-            out.append(PageBreak())
-        for i, curve in enumerate(self.curves):
-            if i:
-                out.append(PageBreak())
-            out += self.analyte(curve)
-        return out
+            yield self.summary()
+            started = True
+        for curve in self.curves:
+            yield ([PageBreak()] if started else []) + self.analyte(curve)
+            started = True
+
+
+def story_sections(
+    record: Mapping[str, Any],
+    *,
+    record_id: str,
+    digest: str,
+    template: ReportTemplate,
+    width: float,
+) -> Iterator[list[Flowable]]:
+    """The flowables of a record one section at a time, made as they are asked for.
+
+    A record of hundreds of analytes is laid out section by section, so only
+    one analyte's tables and charts are held at a time.  Parameters as for
+    :func:`build_story`.
+
+    Examples
+    --------
+    >>> from calib.report.template import load_template
+    >>> sections = story_sections({"check": {"curves": []}}, record_id="CR-0", digest="0" * 64,
+    ...                           template=load_template(), width=480)
+    >>> len(list(sections))
+    1
+    """
+    return _Builder(record, record_id=record_id, digest=digest, template=template,
+                    width=width).sections()
 
 
 def build_story(
@@ -639,5 +665,6 @@ def build_story(
     >>> len(story) > 5
     True
     """
-    return _Builder(record, record_id=record_id, digest=digest, template=template,
-                    width=width).story()
+    sections = story_sections(record, record_id=record_id, digest=digest, template=template,
+                              width=width)
+    return [flowable for section in sections for flowable in section]

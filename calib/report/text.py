@@ -180,33 +180,35 @@ class TextWriter:
             canvas, "encoded")
 
     def _encode(self, text: str, font: str) -> list[tuple[str, str]]:
+        if text.isascii() and text.isprintable():
+            # Numbers and most labels: printable ASCII keeps its own codes (checked once per
+            # document and font), so there is nothing to look up or to keep.
+            subset0 = self._ascii_subset(font)
+            if subset0 is not None:
+                return [(subset0, escapePDF(text))]
         key = (text, font)
         found = self._encoded.get(key)
         if found is None:
             face = getFont(font)
             doc = self.canvas._doc
-            if text.isascii() and text.isprintable() and self._ascii_as_is(font):
-                # Numbers and most labels: no new character to assign a code to.
-                found = [(face.getSubsetInternalName(0, doc), escapePDF(text))]
-            else:
-                found = [(face.getSubsetInternalName(subset, doc), escapePDF(chunk))
-                         for subset, chunk in face.splitString(text, doc)]
+            found = [(face.getSubsetInternalName(subset, doc), escapePDF(chunk))
+                     for subset, chunk in face.splitString(text, doc)]
             self._encoded[key] = found
         return found
 
-    def _ascii_as_is(self, font: str) -> bool:
-        """Whether printable ASCII keeps its own codes in the font's first subset.
+    def _ascii_subset(self, font: str) -> str | None:
+        """The name of the font's first subset if printable ASCII keeps its own codes there.
 
         reportlab sets fonts up so by default (``ttfAsciiReadable``); asked once
         per document and font through the font's own encoder, so a font set up
-        otherwise takes the general path.
+        otherwise takes the general path (None).
         """
-        answers = document_cache(self.canvas, "ascii as is")
-        known = answers.get(font)
-        if known is None:
-            known = answers[font] = getFont(font).splitString(_PRINTABLE, self.canvas._doc) == [
-                (0, _PRINTABLE.encode("ascii"))]
-        return known
+        answers = document_cache(self.canvas, "ascii subset")
+        if font not in answers:
+            face, doc = getFont(font), self.canvas._doc
+            as_is = face.splitString(_PRINTABLE, doc) == [(0, _PRINTABLE.encode("ascii"))]
+            answers[font] = face.getSubsetInternalName(0, doc) if as_is else None
+        return answers[font]
 
     def add(self, text: str, font: str, x: float, y: float, *, size: float | None = None,
             matrix: tuple[float, float, float, float] | None = None,

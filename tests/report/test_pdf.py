@@ -221,3 +221,39 @@ def test_letter_template_and_hidden_sections(nitrate_record, tmp_path):
 def test_attachment_must_be_bytes(nitrate_record):
     with pytest.raises(TypeError, match="attachment must be bytes; got str"):
         write_pdf(nitrate_record, digest="0" * 64, record_id="CR-0", attachment="{}")
+
+
+def test_sections_are_made_only_as_the_layout_reaches_them(nitrate, fluoride, kx214,
+                                                           monkeypatch):
+    # Issue 8: a record of hundreds of analytes must not hold every analyte's tables and
+    # charts at once.  Each section is asked for only after the one before it was drawn.
+    from reportlab.platypus import Flowable
+
+    import calib.report.pdf as pdf_module
+
+    drawn: list[int] = []
+    asked: list[int] = []
+
+    class Drawn(Flowable):
+        def __init__(self, index):
+            super().__init__()
+            self.index = index
+
+        def wrap(self, *_):
+            return 0, 0
+
+        def draw(self):
+            drawn.append(self.index)
+
+    real = pdf_module.story_sections
+
+    def counted(*args, **kwargs):
+        for i, section in enumerate(real(*args, **kwargs)):
+            asked.append(len(drawn))
+            yield [*section, Drawn(i)]
+
+    monkeypatch.setattr(pdf_module, "story_sections", counted)
+    pdf = render(make_record([nitrate, fluoride, kx214]))
+    assert asked == [0, 1, 2, 3]  # summary, then three analytes: each after the last was drawn
+    assert drawn == [0, 1, 2, 3]
+    assert len(pdf_pages_text(pdf)) >= 4

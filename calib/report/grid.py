@@ -67,7 +67,7 @@ def grid_row(cells: Sequence[Cell], *, pad_top: float = PAD_TOP,
 
 
 @functools.lru_cache(maxsize=1 << 15)
-def layout_cell(text: str, width: float, *, bold: bool = False, right: bool = False,
+def layout_cell(text: str, width: float, bold: bool = False, right: bool = False,
                 span: int = 1) -> Cell:
     """A cell of ``text`` broken into lines for a column ``width`` points wide (padding included).
 

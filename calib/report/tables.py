@@ -75,19 +75,20 @@ class TableMaker:
         right, bold = set(right), set(bold)
         tall, spanned = set(tall_rows), set(spans)
         widths = [f * self.width for f in fractions]
+        wide = sum(widths[1:])
         laid: list[GridRow] = []
         for r, row in enumerate(rows):
+            if not all(isinstance(text, str) for text in row):
+                odd = next(text for text in row if not isinstance(text, str))
+                raise TypeError(f"table cells are text; got {type(odd).__name__}")
             is_head = header and r == 0
-            cells = []
-            for c, text in enumerate(row):
-                if not isinstance(text, str):
-                    raise TypeError(f"table cells are text; got {type(text).__name__}")
-                if r in spanned and c > 1:
-                    break
-                span = len(widths) - 1 if r in spanned and c == 1 else 1
-                cells.append(layout_cell(text, sum(widths[c:c + span]),
-                                         bold=is_head or (c, r) in bold,
-                                         right=c in right and (span == 1), span=span))
+            if r in spanned:
+                cells = [layout_cell(row[0], widths[0], is_head or (0, r) in bold, 0 in right),
+                         layout_cell(row[1], wide, is_head or (1, r) in bold, False,
+                                     len(widths) - 1)]
+            else:
+                cells = [layout_cell(text, widths[c], is_head or (c, r) in bold, c in right)
+                         for c, text in enumerate(row)]
             pad = HAND_PADDING if r in tall else None
             laid.append(grid_row(cells, pad_top=pad or PAD_TOP, pad_bottom=pad or PAD_BOTTOM))
         return Grid(laid, widths, header=header)

@@ -17,12 +17,11 @@ import functools
 from collections.abc import Sequence
 from typing import NamedTuple
 
-from reportlab.lib.colors import Color
 from reportlab.lib.rl_accel import fp_str
 from reportlab.platypus import Flowable
 
 from calib.report.styles import BOLD, INK, LINE, REGULAR, SHADE
-from calib.report.text import TextWriter, document_cache, wrap_words
+from calib.report.text import TextWriter, document_cache, rgb, wrap_words
 
 __all__ = ["Cell", "Grid", "GridRow", "grid_row", "layout_cell"]
 
@@ -145,7 +144,7 @@ class Grid(Flowable):
             tops.append(tops[-1] - row.height)
         ops = []
         if self.header:
-            ops.append(f"q {_rgb(SHADE)} rg {fp_str(0, tops[1], self.width, self.rows[0].height)}"
+            ops.append(f"q {rgb(SHADE)} rg {fp_str(0, tops[1], self.width, self.rows[0].height)}"
                        " re f Q")
         text = TextWriter(self.canv, FONT_SIZE)
         n = len(self.widths)
@@ -163,13 +162,10 @@ class Grid(Flowable):
         first_rule = 2 if self.header else 1
         rules = [f"0 {fp_str(y)} m {fp_str(self.width, y)} l" for y in tops[first_rule:-1]]
         if rules:
-            ops.append(f"q {_rgb(LINE)} RG {fp_str(_RULE)} w {' '.join(rules)} S Q")
+            ops.append(f"q {rgb(LINE)} RG {fp_str(_RULE)} w {' '.join(rules)} S Q")
         frame = [tops[0], tops[-1]] + ([tops[1]] if self.header and len(self.rows) > 1 else [])
-        ops.append(f"q {_rgb(INK)} RG {fp_str(_FRAME)} w "
+        ops.append(f"q {rgb(INK)} RG {fp_str(_FRAME)} w "
                    + " ".join(f"0 {fp_str(y)} m {fp_str(self.width, y)} l" for y in frame)
                    + " S Q")
         return "\n".join(ops)
 
-
-def _rgb(color: Color) -> str:
-    return fp_str(color.red, color.green, color.blue)

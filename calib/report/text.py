@@ -24,7 +24,7 @@ from reportlab.pdfgen.canvas import Canvas
 
 from calib.report.styles import INK
 
-__all__ = ["Run", "TextWriter", "document_cache", "measure", "wrap_runs", "wrap_words"]
+__all__ = ["Run", "TextWriter", "document_cache", "measure", "rgb", "wrap_runs", "wrap_words"]
 
 #: Printable ASCII, the characters of numbers and most labels.
 _PRINTABLE = "".join(chr(c) for c in range(32, 127))
@@ -134,6 +134,18 @@ def _break_word(word: str, font: str, size: float, width: float) -> list[tuple[s
     return pieces
 
 
+def rgb(color: Color) -> str:
+    """The operands of a PDF ``rg``/``RG`` colour operator.
+
+    Examples
+    --------
+    >>> from reportlab.lib.colors import Color
+    >>> rgb(Color(1, 0.5, 0))
+    '1 .5 0'
+    """
+    return fp_str(color.red, color.green, color.blue)
+
+
 def document_cache(canvas: Canvas, name: str, *, limit: int = 0) -> dict:
     """A dictionary kept with ``canvas`` for its current document (a new one for a new document).
 
@@ -222,7 +234,7 @@ class TextWriter:
             return
         code = self._code
         if color is not None and color != self._color:
-            code.append(f"{fp_str(color.red, color.green, color.blue)} rg")
+            code.append(f"{rgb(color)} rg")
             self._color = color
         if matrix is None:
             code.append(f"1 0 0 1 {fp_str(x, y)} Tm")
@@ -258,7 +270,7 @@ class TextWriter:
         unless a string set its own; the graphics state is saved around it."""
         if not self._code:
             return ""
-        head = f"q {fp_str(color.red, color.green, color.blue)} rg BT "
+        head = f"q {rgb(color)} rg BT "
         return head + " ".join(self._code) + " ET Q"
 
     def write(self, color: Color = INK) -> None:

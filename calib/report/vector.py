@@ -27,11 +27,10 @@ from reportlab.graphics.shapes import (
     Shape,
     String,
 )
-from reportlab.lib.colors import Color
 from reportlab.lib.rl_accel import fp_str
 from reportlab.platypus import Flowable
 
-from calib.report.text import TextWriter, measure
+from calib.report.text import TextWriter, measure, rgb
 
 __all__ = ["ChartFlowable", "as_flowable"]
 
@@ -65,9 +64,6 @@ def _times(m: _Matrix, n: Sequence[float]) -> _Matrix:
     return (a * a2 + c * b2, b * a2 + d * b2, a * c2 + c * d2, b * c2 + d * d2,
             a * e2 + c * f2 + e, b * e2 + d * f2 + f)
 
-
-def _rgb(color: Color) -> str:
-    return fp_str(color.red, color.green, color.blue)
 
 
 class ChartFlowable(Flowable):
@@ -124,9 +120,9 @@ class ChartFlowable(Flowable):
         if matrix != _IDENTITY:
             out.append(f"{fp_str(*matrix)} cm")
         if fill is not None:
-            out.append(f"{_rgb(fill)} rg")
+            out.append(f"{rgb(fill)} rg")
         if stroke is not None:
-            out.append(f"{_rgb(stroke)} RG {fp_str(node.strokeWidth)} w")
+            out.append(f"{rgb(stroke)} RG {fp_str(node.strokeWidth)} w")
             out.append(f"{node.strokeLineCap or 0} J {node.strokeLineJoin or 0} j")
             dash = node.strokeDashArray
             out.append(f"[{fp_str(*dash)}] 0 d" if dash else "[] 0 d")

@@ -6,31 +6,51 @@ length with a boolean mask of the points used, and gives the same numbers as
 fitting each curve with :func:`~calib.fit.curve.fit_curve` (to about 1e-12
 relative; ``tests/fit/test_batch.py`` holds the comparison).  ``BatchFit.curve(k)``
 turns row k back into an ordinary :class:`~calib.fit.curve.CurveFit`, so everything
-downstream consumes batch results unchanged.
+downstream consumes batch results unchanged.  The case diagnostics of the whole
+batch (leverage, studentized residuals, Cook's distance, lack of fit) are in
+:mod:`calib.fit.batch_diagnostics`.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
-from calib.fit.batch_wls import solve_wls_batch
+from calib.fit.batch_block import BLOCK_VALUES, Stack, fit_block
+from calib.fit.batch_wls import factor
 from calib.fit.curve import CurveFit
-from calib.fit.design import COEFFICIENTS, design_matrix, fit_weights, weight_basis
+from calib.fit.design import COEFFICIENTS, weight_basis
 from calib.fit.inverse import quadratic_root
 from calib.options import Model, Weighting, check_confidence, parse_option
 
-__all__ = ["BatchFit", "fit_batch"]
+__all__ = ["BatchCoefficients", "BatchFit", "fit_batch"]
 
-#: Weightings whose weight at a point depends on that point alone, so a whole stack of
-#: curves is weighted in one call.  Others (``1/s2`` pools the replicates of a level) are
-#: prepared curve by curve.
-_POINTWISE_WEIGHTINGS = frozenset({"none", "1/x", "1/x2", "1/y", "1/y2"})
 
-#: Models whose R² is uncentred (no intercept), as in fit_curve.
-_UNCENTRED = (Model.ORIGIN, Model.MEAN_RF)
+@dataclass(frozen=True, eq=False)
+class BatchCoefficients:
+    """The coefficient inference of every curve of a batch, columns in the order of ``names``.
+
+    Attributes
+    ----------
+    names : tuple of str
+        Coefficient names.
+    confidence : float
+        Level of the intervals.
+    estimate, std_error, t_value, p_value, ci_low, ci_high : ndarray, shape (K, p)
+        βⱼ, SE(βⱼ), t against 0, its two-sided p and the interval
+        βⱼ ± t(1 − α/2, ν)·SE(βⱼ), as in :meth:`CurveFit.coefficient_table`.
+    """
+
+    names: tuple[str, ...]
+    confidence: float
+    estimate: np.ndarray
+    std_error: np.ndarray
+    t_value: np.ndarray
+    p_value: np.ndarray
+    ci_low: np.ndarray
+    ci_high: np.ndarray
 
 
 @dataclass(frozen=True, eq=False)
@@ -40,7 +60,8 @@ class BatchFit:
     Build one with :func:`fit_batch`.  Row k of every array belongs to curve k;
     point arrays keep the padded layout of the input, with ``nan`` where
     ``mask`` is False.  A curve that could not be fitted has its reason in
-    ``problems[k]`` and ``nan`` in every figure.  The arrays are read-only.
+    ``problems[k]`` and ``nan`` in every figure.  The arrays are read-only, and
+    the inference methods return new arrays (computed once per batch and kept).
 
     Attributes
     ----------
@@ -66,10 +87,14 @@ class BatchFit:
     r_squared : ndarray, shape (K,)
         Weighted R², uncentred for ``origin`` and ``mean-rf``; ``nan`` when the
         responses do not vary.
-    fitted, residuals : ndarray, shape (K, n)
-        ŷᵢ and yᵢ − ŷᵢ, ``nan`` at unused points.
+    residuals : ndarray, shape (K, n)
+        yᵢ − ŷᵢ, ``nan`` at unused points (and on curves without a fit).
     problems : tuple of (str or None)
         Why curve k was not fitted, or None when it was.
+    covariance_root : ndarray, shape (K, p, p), or None
+        An upper triangular L with (XᵀWX)⁻¹ = L Lᵀ, from the factorisation; the
+        leverages of :func:`calib.fit.batch_diagnostics.batch_influence` come from it.
+        None on a batch built by other means (the diagnostics then factor again).
     """
 
     model: Model
@@ -84,9 +109,11 @@ class BatchFit:
     residual_df: np.ndarray
     residual_sd: np.ndarray
     r_squared: np.ndarray
-    fitted: np.ndarray
     residuals: np.ndarray
     problems: tuple[str | None, ...]
+    covariance_root: np.ndarray | None = field(default=None, repr=False)
+    # Inference computed once per batch; the result itself stays immutable.
+    _cache: dict = field(default_factory=dict, init=False, repr=False)
 
     @property
     def n_curves(self) -> int:
@@ -99,6 +126,15 @@ class BatchFit:
         return self.mask.sum(axis=1)
 
     @property
+    def fitted(self) -> np.ndarray:
+        """ŷᵢ = yᵢ − rᵢ, shape (K, n); ``nan`` where the residual is (formed on first use)."""
+        if "fitted" not in self._cache:
+            fitted = self.y - self.residuals
+            fitted.flags.writeable = False
+            self._cache["fitted"] = fitted
+        return self._cache["fitted"]
+
+    @property
     def names(self) -> tuple[str, ...]:
         """Coefficient names, in the column order of ``coefficients``."""
         return COEFFICIENTS[self.model]
@@ -106,7 +142,9 @@ class BatchFit:
     @property
     def fitted_ok(self) -> np.ndarray:
         """True for each curve that was fitted (no problem)."""
-        return np.array([p is None for p in self.problems], dtype=bool)
+        if "ok" not in self._cache:
+            self._cache["ok"] = np.isfinite(self.residual_df)
+        return self._cache["ok"].copy()
 
     def coefficient(self, name: str) -> np.ndarray:
         """Estimate of coefficient ``name`` for every curve, shape (K,)."""
@@ -123,27 +161,27 @@ class BatchFit:
         array([2.571])
         """
         level = self.confidence if confidence is None else check_confidence(confidence)
-        # Curves share few distinct ν: one quantile each, spread back over the curves.
-        nus, where = np.unique(self.residual_df, return_inverse=True)
-        return stats.t.ppf(0.5 + level / 2, nus)[where]
+        return self._t_critical(level).copy()
 
     def std_error(self, name: str) -> np.ndarray:
         """SE(βⱼ) = σ̂·√Cⱼⱼ per curve."""
-        j = self._index(name)
-        return np.sqrt(np.maximum(self.covariance[:, j, j], 0.0))
+        return self._std_errors()[:, self._index(name)].copy()
 
     def t_value(self, name: str, reference: float | np.ndarray = 0.0) -> np.ndarray:
         """t = (βⱼ − reference) / SE(βⱼ) per curve; ``reference`` a number or one per curve."""
-        se = self.std_error(name)
-        diff = self.coefficient(name) - _per_curve(reference, self.n_curves, "reference")
-        with np.errstate(divide="ignore", invalid="ignore"):
-            t = diff / se
-        # As CurveFit: an exact fit (SE 0) gives t = 0 when the estimate equals the reference.
-        return np.where(se == 0, np.where(diff == 0, 0.0, np.copysign(np.inf, diff)), t)
+        j = self._index(name)
+        if _is_zero(reference):
+            return self._t_values()[:, j].copy()
+        return _t_ratio(self.coefficients[:, j]
+                        - _per_curve(reference, self.n_curves, "reference"),
+                        self._std_errors()[:, j])
 
     def p_value(self, name: str, reference: float | np.ndarray = 0.0) -> np.ndarray:
         """Two-sided p-value of H₀: βⱼ = reference, per curve."""
-        return 2 * stats.t.sf(np.abs(self.t_value(name, reference)), self.residual_df)
+        j = self._index(name)
+        if _is_zero(reference):
+            return self._p_values()[:, j].copy()
+        return _two_sided_p(self.t_value(name, reference), self.residual_df)
 
     def confidence_interval(
         self, name: str, confidence: float | None = None
@@ -157,9 +195,41 @@ class BatchFit:
         >>> bool(low[0] < batch.coefficient("slope")[0] < high[0])
         True
         """
-        half = self.t_critical(confidence) * self.std_error(name)
-        estimate = self.coefficient(name)
+        j = self._index(name)
+        level = self.confidence if confidence is None else check_confidence(confidence)
+        half = self._t_critical(level) * self._std_errors()[:, j]
+        estimate = self.coefficients[:, j]
         return estimate - half, estimate + half
+
+    def coefficient_table(self, confidence: float | None = None) -> BatchCoefficients:
+        """Estimate, SE, t, p and interval of every coefficient of every curve, in one go.
+
+        The batched :meth:`CurveFit.coefficient_table`: the same figures as the
+        per-name methods, as (K, p) arrays.
+
+        Examples
+        --------
+        >>> batch = fit_batch([[1, 2, 3, 4, 5], [1, 2, 3, 4, 5]],
+        ...                   [[2.0, 4.1, 5.9, 8.2, 9.9], [1.1, 1.9, 3.2, 3.9, 5.1]],
+        ...                   model="linear")
+        >>> table = batch.coefficient_table(0.95)
+        >>> table.names, table.estimate.shape, bool((table.p_value[:, 1] < 1e-3).all())
+        (('intercept', 'slope'), (2, 2), True)
+        """
+        level = self.confidence if confidence is None else check_confidence(confidence)
+        se = self._std_errors()
+        half = self._t_critical(level)[:, None] * se
+        estimate = self.coefficients
+        return BatchCoefficients(
+            names=self.names,
+            confidence=level,
+            estimate=estimate.copy(),
+            std_error=se.copy(),
+            t_value=self._t_values().copy(),
+            p_value=self._p_values().copy(),
+            ci_low=estimate - half,
+            ci_high=estimate + half,
+        )
 
     def back_calculate(self, response: np.ndarray | float) -> np.ndarray:
         """Concentration read back from each curve for each response.
@@ -242,7 +312,7 @@ class BatchFit:
             covariance=self.covariance[k].copy(),
             residual_df=int(self.residual_df[k]),
             residual_sd=float(self.residual_sd[k]),
-            fitted=self.fitted[k, used].copy(),
+            fitted=self.y[k, used] - self.residuals[k, used],
             residuals=self.residuals[k, used].copy(),
             r_squared=float(self.r_squared[k]),
         )
@@ -256,6 +326,57 @@ class BatchFit:
                 f"{self.model.value}; got {name!r}"
             ) from None
 
+    # The cached figures below are private and never handed out without a copy.
+
+    def _std_errors(self) -> np.ndarray:
+        if "se" not in self._cache:
+            diagonal = np.diagonal(self.covariance, axis1=1, axis2=2)
+            self._cache["se"] = np.sqrt(np.maximum(diagonal, 0.0))
+        return self._cache["se"]
+
+    def _t_values(self) -> np.ndarray:
+        if "t" not in self._cache:
+            self._cache["t"] = _t_ratio(self.coefficients, self._std_errors())
+        return self._cache["t"]
+
+    def _p_values(self) -> np.ndarray:
+        if "p" not in self._cache:
+            self._cache["p"] = _two_sided_p(self._t_values(), self.residual_df[:, None])
+        return self._cache["p"]
+
+    def _t_critical(self, level: float) -> np.ndarray:
+        key = ("t_critical", level)
+        if key not in self._cache:
+            # Curves share few distinct ν (whole numbers): one quantile each, spread back
+            # over the curves.  special.stdtrit is the function scipy.stats.t.ppf
+            # evaluates, without its per-call argument checks.
+            nu = self.residual_df
+            fitted = np.isfinite(nu)
+            index = np.where(fitted, nu, 0).astype(np.intp)
+            table = np.full(index.max(initial=0) + 1, np.nan)
+            present = np.flatnonzero(np.bincount(index[fitted], minlength=table.size))
+            table[present] = special.stdtrit(present.astype(float), 0.5 + level / 2)
+            self._cache[key] = np.where(fitted, table[index], np.nan)
+        return self._cache[key]
+
+
+def _is_zero(reference: float | np.ndarray) -> bool:
+    """Whether ``reference`` is the number 0, whose t and p are computed once and kept."""
+    return (isinstance(reference, (int, float)) and not isinstance(reference, bool)
+            and reference == 0)
+
+
+def _t_ratio(diff: np.ndarray, se: np.ndarray) -> np.ndarray:
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t = diff / se
+    # As CurveFit: an exact fit (SE 0) gives t = 0 when the estimate equals the reference.
+    return np.where(se == 0, np.where(diff == 0, 0.0, np.copysign(np.inf, diff)), t)
+
+
+def _two_sided_p(t: np.ndarray, nu: np.ndarray) -> np.ndarray:
+    # special.stdtr(ν, −|t|) is what scipy.stats.t.sf(|t|, ν) evaluates, so the figures are
+    # those of CurveFit.p_value; one call covers every curve and coefficient.
+    return 2 * special.stdtr(nu, -np.abs(t))
 
 
 def _per_curve(value: float | np.ndarray, K: int, name: str) -> np.ndarray:
@@ -265,45 +386,6 @@ def _per_curve(value: float | np.ndarray, K: int, name: str) -> np.ndarray:
     if arr.shape != (K,):
         raise ValueError(f"{name} must be a number or one per curve, shape ({K},); got {arr.shape}")
     return arr
-
-
-def _readonly(*arrays: np.ndarray) -> None:
-    for arr in arrays:
-        arr.flags.writeable = False
-
-
-def _weights_from(
-    x: np.ndarray, y: np.ndarray, mask: np.ndarray, basis: Weighting, problems: list
-) -> np.ndarray:
-    """Weights of ``basis`` per curve, scaled to mean 1 over the used points; nan elsewhere.
-
-    A curve the weighting cannot use gets fit_weights' reason in ``problems``.
-    """
-    todo = mask & _unrefused(problems)[:, None]
-    if basis.value in _POINTWISE_WEIGHTINGS:
-        try:
-            # Padding and curves already refused get 1 (a harmless value) in the one call.
-            raw = fit_weights(np.where(todo, x, 1.0), basis, y=np.where(todo, y, 1.0))
-        except ValueError:
-            raw = None  # some curve cannot be weighted: find which, one by one
-    else:
-        raw = None
-    if raw is None:
-        raw = np.ones(x.shape)
-        for k in np.flatnonzero(todo.any(axis=1)):
-            used = todo[k]
-            try:
-                raw[k, used] = fit_weights(x[k, used], basis, y=y[k, used])
-            except ValueError as err:
-                problems[k] = str(err)
-                todo[k] = False
-    return np.where(todo, raw / _mean_used(raw, todo)[:, None], np.nan)
-
-
-def _mean_used(values: np.ndarray, used: np.ndarray) -> np.ndarray:
-    count = used.sum(axis=1)
-    total = np.where(used, values, 0.0).sum(axis=1)
-    return np.where(count > 0, total / np.maximum(count, 1), np.nan)
 
 
 def fit_batch(
@@ -365,10 +447,14 @@ def fit_batch(
     The formulas are those of :func:`fit_curve`: σ̂² = Σ wᵢ rᵢ² / ν, ν = N − p,
     covariance σ̂²·(XᵀWX)⁻¹, R² = 1 − Σwr²/Σw(y − ȳ_w)² (uncentred for ``origin``
     and ``mean-rf``).
-    The (K, n, p) stack of column-scaled weighted designs, unused rows zeroed,
-    is factored by one batched QR with one step of iterative refinement
-    (:func:`calib.fit.batch_wls.solve_wls_batch`); there is no loop over curves
-    in the numerical work.
+    The weighted designs of the curves, unused rows zeroed, are factored together
+    (QR of W½X by modified Gram–Schmidt, :func:`calib.fit.batch_wls.solve_block`)
+    and the estimates refined once on residuals evaluated with error-free products
+    (:func:`calib.fit.batch_wls.residuals_exactly`), so that σ̂ keeps its digits on
+    curves of very small scatter; the rank test is solve_wls's
+    (:func:`calib.fit.batch_wls.factor`).  The work runs over blocks of a few hundred
+    curves that fit in cache (:mod:`calib.fit.batch_block`); nothing loops over
+    single curves.
 
     References
     ----------
@@ -401,96 +487,77 @@ def fit_batch(
                              name="weighting")
     basis = weight_basis(model, weighting)
     confidence = check_confidence(confidence)
-    xs = np.array(x, dtype=float)
-    ys = np.array(y, dtype=float)
+    xs = np.asarray(x, dtype=float)
+    ys = np.asarray(y, dtype=float)
     if xs.ndim != 2 or xs.shape != ys.shape:
         raise ValueError(
             f"x and y must be 2-D arrays of the same shape (curves × points); "
             f"got shapes {xs.shape} and {ys.shape}"
         )
     K, n = xs.shape
-    used = _mask_array(mask, xs.shape)
-    names = COEFFICIENTS[model]
-    p = len(names)
+    # Points × curves from here on.  One buffer holds the copies of x and y that the
+    # result keeps and its weights and residuals, filled block by block: fresh memory is
+    # slow to obtain a page at a time, and one request is much cheaper than four.
+    points = np.empty((4, n, K))
+    X, Y = points[0], points[1]
+    X[...] = xs.T
+    Y[...] = ys.T
+    U = np.array(_mask_array(mask, xs.shape).T, order="C")
+    given = None
+    if weights is not None:
+        given = np.asarray(weights, dtype=float)
+        if given.shape != xs.shape:
+            raise ValueError(f"weights must have the shape of x, {xs.shape}; got {given.shape}")
+        given = given.T
+    p = len(COEFFICIENTS[model])
 
-    # The same checks, in the same order, as fit_curve; the first reason found is kept.
-    problems: list[str | None] = [None] * K
-    n_used = used.sum(axis=1)
-    finite = np.where(used, np.isfinite(xs) & np.isfinite(ys), True).all(axis=1)
-    _refuse(problems, ~finite, "x and y must be finite numbers")
-    for k in np.flatnonzero(n_used <= p):
-        _refuse(problems, k, f"model {model.value} needs at least {p + 1} points; got {n_used[k]}")
-    if model is Model.MEAN_RF:
-        with np.errstate(invalid="ignore"):
-            positive = np.where(used, xs > 0, True).all(axis=1)
-        _refuse(problems, ~positive, "model mean-rf needs concentrations above 0 (each "
-                "response is divided by its concentration)")
+    stack = Stack(K, p, weights=points[2], residuals=points[3])
+    # The quadratic's two design columns travel as one (2, n, B) array: half the curves.
+    step = max(1, BLOCK_VALUES // (max(n, 1) * (2 if model is Model.QUADRATIC else 1)))
+    for start in range(0, K, step):
+        at = slice(start, start + step)
+        fit_block(X[:, at], Y[:, at], U[:, at], None if given is None else given[:, at],
+                  model=model, basis=basis, out=stack, at=at)
 
-    if weights is None:
-        w = _weights_from(xs, ys, used, basis, problems)
-    else:
-        w = _given_weights(weights, used, problems)
-
-    active = _unrefused(problems)
-    fit_rows = used & active[:, None]
-    X = design_matrix(np.where(fit_rows, xs, 0.0).ravel(), model).reshape(K, n, p)
-    sol = solve_wls_batch(X, np.where(fit_rows, ys, 0.0), np.where(fit_rows, w, 1.0),
-                          mask=fit_rows, active=active)
-    for k in np.flatnonzero(active & ~_unrefused(sol.problems)):
-        problems[k] = sol.problems[k]
-    ok = _unrefused(problems)
-
-    nu = np.where(ok, n_used - p, np.nan).astype(float)
+    # What takes one number per curve, once for the whole batch.
+    fitted_rows = stack.ok.copy()
+    fac = factor(stack.R, stack.n_used, stack.ok, stack.problems)
+    ok = fac.solved
+    lost = fitted_rows & ~ok
+    if lost.any():
+        stack.residuals[:, lost] = np.nan
     with np.errstate(invalid="ignore", divide="ignore"):
-        sigma2 = sol.weighted_ss / nu
-    covariance = sigma2[:, None, None] * sol.unscaled_covariance
-    rows = used & ok[:, None]
-    w_used = np.where(rows, w, 0.0)
-    y_used = np.where(rows, ys, 0.0)
-    if model in _UNCENTRED:
-        total = np.sum(w_used * y_used**2, axis=1)
-    else:
-        with np.errstate(invalid="ignore", divide="ignore"):
-            ybar = np.sum(w_used * y_used, axis=1) / np.sum(w_used, axis=1)
-        total = np.sum(w_used * np.where(rows, ys - ybar[:, None], 0.0) ** 2, axis=1)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        r_squared = np.where(total > 0, 1.0 - sol.weighted_ss / total, np.nan)
-    residuals = np.where(rows, sol.residuals, np.nan)
-    fitted = np.where(rows, ys - np.where(rows, sol.residuals, 0.0), np.nan)
-
+        nu = np.where(ok, stack.n_used - p, np.nan)
+        sigma2 = np.where(ok, stack.weighted_ss, np.nan) / nu
+        r_squared = np.where(ok & (stack.total_ss > 0),
+                             1.0 - stack.weighted_ss / stack.total_ss, np.nan)
+    residuals = stack.residuals
     result = BatchFit(
         model=model,
         weighting=weighting,
         confidence=confidence,
-        x=xs,
-        y=ys,
-        mask=used,
-        weights=np.where(used, w, np.nan),
-        coefficients=np.where(ok[:, None], sol.beta, np.nan),
-        covariance=np.where(ok[:, None, None], covariance, np.nan),
+        x=X.T,
+        y=Y.T,
+        mask=U.T,
+        weights=stack.weights.T,
+        coefficients=np.where(ok[:, None], stack.beta, np.nan),
+        covariance=sigma2[:, None, None] * fac.unscaled_covariance,
         residual_df=nu,
-        residual_sd=np.where(ok, np.sqrt(np.where(ok, sigma2, 0.0)), np.nan),
-        r_squared=np.where(ok, r_squared, np.nan),
-        fitted=fitted,
-        residuals=residuals,
-        problems=tuple(problems),
+        residual_sd=np.sqrt(sigma2),
+        r_squared=r_squared,
+        residuals=residuals.T,
+        problems=tuple(stack.problems),
+        covariance_root=fac.root,
     )
-    _readonly(result.x, result.y, result.mask, result.weights, result.coefficients,
-              result.covariance, result.residual_df, result.residual_sd, result.r_squared,
-              result.fitted, result.residuals)
+    _readonly(result.x, result.y, result.mask, result.weights, result.residuals,
+              result.coefficients, result.covariance, fac.root, nu, result.residual_sd,
+              r_squared)
     return result
 
 
-def _refuse(problems: list[str | None], which: np.ndarray | int, reason: str) -> None:
-    """Record ``reason`` for the curves ``which`` (index or boolean array) not yet refused."""
-    index = np.flatnonzero(which) if isinstance(which, np.ndarray) else [which]
-    for k in index:
-        if problems[k] is None:
-            problems[k] = reason
-
-
-def _unrefused(problems: tuple[str | None, ...] | list[str | None]) -> np.ndarray:
-    return np.fromiter((p is None for p in problems), dtype=bool, count=len(problems))
+def _readonly(*arrays: np.ndarray) -> None:
+    for arr in arrays:
+        arr.flags.writeable = False
 
 
 def _mask_array(mask: np.ndarray | None, shape: tuple[int, int]) -> np.ndarray:
@@ -504,15 +571,3 @@ def _mask_array(mask: np.ndarray | None, shape: tuple[int, int]) -> np.ndarray:
     if arr.shape != shape:
         raise ValueError(f"mask must have the shape of x, {shape}; got {arr.shape}")
     return arr
-
-
-def _given_weights(weights: np.ndarray, used: np.ndarray, problems: list) -> np.ndarray:
-    w = np.array(weights, dtype=float)
-    if w.shape != used.shape:
-        raise ValueError(f"weights must have the shape of x, {used.shape}; got {w.shape}")
-    with np.errstate(invalid="ignore"):
-        good = np.where(used, np.isfinite(w) & (w > 0), True).all(axis=1)
-    _refuse(problems, ~good, "weights must be positive finite numbers at every used point")
-    ok = used & good[:, None]
-    return np.where(ok, w / _mean_used(np.where(ok, w, 0.0), ok)[:, None], np.nan)
-

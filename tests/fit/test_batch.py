@@ -19,6 +19,9 @@ What is compared:
 * Degenerate curves (too few points, one concentration, a column of zeros, a non-finite
   value, a weighting that cannot apply, bad weights) are reported with fit_curve's reason,
   filled with ``nan``, and leave the other curves bit for bit as without them.
+* ``coefficient_table`` holds the per-name figures; the result's arrays are read-only copies
+  of the inputs.  The kernel itself is tested in ``test_batch_wls.py``, the batched
+  diagnostics in ``test_batch_diagnostics.py``.
 """
 
 from __future__ import annotations
@@ -180,6 +183,24 @@ def test_coefficient_inference(case: Case) -> None:
     low, high = case.batch.confidence_interval("slope")  # the default level, 0.95
     np.testing.assert_allclose(low, [f.confidence_interval("slope")[0] for f in case.fits],
                                rtol=RTOL)
+
+
+def test_coefficient_table_holds_the_per_name_figures(case: Case) -> None:
+    # The whole table at once: the per-name methods of the batch and fit_curve's table.
+    table = case.batch.coefficient_table(0.99)
+    assert table.names == case.batch.names and table.confidence == 0.99
+    for j, name in enumerate(table.names):
+        np.testing.assert_array_equal(table.std_error[:, j], case.batch.std_error(name))
+        np.testing.assert_array_equal(table.p_value[:, j], case.batch.p_value(name))
+        low, high = case.batch.confidence_interval(name, 0.99)
+        np.testing.assert_array_equal(table.ci_low[:, j], low)
+        np.testing.assert_array_equal(table.ci_high[:, j], high)
+    for k in range(0, len(case.fits), 101):
+        rows = case.fits[k].coefficient_table(0.99)
+        for field in ("estimate", "std_error", "t_value", "p_value", "ci_low", "ci_high"):
+            np.testing.assert_allclose(getattr(table, field)[k],
+                                       [getattr(r, field) for r in rows], rtol=RTOL,
+                                       err_msg=field)
 
 
 def test_tests_against_a_reference_value(case: Case) -> None:
@@ -482,8 +503,33 @@ def test_bad_precomputed_weights_are_a_curve_problem() -> None:
 
 def test_results_are_read_only() -> None:
     batch = fit_batch([[1.0, 2.0, 3.0]], [[2.0, 4.1, 5.9]], model="origin")
-    with pytest.raises(ValueError, match="read-only"):
-        batch.coefficients[0, 0] = 1.0
+    for name in ("x", "y", "mask", "weights", "coefficients", "covariance", "residual_df",
+                 "residual_sd", "r_squared", "fitted", "residuals", "covariance_root"):
+        with pytest.raises(ValueError, match="read-only"):
+            getattr(batch, name)[0] = 1.0
+    # The inference methods hand out copies: changing one leaves the batch as it was.
+    se = batch.std_error("slope")
+    se[0] = -1.0
+    assert batch.std_error("slope")[0] > 0
+
+
+def test_fitted_values_are_the_responses_less_the_residuals() -> None:
+    x, y, mask = invented_batch("quadratic", 12, curves=30)
+    batch = fit_batch(x, y, model="quadratic", mask=mask)
+    np.testing.assert_array_equal(batch.fitted, batch.y - batch.residuals)
+    assert np.isnan(batch.fitted[~mask]).all()
+
+
+def test_inputs_are_copied() -> None:
+    x, y, mask = invented_batch("linear", 13, curves=5)
+    batch = fit_batch(x, y, model="linear", mask=mask)
+    before = batch.x.copy(), batch.y.copy()
+    x[:] = 0.0
+    y[:] = 0.0
+    mask[:] = False
+    np.testing.assert_array_equal(batch.x, before[0])
+    np.testing.assert_array_equal(batch.y, before[1])
+    assert batch.mask.any()
 
 
 def test_an_empty_batch() -> None:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 from calib.checks.history import SlopeHistory
@@ -59,6 +60,9 @@ class CurveContext:
     standards (the ``blank`` rule judges them); ``slope_history`` the earlier
     accepted slopes when a front end read them from an archive; ``qcs`` the
     analyte's QC samples (the ``qc`` rule reads them back from the curve).
+
+    Figures several rules need are worked out once and kept (the context never
+    changes once made).
     """
 
     analyte: str
@@ -69,17 +73,17 @@ class CurveContext:
     slope_history: SlopeHistory | None = None
     qcs: tuple[Point, ...] = ()
 
-    @property
+    @functools.cached_property
     def used(self) -> tuple[StandardResult, ...]:
         """Standards in the fit."""
         return tuple(s for s in self.standards if s.used)
 
-    @property
+    @functools.cached_property
     def n_levels(self) -> int:
         """Distinct concentration levels in the fit (a zero standard counts)."""
         return len({s.point.concentration for s in self.used})
 
-    @property
+    @functools.cached_property
     def n_nonzero_levels(self) -> int:
         """Distinct non-zero concentration levels in the fit."""
         return len({s.point.concentration for s in self.used if s.point.concentration != 0})

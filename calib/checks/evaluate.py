@@ -299,10 +299,7 @@ def _assess(
         used = [p for p, r in zip(standards, reasons) if r is None]
         fitted = _try_fit(used, model=model, weighting=weighting, confidence=confidence)
     fit, unfitted = fitted
-    results = tuple(
-        _standard_result(p, levels[p.concentration], reason, fit)
-        for p, reason in zip(standards, reasons)
-    )
+    results = _standard_results(standards, levels, reasons, fit)
     zero = tuple(p for p in standards if p.concentration == 0)
     ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
                        slope_history=slope_history, qcs=tuple(qcs))
@@ -405,13 +402,23 @@ def _try_fit(points: Sequence[Point], *, model: Model, weighting: Weighting,
         return None, f"the curve could not be fitted: {exc}"
 
 
-def _standard_result(point: Point, level: int, reason: str | None,
-                     fit: CurveFit | None) -> StandardResult:
-    fitted = back = dev = None
+def _standard_results(standards: Sequence[Point], levels: Mapping[float, int],
+                      reasons: Sequence[str | None],
+                      fit: CurveFit | None) -> tuple[StandardResult, ...]:
+    """Every standard with its level, fitted response and back-calculated concentration."""
+    n = len(standards)
+    fitted: list[float | None] = [None] * n
+    back: list[float | None] = [None] * n
     if fit is not None:
-        fitted = float(fit.predict(point.concentration)[0])
-        value = float(fit.back_calculate(point.response)[0])
-        back = value if math.isfinite(value) else None
-        if back is not None and point.concentration != 0:
-            dev = 100 * (back - point.concentration) / point.concentration
-    return StandardResult(point, level, reason is None, reason, fitted, back, dev)
+        # The whole curve at once: per standard, the call overhead outweighed the arithmetic.
+        fitted = fit.predict(np.array([p.concentration for p in standards])).tolist()
+        values = fit.back_calculate(np.array([p.response for p in standards])).tolist()
+        back = [v if math.isfinite(v) else None for v in values]
+    results = []
+    for point, reason, fitted_response, read_back in zip(standards, reasons, fitted, back):
+        dev = None
+        if read_back is not None and point.concentration != 0:
+            dev = 100 * (read_back - point.concentration) / point.concentration
+        results.append(StandardResult(point, levels[point.concentration], reason is None, reason,
+                                      fitted_response, read_back, dev))
+    return tuple(results)

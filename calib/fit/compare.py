@@ -20,9 +20,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 from calib.fit.curve import CurveFit
+from calib.fit.distributions import f_ppf, f_sf
 from calib.fit.wls import solve_wls
 from calib.options import Model, Weighting
 
@@ -54,7 +54,7 @@ class FTest:
 
     def critical(self, alpha: float = 0.05) -> float:
         """F(1 − α; df_num, df_den)."""
-        return float(stats.f.ppf(1 - alpha, self.df_num, self.df_den))
+        return f_ppf(1 - alpha, self.df_num, self.df_den)
 
 
 @dataclass(frozen=True)
@@ -108,7 +108,7 @@ def _f_test(ss_small: float, df_small: int, ss_large: float, df_large: int) -> F
         f = (gain / df_num) / (ss_large / df_large)
     else:
         f = math.inf if gain > 0 else math.nan
-    p = float(stats.f.sf(f, df_num, df_large)) if math.isfinite(f) else (0.0 if f > 0 else math.nan)
+    p = f_sf(f, df_num, df_large) if math.isfinite(f) else (0.0 if f > 0 else math.nan)
     return FTest(float(f), df_num, df_large, p)
 
 

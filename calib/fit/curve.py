@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import functools
 import math
+import weakref
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, TypeVar
 
 import numpy as np
-from scipy import stats
 
 from calib.fit.bands import mean_band, prediction_band, weight_at
 from calib.fit.design import (
@@ -18,6 +20,7 @@ from calib.fit.design import (
     raw_weights,
     weight_basis,
 )
+from calib.fit.distributions import t_ppf, t_sf
 from calib.fit.inverse import quadratic_root
 from calib.fit.response_factor import ResponseFactors, response_factors
 from calib.fit.wls import solve_wls
@@ -27,7 +30,12 @@ from calib.tabular import Tabular
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["CoefficientRow", "CoefficientTest", "CurveFit", "fit_curve"]
+__all__ = [
+    "CoefficientRow", "CoefficientTest", "CurveFit", "fit_curve", "once_per_fit",
+    "residuals_negligible", "response_sums", "weighted_ss",
+]
+
+_T = TypeVar("_T")
 
 
 @dataclass(frozen=True)
@@ -153,7 +161,7 @@ class CurveFit(Tabular):
         """Coefficient names in design-matrix order."""
         return tuple(self.coefficients)
 
-    @property
+    @functools.cached_property
     def exact(self) -> bool:
         """Whether the curve passes through every point, up to floating-point rounding.
 
@@ -163,7 +171,7 @@ class CurveFit(Tabular):
         its mean, or at most (1e-12)² of its uncentred sum of squares (which
         covers responses that are all equal, where the spread is itself noise).
         """
-        return residuals_negligible(float(np.sum(self.weights * self.residuals**2)), self)
+        return residuals_negligible(weighted_ss(self), self)
 
     @property
     def r(self) -> float:
@@ -188,7 +196,7 @@ class CurveFit(Tabular):
         """Distinct concentrations, replicate variance s² and count at each (``1/s2`` uses them)."""
         return level_variances(self.x, self.y)
 
-    @property
+    @functools.cached_property
     def response_factors(self) -> ResponseFactors:
         """Response factors yᵢ/xᵢ of the non-zero standards, with their mean and %RSD.
 
@@ -216,7 +224,7 @@ class CurveFit(Tabular):
         2.571
         """
         level = self.confidence if confidence is None else check_confidence(confidence)
-        return float(stats.t.ppf(0.5 + level / 2, self.residual_df))
+        return t_ppf(0.5 + level / 2, self.residual_df)
 
     def std_error(self, name: str) -> float:
         """SE(βⱼ) = σ̂·√Cⱼⱼ."""
@@ -233,7 +241,7 @@ class CurveFit(Tabular):
 
     def p_value(self, name: str, reference: float = 0.0) -> float:
         """Two-sided p-value of H₀: βⱼ = reference."""
-        return float(2 * stats.t.sf(abs(self.t_value(name, reference)), self.residual_df))
+        return 2 * t_sf(abs(self.t_value(name, reference)), self.residual_df)
 
     def confidence_interval(self, name: str, confidence: float | None = None) -> tuple[float, float]:
         """βⱼ ± t(1 − α/2, ν)·SE(βⱼ).
@@ -479,13 +487,68 @@ def fit_curve(
     )
 
 
-def residuals_negligible(ss: float, fit: CurveFit) -> bool:
-    """Whether a weighted residual sum of squares ``ss`` on ``fit``'s points is rounding noise.
+def once_per_fit(function: Callable[[CurveFit], _T]) -> Callable[[CurveFit], _T]:
+    """Make ``function(fit)`` work its result out once per fit and remember it.
 
-    See :attr:`CurveFit.exact` for the thresholds.
+    A fit never changes once made, so a figure computed from the fit alone can
+    be shared by every check that needs it (Mandel's test and the quadratic-term
+    test use the same comparison quadratic).  The memory is held by weak
+    reference: it goes when the fit goes.
+
+    Examples
+    --------
+    >>> calls = []
+    >>> @once_per_fit
+    ... def slope(fit):
+    ...     calls.append(fit)
+    ...     return fit.coefficients["slope"]
+    >>> fit = fit_curve([1, 2, 3], [2.0, 4.0, 6.0])
+    >>> slope(fit) is slope(fit), len(calls)
+    (True, 1)
+    """
+    results: weakref.WeakKeyDictionary[CurveFit, _T] = weakref.WeakKeyDictionary()
+
+    @functools.wraps(function)
+    def remembered(fit: CurveFit) -> _T:
+        try:
+            return results[fit]
+        except KeyError:
+            result = results[fit] = function(fit)
+            return result
+
+    return remembered
+
+
+@once_per_fit
+def weighted_ss(fit: CurveFit) -> float:
+    """Σ wᵢ rᵢ², the weighted residual sum of squares of ``fit`` (worked out once per fit).
+
+    Examples
+    --------
+    >>> weighted_ss(fit_curve([1, 2, 3], [1.0, 2.5, 3.0]))   # residuals −1/6, 1/3, −1/6
+    0.16666666666666669
+    """
+    return float(np.sum(fit.weights * fit.residuals**2))
+
+
+@once_per_fit
+def response_sums(fit: CurveFit) -> tuple[float, float]:
+    """Σ wᵢ(yᵢ − ȳ_w)² and Σ wᵢyᵢ² of the fit's responses (worked out once per fit).
+
+    The weighted spread of y about its weighted mean ȳ_w, and its uncentred sum
+    of squares: the scales against which a residual sum counts as rounding noise.
     """
     w = fit.weights
     uncentred = float(np.sum(w * fit.y**2))
     ybar = float(np.sum(w * fit.y) / np.sum(w))
     spread = float(np.sum(w * (fit.y - ybar) ** 2))
+    return spread, uncentred
+
+
+def residuals_negligible(ss: float, fit: CurveFit) -> bool:
+    """Whether a weighted residual sum of squares ``ss`` on ``fit``'s points is rounding noise.
+
+    See :attr:`CurveFit.exact` for the thresholds.
+    """
+    spread, uncentred = response_sums(fit)
     return ss <= max(1e-20 * spread, 1e-24 * uncentred)

@@ -18,9 +18,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from scipy import optimize, stats
+from scipy import optimize
 
 from calib.fit.curve import CurveFit
+from calib.fit.distributions import nct_cdf, t_ppf
 from calib.options import LimitMethod, Model, Weighting, parse_option
 
 __all__ = [
@@ -135,9 +136,9 @@ class Iso11843Limits:
 
 def _noncentrality(df: int, alpha: float, beta: float) -> float:
     """δ with P(T'(ν, δ) ≤ t(1 − α; ν)) = β, T' non-central Student's t."""
-    t_alpha = float(stats.t.ppf(1 - alpha, df))
-    upper = t_alpha + float(stats.t.ppf(1 - beta, df)) + 10.0
-    return float(optimize.brentq(lambda d: stats.nct.cdf(t_alpha, df, d) - beta,
+    t_alpha = t_ppf(1 - alpha, df)
+    upper = t_alpha + t_ppf(1 - beta, df) + 10.0
+    return float(optimize.brentq(lambda d: nct_cdf(t_alpha, df, d) - beta,
                                  t_alpha, upper, xtol=1e-14, rtol=1e-14))
 
 
@@ -210,9 +211,9 @@ def iso11843_limits(
     if isinstance(readings, bool) or not isinstance(readings, int) or readings < 1:
         raise ValueError(f"readings must be a whole number of at least 1; got {readings!r}")
     nu = fit.residual_df
-    t_alpha = float(stats.t.ppf(1 - alpha, nu))
+    t_alpha = t_ppf(1 - alpha, nu)
     delta = (_noncentrality(nu, alpha, beta) if exact
-             else t_alpha + float(stats.t.ppf(1 - beta, nu)))
+             else t_alpha + t_ppf(1 - beta, nu))
     # Var(ȳ₀ − a) = σ̂²/L + Var(a), and Var(a) = σ̂²(1/N + x̄²/Sxx) for the unweighted line.
     sd0 = math.sqrt(fit.residual_sd**2 / readings + fit.std_error("intercept") ** 2)
     b = fit.coefficients["slope"]

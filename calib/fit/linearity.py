@@ -14,10 +14,16 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
-from calib.fit.curve import CurveFit, residuals_negligible
+from calib.fit.curve import (
+    CurveFit,
+    once_per_fit,
+    residuals_negligible,
+    response_sums,
+    weighted_ss,
+)
 from calib.fit.design import design_matrix
+from calib.fit.distributions import f_isf, f_ppf, f_sf, norm_cdf, t_sf
 from calib.fit.wls import WlsSolution, solve_wls
 from calib.options import Model
 
@@ -35,18 +41,12 @@ EXACT_RUNS_LIMIT = 200
 
 
 def _total_ss(fit: CurveFit) -> float:
-    w = fit.weights
-    ybar = float(np.sum(w * fit.y) / np.sum(w))
-    total = float(np.sum(w * (fit.y - ybar) ** 2))
-    return total if total > 0 else float(np.sum(w * fit.y**2))
+    spread, uncentred = response_sums(fit)
+    return spread if spread > 0 else uncentred
 
 
 def _negligible(ss: float, fit: CurveFit) -> bool:
     return ss <= _ROUNDING * _total_ss(fit) or residuals_negligible(ss, fit)
-
-
-def _weighted_ss(fit: CurveFit) -> float:
-    return float(np.sum(fit.weights * fit.residuals**2))
 
 
 def _described(fit: CurveFit) -> str:
@@ -95,13 +95,13 @@ class LackOfFit:
         """Upper-tail probability of F(ν_lof, ν_pure) at :attr:`f_value`."""
         if self.reason is not None:
             return math.nan
-        return float(stats.f.sf(self.f_value, self.df_lack, self.df_pure))
+        return f_sf(self.f_value, self.df_lack, self.df_pure)
 
     def critical(self, alpha: float = 0.05) -> float:
         """F(1 − α; ν_lof, ν_pure)."""
         if self.reason is not None:
             return math.nan
-        return float(stats.f.isf(_alpha(alpha), self.df_lack, self.df_pure))
+        return f_isf(_alpha(alpha), self.df_lack, self.df_pure)
 
     def significant(self, alpha: float = 0.05) -> bool:
         """True when p < α: the curve does not describe the level means."""
@@ -159,7 +159,7 @@ def lack_of_fit(fit: CurveFit) -> LackOfFit:
     sums = np.bincount(index, weights=w, minlength=m)
     means = np.bincount(index, weights=w * fit.y, minlength=m) / sums
     ss_pure = float(np.sum(w * (fit.y - means[index]) ** 2))
-    ss_res = _weighted_ss(fit)
+    ss_res = weighted_ss(fit)
     weighted = bool(np.ptp(w) > 0)
     reason = None
     if n == m:
@@ -183,8 +183,12 @@ def _alpha(alpha: float) -> float:
 # Mandel's fitting test and the quadratic term
 
 
+@once_per_fit
 def _quadratic_refit(fit: CurveFit) -> WlsSolution | str:
-    """The quadratic with the fit's own weights, or why it cannot be fitted."""
+    """The quadratic with the fit's own weights, or why it cannot be fitted.
+
+    Fitted once per curve: :func:`mandel_test` and :func:`quadratic_term` share it.
+    """
     if fit.n_points < 4:
         return f"fitting a quadratic for comparison needs at least 4 standards; {fit.n_points} in the fit"
     if np.unique(fit.x).size < 3:
@@ -240,13 +244,13 @@ class MandelTest:
         """Upper-tail probability of F(1, N − 3) at PG."""
         if self.reason is not None:
             return math.nan
-        return float(stats.f.sf(self.pg, *self.df))
+        return f_sf(self.pg, *self.df)
 
     def critical(self, confidence: float = 0.99) -> float:
         """F(confidence; 1, N − 3); ISO 8466-1 uses 0.99."""
         if self.reason is not None:
             return math.nan
-        return float(stats.f.ppf(1 - _alpha(1 - confidence), *self.df))
+        return f_ppf(1 - _alpha(1 - confidence), *self.df)
 
     def nonlinear(self, confidence: float = 0.99) -> bool:
         """True when PG exceeds the critical value: the quadratic fits significantly better."""
@@ -296,7 +300,7 @@ def mandel_test(fit: CurveFit) -> MandelTest:
                          f"fitted as {fit.model.value}")
     n = fit.n_points
     weighted = bool(np.ptp(fit.weights) > 0)
-    s2_linear = _weighted_ss(fit) / (n - 2)
+    s2_linear = weighted_ss(fit) / (n - 2)
     refit = _quadratic_refit(fit)
     if isinstance(refit, str):
         return MandelTest(n, s2_linear, math.nan, weighted, refit)
@@ -345,7 +349,7 @@ class QuadraticTerm:
         """Two-sided p-value of H₀: c = 0 on :attr:`df` degrees of freedom."""
         if self.reason is not None:
             return math.nan
-        return float(2 * stats.t.sf(abs(self.t_value), self.df))
+        return 2 * t_sf(abs(self.t_value), self.df)
 
     def significant(self, alpha: float = 0.05) -> bool:
         """True when p < α: the response curves."""
@@ -461,7 +465,7 @@ class RunsTest:
             return _runs_cdf(self.runs, self.n_positive, self.n_negative)
         n1, n2, n = self.n_positive, self.n_negative, self.n
         var = 2 * n1 * n2 * (2 * n1 * n2 - n) / (n * n * (n - 1))
-        return float(stats.norm.cdf((self.runs - self.expected_runs) / math.sqrt(var)))
+        return norm_cdf((self.runs - self.expected_runs) / math.sqrt(var))
 
     @property
     def smallest_p(self) -> float:
@@ -558,7 +562,7 @@ def residual_runs(fit: CurveFit) -> RunsTest:
     """
     order = np.lexsort((fit.residuals, fit.x))
     r = fit.residuals[order]
-    if _negligible(_weighted_ss(fit), fit):
+    if _negligible(weighted_ss(fit), fit):
         return RunsTest(0, 0, 0, int(r.size),
                         "the curve passes through every standard, so the residuals have no sign")
     scale = float(np.max(np.abs(fit.y)))
@@ -607,7 +611,7 @@ class DriftTest:
         """Two-sided p-value of H₀: no trend, Student's t on :attr:`df` degrees of freedom."""
         if self.reason is not None:
             return math.nan
-        return float(2 * stats.t.sf(abs(self.t_value), self.df))
+        return 2 * t_sf(abs(self.t_value), self.df)
 
     def drifting(self, alpha: float = 0.05) -> bool:
         """True when p < α: the residuals trend with injection order."""
@@ -655,15 +659,16 @@ def residual_drift(fit: CurveFit, order: Sequence[float] | np.ndarray) -> DriftT
     weighted = bool(np.ptp(fit.weights) > 0)
     e = np.sqrt(fit.weights) * fit.residuals
     correlation = math.nan
-    if np.ptp(t) > 0 and np.ptp(fit.x) > 0:
+    spread = np.ptp(t)
+    if spread > 0 and np.ptp(fit.x) > 0:
         correlation = float(np.corrcoef(t, fit.x)[0, 1])
     if t.size < 3:
         return DriftTest(math.nan, math.nan, t.size - 2, weighted, correlation,
                          f"a trend needs at least 3 injections; {t.size} in the fit")
-    if np.ptp(t) == 0:
+    if spread == 0:
         return DriftTest(math.nan, math.nan, t.size - 2, weighted, correlation,
                          "every standard has the same injection order")
-    if _negligible(_weighted_ss(fit), fit):
+    if _negligible(weighted_ss(fit), fit):
         return DriftTest(math.nan, math.nan, t.size - 2, weighted, correlation,
                          "the curve passes through every standard, so there are no residuals "
                          "to trend")

@@ -8,11 +8,13 @@ when the %RSD of the factors is at most 20 %).
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
+
+from calib.fit.distributions import t_ppf
 
 __all__ = ["ResponseFactors", "response_factors"]
 
@@ -37,12 +39,12 @@ class ResponseFactors:
         """Number of factors."""
         return int(self.factors.size)
 
-    @property
+    @functools.cached_property
     def mean(self) -> float:
         """RF̄ = Σ RFᵢ / n (``nan`` for no factor)."""
         return float(self.factors.mean()) if self.n else math.nan
 
-    @property
+    @functools.cached_property
     def sd(self) -> float:
         """s(RF) = √(Σ (RFᵢ − RF̄)² / (n − 1)); ``nan`` below two factors."""
         return float(self.factors.std(ddof=1)) if self.n > 1 else math.nan
@@ -75,7 +77,7 @@ class ResponseFactors:
         """
         if self.n < 2:
             return math.nan, math.nan
-        half = float(stats.t.ppf(0.5 + confidence / 2, self.df)) * self.std_error
+        half = t_ppf(0.5 + confidence / 2, self.df) * self.std_error
         return self.mean - half, self.mean + half
 
 

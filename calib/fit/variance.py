@@ -20,10 +20,10 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 from calib.fit.curve import CurveFit, fit_curve
 from calib.fit.design import weighting_refuses
+from calib.fit.distributions import f_ppf, f_sf
 from calib.options import Model, Weighting, parse_option
 
 __all__ = [
@@ -90,7 +90,7 @@ class VarianceEndsTest:
         """P(F(df_num, df_den) ≥ PG): PG exceeds the critical value exactly when p < 1 − confidence."""
         if self.reason:
             return math.nan
-        return float(stats.f.sf(self.statistic, self.df_num, self.df_den))
+        return f_sf(self.statistic, self.df_num, self.df_den)
 
     @property
     def larger_at_high(self) -> bool:
@@ -166,7 +166,7 @@ def variance_ends(
         pg, df_num, df_den = v_hi / v_lo, n_hi - 1, n_lo - 1
     else:
         pg, df_num, df_den = v_lo / v_hi, n_lo - 1, n_hi - 1
-    critical = float(stats.f.ppf(confidence, df_num, df_den))
+    critical = f_ppf(confidence, df_num, df_den)
     return VarianceEndsTest(lo, hi, n_lo, n_hi, v_lo, v_hi, pg, df_num, df_den, confidence, critical)
 
 
@@ -174,6 +174,22 @@ def _ends_unavailable(confidence: float, reason: str, lo: float = math.nan, hi: 
                       n_lo: int = 0, n_hi: int = 0) -> VarianceEndsTest:
     return VarianceEndsTest(lo, hi, n_lo, n_hi, math.nan, math.nan, math.nan, 0, 0, confidence,
                             math.nan, reason)
+
+
+def _medians(values: np.ndarray, group: np.ndarray, sizes: np.ndarray) -> np.ndarray:
+    """Each group's median as :func:`numpy.median` computes it (for an even count, the
+    mean of the middle two); ``group`` numbers the groups 0, 1, ... and ``sizes`` counts them.
+
+    Examples
+    --------
+    >>> _medians(np.array([3.0, 1.0, 2.0, 9.0, 5.0]), np.array([0, 0, 0, 1, 1]), np.array([3, 2]))
+    array([2., 7.])
+    """
+    ordered = values[np.lexsort((values, group))]
+    starts = np.cumsum(sizes) - sizes
+    upper = ordered[starts + sizes // 2]
+    lower = ordered[starts + (sizes - 1) // 2]
+    return np.where(sizes % 2 == 1, upper, (lower + upper) / 2)
 
 
 @dataclass(frozen=True)
@@ -210,6 +226,10 @@ class LevelVarianceTest:
     def rejects(self, alpha: float = 0.05) -> bool:
         """True when the variances differ significantly (p < α)."""
         return not self.reason and self.p_value < alpha
+
+
+_INCOMPARABLE = ("with 2 replicates at every level (or identical deviations) the deviations "
+                 "cannot be compared; the test needs a level with 3 or more")
 
 
 def variance_levels(
@@ -259,9 +279,10 @@ def variance_levels(
     if center not in ("median", "mean"):
         raise ValueError(f"center must be one of median, mean; got {center!r}")
     xs, ys, ws = _arrays(x, y, weights)
-    levels, counts = np.unique(xs, return_counts=True)
-    taking = levels[counts >= 2]
-    left_out = tuple(float(v) for v in levels[counts < 2])
+    levels, index, counts = np.unique(xs, return_inverse=True, return_counts=True)
+    replicated = counts >= 2
+    taking = levels[replicated]
+    left_out = tuple(float(v) for v in levels[~replicated])
 
     def unavailable(reason: str) -> LevelVarianceTest:
         return LevelVarianceTest(center, math.nan, 0, 0, math.nan,
@@ -270,25 +291,33 @@ def variance_levels(
     if taking.size < 2:
         return unavailable(f"{taking.size} level{'s' if taking.size != 1 else ''} with "
                            "replicates; the test needs at least 2")
-    groups = []
-    for level in taking:
-        at = xs == level
-        values = ys[at]
-        c = np.median(values) if center == "median" else values.mean()
-        groups.append(np.abs(values - c) * math.sqrt(ws[at].mean()))
-    k = len(groups)
-    n = sum(g.size for g in groups)
-    grand = np.concatenate(groups).mean()
-    between = sum(g.size * (g.mean() - grand) ** 2 for g in groups)
-    within = sum(float(np.sum((g - g.mean()) ** 2)) for g in groups)
+    sizes = counts[replicated]
+    if np.all(sizes <= 2):
+        return unavailable(_INCOMPARABLE)
+    # The points of the replicated levels, level after level (in the given order within a
+    # level), and the number of each one's level among them: every sum below is per level.
+    order = np.argsort(index, kind="stable")
+    order = order[replicated[index[order]]]
+    group = (np.cumsum(replicated) - 1)[index[order]]
+    values = ys[order]
+    if center == "median":
+        middle = _medians(values, group, sizes)
+    else:
+        middle = np.bincount(group, weights=values) / sizes
+    root_weight = np.sqrt(np.bincount(group, weights=ws[order]) / sizes)
+    z = np.abs(values - middle[group]) * root_weight[group]
+    k, n = int(sizes.size), int(sizes.sum())
+    grand = z.mean()
+    means = np.bincount(group, weights=z) / sizes
+    between = sum((sizes * (means - grand) ** 2).tolist())
+    within = sum(np.bincount(group, weights=(z - means[group]) ** 2).tolist())
     # With 2 replicates the two deviations from the median (or mean) are equal by
     # construction, so "within" is rounding noise (1e-35, not 0) and W would be ~1e27.
-    scale = float(sum(np.sum(g * g) for g in groups))
-    if all(g.size <= 2 for g in groups) or not within > 1e-24 * scale:
-        return unavailable("with 2 replicates at every level (or identical deviations) the "
-                           "deviations cannot be compared; the test needs a level with 3 or more")
+    scale = sum(np.bincount(group, weights=z * z).tolist())
+    if not within > 1e-24 * scale:
+        return unavailable(_INCOMPARABLE)
     w_stat = (n - k) / (k - 1) * between / within
-    p = float(stats.f.sf(w_stat, k - 1, n - k))
+    p = f_sf(w_stat, k - 1, n - k)
     return LevelVarianceTest(center, float(w_stat), k - 1, n - k, p,
                              tuple(float(v) for v in taking), left_out)
 
@@ -371,8 +400,8 @@ class WeightingAdvice:
 
 
 def _usable(xs: np.ndarray, ys: np.ndarray, weighting: Weighting) -> np.ndarray:
-    keep = np.array([weighting_refuses(c, weighting, response=r) is None for c, r in zip(xs, ys)],
-                    dtype=bool)
+    keep = np.array([weighting_refuses(c, weighting, response=r) is None
+                     for c, r in zip(xs.tolist(), ys.tolist())], dtype=bool)
     if weighting is Weighting.INV_S2:
         for level in np.unique(xs[keep]):
             at = keep & (xs == level)
@@ -398,7 +427,7 @@ def _spread(fit: CurveFit, alpha: float) -> tuple[float, float]:
         ratio, n_num, n_den = ms_hi / ms_lo, upper.size, lower.size
     else:
         ratio, n_num, n_den = ms_lo / ms_hi, lower.size, upper.size
-    return ratio, float(stats.f.ppf(1 - alpha / 2, n_num, n_den))
+    return ratio, f_ppf(1 - alpha / 2, n_num, n_den)
 
 
 def _candidate(xs: np.ndarray, ys: np.ndarray, model: Model, weighting: Weighting,

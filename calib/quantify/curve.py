@@ -16,12 +16,12 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from scipy import stats
 
 from calib.errors import InputError
 from calib.fit.bands import mean_band, weight_at
 from calib.fit.curve import CurveFit
 from calib.fit.design import COEFFICIENTS
+from calib.fit.distributions import t_ppf
 from calib.fit.inverse import quadratic_root
 from calib.options import Model, Weighting, parse_option
 
@@ -187,7 +187,7 @@ class CalibrationCurve:
         level = self.confidence if confidence is None else confidence
         if isinstance(level, bool) or not 0.5 <= level < 1:
             raise ValueError(f"confidence must be a number from 0.5 to below 1; got {level!r}")
-        return float(stats.t.ppf(0.5 + level / 2, self.residual_df))
+        return float(t_ppf(0.5 + level / 2, self.residual_df))
 
     def predict(self, x: np.ndarray | float) -> np.ndarray:
         """Fitted response at concentrations ``x``."""

@@ -68,10 +68,6 @@ class TextBlock(Flowable):
         self._lines: Sequence[Sequence[Run]] | None = None
         self._wrapped_width: float | None = None
 
-    def plain_text(self) -> str:
-        """The text as one string (for tests and accessibility of the story)."""
-        return "".join(text for text, _ in self.pieces)
-
     def _break(self, width: float) -> Sequence[Sequence[Run]]:
         if self.boxed:
             width -= 2 * _BOX_X

@@ -32,6 +32,7 @@ PAD_TOP = 1.6
 PAD_BOTTOM = 1.8
 _RULE = 0.25  # hairline between rows
 _FRAME = 0.6  # lines above and below the table and below the header
+_TALL_ROW = 300.0  # rows taller than this may be split between their lines
 
 
 class Cell(NamedTuple):
@@ -63,6 +64,14 @@ def grid_row(cells: Sequence[Cell], *, pad_top: float = PAD_TOP,
     """
     tallest = max((len(c.lines) for c in cells), default=1) or 1
     return GridRow(tuple(cells), pad_top, pad_bottom, pad_top + tallest * LEADING + pad_bottom)
+
+
+def _split_row(row: GridRow, lines: int) -> tuple[GridRow, GridRow]:
+    """``row`` cut after its first ``lines`` lines: the two parts keep their cells' columns."""
+    top = [cell._replace(lines=cell.lines[:lines]) for cell in row.cells]
+    rest = [cell._replace(lines=cell.lines[lines:]) for cell in row.cells]
+    return (grid_row(top, pad_top=row.pad_top, pad_bottom=row.pad_bottom),
+            grid_row(rest, pad_top=row.pad_top, pad_bottom=row.pad_bottom))
 
 
 @functools.lru_cache(maxsize=1 << 15)
@@ -119,8 +128,18 @@ class Grid(Flowable):
                 break
             used += row.height
             fit += 1
-        if fit == 0 or fit == len(body):
-            return []  # nothing fits here, or no split needed: let the frame move on
+        if fit == len(body):
+            return []  # no split needed
+        if fit == 0:
+            row = body[0]
+            lines = int((availHeight - used - row.pad_top - row.pad_bottom) // LEADING)
+            if row.height <= _TALL_ROW or lines < 1:
+                return []  # let the frame move on: the row starts on the next page
+            # A row taller than a page (a reason or a note of thousands of characters)
+            # could never be placed whole: it continues on the next page, line by line.
+            top, rest = _split_row(row, lines)
+            return [Grid((*head, top), self.widths, header=self.header),
+                    Grid((*head, rest, *body[1:]), self.widths, header=self.header)]
         return [Grid((*head, *body[:fit]), self.widths, header=self.header),
                 Grid((*head, *body[fit:]), self.widths, header=self.header)]
 

@@ -131,3 +131,28 @@ def test_pdf_bytes_do_not_depend_on_what_was_rendered_before():
     first = render(story("alpha"))
     render(story("ßeta Łukasiewicz Nguyễn"))
     assert render(story("alpha")) == first
+
+
+def test_a_row_taller_than_a_page_continues_on_the_next_pages():
+    # A spreadsheet cell holds up to 32,767 characters; a reason or note that long makes
+    # a row taller than any page, which must continue page after page, not stop the record.
+    maker = TableMaker(get_styles(), 480)
+    words = [f"w{i}" for i in range(4000)]
+    rows = [["Cell", "Reason"], ["D9", " ".join(words)], ["D10", "ok"]]
+    pages = pdf_text(render([maker.grid(rows, [0.1, 0.9])]))
+    assert len(pages) >= 3
+    assert all(page.startswith("Cell Reason") for page in pages)  # header on every page
+    printed = " ".join(pages).split()
+    found = [w for w in printed if w.startswith("w") and w[1:].isdigit()]
+    assert found == words  # every word once, in order
+    assert "D10" in pages[-1]
+
+
+def test_a_row_that_fits_a_page_moves_whole_to_the_next_page():
+    maker = TableMaker(get_styles(), 480)
+    filler = [["Level", "Response"]] + [[str(i), "1.0"] for i in range(60)]
+    block = ["D9", "\n".join(f"line {i}" for i in range(20))]  # about 170 points high
+    table = maker.grid([*filler, block], [0.5, 0.5])
+    pages = pdf_text(render([table]))
+    holding = [n for n, page in enumerate(pages) if "line 0" in page or "line 19" in page]
+    assert len(holding) == 1  # both ends of the row on one page: not cut

@@ -9,7 +9,7 @@ one thing computed here is the drawing of the confidence band, through
 from __future__ import annotations
 
 import io
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Iterator, Mapping
 from typing import Any
 
 import numpy as np
@@ -47,113 +47,29 @@ from calib.report.styles import BOLD, get_styles
 from calib.report.tables import TableMaker
 from calib.report.template import ReportTemplate
 from calib.report.vector import as_flowable
+from calib.report.wording import (
+    CHECK_VERDICTS,
+    COEFFICIENTS,
+    MODELS,
+    ROLES,
+    SEVERITIES,
+    WEIGHTINGS,
+    as_list,
+    as_mapping,
+    coefficient_order,
+    common_sheet,
+    fixed_digits,
+    signature_words,
+    text_or_dash,
+    verdict_sentence,
+)
 
-__all__ = ["build_story", "signature_words", "story_sections", "verdict_sentence"]
+__all__ = ["build_story", "story_sections"]
 
-_MODELS = {
-    "linear": "straight line, y = a + b·x",
-    "origin": "straight line through the origin, y = b·x",
-    "quadratic": "quadratic, y = a + b·x + c·x²",
-}
-_WEIGHTINGS = {"none": "none (equal weights)", "1/x": "1/x", "1/x2": "1/x²"}
-_COEFFICIENTS = {"intercept": "Intercept a", "slope": "Slope b", "quadratic": "Quadratic term c"}
-_CHECK_VERDICTS = {"pass": "Pass", "fail": "Fail", "warn": "Warning",
-                   "not-evaluated": "Not evaluated"}
-_SEVERITIES = {"reject": "Reject", "review": "Review", "info": "Information"}
-_ROLES = ("prepared", "reviewed", "approved")
 _BAND_POINTS = 41
 _LOGO_HEIGHT = 40.0  # points (14 mm)
 _LOGO_WIDTH = 130.0
 _PLOT_HEIGHT = 190
-
-
-def _str(value: Any) -> str:
-    """Record text as printed: the dash when missing."""
-    if value is None or value == "":
-        return MISSING
-    return str(value)
-
-
-def _dict(value: Any) -> Mapping[str, Any]:
-    return value if isinstance(value, Mapping) else {}
-
-
-def _list(value: Any) -> Sequence[Any]:
-    return value if isinstance(value, list) else []
-
-
-def _fixed(value: Any, decimals: int = 6) -> str:
-    v = as_float(value)
-    return MISSING if v is None else f"{v:.{decimals}f}"
-
-
-def _coefficient_order(coefficients: Mapping[str, Any]) -> list[str]:
-    """Design order (intercept, slope, quadratic), whatever order the mapping has.
-
-    A record read back from its canonical JSON has its keys sorted, and it must
-    print exactly as it did when it was issued.
-    """
-    known = [name for name in _COEFFICIENTS if name in coefficients]
-    return known + sorted(set(coefficients) - set(known))
-
-
-def verdict_sentence(curve: Mapping[str, Any], template: ReportTemplate) -> str:
-    """The verdict in words, naming the checks that failed, warned or could not be evaluated.
-
-    Examples
-    --------
-    >>> from calib.report.template import load_template
-    >>> curve = {"verdict": "rejected", "checks": [
-    ...     {"title": "Intercept is near zero", "verdict": "fail", "severity": "reject"},
-    ...     {"title": "Enough levels", "verdict": "pass", "severity": "reject"}]}
-    >>> verdict_sentence(curve, load_template())
-    'Rejected. Failed: Intercept is near zero.'
-    """
-    word = template.verdicts.word(curve.get("verdict"))
-    groups: dict[str, list[str]] = {"fail": [], "warn": [], "not-evaluated": [], "info": []}
-    for check in _list(curve.get("checks")):
-        check = _dict(check)
-        verdict, severity = check.get("verdict"), check.get("severity")
-        title = str(check.get("title") or check.get("id") or "?")
-        if severity == "info":
-            # Reported for information: named apart, since they never move the verdict.
-            if verdict in ("fail", "warn"):
-                groups["info"].append(title)
-            continue
-        # An unevaluated check matters when it could reject.
-        if verdict == "not-evaluated" and severity != "reject":
-            continue
-        if verdict in groups:
-            groups[verdict].append(title)
-    parts = [f"{word}."]
-    labels = (("fail", "Failed"), ("warn", "Warnings"), ("not-evaluated", "Not evaluated"),
-              ("info", "For information, not affecting the verdict"))
-    for key, label in labels:
-        if groups[key]:
-            parts.append(f"{label}: {'; '.join(groups[key])}.")
-    return " ".join(parts)
-
-
-def signature_words(entry: Mapping[str, Any]) -> str:
-    """What the Signature column says: entered by name only, or signed with a key.
-
-    The key id is shown to 16 hex digits in groups of four, the start of the
-    fingerprint that ``calib verify`` prints in full.
-
-    Examples
-    --------
-    >>> signature_words({"role": "prepared", "name": "R. Okafor"})
-    'Entered in the record'
-    >>> signature_words({"key_id": "3f9a1c2b77de44108b0c5e6f7a8b9c0d", "algorithm": "ed25519"})
-    'Signed electronically (Ed25519, key 3f9a 1c2b 77de 4410)'
-    """
-    key_id = entry.get("key_id")
-    if not key_id:
-        return "Entered in the record"
-    digits = str(key_id)[:16]
-    grouped = " ".join(digits[i:i + 4] for i in range(0, len(digits), 4))
-    algorithm = "Ed25519" if entry.get("algorithm") == "ed25519" else _str(entry.get("algorithm"))
-    return f"Signed electronically ({algorithm}, key {grouped})"
 
 
 def _prediction(details: Mapping[str, Any], curve: Mapping[str, Any], beta: list[Any],
@@ -166,27 +82,11 @@ def _prediction(details: Mapping[str, Any], curve: Mapping[str, Any], beta: list
         _, half = prediction_band(
             str(curve.get("model")), np.array(beta), np.array(cov), t_crit, grid,
             residual_sd=sd, weight_function=str(details.get("weight_function") or "none"),
-            weight_scale=scale, level_variances=_list(details.get("level_variances")),
+            weight_scale=scale, level_variances=as_list(details.get("level_variances")),
         )
     except ValueError:
         return None
     return tuple(half.tolist()) if np.all(np.isfinite(half)) else None
-
-
-def _common_sheet(cells: Any) -> tuple[str, str]:
-    """The ``Sheet!`` prefix every source cell shares, and the column title naming it.
-
-    Examples
-    --------
-    >>> _common_sheet(["Run!C7", "Run!C8"])
-    ('Run!', 'Cell in Run')
-    >>> _common_sheet(["A!C7", "B!C8"])
-    ('', 'Source cell')
-    """
-    prefixes = {str(c).rpartition("!")[0] for c in cells if c}
-    if len(prefixes) == 1 and (sheet := prefixes.pop()):
-        return f"{sheet}!", f"Cell in {sheet.strip(chr(39))}"
-    return "", "Source cell"
 
 
 class _Builder:
@@ -201,12 +101,12 @@ class _Builder:
         self.width = width
         self.s = get_styles()
         self.tables = TableMaker(self.s, width)
-        units = _dict(_dict(record.get("run")).get("units"))
+        units = as_mapping(as_mapping(record.get("run")).get("units"))
         self.conc_unit = str(units.get("concentration") or "")
         self.resp_unit = str(units.get("response") or "")
-        self.curves = [_dict(c) for c in _list(_dict(record.get("check")).get("curves"))]
+        self.curves = [as_mapping(c) for c in as_list(as_mapping(record.get("check")).get("curves"))]
         self.details = {
-            _dict(d).get("analyte"): _dict(d) for d in _list(record.get("fit_details"))
+            as_mapping(d).get("analyte"): as_mapping(d) for d in as_list(record.get("fit_details"))
         }
 
     # -- small pieces ----------------------------------------------------------------------
@@ -263,48 +163,48 @@ class _Builder:
 
     # -- sections --------------------------------------------------------------------------
     def run_items(self, curve: Mapping[str, Any] | None) -> list[tuple[str, str, bool]]:
-        record, run = self.record, _dict(self.record.get("run"))
-        profile = _dict(record.get("profile"))
-        tool = _dict(record.get("tool"))
-        units = _dict(run.get("units"))
-        source = curve if curve is not None else _dict(record.get("settings"))
+        record, run = self.record, as_mapping(self.record.get("run"))
+        profile = as_mapping(record.get("profile"))
+        tool = as_mapping(record.get("tool"))
+        units = as_mapping(run.get("units"))
+        source = curve if curve is not None else as_mapping(record.get("settings"))
         confidence = as_float(source.get("confidence"))
         profile_sha = str(profile.get("sha256") or "")
         items = [
-            ("Record id", _str(self.record_id), False),
+            ("Record id", text_or_dash(self.record_id), False),
             ("Created", format_utc(record.get("created_at")), False),
-            ("Version digest (SHA-256)", _str(self.digest), True),
-            ("Source file", _str(run.get("file")), True),
-            ("Source file SHA-256", _str(run.get("sha256")), True),
-            ("Sheet", _str(run.get("sheet")), False),
-            ("Layout", _str(run.get("layout")), False),
-            ("Profile", f"{_str(profile.get('name'))}, version {_str(profile.get('version'))}",
+            ("Version digest (SHA-256)", text_or_dash(self.digest), True),
+            ("Source file", text_or_dash(run.get("file")), True),
+            ("Source file SHA-256", text_or_dash(run.get("sha256")), True),
+            ("Sheet", text_or_dash(run.get("sheet")), False),
+            ("Layout", text_or_dash(run.get("layout")), False),
+            ("Profile", f"{text_or_dash(profile.get('name'))}, version {text_or_dash(profile.get('version'))}",
              False),
             ("Profile SHA-256", f"{profile_sha[:16]} …" if profile_sha else MISSING, False),
-            ("Model", _str(_MODELS.get(str(source.get("model")), source.get("model"))), False),
-            ("Weighting", _str(_WEIGHTINGS.get(str(source.get("weighting")),
+            ("Model", text_or_dash(MODELS.get(str(source.get("model")), source.get("model"))), False),
+            ("Weighting", text_or_dash(WEIGHTINGS.get(str(source.get("weighting")),
                                                source.get("weighting"))), False),
             ("Confidence level", f"{confidence * 100:g} %" if confidence else MISSING, False),
-            ("Prepared by", _str(record.get("prepared_by")), False),
+            ("Prepared by", text_or_dash(record.get("prepared_by")), False),
         ]
         if units:
             items.append(("Units", "; ".join(f"{k}: {units[k]}" for k in sorted(units)), False))
         made = f"{tool.get('name') or 'calib'} {tool.get('version') or ''}".strip()
-        libraries = _dict(record.get("libraries"))
+        libraries = as_mapping(record.get("libraries"))
         if libraries:
             made += " (" + ", ".join(f"{k} {libraries[k]}" for k in sorted(libraries)) + ")"
         items.append(("Issued with", made, True))
-        metadata = _dict(run.get("metadata"))
+        metadata = as_mapping(run.get("metadata"))
         for key in sorted(metadata, key=str):
             value = metadata[key]
             label = str(key).replace("_", " ")
-            items.append((label[:1].upper() + label[1:], _str(value), len(str(value)) > 38))
-        for note in _list(run.get("warnings")):
-            items.append(("Import note", _str(note), True))
+            items.append((label[:1].upper() + label[1:], text_or_dash(value), len(str(value)) > 38))
+        for note in as_list(run.get("warnings")):
+            items.append(("Import note", text_or_dash(note), True))
         return items
 
     def fit_section(self, curve: Mapping[str, Any]) -> list[Flowable]:
-        coefficients = _dict(curve.get("coefficients"))
+        coefficients = as_mapping(curve.get("coefficients"))
         if not coefficients:
             return [self.para("The curve could not be fitted, so there are no coefficients. "
                               "The checks and standards below say why.")]
@@ -318,10 +218,10 @@ class _Builder:
         }
         rows: list[list[Any]] = [["Coefficient", "Unit", "Estimate", "Standard error", "t",
                                   "p", f"Lower {level} limit", f"Upper {level} limit"]]
-        for name in _coefficient_order(coefficients):
-            row = _dict(coefficients[name])
+        for name in coefficient_order(coefficients):
+            row = as_mapping(coefficients[name])
             rows.append([
-                _COEFFICIENTS.get(name, name),
+                COEFFICIENTS.get(name, name),
                 unit_of.get(name, ""),
                 format_number(row.get("estimate"), 6),
                 format_number(row.get("std_error"), 4),
@@ -332,7 +232,7 @@ class _Builder:
             ])
         table = self.tables.grid(rows, [0.13, 0.17, 0.12, 0.11, 0.09, 0.09, 0.145, 0.145],
                                  right=range(2, 8))
-        lod, loq = _dict(curve.get("lod")), _dict(curve.get("loq"))
+        lod, loq = as_mapping(curve.get("lod")), as_mapping(curve.get("loq"))
 
         def with_unit(text: str, unit: str) -> str:
             return f"{text} {unit}" if unit and text != MISSING else text
@@ -340,11 +240,11 @@ class _Builder:
         stats = self.tables.pairs([
             ("Residual SD σ̂", with_unit(format_number(curve.get("residual_sd"), 5), resp),
              False),
-            ("R²", _fixed(curve.get("r_squared")), False),
-            ("Correlation r", _fixed(curve.get("r")), False),
-            ("Points in the fit N", _str(curve.get("n_points")), False),
-            ("Levels", _str(curve.get("n_levels")), False),
-            ("Residual df ν", _str(curve.get("residual_df")), False),
+            ("R²", fixed_digits(curve.get("r_squared")), False),
+            ("Correlation r", fixed_digits(curve.get("r")), False),
+            ("Points in the fit N", text_or_dash(curve.get("n_points")), False),
+            ("Levels", text_or_dash(curve.get("n_levels")), False),
+            ("Residual df ν", text_or_dash(curve.get("residual_df")), False),
             ("LOD", with_unit(format_number(lod.get("value"), 4), conc), False),
             ("LOQ", with_unit(format_number(loq.get("value"), 4), conc), False),
         ])
@@ -356,7 +256,7 @@ class _Builder:
         return out
 
     def checks_table(self, curve: Mapping[str, Any]) -> Flowable:
-        checks = [_dict(c) for c in _list(curve.get("checks"))]
+        checks = [as_mapping(c) for c in as_list(curve.get("checks"))]
         if not checks:
             return self.para("No acceptance checks were evaluated.")
         rows: list[list[Any]] = [["Check", "Value", "Limit", "Verdict", "Severity", "Detail"]]
@@ -367,22 +267,22 @@ class _Builder:
                 bold.append((3, i))
             severity = str(c.get("severity") or "")
             rows.append([
-                _str(c.get("title") or c.get("id")),
+                text_or_dash(c.get("title") or c.get("id")),
                 format_compact(c.get("value")),
                 format_compact(c.get("limit")),
-                _CHECK_VERDICTS.get(verdict, verdict or MISSING),
-                _SEVERITIES.get(severity, severity or MISSING),
-                _str(c.get("detail")),
+                CHECK_VERDICTS.get(verdict, verdict or MISSING),
+                SEVERITIES.get(severity, severity or MISSING),
+                text_or_dash(c.get("detail")),
             ])
         return self.tables.grid(rows, [0.235, 0.095, 0.07, 0.115, 0.105, 0.38], right=(1, 2),
                                 bold=bold)
 
     def standards_table(self, curve: Mapping[str, Any]) -> Flowable:
-        points = [_dict(p) for p in _list(curve.get("points"))]
+        points = [as_mapping(p) for p in as_list(curve.get("points"))]
         if not points:
             return self.para("The record holds no standards for this analyte.")
         conc, resp = self.unit("concentration"), self.unit("response")
-        prefix, cell_title = _common_sheet(p.get("source_cell") for p in points)
+        prefix, cell_title = common_sheet(p.get("source_cell") for p in points)
         rows: list[list[Any]] = [[
             cell_title, "Level", f"Nominal{conc}", f"Response{resp}",
             f"Fitted response{resp}", f"Back-calculated{conc}", "Deviation %", "Used in the fit",
@@ -393,8 +293,8 @@ class _Builder:
             else:
                 used = "No: " + str(p.get("exclusion_reason") or "no reason given")
             rows.append([
-                _str(p.get("source_cell")).removeprefix(prefix),
-                _str(p.get("level")),
+                text_or_dash(p.get("source_cell")).removeprefix(prefix),
+                text_or_dash(p.get("level")),
                 format_compact(p.get("concentration"), 6),
                 format_compact(p.get("response"), 7),
                 format_number(p.get("fitted"), 6),
@@ -408,12 +308,12 @@ class _Builder:
     def band(self, curve: Mapping[str, Any], log_x: bool) -> CurveBand | None:
         """Fitted curve and confidence band from the stored fit details, or None."""
         details = self.details.get(curve.get("analyte"))
-        coefficients = _dict(curve.get("coefficients"))
+        coefficients = as_mapping(curve.get("coefficients"))
         if not details or not coefficients:
             return None
-        names = [str(n) for n in _list(details.get("coefficient_names"))]
-        beta = [as_float(_dict(coefficients.get(n)).get("estimate")) for n in names]
-        cov = [[as_float(v) for v in _list(row)] for row in _list(details.get("covariance"))]
+        names = [str(n) for n in as_list(details.get("coefficient_names"))]
+        beta = [as_float(as_mapping(coefficients.get(n)).get("estimate")) for n in names]
+        cov = [[as_float(v) for v in as_list(row)] for row in as_list(details.get("covariance"))]
         t_crit = as_float(details.get("t_critical"))
         lo, hi = as_float(details.get("x_min")), as_float(details.get("x_max"))
         if not (
@@ -440,7 +340,7 @@ class _Builder:
         if not (show.calibration_plot or show.residual_plot):
             return []
         xy = []
-        for p in (_dict(p) for p in _list(curve.get("points"))):
+        for p in (as_mapping(p) for p in as_list(curve.get("points"))):
             x, y = as_float(p.get("concentration")), as_float(p.get("response"))
             if x is not None and y is not None:
                 xy.append((x, y, as_float(p.get("fitted")), bool(p.get("included", True))))
@@ -476,7 +376,7 @@ class _Builder:
         weighting = str(curve.get("weighting") or "none")
         if weighting != "none" and show.residual_plot:
             notes.append("Residuals are plotted unweighted, in response units; the fit "
-                         f"weighted the standards by {_WEIGHTINGS.get(weighting, weighting)}.")
+                         f"weighted the standards by {WEIGHTINGS.get(weighting, weighting)}.")
         out: list[Flowable] = [self.heading(self.t.titles.plots), table]
         if notes:
             out.append(self.para(" ".join(notes), s.note))
@@ -494,19 +394,19 @@ class _Builder:
 
     def signoff(self) -> list[Flowable]:
         meanings = self.t.meanings
-        signatures = [_dict(x) for x in _list(self.record.get("signatures"))]
+        signatures = [as_mapping(x) for x in as_list(self.record.get("signatures"))]
         rows: list[list[Any]] = [["Role", "Printed name", "Signature", "Date and time (UTC)",
                                   "Meaning"]]
         blank_rows = []
-        others = {str(x.get("role")) for x in signatures if x.get("role")} - set(_ROLES)
+        others = {str(x.get("role")) for x in signatures if x.get("role")} - set(ROLES)
         # A rejected record is closed: no blank rows invite a review or approval by hand.
         closed = any(x.get("role") == "rejected" for x in signatures)
-        for role in [*_ROLES, *sorted(others)]:
+        for role in [*ROLES, *sorted(others)]:
             signed = [x for x in signatures if x.get("role") == role]
             for x in signed:
-                rows.append([role.capitalize(), _str(x.get("name")), signature_words(x),
+                rows.append([role.capitalize(), text_or_dash(x.get("name")), signature_words(x),
                              format_utc(x.get("signed_at")),
-                             _str(x.get("meaning") or getattr(meanings, role, ""))])
+                             text_or_dash(x.get("meaning") or getattr(meanings, role, ""))])
             if not signed and closed and role != "prepared":
                 continue
             if not signed:
@@ -520,21 +420,21 @@ class _Builder:
 
     def range_notes(self, curve: Mapping[str, Any]) -> list[Flowable]:
         """The analyst's applied working range (with the full-range result) and calib's proposal."""
-        working = _dict(curve.get("working_range"))
+        working = as_mapping(curve.get("working_range"))
         words = self.t.verdicts.word
         notes = []
-        applied = _dict(working.get("applied"))
+        applied = as_mapping(working.get("applied"))
         if applied:
-            original = _dict(applied.get("original"))
+            original = as_mapping(applied.get("original"))
             notes.append(
                 f"Working range applied by the analyst: {format_compact(applied.get('low'))} to "
-                f"{format_compact(applied.get('high'))} ({_str(applied.get('reason'))}). On the full "
+                f"{format_compact(applied.get('high'))} ({text_or_dash(applied.get('reason'))}). On the full "
                 f"range the curve was: {words(original.get('verdict'))}.")
-        proposed = _dict(working.get("proposed"))
+        proposed = as_mapping(working.get("proposed"))
         if proposed:
             notes.append(
                 f"calib proposes the range {format_compact(proposed.get('lloq'))} to "
-                f"{format_compact(proposed.get('uloq'))} ({_str(proposed.get('reason'))}); on it "
+                f"{format_compact(proposed.get('uloq'))} ({text_or_dash(proposed.get('reason'))}); on it "
                 f"the curve would be: {words(proposed.get('verdict'))}. Not applied: the analyst "
                 "applies a range only with --range, and the record then shows it.")
         return [self.para(n) for n in notes]
@@ -568,17 +468,17 @@ class _Builder:
                           if k in verdicts)
         rows: list[list[Any]] = [["Analyte", "Verdict", "Slope", "R²", "Checks behind the verdict"]]
         for c in self.curves:
-            slope = _dict(_dict(c.get("coefficients")).get("slope")).get("estimate")
+            slope = as_mapping(as_mapping(c.get("coefficients")).get("slope")).get("estimate")
             # What moved the verdict: failures and warnings of rules that are not info-only.
-            failing = [str(_dict(x).get("title") or _dict(x).get("id"))
-                       for x in _list(c.get("checks"))
-                       if _dict(x).get("verdict") in ("fail", "warn")
-                       and _dict(x).get("severity") != "info"]
-            rows.append([_str(c.get("analyte")), t.verdicts.word(c.get("verdict")),
-                         format_number(slope, 5), _fixed(c.get("r_squared")),
+            failing = [str(as_mapping(x).get("title") or as_mapping(x).get("id"))
+                       for x in as_list(c.get("checks"))
+                       if as_mapping(x).get("verdict") in ("fail", "warn")
+                       and as_mapping(x).get("severity") != "info"]
+            rows.append([text_or_dash(c.get("analyte")), t.verdicts.word(c.get("verdict")),
+                         format_number(slope, 5), fixed_digits(c.get("r_squared")),
                          "; ".join(failing) or MISSING])
         table = self.tables.grid(rows, [0.2, 0.12, 0.13, 0.12, 0.43], right=(2, 3))
-        verdict = t.verdicts.word(_dict(self.record.get("check")).get("verdict"))
+        verdict = t.verdicts.word(as_mapping(self.record.get("check")).get("verdict"))
         out: list[Flowable] = [
             SectionMark(t.titles.summary), *self.lab_block(),
             self.para(t.titles.document, self.s.title),

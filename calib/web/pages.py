@@ -115,7 +115,7 @@ def run_summary(assessment: Any, *, show: str = "all") -> dict[str, Any]:
 def curve_view(assessment: Any, index: int) -> dict[str, Any]:
     """Everything the curve section shows: verdict sentence, charts, fit, checks, standards."""
     from calib.report import load_template
-    from calib.report.story import verdict_sentence
+    from calib.report.wording import verdict_sentence
     from calib.web.svg import curve_charts
 
     curve = assessment.curves[index]

@@ -1,0 +1,135 @@
+"""How the PDF record puts the figures of a record in words: labels, verdicts, signatures.
+
+These read the parsed ``calib.record/1`` JSON defensively (a stored record may
+lack a field; it then prints a dash) and are shared by the PDF story and the
+web page.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+from calib.report.formatting import MISSING, as_float
+from calib.report.template import ReportTemplate
+
+__all__ = ["CHECK_VERDICTS", "COEFFICIENTS", "MODELS", "ROLES", "SEVERITIES", "WEIGHTINGS",
+           "as_list", "as_mapping", "coefficient_order", "common_sheet", "fixed_digits",
+           "signature_words", "text_or_dash", "verdict_sentence"]
+
+MODELS = {
+    "linear": "straight line, y = a + b·x",
+    "origin": "straight line through the origin, y = b·x",
+    "quadratic": "quadratic, y = a + b·x + c·x²",
+}
+WEIGHTINGS = {"none": "none (equal weights)", "1/x": "1/x", "1/x2": "1/x²"}
+COEFFICIENTS = {"intercept": "Intercept a", "slope": "Slope b", "quadratic": "Quadratic term c"}
+CHECK_VERDICTS = {"pass": "Pass", "fail": "Fail", "warn": "Warning",
+                   "not-evaluated": "Not evaluated"}
+SEVERITIES = {"reject": "Reject", "review": "Review", "info": "Information"}
+ROLES = ("prepared", "reviewed", "approved")
+
+
+def text_or_dash(value: Any) -> str:
+    """Record text as printed: the dash when missing."""
+    if value is None or value == "":
+        return MISSING
+    return str(value)
+
+
+def as_mapping(value: Any) -> Mapping[str, Any]:
+    return value if isinstance(value, Mapping) else {}
+
+
+def as_list(value: Any) -> Sequence[Any]:
+    return value if isinstance(value, list) else []
+
+
+def fixed_digits(value: Any, decimals: int = 6) -> str:
+    v = as_float(value)
+    return MISSING if v is None else f"{v:.{decimals}f}"
+
+
+def coefficient_order(coefficients: Mapping[str, Any]) -> list[str]:
+    """Design order (intercept, slope, quadratic), whatever order the mapping has.
+
+    A record read back from its canonical JSON has its keys sorted, and it must
+    print exactly as it did when it was issued.
+    """
+    known = [name for name in COEFFICIENTS if name in coefficients]
+    return known + sorted(set(coefficients) - set(known))
+
+
+def verdict_sentence(curve: Mapping[str, Any], template: ReportTemplate) -> str:
+    """The verdict in words, naming the checks that failed, warned or could not be evaluated.
+
+    Examples
+    --------
+    >>> from calib.report.template import load_template
+    >>> curve = {"verdict": "rejected", "checks": [
+    ...     {"title": "Intercept is near zero", "verdict": "fail", "severity": "reject"},
+    ...     {"title": "Enough levels", "verdict": "pass", "severity": "reject"}]}
+    >>> verdict_sentence(curve, load_template())
+    'Rejected. Failed: Intercept is near zero.'
+    """
+    word = template.verdicts.word(curve.get("verdict"))
+    groups: dict[str, list[str]] = {"fail": [], "warn": [], "not-evaluated": [], "info": []}
+    for check in as_list(curve.get("checks")):
+        check = as_mapping(check)
+        verdict, severity = check.get("verdict"), check.get("severity")
+        title = str(check.get("title") or check.get("id") or "?")
+        if severity == "info":
+            # Reported for information: named apart, since they never move the verdict.
+            if verdict in ("fail", "warn"):
+                groups["info"].append(title)
+            continue
+        # An unevaluated check matters when it could reject.
+        if verdict == "not-evaluated" and severity != "reject":
+            continue
+        if verdict in groups:
+            groups[verdict].append(title)
+    parts = [f"{word}."]
+    labels = (("fail", "Failed"), ("warn", "Warnings"), ("not-evaluated", "Not evaluated"),
+              ("info", "For information, not affecting the verdict"))
+    for key, label in labels:
+        if groups[key]:
+            parts.append(f"{label}: {'; '.join(groups[key])}.")
+    return " ".join(parts)
+
+
+def signature_words(entry: Mapping[str, Any]) -> str:
+    """What the Signature column says: entered by name only, or signed with a key.
+
+    The key id is shown to 16 hex digits in groups of four, the start of the
+    fingerprint that ``calib verify`` prints in full.
+
+    Examples
+    --------
+    >>> signature_words({"role": "prepared", "name": "R. Okafor"})
+    'Entered in the record'
+    >>> signature_words({"key_id": "3f9a1c2b77de44108b0c5e6f7a8b9c0d", "algorithm": "ed25519"})
+    'Signed electronically (Ed25519, key 3f9a 1c2b 77de 4410)'
+    """
+    key_id = entry.get("key_id")
+    if not key_id:
+        return "Entered in the record"
+    digits = str(key_id)[:16]
+    grouped = " ".join(digits[i:i + 4] for i in range(0, len(digits), 4))
+    algorithm = "Ed25519" if entry.get("algorithm") == "ed25519" else text_or_dash(entry.get("algorithm"))
+    return f"Signed electronically ({algorithm}, key {grouped})"
+
+
+def common_sheet(cells: Any) -> tuple[str, str]:
+    """The ``Sheet!`` prefix every source cell shares, and the column title naming it.
+
+    Examples
+    --------
+    >>> common_sheet(["Run!C7", "Run!C8"])
+    ('Run!', 'Cell in Run')
+    >>> common_sheet(["A!C7", "B!C8"])
+    ('', 'Source cell')
+    """
+    prefixes = {str(c).rpartition("!")[0] for c in cells if c}
+    if len(prefixes) == 1 and (sheet := prefixes.pop()):
+        return f"{sheet}!", f"Cell in {sheet.strip(chr(39))}"
+    return "", "Source cell"

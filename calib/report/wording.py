@@ -25,7 +25,7 @@ MODELS = {
 WEIGHTINGS = {"none": "none (equal weights)", "1/x": "1/x", "1/x2": "1/x²"}
 COEFFICIENTS = {"intercept": "Intercept a", "slope": "Slope b", "quadratic": "Quadratic term c"}
 CHECK_VERDICTS = {"pass": "Pass", "fail": "Fail", "warn": "Warning",
-                   "not-evaluated": "Not evaluated"}
+                  "not-evaluated": "Not evaluated"}
 SEVERITIES = {"reject": "Reject", "review": "Review", "info": "Information"}
 ROLES = ("prepared", "reviewed", "approved")
 

@@ -38,14 +38,23 @@ def text_or_dash(value: Any) -> str:
 
 
 def as_mapping(value: Any) -> Mapping[str, Any]:
+    """``value`` if it is a mapping, else an empty one (a record field missing or malformed)."""
     return value if isinstance(value, Mapping) else {}
 
 
 def as_list(value: Any) -> Sequence[Any]:
+    """``value`` if it is a list, else an empty one."""
     return value if isinstance(value, list) else []
 
 
 def fixed_digits(value: Any, decimals: int = 6) -> str:
+    """A number with ``decimals`` digits after the point (R², r); the dash when missing.
+
+    Examples
+    --------
+    >>> fixed_digits(0.99934712), fixed_digits(None)
+    ('0.999347', '—')
+    """
     v = as_float(value)
     return MISSING if v is None else f"{v:.{decimals}f}"
 

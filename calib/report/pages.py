@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from reportlab.lib.pagesizes import A4, LETTER
+from reportlab.pdfbase.pdfmetrics import stringWidth
 from reportlab.pdfgen.canvas import Canvas
 from reportlab.platypus import Flowable
 
@@ -65,6 +66,37 @@ class Furniture:
         """
         return f"Record {self.record_id} · digest {self.digest[:16]} · page {page} of {pages}"
 
+    def header_title(self, section: str | None, room: float) -> str:
+        """The right of the header: title and section, the section shortened to fit ``room``.
+
+        A long analyte name (a spreadsheet allows thousands of characters) must not
+        run over the lab's name on the left.
+
+        Examples
+        --------
+        >>> from calib.report.styles import register_fonts
+        >>> register_fonts()
+        >>> f = Furniture("Lab", "Calibration record", "CR-1", "0" * 64)
+        >>> f.header_title("Nitrate-N", 300)
+        'Calibration record · Nitrate-N'
+        >>> f.header_title("N" * 300, 150)
+        'Calibration record · NNNNNNNNNNNN…'
+        """
+        title = self.document_title
+        if not section:
+            return title
+        full = f"{title} · {section}"
+        if stringWidth(full, REGULAR, 7.5) <= room:
+            return full
+        low, high = 0, len(section)  # the longest start of the name that fits, then "…"
+        while low < high:
+            mid = (low + high + 1) // 2
+            if stringWidth(f"{title} · {section[:mid]}…", REGULAR, 7.5) <= room:
+                low = mid
+            else:
+                high = mid - 1
+        return f"{title} · {section[:low]}…"
+
     def draw(self, canvas: Canvas, page: int, pages: int, section: str | None) -> None:
         """Draw header and footer on the current page of ``canvas``."""
         width, height = canvas._pagesize
@@ -77,8 +109,8 @@ class Furniture:
         canvas.setFont(BOLD, 7.5)
         canvas.drawString(left, top, self.lab_name)
         canvas.setFont(REGULAR, 7.5)
-        title = self.document_title + (f" · {section}" if section else "")
-        canvas.drawRightString(right, top, title)
+        room = right - left - stringWidth(self.lab_name, BOLD, 7.5) - 12
+        canvas.drawRightString(right, top, self.header_title(section, room))
         canvas.setStrokeColor(LINE)
         canvas.setLineWidth(0.5)
         canvas.line(left, top - 3.5, right, top - 3.5)

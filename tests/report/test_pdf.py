@@ -257,3 +257,14 @@ def test_sections_are_made_only_as_the_layout_reaches_them(nitrate, fluoride, kx
     assert asked == [0, 1, 2, 3]  # summary, then three analytes: each after the last was drawn
     assert drawn == [0, 1, 2, 3]
     assert len(pdf_pages_text(pdf)) >= 4
+
+
+def test_a_long_analyte_name_is_shortened_in_the_page_header(nitrate):
+    # Found trying a 300-character name: the header's right side ran over the lab's name.
+    curve, details = nitrate
+    name = "N" * 300
+    record = make_record([(dict(curve, analyte=name), dict(details, analyte=name))])
+    first = pdf_pages_text(render(record))[0]
+    header = next(line for line in first.splitlines() if "Calibration record ·" in line)
+    assert header.endswith("…") and len(header) < 200
+    assert name in first.replace("\n", "")  # the title itself keeps the whole name

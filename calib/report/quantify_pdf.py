@@ -98,7 +98,7 @@ class _Story:
         self.width = width
         self.digest = digest
         self.s: Styles = get_styles()
-        self.tables = TableMaker(self.s, width)
+        self.tables = TableMaker(width)
 
     def para(self, text: str, style: Any = None) -> Paragraph:
         # Sample names and notes come from spreadsheets: never read them as markup.

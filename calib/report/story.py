@@ -100,7 +100,7 @@ class _Builder:
         self.t = template
         self.width = width
         self.s = get_styles()
-        self.tables = TableMaker(self.s, width)
+        self.tables = TableMaker(width)
         units = as_mapping(as_mapping(record.get("run")).get("units"))
         self.conc_unit = str(units.get("concentration") or "")
         self.resp_unit = str(units.get("response") or "")

@@ -10,7 +10,6 @@ from __future__ import annotations
 from collections.abc import Iterable, Sequence
 
 from calib.report.grid import PAD_BOTTOM, PAD_TOP, Grid, GridRow, grid_row, layout_cell
-from calib.report.styles import Styles
 
 __all__ = ["TableMaker"]
 
@@ -23,14 +22,11 @@ class TableMaker:
 
     Parameters
     ----------
-    styles : Styles
-        The record's paragraph styles (kept for callers that mix tables and text).
     width : float
         Width of the text frame in points; column widths are fractions of it.
     """
 
-    def __init__(self, styles: Styles, width: float) -> None:
-        self.s = styles
+    def __init__(self, width: float) -> None:
         self.width = width
 
     def grid(
@@ -66,9 +62,8 @@ class TableMaker:
 
         Examples
         --------
-        >>> from calib.report.styles import get_styles
-        >>> table = TableMaker(get_styles(), 400).grid([["Level", "Area"], ["1", "0.52"]],
-        ...                                            [0.5, 0.5], right=[1])
+        >>> table = TableMaker(400).grid([["Level", "Area"], ["1", "0.52"]], [0.5, 0.5],
+        ...                              right=[1])
         >>> len(table.rows), table.width
         (2, 400.0)
         """

@@ -272,7 +272,7 @@ def _points(trend: AnalyteTrend, tables: TableMaker, s: Styles) -> list[Flowable
 
 def _story(trend: AnalyteTrend, width: float) -> list[Flowable]:
     s = get_styles()
-    tables = TableMaker(s, width)
+    tables = TableMaker(width)
     story: list[Flowable] = [
         SectionMark(trend.analyte),
         _para(f"{_TITLE}: {trend.analyte}", s.title),

@@ -61,7 +61,7 @@ def test_a_newline_starts_a_new_line_and_mixed_faces_keep_their_face():
 
 
 def test_table_cells_print_as_written_in_row_order():
-    maker = TableMaker(get_styles(), 480)
+    maker = TableMaker(480)
     rows = [["Cell", "Reason"], ["D9", "<b>air bubble</b> & re-injected"], ["D10", "ok"]]
     text = pdf_text(render([maker.grid(rows, [0.3, 0.7])]))[0]
     assert "<b>air bubble</b> & re-injected" in text  # never read as markup
@@ -69,7 +69,7 @@ def test_table_cells_print_as_written_in_row_order():
 
 
 def test_a_long_table_splits_between_rows_and_repeats_its_header():
-    maker = TableMaker(get_styles(), 480)
+    maker = TableMaker(480)
     rows = [["Level", "Response"]] + [[str(i), f"{i * 0.125:.3f}"] for i in range(200)]
     pages = pdf_text(render([maker.grid(rows, [0.5, 0.5], right=[1])]))
     assert len(pages) >= 3
@@ -79,7 +79,7 @@ def test_a_long_table_splits_between_rows_and_repeats_its_header():
 
 
 def test_spanned_and_hand_signature_rows():
-    maker = TableMaker(get_styles(), 400)
+    maker = TableMaker(400)
     table = maker.grid([["Label", "A wide value across the row", "", ""], ["a", "b", "c", "d"]],
                        [0.25] * 4, header=False, spans=[0], tall_rows=[1])
     first, second = table.rows
@@ -124,7 +124,7 @@ def test_pdf_bytes_do_not_depend_on_what_was_rendered_before():
     # Encoded strings are cached per document; a cache leaking across documents would
     # make the second rendering of the same story differ from the first.
     def story(tag):
-        maker = TableMaker(get_styles(), 480)
+        maker = TableMaker(480)
         return [plain(f"Record {tag} ÄÖÜ µ σ ≤", get_styles().heading),
                 maker.grid([["Name", "Value"], [tag, "1.5 µg/L"]], [0.5, 0.5])]
 
@@ -136,7 +136,7 @@ def test_pdf_bytes_do_not_depend_on_what_was_rendered_before():
 def test_a_row_taller_than_a_page_continues_on_the_next_pages():
     # A spreadsheet cell holds up to 32,767 characters; a reason or note that long makes
     # a row taller than any page, which must continue page after page, not stop the record.
-    maker = TableMaker(get_styles(), 480)
+    maker = TableMaker(480)
     words = [f"w{i}" for i in range(4000)]
     rows = [["Cell", "Reason"], ["D9", " ".join(words)], ["D10", "ok"]]
     pages = pdf_text(render([maker.grid(rows, [0.1, 0.9])]))
@@ -149,7 +149,7 @@ def test_a_row_taller_than_a_page_continues_on_the_next_pages():
 
 
 def test_a_row_that_fits_a_page_moves_whole_to_the_next_page():
-    maker = TableMaker(get_styles(), 480)
+    maker = TableMaker(480)
     filler = [["Level", "Response"]] + [[str(i), "1.0"] for i in range(60)]
     block = ["D9", "\n".join(f"line {i}" for i in range(20))]  # about 170 points high
     table = maker.grid([*filler, block], [0.5, 0.5])

@@ -525,8 +525,8 @@ def weighted_ss(fit: CurveFit) -> float:
 
     Examples
     --------
-    >>> weighted_ss(fit_curve([1, 2, 3], [1.0, 2.5, 3.0]))   # residuals −1/6, 1/3, −1/6
-    0.16666666666666669
+    >>> round(weighted_ss(fit_curve([1, 2, 3], [1.0, 2.5, 3.0])), 12)   # residuals −1/6, 1/3, −1/6
+    0.166666666667
     """
     return float(np.sum(fit.weights * fit.residuals**2))
 

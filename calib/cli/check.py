@@ -41,7 +41,8 @@ examples:
   calib check run.xlsx --csv results.csv       one row per curve, for a LIMS or a script
 
 exit codes: 0 every curve accepted, 1 a curve rejected or needs review,
-            2 usage error, 3 unusable input
+            2 usage error, 3 unusable input (also a full disk; nothing is written),
+            4 internal error
 """
 
 

@@ -18,7 +18,8 @@ examples:
 
 A sample above the top standard is reported as "> ULOQ" (dilute and re-run), never as a number.
 exit codes: 0 every curve accepted and the QCs pass, 1 a curve rejected or needing review,
-            or the QC rule failed, 2 usage error, 3 unusable input
+            or the QC rule failed, 2 usage error, 3 unusable input (also a full disk),
+            4 internal error
 """
 
 

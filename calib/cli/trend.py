@@ -9,6 +9,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from calib.cli.archive import add_archive_option, archive_path, report_no_archive
+from calib.cli import exits
 from calib.cli.common import add_debug
 
 if TYPE_CHECKING:
@@ -30,8 +31,9 @@ Flags follow the common control-chart run rules (Western Electric rules and a tr
 rule): a point beyond 3s; 2 of 3 beyond 2s, or 4 of 5 beyond 1s, on one side; 8 in a
 row on one side of the mean; 6 in a row rising or falling.
 
-exit codes: 0 no flags, 1 a run rule fired, 2 usage error (no archive named),
-            3 archive unreadable, analyte not found, or too few accepted curves
+exit codes: 0 no flags, 7 a run rule fired (a drift warning, not a verdict), 2 usage
+            error (no archive named), 3 archive unreadable, analyte not found, or too few
+            accepted curves
 """
 
 
@@ -94,7 +96,7 @@ def run(args: argparse.Namespace) -> int:
         print(trend_text(trend, path=path))
         if args.pdf:
             print(f"\nControl charts written to {args.pdf}")
-    return 1 if trend.flagged else 0
+    return exits.FLAGGED if trend.flagged else exits.OK
 
 
 def _not_evaluated(trend: AnalyteTrend) -> str:

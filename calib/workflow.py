@@ -1,6 +1,6 @@
 """The main job as library calls: check a run file, issue its record.
 
-The command line and any other front end call these and only render the result.
+Front ends call :mod:`calib.service`, which builds on these.
 """
 
 from __future__ import annotations
@@ -93,24 +93,33 @@ def _slope_history(archive: str | Path | None, profile: Profile, analytes: Seque
 
 def issue_record(
     assessment: RunAssessment, *, prepared_by: str | None = None,
-    created_at: datetime | None = None,
+    created_at: datetime | None = None, template: str | Path | None = None,
 ) -> tuple[Record, bytes]:
-    """Build the record of ``assessment`` and render its PDF; returns both."""
-    record = build_record(assessment, prepared_by=prepared_by, created_at=created_at)
-    return record, record_pdf(record)
+    """Build the record of ``assessment`` and render its PDF; returns both (nothing written).
+
+    The record names its template (see :func:`calib.service.issue`, which also
+    writes and files it).
+    """
+    from calib.service import issue
+
+    issued = issue(assessment, prepared_by=prepared_by, created_at=created_at, template=template)
+    return issued.record, issued.pdf
 
 
 def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:
-    """Render ``record`` as its PDF calibration record (the record JSON attached inside)."""
-    import hashlib
+    """Render ``record`` as its PDF calibration record (the record JSON attached inside).
 
-    from calib.report import load_template, write_pdf
+    The template is ``template`` when given, else the one the record names,
+    else the bundled one.
+    """
+    from calib.report import load_template
+    from calib.report.template import template_for_record
+    from calib.service import _render
 
-    canonical = record.canonical  # serialised once: the digest is of these bytes
-    return write_pdf(
-        record.body,
-        digest=hashlib.sha256(canonical).hexdigest(),
-        record_id=record.record_id,
-        template=load_template(template) if template is not None else None,
-        attachment=canonical,
-    )
+    if template is not None:
+        chosen = load_template(template)
+    elif "template" in record.body:
+        chosen = template_for_record(record.body)
+    else:
+        chosen = load_template()
+    return _render(record, chosen)

@@ -78,6 +78,8 @@ def code_for(exc: BaseException) -> int:
             return _BY_NAME[cls.__name__]
     if isinstance(exc, CalibError):
         return INPUT
+    if isinstance(exc, FileExistsError):
+        return USAGE
     if disk_message(exc) is not None:
         return INPUT
     return INTERNAL

@@ -92,6 +92,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     except Exception as exc:
         if args.debug:
             raise
+        if isinstance(exc, FileExistsError):
+            print(f"calib: error: {exc.filename} exists; records are never overwritten "
+                  "silently: choose another name, or add --force to replace it", file=sys.stderr)
+            return exits.USAGE
         disk = exits.disk_message(exc)
         if disk is not None:
             print(f"calib: error: {_one_line(disk)}", file=sys.stderr)

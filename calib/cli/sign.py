@@ -92,7 +92,10 @@ def run(args: argparse.Namespace) -> int:
     key = None
     if args.key:
         key = load_signing_key(args.key, passphrase=read_passphrase(purpose=f"key {args.key}"))
-    template = load_template(args.template) if args.template else None
+    from calib.service import record_template
+
+    # The template the record names (calib.service), unless --template says otherwise.
+    template = load_template(args.template) if args.template else record_template(args.record)
     db = archive_path(args)
     try:
         signed = sign_file(args.record, role=args.role, name=args.name, meaning=args.meaning,

@@ -58,7 +58,10 @@ def run(args: argparse.Namespace) -> int:
     from calib.report import load_template
 
     keyring = load_keyring(args.keyring) if args.keyring else None
-    template = load_template(args.template) if args.template else None
+    from calib.service import record_template
+
+    # The template the record names (calib.service), unless --template says otherwise.
+    template = load_template(args.template) if args.template else record_template(args.record)
     db = archive_path(args)
     if db is None:
         report = verify_file(args.record, keyring=keyring, template=template)

@@ -1,17 +1,23 @@
 """The pages of ``calib serve``: routes that call the library and render what it returns.
 
-No statistics happen here.  A route reads the form, calls :mod:`calib.workflow`,
-:mod:`calib.record`, :mod:`calib.archive` or :mod:`calib.quantify`, and renders a
-template; a :class:`~calib.errors.CalibError` becomes one sentence on the page,
-the same words the command line prints.
+No statistics and no assembly happen here.  A route reads the form, calls
+:mod:`calib.service` (the same calls as the command line) or reads
+:mod:`calib.archive`, and renders a template; a :class:`~calib.errors.CalibError`
+becomes one sentence on the page, the same words the command line prints.
+
+Every browser has its own store of open runs and downloads (a session cookie),
+every request must name an allowed host, and every response carries the
+security headers of :mod:`calib.web.security`.
 """
 
 from __future__ import annotations
 
+import functools
 import os
-from collections.abc import Awaitable, Callable
+from collections.abc import Awaitable, Callable, Sequence
 from pathlib import Path
 from typing import Any
+from urllib.parse import urlsplit
 
 from jinja2 import Environment, PackageLoader, select_autoescape
 from starlette.applications import Starlette
@@ -33,11 +39,15 @@ from calib.web.security import (
     CSRF_COOKIE,
     CSRF_FIELD,
     DEFAULT_MAX_UPLOAD,
+    SECURITY_HEADERS,
+    SESSION_COOKIE,
+    host_allowed,
+    key_upload_allowed,
     new_token,
     same_origin,
     same_token,
 )
-from calib.web.state import Download, OpenRun, Store, private_copy, scrub
+from calib.web.state import Download, OpenRun, Sessions, Store, private_copy, scrub
 
 __all__ = ["PageError", "create_app"]
 
@@ -69,10 +79,29 @@ def _environment() -> Environment:
 
 
 class _Guard(BaseHTTPMiddleware):
-    """The access token (when not on loopback) and the origin check of every POST."""
+    """Allowed hosts, the access token, the origin check of every POST, sessions, headers."""
 
     async def dispatch(self, request: Request, call_next: RequestResponseEndpoint) -> Response:
+        response = await self._checked(request, call_next)
+        for name, value in SECURITY_HEADERS.items():
+            response.headers.setdefault(name, value)
+        fresh = getattr(request.state, "new_session", None)
+        if fresh:
+            response.set_cookie(SESSION_COOKIE, fresh, httponly=True, samesite="strict",
+                                secure=request.url.scheme == "https")
+        return response
+
+    async def _checked(self, request: Request, call_next: RequestResponseEndpoint) -> Response:
         app_state = request.app.state
+        if not host_allowed(request.headers.get("host"), app_state.allowed_hosts):
+            # DNS rebinding: another site's name pointed at this computer.
+            return _render(request, "error.html", status=400, message=(
+                "This server does not answer to that host name, so the request was refused "
+                "(start calib serve with --allow-host NAME to add one)."))
+        session = request.cookies.get(SESSION_COOKIE, "")
+        if not (20 <= len(session) <= 64 and session.replace("-", "").replace("_", "").isalnum()):
+            session = request.state.new_session = new_token()
+        request.state.session = session
         token = app_state.access_token
         if token and not same_token(request.cookies.get(ACCESS_COOKIE), token):
             given = request.query_params.get("token")
@@ -85,7 +114,10 @@ class _Guard(BaseHTTPMiddleware):
             response.set_cookie(ACCESS_COOKIE, token, httponly=True, samesite="strict")
             return response
         if request.method == "POST":
-            if not same_origin(request.headers.get("origin"), request.headers.get("host")):
+            origin = request.headers.get("origin")
+            if not same_origin(origin, request.headers.get("host")) or (
+                    origin is not None
+                    and not host_allowed(urlsplit(origin).netloc, app_state.allowed_hosts)):
                 return _render(request, "error.html", status=403, message=(
                     "This form was sent from another site, so it was refused."))
             length = request.headers.get("content-length")
@@ -162,12 +194,19 @@ async def _file(form: FormData, name: str, *, what: str,
     return value.filename, data
 
 
+def _runs(request: Request) -> Store:
+    """This browser's open runs and downloads (never another browser's)."""
+    return request.app.state.sessions.store(request.state.session)
+
+
 def _open_run(request: Request) -> tuple[str, OpenRun]:
     run_id = request.path_params["run_id"]
-    run = request.app.state.store.run(run_id)
+    run = _runs(request).run(run_id)
     if run is None:
-        raise PageError("This run is no longer open (the server was restarted, or many runs "
-                        "were opened since); upload the file again.", 404)
+        # Also what another browser's run id answers: whether it exists is not told.
+        raise PageError("This run is not open in this browser (it was closed, the server was "
+                        "restarted, or many runs were opened since); upload the file again.",
+                        404)
     return run_id, run
 
 
@@ -190,7 +229,7 @@ async def check_upload(request: Request) -> Response:
     name, data = await _file(form, "run", what="run file (the instrument export)")
     run = OpenRun(name=name, data=data, **_settings(form, request))
     await run_in_threadpool(_assess, run)
-    run_id = request.app.state.store.add_run(run)
+    run_id = _runs(request).add_run(run)
     return RedirectResponse(f"/run/{run_id}", 303)
 
 
@@ -210,13 +249,14 @@ def _settings(form: FormData, request: Request) -> dict[str, Any]:
 
 def _assess(run: OpenRun) -> None:
     """Check the run's bytes with its settings and exclusions (the library does the work)."""
+    from calib import service
     from calib.checks.exclusions import parse_exclusion
-    from calib.workflow import check_file
 
     exclusions = [parse_exclusion(f"{t}={r}") for t, r in run.exclusions]
     with private_copy(run.name, run.data) as path:
-        run.assessment = check_file(path, profile=run.profile, model=run.model,
-                                    weighting=run.weighting, exclusions=exclusions)
+        run.assessment = service.check(path, profile=run.profile, model=run.model,
+                                       weighting=run.weighting,
+                                       exclusions=exclusions).assessment
     run.issued = run.issued_pdf = None
     run.filed = ""
 
@@ -310,7 +350,7 @@ def _back(run_id: str, back: str) -> str:
 async def run_close(request: Request) -> Response:
     await _form(request)
     run_id, _ = _open_run(request)
-    request.app.state.store.close_run(run_id)
+    _runs(request).close_run(run_id)
     return RedirectResponse("/", 303)
 
 
@@ -334,19 +374,15 @@ async def issue_post(request: Request) -> Response:
         _archive_path(request)
 
     def issue() -> None:
-        from calib.record.record import build_record
-        from calib.workflow import record_pdf
+        from calib import service
 
-        record = build_record(run.assessment, prepared_by=prepared_by)
-        run.issued, run.issued_pdf = record, record_pdf(record, template=template)
+        issued = service.issue(run.assessment, prepared_by=prepared_by, template=template,
+                               archive=request.app.state.archive if file_it else None)
+        run.issued, run.issued_pdf = issued.record, issued.pdf
         run.filed = ""
-        if file_it:
-            from calib.archive import Archive
-
-            with Archive(request.app.state.archive) as store:
-                entry = store.append(record, run.issued_pdf, kind="issued")
-            run.filed = (f"Record {entry.record_id} filed in the archive as entry seq "
-                         f"{entry.seq}.")
+        if issued.filed is not None:
+            run.filed = (f"Record {issued.filed.record_id} filed in the archive as entry seq "
+                         f"{issued.filed.seq}.")
 
     await run_in_threadpool(issue)
     return RedirectResponse(f"/run/{run_id}/issued", 303)
@@ -399,6 +435,12 @@ async def sign_post(request: Request) -> Response:
         raise PageError("Type the printed name of the signer.")
     meaning = _text(form, "meaning") or None
     key_file = await _file(form, "key", what="key file", required=False)
+    if key_file and not key_upload_allowed(request.url.scheme,
+                                           request.client.host if request.client else None):
+        # The key and its passphrase would have crossed the network in plain text.
+        raise PageError("A private key is accepted only over HTTPS or on this computer itself: "
+                        "the key and its passphrase were not used (start calib serve with "
+                        "--tls-cert and --tls-key, or sign with calib sign).", 403)
     passphrase = form.get("passphrase")
     passphrase = passphrase if isinstance(passphrase, str) else ""
     if key_file and not passphrase:
@@ -407,31 +449,27 @@ async def sign_post(request: Request) -> Response:
     if file_it:
         _archive_path(request)
 
-    def sign() -> tuple[Any, list[Any]]:
+    def sign() -> Any:
+        from calib import service
         from calib.record.keys import load_signing_key
-        from calib.record.signoff import file_versions, sign_file
 
         key = None
         if key_file:
             with private_copy(key_file[0], key_file[1]) as path:
                 key = load_signing_key(path, passphrase=passphrase.encode())
         with private_copy(upload[0], upload[1]) as path:
-            signed = sign_file(path, role=role, name=name, meaning=meaning, key=key)
-        entries = []
-        if file_it:
-            from calib.archive import Archive
+            return service.sign(path, role=role, name=name, meaning=meaning, key=key,
+                                archive=request.app.state.archive if file_it else None)
 
-            with Archive(request.app.state.archive) as store:
-                entries = file_versions(store, signed)
-        return signed, entries
-
-    signed, entries = await run_in_threadpool(sign)
-    record = signed.record
+    outcome = await run_in_threadpool(sign)
+    record = outcome.record
+    # Version N holds N signatures (prepared is 1), as calib sign and calib verify count.
     version = len(record.body["signatures"])
-    download = request.app.state.store.add_download(Download(
-        f"{record.record_id}-v{version + 1}.pdf", "application/pdf", signed.pdf))
+    download = _runs(request).add_download(Download(
+        f"{record.record_id}-v{version}.pdf", "application/pdf", outcome.signed.pdf))
     return _render(request, "signed.html", record=record, signature=record.body["signatures"][-1],
-                   version=version + 1, download=download, entries=entries, keyed=bool(key_file))
+                   version=version, download=download, entries=outcome.entries,
+                   keyed=bool(key_file))
 
 
 async def verify_page(request: Request) -> Response:
@@ -444,17 +482,20 @@ async def verify_post(request: Request) -> Response:
     assert upload is not None
 
     def verify() -> Any:
-        from calib.record.verify import verify_file
+        from calib import service
 
+        # With the lab's keyring and archive given to calib serve: a key signature is
+        # checked against the lab's keys, and the version against the archive.
         with private_copy(upload[0], upload[1]) as path:
-            return verify_file(path)
+            return service.verify(path, keyring=request.app.state.keyring,
+                                  archive=request.app.state.archive_if_exists())
 
     report = await run_in_threadpool(verify)
     return _render(request, "verify.html", report=pages.verify_view(report, upload[0]))
 
 
 async def download(request: Request) -> Response:
-    item = request.app.state.store.download(request.path_params["download_id"])
+    item = _runs(request).download(request.path_params["download_id"])
     if item is None:
         raise PageError("This download is no longer available; make the file again.", 404)
     return _attachment(item.filename, item.media_type, item.data)
@@ -508,15 +549,16 @@ async def archive_verify_record(request: Request) -> Response:
     record_id = request.path_params["record_id"]
 
     def verify() -> Any:
-        from calib.record.verify import verify_file
+        from calib import service
 
         with _store(request) as store:
             versions = store.entries(record_id=record_id)
-            if not versions:
-                raise PageError(f"No record {record_id} in the archive.", 404)
-            latest = versions[-1]
-            with private_copy(f"{latest.record_id}.pdf", latest.pdf) as path:
-                return versions, verify_file(path, archive=store)
+        if not versions:
+            raise PageError(f"No record {record_id} in the archive.", 404)
+        latest = versions[-1]
+        with private_copy(f"{latest.record_id}.pdf", latest.pdf) as path:
+            return versions, service.verify(path, keyring=request.app.state.keyring,
+                                            archive=_archive_path(request))
 
     versions, report = await run_in_threadpool(verify)
     return _render(request, "record.html", view=pages.record_view(versions),
@@ -557,16 +599,13 @@ async def quantify_post(request: Request) -> Response:
     assert curve is not None
 
     def quantify() -> dict[str, Any]:
-        from calib.quantify.document import quantify_document
-        from calib.quantify.workflow import quantify_files
+        from calib import service
 
         with private_copy(curve[0], curve[1]) as curve_path:
             if samples is None:
-                report = quantify_files(curve_path, None, force=force)
-            else:
-                with private_copy(samples[0], samples[1]) as samples_path:
-                    report = quantify_files(curve_path, samples_path, force=force)
-        return quantify_document(report)
+                return service.quantify(curve_path, None, force=force).document
+            with private_copy(samples[0], samples[1]) as samples_path:
+                return service.quantify(curve_path, samples_path, force=force).document
 
     document = await run_in_threadpool(quantify)
 
@@ -575,7 +614,7 @@ async def quantify_post(request: Request) -> Response:
 
         return write_quantify_xlsx(document)
 
-    xlsx = request.app.state.store.add_download(Download(
+    xlsx = _runs(request).add_download(Download(
         "quantify-results.xlsx",
         "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet",
         await run_in_threadpool(workbook)))
@@ -607,10 +646,19 @@ async def _internal_error(request: Request, exc: Exception) -> Response:
     return _render(request, "error.html", status=500, message=message)
 
 
+def _existing_archive(path: str | None) -> str | None:
+    """The archive to verify against: None until the first record is filed in it."""
+    if path is None:
+        return None
+    return path if "://" in path or os.path.exists(path) else None
+
+
 def create_app(*, archive: str | os.PathLike[str] | None = None,
                templates: str | os.PathLike[str] | None = None,
                access_token: str | None = None,
-               max_upload: int = DEFAULT_MAX_UPLOAD) -> Starlette:
+               max_upload: int = DEFAULT_MAX_UPLOAD,
+               allowed_hosts: Sequence[str] = (),
+               keyring: str | os.PathLike[str] | None = None) -> Starlette:
     """The web application behind ``calib serve``.
 
     Parameters
@@ -625,6 +673,11 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         sets one whenever it listens beyond the loopback interface.
     max_upload : int
         Largest request body accepted, in bytes.
+    allowed_hosts : sequence of str
+        Host names the server answers to besides the loopback names (``localhost``,
+        ``127.0.0.1``, ``::1``); a request naming any other host gets 400.
+    keyring : path, optional
+        The lab's folder of public keys: the Verify pages check key signatures with it.
 
     Examples
     --------
@@ -668,8 +721,11 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
                             HTTPException: _http_error, Exception: _internal_error},
     )
     app.state.env = _environment()
-    app.state.store = Store()
+    app.state.sessions = Sessions()
     app.state.archive = os.fspath(archive) if archive is not None else None
+    app.state.allowed_hosts = tuple(allowed_hosts)
+    app.state.keyring = os.fspath(keyring) if keyring is not None else None
+    app.state.archive_if_exists = functools.partial(_existing_archive, app.state.archive)
     app.state.access_token = access_token
     app.state.max_upload = max_upload
     app.state.profiles = tuple(shipped_profiles())

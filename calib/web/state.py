@@ -22,13 +22,15 @@ from typing import Any
 
 from calib.web.security import new_token, safe_filename
 
-__all__ = ["Download", "OpenRun", "Store", "private_copy", "scrub"]
+__all__ = ["Download", "OpenRun", "Sessions", "Store", "private_copy", "scrub"]
 
 _PREFIX = "calib-web-"
 _PRIVATE = re.compile(re.escape(os.path.join(tempfile.gettempdir(), _PREFIX)) + r"[^/\\]+[/\\]")
 
-#: How many runs and downloads are kept before the oldest is forgotten.
+#: How many runs and downloads are kept, per browser, before the oldest is forgotten.
 KEEP = 64
+#: How many browsers' stores are kept before the one used least recently is forgotten.
+KEEP_SESSIONS = 256
 
 
 @contextlib.contextmanager
@@ -125,3 +127,41 @@ class Store:
             while len(table) > KEEP:
                 table.popitem(last=False)
         return key
+
+
+class Sessions:
+    """One :class:`Store` per browser session, so one user's runs never evict or show another's.
+
+    A browser is known by a random session cookie.  A run id is looked up only
+    in the store of the browser that asks, so a run id seen by someone else
+    (in a shared screen, a log, a link) answers "no such run" to them.  At most
+    :data:`KEEP_SESSIONS` stores are kept; the one used least recently goes first.
+
+    Examples
+    --------
+    >>> sessions = Sessions()
+    >>> run_id = sessions.store("alice").add_run(OpenRun("a.csv", b""))
+    >>> sessions.store("alice").run(run_id) is not None, sessions.store("bob").run(run_id)
+    (True, None)
+    """
+
+    def __init__(self, keep: int = KEEP_SESSIONS) -> None:
+        self._stores: OrderedDict[str, Store] = OrderedDict()
+        self._keep = keep
+        self._lock = threading.Lock()
+
+    def store(self, session: str) -> Store:
+        """The store of ``session`` (a new, empty one the first time)."""
+        with self._lock:
+            found = self._stores.get(session)
+            if found is None:
+                found = self._stores[session] = Store()
+                while len(self._stores) > self._keep:
+                    self._stores.popitem(last=False)
+            else:
+                self._stores.move_to_end(session)
+            return found
+
+    def __len__(self) -> int:
+        with self._lock:
+            return len(self._stores)

@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING
 from calib.checks.evaluate import Progress, RunAssessment, evaluate_run
 from calib.checks.profile import Profile, load_profile
 from calib.io import ImportMap, read_run
-from calib.record.record import Record, build_record
+from calib.record.record import Record
 
 if TYPE_CHECKING:
     from calib.checks.exclusions import Exclusion

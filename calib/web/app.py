@@ -7,215 +7,57 @@ becomes one sentence on the page, the same words the command line prints.
 
 Every browser has its own store of open runs and downloads (a session cookie),
 every request must name an allowed host, and every response carries the
-security headers of :mod:`calib.web.security`.
+security headers of :mod:`calib.web.security` (:mod:`calib.web.guard`).  The
+archive pages are in :mod:`calib.web.archive_pages`.
 """
 
 from __future__ import annotations
 
 import functools
 import os
-from collections.abc import Awaitable, Callable, Sequence
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
-from urllib.parse import urlsplit
 
-from jinja2 import Environment, PackageLoader, select_autoescape
 from starlette.applications import Starlette
 from starlette.concurrency import run_in_threadpool
-from starlette.datastructures import FormData, UploadFile
+from starlette.datastructures import FormData
 from starlette.exceptions import HTTPException
 from starlette.middleware import Middleware
-from starlette.middleware.base import BaseHTTPMiddleware, RequestResponseEndpoint
 from starlette.requests import Request
-from starlette.responses import HTMLResponse, RedirectResponse, Response
+from starlette.responses import RedirectResponse, Response
 from starlette.routing import Mount, Route
 from starlette.staticfiles import StaticFiles
 
 from calib.errors import CalibError
-from calib.output import safe_file_name
 from calib.web import pages
-from calib.web.security import (
-    ACCESS_COOKIE,
-    CSRF_COOKIE,
-    CSRF_FIELD,
-    DEFAULT_MAX_UPLOAD,
-    SECURITY_HEADERS,
-    SESSION_COOKIE,
-    host_allowed,
-    key_upload_allowed,
-    new_token,
-    same_origin,
-    same_token,
+from calib.web.archive_pages import (
+    archive_chain,
+    archive_page,
+    archive_pdf,
+    archive_record,
+    archive_verify_record,
+    trend_page,
 )
-from calib.web.state import Download, OpenRun, Sessions, Store, private_copy, scrub
+from calib.web.base import (
+    PageError,
+    _archive_path,
+    _attachment,
+    _closing,
+    _environment,
+    _file,
+    _form,
+    _open_run,
+    _render,
+    _runs,
+    _text,
+    one_line,
+)
+from calib.web.guard import Guard
+from calib.web.security import DEFAULT_MAX_UPLOAD, key_upload_allowed
+from calib.web.state import Download, OpenRun, Sessions, private_copy
 
-__all__ = ["PageError", "create_app"]
-
-Handler = Callable[[Request], Awaitable[Response]]
-
-
-class PageError(Exception):
-    """A request the page refuses, with the one sentence to show and the HTTP status."""
-
-    def __init__(self, message: str, status: int = 400) -> None:
-        super().__init__(message)
-        self.message = message
-        self.status = status
-
-
-def one_line(text: str) -> str:
-    """``text`` on one line, as the command line prints errors (no private folder named)."""
-    return " ".join(scrub(str(text)).split())
-
-
-def _environment() -> Environment:
-    env = Environment(loader=PackageLoader("calib.web", "templates"),
-                      autoescape=select_autoescape(default=True, default_for_string=True),
-                      trim_blocks=True, lstrip_blocks=True)
-    env.filters["num"] = pages.num
-    env.filters["verdict_word"] = pages.verdict_word
-    env.filters["check_word"] = pages.check_word
-    return env
-
-
-class _Guard(BaseHTTPMiddleware):
-    """Allowed hosts, the access token, the origin check of every POST, sessions, headers."""
-
-    async def dispatch(self, request: Request, call_next: RequestResponseEndpoint) -> Response:
-        response = await self._checked(request, call_next)
-        for name, value in SECURITY_HEADERS.items():
-            response.headers.setdefault(name, value)
-        fresh = getattr(request.state, "new_session", None)
-        if fresh:
-            response.set_cookie(SESSION_COOKIE, fresh, httponly=True, samesite="strict",
-                                secure=request.url.scheme == "https")
-        return response
-
-    async def _checked(self, request: Request, call_next: RequestResponseEndpoint) -> Response:
-        app_state = request.app.state
-        if not host_allowed(request.headers.get("host"), app_state.allowed_hosts):
-            # DNS rebinding: another site's name pointed at this computer.
-            return _render(request, "error.html", status=400, message=(
-                "This server does not answer to that host name, so the request was refused "
-                "(start calib serve with --allow-host NAME to add one)."))
-        session = request.cookies.get(SESSION_COOKIE, "")
-        if not (20 <= len(session) <= 64 and session.replace("-", "").replace("_", "").isalnum()):
-            session = request.state.new_session = new_token()
-        request.state.session = session
-        token = app_state.access_token
-        if token and not same_token(request.cookies.get(ACCESS_COOKIE), token):
-            given = request.query_params.get("token")
-            if not same_token(given, token):
-                return _render(request, "error.html", status=403, message=(
-                    "This page needs the access token printed when calib serve started: "
-                    "open the address it printed, with ?token=… at the end."))
-            # Keep the token in a cookie and drop it from the address bar.
-            response = RedirectResponse(request.url.remove_query_params("token"), 303)
-            response.set_cookie(ACCESS_COOKIE, token, httponly=True, samesite="strict")
-            return response
-        if request.method == "POST":
-            origin = request.headers.get("origin")
-            if not same_origin(origin, request.headers.get("host")) or (
-                    origin is not None
-                    and not host_allowed(urlsplit(origin).netloc, app_state.allowed_hosts)):
-                return _render(request, "error.html", status=403, message=(
-                    "This form was sent from another site, so it was refused."))
-            length = request.headers.get("content-length")
-            if length is None or not length.isdigit():
-                return _render(request, "error.html", status=411, message=(
-                    "The form was sent without its length, so it was refused; send it again "
-                    "from the page."))
-            if int(length) > app_state.max_upload:
-                return _render(request, "error.html", status=413, message=(
-                    f"The file is too large: at most {pages.size_text(app_state.max_upload)} "
-                    "can be uploaded."))
-        return await call_next(request)
-
-
-def _csrf(request: Request) -> str:
-    """The form token of this browser (made on its first page)."""
-    token = request.cookies.get(CSRF_COOKIE)
-    if not token:
-        token = request.state.__dict__.setdefault("new_csrf", new_token())
-    return token
-
-
-def _render(request: Request, name: str, *, status: int = 200, **context: Any) -> HTMLResponse:
-    state = request.app.state
-    context.setdefault("archive", state.archive)
-    html = state.env.get_template(name).render(
-        request=request, csrf_field=CSRF_FIELD, csrf=_csrf(request), **context)
-    response = HTMLResponse(html, status_code=status)
-    fresh = request.state.__dict__.get("new_csrf")
-    if fresh and not request.cookies.get(CSRF_COOKIE):
-        response.set_cookie(CSRF_COOKIE, fresh, httponly=True, samesite="strict")
-    return response
-
-
-async def _form(request: Request) -> FormData:
-    """The POSTed form, after checking its cross-site token."""
-    form = await request.form(max_files=4, max_fields=50,
-                              max_part_size=request.app.state.max_upload)
-    request.state.form = form
-    if not same_token(_text(form, CSRF_FIELD), request.cookies.get(CSRF_COOKIE)):
-        raise PageError("The form had no valid page token (the page may be old, or the form "
-                        "came from another site); reload the page and send it again.", 403)
-    return form
-
-
-def _closing(handler: Handler) -> Handler:
-    """``handler``, closing the uploaded files' spools when it is done, however it ends."""
-
-    async def handle(request: Request) -> Response:
-        try:
-            return await handler(request)
-        finally:
-            form = getattr(request.state, "form", None)
-            if form is not None:
-                await form.close()
-
-    return handle
-
-
-def _text(form: FormData, name: str) -> str:
-    value = form.get(name)
-    return " ".join(value.split()) if isinstance(value, str) else ""
-
-
-async def _file(form: FormData, name: str, *, what: str,
-                required: bool = True) -> tuple[str, bytes] | None:
-    value = form.get(name)
-    if not isinstance(value, UploadFile) or not value.filename:
-        if required:
-            raise PageError(f"Choose the {what} to upload.")
-        return None
-    data = await value.read()
-    await value.close()
-    return value.filename, data
-
-
-def _runs(request: Request) -> Store:
-    """This browser's open runs and downloads (never another browser's)."""
-    return request.app.state.sessions.store(request.state.session)
-
-
-def _open_run(request: Request) -> tuple[str, OpenRun]:
-    run_id = request.path_params["run_id"]
-    run = _runs(request).run(run_id)
-    if run is None:
-        # Also what another browser's run id answers: whether it exists is not told.
-        raise PageError("This run is not open in this browser (it was closed, the server was "
-                        "restarted, or many runs were opened since); upload the file again.",
-                        404)
-    return run_id, run
-
-
-def _archive_path(request: Request) -> str:
-    path = request.app.state.archive
-    if not path:
-        raise PageError("No archive is open: start the server with calib serve --archive DB.",
-                        409)
-    return path
+__all__ = ["PageError", "create_app", "one_line"]
 
 
 # ---------------------------------------------------------------------- check a run
@@ -412,11 +254,6 @@ async def issued_pdf(request: Request) -> Response:
     return _attachment(f"{run.issued.record_id}.pdf", "application/pdf", run.issued_pdf)
 
 
-def _attachment(filename: str, media_type: str, data: bytes) -> Response:
-    return Response(data, media_type=media_type, headers={
-        "Content-Disposition": f'attachment; filename="{safe_file_name(filename)}"',
-        "Cache-Control": "no-store"})
-
 
 # ---------------------------------------------------------------------- sign and verify
 
@@ -499,90 +336,6 @@ async def download(request: Request) -> Response:
     if item is None:
         raise PageError("This download is no longer available; make the file again.", 404)
     return _attachment(item.filename, item.media_type, item.data)
-
-
-# ---------------------------------------------------------------------- archive and trend
-
-def _store(request: Request) -> Any:
-    from calib.archive import Archive
-
-    return Archive(_archive_path(request), create=False)
-
-
-async def archive_page(request: Request) -> Response:
-    query = {k: " ".join(request.query_params.get(k, "").split())
-             for k in ("analyte", "from", "to", "verdict", "instrument")}
-    for key in ("from", "to"):
-        if query[key]:
-            pages.check_date(query[key], key)
-    if query["verdict"] and query["verdict"] not in ("accepted", "rejected", "needs-review"):
-        raise PageError(f"Unknown verdict {query['verdict']!r}: choose one from the list.")
-    with _store(request) as store:
-        found = store.entries(analyte=query["analyte"] or None, verdict=query["verdict"] or None,
-                              instrument=query["instrument"] or None,
-                              date_from=query["from"] or None, date_to=query["to"] or None,
-                              data=False)
-        analytes = store.analytes()
-    return _render(request, "archive.html", query=query, entries=found, analytes=analytes)
-
-
-async def archive_record(request: Request) -> Response:
-    record_id = request.path_params["record_id"]
-    with _store(request) as store:
-        versions = store.entries(record_id=record_id)
-    if not versions:
-        raise PageError(f"No record {record_id} in the archive.", 404)
-    return _render(request, "record.html", view=pages.record_view(versions))
-
-
-async def archive_pdf(request: Request) -> Response:
-    record_id, seq = request.path_params["record_id"], request.path_params["seq"]
-    with _store(request) as store:
-        versions = store.entries(record_id=record_id)
-    entry = next((v for v in versions if v.seq == seq), None)
-    if entry is None:
-        raise PageError(f"No entry seq {seq} of record {record_id} in the archive.", 404)
-    return _attachment(f"{entry.record_id}-seq{entry.seq}.pdf", "application/pdf", entry.pdf)
-
-
-async def archive_verify_record(request: Request) -> Response:
-    record_id = request.path_params["record_id"]
-
-    def verify() -> Any:
-        from calib import service
-
-        with _store(request) as store:
-            versions = store.entries(record_id=record_id)
-        if not versions:
-            raise PageError(f"No record {record_id} in the archive.", 404)
-        latest = versions[-1]
-        with private_copy(f"{latest.record_id}.pdf", latest.pdf) as path:
-            return versions, service.verify(path, keyring=request.app.state.keyring,
-                                            archive=_archive_path(request))
-
-    versions, report = await run_in_threadpool(verify)
-    return _render(request, "record.html", view=pages.record_view(versions),
-                   verified=pages.verify_view(report, f"{record_id} (latest version)"))
-
-
-async def archive_chain(request: Request) -> Response:
-    with _store(request) as store:
-        report = store.verify_chain()
-    return _render(request, "chain.html", report=report)
-
-
-async def trend_page(request: Request) -> Response:
-    analyte = " ".join(request.query_params.get("analyte", "").split())
-    with _store(request) as store:
-        analytes = store.analytes()
-        trend = store.trend(analyte) if analyte else None
-    view = None
-    if trend is not None:
-        if not (trend.points or trend.left_out):
-            raise PageError(f"No curve of {analyte!r} in the archive; analytes archived: "
-                            + (", ".join(analytes) or "none") + ".", 404)
-        view = await run_in_threadpool(pages.trend_view, trend)
-    return _render(request, "trend.html", analyte=analyte, analytes=analytes, trend=view)
 
 
 # ---------------------------------------------------------------------- quantify
@@ -716,7 +469,7 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         Mount("/static", StaticFiles(packages=[("calib.web", "static")]), name="static"),
     ]
     app = Starlette(
-        routes=routes, middleware=[Middleware(_Guard)],
+        routes=routes, middleware=[Middleware(Guard)],
         exception_handlers={PageError: _page_error, CalibError: _calib_error,
                             HTTPException: _http_error, Exception: _internal_error},
     )

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import errno
 import os
 import re
 import tempfile
@@ -10,7 +11,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
-__all__ = ["Output", "safe_file_name", "write_all", "write_atomic"]
+__all__ = ["Output", "disk_message", "safe_file_name", "write_all", "write_atomic"]
 
 # Characters no file name of ours holds: path separators, the characters Windows forbids,
 # and control characters (which also include the bidirectional controls, category Cf).
@@ -60,6 +61,9 @@ def write_atomic(path: str | Path, data: bytes, *, replace: bool = True) -> Path
     ------
     FileExistsError
         With ``replace=False``, when ``path`` exists.
+    OSError
+        When the file cannot be written; the error names ``path`` (never the
+        temporary name), and a full disk reads as such (:func:`disk_message`).
 
     Examples
     --------
@@ -68,23 +72,28 @@ def write_atomic(path: str | Path, data: bytes, *, replace: bool = True) -> Path
     >>> write_atomic(target, b"{}").read_bytes()
     b'{}'
     """
-    target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        if replace:
-            os.replace(tmp, target)
-        else:
-            os.link(tmp, target)
-            Path(tmp).unlink()
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return target
+    return write_all([Output(Path(path), data, replace)])[0]
+
+
+_DISK_ERRNOS = {errno.ENOSPC: "the disk is full", errno.EDQUOT: "the disk quota is used up",
+                errno.EROFS: "the disk is read-only", errno.EFBIG: "the file is too large"}
+
+
+def disk_message(exc: BaseException) -> str | None:
+    """One line for a disk that is full, over quota or read-only; None for other errors.
+
+    Examples
+    --------
+    >>> disk_message(OSError(28, "No space left on device", "out/record.pdf"))
+    'cannot write out/record.pdf: the disk is full (No space left on device); nothing was written'
+    >>> disk_message(ValueError("x")) is None
+    True
+    """
+    if not isinstance(exc, OSError) or exc.errno not in _DISK_ERRNOS:
+        return None
+    where = f" {exc.filename}" if exc.filename else ""
+    return (f"cannot write{where}: {_DISK_ERRNOS[exc.errno]} ({exc.strerror}); "
+            "nothing was written")
 
 
 @dataclass(frozen=True)

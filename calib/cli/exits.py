@@ -11,7 +11,7 @@ into a code by :func:`code_for` (called only by :func:`calib.cli.main.main`).
 
 from __future__ import annotations
 
-import errno
+from calib.output import disk_message
 
 __all__ = [
     "FLAGGED", "INPUT", "INTEGRITY", "INTERNAL", "NOT_ACCEPTED", "OK", "REFUSED", "TABLE",
@@ -55,7 +55,6 @@ _BY_NAME = {
     "RefusedAction": REFUSED,
     "IntegrityError": INTEGRITY,
 }
-_DISK_ERRNOS = frozenset({errno.ENOSPC, errno.EDQUOT, errno.EROFS, errno.EFBIG})
 
 
 def code_for(exc: BaseException) -> int:
@@ -83,21 +82,3 @@ def code_for(exc: BaseException) -> int:
     if disk_message(exc) is not None:
         return INPUT
     return INTERNAL
-
-
-def disk_message(exc: BaseException) -> str | None:
-    """One line for a disk that is full, over quota or read-only; None for other errors.
-
-    Examples
-    --------
-    >>> disk_message(OSError(28, "No space left on device", "out/record.pdf"))
-    'cannot write out/record.pdf: the disk is full (No space left on device); nothing was written'
-    >>> disk_message(ValueError("x")) is None
-    True
-    """
-    if not isinstance(exc, OSError) or exc.errno not in _DISK_ERRNOS:
-        return None
-    where = f" {exc.filename}" if exc.filename else ""
-    why = {errno.ENOSPC: "the disk is full", errno.EDQUOT: "the disk quota is used up",
-           errno.EROFS: "the disk is read-only", errno.EFBIG: "the file is too large"}[exc.errno]
-    return f"cannot write{where}: {why} ({exc.strerror}); nothing was written"

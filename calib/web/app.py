@@ -201,7 +201,22 @@ async def run_close(request: Request) -> Response:
 async def issue_page(request: Request) -> Response:
     run_id, run = _open_run(request)
     return _render(request, "issue.html", run_id=run_id, run=run,
-                   templates=request.app.state.report_templates)
+                   templates=request.app.state.report_templates,
+                   lab_template=_lab_template_label())
+
+
+def _lab_template_label() -> str:
+    """Which letterhead a record gets when no template is chosen (calib lab init)."""
+    from calib.report.template import NOT_CONFIGURED, resolve_template
+
+    try:
+        template = resolve_template()
+    except CalibError as exc:
+        return f"the lab's template cannot be used: {one_line(str(exc))}"
+    if template.lab.name == NOT_CONFIGURED:
+        return ("none set up, so the record says “Laboratory not configured” "
+                "(calib lab init --template FILE sets one up)")
+    return f"the lab's, {template.source} ({template.lab.name})"
 
 
 async def issue_post(request: Request) -> Response:
@@ -394,6 +409,12 @@ async def _http_error(request: Request, exc: Exception) -> Response:
 
 
 async def _internal_error(request: Request, exc: Exception) -> Response:
+    from calib.output import disk_message
+
+    disk = disk_message(exc)
+    if disk is not None:  # the server's disk, not a bug: say so, as the command line does
+        return _render(request, "error.html", status=507,
+                       message=one_line(disk[0].upper() + disk[1:] + "."))
     message = (f"Internal error: {type(exc).__name__}: {one_line(str(exc))} (a bug in calib: "
                "please report it with the file you used).")
     return _render(request, "error.html", status=500, message=message)

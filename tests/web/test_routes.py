@@ -554,3 +554,45 @@ def test_serve_command_prints_the_url_and_needs_a_token_beyond_loopback(monkeypa
     assert "--port must be from 1 to 65535, got 0" in capsys.readouterr().err
     assert main(["serve", "--templates", "no-such-folder"]) == 3
     assert "--templates no-such-folder is not a folder" in capsys.readouterr().err
+
+
+def test_the_issue_page_says_which_letterhead_the_record_gets(client, tmp_path):
+    run_id = upload(client)
+    page = client.get(f"/run/{run_id}/issue").text
+    assert ("Letterhead unless another template is chosen: none set up, so the record says "
+            "“Laboratory not configured”") in page
+    from calib.labsettings import write_settings
+
+    lab = tmp_path / "kestrel.toml"
+    lab.write_text('[lab]\nname = "Kestrel Bioanalytical"\n', encoding="utf-8")
+    write_settings(lab)
+    page = client.get(f"/run/{run_id}/issue").text
+    assert "the lab&#39;s, kestrel.toml (Kestrel Bioanalytical)" in page
+    post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor"})
+    pdf = client.get(f"/run/{run_id}/record.pdf").content
+    import io
+
+    from pypdf import PdfReader
+
+    assert PdfReader(io.BytesIO(pdf)).metadata["/Author"] == "Kestrel Bioanalytical"
+
+
+def test_a_full_disk_while_filing_is_one_sentence(client, monkeypatch):
+    import errno
+    import os
+
+    import calib.service
+
+    def full(*args, **kwargs):
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), "records.sqlite")
+
+    monkeypatch.setattr(calib.service, "file", full)
+    run_id = upload(client)
+    with TestClient(client.app, raise_server_exceptions=False, base_url=LOCAL) as c:
+        c.cookies = client.cookies
+        r = c.post(f"/run/{run_id}/issue", data={CSRF_FIELD: client.form_token,
+                                                 "prepared_by": "R. Okafor",
+                                                 "file_in_archive": "yes"})
+    assert r.status_code == 507
+    assert error_of(r.text) == ("Cannot write records.sqlite: the disk is full (No space left "
+                                "on device); nothing was written.")

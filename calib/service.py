@@ -5,17 +5,16 @@ calls and their outcomes into text, pages and exit codes; every assembly of a
 result (which template, which files, what goes into the archive, in what
 order) happens here, so both front doors issue the same records.
 
-=============  ===============================================================
-:func:`check`     read a run file and judge its curves (nothing written)
-:func:`issue`     build the record, render its PDF, write the chosen files and
-                  optionally file it in the archive: all of it, or nothing
-:func:`export`    write the results workbook / CSV of a check, without a record
-:func:`file`      append an issued record to the archive
-:func:`quantify`  samples against a checked curve; optional workbook and PDF
-:func:`trend`     control charts of an analyte from the archive; optional PDF
-:func:`sign`      thin delegation to :mod:`calib.record` (finds the record's template)
-:func:`verify`    thin delegation to :mod:`calib.record` (finds the record's template)
-=============  ===============================================================
+- :func:`check`: read a run file and judge its curves (nothing written);
+- :func:`describe_import`: what the importer recognised in a run file;
+- :func:`issue`: build the record, render its PDF, write the chosen files and
+  optionally file it in the archive: all of it, or nothing;
+- :func:`export`: write the results workbook / CSV of a check, without a record;
+- :func:`file`: append an issued record to the archive;
+- :func:`quantify`: samples against a checked curve; optional workbook and PDF;
+- :func:`trend`: control charts of an analyte from the archive; optional PDF;
+- :func:`sign`, :func:`verify`: thin delegations to :mod:`calib.record` that
+  find the template the record names (:func:`record_template`).
 
 Files are written with :func:`calib.output.write_all`: each to a temporary
 name, renamed only when every file is complete and the archive has accepted
@@ -45,7 +44,8 @@ if TYPE_CHECKING:
 
 __all__ = [
     "CheckOutcome", "IssueOutcome", "QuantifyOutcome", "SignOutcome", "TrendOutcome", "check",
-    "export", "file", "issue", "quantify", "sign", "trend", "verify",
+    "describe_import", "export", "file", "issue", "quantify", "record_template", "sign", "trend",
+    "verify",
 ]
 
 
@@ -180,6 +180,15 @@ def check(
     return CheckOutcome(assessment, check_document(assessment))
 
 
+def describe_import(path: str | os.PathLike[str], *, sheet: str | int | None = None,
+                    map: ImportMap | str | os.PathLike[str] | None = None) -> str:
+    """What the importer recognised in a run file (sheet, layout, columns, units...), as text."""
+    from calib.io import describe_import as describe
+    from calib.io import read_run
+
+    return describe(read_run(path, sheet=sheet, map=map))
+
+
 # ----------------------------------------------------------------------------- issue
 
 def issue(
@@ -228,12 +237,13 @@ def issue(
         When a file cannot be written (a full disk, ENOSPC); nothing is left behind.
     """
     from calib.report.template import resolve_template
+    from calib.workflow import build_issued_record, render_record
 
     check_outcome = _as_outcome(outcome)
     chosen = resolve_template(template)
-    record = _build(check_outcome.assessment, prepared_by=prepared_by, created_at=created_at,
-                    template=chosen)
-    rendered = _render(record, chosen)
+    record = build_issued_record(check_outcome.assessment, prepared_by=prepared_by,
+                                 created_at=created_at, template=chosen)
+    rendered = render_record(record, chosen)
     outputs = [Output(Path(p), data, replace) for p, data in
                ((pdf, rendered), (record_json, record.canonical)) if p is not None]
     outputs += _export_outputs(check_outcome.document, xlsx=xlsx, csv=csv)
@@ -268,27 +278,6 @@ def _as_outcome(outcome: CheckOutcome | RunAssessment) -> CheckOutcome:
     from calib.record import check_document
 
     return CheckOutcome(outcome, check_document(outcome))
-
-
-def _build(assessment: RunAssessment, *, prepared_by: str | None,
-           created_at: datetime | None, template: ReportTemplate) -> Record:
-    """The record, naming the template its pages are laid out with (part of its content)."""
-    from calib.record import Record
-    from calib.record.record import build_record
-    from calib.report.template import template_section
-
-    built = build_record(assessment, prepared_by=prepared_by, created_at=created_at)
-    return Record({**built.body, "template": template_section(template)})
-
-
-def _render(record: Record, template: ReportTemplate) -> bytes:
-    import hashlib
-
-    from calib.report import write_pdf
-
-    canonical = record.canonical  # serialised once: the digest is of these bytes
-    return write_pdf(record.body, digest=hashlib.sha256(canonical).hexdigest(),
-                     record_id=record.record_id, template=template, attachment=canonical)
 
 
 def _export_outputs(document: dict[str, Any], *, xlsx: Any, csv: Any) -> list[Output]:

@@ -1,6 +1,6 @@
 """The main job as library calls: check a run file, issue its record.
 
-Front ends call :mod:`calib.service`, which builds on these.
+:mod:`calib.service` builds on these (and writes, files and signs); front ends call it.
 """
 
 from __future__ import annotations
@@ -14,14 +14,15 @@ from typing import TYPE_CHECKING
 from calib.checks.evaluate import Progress, RunAssessment, evaluate_run
 from calib.checks.profile import Profile, load_profile
 from calib.io import ImportMap, read_run
-from calib.record.record import Record
+from calib.record.record import Record, build_record
 
 if TYPE_CHECKING:
     from calib.checks.exclusions import Exclusion
     from calib.checks.history import SlopeHistory
     from calib.checks.narrowing import WorkingRange
+    from calib.report.template import ReportTemplate
 
-__all__ = ["check_file", "issue_record", "record_pdf"]
+__all__ = ["build_issued_record", "check_file", "issue_record", "record_pdf", "render_record"]
 
 
 def check_file(
@@ -93,17 +94,43 @@ def _slope_history(archive: str | Path | None, profile: Profile, analytes: Seque
 
 def issue_record(
     assessment: RunAssessment, *, prepared_by: str | None = None,
-    created_at: datetime | None = None, template: str | Path | None = None,
+    created_at: datetime | None = None, template: str | Path | ReportTemplate | None = None,
 ) -> tuple[Record, bytes]:
     """Build the record of ``assessment`` and render its PDF; returns both (nothing written).
 
-    The record names its template (see :func:`calib.service.issue`, which also
-    writes and files it).
+    ``template`` defaults to the lab's (see
+    :func:`calib.report.template.resolve_template`); the record names it.
+    :func:`calib.service.issue` does this and also writes and files the record.
     """
-    from calib.service import issue
+    from calib.report.template import resolve_template
 
-    issued = issue(assessment, prepared_by=prepared_by, created_at=created_at, template=template)
-    return issued.record, issued.pdf
+    chosen = resolve_template(template)
+    record = build_issued_record(assessment, prepared_by=prepared_by, created_at=created_at,
+                                 template=chosen)
+    return record, render_record(record, chosen)
+
+
+def build_issued_record(assessment: RunAssessment, *, prepared_by: str | None,
+                        created_at: datetime | None, template: ReportTemplate) -> Record:
+    """The record of ``assessment``, naming the template its pages are laid out with.
+
+    The ``template`` section is part of the content: the digest and record id cover it.
+    """
+    from calib.report.template import template_section
+
+    built = build_record(assessment, prepared_by=prepared_by, created_at=created_at)
+    return Record({**built.body, "template": template_section(template)})
+
+
+def render_record(record: Record, template: ReportTemplate) -> bytes:
+    """Render ``record`` with ``template`` as its PDF (the record JSON attached inside)."""
+    import hashlib
+
+    from calib.report import write_pdf
+
+    canonical = record.canonical  # serialised once: the digest is of these bytes
+    return write_pdf(record.body, digest=hashlib.sha256(canonical).hexdigest(),
+                     record_id=record.record_id, template=template, attachment=canonical)
 
 
 def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:
@@ -114,7 +141,6 @@ def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:
     """
     from calib.report import load_template
     from calib.report.template import template_for_record
-    from calib.service import _render
 
     if template is not None:
         chosen = load_template(template)
@@ -122,4 +148,4 @@ def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:
         chosen = template_for_record(record.body)
     else:
         chosen = load_template()
-    return _render(record, chosen)
+    return render_record(record, chosen)

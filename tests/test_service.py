@@ -141,7 +141,9 @@ def test_template_for_record_rebuilds_the_exact_template(tmp_path):
     assert rebuilt.fingerprint == template.fingerprint and rebuilt.lab == template.lab
     # Re-rendered with the rebuilt template, the pages are the same bytes (the renderer is
     # deterministic: tests/report/test_pdf.py).
-    assert service._render(issued.record, rebuilt) == issued.pdf
+    from calib.workflow import render_record
+
+    assert render_record(issued.record, rebuilt) == issued.pdf
 
 
 def test_a_tampered_template_section_is_refused():

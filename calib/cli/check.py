@@ -89,13 +89,13 @@ def run(args: argparse.Namespace) -> int:
     from calib.cli import render
 
     imap = None
-    if args.map or args.show_import:
-        from calib.io import describe_import, load_map, read_run
+    if args.map:
+        from calib.io import load_map
 
-        imap = load_map(args.map) if args.map else None
-        if args.show_import:
-            print(describe_import(read_run(args.run, sheet=sheet_arg(args.sheet), map=imap)))
-            return 0
+        imap = load_map(args.map)  # read once, before the run file, so its errors come first
+    if args.show_import:
+        print(service.describe_import(args.run, sheet=sheet_arg(args.sheet), map=imap))
+        return 0
     from calib.checks.narrowing import RangeError
 
     if args.pdf and refuse_existing("check", [Path(args.pdf)], force=args.force):

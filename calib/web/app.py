@@ -71,7 +71,7 @@ async def check_upload(request: Request) -> Response:
     name, data = await _file(form, "run", what="run file (the instrument export)")
     run = OpenRun(name=name, data=data, **_settings(form, request))
     await run_in_threadpool(_assess, run)
-    run_id = _runs(request).add_run(run)
+    run_id = _runs(request, create=True).add_run(run)
     return RedirectResponse(f"/run/{run_id}", 303)
 
 
@@ -317,7 +317,7 @@ async def sign_post(request: Request) -> Response:
     record = outcome.record
     # Version N holds N signatures (prepared is 1), as calib sign and calib verify count.
     version = len(record.body["signatures"])
-    download = _runs(request).add_download(Download(
+    download = _runs(request, create=True).add_download(Download(
         f"{record.record_id}-v{version}.pdf", "application/pdf", outcome.signed.pdf))
     return _render(request, "signed.html", record=record, signature=record.body["signatures"][-1],
                    version=version, download=download, entries=outcome.entries,
@@ -382,7 +382,7 @@ async def quantify_post(request: Request) -> Response:
 
         return write_quantify_xlsx(document)
 
-    xlsx = _runs(request).add_download(Download(
+    xlsx = _runs(request, create=True).add_download(Download(
         "quantify-results.xlsx",
         "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet",
         await run_in_threadpool(workbook)))

@@ -111,9 +111,19 @@ async def _file(form: FormData, name: str, *, what: str,
     return value.filename, data
 
 
-def _runs(request: Request) -> Store:
-    """This browser's open runs and downloads (never another browser's)."""
-    return request.app.state.sessions.store(request.state.session)
+def _runs(request: Request, *, create: bool = False) -> Store:
+    """This browser's open runs and downloads (never another browser's).
+
+    ``create`` when adding: the browser's store is made then, and refused (503)
+    when too many other browsers have runs open, rather than dropping theirs.
+    """
+    from calib.web.state import SessionsFull
+
+    try:
+        return request.app.state.sessions.store(request.state.session, create=create)
+    except SessionsFull:
+        raise PageError("Too many browsers have runs open on this server; close a run in "
+                        "another browser, or try again later.", 503) from None
 
 
 def _open_run(request: Request) -> tuple[str, OpenRun]:

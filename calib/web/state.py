@@ -14,23 +14,26 @@ import re
 import shutil
 import tempfile
 import threading
+import time
 from collections import OrderedDict
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from calib.web.security import new_token, safe_filename
 
-__all__ = ["Download", "OpenRun", "Sessions", "Store", "private_copy", "scrub"]
+__all__ = ["Download", "OpenRun", "Sessions", "SessionsFull", "Store", "private_copy", "scrub"]
 
 _PREFIX = "calib-web-"
 _PRIVATE = re.compile(re.escape(os.path.join(tempfile.gettempdir(), _PREFIX)) + r"[^/\\]+[/\\]")
 
 #: How many runs and downloads are kept, per browser, before the oldest is forgotten.
 KEEP = 64
-#: How many browsers' stores are kept before the one used least recently is forgotten.
+#: How many browsers may have runs open at once (a further one is refused, no one is evicted).
 KEEP_SESSIONS = 256
+#: Seconds without use after which a browser's open runs and downloads are forgotten.
+IDLE = 12 * 3600
 
 
 @contextlib.contextmanager
@@ -129,38 +132,58 @@ class Store:
         return key
 
 
+class SessionsFull(Exception):
+    """Every place for a browser's store is taken by a browser active within :data:`IDLE`."""
+
+
 class Sessions:
     """One :class:`Store` per browser session, so one user's runs never evict or show another's.
 
     A browser is known by a random session cookie.  A run id is looked up only
     in the store of the browser that asks, so a run id seen by someone else
-    (in a shared screen, a log, a link) answers "no such run" to them.  At most
-    :data:`KEEP_SESSIONS` stores are kept; the one used least recently goes first.
+    (in a shared screen, a log, a link) answers "no such run" to them.  A store
+    is made when a browser first opens a run or makes a download (a page view
+    makes none), and forgotten after :data:`IDLE` seconds without use.  When
+    :data:`KEEP_SESSIONS` browsers are active, a new one is refused
+    (:class:`SessionsFull`) rather than another user's runs being dropped.
 
     Examples
     --------
     >>> sessions = Sessions()
-    >>> run_id = sessions.store("alice").add_run(OpenRun("a.csv", b""))
+    >>> run_id = sessions.store("alice", create=True).add_run(OpenRun("a.csv", b""))
     >>> sessions.store("alice").run(run_id) is not None, sessions.store("bob").run(run_id)
     (True, None)
+    >>> len(sessions)
+    1
     """
 
-    def __init__(self, keep: int = KEEP_SESSIONS) -> None:
-        self._stores: OrderedDict[str, Store] = OrderedDict()
-        self._keep = keep
+    def __init__(self, keep: int = KEEP_SESSIONS, idle: float = IDLE,
+                 clock: Callable[[], float] = time.monotonic) -> None:
+        self._stores: OrderedDict[str, tuple[Store, float]] = OrderedDict()
+        self._keep, self._idle, self._clock = keep, idle, clock
         self._lock = threading.Lock()
 
-    def store(self, session: str) -> Store:
-        """The store of ``session`` (a new, empty one the first time)."""
+    def store(self, session: str, *, create: bool = False) -> Store:
+        """The store of ``session``; an empty one (kept only with ``create``) the first time.
+
+        Raises
+        ------
+        SessionsFull
+            With ``create``, when :data:`KEEP_SESSIONS` other browsers are active.
+        """
+        now = self._clock()
         with self._lock:
-            found = self._stores.get(session)
+            for key in [k for k, (_, used) in self._stores.items() if now - used > self._idle]:
+                del self._stores[key]
+            found = self._stores.pop(session, None)
             if found is None:
-                found = self._stores[session] = Store()
-                while len(self._stores) > self._keep:
-                    self._stores.popitem(last=False)
-            else:
-                self._stores.move_to_end(session)
-            return found
+                if not create:
+                    return Store()
+                if len(self._stores) >= self._keep:
+                    raise SessionsFull(f"{self._keep} browsers have runs open")
+                found = (Store(), now)
+            self._stores[session] = (found[0], now)
+            return found[0]
 
     def __len__(self) -> int:
         with self._lock:

@@ -14,7 +14,7 @@ from starlette.testclient import TestClient
 
 from calib.web import create_app
 from calib.web.security import CSRF_FIELD, SESSION_COOKIE
-from calib.web.state import OpenRun, Sessions
+from calib.web.state import OpenRun, Sessions, SessionsFull
 from tests.web.test_routes import FLUORIDE, LOCAL, error_of, token_of
 
 LAB_HOST = "labpc.fernbrook.example"
@@ -164,11 +164,34 @@ def test_a_forged_session_cookie_gets_a_fresh_empty_store():
                       ).status_code == 404
 
 
-def test_sessions_keep_the_most_recently_used_stores():
-    sessions = Sessions(keep=2)
-    sessions.store("a"), sessions.store("b"), sessions.store("a"), sessions.store("c")
-    run_id = sessions.store("a").add_run(OpenRun("a.csv", b""))
-    assert len(sessions) == 2 and sessions.store("a").run(run_id) is not None
+def test_a_new_browser_is_refused_rather_than_another_users_runs_dropped():
+    now = [0.0]
+    sessions = Sessions(keep=2, idle=3600, clock=lambda: now[0])
+    run_id = sessions.store("a", create=True).add_run(OpenRun("a.csv", b""))
+    sessions.store("b", create=True)
+    for _ in range(5):  # page views of other browsers make no store
+        sessions.store("x")
+    assert len(sessions) == 2
+    with pytest.raises(SessionsFull):
+        sessions.store("c", create=True)
+    assert sessions.store("a").run(run_id) is not None
+    now[0] = 3000.0
+    sessions.store("a")  # "a" used again; "b" idle since 0
+    now[0] = 3700.0
+    sessions.store("c", create=True)  # "b" idle for over an hour: forgotten
+    assert sessions.store("a").run(run_id) is not None and len(sessions) == 2
+
+
+def test_the_page_says_so_when_too_many_browsers_have_runs_open():
+    app = create_app()
+    app.state.sessions = Sessions(keep=1)
+    alice, bob = browser(app), browser(app)
+    upload(alice)
+    r = post(bob, "/check", {"profile": "default"},
+             {"run": (FLUORIDE.name, FLUORIDE.read_bytes())})
+    assert r.status_code == 503
+    assert error_of(r.text) == ("Too many browsers have runs open on this server; close a run "
+                                "in another browser, or try again later.")
 
 
 # ---------------------------------------------------------------------- keys over the network

@@ -1,7 +1,8 @@
 """``calib`` command line: parse, call the library, render, exit.
 
 Exit codes are in :mod:`calib.cli.exits` (one meaning each); this module is the one
-place where an exception becomes an exit code.  Heavy libraries are imported inside the commands so ``calib --help`` is fast.
+place where an exception becomes an exit code.  Heavy libraries are imported inside
+the commands so ``calib --help`` is fast.
 """
 
 from __future__ import annotations
@@ -44,7 +45,6 @@ examples:
   calib archive list --analyte Nitrate-N       records filed with --archive (or CALIB_ARCHIVE)
   calib trend Nitrate-N --pdf trend.pdf        slope, intercept and residual SD over time
   calib serve --archive records.sqlite         the same in a browser, on this computer
-
   calib lab init --template our-lab.toml       once: the lab's letterhead on every record
 
 exit codes:

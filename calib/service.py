@@ -110,6 +110,8 @@ class QuantifyOutcome:
     report: Any
     document: dict[str, Any]
     written: tuple[Path, ...] = ()
+    workbook: bytes | None = None
+    """The results workbook's bytes, when asked for (``workbook=True`` or ``xlsx``)."""
 
     @property
     def accepted(self) -> bool:
@@ -302,6 +304,7 @@ def quantify(
     template: Any = None,
     xlsx: str | os.PathLike[str] | None = None,
     pdf: str | os.PathLike[str] | None = None,
+    workbook: bool = False,
     **options: Any,
 ) -> QuantifyOutcome:
     """Quantify samples against a checked curve; write the workbook and PDF (both, or neither).
@@ -309,6 +312,8 @@ def quantify(
     ``options`` are those of :func:`calib.quantify.workflow.quantify_files`
     (sheet, samples_sheet, profile, model, weighting, confidence, force...).
     The PDF is laid out with ``template`` (default: the lab's, see :func:`issue`).
+    With ``workbook`` the results workbook is returned as bytes (for a download)
+    even when no ``xlsx`` file is written.
     """
     from calib.quantify.document import quantify_document
     from calib.quantify.workflow import quantify_files
@@ -316,17 +321,20 @@ def quantify(
     report = quantify_files(curve, samples, **options)
     document = quantify_document(report)
     outputs = []
-    if xlsx is not None:
+    book = None
+    if xlsx is not None or workbook:
         from calib.report.quantify_xlsx import write_quantify_xlsx
 
-        outputs.append(Output(Path(xlsx), write_quantify_xlsx(document)))
+        book = write_quantify_xlsx(document)
+    if xlsx is not None:
+        outputs.append(Output(Path(xlsx), book))
     if pdf is not None:
         from calib.report.quantify_pdf import write_quantify_pdf
         from calib.report.template import resolve_template
 
         outputs.append(Output(Path(pdf), write_quantify_pdf(
             document, template=resolve_template(template))))
-    return QuantifyOutcome(report, document, tuple(write_all(outputs)))
+    return QuantifyOutcome(report, document, tuple(write_all(outputs)), book)
 
 
 # ----------------------------------------------------------------------------- trend

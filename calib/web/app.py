@@ -366,26 +366,23 @@ async def quantify_post(request: Request) -> Response:
     force = form.get("force") == "yes"
     assert curve is not None
 
-    def quantify() -> dict[str, Any]:
+    def quantify() -> tuple[dict[str, Any], bytes]:
         from calib import service
 
+        # The workbook is made with the results, as calib quantify --xlsx makes it.
         with private_copy(curve[0], curve[1]) as curve_path:
             if samples is None:
-                return service.quantify(curve_path, None, force=force).document
-            with private_copy(samples[0], samples[1]) as samples_path:
-                return service.quantify(curve_path, samples_path, force=force).document
+                outcome = service.quantify(curve_path, None, force=force, workbook=True)
+            else:
+                with private_copy(samples[0], samples[1]) as samples_path:
+                    outcome = service.quantify(curve_path, samples_path, force=force,
+                                               workbook=True)
+        return outcome.document, outcome.workbook
 
-    document = await run_in_threadpool(quantify)
-
-    def workbook() -> bytes:
-        from calib.report.quantify_xlsx import write_quantify_xlsx
-
-        return write_quantify_xlsx(document)
-
+    document, workbook = await run_in_threadpool(quantify)
     xlsx = _runs(request, create=True).add_download(Download(
         "quantify-results.xlsx",
-        "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet",
-        await run_in_threadpool(workbook)))
+        "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet", workbook))
     return _render(request, "quantify.html", result=pages.quantify_view(document), xlsx=xlsx)
 
 

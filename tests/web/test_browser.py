@@ -160,4 +160,8 @@ def test_a_reviewer_checks_excludes_issues_downloads_verifies_and_signs(server, 
     page.get_by_role("button", name="Quantify").click()
     assert "Batch verdict" in page.inner_text("main")
     shot(page, tmp_path, "11-quantify")
+
+    page.goto(base + "/no/such/page")
+    page.get_by_role("link", name="Go back").click()
+    page.wait_for_url("**/quantify")
     assert blocked == []

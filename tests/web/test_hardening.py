@@ -94,6 +94,9 @@ def test_the_pages_hold_no_inline_script_or_style_the_policy_would_block():
         html = c.get(url).text
         assert not re.search(r"<script(?![^>]*\bsrc=)", html), url
         assert " style=" not in html and "<style" not in html and " on" + "click=" not in html
+    # The error page too: its "Go back" link is no javascript: URL (CSP blocks those).
+    html = c.get("/no/such/page").text
+    assert "javascript:" not in html and '<a href="/" data-back>Go back</a>' in html
 
 
 # ---------------------------------------------------------------------- other users' runs

@@ -30,6 +30,8 @@ _PRIVATE = re.compile(re.escape(os.path.join(tempfile.gettempdir(), _PREFIX)) + 
 
 #: How many runs and downloads are kept, per browser, before the oldest is forgotten.
 KEEP = 64
+#: Most bytes of uploads (and, separately, of downloads) kept for one browser.
+MAX_BYTES = 256 * 1024 * 1024
 #: How many browsers may have runs open at once (a further one is refused, no one is evicted).
 KEEP_SESSIONS = 256
 #: Seconds without use after which a browser's open runs and downloads are forgotten.
@@ -98,12 +100,26 @@ class Download:
 
 
 class Store:
-    """Open runs and downloads by random id, the oldest forgotten past :data:`KEEP`."""
+    """One browser's open runs and downloads by random id.
 
-    def __init__(self) -> None:
+    The oldest of each kind is forgotten past :data:`KEEP` items or past
+    ``max_bytes`` of file data (uploads are held in memory), so one browser
+    cannot fill the server's memory; the newest item is always kept.
+
+    Examples
+    --------
+    >>> store = Store(max_bytes=10)
+    >>> first = store.add_run(OpenRun("a.csv", b"123456"))
+    >>> second = store.add_run(OpenRun("b.csv", b"123456"))
+    >>> store.run(first) is None, store.run(second) is not None
+    (True, True)
+    """
+
+    def __init__(self, max_bytes: int = MAX_BYTES) -> None:
         self._runs: OrderedDict[str, OpenRun] = OrderedDict()
         self._downloads: OrderedDict[str, Download] = OrderedDict()
         self._lock = threading.Lock()
+        self._max_bytes = max_bytes
 
     def add_run(self, run: OpenRun) -> str:
         return self._add(self._runs, run)
@@ -127,7 +143,9 @@ class Store:
         key = new_token()[:22]
         with self._lock:
             table[key] = item
-            while len(table) > KEEP:
+            while len(table) > KEEP or (
+                    len(table) > 1 and sum(len(v.data or b"") for v in table.values())
+                    > self._max_bytes):
                 table.popitem(last=False)
         return key
 

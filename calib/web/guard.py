@@ -47,7 +47,8 @@ class Guard(BaseHTTPMiddleware):
                 "This server does not answer to that host name, so the request was refused "
                 "(start calib serve with --allow-host NAME to add one)."))
         session = request.cookies.get(SESSION_COOKIE, "")
-        if not (20 <= len(session) <= 64 and session.replace("-", "").replace("_", "").isalnum()):
+        if not (20 <= len(session) <= 64 and session.isascii()
+                and session.replace("-", "").replace("_", "").isalnum()):
             session = request.state.new_session = new_token()
         request.state.session = session
         token = app_state.access_token

@@ -7,6 +7,7 @@ One tree, so callers can catch everything calib means to raise with a single
     ├── InputError             a run file cannot be read or used (names file, sheet, row, column)
     ├── ProfileError           an acceptance profile is malformed (names file and line)
     ├── TemplateError          a report template is malformed or points outside its folder
+    ├── ConfigError            the lab settings file (calib lab init) cannot be used
     ├── NotAcceptedError       raised only on request, by CurveAssessment.raise_for_verdict()
     ├── SignOffError           a sign-off the rules refuse (calib.record.signing)
     ├── KeyFileError           a signing key cannot be read (calib.record.keys)
@@ -20,7 +21,8 @@ its acceptance rules is *not* an error: it is a verdict in the result.
 
 from __future__ import annotations
 
-__all__ = ["CalibError", "InputError", "NotAcceptedError", "ProfileError", "TemplateError"]
+__all__ = ["CalibError", "ConfigError", "InputError", "NotAcceptedError", "ProfileError",
+           "TemplateError"]
 
 
 class CalibError(Exception):
@@ -75,6 +77,10 @@ class ProfileError(CalibError):
 
 class TemplateError(CalibError):
     """A report template cannot be used."""
+
+
+class ConfigError(CalibError):
+    """The lab settings file cannot be used (the message names the file and the key)."""
 
 
 class NotAcceptedError(CalibError):

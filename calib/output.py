@@ -2,13 +2,16 @@
 
 from __future__ import annotations
 
+import errno
 import os
 import re
 import tempfile
 import unicodedata
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 
-__all__ = ["safe_file_name", "write_atomic"]
+__all__ = ["Output", "disk_message", "safe_file_name", "write_all", "write_atomic"]
 
 # Characters no file name of ours holds: path separators, the characters Windows forbids,
 # and control characters (which also include the bidirectional controls, category Cf).
@@ -58,6 +61,9 @@ def write_atomic(path: str | Path, data: bytes, *, replace: bool = True) -> Path
     ------
     FileExistsError
         With ``replace=False``, when ``path`` exists.
+    OSError
+        When the file cannot be written; the error names ``path`` (never the
+        temporary name), and a full disk reads as such (:func:`disk_message`).
 
     Examples
     --------
@@ -66,20 +72,115 @@ def write_atomic(path: str | Path, data: bytes, *, replace: bool = True) -> Path
     >>> write_atomic(target, b"{}").read_bytes()
     b'{}'
     """
-    target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
+    return write_all([Output(Path(path), data, replace)])[0]
+
+
+_DISK_ERRNOS = {errno.ENOSPC: "the disk is full", errno.EDQUOT: "the disk quota is used up",
+                errno.EROFS: "the disk is read-only", errno.EFBIG: "the file is too large"}
+
+
+def disk_message(exc: BaseException) -> str | None:
+    """One line for a disk that is full, over quota or read-only; None for other errors.
+
+    Examples
+    --------
+    >>> disk_message(OSError(28, "No space left on device", "out/record.pdf"))
+    'cannot write out/record.pdf: the disk is full (No space left on device); nothing was written'
+    >>> disk_message(ValueError("x")) is None
+    True
+    """
+    if not isinstance(exc, OSError) or exc.errno not in _DISK_ERRNOS:
+        return None
+    where = f" {exc.filename}" if exc.filename else ""
+    return (f"cannot write{where}: {_DISK_ERRNOS[exc.errno]} ({exc.strerror}); "
+            "nothing was written")
+
+
+@dataclass(frozen=True)
+class Output:
+    """One file to write: where, what, and whether an existing file may be replaced."""
+
+    path: Path
+    data: bytes
+    replace: bool = True
+
+
+def write_all(outputs: Sequence[Output], *, before_commit: Callable[[], None] | None = None
+              ) -> list[Path]:
+    """Write several files as one step: all of them, or none.
+
+    Every file is first written in full to a temporary name beside its target
+    and flushed to disk; only when all are written (and ``before_commit``, e.g.
+    filing the record in the archive, has succeeded) are they renamed into
+    place.  A full disk, a refused overwrite or any other error on the way
+    removes every temporary file and leaves the targets as they were.
+
+    Raises
+    ------
+    FileExistsError
+        When a target with ``replace=False`` exists (checked before and at the rename).
+    OSError
+        When a file cannot be written; a full disk (ENOSPC) names the target file.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> [p.name for p in write_all([Output(folder / "a.csv", b"1"), Output(folder / "b.pdf", b"2")])]
+    ['a.csv', 'b.pdf']
+    >>> def fail(): raise RuntimeError("archive refused")
+    >>> write_all([Output(folder / "c.csv", b"3")], before_commit=fail)
+    Traceback (most recent call last):
+    RuntimeError: archive refused
+    >>> sorted(p.name for p in folder.iterdir())
+    ['a.csv', 'b.pdf']
+    """
+    for out in outputs:
+        if not out.replace and Path(out.path).exists():
+            raise FileExistsError(17, "exists; records are never overwritten silently",
+                                  str(out.path))
+    staged: list[tuple[Output, str]] = []
+    placed: list[Path] = []
+    try:
+        for out in outputs:
+            target = Path(out.path)
+            staged.append((out, _stage(target, out.data)))
+        if before_commit is not None:
+            before_commit()
+        for out, tmp in staged:
+            target = Path(out.path)
+            if out.replace:
+                os.replace(tmp, target)
+            else:
+                os.link(tmp, target)
+                placed.append(target)
+                Path(tmp).unlink()
+    except BaseException:
+        for _, tmp in staged:
+            Path(tmp).unlink(missing_ok=True)
+        for target in placed:  # files this call created are taken back: none or all
+            target.unlink(missing_ok=True)
+        raise
+    return [Path(out.path) for out in outputs]
+
+
+def _stage(target: Path, data: bytes) -> str:
+    """Write ``data`` to a new temporary file beside ``target``, on disk; returns its name."""
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
+    except OSError as exc:
+        raise OSError(exc.errno, exc.strerror, str(target)) from exc
     try:
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
-        if replace:
-            os.replace(tmp, target)
-        else:
-            os.link(tmp, target)
-            Path(tmp).unlink()
+    except OSError as exc:
+        Path(tmp).unlink(missing_ok=True)
+        # Name the file the user asked for, not our temporary name.
+        raise OSError(exc.errno, exc.strerror, str(target)) from exc
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
-    return target
+    return tmp

@@ -1,6 +1,6 @@
 """The main job as library calls: check a run file, issue its record.
 
-The command line and any other front end call these and only render the result.
+:mod:`calib.service` builds on these (and writes, files and signs); front ends call it.
 """
 
 from __future__ import annotations
@@ -20,8 +20,9 @@ if TYPE_CHECKING:
     from calib.checks.exclusions import Exclusion
     from calib.checks.history import SlopeHistory
     from calib.checks.narrowing import WorkingRange
+    from calib.report.template import ReportTemplate
 
-__all__ = ["check_file", "issue_record", "record_pdf"]
+__all__ = ["build_issued_record", "check_file", "issue_record", "record_pdf", "render_record"]
 
 
 def check_file(
@@ -93,24 +94,58 @@ def _slope_history(archive: str | Path | None, profile: Profile, analytes: Seque
 
 def issue_record(
     assessment: RunAssessment, *, prepared_by: str | None = None,
-    created_at: datetime | None = None,
+    created_at: datetime | None = None, template: str | Path | ReportTemplate | None = None,
 ) -> tuple[Record, bytes]:
-    """Build the record of ``assessment`` and render its PDF; returns both."""
-    record = build_record(assessment, prepared_by=prepared_by, created_at=created_at)
-    return record, record_pdf(record)
+    """Build the record of ``assessment`` and render its PDF; returns both (nothing written).
+
+    ``template`` defaults to the lab's (see
+    :func:`calib.report.template.resolve_template`); the record names it.
+    :func:`calib.service.issue` does this and also writes and files the record.
+    """
+    from calib.report.template import resolve_template
+
+    chosen = resolve_template(template)
+    record = build_issued_record(assessment, prepared_by=prepared_by, created_at=created_at,
+                                 template=chosen)
+    return record, render_record(record, chosen)
+
+
+def build_issued_record(assessment: RunAssessment, *, prepared_by: str | None,
+                        created_at: datetime | None, template: ReportTemplate) -> Record:
+    """The record of ``assessment``, naming the template its pages are laid out with.
+
+    The ``template`` section is part of the content: the digest and record id cover it.
+    """
+    from calib.report.template import template_section
+
+    built = build_record(assessment, prepared_by=prepared_by, created_at=created_at)
+    return Record({**built.body, "template": template_section(template)})
+
+
+def render_record(record: Record, template: ReportTemplate) -> bytes:
+    """Render ``record`` with ``template`` as its PDF (the record JSON attached inside)."""
+    import hashlib
+
+    from calib.report import write_pdf
+
+    canonical = record.canonical  # serialised once: the digest is of these bytes
+    return write_pdf(record.body, digest=hashlib.sha256(canonical).hexdigest(),
+                     record_id=record.record_id, template=template, attachment=canonical)
 
 
 def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:
-    """Render ``record`` as its PDF calibration record (the record JSON attached inside)."""
-    import hashlib
+    """Render ``record`` as its PDF calibration record (the record JSON attached inside).
 
-    from calib.report import load_template, write_pdf
+    The template is ``template`` when given, else the one the record names,
+    else the bundled one.
+    """
+    from calib.report import load_template
+    from calib.report.template import template_for_record
 
-    canonical = record.canonical  # serialised once: the digest is of these bytes
-    return write_pdf(
-        record.body,
-        digest=hashlib.sha256(canonical).hexdigest(),
-        record_id=record.record_id,
-        template=load_template(template) if template is not None else None,
-        attachment=canonical,
-    )
+    if template is not None:
+        chosen = load_template(template)
+    elif "template" in record.body:
+        chosen = template_for_record(record.body)
+    else:
+        chosen = load_template()
+    return render_record(record, chosen)

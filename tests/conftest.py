@@ -36,3 +36,9 @@ def make_run(xs, ys, *, analyte="A", excluded=None) -> Run:
 @pytest.fixture
 def norris_run() -> Run:
     return make_run(*nist_xy("norris"), analyte="Norris")
+
+
+@pytest.fixture(autouse=True)
+def _no_lab_settings(tmp_path_factory, monkeypatch):
+    """Every test starts with no lab template set up, whatever the developer's own settings."""
+    monkeypatch.setenv("CALIB_CONFIG", str(tmp_path_factory.mktemp("config") / "calib.toml"))

@@ -23,6 +23,7 @@ ENV_VAR = "CALIB_ARCHIVE"
 NO_ARCHIVE = (f"no archive given: pass --archive DB or set the {ENV_VAR} environment variable "
               "to the archive file")
 EXIT_USAGE = 2
+EXIT_INTEGRITY = 5  # calib.cli.exits.INTEGRITY (kept literal: this module loads with the parser)
 
 EXAMPLES = """\
 examples:
@@ -32,7 +33,7 @@ examples:
   calib archive export CR-3F9A1C2B77DE --out exported/ --all-versions
   calib archive verify                       (with CALIB_ARCHIVE=records.sqlite set)
 
-exit codes: 0 done / archive intact, 1 archive damaged or altered, 2 usage error
+exit codes: 0 done / archive intact, 5 archive damaged or altered, 2 usage error
             (no archive named), 3 archive or record not found or unreadable
 """
 
@@ -224,7 +225,7 @@ def run_export(args: argparse.Namespace) -> int:
     if damaged:
         print(f"calib: error: entry seq {damaged[0]} of {versions[0].record_id} does not match "
               "its digest; nothing was exported (run calib archive verify)", file=sys.stderr)
-        return 1
+        return EXIT_INTEGRITY
     chosen = list(enumerate(versions, start=1)) if args.all_versions else [(0, versions[-1])]
     out = Path(args.out)
     for number, entry in chosen:
@@ -251,4 +252,4 @@ def run_verify(args: argparse.Namespace) -> int:
           f"{'s' if len(report.problems) != 1 else ''} in {report.entries} entries; {head}")
     for problem in report.problems:
         print(f"  {problem}")
-    return 1
+    return EXIT_INTEGRITY

@@ -15,16 +15,16 @@ from calib.cli.common import (
     add_fit_options,
     add_force,
     add_import_options,
+    add_template_option,
     refuse_existing,
     sheet_arg,
 )
 
 if TYPE_CHECKING:
-    from calib.checks.evaluate import RunAssessment
     from calib.checks.exclusions import Exclusion
     from calib.checks.narrowing import WorkingRange
     from calib.io import ImportMap
-    from calib.record import Record
+    from calib.service import CheckOutcome, IssueOutcome
 
 EXAMPLES = """\
 examples:
@@ -32,6 +32,7 @@ examples:
   calib check run.csv --model quadratic --weighting 1/x --confidence 0.99
   calib check run.xlsx --pdf nitrate-record.pdf --prepared-by "R. Okafor"
   calib check run.xlsx --prepared-by "R. Okafor" --archive records.sqlite
+  calib check run.xlsx --pdf record.pdf --template our-lab.toml   another letterhead, this once
   calib check run.xlsx --json | python -m json.tool
   calib check export.txt --show-import          what the importer recognised, then stop
   calib check export.txt --map ic2-anions.toml  read with an import map
@@ -41,7 +42,8 @@ examples:
   calib check run.xlsx --csv results.csv       one row per curve, for a LIMS or a script
 
 exit codes: 0 every curve accepted, 1 a curve rejected or needs review,
-            2 usage error, 3 unusable input
+            2 usage error, 3 unusable input (also a full disk; nothing is written),
+            4 internal error
 """
 
 
@@ -59,6 +61,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="print the calib.check/1 JSON document instead of tables")
     parser.add_argument("--pdf", metavar="OUT", help="write the PDF calibration record to OUT")
     add_force(parser, what="a --pdf record file")
+    add_template_option(parser)
     parser.add_argument("--prepared-by", metavar="NAME",
                         help="printed name of the analyst issuing the record")
     parser.add_argument("--exclude", action="append", default=[], metavar="CELL=REASON",
@@ -81,39 +84,43 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from calib import service
     from calib.cautions import CAUTIONS
     from calib.cli import render
-    from calib.output import write_atomic
-    from calib.record import check_document
-    from calib.workflow import issue_record
 
     imap = None
-    if args.map or args.show_import:
-        from calib.io import describe_import, load_map, read_run
+    if args.map:
+        from calib.io import load_map
 
-        imap = load_map(args.map) if args.map else None
-        if args.show_import:
-            print(describe_import(read_run(args.run, sheet=sheet_arg(args.sheet), map=imap)))
-            return 0
+        imap = load_map(args.map)  # read once, before the run file, so its errors come first
+    if args.show_import:
+        print(service.describe_import(args.run, sheet=sheet_arg(args.sheet), map=imap))
+        return 0
     from calib.checks.narrowing import RangeError
 
     if args.pdf and refuse_existing("check", [Path(args.pdf)], force=args.force):
         return 2
     try:
-        assessment = _check(args, imap)
+        outcome = _check(args, imap)
     except RangeError as exc:
         print(f"calib check: error: {exc}; write --range LOW..HIGH=REASON", file=sys.stderr)
         return 2
-    document = check_document(assessment)
-    exported = _write_exports(args, document)
-    written = filed = None
     archive = archive_path(args)
+    issued = None
+    # Everything is computed first and written last, all files or none (calib.service).
     if args.pdf or archive:
-        record, pdf = issue_record(assessment, prepared_by=args.prepared_by)
-        if archive:
-            filed = _file(archive, record, pdf)
-        if args.pdf:
-            written = (write_atomic(args.pdf, pdf, replace=args.force), record)
+        issued = service.issue(outcome, prepared_by=args.prepared_by, template=args.template,
+                               pdf=args.pdf, xlsx=args.xlsx, csv=args.csv, archive=archive,
+                               replace=args.force)
+        written = issued.written
+    else:
+        written = service.export(outcome, xlsx=args.xlsx, csv=args.csv)
+    exported = _export_lines(args) if written else []
+    filed = None
+    if issued is not None and issued.filed is not None:
+        filed = (f"Record {issued.filed.record_id} filed in archive {archive} as entry seq "
+                 f"{issued.filed.seq}")
+    document = outcome.document
     if args.json:
         # One write: json.dump's many small writes cost seconds on a 500-analyte run.
         sys.stdout.write(json.dumps(document, ensure_ascii=False, allow_nan=False) + "\n")
@@ -126,43 +133,49 @@ def run(args: argparse.Namespace) -> int:
         from calib.export import verdict_text
 
         print(verdict_text(document, colour=_colour()) + "\n")
-        print(render.assessment_text(assessment))
-        if written:
-            print(f"\nRecord {written[1].record_id} written to {written[0]}")
+        print(render.assessment_text(outcome.assessment))
+        if issued is not None and args.pdf:
+            print(f"\nRecord {issued.record.record_id} written to {args.pdf}")
+        if issued is not None:
+            print(f"Report template: {_template_line(issued)}")
         if filed:
             print(f"\n{filed}")
         for line in exported:
             print(f"\n{line}")
         print("\n" + render.cautions_text())
-    return 0 if assessment.verdict.value == "accepted" else 1
+    return 0 if outcome.accepted else 1
 
 
-def _check(args: argparse.Namespace, imap: ImportMap | None) -> RunAssessment:
+def _template_line(issued: IssueOutcome) -> str:
+    section = issued.record.body["template"]
+    if section["laboratory"] == "not configured":
+        return ("none set up: the record says \"Laboratory not configured\" "
+                "(calib lab init --template FILE)")
+    return f"{section['name']} (SHA-256 {section['sha256'][:16]}…)"
+
+
+def _check(args: argparse.Namespace, imap: ImportMap | None) -> CheckOutcome:
     """Read and judge the run with the analyst's exclusions, ranges and the archive's slopes."""
+    from calib import service
     from calib.cli.progress import progress_for
-    from calib.workflow import check_file
 
     bar = progress_for(json_output=args.json, label="checking curves")
     try:
-        return check_file(args.run, sheet=sheet_arg(args.sheet), profile=args.profile,
-                          model=args.model, weighting=args.weighting, confidence=args.confidence,
-                          map=imap, exclusions=args.exclude, ranges=args.ranges,
-                          archive=archive_path(args), progress=bar)
+        return service.check(args.run, sheet=sheet_arg(args.sheet), profile=args.profile,
+                             model=args.model, weighting=args.weighting,
+                             confidence=args.confidence, map=imap, exclusions=args.exclude,
+                             ranges=args.ranges, archive=archive_path(args), progress=bar)
     finally:
         if bar is not None:
             bar.close()
 
 
-def _write_exports(args: argparse.Namespace, document: dict) -> list[str]:
-    """Write --xlsx and --csv; returns the sentences saying where they went."""
-    from calib.export import results_csv, results_xlsx
-    from calib.output import write_atomic
-
+def _export_lines(args: argparse.Namespace) -> list[str]:
+    """The sentences saying where --xlsx and --csv went."""
     done = []
-    for path, build, what in ((args.xlsx, results_xlsx, "Results workbook"),
-                              (args.csv, results_csv, "Results CSV")):
+    for path, what in ((args.xlsx, "Results workbook"), (args.csv, "Results CSV")):
         if path:
-            done.append(f"{what} written to {write_atomic(path, build(document))}")
+            done.append(f"{what} written to {path}")
     return done
 
 
@@ -188,12 +201,3 @@ def _working_range(text: str) -> WorkingRange:
         return parse_range(text)
     except ValueError as exc:
         raise argparse.ArgumentTypeError(str(exc)) from None
-
-
-def _file(path: str, record: Record, pdf: bytes) -> str:
-    """Append the issued record to the archive; returns the sentence saying where it went."""
-    from calib.archive import Archive
-
-    with Archive(path) as archive:
-        entry = archive.append(record, pdf, kind="issued")
-    return f"Record {entry.record_id} filed in archive {path} as entry seq {entry.seq}"

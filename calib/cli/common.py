@@ -54,6 +54,14 @@ def add_force(parser: argparse.ArgumentParser, *, what: str) -> None:
                         help=f"replace {what} that already exist (default: refuse, exit 2)")
 
 
+def add_template_option(parser: argparse.ArgumentParser) -> None:
+    """--template: the report template of this command's PDF (default: the lab's)."""
+    parser.add_argument("--template", metavar="TOML",
+                        help="report template (lab letterhead and wording) of the PDF; "
+                             "default: the one set up with calib lab init, else none "
+                             "(\"Laboratory not configured\")")
+
+
 def refuse_existing(command: str, paths: list[Path], *, force: bool) -> bool:
     """Say so and return True when a record file would be overwritten without --force."""
     existing = [p for p in paths if p.exists()] if not force else []

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from calib.cli.common import add_debug, add_force, refuse_existing
+from calib.cli.common import add_debug, add_force, add_template_option, refuse_existing
 
 DEMO_RUNS = ("fernbrook_nitrate_2026-11-30.xlsx", "fernbrook_fluoride_2026-11-30.csv")
 
@@ -13,11 +13,13 @@ EXAMPLES = """\
 examples:
   calib demo                    writes into ./calib-demo
   calib demo --out /tmp/demo    writes elsewhere
+  calib demo --template our-lab.toml   see the demo records in the lab's own layout
 
 The demo runs are invented (the fictional Fernbrook Water Laboratory): a nitrate-N
 curve that is accepted, and a fluoride curve whose intercept differs significantly
 from zero because its dilution water was contaminated. The command exits 0 when the
-demo ran, whatever the verdicts.
+demo ran, whatever the verdicts.  The records carry the fictional lab's letterhead
+(report_templates/fernbrook-demo.toml), never the lab template set up with calib lab init.
 """
 
 
@@ -30,6 +32,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--out", metavar="DIR", default="calib-demo",
                         help="folder for the records (default: ./calib-demo)")
     add_force(parser, what="demo records")
+    add_template_option(parser)
     add_debug(parser)
     parser.set_defaults(handler=run)
 
@@ -43,29 +46,33 @@ def demo_runs() -> list[Path]:
 
 
 def run(args: argparse.Namespace) -> int:
+    from calib import service
     from calib.cli import render
     from calib.cli.progress import progress_for
-    from calib.output import safe_file_name, write_atomic
-    from calib.workflow import check_file, issue_record
+    from calib.output import safe_file_name
+    from calib.report.template import demo_template
 
     out = Path(args.out)
     targets = [out / f"{safe_file_name(path.stem)}{suffix}" for path in demo_runs()
                for suffix in (".pdf", ".record.json")]
     if refuse_existing("demo", targets, force=args.force):
         return 2
+    # The demo lab's letterhead unless another is asked for: never the user's lab template,
+    # so a demo record cannot pass for one of the lab's own.
+    template = args.template or demo_template()
     for path in demo_runs():
         bar = progress_for(label=f"checking {path.name}")
         try:
-            assessment = check_file(path, progress=bar)
+            outcome = service.check(path, progress=bar)
         finally:
             if bar is not None:
                 bar.close()
-        record, pdf = issue_record(assessment, prepared_by="R. Okafor (demo analyst)")
         stem = safe_file_name(path.stem)
-        pdf_path = write_atomic(out / f"{stem}.pdf", pdf, replace=args.force)
-        json_path = write_atomic(out / f"{stem}.record.json", record.canonical,
-                                 replace=args.force)
-        print(render.assessment_text(assessment))
-        print(f"Record {record.record_id}: {pdf_path}\n  record data: {json_path}\n")
+        issued = service.issue(outcome, prepared_by="R. Okafor (demo analyst)",
+                               template=template, pdf=out / f"{stem}.pdf",
+                               record_json=out / f"{stem}.record.json", replace=args.force)
+        pdf_path, json_path = issued.written
+        print(render.assessment_text(outcome.assessment))
+        print(f"Record {issued.record.record_id}: {pdf_path}\n  record data: {json_path}\n")
     print(render.cautions_text())
     return 0

@@ -1,8 +1,8 @@
 """``calib`` command line: parse, call the library, render, exit.
 
-Exit codes: 0 accepted, 1 rejected or needs review, 2 usage error,
-3 input that cannot be read or used, 4 internal error (a bug: please report).
-Heavy libraries are imported inside the commands so ``calib --help`` is fast.
+Exit codes are in :mod:`calib.cli.exits` (one meaning each); this module is the one
+place where an exception becomes an exit code.  Heavy libraries are imported inside
+the commands so ``calib --help`` is fast.
 """
 
 from __future__ import annotations
@@ -12,9 +12,23 @@ import sys
 from collections.abc import Sequence
 
 from calib import __version__
-from calib.cli import archive, check, demo, keys, profiles, quantify, serve, sign, trend, verify
+from calib.cli import (
+    archive,
+    check,
+    demo,
+    exits,
+    keys,
+    lab,
+    profiles,
+    quantify,
+    serve,
+    sign,
+    trend,
+    verify,
+)
 
 EXIT_OK, EXIT_NOT_ACCEPTED, EXIT_USAGE, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3, 4
+EXIT_INTEGRITY, EXIT_REFUSED, EXIT_FLAGGED = exits.INTEGRITY, exits.REFUSED, exits.FLAGGED
 
 DESCRIPTION = """\
 Validate calibration curves from instrument exports and issue calibration records.
@@ -31,10 +45,10 @@ examples:
   calib archive list --analyte Nitrate-N       records filed with --archive (or CALIB_ARCHIVE)
   calib trend Nitrate-N --pdf trend.pdf        slope, intercept and residual SD over time
   calib serve --archive records.sqlite         the same in a browser, on this computer
+  calib lab init --template our-lab.toml       once: the lab's letterhead on every record
 
-exit codes: 0 accepted, 1 rejected or needs review, 2 usage error, 3 unusable input,
-            4 internal error
-"""
+exit codes:
+""" + "\n".join(f"  {code}  {meaning}" for code, meaning in exits.TABLE) + "\n"
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -45,7 +59,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"calib {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
-    for module in (check, quantify, demo, profiles, sign, verify, keys, archive, trend, serve):
+    for module in (check, quantify, demo, profiles, sign, verify, keys, archive, trend, serve,
+                   lab):
         module.add_parser(sub)
     return parser
 
@@ -61,8 +76,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     except CalibError as exc:
         if args.debug:
             raise
-        print(f"calib: error: {_one_line(str(exc))}", file=sys.stderr)
-        return EXIT_INPUT
+        code = exits.code_for(exc)
+        word = "refused" if code == exits.REFUSED else "error"
+        print(f"calib: {word}: {_one_line(str(exc))}", file=sys.stderr)
+        return code
     except BrokenPipeError:
         # The reader of our output went away (e.g. `calib check ... | head`): not an error of ours.
         import os
@@ -75,6 +92,14 @@ def main(argv: Sequence[str] | None = None) -> int:
     except Exception as exc:
         if args.debug:
             raise
+        if isinstance(exc, FileExistsError):
+            print(f"calib: error: {exc.filename} exists; records are never overwritten "
+                  "silently: choose another name, or add --force to replace it", file=sys.stderr)
+            return exits.USAGE
+        disk = exits.disk_message(exc)
+        if disk is not None:
+            print(f"calib: error: {_one_line(disk)}", file=sys.stderr)
+            return exits.INPUT
         print(
             f"calib: internal error: {type(exc).__name__}: {_one_line(str(exc))} "
             "(run again with --debug for the traceback, and please report it)",

@@ -6,7 +6,7 @@ import argparse
 import json
 import sys
 
-from calib.cli.common import add_debug, add_fit_options, sheet_arg
+from calib.cli.common import add_debug, add_fit_options, add_template_option, sheet_arg
 
 EXAMPLES = """\
 examples:
@@ -18,7 +18,8 @@ examples:
 
 A sample above the top standard is reported as "> ULOQ" (dilute and re-run), never as a number.
 exit codes: 0 every curve accepted and the QCs pass, 1 a curve rejected or needing review,
-            or the QC rule failed, 2 usage error, 3 unusable input
+            or the QC rule failed, 2 usage error, 3 unusable input (also a full disk),
+            4 internal error
 """
 
 
@@ -45,44 +46,35 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="print the calib.quantify/1 JSON document instead of tables")
     parser.add_argument("--xlsx", metavar="OUT", help="write the results workbook to OUT")
     parser.add_argument("--pdf", metavar="OUT", help="write the batch report PDF to OUT")
+    add_template_option(parser)
     add_debug(parser)
     parser.set_defaults(handler=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    from calib.output import write_atomic
-    from calib.quantify.document import quantify_document
+    from calib import service
     from calib.quantify.source import is_record_file
     from calib.quantify.text import batch_text
-    from calib.quantify.workflow import quantify_files
 
     fixed = [f"--{n}" for n in ("model", "weighting", "sheet") if getattr(args, n) is not None]
     if fixed and is_record_file(args.curve):
         print(f"calib quantify: error: {' and '.join(fixed)} apply to a run file; an issued "
               "record's curve is fixed", file=sys.stderr)
         return 2
-    report = quantify_files(
-        args.curve, args.samples, sheet=sheet_arg(args.sheet),
-        samples_sheet=sheet_arg(args.samples_sheet), profile=args.profile, model=args.model,
-        weighting=args.weighting, confidence=args.confidence, force=args.force)
-    document = quantify_document(report)
-    written = []
-    if args.xlsx:
-        from calib.report.quantify_xlsx import write_quantify_xlsx
-
-        written.append(write_atomic(args.xlsx, write_quantify_xlsx(document)))
-    if args.pdf:
-        from calib.report.quantify_pdf import write_quantify_pdf
-
-        written.append(write_atomic(args.pdf, write_quantify_pdf(document)))
+    outcome = service.quantify(
+        args.curve, args.samples, template=args.template, xlsx=args.xlsx, pdf=args.pdf,
+        sheet=sheet_arg(args.sheet), samples_sheet=sheet_arg(args.samples_sheet),
+        profile=args.profile, model=args.model, weighting=args.weighting,
+        confidence=args.confidence, force=args.force)
+    document = outcome.document
     if args.json:
         json.dump(document, sys.stdout, ensure_ascii=False, allow_nan=False)
         sys.stdout.write("\n")
         print(f"calib: caution: {document['cautions']}", file=sys.stderr)
     else:
         print(batch_text(document))
-        for path in written:
+        for path in outcome.written:
             print(f"Written: {path}")
     for analyte, why in document["refused"].items():
         print(f"calib: {analyte}: {why}", file=sys.stderr)
-    return 0 if document["verdict"] == "accepted" else 1
+    return 0 if outcome.accepted else 1

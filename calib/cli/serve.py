@@ -15,10 +15,16 @@ examples:
   calib serve                                  http://127.0.0.1:8750/ (open it in a browser)
   calib serve --archive records.sqlite --open  with the archive, and open the browser
   calib serve --port 9000 --templates lab-templates/
-  calib serve --host 0.0.0.0                   other computers too: prints an access token
+  calib serve --archive records.sqlite --keyring lab-keyring/   Verify page checks lab keys
+  calib serve --host 0.0.0.0 --allow-host labpc.fernbrook.example \
+      --tls-cert labpc.crt --tls-key labpc.key     other computers too, over HTTPS
 
-The server listens on 127.0.0.1 unless --host says otherwise; on any other interface
-every browser must present the access token printed at start.  Stop it with Ctrl+C.
+The server listens on 127.0.0.1 unless --host says otherwise.  On any other interface it
+needs HTTPS (--tls-cert and --tls-key), or --insecure-http to accept plain HTTP on a network
+you trust (a private key is then never accepted from another computer); every browser must
+present the access token printed at start.  The server answers only to the loopback names
+and those given with --allow-host (a request naming another host gets 400: this stops
+DNS-rebinding attacks).  Stop it with Ctrl+C.
 """
 
 
@@ -38,23 +44,38 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--templates", metavar="DIR",
                         help="folder of the lab's report templates (*.toml), offered by name "
                              "when issuing a record")
+    parser.add_argument("--keyring", metavar="DIR",
+                        help="the lab's public keys (*.pub.pem): the Verify pages check key "
+                             "signatures with them")
+    parser.add_argument("--allow-host", action="append", default=[], metavar="NAME",
+                        help="a host name browsers use to reach this server, besides localhost "
+                             "and 127.0.0.1; repeatable")
+    parser.add_argument("--tls-cert", metavar="PEM", help="TLS certificate: serve over HTTPS")
+    parser.add_argument("--tls-key", metavar="PEM", help="private key of --tls-cert")
+    parser.add_argument("--insecure-http", action="store_true",
+                        help="allow plain HTTP beyond this computer (not recommended: forms "
+                             "and records cross the network unencrypted)")
     parser.add_argument("--open", action="store_true", help="open the page in a browser")
     add_debug(parser)
     parser.set_defaults(handler=run)
 
 
-def server_url(host: str, port: int, token: str | None = None) -> str:
+def server_url(host: str, port: int, token: str | None = None, *, tls: bool = False) -> str:
     """The address to open.
 
     Examples
     --------
     >>> server_url("127.0.0.1", 8750)
     'http://127.0.0.1:8750/'
-    >>> server_url("::1", 8750, "abc")
-    'http://[::1]:8750/?token=abc'
+    >>> server_url("::1", 8750, "abc", tls=True)
+    'https://[::1]:8750/?token=abc'
     """
     shown = f"[{host}]" if ":" in host else host
-    return f"http://{shown}:{port}/" + (f"?token={token}" if token else "")
+    return (f"{'https' if tls else 'http'}://{shown}:{port}/"
+            + (f"?token={token}" if token else ""))
+
+
+WILDCARDS = ("0.0.0.0", "::", "")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -77,9 +98,32 @@ def run(args: argparse.Namespace) -> int:
         print(f"calib serve: error: --templates {args.templates} is not a folder",
               file=sys.stderr)
         return 3
-    token = None if is_loopback(args.host) else new_token()
-    app = create_app(archive=archive_path(args), templates=args.templates, access_token=token)
-    url = server_url(args.host, args.port, token)
+    if args.keyring and not os.path.isdir(args.keyring):
+        print(f"calib serve: error: --keyring {args.keyring} is not a folder", file=sys.stderr)
+        return 3
+    if bool(args.tls_cert) != bool(args.tls_key):
+        print("calib serve: error: --tls-cert and --tls-key go together: give both",
+              file=sys.stderr)
+        return 2
+    for option, path in (("--tls-cert", args.tls_cert), ("--tls-key", args.tls_key)):
+        if path and not os.path.isfile(path):
+            print(f"calib serve: error: {option} {path}: file not found", file=sys.stderr)
+            return 3
+    tls = bool(args.tls_cert)
+    loopback = is_loopback(args.host)
+    if not loopback and not tls and not args.insecure_http:
+        print(f"calib serve: error: --host {args.host} reaches other computers, and plain HTTP "
+              "would carry forms, records and passphrases unencrypted: give --tls-cert and "
+              "--tls-key (or put an HTTPS proxy in front and add --insecure-http)",
+              file=sys.stderr)
+        return 2
+    allowed = list(args.allow_host)
+    if not loopback and args.host not in WILDCARDS:
+        allowed.append(args.host)  # the name it listens on is one browsers may use
+    token = None if loopback else new_token()
+    app = create_app(archive=archive_path(args), templates=args.templates, access_token=token,
+                     allowed_hosts=allowed, keyring=args.keyring)
+    url = server_url(args.host, args.port, token, tls=tls)
     print(f"calib: serving on {url}", flush=True)
     if token:
         print("calib: listening beyond this computer; every browser needs the access token "
@@ -89,5 +133,9 @@ def run(args: argparse.Namespace) -> int:
         import webbrowser
 
         webbrowser.open(url)
-    uvicorn.run(app, host=args.host, port=args.port, log_level="warning")
+    if not loopback and not allowed:
+        print("calib: only the names localhost and 127.0.0.1 are answered; add the name other "
+              "computers use with --allow-host NAME", flush=True)
+    tls_options = {"ssl_certfile": args.tls_cert, "ssl_keyfile": args.tls_key} if tls else {}
+    uvicorn.run(app, host=args.host, port=args.port, log_level="warning", **tls_options)
     return 0

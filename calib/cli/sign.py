@@ -6,7 +6,7 @@ anything else writes its PDF, which carries the same JSON attached inside
 (one file holds both, so nothing is written beside it).  OUT must not exist:
 the version signed is never replaced.
 
-Exit codes: 0 signed; 1 refused (the record does not verify, the sign-off
+Exit codes: 0 signed; 5 the record does not verify; 6 refused (the sign-off
 rules forbid the signature, or the archive holds a version this one does not
 continue): a policy refusal, not unreadable input; 2 usage error (including
 an OUT that exists); 3 a record, key or template that cannot be read, or no
@@ -21,6 +21,7 @@ from pathlib import Path
 
 from calib.cli.archive import ENV_VAR as ARCHIVE_ENV
 from calib.cli.archive import add_archive_option, archive_path
+from calib.cli import exits
 from calib.cli.common import add_debug
 
 ROLES = ("reviewed", "approved", "rejected")
@@ -39,12 +40,13 @@ key (passphrase from CALIB_KEY_PASSPHRASE, or a prompt
 on a terminal).  With --archive, or {ARCHIVE_ENV} set, the new version is filed in the
 archive (and the version signed, if the archive does not hold it yet).
 
-Refused (exit 1): a record that does not verify; a role already signed; approval before
+Refused (exit 6; exit 5 for a record that does not verify): a role already signed; approval before
 review; any signature after approval or rejection; a role other than rejected on a rejected
 curve; the preparer reviewing or approving unless the record's profile allows it
 ([signoff] allow_preparer_to_review / allow_preparer_to_approve).
 
-exit codes: 0 signed, 1 refused, 2 usage error (OUT exists), 3 unreadable record or key
+exit codes: 0 signed, 6 refused by a sign-off rule, 5 record not verified, 2 usage error
+            (OUT exists), 3 unreadable record or key
 """
 
 
@@ -90,7 +92,10 @@ def run(args: argparse.Namespace) -> int:
     key = None
     if args.key:
         key = load_signing_key(args.key, passphrase=read_passphrase(purpose=f"key {args.key}"))
-    template = load_template(args.template) if args.template else None
+    from calib.service import record_template
+
+    # The template the record names (calib.service), unless --template says otherwise.
+    template = load_template(args.template) if args.template else record_template(args.record)
     db = archive_path(args)
     try:
         signed = sign_file(args.record, role=args.role, name=args.name, meaning=args.meaning,
@@ -103,7 +108,9 @@ def run(args: argparse.Namespace) -> int:
                 entries = file_versions(archive, signed)
     except SignOffError as exc:
         print(f"calib sign: refused: {exc}", file=sys.stderr)
-        return 1
+        # Not verifying is an integrity failure; any other refusal is a sign-off rule.
+        return (exits.INTEGRITY if str(exc).startswith("the record does not verify")
+                else exits.REFUSED)
     record = signed.record
     write_atomic(out, record.canonical if out.suffix.lower() == ".json" else signed.pdf)
     entry = record.body["signatures"][-1]

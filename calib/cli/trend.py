@@ -5,11 +5,11 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from pathlib import Path
 from typing import TYPE_CHECKING
 
 from calib.cli.archive import add_archive_option, archive_path, report_no_archive
-from calib.cli.common import add_debug
+from calib.cli import exits
+from calib.cli.common import add_debug, add_template_option
 
 if TYPE_CHECKING:
     from calib.archive import AnalyteTrend
@@ -30,8 +30,9 @@ Flags follow the common control-chart run rules (Western Electric rules and a tr
 rule): a point beyond 3s; 2 of 3 beyond 2s, or 4 of 5 beyond 1s, on one side; 8 in a
 row on one side of the mean; 6 in a row rising or falling.
 
-exit codes: 0 no flags, 1 a run rule fired, 2 usage error (no archive named),
-            3 archive unreadable, analyte not found, or too few accepted curves
+exit codes: 0 no flags, 7 a run rule fired (a drift warning, not a verdict), 2 usage
+            error (no archive named), 3 archive unreadable, analyte not found, or too few
+            accepted curves
 """
 
 
@@ -59,6 +60,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                              "fewer; at least 3)")
     parser.add_argument("--instrument", metavar="I", help="only runs on this instrument")
     parser.add_argument("--pdf", metavar="OUT", help="write the control charts as a PDF to OUT")
+    add_template_option(parser)
     parser.add_argument("--json", action="store_true",
                         help="print the calib.trend/1 JSON document instead of tables")
     add_debug(parser)
@@ -66,27 +68,15 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from calib.archive import Archive, ArchiveError, trend_document
+    from calib import service
+    from calib.archive import trend_document
 
     path = archive_path(args)
     if path is None:
         return report_no_archive()
-    with Archive(path, create=False) as archive:
-        trend = archive.trend(args.analyte, baseline=args.baseline, instrument=args.instrument)
-        head = archive.head()
-        known = archive.analytes()
-    if not (trend.points or trend.left_out):
-        raise ArchiveError(f"no curve of {args.analyte!r} in {path}; analytes archived: "
-                           + (", ".join(known) or "none"))
-    if not trend.evaluated:
-        raise ArchiveError(f"{trend.analyte} in {path}: {_not_evaluated(trend)}")
-    if args.pdf:
-        from calib.output import write_atomic
-        from calib.report.trend_pdf import write_trend_pdf
-
-        source = f"archive {Path(path).name}" + (
-            f" up to seq {head[0]} (entry hash {head[1][:16]})" if head else "")
-        write_atomic(args.pdf, write_trend_pdf(trend, source=source))
+    outcome = service.trend(path, args.analyte, baseline=args.baseline,
+                            instrument=args.instrument, pdf=args.pdf, template=args.template)
+    trend = outcome.trend
     if args.json:
         json.dump(trend_document(trend), sys.stdout, ensure_ascii=False, allow_nan=False)
         sys.stdout.write("\n")
@@ -94,15 +84,7 @@ def run(args: argparse.Namespace) -> int:
         print(trend_text(trend, path=path))
         if args.pdf:
             print(f"\nControl charts written to {args.pdf}")
-    return 1 if trend.flagged else 0
-
-
-def _not_evaluated(trend: AnalyteTrend) -> str:
-    n = len(trend.points)
-    if n < MIN_BASELINE:
-        return (f"{n} accepted curve{'s' if n != 1 else ''} ({len(trend.left_out)} not "
-                f"accepted); a control chart needs at least {MIN_BASELINE}")
-    return "; ".join(f"{c.quantity}: {c.reason}" for c in trend.charts)
+    return exits.FLAGGED if trend.flagged else exits.OK
 
 
 def trend_text(trend: AnalyteTrend, *, path: str) -> str:

@@ -9,6 +9,7 @@ from typing import TYPE_CHECKING
 
 from calib.cli.archive import ENV_VAR as ARCHIVE_ENV
 from calib.cli.archive import add_archive_option, archive_path
+from calib.cli import exits
 from calib.cli.common import add_debug
 
 if TYPE_CHECKING:
@@ -28,8 +29,8 @@ that this version is in the archive with the same bytes and the archive's chain 
 A key signature that cannot be checked (no --keyring, or its key is not in the keyring) counts
 as a problem.  A record JSON has no pages; the other checks apply.
 
-exit codes: 0 intact, 1 any problem (each named on its own line), 2 usage error,
-            3 unreadable file, keyring, template or archive
+exit codes: 0 intact, 5 not verified (each problem named on its own line), 2 usage
+            error, 3 unreadable file, keyring, template or archive
 """
 
 
@@ -57,7 +58,10 @@ def run(args: argparse.Namespace) -> int:
     from calib.report import load_template
 
     keyring = load_keyring(args.keyring) if args.keyring else None
-    template = load_template(args.template) if args.template else None
+    from calib.service import record_template
+
+    # The template the record names (calib.service), unless --template says otherwise.
+    template = load_template(args.template) if args.template else record_template(args.record)
     db = archive_path(args)
     if db is None:
         report = verify_file(args.record, keyring=keyring, template=template)
@@ -72,7 +76,7 @@ def run(args: argparse.Namespace) -> int:
         sys.stdout.write("\n")
     else:
         print(report_text(report))
-    return 0 if report.ok else 1
+    return exits.OK if report.ok else exits.INTEGRITY
 
 
 def report_text(report: VerifyReport) -> str:

@@ -33,6 +33,8 @@ loaded and kept as bytes, so every rendering uses the same picture.
 
 from __future__ import annotations
 
+import base64
+import binascii
 import dataclasses
 import functools
 import hashlib
@@ -54,8 +56,17 @@ __all__ = [
     "Titles",
     "Verdicts",
     "bundled_folder",
+    "demo_template",
     "load_template",
+    "resolve_template",
+    "template_for_record",
+    "template_section",
 ]
+
+NOT_CONFIGURED = "Laboratory not configured"
+"""The lab name of the bundled template: what a record says until ``calib lab init`` is run."""
+DEMO_TEMPLATE = "fernbrook-demo.toml"
+"""The bundled letterhead of the fictional demo lab (``calib demo`` only)."""
 
 PAGE_SIZES = ("A4", "Letter")
 _LOGO_MAX_BYTES = 2_000_000
@@ -167,6 +178,9 @@ class ReportTemplate:
     cautions: str
     source: str = "default.toml"
     logo: bytes | None = dataclasses.field(default=None, repr=False)
+    sha256: str = ""
+    """SHA-256 (hex) of the template file's bytes (what ``sha256sum`` prints); empty for a
+    template rebuilt from a record."""
 
     @property
     def fingerprint(self) -> str:
@@ -183,6 +197,7 @@ class ReportTemplate:
         """
         parts = dataclasses.asdict(self)
         parts.pop("source")
+        parts.pop("sha256")
         parts["logo"] = hashlib.sha256(self.logo).hexdigest() if self.logo else None
         text = json.dumps(parts, sort_keys=True, ensure_ascii=False, separators=(",", ":"))
         return hashlib.sha256(text.encode("utf-8")).hexdigest()
@@ -225,29 +240,96 @@ def load_template(path: str | Path | None = None) -> ReportTemplate:
     --------
     >>> template = load_template()
     >>> template.lab.name, template.page_size
-    ('Fernbrook Water Laboratory', 'A4')
+    ('Laboratory not configured', 'A4')
     >>> template.verdicts.word("rejected")
     'Rejected'
     """
     if path is None:
         return _bundled()
     path = Path(path)
-    return _from_table(_read_toml(path), source=path.name, base=_bundled(), folder=path.parent)
+    text, digest = _read_file(path)
+    loaded = _from_table(_parse_toml(text, path), source=path.name, base=_bundled(),
+                         folder=path.parent)
+    return dataclasses.replace(loaded, sha256=digest)
 
 
 @functools.cache
 def _bundled() -> ReportTemplate:
     path = bundled_folder() / "default.toml"
-    return _from_table(_read_toml(path), source=path.name, base=None, folder=path.parent)
+    text, digest = _read_file(path)
+    loaded = _from_table(_parse_toml(text, path), source=path.name, base=None,
+                         folder=path.parent)
+    return dataclasses.replace(loaded, sha256=digest)
+
+
+def demo_template() -> ReportTemplate:
+    """The bundled letterhead of the fictional Fernbrook Water Laboratory, for ``calib demo``.
+
+    Records issued before templates were named in the record were laid out
+    with this letterhead (it was then the bundled default).
+
+    Examples
+    --------
+    >>> demo_template().lab.name
+    'Fernbrook Water Laboratory'
+    """
+    return load_template(bundled_folder() / DEMO_TEMPLATE)
+
+
+def resolve_template(template: str | Path | ReportTemplate | None = None) -> ReportTemplate:
+    """The template a new record is laid out with.
+
+    ``template`` when given (a path or a loaded template); else the lab's
+    template set up with ``calib lab init`` (:mod:`calib.labsettings`); else
+    the bundled one, whose letterhead says "Laboratory not configured".
+
+    Raises
+    ------
+    TemplateError
+        When the template cannot be used, or the lab's template file changed
+        since ``calib lab init`` (its SHA-256 differs).
+    ConfigError
+        When the lab settings file is damaged.
+    """
+    if isinstance(template, ReportTemplate):
+        return template
+    if template is not None:
+        return load_template(template)
+    from calib.labsettings import read_settings
+
+    settings = read_settings()
+    if settings is None:
+        return load_template()
+    loaded = load_template(settings.template)
+    if loaded.sha256 != settings.template_sha256:
+        raise TemplateError(
+            f"template {settings.template}: the lab's template changed since it was set up "
+            f"(SHA-256 {loaded.sha256[:16]}…, set up as {settings.template_sha256[:16]}…); "
+            "check the change, then run calib lab init --template "
+            f"{settings.template} again")
+    return loaded
 
 
 def _read_toml(path: Path) -> dict[str, Any]:
+    text, _ = _read_file(path)
+    return _parse_toml(text, path)
+
+
+def _read_file(path: Path) -> tuple[str, str]:
+    """The template's text and the SHA-256 of its bytes."""
     try:
-        text = path.read_text(encoding="utf-8")
+        data = path.read_bytes()
+        text = data.decode("utf-8")
     except FileNotFoundError:
         raise TemplateError(f"template {path.name}: file not found") from None
+    except IsADirectoryError:
+        raise TemplateError(f"template {path.name}: is a folder, not a TOML file") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise TemplateError(f"template {path.name}: cannot be read ({exc})") from None
+    return text, hashlib.sha256(data).hexdigest()
+
+
+def _parse_toml(text: str, path: Path) -> dict[str, Any]:
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -390,3 +472,92 @@ def _check_kind(value: Any, kind: type, *, key: str, source: str) -> None:
         raise TemplateError(
             f"template {source}: key '{key}' must be {_KIND_WORDS[kind]}; got {value!r}"
         )
+
+
+# ---------------------------------------------------------------- the template inside a record
+
+def template_section(template: ReportTemplate) -> dict[str, Any]:
+    """What a record states about the template it was issued with (its ``template`` key).
+
+    The file name and the SHA-256 of the file's bytes say *which* template (an
+    auditor can compare them with ``sha256sum``); ``layout`` and ``logo`` carry
+    everything that shapes the pages, so that signing and verifying find the
+    template in the record itself, years later, without the file; the
+    ``fingerprint`` (:attr:`ReportTemplate.fingerprint`) ties the two.
+
+    Examples
+    --------
+    >>> section = template_section(load_template())
+    >>> section["name"], section["laboratory"], len(section["sha256"])
+    ('default.toml', 'not configured', 64)
+    """
+    layout = dataclasses.asdict(template)
+    for key in ("source", "sha256", "logo"):
+        layout.pop(key)
+    if template.lab.name == NOT_CONFIGURED:
+        laboratory = "not configured"
+    elif template.source == DEMO_TEMPLATE and template.sha256 == demo_template().sha256:
+        laboratory = "demonstration"
+    else:
+        laboratory = "configured"
+    return {
+        "name": template.source,
+        "sha256": template.sha256,
+        "fingerprint": template.fingerprint,
+        "laboratory": laboratory,
+        "layout": layout,
+        "logo": base64.b64encode(template.logo).decode("ascii") if template.logo else None,
+    }
+
+
+def template_for_record(record: bytes | str | dict[str, Any]) -> ReportTemplate:
+    """The template a record was issued with, rebuilt from the record itself.
+
+    Parameters
+    ----------
+    record : bytes, str or dict
+        The record JSON (as bytes or text) or its parsed body.
+
+    Returns
+    -------
+    ReportTemplate
+        Rebuilt from the record's ``template`` section; for a record issued
+        before records named their template, the demo letterhead that was
+        then the bundled default.
+
+    Raises
+    ------
+    TemplateError
+        When the ``template`` section is malformed or does not match its own
+        fingerprint.
+
+    Examples
+    --------
+    >>> body = {"template": template_section(demo_template())}
+    >>> template_for_record(body).fingerprint == demo_template().fingerprint
+    True
+    >>> template_for_record({}).lab.name
+    'Fernbrook Water Laboratory'
+    """
+    body = json.loads(record) if isinstance(record, (bytes, str)) else record
+    section = body.get("template") if isinstance(body, dict) else None
+    if section is None:
+        return demo_template()
+    where = "the record's template section"
+    try:
+        layout = dict(section["layout"])
+        lab = LabDetails(**{k: tuple(v) if isinstance(v, list) else v
+                            for k, v in layout.pop("lab").items()})
+        parts = {key: cls(**layout.pop(key)) for key, cls in _TABLES.items() if key != "lab"}
+        logo = base64.b64decode(section["logo"], validate=True) if section.get("logo") else None
+        rebuilt = ReportTemplate(lab=lab, page_size=layout.pop("page_size"),
+                                 cautions=layout.pop("cautions"), source=str(section["name"]),
+                                 logo=logo, sha256=str(section["sha256"]), **parts)
+    except (KeyError, TypeError, AttributeError, ValueError, binascii.Error) as exc:
+        raise TemplateError(f"{where} is malformed ({type(exc).__name__}: {exc})") from None
+    if layout:
+        raise TemplateError(f"{where} has unknown keys: {', '.join(sorted(layout))}")
+    if rebuilt.fingerprint != section.get("fingerprint"):
+        raise TemplateError(f"{where} does not match its fingerprint: the template named "
+                            f"{section.get('name')!r} was altered")
+    return rebuilt

@@ -1,182 +1,63 @@
 """The pages of ``calib serve``: routes that call the library and render what it returns.
 
-No statistics happen here.  A route reads the form, calls :mod:`calib.workflow`,
-:mod:`calib.record`, :mod:`calib.archive` or :mod:`calib.quantify`, and renders a
-template; a :class:`~calib.errors.CalibError` becomes one sentence on the page,
-the same words the command line prints.
+No statistics and no assembly happen here.  A route reads the form, calls
+:mod:`calib.service` (the same calls as the command line) or reads
+:mod:`calib.archive`, and renders a template; a :class:`~calib.errors.CalibError`
+becomes one sentence on the page, the same words the command line prints.
+
+Every browser has its own store of open runs and downloads (a session cookie),
+every request must name an allowed host, and every response carries the
+security headers of :mod:`calib.web.security` (:mod:`calib.web.guard`).  The
+archive pages are in :mod:`calib.web.archive_pages`.
 """
 
 from __future__ import annotations
 
+import functools
 import os
-from collections.abc import Awaitable, Callable
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
-from jinja2 import Environment, PackageLoader, select_autoescape
 from starlette.applications import Starlette
 from starlette.concurrency import run_in_threadpool
-from starlette.datastructures import FormData, UploadFile
+from starlette.datastructures import FormData
 from starlette.exceptions import HTTPException
 from starlette.middleware import Middleware
-from starlette.middleware.base import BaseHTTPMiddleware, RequestResponseEndpoint
 from starlette.requests import Request
-from starlette.responses import HTMLResponse, RedirectResponse, Response
+from starlette.responses import RedirectResponse, Response
 from starlette.routing import Mount, Route
 from starlette.staticfiles import StaticFiles
 
 from calib.errors import CalibError
-from calib.output import safe_file_name
 from calib.web import pages
-from calib.web.security import (
-    ACCESS_COOKIE,
-    CSRF_COOKIE,
-    CSRF_FIELD,
-    DEFAULT_MAX_UPLOAD,
-    new_token,
-    same_origin,
-    same_token,
+from calib.web.archive_pages import (
+    archive_chain,
+    archive_page,
+    archive_pdf,
+    archive_record,
+    archive_verify_record,
+    trend_page,
 )
-from calib.web.state import Download, OpenRun, Store, private_copy, scrub
+from calib.web.base import (
+    PageError,
+    _archive_path,
+    _attachment,
+    _closing,
+    _environment,
+    _file,
+    _form,
+    _open_run,
+    _render,
+    _runs,
+    _text,
+    one_line,
+)
+from calib.web.guard import Guard
+from calib.web.security import DEFAULT_MAX_UPLOAD, key_upload_allowed
+from calib.web.state import Download, OpenRun, Sessions, private_copy
 
-__all__ = ["PageError", "create_app"]
-
-Handler = Callable[[Request], Awaitable[Response]]
-
-
-class PageError(Exception):
-    """A request the page refuses, with the one sentence to show and the HTTP status."""
-
-    def __init__(self, message: str, status: int = 400) -> None:
-        super().__init__(message)
-        self.message = message
-        self.status = status
-
-
-def one_line(text: str) -> str:
-    """``text`` on one line, as the command line prints errors (no private folder named)."""
-    return " ".join(scrub(str(text)).split())
-
-
-def _environment() -> Environment:
-    env = Environment(loader=PackageLoader("calib.web", "templates"),
-                      autoescape=select_autoescape(default=True, default_for_string=True),
-                      trim_blocks=True, lstrip_blocks=True)
-    env.filters["num"] = pages.num
-    env.filters["verdict_word"] = pages.verdict_word
-    env.filters["check_word"] = pages.check_word
-    return env
-
-
-class _Guard(BaseHTTPMiddleware):
-    """The access token (when not on loopback) and the origin check of every POST."""
-
-    async def dispatch(self, request: Request, call_next: RequestResponseEndpoint) -> Response:
-        app_state = request.app.state
-        token = app_state.access_token
-        if token and not same_token(request.cookies.get(ACCESS_COOKIE), token):
-            given = request.query_params.get("token")
-            if not same_token(given, token):
-                return _render(request, "error.html", status=403, message=(
-                    "This page needs the access token printed when calib serve started: "
-                    "open the address it printed, with ?token=… at the end."))
-            # Keep the token in a cookie and drop it from the address bar.
-            response = RedirectResponse(request.url.remove_query_params("token"), 303)
-            response.set_cookie(ACCESS_COOKIE, token, httponly=True, samesite="strict")
-            return response
-        if request.method == "POST":
-            if not same_origin(request.headers.get("origin"), request.headers.get("host")):
-                return _render(request, "error.html", status=403, message=(
-                    "This form was sent from another site, so it was refused."))
-            length = request.headers.get("content-length")
-            if length is None or not length.isdigit():
-                return _render(request, "error.html", status=411, message=(
-                    "The form was sent without its length, so it was refused; send it again "
-                    "from the page."))
-            if int(length) > app_state.max_upload:
-                return _render(request, "error.html", status=413, message=(
-                    f"The file is too large: at most {pages.size_text(app_state.max_upload)} "
-                    "can be uploaded."))
-        return await call_next(request)
-
-
-def _csrf(request: Request) -> str:
-    """The form token of this browser (made on its first page)."""
-    token = request.cookies.get(CSRF_COOKIE)
-    if not token:
-        token = request.state.__dict__.setdefault("new_csrf", new_token())
-    return token
-
-
-def _render(request: Request, name: str, *, status: int = 200, **context: Any) -> HTMLResponse:
-    state = request.app.state
-    context.setdefault("archive", state.archive)
-    html = state.env.get_template(name).render(
-        request=request, csrf_field=CSRF_FIELD, csrf=_csrf(request), **context)
-    response = HTMLResponse(html, status_code=status)
-    fresh = request.state.__dict__.get("new_csrf")
-    if fresh and not request.cookies.get(CSRF_COOKIE):
-        response.set_cookie(CSRF_COOKIE, fresh, httponly=True, samesite="strict")
-    return response
-
-
-async def _form(request: Request) -> FormData:
-    """The POSTed form, after checking its cross-site token."""
-    form = await request.form(max_files=4, max_fields=50,
-                              max_part_size=request.app.state.max_upload)
-    request.state.form = form
-    if not same_token(_text(form, CSRF_FIELD), request.cookies.get(CSRF_COOKIE)):
-        raise PageError("The form had no valid page token (the page may be old, or the form "
-                        "came from another site); reload the page and send it again.", 403)
-    return form
-
-
-def _closing(handler: Handler) -> Handler:
-    """``handler``, closing the uploaded files' spools when it is done, however it ends."""
-
-    async def handle(request: Request) -> Response:
-        try:
-            return await handler(request)
-        finally:
-            form = getattr(request.state, "form", None)
-            if form is not None:
-                await form.close()
-
-    return handle
-
-
-def _text(form: FormData, name: str) -> str:
-    value = form.get(name)
-    return " ".join(value.split()) if isinstance(value, str) else ""
-
-
-async def _file(form: FormData, name: str, *, what: str,
-                required: bool = True) -> tuple[str, bytes] | None:
-    value = form.get(name)
-    if not isinstance(value, UploadFile) or not value.filename:
-        if required:
-            raise PageError(f"Choose the {what} to upload.")
-        return None
-    data = await value.read()
-    await value.close()
-    return value.filename, data
-
-
-def _open_run(request: Request) -> tuple[str, OpenRun]:
-    run_id = request.path_params["run_id"]
-    run = request.app.state.store.run(run_id)
-    if run is None:
-        raise PageError("This run is no longer open (the server was restarted, or many runs "
-                        "were opened since); upload the file again.", 404)
-    return run_id, run
-
-
-def _archive_path(request: Request) -> str:
-    path = request.app.state.archive
-    if not path:
-        raise PageError("No archive is open: start the server with calib serve --archive DB.",
-                        409)
-    return path
+__all__ = ["PageError", "create_app", "one_line"]
 
 
 # ---------------------------------------------------------------------- check a run
@@ -190,7 +71,7 @@ async def check_upload(request: Request) -> Response:
     name, data = await _file(form, "run", what="run file (the instrument export)")
     run = OpenRun(name=name, data=data, **_settings(form, request))
     await run_in_threadpool(_assess, run)
-    run_id = request.app.state.store.add_run(run)
+    run_id = _runs(request, create=True).add_run(run)
     return RedirectResponse(f"/run/{run_id}", 303)
 
 
@@ -210,13 +91,14 @@ def _settings(form: FormData, request: Request) -> dict[str, Any]:
 
 def _assess(run: OpenRun) -> None:
     """Check the run's bytes with its settings and exclusions (the library does the work)."""
+    from calib import service
     from calib.checks.exclusions import parse_exclusion
-    from calib.workflow import check_file
 
     exclusions = [parse_exclusion(f"{t}={r}") for t, r in run.exclusions]
     with private_copy(run.name, run.data) as path:
-        run.assessment = check_file(path, profile=run.profile, model=run.model,
-                                    weighting=run.weighting, exclusions=exclusions)
+        run.assessment = service.check(path, profile=run.profile, model=run.model,
+                                       weighting=run.weighting,
+                                       exclusions=exclusions).assessment
     run.issued = run.issued_pdf = None
     run.filed = ""
 
@@ -310,7 +192,7 @@ def _back(run_id: str, back: str) -> str:
 async def run_close(request: Request) -> Response:
     await _form(request)
     run_id, _ = _open_run(request)
-    request.app.state.store.close_run(run_id)
+    _runs(request).close_run(run_id)
     return RedirectResponse("/", 303)
 
 
@@ -319,7 +201,22 @@ async def run_close(request: Request) -> Response:
 async def issue_page(request: Request) -> Response:
     run_id, run = _open_run(request)
     return _render(request, "issue.html", run_id=run_id, run=run,
-                   templates=request.app.state.report_templates)
+                   templates=request.app.state.report_templates,
+                   lab_template=_lab_template_label())
+
+
+def _lab_template_label() -> str:
+    """Which letterhead a record gets when no template is chosen (calib lab init)."""
+    from calib.report.template import NOT_CONFIGURED, resolve_template
+
+    try:
+        template = resolve_template()
+    except CalibError as exc:
+        return f"the lab's template cannot be used: {one_line(str(exc))}"
+    if template.lab.name == NOT_CONFIGURED:
+        return ("none set up, so the record says “Laboratory not configured” "
+                "(calib lab init --template FILE sets one up)")
+    return f"the lab's, {template.source} ({template.lab.name})"
 
 
 async def issue_post(request: Request) -> Response:
@@ -334,19 +231,15 @@ async def issue_post(request: Request) -> Response:
         _archive_path(request)
 
     def issue() -> None:
-        from calib.record.record import build_record
-        from calib.workflow import record_pdf
+        from calib import service
 
-        record = build_record(run.assessment, prepared_by=prepared_by)
-        run.issued, run.issued_pdf = record, record_pdf(record, template=template)
+        issued = service.issue(run.assessment, prepared_by=prepared_by, template=template,
+                               archive=request.app.state.archive if file_it else None)
+        run.issued, run.issued_pdf = issued.record, issued.pdf
         run.filed = ""
-        if file_it:
-            from calib.archive import Archive
-
-            with Archive(request.app.state.archive) as store:
-                entry = store.append(record, run.issued_pdf, kind="issued")
-            run.filed = (f"Record {entry.record_id} filed in the archive as entry seq "
-                         f"{entry.seq}.")
+        if issued.filed is not None:
+            run.filed = (f"Record {issued.filed.record_id} filed in the archive as entry seq "
+                         f"{issued.filed.seq}.")
 
     await run_in_threadpool(issue)
     return RedirectResponse(f"/run/{run_id}/issued", 303)
@@ -376,11 +269,6 @@ async def issued_pdf(request: Request) -> Response:
     return _attachment(f"{run.issued.record_id}.pdf", "application/pdf", run.issued_pdf)
 
 
-def _attachment(filename: str, media_type: str, data: bytes) -> Response:
-    return Response(data, media_type=media_type, headers={
-        "Content-Disposition": f'attachment; filename="{safe_file_name(filename)}"',
-        "Cache-Control": "no-store"})
-
 
 # ---------------------------------------------------------------------- sign and verify
 
@@ -399,6 +287,12 @@ async def sign_post(request: Request) -> Response:
         raise PageError("Type the printed name of the signer.")
     meaning = _text(form, "meaning") or None
     key_file = await _file(form, "key", what="key file", required=False)
+    if key_file and not key_upload_allowed(request.url.scheme,
+                                           request.client.host if request.client else None):
+        # The key and its passphrase would have crossed the network in plain text.
+        raise PageError("A private key is accepted only over HTTPS or on this computer itself: "
+                        "the key and its passphrase were not used (start calib serve with "
+                        "--tls-cert and --tls-key, or sign with calib sign).", 403)
     passphrase = form.get("passphrase")
     passphrase = passphrase if isinstance(passphrase, str) else ""
     if key_file and not passphrase:
@@ -407,31 +301,27 @@ async def sign_post(request: Request) -> Response:
     if file_it:
         _archive_path(request)
 
-    def sign() -> tuple[Any, list[Any]]:
+    def sign() -> Any:
+        from calib import service
         from calib.record.keys import load_signing_key
-        from calib.record.signoff import file_versions, sign_file
 
         key = None
         if key_file:
             with private_copy(key_file[0], key_file[1]) as path:
                 key = load_signing_key(path, passphrase=passphrase.encode())
         with private_copy(upload[0], upload[1]) as path:
-            signed = sign_file(path, role=role, name=name, meaning=meaning, key=key)
-        entries = []
-        if file_it:
-            from calib.archive import Archive
+            return service.sign(path, role=role, name=name, meaning=meaning, key=key,
+                                archive=request.app.state.archive if file_it else None)
 
-            with Archive(request.app.state.archive) as store:
-                entries = file_versions(store, signed)
-        return signed, entries
-
-    signed, entries = await run_in_threadpool(sign)
-    record = signed.record
+    outcome = await run_in_threadpool(sign)
+    record = outcome.record
+    # Version N holds N signatures (prepared is 1), as calib sign and calib verify count.
     version = len(record.body["signatures"])
-    download = request.app.state.store.add_download(Download(
-        f"{record.record_id}-v{version + 1}.pdf", "application/pdf", signed.pdf))
+    download = _runs(request, create=True).add_download(Download(
+        f"{record.record_id}-v{version}.pdf", "application/pdf", outcome.signed.pdf))
     return _render(request, "signed.html", record=record, signature=record.body["signatures"][-1],
-                   version=version + 1, download=download, entries=entries, keyed=bool(key_file))
+                   version=version, download=download, entries=outcome.entries,
+                   keyed=bool(key_file))
 
 
 async def verify_page(request: Request) -> Response:
@@ -444,103 +334,23 @@ async def verify_post(request: Request) -> Response:
     assert upload is not None
 
     def verify() -> Any:
-        from calib.record.verify import verify_file
+        from calib import service
 
+        # With the lab's keyring and archive given to calib serve: a key signature is
+        # checked against the lab's keys, and the version against the archive.
         with private_copy(upload[0], upload[1]) as path:
-            return verify_file(path)
+            return service.verify(path, keyring=request.app.state.keyring,
+                                  archive=request.app.state.archive_if_exists())
 
     report = await run_in_threadpool(verify)
     return _render(request, "verify.html", report=pages.verify_view(report, upload[0]))
 
 
 async def download(request: Request) -> Response:
-    item = request.app.state.store.download(request.path_params["download_id"])
+    item = _runs(request).download(request.path_params["download_id"])
     if item is None:
         raise PageError("This download is no longer available; make the file again.", 404)
     return _attachment(item.filename, item.media_type, item.data)
-
-
-# ---------------------------------------------------------------------- archive and trend
-
-def _store(request: Request) -> Any:
-    from calib.archive import Archive
-
-    return Archive(_archive_path(request), create=False)
-
-
-async def archive_page(request: Request) -> Response:
-    query = {k: " ".join(request.query_params.get(k, "").split())
-             for k in ("analyte", "from", "to", "verdict", "instrument")}
-    for key in ("from", "to"):
-        if query[key]:
-            pages.check_date(query[key], key)
-    if query["verdict"] and query["verdict"] not in ("accepted", "rejected", "needs-review"):
-        raise PageError(f"Unknown verdict {query['verdict']!r}: choose one from the list.")
-    with _store(request) as store:
-        found = store.entries(analyte=query["analyte"] or None, verdict=query["verdict"] or None,
-                              instrument=query["instrument"] or None,
-                              date_from=query["from"] or None, date_to=query["to"] or None,
-                              data=False)
-        analytes = store.analytes()
-    return _render(request, "archive.html", query=query, entries=found, analytes=analytes)
-
-
-async def archive_record(request: Request) -> Response:
-    record_id = request.path_params["record_id"]
-    with _store(request) as store:
-        versions = store.entries(record_id=record_id)
-    if not versions:
-        raise PageError(f"No record {record_id} in the archive.", 404)
-    return _render(request, "record.html", view=pages.record_view(versions))
-
-
-async def archive_pdf(request: Request) -> Response:
-    record_id, seq = request.path_params["record_id"], request.path_params["seq"]
-    with _store(request) as store:
-        versions = store.entries(record_id=record_id)
-    entry = next((v for v in versions if v.seq == seq), None)
-    if entry is None:
-        raise PageError(f"No entry seq {seq} of record {record_id} in the archive.", 404)
-    return _attachment(f"{entry.record_id}-seq{entry.seq}.pdf", "application/pdf", entry.pdf)
-
-
-async def archive_verify_record(request: Request) -> Response:
-    record_id = request.path_params["record_id"]
-
-    def verify() -> Any:
-        from calib.record.verify import verify_file
-
-        with _store(request) as store:
-            versions = store.entries(record_id=record_id)
-            if not versions:
-                raise PageError(f"No record {record_id} in the archive.", 404)
-            latest = versions[-1]
-            with private_copy(f"{latest.record_id}.pdf", latest.pdf) as path:
-                return versions, verify_file(path, archive=store)
-
-    versions, report = await run_in_threadpool(verify)
-    return _render(request, "record.html", view=pages.record_view(versions),
-                   verified=pages.verify_view(report, f"{record_id} (latest version)"))
-
-
-async def archive_chain(request: Request) -> Response:
-    with _store(request) as store:
-        report = store.verify_chain()
-    return _render(request, "chain.html", report=report)
-
-
-async def trend_page(request: Request) -> Response:
-    analyte = " ".join(request.query_params.get("analyte", "").split())
-    with _store(request) as store:
-        analytes = store.analytes()
-        trend = store.trend(analyte) if analyte else None
-    view = None
-    if trend is not None:
-        if not (trend.points or trend.left_out):
-            raise PageError(f"No curve of {analyte!r} in the archive; analytes archived: "
-                            + (", ".join(analytes) or "none") + ".", 404)
-        view = await run_in_threadpool(pages.trend_view, trend)
-    return _render(request, "trend.html", analyte=analyte, analytes=analytes, trend=view)
 
 
 # ---------------------------------------------------------------------- quantify
@@ -556,29 +366,23 @@ async def quantify_post(request: Request) -> Response:
     force = form.get("force") == "yes"
     assert curve is not None
 
-    def quantify() -> dict[str, Any]:
-        from calib.quantify.document import quantify_document
-        from calib.quantify.workflow import quantify_files
+    def quantify() -> tuple[dict[str, Any], bytes]:
+        from calib import service
 
+        # The workbook is made with the results, as calib quantify --xlsx makes it.
         with private_copy(curve[0], curve[1]) as curve_path:
             if samples is None:
-                report = quantify_files(curve_path, None, force=force)
+                outcome = service.quantify(curve_path, None, force=force, workbook=True)
             else:
                 with private_copy(samples[0], samples[1]) as samples_path:
-                    report = quantify_files(curve_path, samples_path, force=force)
-        return quantify_document(report)
+                    outcome = service.quantify(curve_path, samples_path, force=force,
+                                               workbook=True)
+        return outcome.document, outcome.workbook
 
-    document = await run_in_threadpool(quantify)
-
-    def workbook() -> bytes:
-        from calib.report.quantify_xlsx import write_quantify_xlsx
-
-        return write_quantify_xlsx(document)
-
-    xlsx = request.app.state.store.add_download(Download(
+    document, workbook = await run_in_threadpool(quantify)
+    xlsx = _runs(request, create=True).add_download(Download(
         "quantify-results.xlsx",
-        "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet",
-        await run_in_threadpool(workbook)))
+        "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet", workbook))
     return _render(request, "quantify.html", result=pages.quantify_view(document), xlsx=xlsx)
 
 
@@ -602,15 +406,30 @@ async def _http_error(request: Request, exc: Exception) -> Response:
 
 
 async def _internal_error(request: Request, exc: Exception) -> Response:
+    from calib.output import disk_message
+
+    disk = disk_message(exc)
+    if disk is not None:  # the server's disk, not a bug: say so, as the command line does
+        return _render(request, "error.html", status=507,
+                       message=one_line(disk[0].upper() + disk[1:] + "."))
     message = (f"Internal error: {type(exc).__name__}: {one_line(str(exc))} (a bug in calib: "
                "please report it with the file you used).")
     return _render(request, "error.html", status=500, message=message)
 
 
+def _existing_archive(path: str | None) -> str | None:
+    """The archive to verify against: None until the first record is filed in it."""
+    if path is None:
+        return None
+    return path if "://" in path or os.path.exists(path) else None
+
+
 def create_app(*, archive: str | os.PathLike[str] | None = None,
                templates: str | os.PathLike[str] | None = None,
                access_token: str | None = None,
-               max_upload: int = DEFAULT_MAX_UPLOAD) -> Starlette:
+               max_upload: int = DEFAULT_MAX_UPLOAD,
+               allowed_hosts: Sequence[str] = (),
+               keyring: str | os.PathLike[str] | None = None) -> Starlette:
     """The web application behind ``calib serve``.
 
     Parameters
@@ -625,6 +444,11 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         sets one whenever it listens beyond the loopback interface.
     max_upload : int
         Largest request body accepted, in bytes.
+    allowed_hosts : sequence of str
+        Host names the server answers to besides the loopback names (``localhost``,
+        ``127.0.0.1``, ``::1``); a request naming any other host gets 400.
+    keyring : path, optional
+        The lab's folder of public keys: the Verify pages check key signatures with it.
 
     Examples
     --------
@@ -663,13 +487,16 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         Mount("/static", StaticFiles(packages=[("calib.web", "static")]), name="static"),
     ]
     app = Starlette(
-        routes=routes, middleware=[Middleware(_Guard)],
+        routes=routes, middleware=[Middleware(Guard)],
         exception_handlers={PageError: _page_error, CalibError: _calib_error,
                             HTTPException: _http_error, Exception: _internal_error},
     )
     app.state.env = _environment()
-    app.state.store = Store()
+    app.state.sessions = Sessions()
     app.state.archive = os.fspath(archive) if archive is not None else None
+    app.state.allowed_hosts = tuple(allowed_hosts)
+    app.state.keyring = os.fspath(keyring) if keyring is not None else None
+    app.state.archive_if_exists = functools.partial(_existing_archive, app.state.archive)
     app.state.access_token = access_token
     app.state.max_upload = max_upload
     app.state.profiles = tuple(shipped_profiles())

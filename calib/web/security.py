@@ -7,6 +7,18 @@ a token the page put in the form, which must equal the one in our cookie
 site is refused outright.  When the server listens on another interface, an
 access token printed at start must be presented once; it is then kept in a
 cookie for the browser session.
+
+DNS rebinding: a page on another site can make the victim's browser resolve its
+own name to 127.0.0.1 and then read our pages as "same origin".  What gives it
+away is the ``Host`` header, which still carries the attacker's name; so every
+request must name an allowed host (:func:`host_allowed`: the loopback names,
+plus the names ``calib serve`` was told to answer to), or it gets 400.  Each
+response carries a Content-Security-Policy (own scripts and styles only, no
+framing: ``frame-ancestors 'none'``) and ``X-Content-Type-Options: nosniff``.
+
+Private keys: a key file and its passphrase are accepted only over HTTPS or
+from this computer itself (:func:`key_upload_allowed`), never in plain text
+over the network.
 """
 
 from __future__ import annotations
@@ -23,7 +35,13 @@ __all__ = [
     "CSRF_COOKIE",
     "CSRF_FIELD",
     "DEFAULT_MAX_UPLOAD",
+    "LOOPBACK_NAMES",
+    "SECURITY_HEADERS",
+    "SESSION_COOKIE",
+    "host_allowed",
+    "host_name",
     "is_loopback",
+    "key_upload_allowed",
     "new_token",
     "safe_filename",
     "same_origin",
@@ -33,6 +51,20 @@ __all__ = [
 CSRF_COOKIE = "calib_form"
 CSRF_FIELD = "form_token"
 ACCESS_COOKIE = "calib_access"
+SESSION_COOKIE = "calib_session"
+#: Host names every server answers to: this computer's own.
+LOOPBACK_NAMES = ("localhost", "127.0.0.1", "::1")
+#: Sent with every response.  The pages use only our own script and style sheet, so
+#: nothing inline is allowed; no other site may frame them (clickjacking on the sign form).
+SECURITY_HEADERS = {
+    "Content-Security-Policy": ("default-src 'self'; script-src 'self'; style-src 'self'; "
+                                "img-src 'self' data:; object-src 'none'; base-uri 'none'; "
+                                "form-action 'self'; frame-ancestors 'none'"),
+    "X-Content-Type-Options": "nosniff",
+    "X-Frame-Options": "DENY",
+    # Not "no-referrer": with it browsers send "Origin: null" on our own form posts.
+    "Referrer-Policy": "same-origin",
+}
 #: Instrument exports are small; 20 MB leaves room for a large multi-analyte workbook.
 DEFAULT_MAX_UPLOAD = 20 * 1024 * 1024
 
@@ -76,6 +108,58 @@ def same_origin(origin: str | None, host: str | None) -> bool:
     if origin == "null" or not host:
         return False
     return urlsplit(origin).netloc.lower() == host.lower()
+
+
+def host_name(host: str | None) -> str:
+    """The name part of a ``Host`` header or URL authority, lower-case, without port or brackets.
+
+    Examples
+    --------
+    >>> host_name("127.0.0.1:8750"), host_name("[::1]:8750"), host_name("LabPC.example")
+    ('127.0.0.1', '::1', 'labpc.example')
+    >>> host_name(None), host_name("a b")
+    ('', '')
+    """
+    text = (host or "").strip().lower()
+    if not text or any(c.isspace() or c in "/@\\" for c in text):
+        return ""
+    if text.startswith("["):
+        end = text.find("]")
+        return text[1:end] if end > 0 else ""
+    if text.count(":") == 1:
+        text = text.split(":", 1)[0]
+    return text.rstrip(".")
+
+
+def host_allowed(host: str | None, allowed: tuple[str, ...] = ()) -> bool:
+    """Whether a request's ``Host`` names this server: a loopback name or an allowed one.
+
+    Examples
+    --------
+    >>> host_allowed("127.0.0.1:8750"), host_allowed("localhost"), host_allowed("[::1]:80")
+    (True, True, True)
+    >>> host_allowed("attacker.example:8750")
+    False
+    >>> host_allowed("labpc.fernbrook.example:8750", ("labpc.fernbrook.example",))
+    True
+    >>> host_allowed(None)
+    False
+    """
+    name = host_name(host)
+    return bool(name) and (name in LOOPBACK_NAMES or name in {host_name(a) for a in allowed})
+
+
+def key_upload_allowed(scheme: str, client_host: str | None) -> bool:
+    """Whether a private key may be received: over HTTPS, or from this computer.
+
+    Examples
+    --------
+    >>> key_upload_allowed("https", "10.0.0.7"), key_upload_allowed("http", "127.0.0.1")
+    (True, True)
+    >>> key_upload_allowed("http", "10.0.0.7"), key_upload_allowed("http", None)
+    (False, False)
+    """
+    return scheme == "https" or (client_host is not None and is_loopback(client_host))
 
 
 def is_loopback(host: str) -> bool:

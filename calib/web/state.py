@@ -14,21 +14,28 @@ import re
 import shutil
 import tempfile
 import threading
+import time
 from collections import OrderedDict
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from calib.web.security import new_token, safe_filename
 
-__all__ = ["Download", "OpenRun", "Store", "private_copy", "scrub"]
+__all__ = ["Download", "OpenRun", "Sessions", "SessionsFull", "Store", "private_copy", "scrub"]
 
 _PREFIX = "calib-web-"
 _PRIVATE = re.compile(re.escape(os.path.join(tempfile.gettempdir(), _PREFIX)) + r"[^/\\]+[/\\]")
 
-#: How many runs and downloads are kept before the oldest is forgotten.
+#: How many runs and downloads are kept, per browser, before the oldest is forgotten.
 KEEP = 64
+#: Most bytes of uploads (and, separately, of downloads) kept for one browser.
+MAX_BYTES = 256 * 1024 * 1024
+#: How many browsers may have runs open at once (a further one is refused, no one is evicted).
+KEEP_SESSIONS = 256
+#: Seconds without use after which a browser's open runs and downloads are forgotten.
+IDLE = 12 * 3600
 
 
 @contextlib.contextmanager
@@ -93,12 +100,26 @@ class Download:
 
 
 class Store:
-    """Open runs and downloads by random id, the oldest forgotten past :data:`KEEP`."""
+    """One browser's open runs and downloads by random id.
 
-    def __init__(self) -> None:
+    The oldest of each kind is forgotten past :data:`KEEP` items or past
+    ``max_bytes`` of file data (uploads are held in memory), so one browser
+    cannot fill the server's memory; the newest item is always kept.
+
+    Examples
+    --------
+    >>> store = Store(max_bytes=10)
+    >>> first = store.add_run(OpenRun("a.csv", b"123456"))
+    >>> second = store.add_run(OpenRun("b.csv", b"123456"))
+    >>> store.run(first) is None, store.run(second) is not None
+    (True, True)
+    """
+
+    def __init__(self, max_bytes: int = MAX_BYTES) -> None:
         self._runs: OrderedDict[str, OpenRun] = OrderedDict()
         self._downloads: OrderedDict[str, Download] = OrderedDict()
         self._lock = threading.Lock()
+        self._max_bytes = max_bytes
 
     def add_run(self, run: OpenRun) -> str:
         return self._add(self._runs, run)
@@ -122,6 +143,66 @@ class Store:
         key = new_token()[:22]
         with self._lock:
             table[key] = item
-            while len(table) > KEEP:
+            while len(table) > KEEP or (
+                    len(table) > 1 and sum(len(v.data or b"") for v in table.values())
+                    > self._max_bytes):
                 table.popitem(last=False)
         return key
+
+
+class SessionsFull(Exception):
+    """Every place for a browser's store is taken by a browser active within :data:`IDLE`."""
+
+
+class Sessions:
+    """One :class:`Store` per browser session, so one user's runs never evict or show another's.
+
+    A browser is known by a random session cookie.  A run id is looked up only
+    in the store of the browser that asks, so a run id seen by someone else
+    (in a shared screen, a log, a link) answers "no such run" to them.  A store
+    is made when a browser first opens a run or makes a download (a page view
+    makes none), and forgotten after :data:`IDLE` seconds without use.  When
+    :data:`KEEP_SESSIONS` browsers are active, a new one is refused
+    (:class:`SessionsFull`) rather than another user's runs being dropped.
+
+    Examples
+    --------
+    >>> sessions = Sessions()
+    >>> run_id = sessions.store("alice", create=True).add_run(OpenRun("a.csv", b""))
+    >>> sessions.store("alice").run(run_id) is not None, sessions.store("bob").run(run_id)
+    (True, None)
+    >>> len(sessions)
+    1
+    """
+
+    def __init__(self, keep: int = KEEP_SESSIONS, idle: float = IDLE,
+                 clock: Callable[[], float] = time.monotonic) -> None:
+        self._stores: OrderedDict[str, tuple[Store, float]] = OrderedDict()
+        self._keep, self._idle, self._clock = keep, idle, clock
+        self._lock = threading.Lock()
+
+    def store(self, session: str, *, create: bool = False) -> Store:
+        """The store of ``session``; an empty one (kept only with ``create``) the first time.
+
+        Raises
+        ------
+        SessionsFull
+            With ``create``, when :data:`KEEP_SESSIONS` other browsers are active.
+        """
+        now = self._clock()
+        with self._lock:
+            for key in [k for k, (_, used) in self._stores.items() if now - used > self._idle]:
+                del self._stores[key]
+            found = self._stores.pop(session, None)
+            if found is None:
+                if not create:
+                    return Store()
+                if len(self._stores) >= self._keep:
+                    raise SessionsFull(f"{self._keep} browsers have runs open")
+                found = (Store(), now)
+            self._stores[session] = (found[0], now)
+            return found[0]
+
+    def __len__(self) -> int:
+        with self._lock:
+            return len(self._stores)

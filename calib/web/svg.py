@@ -20,6 +20,31 @@ _WIDTH, _HEIGHT = 380, 280
 _QUANTITIES = {"slope": "Slope b", "intercept": "Intercept a", "residual_sd": "Residual SD"}
 
 
+_STYLE = re.compile(r'\sstyle="([^"]*)"')
+_PROPERTY = re.compile(r"^[a-z-]+$")
+
+
+def _attributes(match: re.Match[str]) -> str:
+    """An SVG ``style="..."`` as presentation attributes.
+
+    The page's Content-Security-Policy allows no inline style, so the chart's
+    colours, strokes and fonts travel as attributes, which it does not govern.
+
+    Examples
+    --------
+    >>> _STYLE.sub(_attributes, '<path style="stroke: rgb(10%,43%,54%); fill: None;"/>')
+    '<path stroke="rgb(10%,43%,54%)" fill="none"/>'
+    """
+    out = []
+    for part in match.group(1).split(";"):
+        name, _, value = part.partition(":")
+        name, value = name.strip().lower(), value.strip()
+        if not (name and value and _PROPERTY.match(name)) or '"' in value:
+            continue
+        out.append(f' {name}="{"none" if value.lower() == "none" else value}"')
+    return "".join(out)
+
+
 def drawing_svg(drawing: Drawing, *, label: str) -> str:
     """``drawing`` as an ``<svg>`` element with ``label`` as its accessible name."""
     from xml.sax.saxutils import quoteattr
@@ -27,7 +52,7 @@ def drawing_svg(drawing: Drawing, *, label: str) -> str:
     from reportlab.graphics import renderSVG
 
     text = renderSVG.drawToString(drawing)
-    text = text[text.index("<svg"):]
+    text = _STYLE.sub(_attributes, text[text.index("<svg"):])
     return re.sub(r"^<svg\b", f"<svg role=\"img\" aria-label={quoteattr(label)}", text, count=1)
 
 

@@ -152,16 +152,16 @@ def test_verify(archived, capsys, tmp_path):
     assert code == 0 and out.startswith(f"Archive {db}: 4 entries, every digest and the hash "
                                         "chain intact; head seq 4, entry hash ")
     code, out, _ = cli(capsys, "archive", "verify", "--archive", db, "--head", "ab" * 32)
-    assert code == 1 and "the noted head abababababababab… is not in the archive" in out
+    assert code == 5 and "the noted head abababababababab… is not in the archive" in out
     _drop_triggers_and(db, "UPDATE entries SET json = CAST(replace(CAST(json AS TEXT), "
                            "'R. Okafor', 'R. Okafoe') AS BLOB) WHERE seq = 2")
     code, out, _ = cli(capsys, "archive", "verify", "--archive", db)
-    assert code == 1
+    assert code == 5
     assert ("  entry seq 2: its JSON does not match its version digest: the record data was "
             "altered") in out.splitlines()
     code, _, err = cli(capsys, "archive", "export", record.record_id, "--archive", db,
                        "--out", tmp_path / "x")
-    assert code == 1 and "entry seq 2 of" in err and "nothing was exported" in err
+    assert code == 5 and "entry seq 2 of" in err and "nothing was exported" in err
     assert not (tmp_path / "x").exists()
 
 
@@ -202,10 +202,10 @@ def test_trend_flags_drift_and_writes_the_charts(tmp_path, capsys):
     db = tmp_path / "a.sqlite"
     _series(db, runs=16, drift_from=10)
     code, out, _ = cli(capsys, "trend", "Nitrate-N", "--archive", db)
-    assert code == 1 and "FLAGGED: run rules fired on" in out and "beyond-3s" in out
+    assert code == 7 and "FLAGGED: run rules fired on" in out and "beyond-3s" in out
     code, out, _ = cli(capsys, "trend", "Nitrate-N", "--archive", db, "--json", "--baseline", "8")
     doc = json.loads(out)
-    assert code == 1 and doc["schema"] == "calib.trend/1" and doc["flagged"] is True
+    assert code == 7 and doc["schema"] == "calib.trend/1" and doc["flagged"] is True
     assert doc["baseline"] == 8 and doc["charts"][0]["baseline_points"] == 8
     assert [c["quantity"] for c in doc["charts"]] == ["slope", "intercept", "residual_sd"]
     pdf_path = tmp_path / "trend.pdf"

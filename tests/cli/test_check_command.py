@@ -135,3 +135,84 @@ def test_help_runs_in_a_fresh_interpreter_with_examples():
                             capture_output=True, text=True, check=False)
     assert result.returncode == 0
     assert "examples:" in result.stdout and "--prepared-by" in result.stdout
+
+
+# ---------------------------------------------------------------------- exit codes, templates
+
+def test_the_exit_code_table_is_in_the_help_and_each_code_has_one_meaning():
+    from calib.cli import exits
+
+    result = subprocess.run([sys.executable, "-m", "calib", "--help"], capture_output=True,
+                            text=True, check=False)
+    codes = [code for code, _ in exits.TABLE]
+    assert codes == sorted(set(codes)) == list(range(8))  # 0..7, none used twice
+    for code, meaning in exits.TABLE:
+        assert f"  {code}  {meaning}" in result.stdout
+
+
+@pytest.mark.parametrize(("error", "code"), [
+    ("calib.errors:InputError", 3), ("calib.errors:TemplateError", 3),
+    ("calib.errors:ConfigError", 3), ("calib.record.signing:SignOffError", 6),
+    ("calib.archive:ArchiveError", 3), ("builtins:ZeroDivisionError", 4),
+])
+def test_errors_map_to_exit_codes_in_one_place(error, code, capsys, monkeypatch):
+    import importlib
+
+    import calib.service
+
+    module, name = error.split(":")
+    cls = getattr(importlib.import_module(module), name)
+
+    def fail(*args, **kwargs):
+        raise cls("stopped here")
+
+    monkeypatch.setattr(calib.service, "check", fail)
+    assert main(["check", str(NITRATE)]) == code
+    err = capsys.readouterr().err
+    word = {3: "error", 6: "refused", 4: "internal error"}[code]
+    assert err.startswith(f"calib: {word}: ") and err.count("\n") == 1
+    assert "stopped here" in err
+
+
+def test_a_record_file_appearing_meanwhile_is_never_replaced(tmp_path, capsys, monkeypatch):
+    import calib.service
+
+    pdf = tmp_path / "r.pdf"
+    real = calib.service.check
+
+    def racing(*args, **kwargs):  # another process writes the file while we check
+        pdf.write_bytes(b"someone else's record")
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(calib.service, "check", racing)
+    assert main(["check", str(NITRATE), "--pdf", str(pdf), "--csv", str(tmp_path / "r.csv")]) == 2
+    assert capsys.readouterr().err == (f"calib: error: {pdf} exists; records are never "
+                                       "overwritten silently: choose another name, or add "
+                                       "--force to replace it\n")
+    assert pdf.read_bytes() == b"someone else's record" and not (tmp_path / "r.csv").exists()
+
+
+def test_check_with_a_template_names_it_and_a_broken_one_writes_nothing(tmp_path, capsys):
+    template = tmp_path / "kestrel.toml"
+    template.write_text('[lab]\nname = "Kestrel Bioanalytical"\n', encoding="utf-8")
+    pdf = tmp_path / "r.pdf"
+    assert main(["check", str(NITRATE), "--pdf", str(pdf), "--template", str(template)]) == 0
+    out = capsys.readouterr().out
+    digest = __import__("hashlib").sha256(template.read_bytes()).hexdigest()
+    assert f"Report template: kestrel.toml (SHA-256 {digest[:16]}…)" in out
+    assert main(["check", str(NITRATE), "--pdf", str(tmp_path / "n.pdf")]) == 0
+    assert ('Report template: none set up: the record says "Laboratory not configured" '
+            "(calib lab init --template FILE)") in capsys.readouterr().out
+    template.write_text('[lab]\nname = "Kestrel"\n[page]\nsize = "A3"\n', encoding="utf-8")
+    assert main(["check", str(NITRATE), "--pdf", str(tmp_path / "x.pdf"), "--csv",
+                 str(tmp_path / "x.csv"), "--template", str(template)]) == 3
+    assert capsys.readouterr().err == ("calib: error: template kestrel.toml: key 'page.size' "
+                                       "must be one of A4, Letter; got 'A3'\n")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["kestrel.toml", "n.pdf", "r.pdf"]
+
+
+def test_quantify_trend_and_demo_take_a_template(capsys):
+    for command in ("quantify", "trend", "demo", "check"):
+        with pytest.raises(SystemExit):
+            main([command, "--help"])
+        assert "--template TOML" in capsys.readouterr().out, command

@@ -156,7 +156,7 @@ def test_preparer_cannot_approve(lab, capsys):
     assert code == 0
     code, out, err = cli(capsys, "sign", lab / "v2.pdf", "--role", "approved", "--name",
                          PREPARER, "--out", lab / "v3.pdf")
-    assert code == 1 and out == ""
+    assert code == 6 and out == ""
     assert err == (f"calib sign: refused: {PREPARER} prepared this record and may not also "
                    "approve it: the profile does not allow it (its [signoff] table would need "
                    "allow_preparer_to_approve = true)\n")
@@ -168,7 +168,7 @@ def test_rejected_curve_only_as_rejected(tmp_path, capsys):
     path.write_bytes(render(issued(levels=4)))
     code, _, err = cli(capsys, "sign", path, "--role", "reviewed", "--name", REVIEWER,
                        "--out", tmp_path / "v2.pdf")
-    assert code == 1
+    assert code == 6
     assert err == ("calib sign: refused: the run's verdict is rejected, so the record can be "
                    "signed only as rejected\n")
     code, out, _ = cli(capsys, "sign", path, "--role", "rejected", "--name", REVIEWER,
@@ -218,7 +218,7 @@ def test_sign_refuses_an_altered_record(lab, capsys):
                                                 attachment=Record(body).canonical))
     code, _, err = cli(capsys, "sign", lab / "altered.pdf", "--role", "reviewed", "--name",
                        REVIEWER, "--out", lab / "v2.pdf")
-    assert code == 1
+    assert code == 5
     assert err.startswith("calib sign: refused: the record does not verify, so it was not "
                           f"signed: the PDF states version digest {v1.digest[:16]}…")
     assert not (lab / "v2.pdf").exists()
@@ -251,7 +251,7 @@ def test_verify_names_each_problem_on_its_own_line(lab, capsys):
     assert code == 0
     code, out, _ = cli(capsys, "verify", lab / "v2.pdf")
     lines = out.splitlines()
-    assert code == 1
+    assert code == 5
     assert lines[0] == f"{lab / 'v2.pdf'}: NOT VERIFIED, 1 problem"
     assert lines[1].startswith(f"  problem: signature 2 (reviewed by {REVIEWER}) was made with "
                                "key ")
@@ -262,7 +262,7 @@ def test_verify_names_each_problem_on_its_own_line(lab, capsys):
     data[at] = ord("c")
     (lab / "v2-edited.pdf").write_bytes(bytes(data))
     code, out, _ = cli(capsys, "verify", lab / "v2-edited.pdf", "--keyring", lab / "ring")
-    assert code == 1
+    assert code == 5
     assert ("  problem: the PDF does not match a fresh rendering of its attached record data: "
             "the page content is the same, but the file around it differs") in out.splitlines()
 
@@ -288,7 +288,7 @@ def test_archive_from_the_environment_and_no_forks(lab, capsys, monkeypatch):
     assert f"  filed in {db} as entry seq 2 (signed, " in out
     code, _, err = cli(capsys, "sign", lab / "nitrate.pdf", "--role", "reviewed", "--name",
                        "Someone Else", "--out", lab / "v2-other.pdf")
-    assert code == 1
+    assert code == 6
     record_id = issued().record_id
     assert err == (f"calib sign: refused: the archive holds a version of {record_id} that the "
                    "one given does not continue (entry seq 2: prepared, reviewed); sign the "

@@ -124,7 +124,8 @@ def test_render_in_a_fresh_process_gives_the_same_bytes(nitrate_record, nitrate_
 def test_pdf_dates_are_the_record_creation_time(nitrate_pdf):
     info = PdfReader(io.BytesIO(nitrate_pdf)).metadata
     assert info["/CreationDate"] == "D:20261201093000+00'00'"
-    assert info["/Author"] == "Fernbrook Water Laboratory"
+    # No lab template set up: the record never borrows the demo lab's name (issue 16, item 6).
+    assert info["/Author"] == "Laboratory not configured"
 
 
 def test_no_machine_paths_in_the_pdf(nitrate_pdf):

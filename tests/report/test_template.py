@@ -17,7 +17,8 @@ def _write(tmp_path, text: str):
 def test_bundled_template_is_complete():
     t = load_template()
     assert isinstance(t, ReportTemplate)
-    assert t.lab.name == "Fernbrook Water Laboratory"
+    # Until the lab sets up its own template, records say so instead of naming a lab.
+    assert t.lab.name == "Laboratory not configured" and t.lab.address == ()
     assert t.page_size == "A4"
     assert t.show.summary and t.show.residual_plot
     assert t.verdicts.word("needs-review") == "Needs review"

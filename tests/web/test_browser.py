@@ -89,6 +89,11 @@ def calib(*args: str) -> subprocess.CompletedProcess[str]:
 
 def test_a_reviewer_checks_excludes_issues_downloads_verifies_and_signs(server, page, tmp_path):
     base, archive = server
+    # The pages must work under their own Content-Security-Policy: Chromium reports every
+    # blocked inline script or style on the console.
+    blocked = []
+    page.on("console", lambda m: blocked.append(m.text) if "Content Security Policy" in m.text
+            else None)
     page.goto(base + "/")
     shot(page, tmp_path, "1-home")
     # Keyboard first: the first Tab reaches the skip link.
@@ -155,3 +160,8 @@ def test_a_reviewer_checks_excludes_issues_downloads_verifies_and_signs(server, 
     page.get_by_role("button", name="Quantify").click()
     assert "Batch verdict" in page.inner_text("main")
     shot(page, tmp_path, "11-quantify")
+
+    page.goto(base + "/no/such/page")
+    page.get_by_role("link", name="Go back").click()
+    page.wait_for_url("**/quantify")
+    assert blocked == []

@@ -51,6 +51,9 @@ def test_the_readme_worked_example_runs(tmp_path, monkeypatch, capsys):
     monkeypatch.chdir(tmp_path)
     # The README block itself is the code under test.
     exec(compile(code.replace('"sample_runs/', f'"{RUNS.as_posix()}/'), "README", "exec"), {})  # noqa: S102
-    (pdf,) = tmp_path.glob("CR-*.pdf")
-    assert pdf.read_bytes().startswith(b"%PDF")
-    assert "Orthophosphate-P  accepted" in capsys.readouterr().out
+    assert [p.name for p in tmp_path.iterdir()] == ["phosphate-record.pdf"]
+    assert (tmp_path / "phosphate-record.pdf").read_bytes().startswith(b"%PDF")
+    out = capsys.readouterr().out
+    assert "Orthophosphate-P  accepted" in out
+    # The example issues with no lab template set up, and the record it wrote verifies.
+    assert out.endswith(" default.toml\nTrue\n")

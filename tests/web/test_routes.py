@@ -24,6 +24,7 @@ FLUORIDE = RUNS / "fernbrook_fluoride_2026-11-30.csv"
 ANIONS = RUNS / "fernbrook_anions_wide_2026-12-01.xlsx"
 PHOSPHATE = RUNS / "fernbrook_phosphate_2026-12-06.tsv"
 FIRST_CELL = "'fernbrook_fluoride_2026-11-30.csv'!D9"
+LOCAL = "http://127.0.0.1:8750"
 
 
 def token_of(html: str) -> str:
@@ -45,7 +46,8 @@ def archive(tmp_path: Path) -> Path:
 
 @pytest.fixture
 def client(archive: Path) -> TestClient:
-    with TestClient(create_app(archive=archive), base_url="http://127.0.0.1:8750") as c:
+    with TestClient(create_app(archive=archive), base_url=LOCAL,
+                    client=("127.0.0.1", 50000)) as c:
         c.form_token = token_of(c.get("/").text)
         yield c
 
@@ -196,8 +198,9 @@ def test_put_back_of_a_point_not_excluded_here(client):
 def test_unknown_run_and_unknown_page(client):
     r = client.get("/run/nope")
     assert r.status_code == 404
-    assert error_of(r.text) == ("This run is no longer open (the server was restarted, or many "
-                                "runs were opened since); upload the file again.")
+    assert error_of(r.text) == ("This run is not open in this browser (it was closed, the server "
+                                "was restarted, or many runs were opened since); upload the "
+                                "file again.")
     r = client.get("/no/such/page")
     assert r.status_code == 404 and error_of(r.text) == "There is no such page."
     r = client.put("/")
@@ -254,7 +257,7 @@ def test_report_templates_are_offered_by_name_from_the_folder(tmp_path):
     folder.mkdir()
     (folder / "fernbrook.toml").write_text(
         '[lab]\nname = "Fernbrook Water Laboratory (fictional)"\n', encoding="utf-8")
-    with TestClient(create_app(templates=folder)) as c:
+    with TestClient(create_app(templates=folder), base_url=LOCAL) as c:
         c.form_token = token_of(c.get("/").text)
         run_id = upload(c)
         page = c.get(f"/run/{run_id}/issue").text
@@ -265,7 +268,7 @@ def test_report_templates_are_offered_by_name_from_the_folder(tmp_path):
 
 
 def test_without_an_archive_filing_and_archive_pages_say_how_to_open_one():
-    with TestClient(create_app()) as c:
+    with TestClient(create_app(), base_url=LOCAL) as c:
         c.form_token = token_of(c.get("/").text)
         message = "No archive is open: start the server with calib serve --archive DB."
         for url in ("/archive", "/archive/trend", "/archive/chain", "/archive/record/CR-1"):
@@ -465,7 +468,7 @@ def test_a_post_from_another_site_is_refused(client):
 
 
 def test_uploads_above_the_limit_are_refused(tmp_path):
-    with TestClient(create_app(max_upload=1000)) as c:
+    with TestClient(create_app(max_upload=1000), base_url=LOCAL) as c:
         c.form_token = token_of(c.get("/").text)
         r = post(c, "/check", {}, {"run": ("big.csv", b"x" * 5000)})
     assert r.status_code == 413
@@ -473,7 +476,7 @@ def test_uploads_above_the_limit_are_refused(tmp_path):
 
 
 def test_access_token_is_needed_beyond_loopback():
-    with TestClient(create_app(access_token="s3cret")) as c:
+    with TestClient(create_app(access_token="s3cret"), base_url=LOCAL) as c:
         r = c.get("/")
         assert r.status_code == 403
         assert error_of(r.text) == ("This page needs the access token printed when calib "
@@ -494,7 +497,7 @@ def test_internal_errors_show_a_sentence_and_no_traceback(client, monkeypatch):
         raise ZeroDivisionError("float division by zero")
 
     monkeypatch.setattr(calib.workflow, "check_file", broken)
-    with TestClient(client.app, raise_server_exceptions=False) as c:
+    with TestClient(client.app, raise_server_exceptions=False, base_url=LOCAL) as c:
         token = token_of(c.get("/").text)
         r = c.post("/check", data={CSRF_FIELD: token},
                    files={"run": ("run.csv", b"a")})
@@ -543,7 +546,7 @@ def test_serve_command_prints_the_url_and_needs_a_token_beyond_loopback(monkeypa
     out = capsys.readouterr().out
     assert "calib: serving on http://127.0.0.1:8799/\n" in out
     assert calls[-1][1]["host"] == "127.0.0.1" and calls[-1][0].state.access_token is None
-    assert main(["serve", "--host", "0.0.0.0"]) == 0
+    assert main(["serve", "--host", "0.0.0.0", "--insecure-http"]) == 0
     out = capsys.readouterr().out
     token = calls[-1][0].state.access_token
     assert token and f"http://0.0.0.0:8750/?token={token}" in out
@@ -551,3 +554,45 @@ def test_serve_command_prints_the_url_and_needs_a_token_beyond_loopback(monkeypa
     assert "--port must be from 1 to 65535, got 0" in capsys.readouterr().err
     assert main(["serve", "--templates", "no-such-folder"]) == 3
     assert "--templates no-such-folder is not a folder" in capsys.readouterr().err
+
+
+def test_the_issue_page_says_which_letterhead_the_record_gets(client, tmp_path):
+    run_id = upload(client)
+    page = client.get(f"/run/{run_id}/issue").text
+    assert ("Letterhead unless another template is chosen: none set up, so the record says "
+            "“Laboratory not configured”") in page
+    from calib.labsettings import write_settings
+
+    lab = tmp_path / "kestrel.toml"
+    lab.write_text('[lab]\nname = "Kestrel Bioanalytical"\n', encoding="utf-8")
+    write_settings(lab)
+    page = client.get(f"/run/{run_id}/issue").text
+    assert "the lab&#39;s, kestrel.toml (Kestrel Bioanalytical)" in page
+    post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor"})
+    pdf = client.get(f"/run/{run_id}/record.pdf").content
+    import io
+
+    from pypdf import PdfReader
+
+    assert PdfReader(io.BytesIO(pdf)).metadata["/Author"] == "Kestrel Bioanalytical"
+
+
+def test_a_full_disk_while_filing_is_one_sentence(client, monkeypatch):
+    import errno
+    import os
+
+    import calib.service
+
+    def full(*args, **kwargs):
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), "records.sqlite")
+
+    monkeypatch.setattr(calib.service, "file", full)
+    run_id = upload(client)
+    with TestClient(client.app, raise_server_exceptions=False, base_url=LOCAL) as c:
+        c.cookies = client.cookies
+        r = c.post(f"/run/{run_id}/issue", data={CSRF_FIELD: client.form_token,
+                                                 "prepared_by": "R. Okafor",
+                                                 "file_in_archive": "yes"})
+    assert r.status_code == 507
+    assert error_of(r.text) == ("Cannot write records.sqlite: the disk is full (No space left "
+                                "on device); nothing was written.")

@@ -1,0 +1,466 @@
+"""What calib does, as library calls that return outcomes: the one path for CLI and web.
+
+The command line and the web page only translate arguments or forms into these
+calls and their outcomes into text, pages and exit codes; every assembly of a
+result (which template, which files, what goes into the archive, in what
+order) happens here, so both front doors issue the same records.
+
+- :func:`check`: read a run file and judge its curves (nothing written);
+- :func:`describe_import`: what the importer recognised in a run file;
+- :func:`issue`: build the record, render its PDF, write the chosen files and
+  optionally file it in the archive: all of it, or nothing;
+- :func:`export`: write the results workbook / CSV of a check, without a record;
+- :func:`file`: append an issued record to the archive;
+- :func:`quantify`: samples against a checked curve; optional workbook and PDF;
+- :func:`trend`: control charts of an analyte from the archive; optional PDF;
+- :func:`sign`, :func:`verify`: thin delegations to :mod:`calib.record` that
+  find the template the record names (:func:`record_template`).
+
+Files are written with :func:`calib.output.write_all`: each to a temporary
+name, renamed only when every file is complete and the archive has accepted
+the record, so a failure anywhere (an overflow while rendering, a full disk)
+leaves no CSV, workbook, PDF or JSON behind.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from datetime import datetime
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from calib.output import Output, write_all
+
+if TYPE_CHECKING:
+    from calib.checks.evaluate import Progress, RunAssessment
+    from calib.checks.exclusions import Exclusion
+    from calib.checks.narrowing import WorkingRange
+    from calib.checks.profile import Profile
+    from calib.io import ImportMap
+    from calib.record import Record
+    from calib.report.template import ReportTemplate
+
+__all__ = [
+    "CheckOutcome", "IssueOutcome", "QuantifyOutcome", "SignOutcome", "TrendOutcome", "check",
+    "describe_import", "export", "file", "issue", "quantify", "record_template", "sign", "trend",
+    "verify",
+]
+
+
+@dataclass(frozen=True)
+class CheckOutcome:
+    """A judged run: the assessment and its ``calib.check/1`` document.
+
+    Attributes
+    ----------
+    assessment : RunAssessment
+        Every curve with its fit and checks.
+    document : dict
+        The ``calib.check/1`` document of the assessment.
+    """
+
+    assessment: RunAssessment
+    document: dict[str, Any]
+
+    @property
+    def verdict(self) -> str:
+        """``accepted``, ``needs-review`` or ``rejected`` (the run's verdict)."""
+        return str(self.document["verdict"])
+
+    @property
+    def accepted(self) -> bool:
+        """Whether every curve was accepted."""
+        return self.verdict == "accepted"
+
+
+@dataclass(frozen=True)
+class IssueOutcome:
+    """An issued record: its data, PDF and template, and where it went.
+
+    Attributes
+    ----------
+    record : Record
+        The record (its ``template`` key names the template: file name and SHA-256).
+    pdf : bytes
+        The rendered PDF, the record JSON attached inside.
+    template : ReportTemplate
+        The template the pages were laid out with.
+    written : tuple of Path
+        Files written (record PDF, record JSON, exports), in the order asked.
+    filed : ArchiveEntry or None
+        The archive entry, when the record was filed.
+    archive : str or None
+        The archive filed in.
+    """
+
+    record: Record
+    pdf: bytes
+    template: ReportTemplate
+    written: tuple[Path, ...] = ()
+    filed: Any = None
+    archive: str | None = None
+
+
+@dataclass(frozen=True)
+class QuantifyOutcome:
+    """A quantified batch: the report, its ``calib.quantify/1`` document, the files written."""
+
+    report: Any
+    document: dict[str, Any]
+    written: tuple[Path, ...] = ()
+    workbook: bytes | None = None
+    """The results workbook's bytes, when asked for (``workbook=True`` or ``xlsx``)."""
+
+    @property
+    def accepted(self) -> bool:
+        """Whether every curve was accepted and the QCs pass."""
+        return self.document.get("verdict") == "accepted"
+
+
+@dataclass(frozen=True)
+class TrendOutcome:
+    """An analyte's control charts from the archive, and the PDF written (if any)."""
+
+    trend: Any
+    archive: str
+    head: tuple[int, str] | None
+    written: tuple[Path, ...] = ()
+
+    @property
+    def flagged(self) -> bool:
+        """Whether a run rule fired."""
+        return bool(self.trend.flagged)
+
+
+@dataclass(frozen=True)
+class SignOutcome:
+    """A new signed version and the archive entries filed for it."""
+
+    signed: Any
+    entries: tuple[Any, ...] = field(default=())
+
+    @property
+    def record(self) -> Record:
+        """The signed record."""
+        return self.signed.record
+
+
+# ----------------------------------------------------------------------------- check
+
+def check(
+    path: str | os.PathLike[str],
+    *,
+    sheet: str | int | None = None,
+    profile: str | os.PathLike[str] | Profile = "default",
+    model: str | None = None,
+    weighting: str | None = None,
+    confidence: float | None = None,
+    map: ImportMap | str | os.PathLike[str] | None = None,
+    exclusions: Sequence[Exclusion] = (),
+    ranges: Sequence[WorkingRange] = (),
+    archive: str | os.PathLike[str] | None = None,
+    progress: Progress | None = None,
+) -> CheckOutcome:
+    """Read a run file and judge every curve in it; nothing is written.
+
+    Parameters are those of :func:`calib.workflow.check_file`.
+
+    Raises
+    ------
+    InputError, ProfileError
+        When the run file or profile cannot be used.
+    """
+    from calib.record import check_document
+    from calib.workflow import check_file
+
+    assessment = check_file(path, sheet=sheet, profile=profile, model=model,
+                            weighting=weighting, confidence=confidence, map=map,
+                            exclusions=exclusions, ranges=ranges, archive=archive,
+                            progress=progress)
+    return CheckOutcome(assessment, check_document(assessment))
+
+
+def describe_import(path: str | os.PathLike[str], *, sheet: str | int | None = None,
+                    map: ImportMap | str | os.PathLike[str] | None = None) -> str:
+    """What the importer recognised in a run file (sheet, layout, columns, units...), as text."""
+    from calib.io import describe_import as describe
+    from calib.io import read_run
+
+    return describe(read_run(path, sheet=sheet, map=map))
+
+
+# ----------------------------------------------------------------------------- issue
+
+def issue(
+    outcome: CheckOutcome | RunAssessment,
+    *,
+    prepared_by: str | None = None,
+    template: Any = None,
+    created_at: datetime | None = None,
+    pdf: str | os.PathLike[str] | None = None,
+    record_json: str | os.PathLike[str] | None = None,
+    xlsx: str | os.PathLike[str] | None = None,
+    csv: str | os.PathLike[str] | None = None,
+    archive: str | os.PathLike[str] | None = None,
+    replace: bool = False,
+) -> IssueOutcome:
+    """Build the record, render its PDF, then write the files and file it: all, or nothing.
+
+    Parameters
+    ----------
+    outcome : CheckOutcome or RunAssessment
+        The judged run.
+    prepared_by : str, optional
+        Printed name of the analyst issuing the record.
+    template : path or ReportTemplate, optional
+        The report template; default: the lab's (``calib lab init``), else the
+        bundled one, which says "Laboratory not configured".
+    created_at : datetime, optional
+        Issue time (UTC); now when omitted.
+    pdf, record_json : path, optional
+        Where to write the record PDF and the record JSON (never replaced unless
+        ``replace``).
+    xlsx, csv : path, optional
+        Where to write the results workbook and CSV (replaced when they exist).
+    archive : path, optional
+        Archive to file the issued record in.
+    replace : bool
+        Replace an existing record PDF or JSON.
+
+    Raises
+    ------
+    FileExistsError
+        When ``pdf`` or ``record_json`` exists and ``replace`` is False.
+    TemplateError
+        When the template cannot be used.
+    OSError
+        When a file cannot be written (a full disk, ENOSPC); nothing is left behind.
+    """
+    from calib.report.template import resolve_template
+    from calib.workflow import build_issued_record, render_record
+
+    check_outcome = _as_outcome(outcome)
+    chosen = resolve_template(template)
+    record = build_issued_record(check_outcome.assessment, prepared_by=prepared_by,
+                                 created_at=created_at, template=chosen)
+    rendered = render_record(record, chosen)
+    outputs = [Output(Path(p), data, replace) for p, data in
+               ((pdf, rendered), (record_json, record.canonical)) if p is not None]
+    outputs += _export_outputs(check_outcome.document, xlsx=xlsx, csv=csv)
+    filed: list[Any] = []
+
+    def file_it() -> None:
+        if archive is not None:
+            filed.append(file(archive, record, rendered))
+
+    written = write_all(outputs, before_commit=file_it)
+    return IssueOutcome(record, rendered, chosen, tuple(written), filed[0] if filed else None,
+                        os.fspath(archive) if archive is not None else None)
+
+
+def export(outcome: CheckOutcome, *, xlsx: str | os.PathLike[str] | None = None,
+           csv: str | os.PathLike[str] | None = None) -> tuple[Path, ...]:
+    """Write the results workbook and/or CSV of a check (no record): both, or neither."""
+    return tuple(write_all(_export_outputs(outcome.document, xlsx=xlsx, csv=csv)))
+
+
+def file(archive: str | os.PathLike[str], record: Record, pdf: bytes) -> Any:
+    """Append an issued record (JSON and PDF) to the archive; returns its entry."""
+    from calib.archive import Archive
+
+    with Archive(os.fspath(archive)) as store:
+        return store.append(record, pdf, kind="issued")
+
+
+def _as_outcome(outcome: CheckOutcome | RunAssessment) -> CheckOutcome:
+    if isinstance(outcome, CheckOutcome):
+        return outcome
+    from calib.record import check_document
+
+    return CheckOutcome(outcome, check_document(outcome))
+
+
+def _export_outputs(document: dict[str, Any], *, xlsx: Any, csv: Any) -> list[Output]:
+    outputs = []
+    if xlsx is not None:
+        from calib.export import results_xlsx
+
+        outputs.append(Output(Path(xlsx), results_xlsx(document)))
+    if csv is not None:
+        from calib.export import results_csv
+
+        outputs.append(Output(Path(csv), results_csv(document)))
+    return outputs
+
+
+# ----------------------------------------------------------------------------- quantify
+
+def quantify(
+    curve: str | os.PathLike[str],
+    samples: str | os.PathLike[str] | None = None,
+    *,
+    template: Any = None,
+    xlsx: str | os.PathLike[str] | None = None,
+    pdf: str | os.PathLike[str] | None = None,
+    workbook: bool = False,
+    **options: Any,
+) -> QuantifyOutcome:
+    """Quantify samples against a checked curve; write the workbook and PDF (both, or neither).
+
+    ``options`` are those of :func:`calib.quantify.workflow.quantify_files`
+    (sheet, samples_sheet, profile, model, weighting, confidence, force...).
+    The PDF is laid out with ``template`` (default: the lab's, see :func:`issue`).
+    With ``workbook`` the results workbook is returned as bytes (for a download)
+    even when no ``xlsx`` file is written.
+    """
+    from calib.quantify.document import quantify_document
+    from calib.quantify.workflow import quantify_files
+
+    report = quantify_files(curve, samples, **options)
+    document = quantify_document(report)
+    outputs = []
+    book = None
+    if xlsx is not None or workbook:
+        from calib.report.quantify_xlsx import write_quantify_xlsx
+
+        book = write_quantify_xlsx(document)
+    if xlsx is not None:
+        outputs.append(Output(Path(xlsx), book))
+    if pdf is not None:
+        from calib.report.quantify_pdf import write_quantify_pdf
+        from calib.report.template import resolve_template
+
+        outputs.append(Output(Path(pdf), write_quantify_pdf(
+            document, template=resolve_template(template))))
+    return QuantifyOutcome(report, document, tuple(write_all(outputs)), book)
+
+
+# ----------------------------------------------------------------------------- trend
+
+def trend(
+    archive: str | os.PathLike[str],
+    analyte: str,
+    *,
+    baseline: int = 10,
+    instrument: str | None = None,
+    pdf: str | os.PathLike[str] | None = None,
+    template: Any = None,
+) -> TrendOutcome:
+    """Control charts of an analyte's accepted curves; optionally their PDF.
+
+    Raises
+    ------
+    ArchiveError
+        When the archive cannot be read, holds no curve of ``analyte``, or too
+        few accepted curves to chart (the message says how many).
+    """
+    from calib.archive import Archive, ArchiveError
+
+    path = os.fspath(archive)
+    with Archive(path, create=False) as store:
+        found = store.trend(analyte, baseline=baseline, instrument=instrument)
+        head = store.head()
+        known = store.analytes()
+    if not (found.points or found.left_out):
+        raise ArchiveError(f"no curve of {analyte!r} in {path}; analytes archived: "
+                           + (", ".join(known) or "none"))
+    if not found.evaluated:
+        raise ArchiveError(f"{found.analyte} in {path}: {_not_evaluated(found)}")
+    written: list[Path] = []
+    if pdf is not None:
+        from calib.report.template import resolve_template
+        from calib.report.trend_pdf import write_trend_pdf
+
+        chosen = resolve_template(template)
+        source = f"archive {Path(path).name}" + (
+            f" up to seq {head[0]} (entry hash {head[1][:16]})" if head else "")
+        written = write_all([Output(Path(pdf), write_trend_pdf(
+            found, source=source, lab_name=chosen.lab.name, page_size=chosen.page_size))])
+    return TrendOutcome(found, path, head, tuple(written))
+
+
+MIN_BASELINE = 3
+"""Fewest accepted curves a control chart is drawn from."""
+
+
+def _not_evaluated(found: Any) -> str:
+    n = len(found.points)
+    if n < MIN_BASELINE:
+        return (f"{n} accepted curve{'s' if n != 1 else ''} ({len(found.left_out)} not "
+                f"accepted); a control chart needs at least {MIN_BASELINE}")
+    return "; ".join(f"{c.quantity}: {c.reason}" for c in found.charts)
+
+
+# ----------------------------------------------------------------------------- sign, verify
+
+def record_template(path: str | os.PathLike[str]) -> ReportTemplate | None:
+    """The template a record file names (None when it names none or cannot be read here).
+
+    Verification reports an unreadable file itself, so this never raises for one.
+    """
+    from calib.errors import CalibError
+    from calib.record.verify import read_record_file
+    from calib.report.template import template_for_record
+
+    try:
+        data = read_record_file(path).attachment
+        if data is None:
+            return None
+        import json
+
+        body = json.loads(data)
+        if not isinstance(body, dict) or "template" not in body:
+            return None
+        return template_for_record(body)
+    except (CalibError, ValueError):
+        return None
+
+
+def sign(path: str | os.PathLike[str], *, role: str, name: str, meaning: str | None = None,
+         key: Any = None, template: Any = None, archive: str | os.PathLike[str] | None = None,
+         signed_at: datetime | None = None) -> SignOutcome:
+    """Sign a record file (delegates to :func:`calib.record.signoff.sign_file`); file it.
+
+    The template is the one the record names unless ``template`` is given.
+    Nothing is written to disk here: the caller writes ``outcome.signed.pdf``.
+    """
+    from calib.record.signoff import file_versions, sign_file
+    from calib.report.template import load_template
+
+    chosen = (load_template(template) if isinstance(template, (str, os.PathLike))
+              else template or record_template(path))
+    signed = sign_file(path, role=role, name=name, meaning=meaning, key=key, template=chosen,
+                       signed_at=signed_at)
+    entries: list[Any] = []
+    if archive is not None:
+        from calib.archive import Archive
+
+        with Archive(os.fspath(archive)) as store:
+            entries = file_versions(store, signed)
+    return SignOutcome(signed, tuple(entries))
+
+
+def verify(path: str | os.PathLike[str], *, keyring: Any = None,
+           archive: str | os.PathLike[str] | None = None, template: Any = None) -> Any:
+    """Verify a record file (delegates to :func:`calib.record.verify.verify_file`).
+
+    ``keyring`` is a :class:`~calib.record.keys.Keyring` or a folder of public
+    keys; ``archive`` a path (never created).  The template is the one the
+    record names unless ``template`` is given.
+    """
+    from calib.record.keys import load_keyring
+    from calib.record.verify import verify_file
+    from calib.report.template import load_template
+
+    if isinstance(keyring, (str, os.PathLike)):
+        keyring = load_keyring(keyring)
+    chosen = (load_template(template) if isinstance(template, (str, os.PathLike))
+              else template or record_template(path))
+    if archive is None:
+        return verify_file(path, keyring=keyring, template=chosen)
+    from calib.archive import Archive
+
+    with Archive(os.fspath(archive), create=False) as store:
+        return verify_file(path, keyring=keyring, archive=store, template=chosen)

@@ -226,7 +226,8 @@ def establish_baseline(curves: Sequence[Any], *, analyte: str, count: int,
     BaselineError
         Too few curves; an exclusion names a curve not chosen; the kept curves
         mix models, weightings, instruments or units; or a kept curve lies
-        beyond 3s of the others on any chart (it must be excluded with a reason).
+        too far from the others on any chart (the screening of
+        :func:`calib.archive.control.screened_limits`; it must be excluded with a reason).
     """
     exclude = {k.strip().upper(): v for k, v in (exclude or {}).items()}
     if not reviewed_by.strip():

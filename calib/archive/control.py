@@ -14,10 +14,16 @@ Screening the baseline (Phase I)
     One bad value inside a short baseline widens its own limits so much that
     it can never lie beyond them: with n values and the sample SD, no value
     is more than (n − 1)/√n SDs from their mean (Samuelson's inequality), which
-    is under 3 for n ≤ 10.  So, unless limits are given, each baseline value
-    is judged against the mean and SD of the *other* baseline values
-    (leave-one-out); the worst one beyond 3s of the others is set aside and the
-    screening repeats, setting aside at most a third of the baseline.  The
+    is under 3 for n ≤ 10.  So, when asked to screen, each baseline value is
+    judged against the mean and SD of the *other* baseline values
+    (leave-one-out): its distance in their SDs, divided by √(1 + 1/m) for m
+    others, follows Student's t with m − 1 degrees of freedom for an
+    in-control normal series, and the largest one is compared with the
+    Bonferroni critical value at 5 % over the n baseline values (t at
+    1 − 0.05/(2n)); this is Grubbs' outlier test written the leave-one-out way
+    (from memory), so an in-control baseline loses a value in at most about 5 %
+    of charts.  The worst value beyond that (and beyond 3s) is set aside and
+    the screening repeats, setting aside at most a third of the baseline.  The
     limits come from the values kept; the values set aside stay on the chart
     and are judged by the rules like any other.
 Rules
@@ -53,6 +59,8 @@ import statistics
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from scipy import stats
+
 __all__ = [
     "DEFAULT_BASELINE",
     "MIN_BASELINE",
@@ -70,6 +78,8 @@ __all__ = [
 
 DEFAULT_BASELINE = 10
 MIN_BASELINE = 3
+#: Family false-alarm rate of the baseline screening (over the baseline's values).
+SCREEN_ALPHA = 0.05
 
 #: Rule id → what it means, in the order they are checked.
 RULES: dict[str, str] = {
@@ -161,10 +171,13 @@ class SetAside:
         0-based index of the value in the series.
     z : float
         Its distance from the mean of the other kept baseline values, in their SDs.
+    critical : float
+        The distance beyond which a value is set aside (in the same SDs).
     """
 
     index: int
     z: float
+    critical: float = 3.0
 
     @property
     def reason(self) -> str:
@@ -172,10 +185,12 @@ class SetAside:
 
         Examples
         --------
-        >>> SetAside(4, -7.25).reason
-        'beyond 3s of the other baseline curves (z = -7.2)'
+        >>> SetAside(4, -7.25, 5.11).reason
+        '7.2 SDs below the other baseline curves (set aside beyond 5.11)'
         """
-        return f"beyond 3s of the other baseline curves (z = {self.z:.1f})"
+        side = "above" if self.z > 0 else "below"
+        return (f"{abs(self.z):.1f} SDs {side} the other baseline curves "
+                f"(set aside beyond {self.critical:.2f})")
 
 
 @dataclass(frozen=True)
@@ -425,10 +440,10 @@ def screened_limits(values: Sequence[float], *, baseline: int | None = DEFAULT_B
 
     Notes
     -----
-    Repeatedly: for each kept value xᵢ, zᵢ = (xᵢ − x̄₋ᵢ)/s₋ᵢ with x̄₋ᵢ and s₋ᵢ
-    the mean and SD of the other kept values; the value with the largest
-    |zᵢ| is set aside when |zᵢ| > 3, while at least 3 values and two thirds
-    of the baseline remain.
+    Repeatedly, over the n kept values: for each xᵢ, zᵢ = (xᵢ − x̄₋ᵢ)/s₋ᵢ with
+    x̄₋ᵢ and s₋ᵢ the mean and SD of the m = n − 1 others; the value with the
+    largest |zᵢ| is set aside when |zᵢ| > max(3, t₁₋α/(2n); m−1 · √(1 + 1/m)),
+    α = 0.05, while more than 3 values and two thirds of the baseline remain.
 
     Examples
     --------
@@ -446,6 +461,9 @@ def screened_limits(values: Sequence[float], *, baseline: int | None = DEFAULT_B
     floor = max(MIN_BASELINE, math.ceil(2 * len(kept) / 3))
     out: list[SetAside] = []
     while len(kept) > floor:
+        n = len(kept)
+        critical = max(3.0, float(stats.t.ppf(1 - SCREEN_ALPHA / (2 * n), n - 2))
+                       * math.sqrt(1 + 1 / (n - 1)))
         worst: SetAside | None = None
         for i in kept:
             others = [values[j] for j in kept if j != i]
@@ -453,8 +471,8 @@ def screened_limits(values: Sequence[float], *, baseline: int | None = DEFAULT_B
             gap = values[i] - statistics.fmean(others)
             z = gap / sd if sd > 0 else (math.copysign(math.inf, gap) if gap else 0.0)
             if worst is None or abs(z) > abs(worst.z):
-                worst = SetAside(i, z)
-        if worst is None or abs(worst.z) <= 3:
+                worst = SetAside(i, z, critical)
+        if worst is None or abs(worst.z) <= critical:
             break
         out.append(worst)
         kept.remove(worst.index)

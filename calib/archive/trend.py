@@ -185,7 +185,7 @@ class AnalyteTrend:
             aside = sorted({self.points[o.index].record_id for c in self.charts
                             for o in c.set_aside})
             text += (", each judged against the others (no frozen baseline)"
-                     + (f"; set aside beyond 3s of the others: {', '.join(aside)}" if aside
+                     + (f"; set aside as too far from the others: {', '.join(aside)}" if aside
                         else ""))
         return text
 

@@ -111,11 +111,11 @@ def test_screened_limits_are_the_mean_and_sd_of_the_values_kept():
 
 
 def test_an_in_control_baseline_loses_a_value_in_about_5_percent_of_charts():
-    # The stated family false-alarm rate: 2000 normal baselines of 10, binomial 99.9 % band.
+    # The stated family false-alarm rate: 1000 normal baselines of 10, binomial 99.9 % band.
     rng = np.random.default_rng(13)
     hit = sum(bool(screened_limits(list(rng.normal(0, 1, 10)), baseline=10)[1])
-              for _ in range(2000))
-    low, high = stats.binom.ppf([0.0005, 0.9995], 2000, 0.05)
+              for _ in range(1000))
+    low, high = stats.binom.ppf([0.0005, 0.9995], 1000, 0.05)
     assert low <= hit <= high
 
 

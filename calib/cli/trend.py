@@ -248,7 +248,8 @@ def trend_text(trend: AnalyteTrend, *, path: str) -> str:
     span = f"{pts[0].run_date} to {pts[-1].run_date}"
     lines = [
         f"{trend.analyte} in {path}: {len(pts)} accepted curves, {span}{left}",
-        f"{trend.limits_text()}: mean ± 2s warning, ± 3s action",
+        f"{trend.limits_text()}.",
+        "Warning limits mean ± 2s, action limits mean ± 3s.",
         "",
         f"  {'quantity':<14}" + "".join(f"{h:>11}" for h in ("mean", "SD", "−3s", "−2s", "+2s",
                                                              "+3s")) + "  flagged",

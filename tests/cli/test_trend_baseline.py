@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 
 import pytest
+from pypdf import PdfReader
 
 from calib.archive import Archive
 from calib.cli.main import main
@@ -101,6 +102,15 @@ def test_freeze_then_monitor(db, capsys, tmp_path):
                        "--baseline", "5")
     assert ("Note: the frozen baseline Cu 324.754@ICP-OES-2.v1.json was not used: --baseline 5 "
             "asked for limits from the first 5 curves.") in out
+    # The PDF: run dates along the x axis, the frozen baseline named with its reviewer.
+    pdf = tmp_path / "cu.pdf"
+    cli(capsys, "trend", ANALYTE, "--archive", db, "--instrument", INSTRUMENT, "--pdf", pdf)
+    text = " ".join(" ".join(page.extract_text() for page in PdfReader(pdf).pages).split())
+    assert "Limits from the frozen baseline Cu 324.754@ICP-OES-2.v1.json (SHA-256 " in text
+    assert "Frozen baseline (Phase I) established " in text and "M. Castellanos" in text
+    assert f"Excluded: {bad} (2026-09-07): nebuliser partly blocked." in text
+    assert "Run date" in text and "2026-09-01" in text and "Frozen baseline period" in text
+    assert "excluded from the baseline: nebuliser partly blocked" in text
     # Freezing again writes version 2 and keeps version 1.
     code, out, _ = cli(capsys, *freeze, "--exclude", f"{bad}=nebuliser partly blocked")
     assert code == 1 and (folder / "Cu 324.754@ICP-OES-2.v2.json").exists() and target.exists()

@@ -58,6 +58,7 @@ from calib.report.wording import (
     as_mapping,
     coefficient_order,
     common_sheet,
+    range_sentences,
     fixed_digits,
     signature_words,
     text_or_dash,
@@ -419,25 +420,13 @@ class _Builder:
         return [KeepTogether([self.heading(self.t.titles.signoff), table])]
 
     def range_notes(self, curve: Mapping[str, Any]) -> list[Flowable]:
-        """The analyst's applied working range (with the full-range result) and calib's proposal."""
-        working = as_mapping(curve.get("working_range"))
-        words = self.t.verdicts.word
-        notes = []
-        applied = as_mapping(working.get("applied"))
-        if applied:
-            original = as_mapping(applied.get("original"))
-            notes.append(
-                f"Working range applied by the analyst: {format_compact(applied.get('low'))} to "
-                f"{format_compact(applied.get('high'))} ({text_or_dash(applied.get('reason'))}). On the full "
-                f"range the curve was: {words(original.get('verdict'))}.")
-        proposed = as_mapping(working.get("proposed"))
-        if proposed:
-            notes.append(
-                f"calib proposes the range {format_compact(proposed.get('lloq'))} to "
-                f"{format_compact(proposed.get('uloq'))} ({text_or_dash(proposed.get('reason'))}); on it "
-                f"the curve would be: {words(proposed.get('verdict'))}. Not applied: the analyst "
-                "applies a range only with --range, and the record then shows it.")
-        return [self.para(n) for n in notes]
+        """The analyst's applied working range (with the full-range result) and calib's proposal.
+
+        A range is stated once: when the analyst applied the range calib
+        proposed, the proposal is not repeated as if it were still open; when
+        the analyst applied another range, the proposal is named as such.
+        """
+        return [self.para(n) for n in range_sentences(curve, self.t.verdicts.word)]
 
     # -- whole sections ----------------------------------------------------------------------
     def analyte(self, curve: Mapping[str, Any]) -> list[Flowable]:
@@ -568,3 +557,4 @@ def build_story(
     sections = story_sections(record, record_id=record_id, digest=digest, template=template,
                               width=width)
     return [flowable for section in sections for flowable in section]
+

@@ -7,15 +7,15 @@ web page.
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
-from calib.report.formatting import MISSING, as_float
+from calib.report.formatting import MISSING, as_float, format_compact
 from calib.report.template import ReportTemplate
 
 __all__ = ["CHECK_VERDICTS", "COEFFICIENTS", "MODELS", "ROLES", "SEVERITIES", "WEIGHTINGS",
            "as_list", "as_mapping", "coefficient_order", "common_sheet", "fixed_digits",
-           "signature_words", "text_or_dash", "verdict_sentence"]
+           "range_sentences", "signature_words", "text_or_dash", "verdict_sentence"]
 
 MODELS = {
     "linear": "straight line, y = a + b·x",
@@ -142,3 +142,56 @@ def common_sheet(cells: Any) -> tuple[str, str]:
     if len(prefixes) == 1 and (sheet := prefixes.pop()):
         return f"{sheet}!", f"Cell in {sheet.strip(chr(39))}"
     return "", "Source cell"
+
+
+def _same_range(applied: Mapping[str, Any], proposed: Mapping[str, Any]) -> bool:
+    def close(a: Any, b: Any) -> bool:
+        try:
+            x, y = float(a), float(b)
+        except (TypeError, ValueError):
+            return False
+        return abs(x - y) <= 1e-9 * max(abs(x), abs(y), 1e-300)
+
+    return close(applied.get("low"), proposed.get("lloq")) and close(applied.get("high"),
+                                                                     proposed.get("uloq"))
+
+
+def range_sentences(curve: Mapping[str, Any], words: Callable[[Any], str]) -> list[str]:
+    """The working-range sentences of a curve's page, each range said once.
+
+    Examples
+    --------
+    >>> curve = {"working_range": {
+    ...     "applied": {"low": 0.05, "high": 5, "reason": "level 1 contaminated",
+    ...                 "original": {"verdict": "rejected"}},
+    ...     "proposed": {"lloq": 0.05, "uloq": 5, "reason": "lowest level fails",
+    ...                  "verdict": "accepted"}}}
+    >>> for line in range_sentences(curve, str.capitalize):
+    ...     print(line)
+    Working range applied by the analyst: 0.05 to 5 (level 1 contaminated), the range calib proposed. On the full range the curve was: Rejected.
+    """
+    working = as_mapping(curve.get("working_range"))
+    applied = as_mapping(working.get("applied"))
+    proposed = as_mapping(working.get("proposed"))
+    notes = []
+    if applied:
+        original = as_mapping(applied.get("original"))
+        same = bool(proposed) and _same_range(applied, proposed)
+        notes.append(
+            f"Working range applied by the analyst: {format_compact(applied.get('low'))} to "
+            f"{format_compact(applied.get('high'))} ({text_or_dash(applied.get('reason'))})"
+            + (", the range calib proposed" if same else "")
+            + f". On the full range the curve was: {words(original.get('verdict'))}.")
+        if proposed and not same:
+            notes.append(
+                f"calib had proposed {format_compact(proposed.get('lloq'))} to "
+                f"{format_compact(proposed.get('uloq'))} ({text_or_dash(proposed.get('reason'))}; "
+                f"on it the curve would be: {words(proposed.get('verdict'))}); the analyst "
+                "applied the range above instead.")
+    elif proposed:
+        notes.append(
+            f"calib proposes the range {format_compact(proposed.get('lloq'))} to "
+            f"{format_compact(proposed.get('uloq'))} ({text_or_dash(proposed.get('reason'))}); on it "
+            f"the curve would be: {words(proposed.get('verdict'))}. Not applied: the analyst "
+            "applies a range only with --range, and the record then shows it.")
+    return notes

@@ -1,0 +1,57 @@
+"""Record wording: a range said once, a shared exclusion reason printed once, remarks a reader needs."""
+
+from __future__ import annotations
+
+import pypdf
+import pytest
+
+from calib.checks import evaluate_run, load_profile
+from calib.checks.narrowing import parse_range
+from calib.workflow import issue_record
+from tests.checks.runs import BIO_LEVELS, curve_points, make_run, qc_points, spread
+
+
+def pdf_text(tmp_path, pdf: bytes) -> str:
+    out = tmp_path / "r.pdf"
+    out.write_bytes(pdf)
+    return " ".join(" ".join(p.extract_text().split()) for p in pypdf.PdfReader(out).pages)
+
+
+@pytest.fixture
+def run():
+    # Both LLOQ replicates read back 20.1 % off: ICH M10's ±20 % at the LLOQ (from memory)
+    # rejects the curve and calib proposes 2 to 1000 (see tests/checks/test_profiles_shipped.py).
+    return make_run(curve_points(BIO_LEVELS, deviations={1: spread(20.1)}) + qc_points())
+
+
+def check(run, *ranges):
+    return evaluate_run(run, profile=load_profile("bioanalytical"),
+                        ranges=[parse_range(r) for r in ranges])
+
+
+def test_a_range_applied_as_proposed_is_stated_once(run, tmp_path):
+    # Applying exactly the proposed range must not print the proposal again as if it were
+    # still open.
+    proposal = check(run).curves[0].proposal
+    assert (proposal.lloq, proposal.uloq) == (2, 1000)
+    assessment = check(run, "2..1000=level 1 standard prepared wrongly")
+    text = pdf_text(tmp_path, issue_record(assessment, prepared_by="A. Analyst")[1])
+    assert ("Working range applied by the analyst: 2 to 1000 (level 1 standard prepared "
+            "wrongly), the range calib proposed. On the full range the curve was: Rejected.") in text
+    assert "calib proposes" not in text and "Not applied" not in text
+    assert text.count("2 to 1000") == 1
+
+
+def test_a_range_other_than_the_proposal_names_the_proposal_as_past(run, tmp_path):
+    assessment = check(run, "5..1000=levels 1 and 2 from an old stock")
+    text = pdf_text(tmp_path, issue_record(assessment, prepared_by="A. Analyst")[1])
+    assert ("Working range applied by the analyst: 5 to 1000 (levels 1 and 2 from an old "
+            "stock). On the full range the curve was: Rejected.") in text
+    assert ("calib had proposed 2 to 1000 (") in text
+    assert "the analyst applied the range above instead." in text
+    assert "Not applied" not in text
+
+
+def test_a_proposal_without_an_applied_range_says_it_is_not_applied(run, tmp_path):
+    text = pdf_text(tmp_path, issue_record(check(run), prepared_by="A. Analyst")[1])
+    assert "calib proposes the range 2 to 1000" in text and "Not applied" in text

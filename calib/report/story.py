@@ -59,6 +59,7 @@ from calib.report.wording import (
     coefficient_order,
     common_sheet,
     range_sentences,
+    shared_reasons,
     fixed_digits,
     signature_words,
     text_or_dash,
@@ -278,10 +279,13 @@ class _Builder:
         return self.tables.grid(rows, [0.235, 0.095, 0.07, 0.115, 0.105, 0.38], right=(1, 2),
                                 bold=bold)
 
-    def standards_table(self, curve: Mapping[str, Any]) -> Flowable:
+    def standards_table(self, curve: Mapping[str, Any]) -> list[Flowable]:
+        """The standards, a long exclusion reason shared by several points given once below."""
         points = [as_mapping(p) for p in as_list(curve.get("points"))]
         if not points:
-            return self.para("The record holds no standards for this analyte.")
+            return [self.para("The record holds no standards for this analyte.")]
+        marks = shared_reasons(p.get("exclusion_reason") for p in points
+                               if not p.get("included", True))
         conc, resp = self.unit("concentration"), self.unit("response")
         prefix, cell_title = common_sheet(p.get("source_cell") for p in points)
         rows: list[list[Any]] = [[
@@ -291,6 +295,8 @@ class _Builder:
         for p in points:
             if p.get("included", True):
                 used = "Yes"
+            elif str(p.get("exclusion_reason") or "") in marks:
+                used = f"No: reason {marks[str(p.get('exclusion_reason'))]} below"
             else:
                 used = "No: " + str(p.get("exclusion_reason") or "no reason given")
             rows.append([
@@ -303,8 +309,10 @@ class _Builder:
                 format_percent(p.get("deviation_pct")),
                 used,
             ])
-        return self.tables.grid(rows, [0.12, 0.06, 0.11, 0.13, 0.13, 0.14, 0.09, 0.22],
-                                right=range(1, 7))
+        out: list[Flowable] = [self.tables.grid(
+            rows, [0.12, 0.06, 0.11, 0.13, 0.13, 0.14, 0.09, 0.22], right=range(1, 7))]
+        out += [self.para(f"Reason {mark}: {reason}", self.s.note) for reason, mark in marks.items()]
+        return out
 
     def band(self, curve: Mapping[str, Any], log_x: bool) -> CurveBand | None:
         """Fitted curve and confidence band from the stored fit details, or None."""
@@ -445,7 +453,7 @@ class _Builder:
         if t.show.checks:
             out += [*self.table_heading(t.titles.checks), self.checks_table(curve)]
         if t.show.standards:
-            out += [*self.table_heading(t.titles.standards), self.standards_table(curve)]
+            out += [*self.table_heading(t.titles.standards), *self.standards_table(curve)]
         return out + self.plots(curve) + self.cautions() + self.signoff()
 
     def summary(self) -> list[Flowable]:

@@ -7,7 +7,7 @@ web page.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from typing import Any
 
 from calib.report.formatting import MISSING, as_float, format_compact
@@ -15,7 +15,7 @@ from calib.report.template import ReportTemplate
 
 __all__ = ["CHECK_VERDICTS", "COEFFICIENTS", "MODELS", "ROLES", "SEVERITIES", "WEIGHTINGS",
            "as_list", "as_mapping", "coefficient_order", "common_sheet", "fixed_digits",
-           "range_sentences", "signature_words", "text_or_dash", "verdict_sentence"]
+           "range_sentences", "shared_reasons", "signature_words", "text_or_dash", "verdict_sentence"]
 
 MODELS = {
     "linear": "straight line, y = a + b·x",
@@ -195,3 +195,37 @@ def range_sentences(curve: Mapping[str, Any], words: Callable[[Any], str]) -> li
             f"the curve would be: {words(proposed.get('verdict'))}. Not applied: the analyst "
             "applies a range only with --range, and the record then shows it.")
     return notes
+
+
+#: A reason at least this long, shared by at least two points, is printed once below the table.
+SHARED_REASON_LENGTH = 40
+
+
+def shared_reasons(reasons: Iterable[Any]) -> dict[str, str]:
+    """Long exclusion reasons given for two or more points → a short mark (``A``, ``B``...).
+
+    The standards table then says "No: reason A below" in each row and prints
+    the reason once, instead of repeating a long sentence row after row.
+
+    Examples
+    --------
+    >>> why = "level 7 vial lost its cap overnight; evaporation suspected, see lab note 31"
+    >>> shared_reasons([why, why, "injection error", why])
+    {'level 7 vial lost its cap overnight; evaporation suspected, see lab note 31': 'A'}
+    """
+    counts: dict[str, int] = {}
+    for reason in reasons:
+        text = str(reason or "")
+        counts[text] = counts.get(text, 0) + 1
+    shared = [r for r, n in counts.items() if n >= 2 and len(r) >= SHARED_REASON_LENGTH]
+    return {r: _mark(i) for i, r in enumerate(shared)}
+
+
+def _mark(i: int) -> str:
+    """A, B, ... Z, AA, AB, ...: a mark per shared reason, however many there are."""
+    letters = ""
+    i += 1
+    while i:
+        i, rest = divmod(i - 1, 26)
+        letters = chr(ord("A") + rest) + letters
+    return letters

@@ -55,3 +55,17 @@ def test_a_range_other_than_the_proposal_names_the_proposal_as_past(run, tmp_pat
 def test_a_proposal_without_an_applied_range_says_it_is_not_applied(run, tmp_path):
     text = pdf_text(tmp_path, issue_record(check(run), prepared_by="A. Analyst")[1])
     assert "calib proposes the range 2 to 1000" in text and "Not applied" in text
+
+
+def test_a_long_reason_shared_by_several_points_is_printed_once(run, tmp_path):
+    from calib.checks.exclusions import Exclusion
+
+    why = "autosampler tray 2 warmed to 31 °C overnight (service ticket 118); vials re-prepared"
+    cells = ("Run!D14", "Run!D15", "Run!D16")
+    assessment = evaluate_run(run, profile=load_profile("bioanalytical"),
+                              exclusions=[Exclusion(c, why) for c in cells]
+                              + [Exclusion("Run!D17", "vial cracked")])
+    text = pdf_text(tmp_path, issue_record(assessment, prepared_by="A. Analyst")[1])
+    assert text.count("No: reason A below") == 3
+    assert text.count(f"Reason A: {why}") == 1
+    assert "No: vial cracked" in text  # a short or unshared reason stays in its row

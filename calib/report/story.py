@@ -58,6 +58,7 @@ from calib.report.wording import (
     as_mapping,
     coefficient_order,
     common_sheet,
+    lod_remark,
     range_sentences,
     shared_reasons,
     fixed_digits,
@@ -252,6 +253,10 @@ class _Builder:
         ])
         notes = [f"{label}: {entry['method']}." for label, entry in (("LOD", lod), ("LOQ", loq))
                  if entry.get("method")]
+        remark = lod_remark(lod.get("value"),
+                            as_mapping(curve.get("working_range")).get("lloq"), conc)
+        if remark:
+            notes.insert(0, remark)
         out: list[Flowable] = [table, Spacer(1, 4), stats]
         if notes:
             out += [Spacer(1, 2), self.para(" ".join(notes), self.s.note)]

@@ -15,7 +15,7 @@ from calib.report.template import ReportTemplate
 
 __all__ = ["CHECK_VERDICTS", "COEFFICIENTS", "MODELS", "ROLES", "SEVERITIES", "WEIGHTINGS",
            "as_list", "as_mapping", "coefficient_order", "common_sheet", "fixed_digits",
-           "range_sentences", "shared_reasons", "signature_words", "text_or_dash", "verdict_sentence"]
+           "lod_remark", "range_sentences", "shared_reasons", "signature_words", "text_or_dash", "verdict_sentence"]
 
 MODELS = {
     "linear": "straight line, y = a + b·x",
@@ -229,3 +229,27 @@ def _mark(i: int) -> str:
         i, rest = divmod(i - 1, 26)
         letters = chr(ord("A") + rest) + letters
     return letters
+
+
+def lod_remark(lod: Any, lloq: Any, unit: str = "") -> str:
+    """A remark when the curve's LOD lies above its LLOQ (the lowest standard); else empty.
+
+    An LOD above the LLOQ says the curve cannot tell its own lowest standard
+    from a blank with the stated confidence, so results near the LLOQ are not
+    what the range promises.
+
+    Examples
+    --------
+    >>> lod_remark(0.0105, 0.01, "mg/L")[:62]
+    'The LOD (0.0105 mg/L) lies above the LLOQ (0.01 mg/L), the low'
+    >>> lod_remark(0.004, 0.01)
+    ''
+    """
+    low, limit = as_float(lloq), as_float(lod)
+    if low is None or limit is None or not limit > low:
+        return ""
+    u = f" {unit}" if unit else ""
+    return (f"The LOD ({limit:.3g}{u}) lies above the LLOQ ({low:.3g}{u}), the lowest standard "
+            "in the fit: the curve cannot tell its lowest standard from a blank with the stated "
+            "confidence. Review the low end (narrow the range or re-prepare the low standards) "
+            "before reporting results near the LLOQ.")

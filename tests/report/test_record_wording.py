@@ -69,3 +69,24 @@ def test_a_long_reason_shared_by_several_points_is_printed_once(run, tmp_path):
     assert text.count("No: reason A below") == 3
     assert text.count(f"Reason A: {why}") == 1
     assert "No: vial cracked" in text  # a short or unshared reason stays in its row
+
+
+def test_an_lod_above_the_lloq_gets_a_remark_in_the_record(tmp_path):
+    # Invented Cu 324.754 run (ICP-OES-2): unweighted, the scatter of the top standards sets
+    # σ̂, and ICH Q2's LOD = 3.3·σ̂/b (from memory) lands above the 0.01 mg/L lowest standard.
+    from tests.checks.runs import curve_points as points
+
+    levels = (0.01, 0.05, 0.1, 0.5, 1.0, 5.0)
+    run = make_run(points(levels, deviations={5.0: spread(1.0, 2)}, a=120.0, b=48_000.0,
+                          analyte="Cu 324.754"))
+    assessment = evaluate_run(run, profile=load_profile("default"))
+    curve = assessment.curves[0]
+    sigma, slope = curve.fit.residual_sd, curve.fit.coefficients["slope"]
+    assert 3.3 * sigma / slope > 0.01
+    text = pdf_text(tmp_path, issue_record(assessment, prepared_by="A. Analyst")[1])
+    assert "lies above the LLOQ (0.01" in text and "the lowest standard in the fit" in text
+    # A precise curve: no remark.
+    quiet = evaluate_run(make_run(points(levels, noise=0.1, a=120.0, b=48_000.0)),
+                         profile=load_profile("default"))
+    text = pdf_text(tmp_path, issue_record(quiet, prepared_by="A. Analyst")[1])
+    assert "lies above the LLOQ" not in text

@@ -43,8 +43,8 @@ Where the limits come from:
                    aside and flagged.
 --freeze (Phase I) chooses the first N accepted curves (from --baseline-start on),
 leaves out those given with --exclude RECORD_ID=REASON, refuses while a kept curve is
-too far from the others (the same screening), and writes the next version of the baseline file (earlier
-versions are kept). --baseline N without --freeze charts against the first N curves
+too far from the others (the same screening), and writes the next version of the
+baseline file (earlier versions are kept). --baseline N without --freeze charts against the first N curves
 even when a frozen baseline exists (the output says so).
 
 Flags follow the common control-chart run rules (Western Electric rules and a trend

@@ -35,7 +35,6 @@ from calib.record.record import canonical_json
 from calib.report.embed import embed_file
 from calib.report.formatting import (
     MISSING,
-    as_float,
     format_compact,
     format_number,
     format_percent,

@@ -316,7 +316,8 @@ class _Builder:
             ])
         out: list[Flowable] = [self.tables.grid(
             rows, [0.12, 0.06, 0.11, 0.13, 0.13, 0.14, 0.09, 0.22], right=range(1, 7))]
-        out += [self.para(f"Reason {mark}: {reason}", self.s.note) for reason, mark in marks.items()]
+        out += [self.para(f"Reason {mark}: {reason}", self.s.note)
+                for reason, mark in marks.items()]
         return out
 
     def band(self, curve: Mapping[str, Any], log_x: bool) -> CurveBand | None:

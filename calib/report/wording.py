@@ -15,7 +15,8 @@ from calib.report.template import ReportTemplate
 
 __all__ = ["CHECK_VERDICTS", "COEFFICIENTS", "MODELS", "ROLES", "SEVERITIES", "WEIGHTINGS",
            "as_list", "as_mapping", "coefficient_order", "common_sheet", "fixed_digits",
-           "lod_remark", "range_sentences", "shared_reasons", "signature_words", "text_or_dash", "verdict_sentence"]
+           "lod_remark", "range_sentences", "shared_reasons", "signature_words", "text_or_dash",
+           "verdict_sentence"]
 
 MODELS = {
     "linear": "straight line, y = a + b·x",
@@ -166,9 +167,10 @@ def range_sentences(curve: Mapping[str, Any], words: Callable[[Any], str]) -> li
     ...                 "original": {"verdict": "rejected"}},
     ...     "proposed": {"lloq": 0.05, "uloq": 5, "reason": "lowest level fails",
     ...                  "verdict": "accepted"}}}
-    >>> for line in range_sentences(curve, str.capitalize):
-    ...     print(line)
-    Working range applied by the analyst: 0.05 to 5 (level 1 contaminated), the range calib proposed. On the full range the curve was: Rejected.
+    >>> import textwrap
+    >>> print(textwrap.fill(range_sentences(curve, str.capitalize)[0], 90))
+    Working range applied by the analyst: 0.05 to 5 (level 1 contaminated), the range calib
+    proposed. On the full range the curve was: Rejected.
     """
     working = as_mapping(curve.get("working_range"))
     applied = as_mapping(working.get("applied"))
@@ -191,8 +193,8 @@ def range_sentences(curve: Mapping[str, Any], words: Callable[[Any], str]) -> li
     elif proposed:
         notes.append(
             f"calib proposes the range {format_compact(proposed.get('lloq'))} to "
-            f"{format_compact(proposed.get('uloq'))} ({text_or_dash(proposed.get('reason'))}); on it "
-            f"the curve would be: {words(proposed.get('verdict'))}. Not applied: the analyst "
+            f"{format_compact(proposed.get('uloq'))} ({text_or_dash(proposed.get('reason'))}); "
+            f"on it the curve would be: {words(proposed.get('verdict'))}. Not applied: the analyst "
             "applies a range only with --range, and the record then shows it.")
     return notes
 

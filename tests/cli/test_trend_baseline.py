@@ -1,4 +1,4 @@
-"""``calib trend`` with the screened default, ``--freeze`` (Phase I) and a frozen baseline (Phase II)."""
+"""``calib trend``: the screened default, ``--freeze`` (Phase I), a frozen baseline (Phase II)."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""Record wording: a range said once, a shared exclusion reason printed once, remarks a reader needs."""
+"""Record wording: a range said once, a shared exclusion reason printed once, an LOD remark."""
 
 from __future__ import annotations
 
@@ -37,7 +37,8 @@ def test_a_range_applied_as_proposed_is_stated_once(run, tmp_path):
     assessment = check(run, "2..1000=level 1 standard prepared wrongly")
     text = pdf_text(tmp_path, issue_record(assessment, prepared_by="A. Analyst")[1])
     assert ("Working range applied by the analyst: 2 to 1000 (level 1 standard prepared "
-            "wrongly), the range calib proposed. On the full range the curve was: Rejected.") in text
+            "wrongly), the range calib proposed. On the full range the curve was: "
+            "Rejected.") in text
     assert "calib proposes" not in text and "Not applied" not in text
     assert text.count("2 to 1000") == 1
 

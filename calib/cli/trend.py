@@ -44,8 +44,8 @@ Where the limits come from:
 --freeze (Phase I) chooses the first N accepted curves (from --baseline-start on),
 leaves out those given with --exclude RECORD_ID=REASON, refuses while a kept curve is
 too far from the others (the same screening), and writes the next version of the
-baseline file (earlier versions are kept). --baseline N without --freeze charts against the first N curves
-even when a frozen baseline exists (the output says so).
+baseline file (earlier versions are kept). --baseline N without --freeze charts
+against the first N curves even when a frozen baseline exists (the output says so).
 
 Flags follow the common control-chart run rules (Western Electric rules and a trend
 rule; common practice): a point beyond 3s; 2 of 3 beyond 2s, or 4 of 5 beyond 1s, on

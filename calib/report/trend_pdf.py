@@ -274,6 +274,7 @@ def _para(text: str, style: ParagraphStyle) -> Paragraph:
 
 
 def _limits_table(trend: AnalyteTrend, tables: TableMaker) -> Flowable:
+    # Flags not counting the curves the frozen baseline's reviewer excluded (already reviewed).
     rows = [["Quantity", "Mean", "SD", "−3s", "−2s", "+2s", "+3s", "Flags"]]
     spans = []
     for chart in trend.charts:
@@ -287,7 +288,7 @@ def _limits_table(trend: AnalyteTrend, tables: TableMaker) -> Flowable:
         low2, high2 = lim.warning
         rows.append([QUANTITIES[chart.quantity],
                      *(format_number(v) for v in (lim.mean, lim.sd, low3, low2, high2, high3)),
-                     str(len(chart.flagged_points()))])
+                     str(len(set(chart.flagged_points()) - trend.reviewed))])
     return tables.grid(rows, [0.16, 0.13, 0.11, 0.12, 0.12, 0.12, 0.12, 0.12],
                        right=range(1, 8), spans=spans)
 

@@ -125,6 +125,7 @@ class _DateAxis:
         self.hi = max(days) + 0.5
         self.start, self.length, self.log = start, length, False
         self.ticks: tuple[float, ...] = ()  # drawn by :meth:`draw`, with date labels
+        register_fonts()
         width_of_label = stringWidth("2026-12-31", REGULAR, LABEL_SIZE) + 8
         room = max(1, int(length // width_of_label))
         span = self.hi - self.lo

@@ -321,3 +321,30 @@ def test_synthetic_curves_without_an_archive():
     trend = analyte_trend([curve(i, s) for i, s in enumerate(slopes)], analyte="Cu 324.754")
     assert trend.chart("slope").flagged_points() == (6,)
     assert [p.run_date for p in trend.points][6] == "2026-11-07"
+
+
+def test_the_chart_puts_runs_at_their_dates():
+    # A calendar axis: x is linear in the day number (a 5-day gap is five times a 1-day gap),
+    # runs of one day share it evenly; the tick labels are dates.
+    import datetime as dt
+
+    from reportlab.graphics.shapes import String
+
+    from calib.report.trend_pdf import _DateAxis, control_chart_drawing
+
+    dates = ["2026-11-02", "2026-11-03", "2026-11-03", "2026-11-08", "2026-11-09"]
+    axis = _DateAxis(dates, 46, 400)
+    x = [axis(p) for p in axis.positions]
+    day = [dt.date.fromisoformat(d).toordinal() for d in dates]
+    per_day = (axis(day[0] + 1) - axis(day[0]))
+    assert axis(day[3]) - axis(day[1]) == pytest.approx(5 * per_day, rel=1e-9)
+    assert x[1] < x[2] and x[2] - x[1] == pytest.approx(per_day / 3, rel=1e-9)
+    assert x[0] == pytest.approx(axis(day[0]), rel=1e-9)  # alone on its day: mid-day
+    chart = control_chart([1.0, 1.01, 0.99, 1.0, 0.8], quantity="slope", baseline=4)
+    drawing = control_chart_drawing(chart, width=480, height=180, y_title="Slope b", baseline=4,
+                                    dates=dates)
+    labels = {s.text for s in drawing.getContents() if isinstance(s, String)}
+    assert "2026-11-02" in labels and "Run date" in labels
+    with pytest.raises(ValueError, match="dates: one per point needed"):
+        control_chart_drawing(chart, width=480, height=180, y_title="S", baseline=4,
+                              dates=dates[:3])

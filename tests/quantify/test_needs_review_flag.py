@@ -38,3 +38,19 @@ def test_the_flag_joins_the_range_flags():
 def test_a_refused_curve_is_not_also_flagged_for_review():
     refused = result("needs-review", refused="the curve was rejected at review")
     assert refused.flags == (Flag.CURVE_REJECTED.value,)
+
+
+def test_the_terminal_text_remarks_an_lod_above_the_lloq(tmp_path):
+    from datetime import UTC, datetime
+
+    from calib.quantify.document import quantify_document
+    from calib.quantify.text import batch_text
+    from calib.quantify.workflow import quantify_files
+    from tests.quantify.helpers import write_run_csv
+
+    doc = quantify_document(quantify_files(write_run_csv(tmp_path / "run.csv"),
+                                           created_at=datetime(2026, 12, 1, tzinfo=UTC)))
+    assert "lies above the LLOQ" not in batch_text(doc)  # LOD below the LLOQ: no remark
+    doc["curves"][0].update(lod=0.6, lloq=0.5)
+    text = batch_text(doc)
+    assert "Remark: the LOD (0.6" in text and "lies above the LLOQ (0.5" in text

@@ -8,6 +8,14 @@ rules of :mod:`calib.archive.control`; :mod:`calib.archive.figures` derives
 what the archive indexes from the record JSON.
 """
 
+from calib.archive.baseline import (
+    BASELINE_SCHEMA,
+    BaselineCurve,
+    BaselineError,
+    FrozenBaseline,
+    establish_baseline,
+    load_baseline,
+)
 from calib.archive.chain import (
     GENESIS_HASH,
     KINDS,
@@ -23,9 +31,11 @@ from calib.archive.control import (
     ControlChart,
     ControlLimits,
     RuleHit,
+    SetAside,
     control_chart,
     control_limits,
     run_rules,
+    screened_limits,
 )
 from calib.archive.figures import CurveFigures, RecordFacts, record_facts
 from calib.archive.store import Archive, ArchiveError
@@ -39,6 +49,7 @@ from calib.archive.trend import (
 )
 
 __all__ = [
+    "BASELINE_SCHEMA",
     "DEFAULT_BASELINE",
     "GENESIS_HASH",
     "KINDS",
@@ -51,18 +62,25 @@ __all__ = [
     "ArchiveEntry",
     "ArchiveError",
     "ArchivedCurve",
+    "BaselineCurve",
+    "BaselineError",
     "ChainProblem",
     "ChainReport",
     "ControlChart",
     "ControlLimits",
     "CurveFigures",
+    "FrozenBaseline",
     "RecordFacts",
     "RuleHit",
+    "SetAside",
     "analyte_trend",
     "compute_entry_hash",
     "control_chart",
     "control_limits",
+    "establish_baseline",
+    "load_baseline",
     "record_facts",
     "run_rules",
+    "screened_limits",
     "trend_document",
 ]

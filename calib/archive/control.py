@@ -10,6 +10,22 @@ Limits
     x̄ ± 2s, action limits x̄ ± 3s.  A baseline should come from a period the
     lab knows was in control (after installation, service or a new lot of
     standards); choosing it is the lab's decision, not the tool's.
+Screening the baseline (Phase I)
+    One bad value inside a short baseline widens its own limits so much that
+    it can never lie beyond them: with n values and the sample SD, no value
+    is more than (n − 1)/√n SDs from their mean (Samuelson's inequality), which
+    is under 3 for n ≤ 10.  So, when asked to screen, each baseline value is
+    judged against the mean and SD of the *other* baseline values
+    (leave-one-out): its distance in their SDs, divided by √(1 + 1/m) for m
+    others, follows Student's t with m − 1 degrees of freedom for an
+    in-control normal series, and the largest one is compared with the
+    Bonferroni critical value at 5 % over the n baseline values (t at
+    1 − 0.05/(2n)); this is Grubbs' outlier test written the leave-one-out way
+    (from memory), so an in-control baseline loses a value in at most about 5 %
+    of charts.  The worst value beyond that (and beyond 3s) is set aside and
+    the screening repeats, setting aside at most a third of the baseline.  The
+    limits come from the values kept; the values set aside stay on the chart
+    and are judged by the rules like any other.
 Rules
     The common control-chart run rules (Western Electric, *Statistical Quality
     Control Handbook*, 1956, rules 1 to 4; the trend rule as in Nelson,
@@ -43,6 +59,8 @@ import statistics
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from scipy import stats
+
 __all__ = [
     "DEFAULT_BASELINE",
     "MIN_BASELINE",
@@ -50,14 +68,18 @@ __all__ = [
     "ControlChart",
     "ControlLimits",
     "RuleHit",
+    "SetAside",
     "check_baseline",
     "control_chart",
     "control_limits",
     "run_rules",
+    "screened_limits",
 ]
 
 DEFAULT_BASELINE = 10
 MIN_BASELINE = 3
+#: Family false-alarm rate of the baseline screening (over the baseline's values).
+SCREEN_ALPHA = 0.05
 
 #: Rule id → what it means, in the order they are checked.
 RULES: dict[str, str] = {
@@ -140,6 +162,38 @@ class RuleHit:
 
 
 @dataclass(frozen=True)
+class SetAside:
+    """A baseline value left out of the limits by the screening.
+
+    Attributes
+    ----------
+    index : int
+        0-based index of the value in the series.
+    z : float
+        Its distance from the mean of the other kept baseline values, in their SDs.
+    critical : float
+        The distance beyond which a value is set aside (in the same SDs).
+    """
+
+    index: int
+    z: float
+    critical: float = 3.0
+
+    @property
+    def reason(self) -> str:
+        """Why it was set aside, in words.
+
+        Examples
+        --------
+        >>> SetAside(4, -7.25, 5.11).reason
+        '7.2 SDs below the other baseline curves (set aside beyond 5.11)'
+        """
+        side = "above" if self.z > 0 else "below"
+        return (f"{abs(self.z):.1f} SDs {side} the other baseline curves "
+                f"(set aside beyond {self.critical:.2f})")
+
+
+@dataclass(frozen=True)
 class ControlChart:
     """One quantity's control chart: values, limits and the rules that fired.
 
@@ -155,6 +209,8 @@ class ControlChart:
         Rules that fired, by point then rule order.
     reason : str
         Why the chart was not evaluated; empty when it was.
+    set_aside : tuple of SetAside
+        Baseline values the screening left out of the limits (see the module notes).
     """
 
     quantity: str
@@ -162,6 +218,7 @@ class ControlChart:
     limits: ControlLimits | None
     hits: tuple[RuleHit, ...] = ()
     reason: str = ""
+    set_aside: tuple[SetAside, ...] = ()
 
     @property
     def evaluated(self) -> bool:
@@ -358,9 +415,78 @@ def run_rules(values: Sequence[float], limits: ControlLimits, *,
     return tuple(sorted(found, key=lambda h: (h.index, order[h.rule])))
 
 
+def screened_limits(values: Sequence[float], *, baseline: int | None = DEFAULT_BASELINE,
+                    ) -> tuple[ControlLimits, tuple[SetAside, ...]]:
+    """Limits from the baseline after setting aside values beyond 3s of the others.
+
+    Parameters
+    ----------
+    values : sequence of float
+        The series in time order (NaN where missing).
+    baseline : int or None
+        How many leading values form the baseline (at least 3); None for all.
+
+    Returns
+    -------
+    limits : ControlLimits
+        Mean and SD of the baseline values kept.
+    set_aside : tuple of SetAside
+        The values left out, in the order they were set aside.
+
+    Raises
+    ------
+    ValueError
+        As :func:`control_limits`.
+
+    Notes
+    -----
+    Repeatedly, over the n kept values: for each xᵢ, zᵢ = (xᵢ − x̄₋ᵢ)/s₋ᵢ with
+    x̄₋ᵢ and s₋ᵢ the mean and SD of the m = n − 1 others; the value with the
+    largest |zᵢ| is set aside when |zᵢ| > max(3, t₁₋α/(2n); m−1 · √(1 + 1/m)),
+    α = 0.05, while more than 3 values and two thirds of the baseline remain.
+
+    Examples
+    --------
+    >>> slopes = [1.00, 1.01, 0.99, 1.00, 1.02, 0.85, 0.98, 1.01, 0.99]
+    >>> lim, out = screened_limits(slopes, baseline=None)
+    >>> [o.index for o in out], lim.baseline, round(lim.mean, 10)
+    ([5], 8, 1.0)
+    >>> control_limits(slopes, baseline=None).action[0] < 0.85  # unscreened, it hides itself
+    True
+    """
+    problem = _baseline_problem(values, baseline)
+    if problem:
+        raise ValueError(problem)
+    kept = [i for i, v in enumerate(values[:baseline]) if math.isfinite(v)]
+    floor = max(MIN_BASELINE, math.ceil(2 * len(kept) / 3))
+    out: list[SetAside] = []
+    while len(kept) > floor:
+        n = len(kept)
+        critical = max(3.0, float(stats.t.ppf(1 - SCREEN_ALPHA / (2 * n), n - 2))
+                       * math.sqrt(1 + 1 / (n - 1)))
+        worst: SetAside | None = None
+        for i in kept:
+            others = [values[j] for j in kept if j != i]
+            sd = statistics.stdev(others)
+            gap = values[i] - statistics.fmean(others)
+            z = gap / sd if sd > 0 else (math.copysign(math.inf, gap) if gap else 0.0)
+            if worst is None or abs(z) > abs(worst.z):
+                worst = SetAside(i, z, critical)
+        if worst is None or abs(worst.z) <= critical:
+            break
+        out.append(worst)
+        kept.remove(worst.index)
+    chosen = [values[i] for i in kept]
+    sd = statistics.stdev(chosen)
+    if sd == 0:
+        raise ValueError("the baseline values kept do not vary (SD 0), so no limits can be drawn")
+    return ControlLimits(statistics.fmean(chosen), sd, len(chosen)), tuple(out)
+
+
 def control_chart(values: Sequence[float | None], *, quantity: str = "value",
                   baseline: int | None = DEFAULT_BASELINE,
-                  rules: Sequence[str] = tuple(RULES)) -> ControlChart:
+                  rules: Sequence[str] = tuple(RULES), screen: bool = False,
+                  limits: ControlLimits | None = None) -> ControlChart:
     """Limits from the baseline and the run rules over the whole series.
 
     Parameters
@@ -373,6 +499,12 @@ def control_chart(values: Sequence[float | None], *, quantity: str = "value",
         Leading values forming the baseline (at least 3); None for all.
     rules : sequence of str
         Rule ids to apply.
+    screen : bool
+        Set aside baseline values beyond 3s of the others before computing the
+        limits (:func:`screened_limits`).
+    limits : ControlLimits, optional
+        Limits fixed beforehand (a frozen baseline); ``baseline`` and ``screen``
+        are then not used.
 
     Returns
     -------
@@ -387,10 +519,25 @@ def control_chart(values: Sequence[float | None], *, quantity: str = "value",
     ((10,), ('beyond-3s',))
     >>> control_chart([1.0, 1.1], quantity="slope").reason
     'a control chart needs at least 3 values in its baseline; there are 2'
+    >>> fixed = ControlLimits(1.0, 0.01, 8)
+    >>> control_chart([1.0, 1.005, 0.96], limits=fixed).flagged_points()
+    (2,)
     """
     series = tuple(math.nan if v is None else float(v) for v in values)
+    if limits is not None:
+        if not (math.isfinite(limits.mean) and math.isfinite(limits.sd) and limits.sd > 0):
+            raise ValueError(f"limits need a finite mean and a positive SD; got {limits}")
+        return ControlChart(quantity, series, limits, run_rules(series, limits, rules=rules))
     problem = _baseline_problem(series, baseline)
     if problem:
         return ControlChart(quantity, series, None, (), problem)
-    limits = control_limits(series, baseline=baseline)
-    return ControlChart(quantity, series, limits, run_rules(series, limits, rules=rules))
+    set_aside: tuple[SetAside, ...] = ()
+    if screen:
+        try:
+            found, set_aside = screened_limits(series, baseline=baseline)
+        except ValueError as exc:
+            return ControlChart(quantity, series, None, (), str(exc))
+    else:
+        found = control_limits(series, baseline=baseline)
+    return ControlChart(quantity, series, found, run_rules(series, found, rules=rules), "",
+                        set_aside)

@@ -472,14 +472,15 @@ class Archive:
         return out
 
     def trend(self, analyte: str, *, baseline: int = DEFAULT_BASELINE,
-              instrument: str | None = None) -> AnalyteTrend:
+              instrument: str | None = None, **options: Any) -> AnalyteTrend:
         """Control charts of ``analyte``'s accepted curves (see :mod:`calib.archive.trend`).
 
-        The charts are named with the analyte as the archive spells it.
+        The charts are named with the analyte as the archive spells it; ``options``
+        (``screen``, ``frozen``, ``rules``) go to :func:`calib.archive.trend.analyte_trend`.
         """
         history = self.curve_history(analyte, instrument=instrument)
         name = history[0].figures.analyte if history else analyte
-        return analyte_trend(history, analyte=name, baseline=baseline)
+        return analyte_trend(history, analyte=name, baseline=baseline, **options)
 
     # -- verifying -------------------------------------------------------------------------
 

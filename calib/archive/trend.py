@@ -3,7 +3,17 @@
 A lab's accepted curves of one analyte, in run-date order, give three series:
 the slope b (sensitivity), the intercept a (blank level) and the residual SD σ̂
 (precision).  Each is an individuals control chart (:mod:`calib.archive.control`:
-limits x̄ ± 2s and x̄ ± 3s from the first N accepted curves, the common run rules).
+limits x̄ ± 2s and x̄ ± 3s, the common run rules).
+
+Where the limits come from
+    *Frozen baseline* (Phase II): limits fixed once from reviewed runs
+    (:mod:`calib.archive.baseline`); every curve is judged against them.  A
+    rule that fires on a curve the reviewer excluded from the baseline (with
+    its reason) is shown but does not flag the trend: it was reviewed.
+    *Screened* (the default without a frozen baseline): the first N accepted
+    curves, each judged against the others so that a bad curve cannot widen
+    its own limits (:func:`calib.archive.control.screened_limits`).
+    *Plain* (``screen=False``): mean and SD of the first N, unscreened.
 
 Which curves are charted
     One point per record (its signed versions do not count again), curves
@@ -22,8 +32,10 @@ import math
 from collections import Counter
 from collections.abc import Sequence
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
+from calib.archive.baseline import FrozenBaseline
 from calib.archive.control import (
     DEFAULT_BASELINE,
     MIN_BASELINE,
@@ -104,6 +116,11 @@ class AnalyteTrend:
         The baseline length asked for.
     notes : tuple of str
         Things to bear in mind (mixed models, instruments or units; a short baseline).
+    frozen : FrozenBaseline or None
+        The frozen baseline the limits come from; None when they were drawn from
+        the first ``baseline`` curves.
+    screened : bool
+        Whether the first ``baseline`` curves were screened (leave-one-out).
     """
 
     analyte: str
@@ -112,11 +129,65 @@ class AnalyteTrend:
     charts: tuple[ControlChart, ...]
     baseline: int
     notes: tuple[str, ...] = ()
+    frozen: FrozenBaseline | None = None
+    screened: bool = False
+
+    @property
+    def reviewed(self) -> frozenset[int]:
+        """Points the frozen baseline's reviewer excluded with a reason."""
+        if self.frozen is None:
+            return frozenset()
+        return frozenset(i for i, p in enumerate(self.points) if self.frozen.exclusion(p.record_id))
 
     @property
     def flagged(self) -> bool:
-        """Whether a rule fired on any chart."""
-        return any(c.flagged for c in self.charts)
+        """Whether a rule fired on any chart at a point not already reviewed."""
+        return bool(self.flagged_points())
+
+    def flagged_points(self) -> tuple[int, ...]:
+        """Points where a rule fired on some chart, reviewed exclusions left out."""
+        reviewed = self.reviewed
+        return tuple(sorted({i for c in self.charts for i in c.flagged_points()} - reviewed))
+
+    def phase(self, index: int) -> str:
+        """``baseline``, ``excluded`` (from it, with reason), ``set aside`` or ``monitored``.
+
+        For limits drawn from the first N curves, those N are the baseline and a
+        curve set aside by the screening on any chart is ``set aside``.
+        """
+        p = self.points[index]
+        if self.frozen is not None:
+            if p.record_id in self.frozen.records:
+                return "baseline"
+            return "excluded" if self.frozen.exclusion(p.record_id) else "monitored"
+        if any(o.index == index for c in self.charts for o in c.set_aside):
+            return "set aside"
+        return "baseline" if index < self.baseline_span[1] else "monitored"
+
+    @property
+    def baseline_span(self) -> tuple[int, int]:
+        """First and one-past-last point index of the baseline period (for shading)."""
+        if self.frozen is None:
+            return 0, min(self.baseline, len(self.points))
+        inside = [i for i, p in enumerate(self.points)
+                  if p.record_id in self.frozen.records or self.frozen.exclusion(p.record_id)]
+        return (min(inside), max(inside) + 1) if inside else (0, 0)
+
+    def limits_text(self) -> str:
+        """Where the limits come from, in one sentence."""
+        if self.frozen is not None:
+            b = self.frozen
+            return (f"Limits from the frozen baseline {b.name()}: {len(b.curves)} curves, "
+                    f"{b.selection}; reviewed by {b.reviewed_by} on {b.established_at[:10]}")
+        base = min(self.baseline, len(self.points))
+        text = f"Limits from the first {base} accepted curves"
+        if self.screened:
+            aside = sorted({self.points[o.index].record_id for c in self.charts
+                            for o in c.set_aside})
+            text += (", each judged against the others (no frozen baseline)"
+                     + (f"; set aside as too far from the others: {', '.join(aside)}" if aside
+                        else ""))
+        return text
 
     @property
     def evaluated(self) -> bool:
@@ -148,9 +219,27 @@ def _mix_note(points: Sequence[ArchivedCurve]) -> list[str]:
     return notes
 
 
+def _frozen_problem(frozen: FrozenBaseline, points: Sequence[ArchivedCurve]) -> str:
+    """Why ``frozen`` does not belong to these curves; empty when it does."""
+    by_id = {p.record_id: p for p in points}
+    for c in frozen.curves:
+        p = by_id.get(c.record_id)
+        if p is None:
+            return (f"the baseline names {c.record_id} ({c.run_date}), which is not among the "
+                    f"accepted curves of {frozen.analyte} read from the archive")
+        for q in QUANTITIES:
+            mine, theirs = getattr(p.figures, q), getattr(c, q)
+            if (mine is None) != (theirs is None) or (
+                    mine is not None and not math.isclose(mine, theirs, rel_tol=1e-12)):
+                return (f"the baseline's {q} of {c.record_id} ({theirs}) differs from the "
+                        f"archived record's ({mine})")
+    return ""
+
+
 def analyte_trend(curves: Sequence[ArchivedCurve], *, analyte: str,
                   baseline: int = DEFAULT_BASELINE,
-                  rules: Sequence[str] = tuple(RULES)) -> AnalyteTrend:
+                  rules: Sequence[str] = tuple(RULES), screen: bool = True,
+                  frozen: FrozenBaseline | None = None) -> AnalyteTrend:
     """Chart the accepted curves of one analyte over time.
 
     Parameters
@@ -163,10 +252,20 @@ def analyte_trend(curves: Sequence[ArchivedCurve], *, analyte: str,
         The first ``baseline`` accepted curves set the limits (all when fewer; at least 3).
     rules : sequence of str
         Rule ids to apply.
+    screen : bool
+        Judge each of the first ``baseline`` curves against the others and set
+        aside those beyond 3s before drawing the limits (the default).
+    frozen : FrozenBaseline, optional
+        Fixed limits; then ``baseline`` and ``screen`` are not used.
 
     Returns
     -------
     AnalyteTrend
+
+    Raises
+    ------
+    ValueError
+        If ``frozen`` names a curve the series does not hold, or with other figures.
 
     Examples
     --------
@@ -183,9 +282,22 @@ def analyte_trend(curves: Sequence[ArchivedCurve], *, analyte: str,
     ordered = sorted(curves, key=lambda c: (c.run_date, c.seq, c.figures.position))
     points = tuple(c for c in ordered if c.accepted)
     left_out = tuple(c for c in ordered if not c.accepted)
+    if frozen is not None:
+        problem = _frozen_problem(frozen, points)
+        if problem:
+            raise ValueError(problem)
+        charts = tuple(
+            control_chart([getattr(p.figures, q) for p in points], quantity=q, rules=rules,
+                          limits=frozen.limits[q]) if frozen.limits.get(q) is not None
+            else ControlChart(q, tuple(math.nan if getattr(p.figures, q) is None
+                                       else float(getattr(p.figures, q)) for p in points),
+                              None, (), "the frozen baseline has no limits for it")
+            for q in QUANTITIES)
+        return AnalyteTrend(analyte, points, left_out, charts, len(frozen.curves),
+                            tuple(_mix_note(points)), frozen=frozen)
     charts = tuple(
         control_chart([getattr(p.figures, q) for p in points], quantity=q, baseline=baseline,
-                      rules=rules)
+                      rules=rules, screen=screen)
         for q in QUANTITIES
     )
     notes = _mix_note(points)
@@ -193,7 +305,11 @@ def analyte_trend(curves: Sequence[ArchivedCurve], *, analyte: str,
         notes.append(f"the baseline has only {len(points)} accepted curves "
                      f"(fewer than the {baseline} asked for): the limits will move as curves "
                      "are added")
-    return AnalyteTrend(analyte, points, left_out, charts, baseline, tuple(notes))
+    if points:
+        notes.append("the limits are not frozen: a reviewed, frozen baseline (calib trend "
+                     "--freeze) keeps them fixed as curves are added")
+    return AnalyteTrend(analyte, points, left_out, charts, baseline, tuple(notes),
+                        screened=screen)
 
 
 def _finite(value: float | None) -> float | None:
@@ -210,6 +326,7 @@ def trend_document(trend: AnalyteTrend) -> dict[str, Any]:
     ('calib.trend/1', False, False)
     """
     charts = []
+    reviewed = trend.reviewed
     for chart in trend.charts:
         lim = chart.limits
         charts.append({
@@ -222,16 +339,32 @@ def trend_document(trend: AnalyteTrend) -> dict[str, Any]:
             "warning_limits": list(lim.warning) if lim else None,
             "action_limits": list(lim.action) if lim else None,
             "hits": [{"rule": h.rule, "index": h.index, "points": list(h.points),
-                      "side": h.side, "description": h.description} for h in chart.hits],
+                      "side": h.side, "description": h.description,
+                      "reviewed": h.index in reviewed} for h in chart.hits],
+            "set_aside": [{"index": o.index, "record_id": trend.points[o.index].record_id,
+                           "z": o.z if math.isfinite(o.z) else None, "reason": o.reason}
+                          for o in chart.set_aside],
             "warnings": list(chart.warnings()),
         })
     return {
         "schema": TREND_SCHEMA,
         "analyte": trend.analyte,
         "baseline": trend.baseline,
+        "limits_from": {
+            "method": ("frozen baseline" if trend.frozen else
+                       "first curves, screened" if trend.screened else "first curves"),
+            "text": trend.limits_text(),
+            "file": Path(trend.frozen.file).name if trend.frozen and trend.frozen.file else None,
+            "sha256": trend.frozen.sha256 or None if trend.frozen else None,
+            "reviewed_by": trend.frozen.reviewed_by if trend.frozen else None,
+            "established_at": trend.frozen.established_at if trend.frozen else None,
+            "excluded": [{"record_id": c.record_id, "run_date": c.run_date, "reason": c.reason}
+                         for c in trend.frozen.excluded] if trend.frozen else [],
+        },
         "rules": dict(RULES),
         "points": [{
             "index": i, "record_id": p.record_id, "seq": p.seq, "run_date": p.run_date,
+            "phase": trend.phase(i),
             "instrument": p.instrument, "model": p.figures.model,
             "weighting": p.figures.weighting,
             **{q: _finite(getattr(p.figures, q)) for q in QUANTITIES},
@@ -241,5 +374,6 @@ def trend_document(trend: AnalyteTrend) -> dict[str, Any]:
                      for p in trend.left_out],
         "charts": charts,
         "flagged": trend.flagged,
+        "flagged_points": list(trend.flagged_points()),
         "notes": list(trend.notes),
     }

@@ -17,6 +17,8 @@ flag               when (measured concentration x₀, before dilution)          
 ``no-reading``     no usable reading (all set aside)                            ``no result``
 ``curve-rejected`` the curve was rejected, and quantifying was not forced       ``not reported``
 ``forced``         quantified against a rejected curve on request (``force``)   as above
+``curve-needs-     read from a curve whose verdict is needs-review: the result  as above
+review``           stands only once a reviewer has accepted the curve
 =================  ===========================================================  ==============
 
 Outside the calibrated range no concentration, standard error or interval is
@@ -62,6 +64,7 @@ class Flag(StrEnum):
     NO_READING = "no-reading"
     CURVE_REJECTED = "curve-rejected"
     FORCED = "forced"
+    CURVE_NEEDS_REVIEW = "curve-needs-review"
 
 
 @dataclass(frozen=True)
@@ -226,6 +229,9 @@ def quantify_sample(
     shown: tuple[float | None, ...] = (None, None, None, None)
     found = deviation = None
     flags: list[str] = [Flag.FORCED.value] if forced else []
+    if curve is not None and refused is None and curve.verdict == "needs-review":
+        # A result is only as good as its curve: say so on every result read from it.
+        flags.append(Flag.CURVE_NEEDS_REVIEW.value)
     note = ""
     if curve is None or refused is not None:
         flags = [Flag.CURVE_REJECTED.value]

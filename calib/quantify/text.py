@@ -47,7 +47,26 @@ def _curve_line(c: Mapping[str, Any]) -> str:
             f"{status}\n  {c['model']}, weighting {c['weighting']}; range "
             f"{_num(c['x_min'])}–{_num(c['x_max'])}{unit} (LLOQ {_num(c['lloq'])}, ULOQ "
             f"{_num(c['uloq'])}){lod}; {100 * c['confidence']:g} % intervals by the "
-            f"{c['interval_method']}, t = {_num(c.get('t_critical'))} on {c['residual_df']} df")
+            f"{c['interval_method']}, t = {_num(c.get('t_critical'))} on {c['residual_df']} df"
+            + _lod_remark(c, unit))
+
+
+def _lod_remark(c: Mapping[str, Any], unit: str) -> str:
+    """A line when the LOD lies above the LLOQ: the low end needs a look before reporting.
+
+    Examples
+    --------
+    >>> _lod_remark({"lod": 0.0105, "lloq": 0.01}, " mg/L").strip()[:46]
+    'Remark: the LOD (0.0105 mg/L) lies above the L'
+    >>> _lod_remark({"lod": 0.004, "lloq": 0.01}, "")
+    ''
+    """
+    lod, lloq = c.get("lod"), c.get("lloq")
+    if not (isinstance(lod, (int, float)) and isinstance(lloq, (int, float)) and lod > lloq):
+        return ""
+    return (f"\n  Remark: the LOD ({_num(lod, 3)}{unit}) lies above the LLOQ ({_num(lloq, 3)}"
+            f"{unit}), the lowest standard: the curve cannot tell it from a blank; review the "
+            "low end before reporting results near the LLOQ")
 
 
 def _samples(samples: Sequence[Mapping[str, Any]], level: str, unit: str | None) -> list[str]:

@@ -40,10 +40,13 @@ from calib.report.formatting import (
     format_percent,
     format_utc,
 )
+from calib.report.grid import FONT_SIZE, PAD_X
 from calib.report.pages import PAGE_SIZES, Furniture, RecordCanvas, SectionMark, page_margins
-from calib.report.styles import INK, REGULAR, SHADE, Styles, get_styles, register_fonts
+from calib.report.styles import BOLD, INK, REGULAR, SHADE, Styles, get_styles, register_fonts
 from calib.report.tables import TableMaker
 from calib.report.template import ReportTemplate, load_template
+from calib.report.text import measure
+from calib.report.wording import lod_remark
 
 __all__ = ["QUANTIFY_ATTACHMENT", "write_quantify_pdf"]
 
@@ -60,6 +63,8 @@ _FLAGS = (
     ("no-reading", "no usable reading (every injection set aside)"),
     ("curve-rejected", "the curve was rejected: the sample was not quantified"),
     ("forced", "quantified against a rejected curve because the analyst asked (--force)"),
+    ("curve-needs-review", "read from a curve whose verdict is needs review: the result stands "
+                           "only once a qualified person has reviewed and accepted the curve"),
 )
 _SIGNOFF = (
     ("Quantified by", "I quantified these samples and issued this report"),
@@ -90,12 +95,82 @@ def _num(value: Any, digits: int = 4) -> str:
     return format_number(value, digits)
 
 
+class _AnalyteMark(SectionMark):
+    """Names the analytes on a page for its running header.
+
+    The header names the analyte continuing from the previous page and every
+    analyte that starts on the page; an analyte starting at the top of a page
+    replaces the one before.  ``top`` is the top of the text frame: a mark
+    drawn there opens the page.  An empty name (the summary) names none.
+    """
+
+    def __init__(self, name: str, top: float) -> None:
+        super().__init__(name)
+        self.top = top
+        self._opens_page = False
+
+    def drawOn(self, canvas: Canvas, x: float, y: float, _sW: float = 0) -> None:  # noqa: N802
+        self._opens_page = y >= self.top - 0.5
+        super().drawOn(canvas, x, y, _sW)
+
+    def draw(self) -> None:
+        canv = self.canv
+        page = canv.getPageNumber()
+        held = getattr(canv, "_batch_names", None)
+        last = getattr(canv, "_batch_last", "")
+        if held is None or held[0] != page:
+            held = (page, [] if self._opens_page or not last else [last])
+        names = held[1]
+        if self._opens_page:
+            names.clear()
+        if self.name and self.name not in names:
+            names.append(self.name)
+        canv._batch_names = held
+        canv._batch_last = self.name
+        canv._calib_section = ", ".join(names) or None
+
+
+class _BatchCanvas(RecordCanvas):
+    """The record canvas; a new page's header starts with the analyte continuing onto it."""
+
+    def showPage(self) -> None:  # noqa: N802
+        super().showPage()
+        self._calib_section = getattr(self, "_batch_last", "") or None
+
+
+def _fit_columns(rows: Sequence[Sequence[str]], fractions: Sequence[float], whole: set[int],
+                 width: float) -> list[float]:
+    """Column fractions widened so that no word of a ``whole`` column is ever broken.
+
+    A number broken across two lines ("0.0099" / "3") misreads; the room comes
+    from the other columns, in proportion to their width.
+    """
+    out = list(fractions)
+    need = [0.0] * len(out)
+    for r, row in enumerate(rows):
+        face = BOLD if r == 0 else REGULAR
+        for c in whole:
+            for word in row[c].split():
+                need[c] = max(need[c], (measure(word, face, FONT_SIZE) + 2 * PAD_X + 1) / width)
+    extra = sum(max(0.0, need[c] - out[c]) for c in whole)
+    flexible = [c for c in range(len(out)) if c not in whole]
+    room = sum(out[c] for c in flexible)
+    if extra <= 0 or room <= extra:
+        return out
+    for c in whole:
+        out[c] = max(out[c], need[c])
+    for c in flexible:
+        out[c] -= extra * out[c] / room
+    return out
+
+
 class _Story:
     def __init__(self, doc: Mapping[str, Any], template: ReportTemplate, width: float,
-                 digest: str) -> None:
+                 digest: str, top: float = 0.0) -> None:
         self.doc = doc
         self.t = template
         self.width = width
+        self.top = top
         self.digest = digest
         self.s: Styles = get_styles()
         self.tables = TableMaker(width)
@@ -172,6 +247,7 @@ class _Story:
     def curve_items(self, c: Mapping[str, Any]) -> list[tuple[str, str, bool]]:
         unit = f" {c['unit']}" if c.get("unit") else ""
         lod = MISSING if c.get("lod") is None else f"{_num(c['lod'])}{unit}"
+        remark = lod_remark(c.get("lod"), c.get("lloq"), str(c.get("unit") or ""))
         return [
             ("Curve verdict", _VERDICTS.get(str(c.get("verdict")), str(c.get("verdict"))), False),
             ("Model, weighting", f"{c['model']}, {c['weighting']}", False),
@@ -181,6 +257,7 @@ class _Story:
             ("Intervals", (f"{100 * c['confidence']:g} %, x₀ ± t·s(x₀) with t = "
                           f"{_num(c.get('t_critical'))} on {c['residual_df']} df; s(x₀) by the "
                           f"{c['interval_method']}"), True),
+            *([("Remark", remark, True)] if remark else []),
         ]
 
     def samples_table(self, samples: Sequence[Mapping[str, Any]], c: Mapping[str, Any]
@@ -200,8 +277,9 @@ class _Story:
                          _num(s.get("concentration")), _num(s.get("std_error"), 3), interval,
                          format_compact(s["dilution_factor"], 6), str(s["reported"]),
                          ", ".join(s["flags"]) or MISSING])
-        return self.tables.grid(rows, [0.12, 0.08, 0.04, 0.1, 0.1, 0.07, 0.14, 0.08, 0.1, 0.17],
-                                right=(2, 3, 4, 5, 7), bold=bold)
+        fractions = _fit_columns(rows, [0.12, 0.08, 0.04, 0.1, 0.1, 0.07, 0.14, 0.08, 0.1, 0.17],
+                                 {2, 3, 4, 5, 6, 7, 8, 9}, self.width)
+        return self.tables.grid(rows, fractions, right=(2, 3, 4, 5, 7), bold=bold)
 
     def qc_section(self, q: Mapping[str, Any], unit: str) -> list[Flowable]:
         if not q.get("outcomes"):
@@ -212,14 +290,18 @@ class _Story:
             rows.append([o["sample_id"], _num(o["nominal"]), _num(o.get("found")),
                          format_percent(o.get("deviation_pct")), f"±{o['allowed_pct']:g} %",
                          "yes" if o["within"] else "NO"])
-        table = self.tables.grid(rows, [0.25, 0.15, 0.15, 0.15, 0.15, 0.15], right=(1, 2, 3, 4))
+        fractions = _fit_columns(rows, [0.25, 0.15, 0.15, 0.15, 0.15, 0.15], {1, 2, 3, 4, 5},
+                                 self.width)
+        table = self.tables.grid(rows, fractions, right=(1, 2, 3, 4))
         verdict = {"pass": "QC rule met", "fail": "QC rule NOT met"}.get(q["verdict"], "QC")
         return [Spacer(1, 4), table, Spacer(1, 2),
                 self.para(f"{verdict} (severity {q['severity']}). {q['detail']}", self.s.small)]
 
     def analyte(self, c: Mapping[str, Any], samples: Sequence[Mapping[str, Any]],
                 q: Mapping[str, Any] | None) -> list[Flowable]:
-        out: list[Flowable] = [SectionMark(str(c["analyte"])), *self.heading(str(c["analyte"]))]
+        # The mark after the conditional page break, so that it lands on the analyte's page.
+        out: list[Flowable] = [CondPageBreak(80), _AnalyteMark(str(c["analyte"]), self.top),
+                               self.para(str(c["analyte"]), self.s.heading)]
         if c.get("not_fitted"):
             return out + [self.para(f"The standards could not be fitted ({c['not_fitted']}); "
                                     "the samples were not quantified.")]
@@ -256,7 +338,8 @@ class _Story:
         return out
 
     def story(self) -> list[Flowable]:
-        out: list[Flowable] = [SectionMark(_TITLE), *self.lab(), self.para(_TITLE, self.s.title),
+        out: list[Flowable] = [_AnalyteMark("", self.top), *self.lab(),
+                               self.para(_TITLE, self.s.title),
                                *self.summary()]
         qcs = {q["analyte"]: q for q in self.doc.get("qc", {}).get("analytes", [])}
         for c in self.doc.get("curves", []):
@@ -317,7 +400,8 @@ def write_quantify_pdf(document: Mapping[str, Any], *, template: ReportTemplate 
                   rightPadding=0, topPadding=0, bottomPadding=0, id="body")
     doc.addPageTemplates([PageTemplate(id="batch", frames=[frame])])
     before_save = functools.partial(_finish, attachment=attachment, digest=digest)
-    doc.build(_Story(document, template, doc.width, digest).story(),
-              canvasmaker=functools.partial(RecordCanvas, furniture=furniture,
+    top = doc.bottomMargin + doc.height
+    doc.build(_Story(document, template, doc.width, digest, top).story(),
+              canvasmaker=functools.partial(_BatchCanvas, furniture=furniture,
                                             before_save=before_save))
     return buffer.getvalue()

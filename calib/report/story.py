@@ -58,6 +58,9 @@ from calib.report.wording import (
     as_mapping,
     coefficient_order,
     common_sheet,
+    lod_remark,
+    range_sentences,
+    shared_reasons,
     fixed_digits,
     signature_words,
     text_or_dash,
@@ -250,6 +253,10 @@ class _Builder:
         ])
         notes = [f"{label}: {entry['method']}." for label, entry in (("LOD", lod), ("LOQ", loq))
                  if entry.get("method")]
+        remark = lod_remark(lod.get("value"),
+                            as_mapping(curve.get("working_range")).get("lloq"), conc)
+        if remark:
+            notes.insert(0, remark)
         out: list[Flowable] = [table, Spacer(1, 4), stats]
         if notes:
             out += [Spacer(1, 2), self.para(" ".join(notes), self.s.note)]
@@ -277,10 +284,13 @@ class _Builder:
         return self.tables.grid(rows, [0.235, 0.095, 0.07, 0.115, 0.105, 0.38], right=(1, 2),
                                 bold=bold)
 
-    def standards_table(self, curve: Mapping[str, Any]) -> Flowable:
+    def standards_table(self, curve: Mapping[str, Any]) -> list[Flowable]:
+        """The standards, a long exclusion reason shared by several points given once below."""
         points = [as_mapping(p) for p in as_list(curve.get("points"))]
         if not points:
-            return self.para("The record holds no standards for this analyte.")
+            return [self.para("The record holds no standards for this analyte.")]
+        marks = shared_reasons(p.get("exclusion_reason") for p in points
+                               if not p.get("included", True))
         conc, resp = self.unit("concentration"), self.unit("response")
         prefix, cell_title = common_sheet(p.get("source_cell") for p in points)
         rows: list[list[Any]] = [[
@@ -290,6 +300,8 @@ class _Builder:
         for p in points:
             if p.get("included", True):
                 used = "Yes"
+            elif str(p.get("exclusion_reason") or "") in marks:
+                used = f"No: reason {marks[str(p.get('exclusion_reason'))]} below"
             else:
                 used = "No: " + str(p.get("exclusion_reason") or "no reason given")
             rows.append([
@@ -302,8 +314,11 @@ class _Builder:
                 format_percent(p.get("deviation_pct")),
                 used,
             ])
-        return self.tables.grid(rows, [0.12, 0.06, 0.11, 0.13, 0.13, 0.14, 0.09, 0.22],
-                                right=range(1, 7))
+        out: list[Flowable] = [self.tables.grid(
+            rows, [0.12, 0.06, 0.11, 0.13, 0.13, 0.14, 0.09, 0.22], right=range(1, 7))]
+        out += [self.para(f"Reason {mark}: {reason}", self.s.note)
+                for reason, mark in marks.items()]
+        return out
 
     def band(self, curve: Mapping[str, Any], log_x: bool) -> CurveBand | None:
         """Fitted curve and confidence band from the stored fit details, or None."""
@@ -419,25 +434,13 @@ class _Builder:
         return [KeepTogether([self.heading(self.t.titles.signoff), table])]
 
     def range_notes(self, curve: Mapping[str, Any]) -> list[Flowable]:
-        """The analyst's applied working range (with the full-range result) and calib's proposal."""
-        working = as_mapping(curve.get("working_range"))
-        words = self.t.verdicts.word
-        notes = []
-        applied = as_mapping(working.get("applied"))
-        if applied:
-            original = as_mapping(applied.get("original"))
-            notes.append(
-                f"Working range applied by the analyst: {format_compact(applied.get('low'))} to "
-                f"{format_compact(applied.get('high'))} ({text_or_dash(applied.get('reason'))}). On the full "
-                f"range the curve was: {words(original.get('verdict'))}.")
-        proposed = as_mapping(working.get("proposed"))
-        if proposed:
-            notes.append(
-                f"calib proposes the range {format_compact(proposed.get('lloq'))} to "
-                f"{format_compact(proposed.get('uloq'))} ({text_or_dash(proposed.get('reason'))}); on it "
-                f"the curve would be: {words(proposed.get('verdict'))}. Not applied: the analyst "
-                "applies a range only with --range, and the record then shows it.")
-        return [self.para(n) for n in notes]
+        """The analyst's applied working range (with the full-range result) and calib's proposal.
+
+        A range is stated once: when the analyst applied the range calib
+        proposed, the proposal is not repeated as if it were still open; when
+        the analyst applied another range, the proposal is named as such.
+        """
+        return [self.para(n) for n in range_sentences(curve, self.t.verdicts.word)]
 
     # -- whole sections ----------------------------------------------------------------------
     def analyte(self, curve: Mapping[str, Any]) -> list[Flowable]:
@@ -456,7 +459,7 @@ class _Builder:
         if t.show.checks:
             out += [*self.table_heading(t.titles.checks), self.checks_table(curve)]
         if t.show.standards:
-            out += [*self.table_heading(t.titles.standards), self.standards_table(curve)]
+            out += [*self.table_heading(t.titles.standards), *self.standards_table(curve)]
         return out + self.plots(curve) + self.cautions() + self.signoff()
 
     def summary(self) -> list[Flowable]:
@@ -568,3 +571,4 @@ def build_story(
     sections = story_sections(record, record_id=record_id, digest=digest, template=template,
                               width=width)
     return [flowable for section in sections for flowable in section]
+

@@ -10,6 +10,7 @@ its arguments only (reportlab's invariant mode).
 
 from __future__ import annotations
 
+import datetime as dt
 import functools
 import io
 import math
@@ -66,14 +67,14 @@ class _TrendFurniture(Furniture):
         return f"{self.document_title} · {self.source} · page {page} of {pages}"
 
 
-def _legend(d: Drawing, *, x: float, y: float, width: float, baseline: int, flagged: bool,
+def _legend(d: Drawing, *, x: float, y: float, width: float, shade_label: str, flagged: bool,
             limits: bool) -> int:
     """Legend rows below a chart; returns the number of rows drawn."""
     items = [("dot", "Accepted curve")]
     if flagged:
         items.append(("flag", "Run rule fired"))
     if limits:
-        items += [("shade", f"Baseline (first {baseline})"), ("mean", "Mean"),
+        items += [("shade", shade_label), ("mean", "Mean"),
                   ("warn", "±2s warning"), ("action", "±3s action")]
     col, row_y, rows = x, y, 1
     for kind, label in items:
@@ -107,8 +108,46 @@ def _legend_rows(width: float, labels: Sequence[str]) -> int:
     return rows
 
 
+class _DateAxis:
+    """Run dates along the x axis: day numbers, several runs of one day spread within it."""
+
+    STEPS = (1, 2, 7, 14, 28, 56, 91, 182, 364, 728)
+
+    def __init__(self, dates: Sequence[str], start: float, length: float) -> None:
+        days = [dt.date.fromisoformat(d).toordinal() for d in dates]
+        per_day = Counter(days)
+        seen: Counter[int] = Counter()
+        self.positions = []
+        for day in days:
+            seen[day] += 1
+            self.positions.append(day - 0.5 + seen[day] / (per_day[day] + 1))
+        self.lo = min(days) - 0.5
+        self.hi = max(days) + 0.5
+        self.start, self.length, self.log = start, length, False
+        self.ticks: tuple[float, ...] = ()  # drawn by :meth:`draw`, with date labels
+        register_fonts()
+        width_of_label = stringWidth("2026-12-31", REGULAR, LABEL_SIZE) + 8
+        room = max(1, int(length // width_of_label))
+        span = self.hi - self.lo
+        self.step = next((s for s in self.STEPS if span / s <= room), self.STEPS[-1])
+        first = min(days)
+        self.tick_days = [first + k * self.step for k in range(int(span // self.step) + 1)
+                          if first + k * self.step <= max(days)]
+
+    def __call__(self, v: float) -> float:
+        return self.start + (v - self.lo) / (self.hi - self.lo) * self.length
+
+    def draw(self, d: Drawing, y0: float) -> None:
+        for day in self.tick_days:
+            px = self(day)
+            d.add(Line(px, y0, px, y0 - 2.5, strokeColor=INK, strokeWidth=0.5))
+            d.add(_text(px, y0 - 9, dt.date.fromordinal(day).isoformat(), anchor="middle"))
+
+
 def control_chart_drawing(chart: ControlChart, *, width: float, height: float, y_title: str,
-                          baseline: int) -> Drawing:
+                          baseline: int, dates: Sequence[str] | None = None,
+                          span: tuple[int, int] | None = None,
+                          shade_label: str | None = None) -> Drawing:
     """One control chart as a vector drawing.
 
     Parameters
@@ -120,7 +159,14 @@ def control_chart_drawing(chart: ControlChart, *, width: float, height: float, y
     y_title : str
         Title of the value axis.
     baseline : int
-        Number of leading points that formed the baseline (shaded).
+        Number of leading points that formed the baseline (shaded) when ``span`` is not given.
+    dates : sequence of str, optional
+        Run date (``YYYY-MM-DD``) of each point: the x axis is then the calendar,
+        runs of one day spread across it; without them it is the point number.
+    span : (int, int), optional
+        First and one-past-last point of the baseline period, shaded.
+    shade_label : str, optional
+        Legend text of the shaded period.
 
     Examples
     --------
@@ -128,26 +174,45 @@ def control_chart_drawing(chart: ControlChart, *, width: float, height: float, y
     >>> chart = control_chart([1.0, 1.1, 0.9, 1.0, 1.05, 0.95, 0.6], quantity="slope")
     >>> control_chart_drawing(chart, width=480, height=180, y_title="Slope", baseline=10).height
     180
+    >>> days = [f"2026-11-{d:02d}" for d in (2, 3, 3, 5, 6, 9, 10)]
+    >>> control_chart_drawing(chart, width=480, height=180, y_title="Slope", baseline=6,
+    ...                       dates=days).width
+    480
     """
     register_fonts()
     lim = chart.limits
+    n = len(chart.values)
+    if dates is not None and len(dates) != n:
+        raise ValueError(f"dates: one per point needed ({n}); got {len(dates)}")
+    if span is None:
+        span = (0, min(baseline, n))
+    shade_label = shade_label or f"Baseline (first {baseline})"
     labels = ["Accepted curve"] + (["Run rule fired"] if chart.flagged else [])
     if lim is not None:
-        labels += [f"Baseline (first {baseline})", "Mean", "±2s warning", "±3s action"]
+        labels += [shade_label, "Mean", "±2s warning", "±3s action"]
     bottom = 30 + 10 * _legend_rows(width - 40, labels)
     d = Drawing(width, height)
-    n = len(chart.values)
     ys = [v for v in chart.values if math.isfinite(v)]
     if lim is not None:
         ys += [*lim.action, lim.mean]
-    xa = _Axis.fit([0.0, float(max(n, 1))], 46, width - 46 - 26, target=min(max(n, 2), 10))
+    xa: _Axis | _DateAxis
+    if dates:
+        xa = _DateAxis(dates, 46, width - 46 - 26)
+        xs = xa.positions
+        x_title = "Run date"
+    else:
+        xa = _Axis.fit([0.0, float(max(n, 1))], 46, width - 46 - 26, target=min(max(n, 2), 10))
+        xs = [i + 1.0 for i in range(n)]
+        x_title = "Accepted curves in run-date order"
     ya = _Axis.fit(ys or [0.0, 1.0], bottom, height - bottom - 6, target=5)
     right = xa.start + xa.length
-    if lim is not None and n:
-        shaded = min(baseline, n)
-        x0 = xa(0.5)
-        d.add(Rect(x0, ya.start, xa(shaded + 0.5) - x0, ya.length, fillColor=SHADE,
-                   strokeColor=None))
+    if lim is not None and n and span[1] > span[0]:
+        first, last = span[0], span[1] - 1
+        gap_before = (xs[first] - xs[first - 1]) / 2 if first > 0 else 0.5
+        gap_after = (xs[last + 1] - xs[last]) / 2 if last + 1 < n else 0.5
+        x0 = max(xa.start, xa(xs[first] - min(gap_before, 0.5)))
+        x1 = min(right, xa(xs[last] + min(gap_after, 0.5)))
+        d.add(Rect(x0, ya.start, x1 - x0, ya.length, fillColor=SHADE, strokeColor=None))
         for k, color, dash in ((3, ACTION, None), (2, WARNING, [2.5, 1.5])):
             for value, sign in zip(lim.limit(k), ("−", "+")):
                 y = ya(value)
@@ -158,7 +223,9 @@ def control_chart_drawing(chart: ControlChart, *, width: float, height: float, y
         y = ya(lim.mean)
         d.add(Line(xa.start, y, right, y, strokeColor=MUTED, strokeWidth=0.8))
         d.add(_text(right + 2, y - 2.2, "mean", color=MUTED))
-    _frame(d, xa, ya, x_title="Accepted curves in run-date order", y_title=y_title)
+    _frame(d, xa, ya, x_title=x_title, y_title=y_title)  # type: ignore[arg-type]
+    if isinstance(xa, _DateAxis):
+        xa.draw(d, ya.start)
     flagged = set(chart.flagged_points())
     path: list[float] = []
     for i, v in enumerate(chart.values):
@@ -167,15 +234,15 @@ def control_chart_drawing(chart: ControlChart, *, width: float, height: float, y
                 d.add(PolyLine(path, strokeColor=PATH, strokeWidth=0.5))
             path = []
             continue
-        path += [xa(i + 1), ya(v)]
+        path += [xa(xs[i]), ya(v)]
     if len(path) > 2:
         d.add(PolyLine(path, strokeColor=PATH, strokeWidth=0.5))
-    _dots(d, [(xa(i + 1), ya(v)) for i, v in enumerate(chart.values)
+    _dots(d, [(xa(xs[i]), ya(v)) for i, v in enumerate(chart.values)
               if math.isfinite(v) and i not in flagged])
     for i in sorted(flagged):
-        _diamond(d, xa(i + 1), ya(chart.values[i]))
-    _legend(d, x=46, y=bottom - 38, width=width - 40, baseline=baseline, flagged=chart.flagged,
-            limits=lim is not None)
+        _diamond(d, xa(xs[i]), ya(chart.values[i]))
+    _legend(d, x=46, y=bottom - 38, width=width - 40, shade_label=shade_label,
+            flagged=chart.flagged, limits=lim is not None)
     return d
 
 
@@ -188,9 +255,8 @@ def _summary(trend: AnalyteTrend) -> str:
     left = Counter(p.figures.verdict if "rejected" not in p.roles else "rejected at sign-off"
                    for p in trend.left_out)
     left_text = "; ".join(f"{k} {v}" for k, v in sorted(left.items()))
-    base = min(trend.baseline, n)
     return (f"{n} accepted curve{'s' if n != 1 else ''} from {first} to {last}; instrument "
-            f"{', '.join(instruments)}. Limits from the first {base}: mean ± 2s "
+            f"{', '.join(instruments)}. {trend.limits_text()}: mean ± 2s "
             "warning and ± 3s action limits, s the sample standard deviation. "
             + (f"Curves left out because they were not accepted: {left_text}. " if left else ""))
 
@@ -209,6 +275,7 @@ def _para(text: str, style: ParagraphStyle) -> Paragraph:
 
 
 def _limits_table(trend: AnalyteTrend, tables: TableMaker) -> Flowable:
+    # Flags not counting the curves the frozen baseline's reviewer excluded (already reviewed).
     rows = [["Quantity", "Mean", "SD", "−3s", "−2s", "+2s", "+3s", "Flags"]]
     spans = []
     for chart in trend.charts:
@@ -222,7 +289,7 @@ def _limits_table(trend: AnalyteTrend, tables: TableMaker) -> Flowable:
         low2, high2 = lim.warning
         rows.append([QUANTITIES[chart.quantity],
                      *(format_number(v) for v in (lim.mean, lim.sd, low3, low2, high2, high3)),
-                     str(len(chart.flagged_points()))])
+                     str(len(set(chart.flagged_points()) - trend.reviewed))])
     return tables.grid(rows, [0.16, 0.13, 0.11, 0.12, 0.12, 0.12, 0.12, 0.12],
                        right=range(1, 8), spans=spans)
 
@@ -234,8 +301,11 @@ def _charts(trend: AnalyteTrend, width: float, s: Styles) -> list[Flowable]:
         if not any(math.isfinite(v) for v in chart.values):
             out += [_para(label, s.heading), _para(chart.reason or "No values.", s.note)]
             continue
-        drawing = control_chart_drawing(chart, width=width, height=_CHART_HEIGHT,
-                                        y_title=label, baseline=trend.baseline)
+        drawing = control_chart_drawing(
+            chart, width=width, height=_CHART_HEIGHT, y_title=label, baseline=trend.baseline,
+            dates=[p.run_date for p in trend.points], span=trend.baseline_span,
+            shade_label=("Frozen baseline period" if trend.frozen is not None
+                         else f"Baseline (first {min(trend.baseline, len(trend.points))})"))
         parts: list[Flowable] = [_para(label, s.heading), drawing]
         if chart.reason:
             parts.append(_para(f"Not evaluated: {chart.reason}.", s.note))
@@ -248,8 +318,11 @@ def _flags(trend: AnalyteTrend, tables: TableMaker, s: Styles) -> list[Flowable]
     for chart in trend.charts:
         for index in chart.flagged_points():
             p = trend.points[index]
+            fired = chart.hits_text(index)
+            if index in trend.reviewed and trend.frozen is not None:
+                fired += f"; excluded from the baseline: {trend.frozen.exclusion(p.record_id)}"
             rows.append([QUANTITIES[chart.quantity], str(index + 1), p.run_date, p.record_id,
-                         format_number(chart.values[index]), chart.hits_text(index)])
+                         format_number(chart.values[index]), fired])
     if len(rows) == 1:
         return [_para("Run rules", s.heading), _para("No run rule fired on any chart.", s.body)]
     return [_para("Run rules that fired", s.heading),
@@ -259,15 +332,31 @@ def _flags(trend: AnalyteTrend, tables: TableMaker, s: Styles) -> list[Flowable]
 def _points(trend: AnalyteTrend, tables: TableMaker, s: Styles) -> list[Flowable]:
     if not trend.points:
         return []
-    rows = [["Point", "Run date", "Record", "Instrument", *QUANTITIES.values(), "Rules"]]
+    rows = [["Point", "Run date", "Record", "Phase", *QUANTITIES.values(), "Rules"]]
     for i, p in enumerate(trend.points):
         fired = [f"{c.quantity}: {', '.join(c.rules_at(i))}" for c in trend.charts
                  if c.rules_at(i)]
-        rows.append([str(i + 1), p.run_date, p.record_id, p.instrument or "—",
+        rows.append([str(i + 1), p.run_date, p.record_id, trend.phase(i),
                      *(format_number(getattr(p.figures, q)) for q in QUANTITIES),
                      "; ".join(fired)])
     return [_para("Curves charted", s.heading),
-            tables.grid(rows, [0.06, 0.1, 0.15, 0.14, 0.1, 0.1, 0.1, 0.25], right=(0, 4, 5, 6))]
+            tables.grid(rows, [0.06, 0.1, 0.15, 0.11, 0.1, 0.1, 0.1, 0.28], right=(0, 4, 5, 6))]
+
+
+def _baseline_paras(trend: AnalyteTrend, s: Styles) -> list[Flowable]:
+    b = trend.frozen
+    if b is None:
+        return []
+    text = (f"Frozen baseline (Phase I) established {b.established_at}, reviewed by "
+            f"{b.reviewed_by}: {b.selection}.")
+    if b.excluded:
+        text += " Excluded: " + "; ".join(f"{c.record_id} ({c.run_date}): {c.reason}"
+                                         for c in b.excluded) + "."
+    if b.note:
+        text += f" Reviewer's note: {b.note}"
+    text += (" Later curves are monitored against these fixed limits (Phase II); a rule firing "
+             "on an excluded curve is shown but was already reviewed.")
+    return [_para(text, s.note)]
 
 
 def _story(trend: AnalyteTrend, width: float) -> list[Flowable]:
@@ -277,6 +366,7 @@ def _story(trend: AnalyteTrend, width: float) -> list[Flowable]:
         SectionMark(trend.analyte),
         _para(f"{_TITLE}: {trend.analyte}", s.title),
         _para(_summary(trend), s.body),
+        *_baseline_paras(trend, s),
         Spacer(1, 6),
         _limits_table(trend, tables),
         *_charts(trend, width, s),

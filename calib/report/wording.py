@@ -7,15 +7,16 @@ web page.
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from typing import Any
 
-from calib.report.formatting import MISSING, as_float
+from calib.report.formatting import MISSING, as_float, format_compact
 from calib.report.template import ReportTemplate
 
 __all__ = ["CHECK_VERDICTS", "COEFFICIENTS", "MODELS", "ROLES", "SEVERITIES", "WEIGHTINGS",
            "as_list", "as_mapping", "coefficient_order", "common_sheet", "fixed_digits",
-           "signature_words", "text_or_dash", "verdict_sentence"]
+           "lod_remark", "range_sentences", "shared_reasons", "signature_words", "text_or_dash",
+           "verdict_sentence"]
 
 MODELS = {
     "linear": "straight line, y = a + b·x",
@@ -142,3 +143,115 @@ def common_sheet(cells: Any) -> tuple[str, str]:
     if len(prefixes) == 1 and (sheet := prefixes.pop()):
         return f"{sheet}!", f"Cell in {sheet.strip(chr(39))}"
     return "", "Source cell"
+
+
+def _same_range(applied: Mapping[str, Any], proposed: Mapping[str, Any]) -> bool:
+    def close(a: Any, b: Any) -> bool:
+        try:
+            x, y = float(a), float(b)
+        except (TypeError, ValueError):
+            return False
+        return abs(x - y) <= 1e-9 * max(abs(x), abs(y), 1e-300)
+
+    return close(applied.get("low"), proposed.get("lloq")) and close(applied.get("high"),
+                                                                     proposed.get("uloq"))
+
+
+def range_sentences(curve: Mapping[str, Any], words: Callable[[Any], str]) -> list[str]:
+    """The working-range sentences of a curve's page, each range said once.
+
+    Examples
+    --------
+    >>> curve = {"working_range": {
+    ...     "applied": {"low": 0.05, "high": 5, "reason": "level 1 contaminated",
+    ...                 "original": {"verdict": "rejected"}},
+    ...     "proposed": {"lloq": 0.05, "uloq": 5, "reason": "lowest level fails",
+    ...                  "verdict": "accepted"}}}
+    >>> import textwrap
+    >>> print(textwrap.fill(range_sentences(curve, str.capitalize)[0], 90))
+    Working range applied by the analyst: 0.05 to 5 (level 1 contaminated), the range calib
+    proposed. On the full range the curve was: Rejected.
+    """
+    working = as_mapping(curve.get("working_range"))
+    applied = as_mapping(working.get("applied"))
+    proposed = as_mapping(working.get("proposed"))
+    notes = []
+    if applied:
+        original = as_mapping(applied.get("original"))
+        same = bool(proposed) and _same_range(applied, proposed)
+        notes.append(
+            f"Working range applied by the analyst: {format_compact(applied.get('low'))} to "
+            f"{format_compact(applied.get('high'))} ({text_or_dash(applied.get('reason'))})"
+            + (", the range calib proposed" if same else "")
+            + f". On the full range the curve was: {words(original.get('verdict'))}.")
+        if proposed and not same:
+            notes.append(
+                f"calib had proposed {format_compact(proposed.get('lloq'))} to "
+                f"{format_compact(proposed.get('uloq'))} ({text_or_dash(proposed.get('reason'))}; "
+                f"on it the curve would be: {words(proposed.get('verdict'))}); the analyst "
+                "applied the range above instead.")
+    elif proposed:
+        notes.append(
+            f"calib proposes the range {format_compact(proposed.get('lloq'))} to "
+            f"{format_compact(proposed.get('uloq'))} ({text_or_dash(proposed.get('reason'))}); "
+            f"on it the curve would be: {words(proposed.get('verdict'))}. Not applied: the analyst "
+            "applies a range only with --range, and the record then shows it.")
+    return notes
+
+
+#: A reason at least this long, shared by at least two points, is printed once below the table.
+SHARED_REASON_LENGTH = 40
+
+
+def shared_reasons(reasons: Iterable[Any]) -> dict[str, str]:
+    """Long exclusion reasons given for two or more points → a short mark (``A``, ``B``...).
+
+    The standards table then says "No: reason A below" in each row and prints
+    the reason once, instead of repeating a long sentence row after row.
+
+    Examples
+    --------
+    >>> why = "level 7 vial lost its cap overnight; evaporation suspected, see lab note 31"
+    >>> shared_reasons([why, why, "injection error", why])
+    {'level 7 vial lost its cap overnight; evaporation suspected, see lab note 31': 'A'}
+    """
+    counts: dict[str, int] = {}
+    for reason in reasons:
+        text = str(reason or "")
+        counts[text] = counts.get(text, 0) + 1
+    shared = [r for r, n in counts.items() if n >= 2 and len(r) >= SHARED_REASON_LENGTH]
+    return {r: _mark(i) for i, r in enumerate(shared)}
+
+
+def _mark(i: int) -> str:
+    """A, B, ... Z, AA, AB, ...: a mark per shared reason, however many there are."""
+    letters = ""
+    i += 1
+    while i:
+        i, rest = divmod(i - 1, 26)
+        letters = chr(ord("A") + rest) + letters
+    return letters
+
+
+def lod_remark(lod: Any, lloq: Any, unit: str = "") -> str:
+    """A remark when the curve's LOD lies above its LLOQ (the lowest standard); else empty.
+
+    An LOD above the LLOQ says the curve cannot tell its own lowest standard
+    from a blank with the stated confidence, so results near the LLOQ are not
+    what the range promises.
+
+    Examples
+    --------
+    >>> lod_remark(0.0105, 0.01, "mg/L")[:62]
+    'The LOD (0.0105 mg/L) lies above the LLOQ (0.01 mg/L), the low'
+    >>> lod_remark(0.004, 0.01)
+    ''
+    """
+    low, limit = as_float(lloq), as_float(lod)
+    if low is None or limit is None or not limit > low:
+        return ""
+    u = f" {unit}" if unit else ""
+    return (f"The LOD ({limit:.3g}{u}) lies above the LLOQ ({low:.3g}{u}), the lowest standard "
+            "in the fit: the curve cannot tell its lowest standard from a blank with the stated "
+            "confidence. Review the low end (narrow the range or re-prepare the low standards) "
+            "before reporting results near the LLOQ.")

@@ -36,7 +36,8 @@ from tests.checks.runs import (
     spread,
 )
 
-SHIPPED = ("default", "bioanalytical", "environmental", "assay-linearity", "iso-8466")
+SHIPPED = ("default", "bioanalytical", "environmental", "assay-linearity", "iso-8466",
+           "plasma-spectrometry")
 
 
 def by_id(curve):

@@ -24,9 +24,12 @@ from calib.checks.evaluate import RunAssessment
 from calib.fit.bands import band_figures
 from calib.record.document import check_document, finite_or_none
 
-__all__ = ["RECORD_SCHEMA", "Record", "build_record", "canonical_json"]
+__all__ = ["JCS", "RECORD_SCHEMA", "Record", "build_record", "canonical_bytes", "canonical_json"]
 
 RECORD_SCHEMA = "calib.record/1"
+#: Value of a record's ``canonicalization`` field: its digests are over RFC 8785 (JCS) bytes.
+#: Records without the field (calib 0.1.0) use :func:`canonical_json`, kept for them.
+JCS = "RFC 8785"
 PREPARED_MEANING = "Prepared: I evaluated this calibration and issued this record"
 
 
@@ -46,6 +49,29 @@ def canonical_json(data: Any) -> bytes:
     ).encode("utf-8")
 
 
+def canonical_bytes(data: Any, *, jcs: bool) -> bytes:
+    """``data`` in RFC 8785 canonical form when ``jcs``, else calib 0.1.0's :func:`canonical_json`.
+
+    RFC 8785 (JSON Canonicalization Scheme) is an open standard with libraries
+    in many languages, so anyone can recompute a digest without calib.
+
+    Examples
+    --------
+    >>> canonical_bytes({"b": 1.0, "a": "µg"}, jcs=True)
+    b'{"a":"\xc2\xb5g","b":1}'
+    >>> canonical_bytes({"b": 1.0, "a": "µg"}, jcs=False)
+    b'{"a":"\xc2\xb5g","b":1.0}'
+    """
+    if jcs:
+        import rfc8785
+
+        try:
+            return rfc8785.dumps(data)
+        except (rfc8785.CanonicalizationError, TypeError) as exc:
+            raise ValueError(f"cannot be canonicalised per RFC 8785: {exc}") from None
+    return canonical_json(data)
+
+
 @dataclass(frozen=True)
 class Record:
     """An issued calibration record.
@@ -59,9 +85,14 @@ class Record:
     body: dict[str, Any]
 
     @property
+    def jcs(self) -> bool:
+        """Whether the record is canonicalised per RFC 8785 (records of calib 0.1.0 are not)."""
+        return self.body.get("canonicalization") == JCS
+
+    @property
     def canonical(self) -> bytes:
-        """The canonical JSON bytes the digest is computed on."""
-        return canonical_json(self.body)
+        """The canonical JSON bytes the digest is computed on (RFC 8785 unless a 0.1.0 record)."""
+        return canonical_bytes(self.body, jcs=self.jcs)
 
     @property
     def digest(self) -> str:
@@ -72,7 +103,7 @@ class Record:
     def content_digest(self) -> str:
         """SHA-256 (hex) of the canonical body without ``signatures``; the same in every version."""
         content = {key: value for key, value in self.body.items() if key != "signatures"}
-        return hashlib.sha256(canonical_json(content)).hexdigest()
+        return hashlib.sha256(canonical_bytes(content, jcs=self.jcs)).hexdigest()
 
     @property
     def record_id(self) -> str:
@@ -118,6 +149,7 @@ def build_record(
         )
     body = {
         "schema": RECORD_SCHEMA,
+        "canonicalization": JCS,
         "created_at": when,
         "tool": {"name": "calib", "version": __version__},
         "libraries": _library_versions(),

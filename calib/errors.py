@@ -11,6 +11,7 @@ One tree, so callers can catch everything calib means to raise with a single
     ├── SignOffError           a sign-off the rules refuse (calib.record.signing)
     ├── KeyFileError           a signing key cannot be read (calib.record.keys)
     ├── PassphraseError        no passphrase for a signing key (calib.record.keys)
+    ├── IntegrityError         a record does not verify, so nothing is done with it
     └── ArchiveError           the archive cannot be opened or refuses a write (calib.archive.store)
 
 Wrong *arguments* (an unknown model name, a confidence of 1.5) raise the
@@ -20,7 +21,8 @@ its acceptance rules is *not* an error: it is a verdict in the result.
 
 from __future__ import annotations
 
-__all__ = ["CalibError", "InputError", "NotAcceptedError", "ProfileError", "TemplateError"]
+__all__ = ["CalibError", "InputError", "IntegrityError", "NotAcceptedError", "ProfileError",
+           "TemplateError"]
 
 
 class CalibError(Exception):
@@ -75,6 +77,10 @@ class ProfileError(CalibError):
 
 class TemplateError(CalibError):
     """A report template cannot be used."""
+
+
+class IntegrityError(CalibError):
+    """A record (or archive) does not verify, so it is not signed or filed (exit code 5)."""
 
 
 class NotAcceptedError(CalibError):

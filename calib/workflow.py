@@ -20,6 +20,7 @@ if TYPE_CHECKING:
     from calib.checks.exclusions import Exclusion
     from calib.checks.history import SlopeHistory
     from calib.checks.narrowing import WorkingRange
+    from calib.record.keys import SigningKey
 
 __all__ = ["check_file", "issue_record", "record_pdf"]
 
@@ -93,11 +94,27 @@ def _slope_history(archive: str | Path | None, profile: Profile, analytes: Seque
 
 def issue_record(
     assessment: RunAssessment, *, prepared_by: str | None = None,
-    created_at: datetime | None = None,
+    created_at: datetime | None = None, key: SigningKey | None = None,
+    template: str | Path | None = None,
 ) -> tuple[Record, bytes]:
-    """Build the record of ``assessment`` and render its PDF; returns both."""
-    record = build_record(assessment, prepared_by=prepared_by, created_at=created_at)
-    return record, record_pdf(record)
+    """Build the record of ``assessment`` and render its PDF; returns both.
+
+    With ``key`` (the issuing analyst's certified key, whose holder is then
+    the preparer) the record is signed by its issuer, in its JSON and as the
+    PDF's first digital signature; without, it is an unsigned draft, and every
+    verification says so.
+    """
+    from calib.record.signing import issue_signed
+    from calib.record.signoff import issue_pdf
+
+    record = build_record(assessment, prepared_by=prepared_by or (key.holder if key else None),
+                          created_at=created_at)
+    if key is not None:
+        record = issue_signed(record, key)
+    from calib.report import load_template
+
+    return record, issue_pdf(record, key=key,
+                             template=load_template(template) if template is not None else None)
 
 
 def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:

@@ -1,4 +1,4 @@
-"""``calib verify``: check that a record PDF (or JSON) is exactly what was issued and signed."""
+"""``calib verify``: check that a record PDF (or JSON) is what was issued and signed."""
 
 from __future__ import annotations
 
@@ -14,39 +14,46 @@ from calib.cli.common import add_debug
 if TYPE_CHECKING:
     from calib.record.verify import VerifyReport
 
+EXIT_VERIFIED, EXIT_NOT_SIGNED, EXIT_INTEGRITY = 0, 1, 5
+
 EXAMPLES = f"""\
 examples:
-  calib verify nitrate.v3.pdf
+  calib verify nitrate.v3.pdf --keyring lab-keyring/
   calib verify nitrate.v3.pdf --keyring lab-keyring/ --archive records.sqlite
   calib verify nitrate.v3.json --keyring lab-keyring/ --json
 
-Checks that the attached record data is intact and matches the digest the pages state, that
-the pages are exactly a fresh rendering of that data, that every signature's links to earlier
-versions hold, that every key signature verifies with its key in the keyring (a folder of
-*.pub.pem files), that the sign-off rules were kept, and with --archive (or {ARCHIVE_ENV} set)
-that this version is in the archive with the same bytes and the archive's chain verifies.
-A key signature that cannot be checked (no --keyring, or its key is not in the keyring) counts
-as a problem.  A record JSON has no pages; the other checks apply.
+Checks the record data (canonical JSON per RFC 8785, its digests and the links between
+versions), every digital signature of the PDF (ISO 32000 / PAdES: intact, and nothing but
+later signatures changed the file), every key signature (certificate issued by a lab
+authority in the keyring, valid at the signing time, printed name = key holder), the
+sign-off rules, and with --archive (or {ARCHIVE_ENV} set) the archived copy and chain.
+Drawing the pages again is only a note: a layout change in a later calib is not a problem.
+A key signature that cannot be checked (no --keyring, or its authority is not in it) counts
+as a problem.  A record not signed by its issuer is a draft: "intact", never "verified".
 
-exit codes: 0 intact, 1 any problem (each named on its own line), 2 usage error,
-            3 unreadable file, keyring, template or archive
+exit codes: 0 verified (intact, issuer-signed, every signature key-verified),
+            1 intact but not signed throughout (a draft, or printed-name-only signatures),
+            2 usage error, 3 unreadable file, keyring or archive,
+            5 NOT VERIFIED (each problem named on its own line)
 """
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
     parser = sub.add_parser(
-        "verify", help="check a record PDF or JSON for any alteration",
-        description="Verify a calibration record: digests, pages, signatures, archive entry.",
+        "verify", help="check a record PDF or JSON: content, signatures, archive",
+        description="Verify a calibration record: content digest, signatures, archive entry.",
         epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     parser.add_argument("record", metavar="RECORD", help="record PDF or record JSON")
-    parser.add_argument("--keyring", metavar="DIR", help="folder of public keys (*.pub.pem)")
+    parser.add_argument("--keyring", metavar="DIR",
+                        help="folder of lab authority certificates (*.cert.pem; calib 0.1.0 "
+                             "public keys *.pub.pem)")
     add_archive_option(parser, help_text="archive to look the version up in; default: the "
                                          f"{ARCHIVE_ENV} environment variable, if set")
     parser.add_argument("--template", metavar="T",
-                        help="report template the record was issued with (default: bundled)")
+                        help="report template for the re-drawing note (default: bundled)")
     parser.add_argument("--json", action="store_true",
-                        help="print the report as JSON (schema calib.verify/1)")
+                        help="print the report as JSON (schema calib.verify/2)")
     add_debug(parser)
     parser.set_defaults(handler=run)
 
@@ -72,14 +79,21 @@ def run(args: argparse.Namespace) -> int:
         sys.stdout.write("\n")
     else:
         print(report_text(report))
-    return 0 if report.ok else 1
+    return exit_code(report)
+
+
+def exit_code(report: VerifyReport) -> int:
+    """0 verified, 1 intact but not signed throughout, 5 not verified."""
+    return {"verified": EXIT_VERIFIED, "intact": EXIT_NOT_SIGNED}.get(report.verdict,
+                                                                       EXIT_INTEGRITY)
 
 
 def report_text(report: VerifyReport) -> str:
     """Verdict line, then one line per problem, then what was checked."""
-    count = len(report.problems)
-    lines = [f"{report.file}: intact" if report.ok else
-             f"{report.file}: NOT VERIFIED, {count} problem{'s' if count != 1 else ''}"]
+    from calib.cli import render
+
+    lines = [f"{report.file}: {report.summary()}"]
     lines += [f"  problem: {p.message}" for p in report.problems]
     lines += [f"  checked: {note}" for note in report.notes]
+    lines.append(render.cautions_text())
     return "\n".join(lines)

@@ -23,6 +23,7 @@ from calib.cautions import CAUTIONS
 from calib.checks.evaluate import RunAssessment
 from calib.fit.bands import band_figures
 from calib.record.document import check_document, finite_or_none
+from calib.record.identity import check_printed_name
 
 __all__ = ["JCS", "RECORD_SCHEMA", "Record", "build_record", "canonical_bytes", "canonical_json"]
 
@@ -136,10 +137,13 @@ def build_record(
     assessment : RunAssessment
         The fitted and checked run.
     prepared_by : str, optional
-        Printed name of the analyst issuing the record.
+        Printed name of the analyst issuing the record (ValueError when it holds
+        invisible characters or mixes scripts: :func:`calib.record.identity.check_printed_name`).
     created_at : datetime, optional
         Issue time (UTC); now when omitted.
     """
+    if prepared_by is not None:
+        prepared_by = check_printed_name(prepared_by, what="the preparer's printed name")
     when = (created_at or datetime.now(UTC)).astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     run, profile = assessment.run, assessment.profile
     signatures = []

@@ -29,10 +29,13 @@ authority in the keyring, valid at the signing time, printed name = key holder),
 sign-off rules, and with --archive (or {ARCHIVE_ENV} set) the archived copy and chain.
 Drawing the pages again is only a note: a layout change in a later calib is not a problem.
 A key signature that cannot be checked (no --keyring, or its authority is not in it) counts
-as a problem.  A record not signed by its issuer is a draft: "intact", never "verified".
+as a problem.  
+The first line says "verified" (intact, signed by its issuer, every signature verified with
+a certified key) or "intact, origin not verified throughout" (a draft not signed by an
+issuer, or printed-name-only signatures: anyone with calib could make such a file).
 
-exit codes: 0 verified (intact, issuer-signed, every signature key-verified),
-            1 intact but not signed throughout (a draft, or printed-name-only signatures),
+exit codes: 0 intact (verified, or a draft: the first line says which),
+            1 with --require-signed: intact but not signed throughout,
             2 usage error, 3 unreadable file, keyring or archive,
             5 NOT VERIFIED (each problem named on its own line)
 """
@@ -52,6 +55,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                                          f"{ARCHIVE_ENV} environment variable, if set")
     parser.add_argument("--template", metavar="T",
                         help="report template for the re-drawing note (default: bundled)")
+    parser.add_argument("--require-signed", action="store_true",
+                        help="exit 1 unless the record is signed by its issuer and every "
+                             "signature is key-verified (a lab whose records are all signed)")
     parser.add_argument("--json", action="store_true",
                         help="print the report as JSON (schema calib.verify/2)")
     add_debug(parser)
@@ -79,13 +85,16 @@ def run(args: argparse.Namespace) -> int:
         sys.stdout.write("\n")
     else:
         print(report_text(report))
-    return exit_code(report)
+    return exit_code(report, require_signed=args.require_signed)
 
 
-def exit_code(report: VerifyReport) -> int:
-    """0 verified, 1 intact but not signed throughout, 5 not verified."""
-    return {"verified": EXIT_VERIFIED, "intact": EXIT_NOT_SIGNED}.get(report.verdict,
-                                                                       EXIT_INTEGRITY)
+def exit_code(report: VerifyReport, *, require_signed: bool = False) -> int:
+    """0 intact (verified, or a draft unless ``require_signed``), 1 not signed throughout, 5 not verified."""
+    if report.verdict == "not verified":
+        return EXIT_INTEGRITY
+    if report.verdict == "intact" and require_signed:
+        return EXIT_NOT_SIGNED
+    return EXIT_VERIFIED
 
 
 def report_text(report: VerifyReport) -> str:

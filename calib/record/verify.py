@@ -29,8 +29,9 @@ archive
 
 The report's :attr:`VerifyReport.verdict` is ``"verified"`` (no problem,
 signed by its issuer and every signature key-verified), ``"intact"`` (no
-problem, but a draft not signed by an issuer or with printed-name-only
-signatures) or ``"not verified"``.  Rendering the pages again is only a note
+problem found, but a draft not signed by an issuer or with printed-name-only
+signatures: anyone with calib can make such a file, so its origin is not
+verified) or ``"not verified"``.  Rendering the pages again is only a note
 ("this release draws the same pages", or not): layouts change between
 releases, signatures and digests do not.
 """
@@ -140,7 +141,7 @@ class VerifyReport:
         gaps = [] if self.issuer_signed else [DRAFT_NOTE]
         gaps += [f"signature {s.index + 1} ({s.role} by {s.name}) is a printed name only, not "
                  "key-verified" for s in self.unkeyed if s.role != "prepared"]
-        return "intact, but not signed throughout: " + "; ".join(gaps)
+        return "intact, origin not verified throughout: " + "; ".join(gaps)
 
     def to_json(self) -> dict[str, Any]:
         """The report as JSON-ready data (``calib verify --json``)."""

@@ -37,7 +37,8 @@ LAB = "Fernbrook Water Laboratory"
 KEYS_MADE = datetime(2026, 11, 1, tzinfo=UTC)
 #: Short key names used by the tests, and the people they belong to.
 HOLDERS = {"z-lukasiewicz-ng": PREPARER, "t-overgaard": REVIEWER, "a-mbeki-hale": APPROVER}
-LENIENT = "\n[signoff]\nallow_preparer_to_review = true\nallow_preparer_to_approve = true\n"
+LENIENT = ("\n[signoff]\nallow_preparer_to_review = true\nallow_preparer_to_approve = true\n"
+           "allow_reviewer_to_approve = true\n")
 
 
 @functools.cache

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import io
 import json
+import logging
 from collections.abc import Mapping
 from dataclasses import dataclass
 from datetime import datetime
@@ -281,6 +282,11 @@ def read_pdf_signatures(pdf: bytes, *, trust_roots: list[Any] | None = None
                         ) -> tuple[list[PdfSignature], list[str]]:
     """The PDF signatures of a record file, validated, oldest first; and what could not be read.
 
+    Validation trusts only ``trust_roots`` and uses each signature's own stated
+    time as the moment of validation (no time-stamp authority is involved), so
+    a certificate that expired since still validates a signature made while it
+    was valid.
+
     Parameters
     ----------
     pdf : bytes
@@ -294,12 +300,9 @@ def read_pdf_signatures(pdf: bytes, *, trust_roots: list[Any] | None = None
         The signatures, and damage found while reading them (empty when none).
     """
     from asn1crypto import x509 as asn1_x509
-    from cryptography import x509
     from cryptography.hazmat.primitives import serialization
     from pyhanko.pdf_utils.misc import PdfError
     from pyhanko.pdf_utils.reader import PdfFileReader
-    from pyhanko.sign.validation import validate_pdf_signature
-    from pyhanko_certvalidator import ValidationContext
 
     roots = [asn1_x509.Certificate.load(c.public_bytes(serialization.Encoding.DER))
              for c in trust_roots or ()]
@@ -309,29 +312,45 @@ def read_pdf_signatures(pdf: bytes, *, trust_roots: list[Any] | None = None
     except (PdfError, ValueError, KeyError, TypeError) as exc:
         return [], [f"its digital signatures cannot be read ({exc})"]
     found, damage = [], []
-    for sig in embedded:
-        try:
-            when = sig.self_reported_timestamp
-            context = ValidationContext(trust_roots=roots, allow_fetching=False, moment=when,
-                                        revocation_mode="soft-fail")
-            status = validate_pdf_signature(sig, context)
-            signer_der = sig.signer_cert.dump()
-        except Exception as exc:  # noqa: BLE001 - a hostile file may break the validator anywhere
-            damage.append(f"signature field {sig.field_name!r} cannot be validated "
-                          f"({type(exc).__name__}: {exc})")
-            continue
-        entry = _entry_of(sig.sig_object)
-        level = status.modification_level
-        changes = "none" if level is None else level.name.lower().replace("_", " ")
-        holder = certificate_holder(x509.load_der_x509_certificate(signer_der)) or "?"
-        found.append(PdfSignature(
-            field=str(sig.field_name), revision=int(sig.signed_revision), entry=entry,
-            signer_der=signer_der, signer=holder, intact=bool(status.intact),
-            valid=bool(status.valid), trusted=bool(status.trusted),
-            whole_file=status.coverage.name == "ENTIRE_FILE",
-            changes_after=changes, changes_ok=bool(status.docmdp_ok) and changes in (
-                "none", "lta updates", "form filling")))
+    # Without trust roots pyhanko logs every failed certificate path; the report says it instead.
+    log = logging.getLogger("pyhanko")
+    level = log.level
+    log.setLevel(logging.CRITICAL)
+    try:
+        for sig in embedded:
+            _validate_one(sig, roots, found, damage)
+    finally:
+        log.setLevel(level)
     return found, damage
+
+
+def _validate_one(sig: Any, roots: list[Any], found: list[PdfSignature],
+                  damage: list[str]) -> None:
+    from cryptography import x509
+    from pyhanko.sign.validation import validate_pdf_signature
+    from pyhanko_certvalidator import ValidationContext
+
+    try:
+        when = sig.self_reported_timestamp
+        context = ValidationContext(trust_roots=roots, allow_fetching=False, moment=when,
+                                    revocation_mode="soft-fail")
+        status = validate_pdf_signature(sig, context)
+        signer_der = sig.signer_cert.dump()
+    except Exception as exc:  # noqa: BLE001 - a hostile file may break the validator anywhere
+        damage.append(f"signature field {sig.field_name!r} cannot be validated "
+                      f"({type(exc).__name__}: {exc})")
+        return
+    entry = _entry_of(sig.sig_object)
+    level = status.modification_level
+    changes = "none" if level is None else level.name.lower().replace("_", " ")
+    holder = certificate_holder(x509.load_der_x509_certificate(signer_der)) or "?"
+    found.append(PdfSignature(
+        field=str(sig.field_name), revision=int(sig.signed_revision), entry=entry,
+        signer_der=signer_der, signer=holder, intact=bool(status.intact),
+        valid=bool(status.valid), trusted=bool(status.trusted),
+        whole_file=status.coverage.name == "ENTIRE_FILE",
+        changes_after=changes, changes_ok=bool(status.docmdp_ok) and changes in (
+            "none", "lta updates", "form filling")))
 
 
 def _entry_of(sig_object: Any) -> dict[str, Any] | None:

@@ -308,8 +308,9 @@ def signoff_policy(text: str, *, origin: str = "profile") -> SignoffPolicy:
 
     Examples
     --------
-    >>> signoff_policy('[signoff]\\nallow_preparer_to_review = true\\n')
-    SignoffPolicy(allow_preparer_to_review=True, allow_preparer_to_approve=False, allow_reviewer_to_approve=False, require_key_signatures=False)
+    >>> policy = signoff_policy('[signoff]\\nallow_preparer_to_review = true\\n')
+    >>> policy.allow_preparer_to_review, policy.allow_reviewer_to_approve
+    (True, False)
     >>> signoff_policy('name = "x"\\n').allow_preparer_to_approve
     False
     """

@@ -89,7 +89,7 @@ def run(args: argparse.Namespace) -> int:
 
 
 def exit_code(report: VerifyReport, *, require_signed: bool = False) -> int:
-    """0 intact (verified, or a draft unless ``require_signed``), 1 not signed throughout, 5 not verified."""
+    """0 intact (verified, or a draft unless ``require_signed``), 1 not signed, 5 not verified."""
     if report.verdict == "not verified":
         return EXIT_INTEGRITY
     if report.verdict == "intact" and require_signed:

@@ -158,10 +158,7 @@ class _Imported:
 
 
 def _signature_page(writer: Any) -> tuple[int, float, float]:
-    """Index and size of the signature page, appending it when the file has none yet."""
-    from pyhanko.pdf_utils import generic
-    from pyhanko.pdf_utils.reader import PdfFileReader
-
+    """Index and size of the signature page; the page count when the file has none yet."""
     count = int(writer.root["/Pages"]["/Count"])
     for index in range(count):
         page = writer.find_page_for_modification(index)[0].get_object()
@@ -301,7 +298,6 @@ def read_pdf_signatures(pdf: bytes, *, trust_roots: list[Any] | None = None
     """
     from asn1crypto import x509 as asn1_x509
     from cryptography.hazmat.primitives import serialization
-    from pyhanko.pdf_utils.misc import PdfError
     from pyhanko.pdf_utils.reader import PdfFileReader
 
     roots = [asn1_x509.Certificate.load(c.public_bytes(serialization.Encoding.DER))
@@ -309,8 +305,8 @@ def read_pdf_signatures(pdf: bytes, *, trust_roots: list[Any] | None = None
     try:
         reader = PdfFileReader(io.BytesIO(pdf), strict=False)
         embedded = sorted(reader.embedded_signatures, key=lambda s: s.signed_revision)
-    except (PdfError, ValueError, KeyError, TypeError) as exc:
-        return [], [f"its digital signatures cannot be read ({exc})"]
+    except Exception as exc:  # noqa: BLE001 - a hostile file may break the parser anywhere
+        return [], [f"its digital signatures cannot be read ({type(exc).__name__}: {exc})"]
     found, damage = [], []
     # Without trust roots pyhanko logs every failed certificate path; the report says it instead.
     log = logging.getLogger("pyhanko")

@@ -102,7 +102,7 @@ def keyring(folder: Path, lab: str = LAB):
 
 
 def make_keys(folder: Path, *names: str):
-    """Keys for ``names`` (short names of :data:`HOLDERS`, or full names) and a keyring in folder."""
+    """Keys for ``names`` (short names of :data:`HOLDERS`, or full names) and a keyring."""
     keys = {name: person_key(HOLDERS.get(name, name)) for name in names}
     return keys, keyring(folder / "ring")
 

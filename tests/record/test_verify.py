@@ -17,9 +17,8 @@ from pypdf import PdfReader, PdfWriter
 
 from calib.errors import InputError
 from calib.record import Record
-from calib.record.signing import sign_record
 from calib.record.signoff import sign_bytes
-from calib.record.verify import read_record_file, verify_bytes, verify_file
+from calib.record.verify import verify_bytes, verify_file
 from tests.record.integrity_helpers import (
     APPROVED_AT,
     APPROVER,

@@ -19,8 +19,8 @@ weakened copy cannot be slipped in.
 
 The passphrase must be at least :data:`MIN_PASSPHRASE` characters when a key
 is made.  A key file, or its folder, that other users could write is refused
-(they could replace it with a key of their own), as is one other users can
-read; the message says how to fix it.
+(they could replace it with a key of their own); the message says how to
+fix it.
 """
 
 from __future__ import annotations
@@ -152,13 +152,16 @@ def decrypt_key_file(data: bytes, *, passphrase: bytes, path: Path) -> tuple[byt
 
 
 def check_private_permissions(path: Path) -> None:
-    """Refuse a private key file that other users could replace or read.
+    """Refuse a private key file that other users could replace.
+
+    Reading it does not help them: the key is encrypted with the passphrase
+    (calib writes it owner-only all the same).
 
     Raises
     ------
     KeyFileError
-        On POSIX systems, if the file or its folder is writable by group or
-        others, or the file is readable by them.
+        On POSIX systems, if the file is writable by group or others, or its
+        folder by anyone (without the sticky bit that stops them replacing it).
     """
     if os.name != "posix":
         return  # Windows ACLs are not visible as mode bits; nothing to judge by.
@@ -175,9 +178,6 @@ def check_private_permissions(path: Path) -> None:
         raise KeyFileError(f"{path.parent}: the folder of the private key can be changed by any "
                            "user; calib refuses keys kept there: move the key to a folder of "
                            "your own")
-    if mode & 0o044:
-        raise KeyFileError(f"{path}: the private key file can be read by other users (mode "
-                           f"{mode:03o}); calib refuses it: run chmod 600 {path}")
 
 
 def write_new(path: Path, data: bytes, *, mode: int) -> None:

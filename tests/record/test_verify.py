@@ -532,3 +532,26 @@ def test_archive_copy_that_differs(signed):
         "the PDF differs from the copy in the archive fake.sqlite (entry seq 4)",
         "the archive fake.sqlite: entry seq 4: bad",
     ]
+
+
+def test_signature_added_with_a_key_of_another_lab(signed):
+    # Anyone can make a lab authority of their own and append a PDF signature: the signature is
+    # intact, but its certificate does not chain to the lab's authority, so it is not accepted.
+    from tests.record.integrity_helpers import person_key
+
+    outsider = person_key("Mallory Quist", lab="Kestrel Bioanalytical")
+    pdf = signed["paths"][1].read_bytes()
+    forged = sign_bytes(pdf, role="approved", key=outsider, signed_at=APPROVED_AT)
+    report = verify_bytes(forged.pdf, name="forged.pdf", keyring=signed["ring"])
+    assert report.verdict == "not verified" and report.pdf_signatures == 3
+    assert messages(report) == [
+        ("signature 3 (approved by Mallory Quist) was made with a key certified by 'Kestrel "
+         "Bioanalytical record signing authority', which is not a lab authority of the keyring "
+         f"{signed['ring'].folder}")]
+
+
+def test_record_from_pdf_gives_the_current_version(signed):
+    from calib.record import record_from_pdf
+
+    for path, version in zip(signed["paths"], signed["versions"]):
+        assert record_from_pdf(path.read_bytes()).canonical == version.canonical

@@ -299,15 +299,26 @@ def read_pdf_signatures(pdf: bytes, *, trust_roots: list[Any] | None = None
     from asn1crypto import x509 as asn1_x509
     from cryptography.hazmat.primitives import serialization
     from pyhanko.pdf_utils.reader import PdfFileReader
+    from pyhanko.sign.fields import enumerate_sig_fields
+    from pyhanko.sign.validation.pdf_embedded import EmbeddedPdfSignature
 
     roots = [asn1_x509.Certificate.load(c.public_bytes(serialization.Encoding.DER))
              for c in trust_roots or ()]
+    found: list[PdfSignature] = []
+    damage: list[str] = []
+    embedded = []
     try:
         reader = PdfFileReader(io.BytesIO(pdf), strict=False)
-        embedded = sorted(reader.embedded_signatures, key=lambda s: s.signed_revision)
+        fields = list(enumerate_sig_fields(reader, filled_status=True))
     except Exception as exc:  # noqa: BLE001 - a hostile file may break the parser anywhere
         return [], [f"its digital signatures cannot be read ({type(exc).__name__}: {exc})"]
-    found, damage = [], []
+    for name, _, field_ref in fields:
+        try:  # one damaged signature must not hide the others
+            embedded.append(EmbeddedPdfSignature(reader, field_ref, name))
+        except Exception as exc:  # noqa: BLE001
+            damage.append(f"signature field {name!r} cannot be read ({type(exc).__name__}: "
+                          f"{exc})")
+    embedded.sort(key=lambda s: s.signed_revision)
     # Without trust roots pyhanko logs every failed certificate path; the report says it instead.
     log = logging.getLogger("pyhanko")
     level = log.level

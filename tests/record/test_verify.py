@@ -555,3 +555,19 @@ def test_record_from_pdf_gives_the_current_version(signed):
 
     for path, version in zip(signed["paths"], signed["versions"]):
         assert record_from_pdf(path.read_bytes()).canonical == version.canonical
+
+
+def test_damaged_signature_value_is_a_finding_not_a_crash(signed):
+    # Overwrite the start of the last signature's CMS value (/Contents <hex>) with zeros.
+    pdf = bytearray(signed["paths"][1].read_bytes())
+    at = pdf.rindex(b"/Contents <") + len(b"/Contents <")
+    pdf[at:at + 64] = b"0" * 64
+    report = verify_bytes(bytes(pdf), name="damaged.pdf", keyring=signed["ring"])
+    assert report.verdict == "not verified"
+    found = messages(report, "pdf")
+    assert found[0].startswith("the PDF is damaged: signature field 'calib-reviewed' cannot be "
+                               "read (ValueError: ")
+    # The issuer's signature still reads and verifies; the review it cannot count.
+    assert found[1:] == ["the file was changed after its last signature: it holds bytes that no "
+                         "signature covers (an edit saved as an incremental update)"]
+    assert [s.role for s in report.signatures] == ["prepared"]

@@ -12,6 +12,7 @@ One tree, so callers can catch everything calib means to raise with a single
     ├── SignOffError           a sign-off the rules refuse (calib.record.signing)
     ├── KeyFileError           a signing key cannot be read (calib.record.keys)
     ├── PassphraseError        no passphrase for a signing key (calib.record.keys)
+    ├── IntegrityError         a record does not verify, so nothing is done with it
     └── ArchiveError           the archive cannot be opened or refuses a write (calib.archive.store)
 
 Wrong *arguments* (an unknown model name, a confidence of 1.5) raise the
@@ -21,7 +22,8 @@ its acceptance rules is *not* an error: it is a verdict in the result.
 
 from __future__ import annotations
 
-__all__ = ["CalibError", "ConfigError", "InputError", "NotAcceptedError", "ProfileError",
+__all__ = ["CalibError", "ConfigError", "InputError", "IntegrityError", "NotAcceptedError",
+           "ProfileError",
            "TemplateError"]
 
 
@@ -81,6 +83,10 @@ class TemplateError(CalibError):
 
 class ConfigError(CalibError):
     """The lab settings file cannot be used (the message names the file and the key)."""
+
+
+class IntegrityError(CalibError):
+    """A record (or archive) does not verify, so it is not signed or filed (exit code 5)."""
 
 
 class NotAcceptedError(CalibError):

@@ -505,21 +505,27 @@ def record_template(path: str | os.PathLike[str]) -> ReportTemplate | None:
         return None
 
 
-def sign(path: str | os.PathLike[str], *, role: str, name: str, meaning: str | None = None,
-         key: Any = None, template: Any = None, archive: str | os.PathLike[str] | None = None,
-         signed_at: datetime | None = None) -> SignOutcome:
+def sign(path: str | os.PathLike[str], *, role: str, name: str | None = None,
+         meaning: str | None = None, key: Any = None, keyring: Any = None, template: Any = None,
+         archive: str | os.PathLike[str] | None = None, signed_at: datetime | None = None,
+         want_pdf: bool = True) -> SignOutcome:
     """Sign a record file (delegates to :func:`calib.record.signoff.sign_file`); file it.
 
     The template is the one the record names unless ``template`` is given.
     Nothing is written to disk here: the caller writes ``outcome.signed.pdf``.
+    With ``archive`` the PDF is always made (the archive keeps it).
     """
+    from calib.record.keys import load_keyring
     from calib.record.signoff import file_versions, sign_file
     from calib.report.template import load_template
 
+    if isinstance(keyring, (str, os.PathLike)):
+        keyring = load_keyring(keyring)
     chosen = (load_template(template) if isinstance(template, (str, os.PathLike))
               else template or record_template(path))
     signed = sign_file(path, role=role, name=name, meaning=meaning, key=key, template=chosen,
-                       signed_at=signed_at)
+                       signed_at=signed_at, keyring=keyring,
+                       want_pdf=want_pdf or archive is not None)
     entries: list[Any] = []
     if archive is not None:
         from calib.archive import Archive

@@ -20,6 +20,7 @@ if TYPE_CHECKING:
     from calib.checks.exclusions import Exclusion
     from calib.checks.history import SlopeHistory
     from calib.checks.narrowing import WorkingRange
+    from calib.record.keys import SigningKey
     from calib.report.template import ReportTemplate
 
 __all__ = ["build_issued_record", "check_file", "issue_record", "record_pdf", "render_record"]
@@ -94,20 +95,29 @@ def _slope_history(archive: str | Path | None, profile: Profile, analytes: Seque
 
 def issue_record(
     assessment: RunAssessment, *, prepared_by: str | None = None,
-    created_at: datetime | None = None, template: str | Path | ReportTemplate | None = None,
+    created_at: datetime | None = None, key: SigningKey | None = None,
+    template: str | Path | ReportTemplate | None = None,
 ) -> tuple[Record, bytes]:
     """Build the record of ``assessment`` and render its PDF; returns both (nothing written).
 
     ``template`` defaults to the lab's (see
     :func:`calib.report.template.resolve_template`); the record names it.
-    :func:`calib.service.issue` does this and also writes and files the record.
+    With ``key`` (the issuing analyst's certified key, whose holder is then the
+    preparer) the record is signed by its issuer, in its JSON and as the PDF's
+    first digital signature; without, it is an unsigned draft, and every
+    verification says so. :func:`calib.service.issue` does this and also writes
+    and files the record.
     """
+    from calib.record.signing import issue_signed
+    from calib.record.signoff import issue_pdf
     from calib.report.template import resolve_template
 
     chosen = resolve_template(template)
-    record = build_issued_record(assessment, prepared_by=prepared_by, created_at=created_at,
-                                 template=chosen)
-    return record, render_record(record, chosen)
+    record = build_issued_record(assessment, prepared_by=prepared_by or (key.holder if key else None),
+                                 created_at=created_at, template=chosen)
+    if key is not None:
+        record = issue_signed(record, key)
+    return record, issue_pdf(record, key=key, template=chosen)
 
 
 def build_issued_record(assessment: RunAssessment, *, prepared_by: str | None,
@@ -124,13 +134,10 @@ def build_issued_record(assessment: RunAssessment, *, prepared_by: str | None,
 
 def render_record(record: Record, template: ReportTemplate) -> bytes:
     """Render ``record`` with ``template`` as its PDF (the record JSON attached inside)."""
-    import hashlib
-
     from calib.report import write_pdf
 
-    canonical = record.canonical  # serialised once: the digest is of these bytes
-    return write_pdf(record.body, digest=hashlib.sha256(canonical).hexdigest(),
-                     record_id=record.record_id, template=template, attachment=canonical)
+    return write_pdf(record.body, digest=record.digest, record_id=record.record_id,
+                     template=template, attachment=record.canonical)
 
 
 def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:

@@ -209,13 +209,13 @@ class DerivedRecord:
 
 def derive_record(data: bytes) -> DerivedRecord:
     """Re-read a record from its JSON bytes; ValueError when they are not a canonical record."""
-    from calib.record import Record, canonical_json
+    from calib.record import Record
 
     try:
         record = Record.from_json(data)
     except (ValueError, UnicodeDecodeError) as exc:
         raise ValueError(f"not a calib record JSON ({exc})") from None
-    if canonical_json(record.body) != data:
+    if record.canonical != data:  # RFC 8785 for new records, calib 0.1.0 form for old
         raise ValueError("the JSON is not in canonical form")
     return DerivedRecord(record.record_id, hashlib.sha256(data).hexdigest(),
                          record.content_digest, record_facts(record.body))

@@ -35,7 +35,8 @@ _TOP_KEYS = {"name", "version", "description", "sources", "defaults", "rules", "
              "narrowing"}
 _NARROWING_KEYS = ("propose", "max_dropped_levels")
 _SEVERITY_RANK = {Severity.INFO: 0, Severity.REVIEW: 1, Severity.REJECT: 2}
-_SIGNOFF_KEYS = ("allow_preparer_to_review", "allow_preparer_to_approve")
+_SIGNOFF_KEYS = ("allow_preparer_to_review", "allow_preparer_to_approve",
+                 "allow_reviewer_to_approve", "require_key_signatures")
 _DEFAULT_KEYS = {"model", "weighting", "confidence", "zero_standards", "lod_method"}
 _ZERO_CHOICES = ("fit", "exclude")
 
@@ -83,10 +84,18 @@ class SignoffPolicy:
     ----------
     allow_preparer_to_review, allow_preparer_to_approve : bool
         Whether the analyst who prepared the record may review / approve it.
+    allow_reviewer_to_approve : bool
+        Whether the reviewer may also approve it.
+    require_key_signatures : bool
+        Whether review, approval and rejection must be signed with a person's key
+        (21 CFR 11.200(a): two distinct identification components); printed-name-only
+        signatures are then refused.
     """
 
     allow_preparer_to_review: bool = False
     allow_preparer_to_approve: bool = False
+    allow_reviewer_to_approve: bool = False
+    require_key_signatures: bool = False
 
 
 @dataclass(frozen=True)
@@ -299,8 +308,9 @@ def signoff_policy(text: str, *, origin: str = "profile") -> SignoffPolicy:
 
     Examples
     --------
-    >>> signoff_policy('[signoff]\\nallow_preparer_to_review = true\\n')
-    SignoffPolicy(allow_preparer_to_review=True, allow_preparer_to_approve=False)
+    >>> policy = signoff_policy('[signoff]\\nallow_preparer_to_review = true\\n')
+    >>> policy.allow_preparer_to_review, policy.allow_reviewer_to_approve
+    (True, False)
     >>> signoff_policy('name = "x"\\n').allow_preparer_to_approve
     False
     """

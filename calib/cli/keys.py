@@ -1,4 +1,4 @@
-"""``calib keys new``: make a signer's Ed25519 key pair; and the passphrase rules of the CLI."""
+"""``calib keys``: the lab's signing authority and each signer's certified key; passphrase rules."""
 
 from __future__ import annotations
 
@@ -9,37 +9,43 @@ import sys
 from calib.cli.common import add_debug
 
 PASSPHRASE_ENV = "CALIB_KEY_PASSPHRASE"
+AUTHORITY_ENV = "CALIB_AUTHORITY_PASSPHRASE"
 
 EXAMPLES = f"""\
 examples:
-  calib keys new t-overgaard --out ~/.calib-keys
-  {PASSPHRASE_ENV}='heron 42 weir' calib keys new r-okafor --out keys/
+  calib keys lab-init --lab "Fernbrook Water Laboratory" --out lab-authority/
+  calib keys new "Tomasz Øvergaard" --authority lab-authority/lab-authority.key.json \\
+      --out ~/.calib-keys
+  cp lab-authority/lab-authority.cert.pem lab-keyring/     # what calib verify --keyring trusts
 
-The passphrase encrypting the private key comes from the environment variable
-{PASSPHRASE_ENV} or, on a terminal, is asked for twice.  Copy NAME.pub.pem into
-the lab keyring folder; keep NAME.key.pem to yourself.
+The lab makes its signing authority once (keep lab-authority.key.json offline, with its
+passphrase known to the people who issue keys).  Each signer gets a key whose certificate
+names them by their full printed name: a signature made with it always carries that name.
+Passphrases (at least 12 characters) come from {PASSPHRASE_ENV} (the new or used key) and
+{AUTHORITY_ENV} (the authority key), or, on a terminal, are asked for.
 
-exit codes: 0 key pair written, 2 usage error, 3 no passphrase, or the files exist
+exit codes: 0 written, 2 usage error, 3 no or short passphrase, files exist, unreadable or
+            unprotected authority key
 """
 
 
-def read_passphrase(*, purpose: str, confirm: bool = False) -> bytes:
-    """The passphrase from ``CALIB_KEY_PASSPHRASE`` or, only on a terminal, a prompt.
+def read_passphrase(*, purpose: str, confirm: bool = False, env: str = PASSPHRASE_ENV) -> bytes:
+    """The passphrase from the environment variable ``env`` or, only on a terminal, a prompt.
 
     Without either it fails at once with a clear error: a command run from a
     script or a test must never wait for input that cannot come.
     """
     from calib.record.keys import PassphraseError
 
-    value = os.environ.get(PASSPHRASE_ENV)
+    value = os.environ.get(env)
     if value is not None:
         if not value:
-            raise PassphraseError(f"{PASSPHRASE_ENV} is set but empty; a key needs a passphrase")
+            raise PassphraseError(f"{env} is set but empty; a key needs a passphrase")
         return value.encode("utf-8")
     if not sys.stdin.isatty():
         raise PassphraseError(
-            f"no passphrase for {purpose}: set {PASSPHRASE_ENV}, or run calib on a terminal "
-            "to be asked for one")
+            f"no passphrase for {purpose}: set {env}, or run calib on a terminal to be asked "
+            "for one")
     import getpass
 
     first = getpass.getpass(f"Passphrase for {purpose}: ")
@@ -50,46 +56,78 @@ def read_passphrase(*, purpose: str, confirm: bool = False) -> bytes:
     return first.encode("utf-8")
 
 
-def _key_name(text: str) -> str:
-    from calib.record.keys import check_key_name
+def _printed_name(text: str) -> str:
+    from calib.record.identity import check_printed_name
 
     try:
-        return check_key_name(text)
+        return check_printed_name(text)
     except ValueError as exc:
         raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
     parser = sub.add_parser(
-        "keys", help="make signing keys (Ed25519) for calib sign",
-        description="Signing keys for calib sign: a key pair per signer, and a keyring folder "
-                    "of public keys that calib verify checks signatures with.",
+        "keys", help="the lab's signing authority and each signer's certified key",
+        description="Signing keys for calib: a lab authority certifies one key per person, by "
+                    "full printed name; calib verify trusts the authority's certificate.",
         epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     actions = parser.add_subparsers(dest="keys_command", metavar="ACTION")
     actions.required = True
-    new = actions.add_parser(
-        "new", help="make a key pair: NAME.key.pem (encrypted) and NAME.pub.pem",
-        description="Make an Ed25519 key pair. The private key is written encrypted with a "
-                    "passphrase; the public key is for the lab keyring.",
+    init = actions.add_parser(
+        "lab-init", help="make the lab's signing authority (once per lab)",
+        description="Make the lab's signing authority: lab-authority.key.json (encrypted) and "
+                    "lab-authority.cert.pem (copy it into the lab keyring).",
         epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    new.add_argument("name", metavar="NAME", type=_key_name,
-                     help="key name: letters, digits, '.', '_' or '-' (e.g. t-overgaard)")
-    new.add_argument("--out", metavar="DIR", required=True,
-                     help="folder to write NAME.key.pem and NAME.pub.pem to")
+    init.add_argument("--lab", required=True, metavar="NAME", type=_printed_name,
+                      help='the laboratory\'s name, e.g. "Fernbrook Water Laboratory"')
+    init.add_argument("--out", required=True, metavar="DIR", help="folder to write to")
+    add_debug(init)
+    init.set_defaults(handler=run_lab_init)
+    new = actions.add_parser(
+        "new", help="make a signer's key and certificate, issued by the lab authority",
+        description="Make a signer's ECDSA P-256 key (encrypted with their passphrase) and an "
+                    "X.509 certificate naming them, signed by the lab authority.",
+        epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    new.add_argument("holder", metavar="FULL_NAME", type=_printed_name,
+                     help='the signer\'s full printed name, e.g. "Tomasz Øvergaard"')
+    new.add_argument("--authority", required=True, metavar="KEY",
+                     help="the lab authority key (lab-authority.key.json)")
+    new.add_argument("--out", required=True, metavar="DIR",
+                     help="folder to write NAME.key.json and NAME.cert.pem to")
     add_debug(new)
     new.set_defaults(handler=run_new)
 
 
-def run_new(args: argparse.Namespace) -> int:
-    from calib.record.keys import new_key
+def run_lab_init(args: argparse.Namespace) -> int:
+    from calib.record.keys import lab_init
 
-    passphrase = read_passphrase(purpose=f"the new key {args.name}", confirm=True)
-    made = new_key(args.name, folder=args.out, passphrase=passphrase)
-    print(f"Key pair {made.name} written:\n"
-          f"  private key {made.private_path} (encrypted with the passphrase; keep it to "
+    passphrase = read_passphrase(purpose="the lab authority key", confirm=True)
+    made = lab_init(args.lab, folder=args.out, passphrase=passphrase)
+    print(f"Lab authority {made.holder} written:\n"
+          f"  private key  {made.private_path} (encrypted; keep it offline)\n"
+          f"  certificate  {made.certificate_path} (copy it into the lab keyring folder)\n"
+          f"Key id: {made.key_id}")
+    return 0
+
+
+def run_new(args: argparse.Namespace) -> int:
+    from calib.record.keys import load_signing_key, new_key
+
+    authority = load_signing_key(args.authority, passphrase=read_passphrase(
+        purpose=f"the lab authority key {args.authority}", env=AUTHORITY_ENV))
+    if not authority.is_authority:
+        print(f"calib keys new: error: {args.authority} is the key of {authority.holder}, not "
+              "the lab authority key (lab-authority.key.json from calib keys lab-init)",
+              file=sys.stderr)
+        return 2
+    passphrase = read_passphrase(purpose=f"the new key of {args.holder}", confirm=True)
+    made = new_key(args.holder, folder=args.out, passphrase=passphrase, authority=authority)
+    print(f"Key of {made.holder} written:\n"
+          f"  private key  {made.private_path} (encrypted with the passphrase; keep it to "
           "yourself)\n"
-          f"  public key  {made.public_path} (copy it into the lab keyring folder)\n"
+          f"  certificate  {made.certificate_path} (issued by {authority.holder})\n"
           f"Key id: {made.key_id}")
     return 0

@@ -133,7 +133,7 @@ def _from_assessment(assessment: RunAssessment) -> CurveSource:
 
 def _record_source(path: str | Path, *, profile: str | Path | None) -> CurveSource:
     from calib.checks.profile import load_profile, parse_profile
-    from calib.record.record import Record, canonical_json
+    from calib.record.record import Record
     from calib.record.verify import read_record_file
 
     file = read_record_file(path)
@@ -145,7 +145,7 @@ def _record_source(path: str | Path, *, profile: str | Path | None) -> CurveSour
         record = Record.from_json(file.attachment)
     except (UnicodeDecodeError, ValueError) as exc:
         raise InputError(f"the {what} is not a calibration record ({exc})", file=str(path)) from None
-    if canonical_json(record.body) != file.attachment:
+    if record.canonical != file.attachment:
         raise InputError(f"the {what} is not in calib's canonical form: it was edited or written "
                          "by other software; run calib verify on it", file=str(path))
     label = f"record {record.record_id}"

@@ -23,10 +23,14 @@ from calib.cautions import CAUTIONS
 from calib.checks.evaluate import RunAssessment
 from calib.fit.bands import band_figures
 from calib.record.document import check_document, finite_or_none
+from calib.record.identity import check_printed_name
 
-__all__ = ["RECORD_SCHEMA", "Record", "build_record", "canonical_json"]
+__all__ = ["JCS", "RECORD_SCHEMA", "Record", "build_record", "canonical_bytes", "canonical_json"]
 
 RECORD_SCHEMA = "calib.record/1"
+#: Value of a record's ``canonicalization`` field: its digests are over RFC 8785 (JCS) bytes.
+#: Records without the field (calib 0.1.0) use :func:`canonical_json`, kept for them.
+JCS = "RFC 8785"
 PREPARED_MEANING = "Prepared: I evaluated this calibration and issued this record"
 
 
@@ -46,6 +50,29 @@ def canonical_json(data: Any) -> bytes:
     ).encode("utf-8")
 
 
+def canonical_bytes(data: Any, *, jcs: bool) -> bytes:
+    """``data`` in RFC 8785 canonical form when ``jcs``, else calib 0.1.0's :func:`canonical_json`.
+
+    RFC 8785 (JSON Canonicalization Scheme) is an open standard with libraries
+    in many languages, so anyone can recompute a digest without calib.
+
+    Examples
+    --------
+    >>> canonical_bytes({"b": 1.0, "a": "µg"}, jcs=True)
+    b'{"a":"\xc2\xb5g","b":1}'
+    >>> canonical_bytes({"b": 1.0, "a": "µg"}, jcs=False)
+    b'{"a":"\xc2\xb5g","b":1.0}'
+    """
+    if jcs:
+        import rfc8785
+
+        try:
+            return rfc8785.dumps(data)
+        except (rfc8785.CanonicalizationError, TypeError) as exc:
+            raise ValueError(f"cannot be canonicalised per RFC 8785: {exc}") from None
+    return canonical_json(data)
+
+
 @dataclass(frozen=True)
 class Record:
     """An issued calibration record.
@@ -59,9 +86,14 @@ class Record:
     body: dict[str, Any]
 
     @property
+    def jcs(self) -> bool:
+        """Whether the record is canonicalised per RFC 8785 (records of calib 0.1.0 are not)."""
+        return self.body.get("canonicalization") == JCS
+
+    @property
     def canonical(self) -> bytes:
-        """The canonical JSON bytes the digest is computed on."""
-        return canonical_json(self.body)
+        """The canonical JSON bytes the digest is computed on (RFC 8785 unless a 0.1.0 record)."""
+        return canonical_bytes(self.body, jcs=self.jcs)
 
     @property
     def digest(self) -> str:
@@ -72,7 +104,7 @@ class Record:
     def content_digest(self) -> str:
         """SHA-256 (hex) of the canonical body without ``signatures``; the same in every version."""
         content = {key: value for key, value in self.body.items() if key != "signatures"}
-        return hashlib.sha256(canonical_json(content)).hexdigest()
+        return hashlib.sha256(canonical_bytes(content, jcs=self.jcs)).hexdigest()
 
     @property
     def record_id(self) -> str:
@@ -105,10 +137,13 @@ def build_record(
     assessment : RunAssessment
         The fitted and checked run.
     prepared_by : str, optional
-        Printed name of the analyst issuing the record.
+        Printed name of the analyst issuing the record (ValueError when it holds
+        invisible characters or mixes scripts: :func:`calib.record.identity.check_printed_name`).
     created_at : datetime, optional
         Issue time (UTC); now when omitted.
     """
+    if prepared_by is not None:
+        prepared_by = check_printed_name(prepared_by, what="the preparer's printed name")
     when = (created_at or datetime.now(UTC)).astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     run, profile = assessment.run, assessment.profile
     signatures = []
@@ -118,6 +153,7 @@ def build_record(
         )
     body = {
         "schema": RECORD_SCHEMA,
+        "canonicalization": JCS,
         "created_at": when,
         "tool": {"name": "calib", "version": __version__},
         "libraries": _library_versions(),

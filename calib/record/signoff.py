@@ -1,10 +1,17 @@
-"""Signing a record file: check it, add the signature, render the new version, file it.
+"""Issuing and signing record files: check, sign, add the PDF signature, file.
 
-:func:`sign_file` is what ``calib sign`` runs.  It refuses to sign a record
-that does not verify (a signature would vouch for altered data), so it first
-runs :func:`calib.record.verify.verify_file`; key signatures of earlier
-signers that cannot be confirmed for want of a keyring do not block signing
-(that is the auditor's check), every other finding does.
+:func:`issue_pdf` renders an issued record and, when the issuer signed it,
+adds the issuer's PDF signature.  :func:`sign_bytes` / :func:`sign_file` are
+what ``calib sign`` and the web page run: they refuse to sign a record that
+does not verify (:class:`calib.errors.IntegrityError`: a signature would
+vouch for altered data); key signatures of earlier signers that cannot be
+confirmed for want of a keyring do not block signing (that is the auditor's
+check), every other finding does.  A key signature becomes one incremental
+update of the PDF signed as it is, so the issued bytes and every earlier
+signature stay untouched.  A printed-name-only signature cannot be added to a
+digitally signed PDF without breaking its signatures; it is refused there
+(the record JSON can still take it), and a PDF without digital signatures is
+drawn anew from the signed data.
 
 :func:`file_versions` files the new version in an archive.  The version it
 was signed from is filed first when the archive does not hold it yet, so the
@@ -20,13 +27,16 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
-from calib.record.keys import SigningKey
+from calib.errors import IntegrityError
+from calib.record.keys import Keyring, SigningKey
 from calib.record.record import Record
+from calib.record.recordfile import read_path_bytes
+from calib.record.signatures import parse_time
 from calib.record.signing import SignOffError, sign_record
-from calib.record.verify import verify_file
+from calib.record.verify import verify_bytes
 from calib.record.versions import signatures_of, version_digests
 
-__all__ = ["SignedVersion", "file_versions", "sign_file"]
+__all__ = ["SignedVersion", "file_versions", "issue_pdf", "sign_bytes", "sign_file"]
 
 
 @dataclass(frozen=True)
@@ -41,14 +51,14 @@ class SignedVersion:
         Its PDF: the input file when that was a PDF, else rendered from it.
     record : Record
         The new version.
-    pdf : bytes
-        Its PDF.
+    pdf : bytes or None
+        Its PDF; None when ``want_pdf`` was false.
     """
 
     previous: Record
     previous_pdf: bytes
     record: Record
-    pdf: bytes
+    pdf: bytes | None
 
 
 def _render(record: Record, template: Any) -> bytes:
@@ -58,52 +68,132 @@ def _render(record: Record, template: Any) -> bytes:
                      template=template, attachment=record.canonical)
 
 
-def sign_file(
-    path: str | Path,
+def _authority_name(key: SigningKey) -> str:
+    from cryptography.x509.oid import NameOID
+
+    names = key.certificate.issuer.get_attributes_for_oid(NameOID.COMMON_NAME)
+    return str(names[0].value) if names else ""
+
+
+def _pdf_signed(pdf: bytes, record: Record, key: SigningKey) -> bytes:
+    from calib.record.pades import add_pdf_signature
+
+    entry = signatures_of(record)[-1]
+    when = parse_time(entry.get("signed_at"))
+    assert when is not None  # sign_record / issue_signed wrote it
+    return add_pdf_signature(pdf, key=key, entry=entry, record_id=record.record_id,
+                             signed_at=when, authority=_authority_name(key))
+
+
+def issue_pdf(record: Record, *, key: SigningKey | None = None, template: Any = None) -> bytes:
+    """The PDF of an issued record; with ``key``, the issuer's signature in it.
+
+    Parameters
+    ----------
+    record : Record
+        The issued record; with ``key`` already signed by it
+        (:func:`calib.record.signing.issue_signed`).
+    key : SigningKey, optional
+        The issuer's key, which signed the record's ``prepared`` entry.
+    template : ReportTemplate, optional
+        The lab's report template (bundled one by default).
+
+    Raises
+    ------
+    ValueError
+        If ``key`` is not the key that signed the record's ``prepared`` entry.
+    """
+    pdf = _render(record, template)
+    if key is None:
+        return pdf
+    entries = signatures_of(record)
+    if len(entries) != 1 or entries[0].get("key_id") != key.key_id:
+        raise ValueError("the record's prepared entry must be signed with this key first "
+                         "(calib.record.signing.issue_signed)")
+    return _pdf_signed(pdf, record, key)
+
+
+def sign_bytes(
+    data: bytes,
     *,
     role: str,
-    name: str,
+    name: str | None = None,
     meaning: str | None = None,
     key: SigningKey | None = None,
     template: Any = None,
     signed_at: datetime | None = None,
+    keyring: Keyring | None = None,
+    file_name: str = "record",
+    want_pdf: bool = True,
 ) -> SignedVersion:
-    """Verify the record file at ``path``, sign it and render the new version.
+    """Verify a record (PDF or JSON bytes), sign it and make the new version.
 
     Parameters
     ----------
-    path : str or Path
+    data : bytes
         Record PDF or record JSON.
     role, name, meaning, key, signed_at
         As for :func:`calib.record.signing.sign_record`; the meaning defaults
         to the template's wording of the role.
     template : ReportTemplate, optional
-        The lab's template (the bundled one by default): used to check the
-        input's pages and to lay out the new version.
+        The lab's template (the bundled one by default): for the re-rendering
+        note, and to draw a PDF that has no digital signature.
+    keyring : Keyring, optional
+        Checks earlier key signatures before signing (recommended).
+    file_name : str
+        How messages name the input.
+    want_pdf : bool
+        Make the new version's PDF (else only the record).
 
     Raises
     ------
     InputError
-        If the file cannot be read as a record.
+        If the bytes cannot be read as a record.
+    IntegrityError
+        If the record does not verify.
     SignOffError
-        If the record does not verify, or the sign-off rules refuse.
+        If the sign-off rules refuse, or a printed-name-only signature is
+        asked of a digitally signed PDF.
     """
     from calib.report import load_template
 
     template = template or load_template()
-    report = verify_file(path, template=template)
+    report = verify_bytes(data, name=file_name, keyring=keyring, template=template)
     blocking = [p.message for p in report.problems if p.area != "unchecked"]
     if report.record is None or blocking:
-        raise SignOffError("the record does not verify, so it was not signed: "
-                           + "; ".join(blocking))
+        raise IntegrityError("the record does not verify, so it was not signed: "
+                             + "; ".join(blocking))
     previous = report.record
     if meaning is None:
         meaning = getattr(template.meanings, role, None)
     signed = sign_record(previous, role=role, name=name, meaning=meaning, key=key,
                          signed_at=signed_at)
-    previous_pdf = Path(path).read_bytes() if report.kind == "pdf" else _render(previous,
-                                                                                template)
-    return SignedVersion(previous, previous_pdf, signed, _render(signed, template))
+    previous_pdf = data if report.kind == "pdf" else _render(previous, template)
+    pdf = None
+    if want_pdf:
+        if key is not None:
+            pdf = _pdf_signed(previous_pdf, signed, key)
+        elif report.pdf_signatures:
+            raise SignOffError(
+                "this record's PDF carries digital signatures; a printed-name-only signature "
+                "cannot be added to it without breaking them: sign with your key (--key), or "
+                "write the record JSON only")
+        else:
+            pdf = _render(signed, template)
+    return SignedVersion(previous, previous_pdf, signed, pdf)
+
+
+def sign_file(path: str | Path, **options: Any) -> SignedVersion:
+    """:func:`sign_bytes` on the file at ``path`` (same options).
+
+    Raises
+    ------
+    InputError
+        If the file cannot be read as a record.
+    IntegrityError, SignOffError
+        As for :func:`sign_bytes`.
+    """
+    return sign_bytes(read_path_bytes(path), file_name=str(path), **options)
 
 
 def file_versions(archive: Any, signed: SignedVersion) -> list[Any]:
@@ -126,6 +216,8 @@ def file_versions(archive: Any, signed: SignedVersion) -> list[Any]:
     SignOffError
         If the archive holds a later version of the record than the one signed.
     """
+    if signed.pdf is None:
+        raise ValueError("file_versions needs the new version's PDF (sign with want_pdf=True)")
     previous = signed.previous
     latest = archive.latest(previous.record_id)
     # The archive's newest version must be the one signed or one of its earlier versions

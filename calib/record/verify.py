@@ -1,53 +1,70 @@
 """Verify a calibration record: from its PDF (or JSON) alone, with a keyring, with the archive.
 
-What :func:`verify_file` checks, each finding one line in plain words:
+What proves a record is its content and the bytes issued, never how this
+release draws pages.  :func:`verify_bytes` (and :func:`verify_file`) check,
+each finding one line in plain words:
 
 data
-    The attached ``calib-record.json`` is a ``calib.record/1`` document in
-    canonical form; the version digest the PDF states (document keywords,
-    and the footer of every page) is the digest of that data; every
-    signature's ``previous_digest`` matches the version rebuilt from the
-    signature list (:func:`calib.record.versions.chain_problems`).
-pages
-    The record rendered afresh from the attached data gives the very same
-    bytes as the file.  When it does not, the pages are compared one by one
-    to say which differ, and the template and calib version are compared to
-    say when the difference may come from there rather than from an edit.
+    The record JSON is a ``calib.record/1`` document in canonical form (RFC
+    8785 for records that say ``"canonicalization": "RFC 8785"``, calib
+    0.1.0's form for older ones); the version digest the PDF states is the
+    digest of its attached JSON; every signature's ``previous_digest`` matches
+    the version rebuilt from the signature list.
+pdf
+    Every PDF signature (ISO 32000 / PAdES) is intact over the bytes it signed,
+    carries the record signature entry made with the same certificate, and
+    nothing but later signatures changed the file after it; the last one
+    covers the whole file.
 signatures
-    Every key signature verifies with its key from the keyring; a signature
-    whose key is not in the keyring, or made with a key while no keyring was
-    given, cannot be confirmed and counts as a problem (``unchecked``).
+    Every key signature in the record verifies with the signer's certificate,
+    that certificate was issued by a lab authority of the keyring and was
+    valid then, and the printed name is its holder's.  Without a keyring, or
+    when the authority is not in it, a key signature cannot be confirmed
+    (``unchecked``).  A printed-name-only signature is never a key signature.
 rules
     The sign-off rules (:mod:`calib.record.signing`) hold for every signature.
 archive
     When an archive is given: this version is in it with the same JSON (and
     PDF) bytes, and the archive's hash chain verifies.
 
-A record JSON file is checked for data, signatures, rules and archive; it has
-no pages.  A file that cannot be read as a record at all (missing, neither PDF
-nor JSON, a PDF without the attached record) raises
-:class:`~calib.errors.InputError`; damage found *inside* a record is a
-finding, because it answers the question verification asks.
+The report's :attr:`VerifyReport.verdict` is ``"verified"`` (no problem,
+signed by its issuer and every signature key-verified), ``"intact"`` (no
+problem found, but a draft not signed by an issuer or with printed-name-only
+signatures: anyone with calib can make such a file, so its origin is not
+verified) or ``"not verified"``.  Rendering the pages again is only a note
+("this release draws the same pages", or not): layouts change between
+releases, signatures and digests do not.
 """
 
 from __future__ import annotations
 
+import base64
+import binascii
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from calib import __version__
-from calib.errors import InputError, ProfileError
+from calib.errors import ProfileError
 from calib.record.keys import Keyring
-from calib.record.record import RECORD_SCHEMA, Record, canonical_json
-from calib.record.signing import SignatureCheck, check_signatures, rule_problems
+from calib.record.record import RECORD_SCHEMA, Record
+from calib.record.recordfile import (
+    RecordFile,
+    read_path_bytes,
+    read_record_bytes,
+    read_record_file,
+)
+from calib.record.signatures import SignatureCheck, check_signatures
+from calib.record.signing import rule_problems
 from calib.record.versions import chain_problems, signatures_of
 
-__all__ = ["AREAS", "Finding", "RecordFile", "VerifyReport", "read_record_file", "verify_file"]
+__all__ = ["AREAS", "Finding", "RecordFile", "VerifyReport", "read_record_file", "verify_bytes",
+           "verify_file"]
 
 #: Kinds of finding, in the order a report lists them.
-AREAS = ("data", "pages", "signatures", "unchecked", "rules", "archive")
+AREAS = ("data", "pdf", "pages", "signatures", "unchecked", "rules", "archive")
+DRAFT_NOTE = "draft: not signed by an issuer"
 
 
 @dataclass(frozen=True)
@@ -56,41 +73,6 @@ class Finding:
 
     area: str
     message: str
-
-
-@dataclass(frozen=True)
-class RecordFile:
-    """A record file as read from disk, before anything is checked.
-
-    Attributes
-    ----------
-    path : Path
-        The file.
-    kind : str
-        ``"pdf"`` or ``"json"``.
-    data : bytes
-        The file's bytes.
-    attachment : bytes or None
-        The record JSON: the attached ``calib-record.json`` of a PDF, the file
-        itself for JSON; None when the PDF's attachments cannot be decoded.
-    keywords : str
-        The PDF's document keywords ("" for JSON).
-    pages : tuple of str
-        SHA-256 of each page's content (PDF only).
-    extra_attachments : int
-        Further files attached under the record's name (a doctored PDF).
-    damage : tuple of str
-        Parts of the PDF that could not be decoded.
-    """
-
-    path: Path
-    kind: str
-    data: bytes
-    attachment: bytes | None
-    keywords: str = ""
-    pages: tuple[str, ...] = ()
-    extra_attachments: int = 0
-    damage: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -104,13 +86,15 @@ class VerifyReport:
     kind : str
         ``"pdf"`` or ``"json"``.
     record : Record or None
-        The record read from the file; None when its data could not be read.
+        The record's current version; None when its data could not be read.
     problems : tuple of Finding
         Empty when the record is intact.
     notes : tuple of str
         What was checked, and facts that are not problems.
     signatures : tuple of SignatureCheck
-        Each signature's check against the keyring.
+        Each signature's check.
+    pdf_signatures : int
+        How many PDF signatures the file carries.
     """
 
     file: str
@@ -119,69 +103,72 @@ class VerifyReport:
     problems: tuple[Finding, ...]
     notes: tuple[str, ...] = ()
     signatures: tuple[SignatureCheck, ...] = field(default=())
+    pdf_signatures: int = 0
 
     @property
     def ok(self) -> bool:
         """True when nothing is wrong: the record is intact and every check could be made."""
-        return not self.problems
+        return not self.problems and self.record is not None
+
+    @property
+    def issuer_signed(self) -> bool:
+        """True when the issued content carries the issuer's key-verified signature."""
+        return bool(self.signatures) and self.signatures[0].role == "prepared" and \
+            self.signatures[0].keyed
+
+    @property
+    def unkeyed(self) -> tuple[SignatureCheck, ...]:
+        """Signatures that are printed names only."""
+        return tuple(s for s in self.signatures if s.status == "unkeyed")
+
+    @property
+    def verdict(self) -> str:
+        """``"verified"``, ``"intact"`` (not signed throughout) or ``"not verified"``."""
+        if not self.ok:
+            return "not verified"
+        if self.issuer_signed and not self.unkeyed:
+            return "verified"
+        return "intact"
+
+    def summary(self) -> str:
+        """The verdict in one line, saying what is not signed."""
+        count = len(self.problems)
+        if not self.ok:
+            return f"NOT VERIFIED, {count} problem{'s' if count != 1 else ''}"
+        if self.verdict == "verified":
+            return ("verified: intact, signed by its issuer, every signature verified with a key "
+                    "certified by the lab")
+        gaps = [] if self.issuer_signed else [DRAFT_NOTE]
+        gaps += [f"signature {s.index + 1} ({s.role} by {s.name}) is a printed name only, not "
+                 "key-verified" for s in self.unkeyed if s.role != "prepared"]
+        return "intact, origin not verified throughout: " + "; ".join(gaps)
 
     def to_json(self) -> dict[str, Any]:
         """The report as JSON-ready data (``calib verify --json``)."""
         record = self.record
         return {
-            "schema": "calib.verify/1",
+            "schema": "calib.verify/2",
             "tool_version": __version__,
             "file": self.file,
             "kind": self.kind,
             "ok": self.ok,
+            "verdict": self.verdict,
+            "summary": self.summary(),
+            "issuer_signed": self.issuer_signed,
             "record_id": record.record_id if record else None,
             "version_digest": record.digest if record else None,
             "content_digest": record.content_digest if record else None,
+            "canonicalization": ("RFC 8785" if record.jcs else "calib 0.1.0") if record else None,
+            "pdf_signatures": self.pdf_signatures,
             "signatures": [
                 {"position": s.index + 1, "role": s.role, "name": s.name,
-                 "signed_at": s.signed_at, "key_id": s.key_id, "key_name": s.key_name,
+                 "signed_at": s.signed_at, "key_id": s.key_id, "key_holder": s.key_name,
                  "status": s.status, "message": s.message}
                 for s in self.signatures
             ],
             "problems": [{"area": p.area, "message": p.message} for p in self.problems],
             "notes": list(self.notes),
         }
-
-
-def read_record_file(path: str | Path) -> RecordFile:
-    """Read a record PDF or record JSON file and find the record data in it.
-
-    Raises
-    ------
-    InputError
-        If the file is missing or unreadable, is neither a PDF nor JSON, or is
-        a PDF without an attached ``calib-record.json``.
-    """
-    from calib.report import ATTACHMENT_NAME
-    from calib.report.embed import read_back
-
-    path = Path(path)
-    try:
-        data = path.read_bytes()
-    except FileNotFoundError:
-        raise InputError("file not found", file=str(path)) from None
-    except OSError as exc:
-        raise InputError(f"cannot be read ({exc.strerror})", file=str(path)) from None
-    if data.lstrip()[:5] == b"%PDF-":
-        try:
-            contents = read_back(data)
-        except ValueError as exc:
-            raise InputError(str(exc), file=str(path)) from None
-        attached = contents.attachments.get(ATTACHMENT_NAME)
-        if not attached and not contents.damage:
-            raise InputError(f"not a calib record PDF: it has no attached {ATTACHMENT_NAME}",
-                             file=str(path))
-        return RecordFile(path, "pdf", data, attached[0] if attached else None,
-                          contents.keywords, contents.pages,
-                          max(len(attached or ()) - 1, 0), contents.damage)
-    if data.lstrip(b"\xef\xbb\xbf \t\r\n")[:1] == b"{":
-        return RecordFile(path, "json", data, data)
-    raise InputError("neither a calib record PDF nor a record JSON file", file=str(path))
 
 
 def _parse(file: RecordFile) -> tuple[Record | None, list[Finding]]:
@@ -194,30 +181,130 @@ def _parse(file: RecordFile) -> tuple[Record | None, list[Finding]]:
         return None, [Finding("data", f"the {what} is not UTF-8 text")]
     except ValueError as exc:
         return None, [Finding("data", f"the {what} is not a {RECORD_SCHEMA} document ({exc})")]
-    problems = []
     try:
-        canonical = canonical_json(record.body)
-    except ValueError as exc:  # NaN or infinity in the data
+        canonical = record.canonical
+    except ValueError as exc:  # NaN, infinity or a number RFC 8785 cannot carry
         return None, [Finding("data", f"the {what} holds a value JSON cannot carry ({exc})")]
     if canonical != file.attachment:
-        problems.append(Finding("data", f"the {what} is not in calib's canonical form: it was "
-                                        "edited or written by other software"))
-    return record, problems
+        return record, [Finding("data", f"the {what} is not in calib's canonical form: it was "
+                                        "edited or written by other software")]
+    return record, []
 
 
-def _record_findings(
-    record: Record,
-    *,
-    keyring: Keyring | None,
-    archive: Any,
-    pdf: bytes | None,
-) -> tuple[list[Finding], list[str], tuple[SignatureCheck, ...]]:
-    """The checks that need only the record: links, rules, signatures, and the archive entry.
+def _pdf_findings(file: RecordFile, attached: Record, keyring: Keyring | None
+                  ) -> tuple[Record, list[Finding], list[str], int]:
+    """The PDF signatures checked, and the current version they make of the attached record."""
+    from calib.record.pades import read_pdf_signatures
 
-    ``archive`` is anything with ``find_digest``, ``latest`` and ``verify_chain``
-    as :class:`calib.archive.Archive` has them; ``pdf`` is compared with the
-    archived copy.
-    """
+    roots = [a.certificate for a in keyring.authorities] if keyring else []
+    pdf_sigs, damage = read_pdf_signatures(file.data, trust_roots=roots)
+    problems = [Finding("pdf", f"the PDF is damaged: {d}") for d in damage]
+    notes: list[str] = []
+    entries = list(signatures_of(attached))
+    for number, sig in enumerate(pdf_sigs, start=1):
+        label = f"PDF signature {number} (field {sig.field}, by {sig.signer})"
+        if not sig.intact or not sig.valid:
+            problems.append(Finding("pdf", f"{label} does not verify: the bytes it signed were "
+                                           "changed after signing, or it was not made with the "
+                                           "signer's key"))
+        if not sig.changes_ok:
+            problems.append(Finding("pdf", f"the PDF was changed after {label} in a way only "
+                                           f"later signatures may change it ({sig.changes_after})"))
+        entry = sig.entry
+        if entry is None:
+            problems.append(Finding("pdf", f"{label} carries no record signature entry: it was "
+                                           "not made by calib, and the record does not count it"))
+            continue
+        if _cert_der(entry) != sig.signer_der:
+            problems.append(Finding("pdf", f"{label} was made with another certificate than the "
+                                           "record signature entry it carries names"))
+        if entry.get("role") == "prepared":
+            if not entries or entries[0] != entry:
+                problems.append(Finding("pdf", f"{label} is the issuer's, but its entry differs "
+                                               "from the issued record's preparer entry"))
+            continue
+        entries.append(entry)
+        notes.append(f"{label}: intact, signs {entry.get('role')} by {entry.get('name')}")
+    if pdf_sigs and not pdf_sigs[-1].whole_file:
+        problems.append(Finding("pdf", "the file was changed after its last signature: it holds "
+                                       "bytes that no signature covers (an edit saved as an "
+                                       "incremental update)"))
+    record = attached if len(entries) == len(signatures_of(attached)) else Record(
+        {**attached.body, "signatures": entries})
+    return record, problems, notes, len(pdf_sigs)
+
+
+def _cert_der(entry: Mapping[str, Any]) -> bytes | None:
+    try:
+        return base64.b64decode(str(entry.get("certificate")), validate=True)
+    except (binascii.Error, ValueError):
+        return None
+
+
+def _stated(keywords: str) -> dict[str, str]:
+    """Record id, digest and template fingerprint prefix from the PDF's keywords."""
+    out: dict[str, str] = {}
+    for word in (w.strip() for w in keywords.split(",")):
+        if word.startswith("CR-"):
+            out["record_id"] = word
+        elif word.startswith("template "):
+            out["template"] = word.removeprefix("template ")
+        elif len(word) == 64 and all(c in "0123456789abcdef" for c in word):
+            out["digest"] = word
+    return out
+
+
+def _stated_findings(file: RecordFile, attached: Record) -> list[Finding]:
+    stated = _stated(file.keywords)
+    problems = []
+    if "digest" not in stated:
+        problems.append(Finding("data", "the PDF does not state a version digest in its "
+                                        "document keywords, as every calib record does"))
+    elif stated["digest"] != attached.digest:
+        problems.append(Finding("data", f"the PDF states version digest {stated['digest'][:16]}…, "
+                                        f"but its attached record data has digest "
+                                        f"{attached.digest[:16]}…: the attached data was changed"))
+    if stated.get("record_id") not in (None, attached.record_id):
+        problems.append(Finding("data", f"the PDF states record id {stated['record_id']}, but "
+                                        f"its attached record data is {attached.record_id}"))
+    return problems
+
+
+def _render_note(file: RecordFile, attached: Record, template: Any, signed: bool) -> list[str]:
+    """Informational: would this release draw the same pages?  Never a problem."""
+    from calib.report import write_pdf
+    from calib.report.embed import read_back
+
+    try:
+        fresh = write_pdf(attached.body, digest=attached.digest, record_id=attached.record_id,
+                          template=template, attachment=attached.canonical)
+    except Exception as exc:  # noqa: BLE001 - a note must never turn into a failure
+        return [f"note: this release cannot draw the record's pages again ({type(exc).__name__}); "
+                "that does not affect verification"]
+    if file.data == fresh or (signed and file.data.startswith(fresh)):
+        return ["note: this release draws the same pages from the record data, byte for byte"]
+    theirs, ours = file.pages, read_back(fresh).pages
+    differing = [i + 1 for i, (a, b) in enumerate(zip(theirs, ours)) if a != b]
+    tool = attached.body.get("tool")
+    made_with = tool.get("version") if isinstance(tool, Mapping) else "?"
+    detail = (f"pages {', '.join(map(str, differing))}" if differing
+              else "the file around the pages")
+    text = (f"note: this release (calib {__version__}, template {template.source}) would draw "
+            f"the record differently ({detail} differ from the issued file, made with calib "
+            f"{made_with}): page layout changes between releases are not a problem")
+    if not signed:
+        text += ("; this PDF has no digital signature, so its pages are protected only by "
+                 "comparison with the archived copy")
+    stated = _stated(file.keywords).get("template")
+    if stated not in (None, template.fingerprint[:16]):
+        text += f"; the PDF names report template {stated}"
+    return [text]
+
+
+def _record_findings(record: Record, *, keyring: Keyring | None, archive: Any,
+                     pdf: bytes | None) -> tuple[list[Finding], list[str],
+                                                 tuple[SignatureCheck, ...]]:
+    """The checks that need only the record: links, rules, signatures, and the archive entry."""
     problems = [Finding("data", p) for p in chain_problems(record)]
     notes = []
     try:
@@ -267,83 +354,22 @@ def _archive_findings(record: Record, archive: Any, pdf: bytes | None,
     return problems
 
 
-def _stated(keywords: str) -> dict[str, str]:
-    """Record id, digest and template fingerprint prefix from the PDF's keywords."""
-    out: dict[str, str] = {}
-    for word in (w.strip() for w in keywords.split(",")):
-        if word.startswith("CR-"):
-            out["record_id"] = word
-        elif word.startswith("template "):
-            out["template"] = word.removeprefix("template ")
-        elif len(word) == 64 and all(c in "0123456789abcdef" for c in word):
-            out["digest"] = word
-    return out
-
-
-def _page_findings(file: RecordFile, record: Record, template: Any) -> tuple[list[Finding],
-                                                                             list[str]]:
-    from calib.report import write_pdf
-    from calib.report.embed import read_back
-
-    stated = _stated(file.keywords)
-    problems, notes = [], []
-    if "digest" not in stated:
-        problems.append(Finding("data", "the PDF does not state a version digest in its "
-                                        "document keywords, as every calib record does"))
-    elif stated["digest"] != record.digest:
-        problems.append(Finding("data", f"the PDF states version digest {stated['digest'][:16]}…, "
-                                        f"but its attached record data has digest "
-                                        f"{record.digest[:16]}…: the attached data was changed"))
-    if stated.get("record_id") not in (None, record.record_id):
-        problems.append(Finding("data", f"the PDF states record id {stated['record_id']}, but "
-                                        f"its attached record data is {record.record_id}"))
-    fresh = write_pdf(record.body, digest=record.digest, record_id=record.record_id,
-                      template=template, attachment=record.canonical)
-    if fresh == file.data:
-        notes.append("the PDF is byte for byte the rendering of its attached record data")
-        return problems, notes
-    theirs, ours = file.pages, read_back(fresh).pages
-    differing = [i + 1 for i, (a, b) in enumerate(zip(theirs, ours)) if a != b]
-    if len(theirs) != len(ours):
-        detail = f"it has {len(theirs)} pages where a fresh rendering has {len(ours)}"
-    elif differing:
-        detail = ("the content of page" + ("s " if len(differing) > 1 else " ")
-                  + ", ".join(map(str, differing)) + " differs")
-    else:
-        detail = "the page content is the same, but the file around it differs"
-    problems.append(Finding("pages", f"the PDF does not match a fresh rendering of its attached "
-                                     f"record data: {detail}"))
-    if stated.get("template") not in (None, template.fingerprint[:16]):
-        notes.append(f"the PDF names report template {stated['template']}, but it was rendered "
-                     f"here with template {template.fingerprint[:16]} ({template.source}): if the "
-                     "record was issued with a lab template, verify with that template")
-    tool = record.body.get("tool")
-    made_with = tool.get("version") if isinstance(tool, Mapping) else None
-    if made_with and made_with != __version__:
-        notes.append(f"the record was issued with calib {made_with} and is checked with calib "
-                     f"{__version__}: another version may lay pages out differently")
-    return problems, notes
-
-
-def verify_file(
-    path: str | Path,
-    *,
-    keyring: Keyring | None = None,
-    archive: Any = None,
-    template: Any = None,
-) -> VerifyReport:
-    """Verify a record PDF or record JSON file.
+def verify_bytes(data: bytes, *, name: str = "record", keyring: Keyring | None = None,
+                 archive: Any = None, template: Any = None) -> VerifyReport:
+    """Verify the bytes of a record PDF or record JSON (see the module text).
 
     Parameters
     ----------
-    path : str or Path
+    data : bytes
         The record PDF, or its JSON.
+    name : str
+        How the report names it (a file name).
     keyring : Keyring, optional
         The lab keyring (:func:`calib.record.keys.load_keyring`).
     archive : Archive, optional
         An open archive to look the version up in.
     template : ReportTemplate, optional
-        The template the record was issued with; the bundled one by default.
+        Used only for the informational re-rendering note; the bundled one by default.
 
     Returns
     -------
@@ -352,34 +378,59 @@ def verify_file(
     Raises
     ------
     InputError
-        If the file cannot be read as a record at all.
+        If the bytes cannot be read as a record at all.
     """
     from calib.report import load_template
 
-    file = read_record_file(path)
-    record, problems = _parse(file)
-    problems += [Finding("pages", f"the PDF is damaged: {d}") for d in file.damage]
+    file = read_record_bytes(data, name=name)
+    attached, problems = _parse(file)
+    problems += [Finding("pdf", f"the PDF is damaged: {d}") for d in file.damage]
     notes: list[str] = []
     if file.extra_attachments:
         problems.append(Finding("data", f"the PDF holds {file.extra_attachments + 1} attached "
                                         "files named as the record; a calib record has one"))
-    if record is None:
-        return VerifyReport(str(path), file.kind, None, tuple(problems))
+    if attached is None:
+        return VerifyReport(name, file.kind, None, tuple(problems))
+    record, pdf_count = attached, 0
+    if file.kind == "pdf":
+        problems += _stated_findings(file, attached)
+        record, pdf_problems, pdf_notes, pdf_count = _pdf_findings(file, attached, keyring)
+        problems += pdf_problems
     count = len(signatures_of(record))
     roles = ", ".join(str(e.get("role")) for e in signatures_of(record)
                       if isinstance(e, Mapping)) or "no signatures"
     notes.append(f"record {record.record_id}, version {count} ({roles}), version digest "
-                 f"{record.digest}")
+                 f"{record.digest}, content digest {record.content_digest}")
+    notes.append("canonical JSON per RFC 8785 (JCS)" if record.jcs else
+                 "a record of calib 0.1.0: its digests use that release's canonical JSON "
+                 "(sorted keys, no spaces, UTF-8)")
     if file.kind == "pdf":
-        page_problems, page_notes = _page_findings(file, record, template or load_template())
-        problems += page_problems
-        notes += page_notes
+        notes += pdf_notes
+        if not pdf_count:
+            notes.append("the PDF carries no digital signature")
     else:
-        notes.append("a JSON record has no pages to compare; verify its PDF to check those")
+        notes.append("a JSON record has no pages; verify its PDF to check the issued file")
     found, more_notes, checks = _record_findings(
         record, keyring=keyring, archive=archive, pdf=file.data if file.kind == "pdf" else None)
     problems += found
     notes += more_notes
+    if not (checks and checks[0].role == "prepared" and checks[0].keyed):
+        notes.insert(0, DRAFT_NOTE + " (anyone with calib could have made this file)")
+    if file.kind == "pdf":
+        notes += _render_note(file, attached, template or load_template(), pdf_count > 0)
     problems.sort(key=lambda p: AREAS.index(p.area))
-    return VerifyReport(str(path), file.kind, record, tuple(problems), tuple(notes), checks)
+    return VerifyReport(name, file.kind, record, tuple(problems), tuple(notes), checks, pdf_count)
+
+
+def verify_file(path: str | Path, *, keyring: Keyring | None = None, archive: Any = None,
+                template: Any = None) -> VerifyReport:
+    """Verify a record PDF or record JSON file: :func:`verify_bytes` on the file's bytes.
+
+    Raises
+    ------
+    InputError
+        If the file cannot be read as a record at all.
+    """
+    return verify_bytes(read_path_bytes(path), name=str(path), keyring=keyring,
+                        archive=archive, template=template)
 

@@ -119,13 +119,16 @@ def signature_words(entry: Mapping[str, Any]) -> str:
     'Entered in the record'
     >>> signature_words({"key_id": "3f9a1c2b77de44108b0c5e6f7a8b9c0d", "algorithm": "ed25519"})
     'Signed electronically (Ed25519, key 3f9a 1c2b 77de 4410)'
+    >>> signature_words({"key_id": "3f9a1c2b77de4410", "algorithm": "ecdsa-p256-sha256"})
+    'Signed electronically (ECDSA P-256, key 3f9a 1c2b 77de 4410)'
     """
     key_id = entry.get("key_id")
     if not key_id:
         return "Entered in the record"
     digits = str(key_id)[:16]
     grouped = " ".join(digits[i:i + 4] for i in range(0, len(digits), 4))
-    algorithm = "Ed25519" if entry.get("algorithm") == "ed25519" else text_or_dash(entry.get("algorithm"))
+    names = {"ed25519": "Ed25519", "ecdsa-p256-sha256": "ECDSA P-256"}
+    algorithm = names.get(str(entry.get("algorithm")), text_or_dash(entry.get("algorithm")))
     return f"Signed electronically ({algorithm}, key {grouped})"
 
 

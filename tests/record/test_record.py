@@ -7,6 +7,7 @@ import json
 from datetime import UTC, datetime
 
 import pytest
+import rfc8785
 
 from calib.checks import evaluate_run
 from calib.record import Record, build_record, canonical_json, check_document
@@ -70,7 +71,8 @@ def test_record_digest_and_id_derive_from_canonical_bytes():
     assert record.digest == hashlib.sha256(record.canonical).hexdigest()
     # The id derives from the content (the body without signatures), so signing keeps it.
     content = {k: v for k, v in record.body.items() if k != "signatures"}
-    assert record.content_digest == hashlib.sha256(canonical_json(content)).hexdigest()
+    # RFC 8785 canonical form, recomputed with the rfc8785 library.
+    assert record.content_digest == hashlib.sha256(rfc8785.dumps(content)).hexdigest()
     assert record.record_id == "CR-" + record.content_digest[:12].upper()
     again = build_record(evaluate_run(run), prepared_by="Zoë Łukasiewicz-Ng", created_at=when)
     assert again.canonical == record.canonical

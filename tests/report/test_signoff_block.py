@@ -17,7 +17,7 @@ def test_key_signature_is_shown_with_its_key_id(tmp_path):
     v2 = sign_record(issued(), role="reviewed", name=REVIEWER, signed_at=REVIEWED_AT, key=key)
     text = _text(render(v2))
     grouped = " ".join(key.key_id[i:i + 4] for i in range(0, 16, 4))
-    assert f"Signed electronically (Ed25519, key {grouped})" in text
+    assert f"Signed electronically (ECDSA P-256, key {grouped})" in text
     assert "2026-12-02 14:05:00 UTC" in text
     # The preparer's entry was made without a key.
     assert "Entered in the record" in text

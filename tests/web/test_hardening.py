@@ -200,13 +200,12 @@ def test_the_page_says_so_when_too_many_browsers_have_runs_open():
 # ---------------------------------------------------------------------- keys over the network
 
 def _keyed_sign(c: TestClient, tmp_path: Path, pdf: bytes):
-    from calib.record.keys import new_key
+    from tests.record.integrity_helpers import PASSPHRASE, REVIEWER, person_key
 
-    private = new_key("t-overgaard", folder=tmp_path, passphrase=b"correct horse battery")
-    return post(c, "/sign", {"role": "reviewed", "name": "T. Overgaard",
-                             "passphrase": "correct horse battery"},
-                {"record": ("record.pdf", pdf),
-                 "key": (private.private_path.name, private.private_path.read_bytes())})
+    private = Path(person_key(REVIEWER).path)  # a certified key: it signs only as its holder
+    return post(c, "/sign", {"role": "reviewed", "name": REVIEWER,
+                             "passphrase": PASSPHRASE.decode()},
+                {"record": ("record.pdf", pdf), "key": (private.name, private.read_bytes())})
 
 
 def _issued_pdf(c: TestClient) -> bytes:
@@ -243,18 +242,17 @@ def test_the_signed_page_names_version_2_for_the_second_version(tmp_path):
 
 
 def test_the_verify_page_uses_the_lab_keyring_and_archive(tmp_path):
-    from calib.record.keys import new_key
+    from tests.record.integrity_helpers import PASSPHRASE, REVIEWER, keyring, person_key
 
     ring = tmp_path / "ring"
-    ring.mkdir()
-    key = new_key("t-overgaard", folder=tmp_path / "private", passphrase=b"correct horse battery")
-    key.public_path.rename(ring / key.public_path.name)
+    keyring(ring)
+    private = Path(person_key(REVIEWER).path)  # certified by the lab authority in the ring
     archive = tmp_path / "records.sqlite"
     with_lab = browser(create_app(keyring=ring, archive=archive))
-    r = post(with_lab, "/sign", {"role": "reviewed", "name": "T. Overgaard",
-                                 "passphrase": "correct horse battery", "file_in_archive": "yes"},
+    r = post(with_lab, "/sign", {"role": "reviewed", "name": REVIEWER,
+                                 "passphrase": PASSPHRASE.decode(), "file_in_archive": "yes"},
              {"record": ("record.pdf", _issued_pdf(with_lab)),
-              "key": (key.private_path.name, key.private_path.read_bytes())})
+              "key": (private.name, private.read_bytes())})
     assert r.status_code == 200, error_of(r.text)
     signed = with_lab.get(re.search(r'href="(/download/[^"]+)"', r.text).group(1)).content
     r = post(with_lab, "/verify", {}, {"record": ("signed.pdf", signed)})

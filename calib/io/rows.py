@@ -36,7 +36,7 @@ from calib.io.cells import (
     to_name,
     to_text,
 )
-from calib.io.columns import Column
+from calib.io.columns import Column, squash
 from calib.io.layout import Table
 from calib.io.numbers import (
     DecimalMark,
@@ -59,6 +59,11 @@ _T = TypeVar("_T")
 _MEASURES = ("concentration", "response", "is_response")
 _HIDDEN = "the row is hidden in the workbook"
 _MARKER_HINT = "a marker such as ND or <LOD sets the point aside"
+# Headings of a free remark rather than a reason to exclude: text there on a row whose include
+# cell says yes is a remark; on a row whose include cell is empty it is ambiguous.
+_REMARK_HEADINGS = frozenset(squash(word) for word in (
+    "comment", "comments", "remark", "remarks", "note", "notes", "bemerkung", "kommentar",
+    "anmerkung", "commentaire", "remarque", "comentario", "observaciones", "nota"))
 
 
 @dataclass
@@ -348,6 +353,8 @@ class _TableReader:
         if "include" in self.index:
             included = self.parse("include", row_index, row, to_flag)
         reason = None
+        if included and "exclusion_reason" in self.index:
+            self.reason_on_included(row_index, row)
         if not included:
             reason = to_text(self.raw(row, "exclusion_reason"))
             if reason is None:
@@ -401,6 +408,30 @@ class _TableReader:
                 level=level,
             ))
             self.result.rows.append(row_index)
+
+    def reason_on_included(self, row_index: int, row: Sequence[Cell]) -> None:
+        """Refuse a reason to exclude on a row the file marks as included (never drop it)."""
+        text = to_text(self.raw(row, "exclusion_reason"))
+        if text is None:
+            return
+        column = self.shared["exclusion_reason"]
+        flag = self.raw(row, "include") if "include" in self.index else None
+        remark = squash(column.header) in _REMARK_HEADINGS or squash(
+            column.header.split("(")[0]) in _REMARK_HEADINGS
+        if remark and ("include" not in self.index or not is_blank(flag)):
+            return  # a remark beside an explicit yes, or a comments column without include
+        if "include" not in self.index:
+            marked = "the table has no include column, so the row counts as included"
+        elif is_blank(flag):
+            marked = f"its include cell {self.shared['include'].letter}{row_index + 1} is empty"
+        else:
+            marked = (f"its include cell {self.shared['include'].letter}{row_index + 1} says "
+                      f"{to_text(flag)!r}")
+        raise self.fail(
+            row_index, column,
+            f"found the exclusion reason {text!r} on a row marked included ({marked}); write "
+            f"no in the include column to exclude the point, or clear the reason to keep it",
+        )
 
     def responses(self, row_index: int, row: Sequence[Cell], column: Column,
                   is_column: Column | None, kind: SampleType, *, lenient: bool,

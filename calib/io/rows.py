@@ -49,6 +49,7 @@ from calib.io.numbers import (
     split_unit_suffix,
 )
 from calib.io.sampletypes import SampleTyper
+from calib.io.summary_rows import find_summary_rows
 from calib.io.table import Grid, reference_prefix
 from calib.options import SampleType
 from calib.run import Point
@@ -478,9 +479,11 @@ class _TableReader:
 
     def read(self) -> TableRead:
         rows = self.grid.rows
+        summaries = find_summary_rows(self.grid, self.table)
+        self.result.warnings.extend(summaries.values())
         for index in self.table.body:
             row = rows[index]
-            if all(map(is_blank, row)):
+            if index in summaries or all(map(is_blank, row)):
                 continue
             if index in self.grid.hidden_rows:
                 before = len(self.result.points)

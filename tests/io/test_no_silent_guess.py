@@ -75,3 +75,56 @@ def test_a_remark_beside_an_empty_include_cell_is_refused(write_csv):
         "included (its include cell C2 is empty); write no in the include column to exclude "
         "the point, or clear the reason to keep it"
     )
+
+
+# -- summary rows ------------------------------------------------------------------------------
+
+_PAIRS = "".join(f"Nitrate-N,Std {i},{c:.4f},{r},yes,\n" for i, (c, r) in enumerate(
+    [(1, 0.2003), (1, 0.1996), (2, 0.4010), (2, 0.3990), (5, 1.0012), (5, 0.9988), (10, 2.0021),
+     (10, 1.9977)], start=1))
+
+
+@pytest.mark.parametrize("word", ["Mean", "Average", "SD", "%RSD", "RSD%", "Total", "Sum"])
+def test_a_summary_row_is_set_aside_with_a_note(write_csv, word):
+    # The column means (4.5 mg/L, 0.89998) lie exactly on the line: fitted, they would add a
+    # fifth level no residual check can see (issue 17).
+    path = write_csv(_HEAD + _PAIRS + f"Nitrate-N,{word},4.5000,0.89998,\n")
+    run = read_run(path)
+    standards = run.standards("Nitrate-N")
+    assert sorted({p.concentration for p in standards}) == [1, 2, 5, 10]
+    assert len(standards) == 8
+    assert run.warnings == (
+        f"run.csv!B10: row 10 is a summary row ({word!r}), not an injection; it was set aside",)
+
+
+def test_an_unnamed_total_row_is_refused(write_csv):
+    path = write_csv(_HEAD + _PAIRS + "Nitrate-N,,36.0000,7.1997,,\n")
+    assert message(path) == (
+        f"{path}, row 10, column B (Sample): the row has a concentration but no sample name in "
+        "run.csv!B10, where the other rows have one (run.csv!B2 to run.csv!B9); it may be a "
+        "total or mean row: delete it from the export, or write its sample name (or its sample "
+        "type) if it is an injection"
+    )
+
+
+def test_an_average_row_in_a_wide_sheet_is_set_aside(write_xlsx):
+    rows = [["Level", "Conc (mg/L)", "Nitrate area", "Sulfate area"]]
+    rows += [[i, c, 100.0 * c, 50.0 * c] for i, c in enumerate((1, 2, 5, 10), start=1)]
+    rows.append(["Average", 4.5, 450.0, 225.0])
+    run = read_run(write_xlsx({"Anions": rows}))
+    assert [len(run.standards(a)) for a in run.analytes] == [4, 4]
+    assert run.warnings == (
+        "Anions!A6: row 6 is a summary row ('Average'), not an injection; it was set aside",)
+
+
+def test_an_unlabelled_total_row_in_a_wide_sheet_is_refused(write_xlsx):
+    rows = [["Level", "Conc (mg/L)", "Nitrate area", "Sulfate area"]]
+    rows += [[i, c, 100.0 * c, 50.0 * c] for i, c in enumerate((1, 2, 5, 10), start=1)]
+    rows.append([None, 18, 1800.0, 900.0])
+    path = write_xlsx({"Anions": rows})
+    assert message(path) == (
+        f"{path}, sheet Anions, row 6, column A (Level): the row has a concentration but no "
+        "level label in Anions!A6, where the other rows have one (Anions!A2 to Anions!A5); it "
+        "may be a total or mean row: delete it from the export, or write its level label (or "
+        "its sample type) if it is an injection"
+    )

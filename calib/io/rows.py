@@ -311,7 +311,10 @@ class _TableReader:
                               lambda v: self.typer.from_cell(to_text(v)))
             if kind is not None:
                 return kind
-        return self.typer.from_name(name, has_concentration=self.has_concentration(row))
+        try:
+            return self.typer.from_name(name, has_concentration=self.has_concentration(row))
+        except CellError as exc:
+            raise self.fail(row_index, self.shared["sample_id"], str(exc)) from None
 
     def concentration(self, row_index: int, row: Sequence[Cell], column: Column,
                       kind: SampleType) -> float:

@@ -128,3 +128,32 @@ def test_an_unlabelled_total_row_in_a_wide_sheet_is_refused(write_xlsx):
         "may be a total or mean row: delete it from the export, or write its level label (or "
         "its sample type) if it is an injection"
     )
+
+
+# -- names of independent checks ---------------------------------------------------------------
+
+def test_check_samples_without_a_type_column_are_not_fitted(write_csv):
+    rows = "".join(f"Std {i},{c},{100 * c}\n" for i, c in enumerate((1, 2, 5, 10), start=1))
+    text = ("Sample,Conc (mg/L),Area\n" + rows + "Std QC,5,497\nCheck Std 5,5,503\n"
+            "CRM 7,2,199\nVerification 12,10,1004\n")
+    run = read_run(write_csv(text))
+    assert [p.sample_type.value for p in run.points[4:]] == ["qc"] * 4
+    assert len(run.standards("run")) == 4
+
+
+def test_a_spike_without_a_type_column_is_refused(write_csv):
+    rows = "".join(f"Std {i},{c},{100 * c}\n" for i, c in enumerate((1, 2, 5, 10), start=1))
+    path = write_csv("Sample,Conc (mg/L),Area\n" + rows + "Spike 1,5,480\n")
+    assert message(path) == (
+        f"{path}, row 6, column A (Sample): found the sample name 'Spike 1', which names a "
+        "spike, which may be a QC or a sample; calib does not guess whether it is a calibration "
+        "point: add a sample type column (standard, blank, qc, unknown), or an import map with "
+        "[sample_types] patterns such as qc = ['Spike 1']"
+    )
+
+
+def test_a_spike_with_a_type_column_is_read(write_csv):
+    rows = "".join(f"Std {i},Standard,{c},{100 * c}\n"
+                   for i, c in enumerate((1, 2, 5, 10), start=1))
+    run = read_run(write_csv("Sample,Type,Conc (mg/L),Area\n" + rows + "Spike 1,QC,5,480\n"))
+    assert run.points[-1].sample_type.value == "qc"

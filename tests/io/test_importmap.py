@@ -88,7 +88,7 @@ def test_mapped_heading_missing_from_the_header_row(write_csv, tmp_path):
     [
         ('colums = {}\n', ("unknown key 'colums'; expected one of name, description, sheet, "
                           "header_row, layout, analyte, decimal, delimiter, encoding, columns, "
-                          "units, sample_types, analytes")),
+                          "units, sample_types, analytes, ignore")),
         ('header_row = 0\n', ("header_row is 0; expected a row number from 1 (as the "
                              "spreadsheet shows it)")),
         ('layout = "tall"\n', "layout is 'tall'; expected \"long\" or \"wide\""),

@@ -34,6 +34,7 @@ from calib.io.ambiguity import (
 from calib.io.columns import column_letter, squash
 from calib.io.importmap import ImportMap
 from calib.io.layout import Table, find_tables
+from calib.io.levels import check_level_labels, merge_close_levels
 from calib.io.metadata import metadata_units
 from calib.io.rows import TableRead, read_table
 from calib.io.sampletypes import SAMPLE_TYPE_WORDS, SampleTyper
@@ -312,11 +313,13 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
         for name, own in read.units.items():
             units.setdefault(name, {}).update({k: v for k, v in own.items()
                                                if k not in units.get(name, {})})
+    sheet = grids[0].sheet if len(grids) == 1 else None
+    merge_close_levels(points, all_warnings)
+    check_level_labels(points, file=grids[0].file, sheet=sheet)
     _check_levels(points, grids, units)
     _set_aside_copies(points, all_warnings)
     check_replicates(triples, points, imap=imap)
-    check_populations(points, file=grids[0].file, sheet=grids[0].sheet if len(grids) == 1
-                      else None, min_levels=MIN_LEVELS)
+    check_populations(points, file=grids[0].file, sheet=sheet, min_levels=MIN_LEVELS)
     _screen_internal_standards(reads, all_warnings)
     if per_sheet:
         layout = "sheet-per-analyte"

@@ -37,6 +37,7 @@ from calib.io.cells import (
     to_text,
 )
 from calib.io.columns import Column, squash
+from calib.io.decimals import DecimalReader
 from calib.io.layout import Table
 from calib.io.numbers import (
     DecimalMark,
@@ -100,48 +101,6 @@ class TableRead:
     internal_standards: list[tuple[str, str, float, str | None]] = field(default_factory=list)
 
 
-class _Numbers:
-    """Reads number text with the grid's decimal mark, settled from its numbers when needed."""
-
-    def __init__(self, grid: Grid, measures: frozenset[int], body: range) -> None:
-        self.grid = grid
-        self.measures = measures
-        self.body = body
-        self.decimal: DecimalMark | None = grid.decimal
-        self.settled = grid.decimal is not None
-        if not self.settled and grid.sheet is None:
-            # Text files: every number is text, so say which mark the file writes.
-            self._settle(first=True)
-
-    def _settle(self, *, first: bool = False) -> None:
-        """Settle the mark from the numbers; ``first`` stops at the first number that shows one."""
-        self.settled = True
-        seen: set[str] = set()
-        for index in self.body:
-            row = self.grid.rows[index]
-            for column in self.measures:
-                value = row[column] if column < len(row) else None
-                if isinstance(value, str):
-                    evidence = decimal_evidence(split_unit_suffix(value)[0])
-                    if evidence is not None:
-                        seen.add(evidence)
-            if len(seen) == 2 or (first and seen):
-                break
-        if len(seen) == 1:
-            self.decimal = seen.pop()  # type: ignore[assignment]
-        elif not seen:
-            self.decimal = self.grid.decimal_hint
-
-    def parse(self, text: str) -> float | None:
-        try:
-            return parse_number_text(text, decimal=self.decimal)
-        except NumberTextError:
-            if self.settled:
-                raise
-        self._settle()
-        return parse_number_text(text, decimal=self.decimal)
-
-
 class _Units:
     """The unit each measurement column is in: from its heading, the map or its cells."""
 
@@ -202,7 +161,7 @@ class _TableReader:
         self.analyte = analyte
         self.typer = typer
         self.units = _Units(default_units)
-        self.numbers = _Numbers(grid, header.measurement_indices(), table.body)
+        self.numbers = DecimalReader(grid, header.measurement_indices(), table.body)
         self.memo: dict[tuple[str, type, Cell], object] = {}
         self.prefix = reference_prefix(grid.label)
         self.current_analyte = analyte
@@ -282,6 +241,9 @@ class _TableReader:
             number = self.numbers.parse(number_text)
         except NumberTextError as exc:
             raise self.fail(row_index, column, str(exc)) from None
+        mixed = self.numbers.note_shape(column.index, row_index, number_text)
+        if mixed is not None:
+            raise self.fail(row_index, column, mixed)
         if number is None:
             raise self.fail(row_index, column, f"found {describe(value)}; expected {expected}")
         if unit is not None:

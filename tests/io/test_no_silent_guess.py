@@ -157,3 +157,51 @@ def test_a_spike_with_a_type_column_is_read(write_csv):
                    for i, c in enumerate((1, 2, 5, 10), start=1))
     run = read_run(write_csv("Sample,Type,Conc (mg/L),Area\n" + rows + "Spike 1,QC,5,480\n"))
     assert run.points[-1].sample_type.value == "qc"
+
+
+# -- decimal marks -----------------------------------------------------------------------------
+
+def test_a_thousands_shaped_number_beside_whole_numbers_is_refused(write_csv):
+    # Issue 17: in a semicolon file whose concentrations show decimal commas (0,5), '1,006'
+    # between the whole numbers 995 and 4999 was read as 1.006, a thousandfold error.
+    path = write_csv("Probe;Konz (mg/L);Fläche\nKal 1;0,5;497\nKal 2;1;995\nKal 3;2;1,006\n"
+                     "Kal 4;5;4999\n")
+    assert message(path) == (
+        f"{path}, row 4, column C (Fläche): found '1,006' (row 4) beside the whole number '497' "
+        "(row 2) in one column: read with a decimal comma, '1,006' is a thousand times smaller "
+        "than it looks if the comma separates thousands; expected one way of writing numbers in "
+        "a column: write 1006 if the comma separates thousands, or give an import map with "
+        "decimal = \",\" if 1,006 means 1.006"
+    )
+
+
+def test_an_import_map_naming_the_decimal_comma_settles_it(write_csv, tmp_path):
+    path = write_csv("Probe;Konz (mg/L);Fläche\nKal 1;0,5;497\nKal 2;1;995\nKal 3;2;1,006\n"
+                     "Kal 4;5;4999\n")
+    imap = tmp_path / "map.toml"
+    imap.write_text('decimal = ","\n', encoding="utf-8")
+    run = read_run(path, map=imap)
+    assert [p.response for p in run.points] == pytest.approx([497, 995, 1.006, 4999])
+
+
+# -- levels ------------------------------------------------------------------------------------
+
+def test_a_level_label_at_two_concentrations_is_refused(write_csv):
+    text = ("Level,Conc (mg/L),Area\n1,1,100\n2,2,200\n3,4,400\n4,5,500\n4,8,800\n")
+    path = write_csv(text)
+    assert message(path) == (
+        f"{path}: run: the level label '4' is given at 2 concentrations (5 in the row of "
+        "run.csv!C5, 8 in the row of run.csv!C6); expected one concentration per level: correct "
+        "the level label or the concentration in the file"
+    )
+
+
+def test_concentrations_equal_but_for_rounding_are_one_level(write_csv):
+    # 999.9999999999999 is what a formula such as =10*100 rounded in binary may store; the
+    # relative difference, 1.1e-16, is far under 1e-9.
+    text = ("Conc (mg/L),Area\n10,100\n100,1000\n999.9999999999999,10001\n1000.0,9998\n")
+    run = read_run(write_csv(text))
+    assert sorted({p.concentration for p in run.points}) == [10, 100, 1000]
+    assert run.warnings == (
+        "run: the concentrations 999.9999999999999 (run.csv!B4) and 1000 (run.csv!B5) differ by "
+        "less than 1e-09 relative and were read as one level, 1000",)

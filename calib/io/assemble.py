@@ -36,6 +36,7 @@ from calib.io.importmap import ImportMap
 from calib.io.layout import Table, find_tables
 from calib.io.levels import check_level_labels, merge_close_levels
 from calib.io.metadata import metadata_units
+from calib.io.names import normalise_analytes
 from calib.io.rows import TableRead, read_table
 from calib.io.sampletypes import SAMPLE_TYPE_WORDS, SampleTyper
 from calib.io.table import Grid, reference_prefix
@@ -314,6 +315,8 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
             units.setdefault(name, {}).update({k: v for k, v in own.items()
                                                if k not in units.get(name, {})})
     sheet = grids[0].sheet if len(grids) == 1 else None
+    renamed = normalise_analytes(triples, points, all_warnings, file=grids[0].file, sheet=sheet)
+    units = {renamed.get(name, name): own for name, own in units.items()}
     merge_close_levels(points, all_warnings)
     check_level_labels(points, file=grids[0].file, sheet=sheet)
     _check_levels(points, grids, units)

@@ -205,3 +205,46 @@ def test_concentrations_equal_but_for_rounding_are_one_level(write_csv):
     assert run.warnings == (
         "run: the concentrations 999.9999999999999 (run.csv!B4) and 1000 (run.csv!B5) differ by "
         "less than 1e-09 relative and were read as one level, 1000",)
+
+
+# -- analyte names -----------------------------------------------------------------------------
+
+def _two_names(first: str, second: str) -> str:
+    rows = [f"{a},{c},{k * c}" for a, k in ((first, 10), (second, 12)) for c in (1, 2, 5, 10)]
+    return "Analyte,Conc (mg/L),Area\n" + "\n".join(rows) + "\n"
+
+
+def test_names_differing_only_in_a_cyrillic_letter_are_refused(write_csv):
+    path = write_csv(_two_names("Sulfate", "Sulf\u0430te"))
+    assert message(path) == (
+        f"{path}: the analyte name 'Sulf\u0430te' in run.csv!A6 mixes Latin letters with U+0430 "
+        "CYRILLIC SMALL LETTER A, which looks like the Latin 'a'; expected one spelling: retype "
+        "the name in the file"
+    )
+
+
+def test_names_differing_only_in_case_are_refused(write_csv):
+    path = write_csv(_two_names("Sulfate", "sulfate"))
+    assert message(path) == (
+        f"{path}: the analyte names 'Sulfate' (in run.csv!A2) and 'sulfate' (in run.csv!A6) "
+        "differ only in case or in look-alike characters; expected one spelling per analyte: "
+        "correct one of them in the file"
+    )
+
+
+def test_a_zero_width_space_in_a_name_is_refused(write_csv):
+    path = write_csv(_two_names("Sulfate", "Sul\u200bfate"))
+    assert message(path) == (
+        f"{path}: the analyte name 'Sul\\u200bfate' in run.csv!A6 holds the invisible character "
+        "U+200B ZERO WIDTH SPACE; expected a name of visible characters: delete it in the file"
+    )
+
+
+def test_a_full_width_name_is_normalised_with_a_note(write_csv):
+    full = "\uff33\uff55\uff4c\uff46\uff41\uff54\uff45"  # Ｓｕｌｆａｔｅ
+    run = read_run(write_csv(_two_names("Sulfate", full)))
+    assert run.analytes == ("Sulfate",)
+    assert len(run.standards("Sulfate")) == 8
+    assert run.warnings[0] == (
+        f"run.csv!A6: the analyte name {full!r} was read as 'Sulfate' (Unicode compatibility "
+        "form)")

@@ -228,7 +228,7 @@ class SampleTyper:
                 f"found the sample name {name!r}, which {kind}; calib does not guess whether it "
                 f"is a calibration point: add a sample type column (standard, blank, qc, "
                 f"unknown), or an import map with [sample_types] patterns such as "
-                f"qc = [{name!r}]")
+                f"{'blank' if 'blank' in kind else 'qc'} = [{name!r}]")
         if kind is not None:
             return kind
         return SampleType.STANDARD if has_concentration else SampleType.UNKNOWN

@@ -99,7 +99,8 @@ def test_names_of_two_types_are_refused_with_advice(name, why):
     assert str(err.value) == (
         f"found the sample name {name!r}, which {why}; calib does not guess whether it is a "
         "calibration point: add a sample type column (standard, blank, qc, unknown), or an "
-        f"import map with [sample_types] patterns such as qc = [{name!r}]"
+        f"import map with [sample_types] patterns such as "
+        f"{'blank' if 'blank' in why else 'qc'} = [{name!r}]"
     )
 
 

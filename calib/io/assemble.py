@@ -39,6 +39,7 @@ from calib.io.metadata import metadata_units
 from calib.io.names import normalise_analytes
 from calib.io.rows import TableRead, read_table
 from calib.io.sampletypes import SAMPLE_TYPE_WORDS, SampleTyper
+from calib.io.summary_rows import check_unlabelled_summary
 from calib.io.table import Grid, reference_prefix
 from calib.options import SampleType
 from calib.run import Point, Run, SourceInfo
@@ -317,6 +318,7 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
     sheet = grids[0].sheet if len(grids) == 1 else None
     renamed = normalise_analytes(triples, points, all_warnings, file=grids[0].file, sheet=sheet)
     units = {renamed.get(name, name): own for name, own in units.items()}
+    check_unlabelled_summary(points, file=grids[0].file, sheet=sheet)
     merge_close_levels(points, all_warnings)
     check_level_labels(points, file=grids[0].file, sheet=sheet)
     _check_levels(points, grids, units)

@@ -10,19 +10,26 @@ and no residual check can see it.  So:
   its cell;
 - a row with a concentration but no sample name (or no level label) where
   at least :data:`NAMED_ROWS` other rows have one, and nothing else saying
-  what it is, is refused: it may be an unlabelled total.
+  what it is, is refused: it may be an unlabelled total;
+- in a table with no names or labels at all, a last standard equal in
+  concentration and response to the mean or sum of those above it is refused.
 """
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 
+from calib.errors import InputError
 from calib.io.cells import Cell, is_blank
 from calib.io.columns import squash
 from calib.io.layout import Table
 from calib.io.table import Grid
+from calib.options import SampleType
+from calib.run import Point
 
-__all__ = ["NAMED_ROWS", "SUMMARY_WORDS", "find_summary_rows"]
+__all__ = ["NAMED_ROWS", "SUMMARY_TOLERANCE", "SUMMARY_WORDS", "check_unlabelled_summary",
+           "find_summary_rows"]
 
 SUMMARY_WORDS: frozenset[str] = frozenset(squash(word) for word in (
     "mean", "average", "avg", "mittelwert", "moyenne", "media", "promedio",
@@ -124,3 +131,57 @@ def _unnamed(grid: Grid, table: Table, data: list[int], name: str) -> None:
             f"from the export, or write its {what} (or its sample type) if it is an injection",
             row=index, column=column.label,
         )
+
+
+SUMMARY_TOLERANCE = 1e-4
+"""Relative agreement at which a row's concentration and response equal the others' mean or sum
+(a summary row is usually written rounded, to 4 or 5 significant digits)."""
+
+
+def check_unlabelled_summary(points: Sequence[Point], *, file: str, sheet: str | None) -> None:
+    """Refuse a last standard whose concentration and response are the others' mean or sum.
+
+    A table without sample names or level labels cannot say that its last row
+    is a summary; but a row equal in both concentration and response to the
+    mean (or the sum) of the four or more rows above it is one: a measured
+    response does not land on the mean of the others to 1 part in 10^4 by
+    chance.
+
+    Raises
+    ------
+    InputError
+        Naming the row's cell and what to do.
+
+    Examples
+    --------
+    >>> pts = [Point("N", c, r, f"n.csv!B{i + 2}") for i, (c, r) in
+    ...        enumerate([(1, 0.2), (2, 0.41), (5, 0.99), (10, 2.01), (4.5, 0.9025)])]
+    >>> check_unlabelled_summary(pts, file="n.csv", sheet=None)
+    Traceback (most recent call last):
+    ...
+    calib.errors.InputError: n.csv: N: the row of n.csv!B6 holds the mean of the standards above \
+it (concentration 4.5, response 0.9025): a summary row, not an injection; delete it from the \
+export
+    """
+    by_analyte: dict[str, list[Point]] = {}
+    for point in points:
+        if point.sample_type is SampleType.STANDARD and point.sample_id is None and \
+                point.level is None and math.isfinite(point.response):
+            by_analyte.setdefault(point.analyte, []).append(point)
+    for analyte, own in by_analyte.items():
+        if len(own) < 5:  # a summary of fewer rows could be a real level on a clean line
+            continue
+        last, others = own[-1], own[:-1]
+        concs = [p.concentration for p in others]
+        responses = [p.response for p in others]
+        for what, conc, response in (
+            ("mean", math.fsum(concs) / len(concs), math.fsum(responses) / len(responses)),
+            ("sum", math.fsum(concs), math.fsum(responses)),
+        ):
+            if math.isclose(last.concentration, conc, rel_tol=SUMMARY_TOLERANCE) and \
+                    math.isclose(last.response, response, rel_tol=SUMMARY_TOLERANCE):
+                raise InputError(
+                    f"{analyte}: the row of {last.source_cell} holds the {what} of the standards "
+                    f"above it (concentration {last.concentration:g}, response "
+                    f"{last.response:g}): a summary row, not an injection; delete it from the "
+                    f"export", file=file, sheet=sheet)

@@ -248,3 +248,17 @@ def test_a_full_width_name_is_normalised_with_a_note(write_csv):
     assert run.warnings[0] == (
         f"run.csv!A6: the analyte name {full!r} was read as 'Sulfate' (Unicode compatibility "
         "form)")
+
+
+def test_an_unlabelled_mean_row_without_any_name_column_is_refused(write_csv):
+    # The last row is the column means of the 8 rows above (4.5 mg/L; mean absorbance 0.899963,
+    # written rounded to 0.89996): it lies on the line, so only its values betray it.
+    rows = "".join(f"{c},{r}\n" for c, r in ((1, 0.2003), (1, 0.1996), (2, 0.4010),
+                                             (2, 0.3990), (5, 1.0012), (5, 0.9988),
+                                             (10, 2.0021), (10, 1.9977)))
+    path = write_csv("Conc (mg/L),Absorbance\n" + rows + "4.5,0.89996\n")
+    assert message(path) == (
+        f"{path}: run: the row of run.csv!B10 holds the mean of the standards above it "
+        "(concentration 4.5, response 0.89996): a summary row, not an injection; delete it from "
+        "the export"
+    )

@@ -266,19 +266,26 @@ def check_replicates(reads: Sequence[tuple[Grid, Table, TableRead]], points: Seq
             )
 
 
+def _sum_of_squares(values: Sequence[float]) -> float:
+    mean = math.fsum(values) / len(values)
+    return math.fsum((v - mean) ** 2 for v in values)
+
+
 def _best_split(values: list[float]) -> tuple[float, float, float] | None:
-    """(gap in pooled SDs, mean of the low group, mean of the high group) of the widest split."""
+    """(gap in pooled SDs, mean of the low group, mean of the high group) of the widest split.
+
+    Only the widest gap of the sorted values is tried: a split anywhere else
+    leaves a wider gap inside one group.
+    """
     values = sorted(values)
-    best = None
-    for k in range(2, len(values) - 1):
-        low, high = values[:k], values[k:]
-        gap = high[0] - low[-1]
-        pooled = math.sqrt((statistics.variance(low) * (len(low) - 1) + statistics.variance(
-            high) * (len(high) - 1)) / (len(values) - 2))
-        score = math.inf if pooled == 0 else gap / pooled
-        if best is None or score > best[0]:
-            best = (score, statistics.fmean(low), statistics.fmean(high))
-    return best
+    if len(values) < 4:
+        return None
+    k = max(range(2, len(values) - 1), key=lambda i: values[i] - values[i - 1])
+    low, high = values[:k], values[k:]
+    pooled = math.sqrt((_sum_of_squares(low) + _sum_of_squares(high)) / (len(values) - 2))
+    gap = high[0] - low[-1]
+    score = math.inf if pooled == 0 else gap / pooled
+    return score, math.fsum(low) / len(low), math.fsum(high) / len(high)
 
 
 def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,

@@ -80,13 +80,21 @@ def find_summary_rows(grid: Grid, table: Table) -> dict[int, str]:
     rows = grid.rows
     found: dict[int, str] = {}
     data: list[int] = []
+    # Labels repeat from row to row: fold each distinct text once (exports run to 10^5 rows).
+    summary: dict[str, bool] = {}
     for index in table.body:
         row = rows[index]
         if all(map(is_blank, row)):
             continue
+        width = len(row)
         for column in labels:
-            value = _cell(row, column)
-            if type(value) is str and squash(value) in SUMMARY_WORDS:
+            value = row[column] if column < width else None
+            if type(value) is not str:
+                continue
+            hit = summary.get(value)
+            if hit is None:
+                hit = summary[value] = squash(value) in SUMMARY_WORDS
+            if hit:
                 found[index] = (f"{grid.reference(column, index)}: row {index + 1} is a summary "
                                 f"row ({value.strip()!r}), not an injection; it was set aside")
                 break

@@ -97,7 +97,7 @@ def _unused(grid: Grid, table: Table) -> list[tuple[int, str]]:
     return found
 
 
-def ignored_columns(grid: Grid, table: Table) -> list[str]:
+def ignored_columns(grid: Grid, table: Table, imap: ImportMap | None = None) -> list[str]:
     """Every heading of a table's header row calib does not use, and why.
 
     Examples
@@ -111,8 +111,11 @@ def ignored_columns(grid: Grid, table: Table) -> list[str]:
     icp.csv!C1 'RT (min)': known not to be calibration data
     """
     lines = []
+    skip = _map_ignores(imap)
     for index, text in _unused(grid, table):
-        if index in grid.hidden_columns:
+        if squash(text) in skip or _heading_key(text) in skip:
+            why = "listed under ignore in the import map"
+        elif index in grid.hidden_columns:
             why = "the column is hidden in the workbook"
         elif read_heading(text).ignored:
             why = "known not to be calibration data"
@@ -124,9 +127,14 @@ def ignored_columns(grid: Grid, table: Table) -> list[str]:
     return lines
 
 
+def _map_ignores(imap: ImportMap | None) -> set[str]:
+    if imap is None:
+        return set()
+    return {squash(h) for h in imap.ignore} | {_heading_key(h) for h in imap.ignore}
+
+
 def _candidates(grid: Grid, table: Table, imap: ImportMap | None) -> list[tuple[int, str]]:
-    skip = {squash(h) for h in imap.ignore} | {_heading_key(h) for h in imap.ignore} \
-        if imap is not None else set()
+    skip = _map_ignores(imap)
     return [(index, text) for index, text in _unused(grid, table)
             if index not in grid.hidden_columns and _heading_key(text) not in _BENIGN
             and squash(text) not in _BENIGN and squash(text) not in skip
@@ -288,6 +296,17 @@ def _best_split(values: list[float]) -> tuple[float, float, float] | None:
     return score, math.fsum(low) / len(low), math.fsum(high) / len(high)
 
 
+def _in_time(own: Sequence[Point], split: tuple[float, float, float]) -> bool:
+    """True when the two groups were injected one after the other (drift, not two analytes)."""
+    orders = [p.injection_order for p in own]
+    if None in orders:
+        return False
+    cut = (split[1] + split[2]) / 2
+    low = [p.injection_order for p in own if p.response < cut]
+    high = [p.injection_order for p in own if p.response >= cut]
+    return max(low) < min(high) or max(high) < min(low)  # type: ignore[type-var]
+
+
 def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
                       min_levels: int) -> None:
     """Refuse a curve whose every level holds two separate groups of responses.
@@ -297,7 +316,9 @@ def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
     responses must leave a gap of :data:`GAP_RATIO` pooled standard
     deviations or more, and the ratio of the groups' means must agree
     within 2 % from level to level (a constant ratio is what two analytes
-    of different sensitivity give; chance splits do not repeat it).
+    of different sensitivity give; chance splits do not repeat it).  Groups
+    injected one after the other (by injection order) are drift, which the
+    drift check judges, not two analytes.
 
     Raises
     ------
@@ -315,7 +336,7 @@ def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
         ratios = []
         for own in crowded.values():
             split = _best_split([p.response for p in own])
-            if split is None or split[0] < GAP_RATIO or split[1] <= 0:
+            if split is None or split[0] < GAP_RATIO or split[1] <= 0 or _in_time(own, split):
                 break
             ratios.append(split[2] / split[1])
         else:

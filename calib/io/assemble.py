@@ -291,7 +291,7 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
                     f"into {len(found)} curves ({', '.join(found[:6])}"
                     f"{', ...' if len(found) > 6 else ''})")
             triples.append((grid, table, read))
-            ignored.extend(ignored_columns(grid, table))
+            ignored.extend(ignored_columns(grid, table, imap))
             if not read.points:
                 raise grid.error(
                     f"the table under the header in row {table.header.row + 1} has no rows; "

@@ -262,3 +262,79 @@ def test_an_unlabelled_mean_row_without_any_name_column_is_refused(write_csv):
         "(concentration 4.5, response 0.89996): a summary row, not an injection; delete it from "
         "the export"
     )
+
+
+# -- one curve, two populations ----------------------------------------------------------------
+
+def _two_populations(*, ordered: bool):
+    from calib.run import Point
+
+    points = []
+    for c in (5.0, 10.0, 25.0, 50.0):
+        for k, sensitivity in enumerate((1000.0, 1060.0)):
+            for rep in range(3):
+                order = (100 * k + 10 * c + rep) if ordered else None
+                points.append(Point("Pb", c, sensitivity * c * (1 + 0.001 * (rep - 1)),
+                                    f"r.csv!C{len(points) + 2}", injection_order=order))
+    return points
+
+
+def test_two_populations_at_every_level_are_refused():
+    # Two emission lines 6 % apart (sensitivities 1000 and 1060), three replicates each at
+    # 0.1 % spread: at each level the gap is tens of pooled SDs and the ratio is 1.06.
+    from calib.errors import InputError
+    from calib.io.ambiguity import check_populations
+
+    with pytest.raises(InputError) as err:
+        check_populations(_two_populations(ordered=False), file="r.csv", sheet=None,
+                          min_levels=3)
+    assert str(err.value).startswith(
+        "r.csv: Pb: at each of its 4 levels the standards' responses fall into two separate "
+        "groups whose means differ by a factor of 1.06 (at 5: r.csv!C2, r.csv!C3, r.csv!C4, "
+        "r.csv!C5, r.csv!C6, r.csv!C7), so the curve may hold two analytes or lines")
+
+
+def test_groups_injected_one_after_the_other_are_drift_not_two_analytes():
+    from calib.io.ambiguity import check_populations
+
+    check_populations(_two_populations(ordered=True), file="r.csv", sheet=None, min_levels=3)
+
+
+def test_replicates_with_ordinary_noise_are_never_taken_for_two_populations():
+    # Normal noise of 2 % (a common repeatability) on 4 to 8 replicates at 5 levels: 300 seeded
+    # runs, none refused (the rule needs a wide gap at every level and a constant ratio).
+    import random
+
+    from calib.io.ambiguity import check_populations
+    from calib.run import Point
+
+    for seed in range(300):
+        rng = random.Random(seed)
+        points = [Point("A", c, 100 * c * (1 + rng.gauss(0, 0.02)), "r.csv!C2")
+                  for c in (1, 2, 5, 10, 20) for _ in range(rng.choice((4, 5, 6, 8)))]
+        check_populations(points, file="r.csv", sheet=None, min_levels=3)
+
+
+def test_a_column_splitting_a_wide_table_is_refused(write_csv):
+    rows = "".join(f"{b},{c},{100 * c + k},{50 * c + k}\n" for k, b in enumerate(("Day A", "Day B"))
+                   for c in (1, 2, 5, 10))
+    path = write_csv("Batch label,Conc (mg/L),Nitrate area,Sulfate area\n" + rows)
+    assert message(path) == (
+        f"{path}, row 1, column A (Batch label): the column holds 2 values ('Day A', 'Day B') "
+        "that each recur at 3 or more concentrations of what would be one curve of Nitrate; "
+        "calib does not merge them: if they are different analytes or lines, name the column as "
+        "the analyte column in an import map ([columns] analyte = 'Batch label') and pass it "
+        "with --map; if they are one curve, list it in the map (ignore = ['Batch label'])"
+    )
+
+
+def test_a_column_the_map_ignores_does_not_split(write_csv, tmp_path):
+    rows = "".join(f"{b},{c},{100 * c + k},{50 * c + k}\n" for k, b in enumerate(("Day A", "Day B"))
+                   for c in (1, 2, 5, 10))
+    path = write_csv("Batch label,Conc (mg/L),Nitrate area,Sulfate area\n" + rows)
+    imap = tmp_path / "map.toml"
+    imap.write_text('ignore = ["Batch label"]\n', encoding="utf-8")
+    run = read_run(path, map=imap)
+    assert [len(run.standards(a)) for a in run.analytes] == [8, 8]
+    assert run.source.ignored_columns == (
+        "run.csv!A1 'Batch label': listed under ignore in the import map",)

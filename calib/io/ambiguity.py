@@ -46,6 +46,7 @@ __all__ = [
     "check_populations",
     "check_replicates",
     "ignored_columns",
+    "promote",
     "split_column",
 ]
 

@@ -174,12 +174,11 @@ sample_types, analytes, ignore
                 raise checker.error(f"sample_types.{key}", "a list of patterns in quotes", globs)
             sample_types[kinds[key]] = tuple(globs)
         analytes = checker.analytes(data.get("analytes", {}))
-        ignore = data.get("ignore", [])
-        if isinstance(ignore, str):
-            ignore = [ignore]
+        raw_ignore = data.get("ignore", [])
+        ignore = [raw_ignore] if isinstance(raw_ignore, str) else raw_ignore
         if not isinstance(ignore, list) or not all(isinstance(h, str) and h.strip()
                                                    for h in ignore):
-            raise checker.error("ignore", "a list of headings in quotes", ignore)
+            raise checker.error("ignore", "a list of headings in quotes", raw_ignore)
         return cls(
             file=file, sheet=sheet, header_row=None if header_row is None else header_row - 1,
             layout=layout, analyte=checker.text(data, "analyte"), decimal=decimal,

@@ -40,13 +40,10 @@ from calib.io.columns import Column, squash
 from calib.io.decimals import DecimalReader
 from calib.io.layout import Table
 from calib.io.numbers import (
-    DecimalMark,
     Marker,
     NumberTextError,
-    decimal_evidence,
     find_marker,
     normalise_unit,
-    parse_number_text,
     split_unit_suffix,
 )
 from calib.io.sampletypes import SampleTyper

@@ -128,8 +128,10 @@ def _unnamed(grid: Grid, table: Table, data: list[int], name: str) -> None:
             continue
         if any(not is_blank(_cell(row, i)) for i in others):
             continue
-        if not any(not is_blank(_cell(row, i)) for i in concs):
-            continue
+        given = [_cell(row, i) for i in concs if not is_blank(_cell(row, i))]
+        if not given or all(v == 0 or (isinstance(v, str) and v.strip() in ("0", "0.0", "0,0"))
+                            for v in given):
+            continue  # no concentration, or a blank's 0: never a mean or a total
         what = "sample name" if name == "sample_id" else "level label"
         first, last = named[0], named[-1]
         raise grid.error(

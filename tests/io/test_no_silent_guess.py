@@ -338,3 +338,10 @@ def test_a_column_the_map_ignores_does_not_split(write_csv, tmp_path):
     assert [len(run.standards(a)) for a in run.analytes] == [8, 8]
     assert run.source.ignored_columns == (
         "run.csv!A1 'Batch label': listed under ignore in the import map",)
+
+
+def test_an_unlabelled_blank_at_zero_is_not_taken_for_a_total(write_xlsx):
+    rows = [["Level", "Conc (mg/L)", "Nitrate area", "Sulfate area"], [None, 0, 0.4, 0.2]]
+    rows += [[i, c, 100.0 * c, 50.0 * c] for i, c in enumerate((1, 2, 5, 10), start=1)]
+    run = read_run(write_xlsx({"Anions": rows}))
+    assert [len(run.standards(a)) for a in run.analytes] == [5, 5]

@@ -247,18 +247,20 @@ def check_replicates(reads: Sequence[tuple[Grid, Table, TableRead]], points: Seq
     for grid, table, read in reads:
         own = points[start:start + len(read.points)]
         start += len(read.points)
-        seen: dict[tuple[object, ...], list[tuple[Point, int]]] = {}
+        first: dict[tuple[object, ...], tuple[Point, int]] = {}
+        repeats: dict[tuple[object, ...], list[tuple[Point, int]]] = {}
+        standard = SampleType.STANDARD
         for point, row in zip(own, read.rows, strict=True):
-            if point.sample_type is not SampleType.STANDARD or point.replicate is None:
+            if point.replicate is None or point.sample_type is not standard:
                 continue
             if point.exclusion_reason and _COPIED in point.exclusion_reason:
                 continue
             key = (point.analyte, point.concentration, point.replicate, point.sample_id,
                    point.injection_order)
-            seen.setdefault(key, []).append((point, row))
-        for (analyte, conc, replicate, sample, _), found in seen.items():
-            if len(found) < 2:
-                continue
+            earlier = first.setdefault(key, (point, row))
+            if earlier[0] is not point:
+                repeats.setdefault(key, [earlier]).append((point, row))
+        for (analyte, conc, replicate, sample, _), found in repeats.items():
             cells = ", ".join(p.source_cell for p, _ in found[:4])
             who = f" (sample {sample!r})" if sample else ""
             apart = _telling_apart(grid, table, [r for _, r in found], imap)

@@ -374,7 +374,10 @@ class _TableReader:
 
     def reason_on_included(self, row_index: int, row: Sequence[Cell]) -> None:
         """Refuse a reason to exclude on a row the file marks as included (never drop it)."""
-        text = to_text(self.raw(row, "exclusion_reason"))
+        value = self.raw(row, "exclusion_reason")
+        if value is None or value == "":
+            return  # the common case, decided at once
+        text = to_text(value)
         if text is None:
             return
         column = self.shared["exclusion_reason"]

@@ -84,8 +84,6 @@ def find_summary_rows(grid: Grid, table: Table) -> dict[int, str]:
     summary: dict[str, bool] = {}
     for index in table.body:
         row = rows[index]
-        if all(map(is_blank, row)):
-            continue
         width = len(row)
         for column in labels:
             value = row[column] if column < width else None

@@ -288,10 +288,12 @@ def test_two_populations_at_every_level_are_refused():
     with pytest.raises(InputError) as err:
         check_populations(_two_populations(ordered=False), file="r.csv", sheet=None,
                           min_levels=3)
-    assert str(err.value).startswith(
+    assert str(err.value) == (
         "r.csv: Pb: at each of its 4 levels the standards' responses fall into two separate "
         "groups whose means differ by a factor of 1.06 (at 5: r.csv!C2, r.csv!C3, r.csv!C4, "
-        "r.csv!C5, r.csv!C6, r.csv!C7), so the curve may hold two analytes or lines")
+        "r.csv!C5, r.csv!C6, r.csv!C7), so the curve may hold two analytes or lines; give the "
+        "file an analyte column (or name the column that tells them apart in an import map: "
+        "[columns] analyte = ...) and pass it with --map")
 
 
 def test_groups_injected_one_after_the_other_are_drift_not_two_analytes():
@@ -345,3 +347,42 @@ def test_an_unlabelled_blank_at_zero_is_not_taken_for_a_total(write_xlsx):
     rows += [[i, c, 100.0 * c, 50.0 * c] for i, c in enumerate((1, 2, 5, 10), start=1)]
     run = read_run(write_xlsx({"Anions": rows}))
     assert [len(run.standards(a)) for a in run.analytes] == [5, 5]
+
+
+def test_a_replicate_number_repeated_within_a_level_is_refused(write_csv):
+    # Two lines of one element without a column telling them apart: replicate numbers 1-3
+    # repeat within each level of each sample.
+    rows = "".join(f"Std {i},{c},{k * c + r},{r}\n" for i, c in enumerate((1, 2, 5, 10), start=1)
+                   for k in (100, 106) for r in (1, 2, 3))
+    path = write_csv("Sample,Conc (ug/L),Counts,Replicate\n" + rows)
+    assert message(path) == (
+        f"{path}: run: replicate 1 of the standard at 1 (sample 'Std 1') appears 2 times "
+        "(run.csv!C2, run.csv!C5), so the rows may hold more than one analyte or line in one "
+        "curve; if the rows hold different analytes or lines, give the file an analyte column; "
+        "if they are re-injections, number the replicates 1, 2, 3... within each level or add "
+        "an injection order column"
+    )
+
+
+def test_a_repeated_replicate_names_the_column_that_tells_the_rows_apart(write_csv):
+    # A free-text tag written per injection (line and level in it) does not split the curve
+    # by itself, but it tells the repeated rows apart, so the message points at it.
+    rows = "".join(f"Std {i},{line}/{i}/{r},{c},{k * c + r},{r}\n"
+                   for i, c in enumerate((1, 2, 5, 10), start=1)
+                   for line, k in (("Pb220", 100), ("Pb217", 106)) for r in (1, 2, 3))
+    path = write_csv("Sample,Tag,Conc (ug/L),Counts,Replicate\n" + rows)
+    assert message(path) == (
+        f"{path}: run: replicate 1 of the standard at 1 (sample 'Std 1') appears 2 times "
+        "(run.csv!D2, run.csv!D5), so the rows may hold more than one analyte or line in one "
+        "curve; column B (Tag) tells them apart: if it names the analyte or line, name it as "
+        "the analyte column in an import map ([columns] analyte = ...) and pass it with --map; "
+        "if they are re-injections, number the replicates 1, 2, 3... within each level or add "
+        "an injection order column"
+    )
+
+
+def test_re_injections_with_an_injection_order_are_not_repeats(write_csv):
+    rows = "".join(f"Std {i},{c},{100 * c + r + o},{r},{o * 50 + 3 * i + r}\n"
+                   for o in (0, 1) for i, c in enumerate((1, 2, 5, 10), start=1) for r in (1, 2))
+    run = read_run(write_csv("Sample,Conc (ug/L),Counts,Replicate,Injection order\n" + rows))
+    assert len(run.standards("run")) == 16

@@ -163,7 +163,14 @@ def _split(grid: Grid, index: int, standards: list[tuple[Point, int]], *, analyt
     if not analyte_like and not any(ch.isalpha() for value in groups for ch in value):
         return None  # numbers (retention times, vial numbers) are not names
     full = {v: c for v, c in groups.items() if len(c) >= min_levels}
-    return groups if len(full) >= 2 else None
+    if len(full) >= 2:
+        return groups
+    # A line or label that changes inside a curve (one emission line for the low standards,
+    # another for the high ones) merges two calibrations as surely as two full curves do;
+    # a value per level (a sample label) does not.
+    if analyte_like and any(len(c) >= 2 for c in groups.values()):
+        return groups
+    return None
 
 
 def split_column(grid: Grid, table: Table, read: TableRead, *, imap: ImportMap | None,
@@ -192,14 +199,21 @@ def split_column(grid: Grid, table: Table, read: TableRead, *, imap: ImportMap |
                             min_levels=min_levels)
             if groups is None:
                 continue
-            if analyte_like and may_promote and table.header.layout == "long":
+            every = all(len(c) >= min_levels for c in groups.values())
+            if every and analyte_like and may_promote and table.header.layout == "long":
                 return Column("analyte", text, index)
             shown = ", ".join(repr(v) for v in list(groups)[:4]) + (
                 ", ..." if len(groups) > 4 else "")
             column = Column("analyte", text, index)
+            if sum(len(c) >= min_levels for c in groups.values()) >= 2:
+                how = f"that each recur at {min_levels} or more concentrations"
+            else:
+                how = "that change from level to level"
+                shown = ", ".join(f"{v!r} at {_span(c)}" for v, c in list(groups.items())[:4]) \
+                    + (", ..." if len(groups) > 4 else "")
             raise grid.error(
-                f"the column holds {len(groups)} values ({shown}) that each recur at "
-                f"{min_levels} or more concentrations of what would be one curve of {analyte}; "
+                f"the column holds {len(groups)} values ({shown}) {how} of what would be one "
+                f"curve of {analyte}; "
                 f"calib does not merge them: if they are different analytes or lines, name the "
                 f"column as the analyte column in an import map ([columns] analyte = {text!r}) "
                 f"and pass it with --map; if they are one curve, list it in the map "
@@ -207,6 +221,11 @@ def split_column(grid: Grid, table: Table, read: TableRead, *, imap: ImportMap |
                 row=table.header.row, column=column.label,
             )
     return None
+
+
+def _span(concentrations: set[float]) -> str:
+    low, high = min(concentrations), max(concentrations)
+    return f"{low:g}" if low == high else f"{low:g} to {high:g}"
 
 
 def promote(table: Table, column: Column) -> Table:

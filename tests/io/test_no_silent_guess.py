@@ -386,3 +386,26 @@ def test_re_injections_with_an_injection_order_are_not_repeats(write_csv):
                    for o in (0, 1) for i, c in enumerate((1, 2, 5, 10), start=1) for r in (1, 2))
     run = read_run(write_csv("Sample,Conc (ug/L),Counts,Replicate,Injection order\n" + rows))
     assert len(run.standards("run")) == 16
+
+
+def test_a_line_that_changes_inside_one_curve_is_refused(write_csv):
+    # A less sensitive line for the high standards is common in emission spectrometry; read as
+    # one curve, the two lines' sensitivities (1000 and 1060 counts per ug/L) would merge.
+    rows = "".join(f"Std {i},{line},{c},{k * c}\n" for i, (c, line, k) in enumerate(
+        [(1, "Pb 220.353", 1000), (5, "Pb 220.353", 1000), (10, "Pb 217.000", 1060),
+         (50, "Pb 217.000", 1060)], start=1) for _ in range(2))
+    path = write_csv("Sample,Line,Conc (ug/L),Counts\n" + rows)
+    assert message(path) == (
+        f"{path}, row 1, column B (Line): the column holds 2 values ('Pb 220.353' at 1 to 5, "
+        "'Pb 217.000' at 10 to 50) that change from level to level of what would be one curve "
+        "of run; calib does not merge them: if they are different analytes or lines, name the "
+        "column as the analyte column in an import map ([columns] analyte = 'Line') and pass it "
+        "with --map; if they are one curve, list it in the map (ignore = ['Line'])"
+    )
+
+
+def test_a_label_per_level_is_not_taken_for_an_analyte(write_csv):
+    rows = "".join(f"Cal {i},{c},{100 * c + r}\n" for i, c in enumerate((1, 2, 5, 10), start=1)
+                   for r in (0, 1))
+    run = read_run(write_csv("Label,Conc (mg/L),Area\n" + rows))
+    assert run.analytes == ("run",) and len(run.standards("run")) == 8

@@ -95,6 +95,9 @@ class SourceInfo:
         For text files: the encoding, delimiter and decimal mark used.
     import_map : str or None
         File name of the import map used, if any.
+    ignored_columns : tuple of str
+        Every heading of a header row calib did not use, and why,
+        ``"Run!D5 'RT (min)': known not to be calibration data"``.
     """
 
     file: str
@@ -108,6 +111,7 @@ class SourceInfo:
     delimiter: str | None = None
     decimal_mark: str | None = None
     import_map: str | None = None
+    ignored_columns: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)

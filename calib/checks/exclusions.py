@@ -3,8 +3,12 @@
 A run file can exclude points itself (its ``include`` and ``exclusion_reason``
 columns); the analyst can also exclude points when checking, naming each by
 the cell its response came from (``Run!C7``, or ``C7`` when only one sheet
-has that cell) or by its sample name (``Cal 3``, every analyte of that
-sample).  An exclusion always carries a reason, and the record keeps both.
+has that cell) or by its sample name (``Cal 3``).  A sample name that
+several analytes share must say which (``Nitrate:Cal 3``, or ``*:Cal 3``
+for all of them); a cell or name of an unknown sample is refused, since
+unknowns are not fitted.  An exclusion always carries a reason, the record
+keeps both, and the run's warnings say how many points of which analytes
+each exclusion by name removed.
 """
 
 from __future__ import annotations
@@ -14,6 +18,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, replace
 
 from calib.errors import InputError
+from calib.options import SampleType
 from calib.run import Point, Run
 
 __all__ = ["AppliedExclusion", "Exclusion", "apply_exclusions", "parse_exclusion"]
@@ -99,9 +104,29 @@ def _matches(target: str, points: Sequence[Point]) -> list[int]:
                                  f"that cell ({shown}); name the sheet, e.g. "
                                  f"{points[found[0]].source_cell}")
             return found
+    return _by_name(target, points)
+
+
+def _by_name(target: str, points: Sequence[Point]) -> list[int]:
+    """Points of a sample name, ``ANALYTE:NAME`` or ``*:NAME``; refuses a name of several."""
+    analyte, colon, rest = target.partition(":")
+    analytes = {" ".join(p.analyte.split()).casefold() for p in points}
+    which = " ".join(analyte.split()).casefold()
+    if colon and (which in analytes or which == "*"):
+        target = rest
+    else:
+        which = ""
     name = " ".join(target.split()).casefold()
-    return [i for i, p in enumerate(points)
-            if p.sample_id is not None and " ".join(p.sample_id.split()).casefold() == name]
+    found = [i for i, p in enumerate(points)
+             if p.sample_id is not None and " ".join(p.sample_id.split()).casefold() == name
+             and (which in ("", "*") or " ".join(p.analyte.split()).casefold() == which)]
+    named = list(dict.fromkeys(points[i].analyte for i in found))
+    if not which and len(named) > 1:
+        raise InputError(
+            f"exclusion {target.strip()!r} names a sample of {len(named)} analytes "
+            f"({', '.join(named[:6])}{', ...' if len(named) > 6 else ''}); say which: "
+            f"{named[0]}:{target.strip()}=REASON, or *:{target.strip()}=REASON for all of them")
+    return found
 
 
 def apply_exclusions(run: Run, exclusions: Sequence[Exclusion],
@@ -147,6 +172,13 @@ def apply_exclusions(run: Run, exclusions: Sequence[Exclusion],
                 f"exclusion {exclusion.target!r} matches no point of the run: name the cell its "
                 f"response was read from (such as {points[0].source_cell if points else 'Run!C7'}) "
                 "or its sample name", file=run.source.file)
+        unknowns = [points[i] for i in found if points[i].sample_type is SampleType.UNKNOWN]
+        if len(unknowns) == len(found):
+            who = f" ({unknowns[0].sample_id})" if unknowns[0].sample_id else ""
+            raise InputError(
+                f"exclusion {exclusion.target!r} names {unknowns[0].source_cell}, the response "
+                f"of an unknown sample{who}, which is not fitted: exclusions leave calibration "
+                f"points out; name a standard's cell or sample name", file=run.source.file)
         for i in found:
             p = points[i]
             reason = (exclusion.reason if p.included or not p.exclusion_reason
@@ -155,4 +187,12 @@ def apply_exclusions(run: Run, exclusions: Sequence[Exclusion],
         applied.append(AppliedExclusion(
             exclusion.target, exclusion.reason, tuple(points[i].source_cell for i in found),
             tuple(dict.fromkeys(points[i].analyte for i in found))))
-    return replace(run, points=tuple(points)), tuple(applied)
+    notes = []
+    for done in applied:
+        if not _CELL.fullmatch(_cell_key(done.target)[1]):
+            counts = {a: sum(points[i].analyte == a for i in _matches(done.target, points))
+                      for a in done.analytes}
+            notes.append(f"exclusion {done.target!r} ({done.reason}) removed {len(done.cells)} "
+                         f"point{'s' if len(done.cells) != 1 else ''}: " + ", ".join(
+                             f"{n} of {a}" for a, n in counts.items()))
+    return replace(run, points=tuple(points), warnings=(*run.warnings, *notes)), tuple(applied)

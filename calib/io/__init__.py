@@ -22,6 +22,13 @@ layout and table logic of the modules beside this one:
 :mod:`calib.io.csv_text`     ``.csv`` ``.tsv`` ``.txt``
 :mod:`calib.io.summary`      what was recognised, as text (``--show-import``)
 ===========================  ======================================================
+
+Ambiguity is an error, not a guess: :mod:`calib.io.decimals` never assumes
+the decimal mark of ``1,006``, :mod:`calib.io.summary_rows` sets aside Mean
+and Total rows, :mod:`calib.io.ambiguity` refuses columns that split a curve,
+repeated replicate numbers and two populations in one curve,
+:mod:`calib.io.names` refuses invisible and look-alike characters in analyte
+names, and :mod:`calib.io.levels` checks level labels against concentrations.
 """
 
 from __future__ import annotations

@@ -24,12 +24,22 @@ from collections.abc import Sequence
 from pathlib import PurePath
 
 from calib.errors import InputError
+from calib.io.ambiguity import (
+    check_populations,
+    check_replicates,
+    ignored_columns,
+    promote,
+    split_column,
+)
 from calib.io.columns import column_letter, squash
 from calib.io.importmap import ImportMap
 from calib.io.layout import Table, find_tables
+from calib.io.levels import check_level_labels, merge_close_levels
 from calib.io.metadata import metadata_units
+from calib.io.names import normalise_analytes
 from calib.io.rows import TableRead, read_table
 from calib.io.sampletypes import SAMPLE_TYPE_WORDS, SampleTyper
+from calib.io.summary_rows import check_unlabelled_summary
 from calib.io.table import Grid, reference_prefix
 from calib.options import SampleType
 from calib.run import Point, Run, SourceInfo
@@ -252,6 +262,8 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
     layouts: list[str] = []
     all_warnings = list(warnings)
     decimal = None
+    triples: list[tuple[Grid, Table, TableRead]] = []
+    ignored: list[str] = []
     for grid in grids:
         tables = find_tables(grid, imap=imap)
         stacked = stacked or len(tables) > 1
@@ -262,6 +274,24 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
             previous = name or previous
             read = read_table(grid, table, analyte=name, typer=typer,
                               default_units=_default_units(table, imap))
+            may_promote = ("analyte" not in table.header.shared and given is None
+                           and not table.metadata.get("analyte"))
+            column = split_column(grid, table, read, imap=imap, may_promote=may_promote,
+                                  min_levels=MIN_LEVELS)
+            if column is not None:
+                table = promote(table, column)
+                read = read_table(grid, table, analyte=None, typer=typer,
+                                  default_units=_default_units(table, imap))
+                split_column(grid, table, read, imap=imap, may_promote=False,
+                             min_levels=MIN_LEVELS)
+                found = list(dict.fromkeys(p.analyte for p in read.points))
+                read.warnings.append(
+                    f"{grid.reference(column.index, table.header.row)}: column {column.label} "
+                    f"was read as the analyte column, since its values split the standards "
+                    f"into {len(found)} curves ({', '.join(found[:6])}"
+                    f"{', ...' if len(found) > 6 else ''})")
+            triples.append((grid, table, read))
+            ignored.extend(ignored_columns(grid, table, imap))
             if not read.points:
                 raise grid.error(
                     f"the table under the header in row {table.header.row + 1} has no rows; "
@@ -285,8 +315,16 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
         for name, own in read.units.items():
             units.setdefault(name, {}).update({k: v for k, v in own.items()
                                                if k not in units.get(name, {})})
+    sheet = grids[0].sheet if len(grids) == 1 else None
+    renamed = normalise_analytes(triples, points, all_warnings, file=grids[0].file, sheet=sheet)
+    units = {renamed.get(name, name): own for name, own in units.items()}
+    check_unlabelled_summary(points, file=grids[0].file, sheet=sheet)
+    merge_close_levels(points, all_warnings)
+    check_level_labels(points, file=grids[0].file, sheet=sheet)
     _check_levels(points, grids, units)
     _set_aside_copies(points, all_warnings)
+    check_replicates(triples, points, imap=imap)
+    check_populations(points, file=grids[0].file, sheet=sheet, min_levels=MIN_LEVELS)
     _screen_internal_standards(reads, all_warnings)
     if per_sheet:
         layout = "sheet-per-analyte"
@@ -300,6 +338,7 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
         source, layout=layout, tables=tuple(ranges), columns=tuple(columns),
         decimal_mark=source.decimal_mark or decimal,
         import_map=imap.file if imap is not None else source.import_map,
+        ignored_columns=tuple(ignored),
     )
     return Run(source=info, points=tuple(points), metadata=metadata, units=shared,
                analyte_units=own_units, warnings=tuple(all_warnings))

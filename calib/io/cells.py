@@ -41,12 +41,16 @@ Cell = (
 """A raw cell as a reader hands it over."""
 
 _FLAGS = {
-    "yes": True, "y": True, "true": True, "1": True, "x": True, "ja": True, "j": True,
+    "yes": True, "y": True, "true": True, "1": True, "ja": True, "j": True,
     "oui": True, "si": True, "sí": True, "wahr": True, "vrai": True, "verdadero": True,
     "no": False, "n": False, "false": False, "0": False, "nein": False, "non": False,
     "falsch": False, "faux": False, "falso": False,
 }
-_FLAG_WORDS = "yes/no, y/n, true/false, 1/0, x"
+_FLAG_WORDS = "yes/no, y/n, true/false, 1/0"
+# Marks some labs put on the rows they use and others on the rows they leave out: reading
+# one either way could reverse an analyst's exclusion, so they are refused.
+_AMBIGUOUS_MARKS = frozenset({"x", "\u2713", "\u2714", "\u2717", "\u2718", "*", "+", "-", "\u2022",
+                              "\u00d7"})
 
 
 class CellError(ValueError):
@@ -193,19 +197,25 @@ def to_integer(value: Cell) -> int:
 def to_flag(value: Cell) -> bool:
     """Read an include cell: True for included, False for excluded.
 
-    Accepted, ignoring case and surrounding spaces: yes/no, y/n, true/false,
-    1/0 and ``x`` (a mark meaning included), also in German, French and
-    Spanish (ja/nein, oui/non, sí/no...); an empty cell means included.
+    Accepted, ignoring case and surrounding spaces: yes/no, y/n, true/false
+    and 1/0, also in German, French and Spanish (ja/nein, oui/non, sí/no...);
+    an empty cell means included.  A bare mark such as ``x`` or a tick is
+    refused: some labs mark the rows they use, others the rows they leave out.
 
     Examples
     --------
-    >>> to_flag("Yes"), to_flag("n"), to_flag(None), to_flag("X"), to_flag(0.0)
-    (True, False, True, True, False)
+    >>> to_flag("Yes"), to_flag("n"), to_flag(None), to_flag(0.0)
+    (True, False, True, False)
     >>> to_flag("maybe")
     Traceback (most recent call last):
     ...
-    calib.io.cells.CellError: found the text 'maybe'; expected yes/no, y/n, true/false, 1/0, x \
-or an empty cell (included)
+    calib.io.cells.CellError: found the text 'maybe'; expected yes/no, y/n, true/false, 1/0 or \
+an empty cell (included)
+    >>> to_flag(" X ")
+    Traceback (most recent call last):
+    ...
+    calib.io.cells.CellError: found the mark 'X', which some labs use for included and others \
+for excluded; write yes or no in the include column (an empty cell means included)
     """
     if is_blank(value):
         return True
@@ -214,9 +224,14 @@ or an empty cell (included)
     if isinstance(value, (int, float)) and value in (0, 1):
         return bool(value)
     if isinstance(value, str):
-        flag = _FLAGS.get(value.strip().casefold())
+        folded = value.strip().casefold()
+        flag = _FLAGS.get(folded)
         if flag is not None:
             return flag
+        if folded in _AMBIGUOUS_MARKS:
+            raise CellError(f"found the mark {value.strip()!r}, which some labs use for included "
+                            "and others for excluded; write yes or no in the include column (an "
+                            "empty cell means included)")
     raise _problem(value, f"{_FLAG_WORDS} or an empty cell (included)")
 
 

@@ -56,6 +56,10 @@ SYNONYMS: Mapping[str, tuple[str, ...]] = MappingProxyType(
             # German, French, Spanish
             "analyt", "substanz", "komponente", "verbindung", "stoff", "composé", "composant",
             "analito", "compuesto", "componente", "sustancia",
+            # an element with its emission line or mass (ICP exports)
+            "element / wavelength", "element line", "element / mass", "analyte / wavelength",
+            "analyte line", "emission line", "element / isotope", "element label",
+            "analyte label", "element / line",
         ),
         "sample_type": (
             "sample type", "type", "sample kind", "kind", "std type",

@@ -13,6 +13,7 @@ per instrument method and passes it with ``--map``.  Every key is optional::
     decimal = ","                # decimal mark of a text file: "." or ","
     delimiter = ";"              # delimiter of a text file
     encoding = "cp1252"          # encoding of a text file
+    ignore = ["Operator"]        # headings that never split a curve (see below)
 
     [columns]                    # canonical column = heading as written in the file
     concentration = "Sollwert"
@@ -29,6 +30,11 @@ per instrument method and passes it with ``--map``.  Every key is optional::
     [analytes]                   # wide tables: analyte = its response heading,
     Nitrate = "NO3 Fl."          # or a table of its columns
     Fluoride = { response = "F Fl.", concentration = "F Soll" }
+
+``ignore`` lists headings the analyst declares are not the analyte: calib
+stops when a column it does not read holds values that would split one
+curve in two (two emission lines, two batches), and this says the rows are
+one curve all the same.
 
 Headings are compared as calib compares headings (case, accents, spaces,
 punctuation and a trailing unit do not matter).
@@ -53,7 +59,7 @@ __all__ = ["ImportMap", "load_map"]
 
 _TOP_KEYS = (
     "name", "description", "sheet", "header_row", "layout", "analyte", "decimal", "delimiter",
-    "encoding", "columns", "units", "sample_types", "analytes",
+    "encoding", "columns", "units", "sample_types", "analytes", "ignore",
 )
 _LAYOUTS = ("long", "wide")
 _UNIT_KEYS = ("concentration", "response", "is_response")
@@ -87,6 +93,8 @@ class ImportMap:
         Glob patterns per sample type.
     analytes : mapping of str to mapping of str to str
         For wide tables: analyte to ``{canonical column: heading}``.
+    ignore : tuple of str
+        Headings of columns that do not split a curve, whatever they hold.
     """
 
     file: str | None = None
@@ -102,6 +110,7 @@ class ImportMap:
     units: Mapping[str, str] = field(default_factory=dict)
     sample_types: Mapping[SampleType, tuple[str, ...]] = field(default_factory=dict)
     analytes: Mapping[str, Mapping[str, str]] = field(default_factory=dict)
+    ignore: tuple[str, ...] = ()
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any], *, file: str = "import map") -> ImportMap:
@@ -122,7 +131,7 @@ class ImportMap:
         ...
         calib.errors.InputError: ic2.toml: unknown key 'colums'; expected one of name, \
 description, sheet, header_row, layout, analyte, decimal, delimiter, encoding, columns, units, \
-sample_types, analytes
+sample_types, analytes, ignore
         """
         checker = _Checker(file)
         checker.keys(data, _TOP_KEYS, where="")
@@ -165,11 +174,16 @@ sample_types, analytes
                 raise checker.error(f"sample_types.{key}", "a list of patterns in quotes", globs)
             sample_types[kinds[key]] = tuple(globs)
         analytes = checker.analytes(data.get("analytes", {}))
+        raw_ignore = data.get("ignore", [])
+        ignore = [raw_ignore] if isinstance(raw_ignore, str) else raw_ignore
+        if not isinstance(ignore, list) or not all(isinstance(h, str) and h.strip()
+                                                   for h in ignore):
+            raise checker.error("ignore", "a list of headings in quotes", raw_ignore)
         return cls(
             file=file, sheet=sheet, header_row=None if header_row is None else header_row - 1,
             layout=layout, analyte=checker.text(data, "analyte"), decimal=decimal,
             delimiter=delimiter, encoding=encoding, columns=columns, units=units,
-            sample_types=sample_types, analytes=analytes,
+            sample_types=sample_types, analytes=analytes, ignore=tuple(ignore),
         )
 
 

@@ -36,19 +36,18 @@ from calib.io.cells import (
     to_name,
     to_text,
 )
-from calib.io.columns import Column
+from calib.io.columns import Column, squash
+from calib.io.decimals import DecimalReader
 from calib.io.layout import Table
 from calib.io.numbers import (
-    DecimalMark,
     Marker,
     NumberTextError,
-    decimal_evidence,
     find_marker,
     normalise_unit,
-    parse_number_text,
     split_unit_suffix,
 )
 from calib.io.sampletypes import SampleTyper
+from calib.io.summary_rows import find_summary_rows
 from calib.io.table import Grid, reference_prefix
 from calib.options import SampleType
 from calib.run import Point
@@ -59,6 +58,11 @@ _T = TypeVar("_T")
 _MEASURES = ("concentration", "response", "is_response")
 _HIDDEN = "the row is hidden in the workbook"
 _MARKER_HINT = "a marker such as ND or <LOD sets the point aside"
+# Headings of a free remark rather than a reason to exclude: text there on a row whose include
+# cell says yes is a remark; on a row whose include cell is empty it is ambiguous.
+_REMARK_HEADINGS = frozenset(squash(word) for word in (
+    "comment", "comments", "remark", "remarks", "note", "notes", "bemerkung", "kommentar",
+    "anmerkung", "commentaire", "remarque", "comentario", "observaciones", "nota"))
 
 
 @dataclass
@@ -92,48 +96,6 @@ class TableRead:
     warnings: list[str] = field(default_factory=list)
     decimal: str | None = None
     internal_standards: list[tuple[str, str, float, str | None]] = field(default_factory=list)
-
-
-class _Numbers:
-    """Reads number text with the grid's decimal mark, settled from its numbers when needed."""
-
-    def __init__(self, grid: Grid, measures: frozenset[int], body: range) -> None:
-        self.grid = grid
-        self.measures = measures
-        self.body = body
-        self.decimal: DecimalMark | None = grid.decimal
-        self.settled = grid.decimal is not None
-        if not self.settled and grid.sheet is None:
-            # Text files: every number is text, so say which mark the file writes.
-            self._settle(first=True)
-
-    def _settle(self, *, first: bool = False) -> None:
-        """Settle the mark from the numbers; ``first`` stops at the first number that shows one."""
-        self.settled = True
-        seen: set[str] = set()
-        for index in self.body:
-            row = self.grid.rows[index]
-            for column in self.measures:
-                value = row[column] if column < len(row) else None
-                if isinstance(value, str):
-                    evidence = decimal_evidence(split_unit_suffix(value)[0])
-                    if evidence is not None:
-                        seen.add(evidence)
-            if len(seen) == 2 or (first and seen):
-                break
-        if len(seen) == 1:
-            self.decimal = seen.pop()  # type: ignore[assignment]
-        elif not seen:
-            self.decimal = self.grid.decimal_hint
-
-    def parse(self, text: str) -> float | None:
-        try:
-            return parse_number_text(text, decimal=self.decimal)
-        except NumberTextError:
-            if self.settled:
-                raise
-        self._settle()
-        return parse_number_text(text, decimal=self.decimal)
 
 
 class _Units:
@@ -196,7 +158,7 @@ class _TableReader:
         self.analyte = analyte
         self.typer = typer
         self.units = _Units(default_units)
-        self.numbers = _Numbers(grid, header.measurement_indices(), table.body)
+        self.numbers = DecimalReader(grid, header.measurement_indices(), table.body)
         self.memo: dict[tuple[str, type, Cell], object] = {}
         self.prefix = reference_prefix(grid.label)
         self.current_analyte = analyte
@@ -276,6 +238,9 @@ class _TableReader:
             number = self.numbers.parse(number_text)
         except NumberTextError as exc:
             raise self.fail(row_index, column, str(exc)) from None
+        mixed = self.numbers.note_shape(column.index, row_index, number_text)
+        if mixed is not None:
+            raise self.fail(row_index, column, mixed)
         if number is None:
             raise self.fail(row_index, column, f"found {describe(value)}; expected {expected}")
         if unit is not None:
@@ -305,7 +270,10 @@ class _TableReader:
                               lambda v: self.typer.from_cell(to_text(v)))
             if kind is not None:
                 return kind
-        return self.typer.from_name(name, has_concentration=self.has_concentration(row))
+        try:
+            return self.typer.from_name(name, has_concentration=self.has_concentration(row))
+        except CellError as exc:
+            raise self.fail(row_index, self.shared["sample_id"], str(exc)) from None
 
     def concentration(self, row_index: int, row: Sequence[Cell], column: Column,
                       kind: SampleType) -> float:
@@ -348,6 +316,8 @@ class _TableReader:
         if "include" in self.index:
             included = self.parse("include", row_index, row, to_flag)
         reason = None
+        if included and "exclusion_reason" in self.index:
+            self.reason_on_included(row_index, row)
         if not included:
             reason = to_text(self.raw(row, "exclusion_reason"))
             if reason is None:
@@ -402,6 +372,33 @@ class _TableReader:
             ))
             self.result.rows.append(row_index)
 
+    def reason_on_included(self, row_index: int, row: Sequence[Cell]) -> None:
+        """Refuse a reason to exclude on a row the file marks as included (never drop it)."""
+        value = self.raw(row, "exclusion_reason")
+        if value is None or value == "":
+            return  # the common case, decided at once
+        text = to_text(value)
+        if text is None:
+            return
+        column = self.shared["exclusion_reason"]
+        flag = self.raw(row, "include") if "include" in self.index else None
+        remark = squash(column.header) in _REMARK_HEADINGS or squash(
+            column.header.split("(")[0]) in _REMARK_HEADINGS
+        if remark and ("include" not in self.index or not is_blank(flag)):
+            return  # a remark beside an explicit yes, or a comments column without include
+        if "include" not in self.index:
+            marked = "the table has no include column, so the row counts as included"
+        elif is_blank(flag):
+            marked = f"its include cell {self.shared['include'].letter}{row_index + 1} is empty"
+        else:
+            marked = (f"its include cell {self.shared['include'].letter}{row_index + 1} says "
+                      f"{to_text(flag)!r}")
+        raise self.fail(
+            row_index, column,
+            f"found the exclusion reason {text!r} on a row marked included ({marked}); write "
+            f"no in the include column to exclude the point, or clear the reason to keep it",
+        )
+
     def responses(self, row_index: int, row: Sequence[Cell], column: Column,
                   is_column: Column | None, kind: SampleType, *, lenient: bool,
                   reasons: list[str], sample: str | None) -> tuple[float, float | None, float | None]:
@@ -447,9 +444,11 @@ class _TableReader:
 
     def read(self) -> TableRead:
         rows = self.grid.rows
+        summaries = find_summary_rows(self.grid, self.table)
+        self.result.warnings.extend(summaries.values())
         for index in self.table.body:
             row = rows[index]
-            if all(map(is_blank, row)):
+            if index in summaries or all(map(is_blank, row)):
                 continue
             if index in self.grid.hidden_rows:
                 before = len(self.result.points)

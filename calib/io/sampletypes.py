@@ -7,12 +7,19 @@ patterns of an import map when one is given.
 
 A row with no type column and a sample name that names no type is a
 standard when it gives a concentration and an unknown when it does not.
+
+Names of independent checks never become calibration points unless the file
+says so: a name holding a check word anywhere (``Check Std 5``, ``Std QC``,
+``Verification 12``, ``CRM 7``) is a QC, and a name that could be either of
+two types (``Cal Blank``, ``Spike 1``) is refused with advice, since a guess
+could put a check sample into the curve.
 """
 
 from __future__ import annotations
 
 import fnmatch
 import re
+import unicodedata
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
@@ -20,7 +27,7 @@ from calib.io.cells import CellError, describe
 from calib.io.columns import squash
 from calib.options import SampleType
 
-__all__ = ["SAMPLE_TYPE_WORDS", "SampleTyper", "type_from_name"]
+__all__ = ["SAMPLE_TYPE_WORDS", "SampleTyper", "read_name", "type_from_name"]
 
 SAMPLE_TYPE_WORDS: dict[SampleType, tuple[str, ...]] = {
     SampleType.STANDARD: (
@@ -69,6 +76,69 @@ _NAME_PATTERNS: tuple[tuple[SampleType, re.Pattern[str]], ...] = tuple(
         (SampleType.STANDARD, _STANDARD),
     )
 )
+
+
+# Words that say what a sample is, wherever they stand in its name.
+_WORD_KINDS: dict[str, str] = {
+    **dict.fromkeys(("std", "stds", "standard", "standards", "cal", "calibrator", "calibrant",
+                     "calibration", "kal", "kalibrator", "kalibrierstandard", "etalon", "patron",
+                     "estandar"), "standard"),
+    **dict.fromkeys(("qc", "qcl", "qcm", "qch", "lqc", "mqc", "hqc", "ccv", "icv", "lcs",
+                     "check", "chk", "control", "kontrolle", "controle", "verification",
+                     "verif", "verify", "ipc"), "check"),
+    **dict.fromkeys(("crm", "srm", "rm", "reference"), "reference material"),
+    **dict.fromkeys(("spike", "spiked", "spk", "fortified", "lfb", "lfm", "ms", "msd"),
+                    "spike"),
+    **dict.fromkeys(("blank", "blk", "blanc", "blanco", "blindwert", "leerwert", "ccb", "icb",
+                     "rb", "mb"), "blank"),
+}
+_WORD = re.compile(r"[^\W\d_]+")
+
+
+def _kinds_in(name: str) -> list[str]:
+    folded = unicodedata.normalize("NFKD", name.casefold())
+    folded = "".join(c for c in folded if not unicodedata.combining(c))
+    return list(dict.fromkeys(k for w in _WORD.findall(folded) if (k := _WORD_KINDS.get(w))))
+
+
+def read_name(name: str | None) -> SampleType | str | None:
+    """The type a sample name says, None when it says none, or why it is ambiguous (a str).
+
+    Examples
+    --------
+    >>> [read_name(n).value for n in ("Check Std 5", "Std QC", "Verification 12", "CRM 7")]
+    ['qc', 'qc', 'qc', 'qc']
+    >>> read_name("Cal Blank")
+    'names both a calibration standard and a blank'
+    >>> read_name("Spike 1")
+    'names a spike, which may be a QC or a sample'
+    """
+    if name is None:
+        return None
+    kinds = _kinds_in(name)
+    named = type_from_name(name)
+    if named is SampleType.ZERO:
+        return named
+    if "spike" in kinds:
+        if len(kinds) == 1:
+            return "names a spike, which may be a QC or a sample"
+        return "names both a spike and " + _a(next(k for k in kinds if k != "spike"))
+    plain = [k for k in kinds if k != "standard"]
+    if "blank" in plain:
+        if len(plain) > 1:
+            return f"names both {_a(plain[0])} and {_a(plain[1])}"
+        if "standard" in kinds:
+            return "names both a calibration standard and a blank"
+        return SampleType.BLANK
+    if plain:  # only check and reference-material words: an independent check
+        return SampleType.QC
+    return named
+
+
+def _a(kind: str) -> str:
+    return {"check": "a QC or check sample", "reference material": "a reference material",
+            "blank": "a blank", "standard": "a calibration standard",
+            "spike": "a spike"}[kind]
 
 
 def type_from_name(name: str | None) -> SampleType | None:
@@ -152,7 +222,13 @@ class SampleTyper:
         >>> SampleTyper().from_name("Sample 4", has_concentration=False).value
         'unknown'
         """
-        kind = self._from_patterns(name) or type_from_name(name)
+        kind = self._from_patterns(name) or read_name(name)
+        if type(kind) is str:  # SampleType is a str enum too
+            raise CellError(
+                f"found the sample name {name!r}, which {kind}; calib does not guess whether it "
+                f"is a calibration point: add a sample type column (standard, blank, qc, "
+                f"unknown), or an import map with [sample_types] patterns such as "
+                f"{'blank' if 'blank' in kind else 'qc'} = [{name!r}]")
         if kind is not None:
             return kind
         return SampleType.STANDARD if has_concentration else SampleType.UNKNOWN

@@ -74,6 +74,9 @@ def describe_import(run: Run) -> str:
     if src.columns:
         lines.append("Columns:")
         lines.extend(f"  {column}" for column in src.columns)
+    if src.ignored_columns:
+        lines.append("Ignored:")
+        lines.extend(f"  {column}" for column in src.ignored_columns)
     if run.metadata:
         items = [f"{key}: {value}" for key, value in run.metadata.items()]
         lines.append("Metadata:  " + items[0])

@@ -304,7 +304,7 @@ def test_exclusions_by_cell_sheet_optional_or_by_sample_name():
                     exclusion_reason="no response in the file")]
     run = make_run(points)
     new, applied = apply_exclusions(run, [parse_exclusion("run!c2=bubble"),
-                                          parse_exclusion("cal  1 = vial cracked"),
+                                          parse_exclusion("*:cal  1 = vial cracked"),
                                           parse_exclusion("'run 2.csv'!C3=checked")])
     assert [p.included for p in new.points] == [False, False, False]
     assert new.points[0].exclusion_reason == "bubble; vial cracked"

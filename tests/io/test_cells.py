@@ -93,8 +93,8 @@ def test_unusable_numbers_are_refused_with_what_was_found(raw, message):
 @pytest.mark.parametrize(
     ("raw", "expected"),
     [
-        ("yes", True), ("YES", True), ("y", True), ("True", True), ("1", True), ("x", True),
-        (" X ", True), ("", True), (None, True), (True, True), (1.0, True),
+        ("yes", True), ("YES", True), ("y", True), ("True", True), ("1", True),
+        ("", True), (None, True), (True, True), (1.0, True),
         ("no", False), ("N", False), ("false", False), ("0", False), (False, False), (0, False),
         ("ja", True), ("Nein", False), ("oui", True), ("non", False), ("sí", True), ("falso", False),
     ],
@@ -107,8 +107,20 @@ def test_unknown_include_flag_is_refused():
     with pytest.raises(CellError) as err:
         to_flag("excluded")
     assert str(err.value) == (
-        "found the text 'excluded'; expected yes/no, y/n, true/false, 1/0, x or an empty cell "
+        "found the text 'excluded'; expected yes/no, y/n, true/false, 1/0 or an empty cell "
         "(included)"
+    )
+
+
+@pytest.mark.parametrize("mark", ["x", " X ", "\u2713", "*", "-"])
+def test_a_bare_include_mark_is_refused(mark):
+    # Common practice: some labs tick the rows they use, others the rows they leave out, so a
+    # mark read either way could reverse an analyst's exclusion.
+    with pytest.raises(CellError) as err:
+        to_flag(mark)
+    assert str(err.value) == (
+        f"found the mark {mark.strip()!r}, which some labs use for included and others for "
+        "excluded; write yes or no in the include column (an empty cell means included)"
     )
 
 

@@ -146,9 +146,21 @@ def test_thousands_commas_are_settled_by_the_files_decimal_points(write_csv):
     assert run.source.decimal_mark == "."
 
 
-def test_semicolon_file_without_evidence_takes_decimal_commas(write_csv):
-    run = read_run(write_csv("Conc;Area\n1;1,250\n2;2,500\n3;3,750\n"))
-    assert [p.response for p in run.points] == [1.25, 2.5, 3.75]
+def test_semicolon_file_without_evidence_refuses_a_number_read_both_ways(write_csv):
+    # Issue 17: a semicolon file is only assumed to write decimal commas; an assumption must
+    # not settle 1,250 (1.25 or 1250), as the comma and tab paths already refuse it.
+    path = write_csv("Conc;Area\n1;1,250\n2;2,500\n3;3,750\n")
+    assert message(path) == (
+        f"{path}, row 2, column B (Area): found the text '1,250', where the comma may be a "
+        "decimal comma or a thousands separator (no number in the file shows which); expected "
+        "a number whose decimal mark the file makes clear (for example 1250 or 1.250), or an "
+        "import map naming the decimal mark"
+    )
+
+
+def test_semicolon_file_takes_decimal_commas_its_numbers_show(write_csv):
+    run = read_run(write_csv("Conc;Area\n0,5;0,625\n1;1,250\n2;2,500\n3;3,750\n"))
+    assert [p.response for p in run.points] == [0.625, 1.25, 2.5, 3.75]
     assert run.source.decimal_mark == ","
 
 

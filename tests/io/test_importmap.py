@@ -88,7 +88,7 @@ def test_mapped_heading_missing_from_the_header_row(write_csv, tmp_path):
     [
         ('colums = {}\n', ("unknown key 'colums'; expected one of name, description, sheet, "
                           "header_row, layout, analyte, decimal, delimiter, encoding, columns, "
-                          "units, sample_types, analytes")),
+                          "units, sample_types, analytes, ignore")),
         ('header_row = 0\n', ("header_row is 0; expected a row number from 1 (as the "
                              "spreadsheet shows it)")),
         ('layout = "tall"\n', "layout is 'tall'; expected \"long\" or \"wide\""),
@@ -105,6 +105,8 @@ def test_mapped_heading_missing_from_the_header_row(write_csv, tmp_path):
                                        "quotes")),
         ('[analytes]\nLead = { concentration = "Pb conc" }\n',
          'analytes.Lead names no response heading; expected response = "..."'),
+        ('ignore = [3]\n', "ignore is [3]; expected a list of headings in quotes"),
+        ('ignore = ""\n', "ignore is ''; expected a list of headings in quotes"),
     ],
 )
 def test_bad_maps_are_refused_naming_the_key(tmp_path, text, problem):
@@ -165,3 +167,8 @@ def test_command_line_map_and_show_import(write_csv, tmp_path, capsys):
     code = main(["check", str(path), "--map", str(toml), "--json"])
     assert code in (0, 1)
     assert '"analyte": "Nitrate-N"' in capsys.readouterr().out
+
+
+def test_ignore_takes_one_heading_or_a_list(tmp_path):
+    assert load_map(_map(tmp_path, 'ignore = "Operator"\n')).ignore == ("Operator",)
+    assert load_map(_map(tmp_path, 'ignore = ["Line", "Batch"]\n')).ignore == ("Line", "Batch")

@@ -72,3 +72,38 @@ def test_import_map_patterns_come_first():
     assert typer.from_cell("ks-3") is Q
     assert typer.from_name("P4", has_concentration=False) is S
     assert typer.from_name("Std 1", has_concentration=True) is S
+
+
+@pytest.mark.parametrize(
+    ("name", "kind"),
+    [("Std QC", Q), ("Check Std 5", Q), ("QC Std 15", Q), ("Verification 12", Q), ("CRM 7", Q),
+     ("Cal Check 2", Q), ("ICV-2", Q), ("LCS", Q), ("CCB 1", B), ("Blank", B), ("Std 3", S)],
+)
+def test_check_words_anywhere_in_a_name_make_a_qc(name, kind):
+    # Issue 17: independent checks (check standards, verification standards, reference
+    # materials) are judged by the QC rule; fitted as standards they would inflate the levels
+    # and degrees of freedom of the curve they are meant to check (common practice).
+    assert SampleTyper().from_name(name, has_concentration=True) is kind
+
+
+@pytest.mark.parametrize(
+    ("name", "why"),
+    [("Cal Blank", "names both a calibration standard and a blank"),
+     ("Spike 1", "names a spike, which may be a QC or a sample"),
+     ("Std Spike", "names both a spike and a calibration standard"),
+     ("QC Blank", "names both a QC or check sample and a blank")],
+)
+def test_names_of_two_types_are_refused_with_advice(name, why):
+    with pytest.raises(CellError) as err:
+        SampleTyper().from_name(name, has_concentration=True)
+    assert str(err.value) == (
+        f"found the sample name {name!r}, which {why}; calib does not guess whether it is a "
+        "calibration point: add a sample type column (standard, blank, qc, unknown), or an "
+        f"import map with [sample_types] patterns such as "
+        f"{'blank' if 'blank' in why else 'qc'} = [{name!r}]"
+    )
+
+
+def test_an_import_map_pattern_settles_an_ambiguous_name():
+    typer = SampleTyper({SampleType.BLANK: ("cal blank*",)})
+    assert typer.from_name("Cal Blank 2", has_concentration=True) is B

@@ -104,7 +104,7 @@ def test_unreadable_include_flag(write_csv):
     path = write_csv("Conc,Area,Include\n1,10,maybe\n")
     assert message(path) == (
         f"{path}, row 2, column C (Include): found the text 'maybe'; expected yes/no, y/n, "
-        f"true/false, 1/0, x or an empty cell (included)"
+        f"true/false, 1/0 or an empty cell (included)"
     )
 
 

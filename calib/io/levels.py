@@ -1,0 +1,111 @@
+"""Calibration levels: concentrations equal but for rounding are one level; labels must agree.
+
+A formula's rounding writes 999.9999999999999 where the analyst meant 1000:
+counted as two levels, the curve would gain a level it does not have.
+Concentrations within :data:`LEVEL_TOLERANCE` (relative) of each other are
+read as one level, the shortest written value, with a note naming the cells.
+
+A level label (``L4``, ``Cal 4``) given at two concentrations means one of
+the two cells is wrong; calib cannot tell which, so it stops.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Sequence
+
+from calib.errors import InputError
+from calib.options import SampleType
+from calib.run import Point
+
+__all__ = ["LEVEL_TOLERANCE", "check_level_labels", "merge_close_levels"]
+
+LEVEL_TOLERANCE = 1e-9
+"""Relative difference under which two standard concentrations are one level."""
+
+
+def _close(a: float, b: float) -> bool:
+    return abs(a - b) <= LEVEL_TOLERANCE * max(abs(a), abs(b))
+
+
+def merge_close_levels(points: list[Point], warnings: list[str]) -> None:
+    """Read standard concentrations within :data:`LEVEL_TOLERANCE` of each other as one.
+
+    ``points`` is changed in place; a note per merged level is appended to ``warnings``.
+
+    Examples
+    --------
+    >>> pts = [Point("Cu", c, 1.0, f"r.csv!C{i + 2}") for i, c in
+    ...        enumerate([10.0, 999.9999999999999, 1000.0])]
+    >>> notes = []
+    >>> merge_close_levels(pts, notes)
+    >>> [p.concentration for p in pts]
+    [10.0, 1000.0, 1000.0]
+    >>> print(notes[0])
+    Cu: the concentrations 999.9999999999999 (r.csv!C3) and 1000 (r.csv!C4) differ by less than \
+1e-09 relative and were read as one level, 1000
+    """
+    by_analyte: dict[str, list[int]] = {}
+    for index, point in enumerate(points):
+        if point.sample_type is SampleType.STANDARD and point.concentration == point.concentration:
+            by_analyte.setdefault(point.analyte, []).append(index)
+    for analyte, indices in by_analyte.items():
+        values = sorted({points[i].concentration for i in indices})
+        clusters: list[list[float]] = []
+        for value in values:
+            if clusters and _close(clusters[-1][-1], value):
+                clusters[-1].append(value)
+            else:
+                clusters.append([value])
+        for cluster in clusters:
+            if len(cluster) < 2:
+                continue
+            chosen = min(cluster, key=lambda v: (len(repr(v)), v))
+            shown = []
+            for value in cluster:
+                first = next(points[i].source_cell for i in indices
+                             if points[i].concentration == value)
+                shown.append(f"{value!r} ({first})" if value != chosen else
+                             f"{value:g} ({first})")
+            for i in indices:
+                if points[i].concentration in cluster and points[i].concentration != chosen:
+                    points[i] = dataclasses.replace(points[i], concentration=chosen)
+            warnings.append(
+                f"{analyte}: the concentrations {' and '.join(shown)} differ by less than "
+                f"{LEVEL_TOLERANCE:g} relative and were read as one level, {chosen:g}")
+
+
+def check_level_labels(points: Sequence[Point], *, file: str, sheet: str | None) -> None:
+    """Refuse a level label given at more than one concentration of one analyte.
+
+    Raises
+    ------
+    InputError
+        Naming the analyte, the label, the concentrations and a cell of each.
+
+    Examples
+    --------
+    >>> pts = [Point("Cu", c, 1.0, f"r.csv!C{i + 2}", level=lab) for i, (c, lab) in
+    ...        enumerate([(1, "1"), (2, "2"), (5, "4"), (8, "4")])]
+    >>> check_level_labels(pts, file="r.csv", sheet=None)
+    Traceback (most recent call last):
+    ...
+    calib.errors.InputError: r.csv: Cu: the level label '4' is given at 2 concentrations (5 in \
+the row of r.csv!C4, 8 in the row of r.csv!C5); expected one concentration per level: correct \
+the level label or the concentration in the file
+    """
+    seen: dict[tuple[str, str], dict[float, Point]] = {}
+    for point in points:
+        if point.sample_type is not SampleType.STANDARD or point.level is None:
+            continue
+        seen.setdefault((point.analyte, point.level), {}).setdefault(point.concentration, point)
+    for (analyte, label), found in seen.items():
+        if len(found) < 2:
+            continue
+        where = ", ".join(f"{c:g} in the row of {p.source_cell}" for c, p in found.items())
+        raise InputError(
+            f"{analyte}: the level label {label!r} is given at {len(found)} concentrations "
+            f"({where}); expected one concentration per level: correct the level label or the "
+            f"concentration in the file",
+            file=file, sheet=sheet,
+        )

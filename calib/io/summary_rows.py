@@ -1,0 +1,195 @@
+"""Rows a spreadsheet adds under its data: means, totals, standard deviations.
+
+Analysts and data systems write summary rows below a table (``Mean``,
+``Average``, ``SD``, ``%RSD``, ``Total``).  Read as data, a mean row is a
+standard lying exactly on the line: it adds a level and a degree of freedom
+and no residual check can see it.  So:
+
+- a row labelled with a summary word (in any text column that is not a
+  measurement, include or reason column) is set aside, with a note naming
+  its cell;
+- a row with a concentration but no sample name (or no level label) where
+  at least :data:`NAMED_ROWS` other rows have one, and nothing else saying
+  what it is, is refused: it may be an unlabelled total;
+- in a table with no names or labels at all, a last standard equal in
+  concentration and response to the mean or sum of those above it is refused.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+from calib.errors import InputError
+from calib.io.cells import Cell, is_blank
+from calib.io.columns import squash
+from calib.io.layout import Table
+from calib.io.table import Grid
+from calib.options import SampleType
+from calib.run import Point
+
+__all__ = ["NAMED_ROWS", "SUMMARY_TOLERANCE", "SUMMARY_WORDS", "check_unlabelled_summary",
+           "find_summary_rows"]
+
+SUMMARY_WORDS: frozenset[str] = frozenset(squash(word) for word in (
+    "mean", "average", "avg", "mittelwert", "moyenne", "media", "promedio",
+    "sd", "s.d.", "stdev", "std dev", "standard deviation", "stabw", "standardabweichung",
+    "écart type", "desviación estándar", "rsd", "%rsd", "rsd%", "rsd %", "% rsd", "cv", "%cv",
+    "cv%", "total", "sum", "summe", "somme", "suma", "median", "min", "max", "minimum",
+    "maximum", "count", "range",
+))
+"""Cell texts (compared after folding) that label a summary row, not an injection."""
+
+NAMED_ROWS = 3
+"""Fewest named rows from which an unnamed row with a concentration is suspect."""
+
+_NOT_LABELS = ("include", "exclusion_reason", "sample_type")
+
+
+def _label_columns(grid: Grid, table: Table) -> list[int]:
+    header = table.header
+    skip = set(header.measurement_indices())
+    skip.update(c.index for n, c in header.shared.items() if n in _NOT_LABELS)
+    width = len(grid.rows[header.row])
+    return [i for i in range(width) if i not in skip and i not in grid.hidden_columns]
+
+
+def _cell(row: Sequence[Cell], index: int) -> Cell:
+    return row[index] if index < len(row) else None
+
+
+def find_summary_rows(grid: Grid, table: Table) -> dict[int, str]:
+    """The summary rows of a table: ``{row: note}`` (0-based rows), each to be set aside.
+
+    Raises
+    ------
+    InputError
+        For a row with a concentration but no sample name or level label where
+        other rows have one (and no sample type saying what it is).
+
+    Examples
+    --------
+    >>> from calib.io.layout import find_tables
+    >>> rows = [["Sample", "Conc", "Area"], ["S1", 1, 10.0], ["S2", 2, 20.0],
+    ...         ["S3", 4, 40.0], ["Mean", 2.333, 23.33]]
+    >>> grid = Grid(rows, file="n.csv", label="n.csv")
+    >>> find_summary_rows(grid, find_tables(grid)[0])
+    {4: "n.csv!A5: row 5 is a summary row ('Mean'), not an injection; it was set aside"}
+    """
+    labels = _label_columns(grid, table)
+    rows = grid.rows
+    found: dict[int, str] = {}
+    data: list[int] = []
+    # Labels repeat from row to row: fold each distinct text once (exports run to 10^5 rows).
+    summary: dict[str, bool] = {}
+    for index in table.body:
+        row = rows[index]
+        width = len(row)
+        for column in labels:
+            value = row[column] if column < width else None
+            if type(value) is not str:
+                continue
+            hit = summary.get(value)
+            if hit is None:
+                hit = summary[value] = squash(value) in SUMMARY_WORDS
+            if hit:
+                found[index] = (f"{grid.reference(column, index)}: row {index + 1} is a summary "
+                                f"row ({value.strip()!r}), not an injection; it was set aside")
+                break
+        else:
+            data.append(index)
+    shared = table.header.shared
+    for name in ("sample_id", "level"):
+        if name in shared:
+            _unnamed(grid, table, data, name)
+    return found
+
+
+def _unnamed(grid: Grid, table: Table, data: list[int], name: str) -> None:
+    shared = table.header.shared
+    column = shared[name]
+    rows = grid.rows
+    named = [i for i in data if not is_blank(_cell(rows[i], column.index))]
+    if len(named) < NAMED_ROWS or len(named) == len(data):
+        return
+    conc = shared.get("concentration")
+    concs = [conc.index] if conc is not None else [
+        own["concentration"].index for own in table.header.analytes.values()
+        if "concentration" in own]
+    kind = shared.get("sample_type")
+    others = [c.index for n, c in shared.items() if n in ("sample_id", "level") and n != name]
+    for index in data:
+        row = rows[index]
+        if not is_blank(_cell(row, column.index)):
+            continue
+        if kind is not None and not is_blank(_cell(row, kind.index)):
+            continue
+        if any(not is_blank(_cell(row, i)) for i in others):
+            continue
+        given = [_cell(row, i) for i in concs if not is_blank(_cell(row, i))]
+        if not given or all(v == 0 or (isinstance(v, str) and v.strip() in ("0", "0.0", "0,0"))
+                            for v in given):
+            continue  # no concentration, or a blank's 0: never a mean or a total
+        what = "sample name" if name == "sample_id" else "level label"
+        first, last = named[0], named[-1]
+        raise grid.error(
+            f"the row has a concentration but no {what} in {grid.reference(column.index, index)}, "
+            f"where the other rows have one ({grid.reference(column.index, first)} to "
+            f"{grid.reference(column.index, last)}); it may be a total or mean row: delete it "
+            f"from the export, or write its {what} (or its sample type) if it is an injection",
+            row=index, column=column.label,
+        )
+
+
+SUMMARY_TOLERANCE = 1e-4
+"""Relative agreement at which a row's concentration and response equal the others' mean or sum
+(a summary row is usually written rounded, to 4 or 5 significant digits)."""
+
+
+def check_unlabelled_summary(points: Sequence[Point], *, file: str, sheet: str | None) -> None:
+    """Refuse a last standard whose concentration and response are the others' mean or sum.
+
+    A table without sample names or level labels cannot say that its last row
+    is a summary; but a row equal in both concentration and response to the
+    mean (or the sum) of the four or more rows above it is one: a measured
+    response does not land on the mean of the others to 1 part in 10^4 by
+    chance.
+
+    Raises
+    ------
+    InputError
+        Naming the row's cell and what to do.
+
+    Examples
+    --------
+    >>> pts = [Point("N", c, r, f"n.csv!B{i + 2}") for i, (c, r) in
+    ...        enumerate([(1, 0.2), (2, 0.41), (5, 0.99), (10, 2.01), (4.5, 0.9025)])]
+    >>> check_unlabelled_summary(pts, file="n.csv", sheet=None)
+    Traceback (most recent call last):
+    ...
+    calib.errors.InputError: n.csv: N: the row of n.csv!B6 holds the mean of the standards above \
+it (concentration 4.5, response 0.9025): a summary row, not an injection; delete it from the \
+export
+    """
+    by_analyte: dict[str, list[Point]] = {}
+    for point in points:
+        if point.sample_type is SampleType.STANDARD and point.sample_id is None and \
+                point.level is None and math.isfinite(point.response):
+            by_analyte.setdefault(point.analyte, []).append(point)
+    for analyte, own in by_analyte.items():
+        if len(own) < 5:  # a summary of fewer rows could be a real level on a clean line
+            continue
+        last, others = own[-1], own[:-1]
+        concs = [p.concentration for p in others]
+        responses = [p.response for p in others]
+        for what, conc, response in (
+            ("mean", math.fsum(concs) / len(concs), math.fsum(responses) / len(responses)),
+            ("sum", math.fsum(concs), math.fsum(responses)),
+        ):
+            if math.isclose(last.concentration, conc, rel_tol=SUMMARY_TOLERANCE) and \
+                    math.isclose(last.response, response, rel_tol=SUMMARY_TOLERANCE):
+                raise InputError(
+                    f"{analyte}: the row of {last.source_cell} holds the {what} of the standards "
+                    f"above it (concentration {last.concentration:g}, response "
+                    f"{last.response:g}): a summary row, not an injection; delete it from the "
+                    f"export", file=file, sheet=sheet)

@@ -22,6 +22,7 @@ from calib.checks.narrowing import (
     propose_range,
 )
 from calib.checks.profile import Profile, load_profile
+from calib.checks.refit import Refit, refit_without_rejected
 from calib.checks.result import CheckResult, CurveVerdict, combine_verdicts, verdict_reasons, worst
 from calib.checks.rules import RULES
 from calib.errors import NotAcceptedError
@@ -63,6 +64,8 @@ class CurveAssessment(Tabular):
     #: A narrowed range calib proposes (never applied by itself), when the profile allows.
     proposal: RangeProposal | None = None
     original: CurveAssessment | None = None
+    #: How the curve was refitted without standards its profile rejected, when it was.
+    refit: Refit | None = None
 
     def to_frame(self) -> pd.DataFrame:
         """The standards, back-calculated, as a pandas DataFrame (shown as a table in Jupyter)."""
@@ -301,14 +304,34 @@ def _assess(
     fit, unfitted = fitted
     results = _standard_results(standards, levels, reasons, fit)
     zero = tuple(p for p in standards if p.concentration == 0)
-    ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
-                       slope_history=slope_history, qcs=tuple(qcs))
-    checks = tuple(RULES[spec.id].run(ctx, spec.params, spec.severity) for spec in profile.rules)
+
+    def judged(results: tuple[StandardResult, ...],
+               fit: CurveFit | None) -> tuple[CheckResult, ...]:
+        ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
+                           slope_history=slope_history, qcs=tuple(qcs))
+        return tuple(RULES[spec.id].run(ctx, spec.params, spec.severity)
+                     for spec in profile.rules)
+
+    refit = None
+    rejecting = next((spec.params for spec in profile.rules if spec.id == "back-calculation"
+                      and spec.params.get("refit_without_rejected")), None)
+    if rejecting is not None and fit is not None:
+        # Rejected standards leave the fit before anything (the QCs above all) is judged.
+        refitted, _, last, rejected, note = refit_without_rejected(
+            results, reasons, fit, rejecting,
+            fitter=lambda kept: _try_fit([standards[i] for i in kept], model=model,
+                                         weighting=weighting, confidence=confidence),
+            reader=lambda why, on: _standard_results(standards, levels, why, on))
+        if rejected:
+            first = judged(results, fit)
+            refit = Refit(tuple(rejected), fit, first, combine_verdicts(first), note)
+            results, fit = refitted, last
+    checks = judged(results, fit)
     lod, loq = detection_limits(fit, method=profile.lod_method) if fit is not None else (None, None)
     return CurveAssessment(
         analyte=analyte, model=model, weighting=weighting, confidence=confidence,
         standards=results, fit=fit, unfitted_reason=unfitted, lod=lod, loq=loq,
-        checks=checks, verdict=combine_verdicts(checks, fitted=fit is not None),
+        checks=checks, verdict=combine_verdicts(checks, fitted=fit is not None), refit=refit,
     )
 
 

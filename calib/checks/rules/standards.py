@@ -201,6 +201,8 @@ def back_calculation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
             problems.append(f"only {len(good)} levels pass")
     if outside:
         detail += "; outside: " + ", ".join(outside)
+    if left_out:
+        detail += "; left out of the fit: " + ", ".join(_shown(s) for s in left_out)
     if problems:
         detail += ". The curve fails: " + "; ".join(problems) + "."
         return result("back-calculation", sev, Verdict.FAIL, share, float(need), detail)

@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from calib.checks.context import CurveContext, StandardResult
+from calib.checks.context import VARIANCE_ONLY, CurveContext, StandardResult
 from calib.checks.exclusions import AppliedExclusion, Exclusion, apply_exclusions
 from calib.checks.history import SlopeHistory
 from calib.checks.narrowing import (
@@ -383,6 +383,8 @@ def _batched_fits(standards: Mapping[str, Sequence[Point]], *, model: Model,
 def _exclusion_reasons(standards: Sequence[Point], model: Model, weighting: Weighting,
                        profile: Profile) -> list[str | None]:
     reasons = [_exclusion_reason(p, model, weighting, profile) for p in standards]
+    if profile.fit_replicates == "first":
+        reasons = _first_per_level(standards, reasons)
     if weighting is Weighting.INV_S2:
         # A level's replicate variance is judged on the standards still in the fit.
         replicates: dict[float, list[float]] = {}
@@ -395,6 +397,26 @@ def _exclusion_reasons(standards: Sequence[Point], model: Model, weighting: Weig
             for p, r in zip(standards, reasons)
         ]
     return reasons
+
+
+def _first_per_level(standards: Sequence[Point],
+                     reasons: list[str | None]) -> list[str | None]:
+    """One value per level in the fit, the first injected (file order without injection order).
+
+    ISO 8466-1 (from memory) fits ten standards, one value each; the replicates of the
+    lowest and highest standard serve the variance test alone.
+    """
+    levels: dict[float, list[int]] = {}
+    for i, (p, r) in enumerate(zip(standards, reasons)):
+        if r is None:
+            levels.setdefault(p.concentration, []).append(i)
+    out = list(reasons)
+    for members in levels.values():
+        if all(standards[i].injection_order is not None for i in members):
+            members = sorted(members, key=lambda i: (standards[i].injection_order, i))
+        for i in members[1:]:
+            out[i] = VARIANCE_ONLY
+    return out
 
 
 def _exclusion_reason(point: Point, model: Model, weighting: Weighting,

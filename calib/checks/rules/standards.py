@@ -217,9 +217,14 @@ def _level_passes(members: list[StandardResult], passing: set[int], need: float 
 
 
 def min_replicates(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
-    """At least ``min_replicates`` standards in the fit at each non-zero level (or at the ends)."""
+    """At least ``min_replicates`` standards at each non-zero level (or at the ends).
+
+    Standards in the fit count, and so do replicates kept out of the regression for
+    the variance test alone (profile ``fit_replicates = "first"``, ISO 8466-1).
+    """
     levels: dict[float, int] = {}
-    for s in _nonzero(ctx.used):
+    # Replicates kept for the variance test alone (ISO 8466-1) are replicates all the same.
+    for s in _nonzero((*ctx.used, *ctx.variance_only)):
         levels[s.point.concentration] = levels.get(s.point.concentration, 0) + 1
     if not levels:
         return not_evaluated("min-replicates", sev, "no non-zero standard in the fit")

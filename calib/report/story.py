@@ -430,6 +430,17 @@ class _Builder:
                 f"Working range applied by the analyst: {format_compact(applied.get('low'))} to "
                 f"{format_compact(applied.get('high'))} ({text_or_dash(applied.get('reason'))}). On the full "
                 f"range the curve was: {words(original.get('verdict'))}.")
+        refit = as_mapping(curve.get("refit"))
+        if refit:
+            first = as_mapping(refit.get("first_fit"))
+            figures = ", ".join(f"{k} {format_compact(v)}"
+                                for k, v in as_mapping(first.get("coefficients")).items())
+            notes.append(
+                f"{text_or_dash(refit.get('reason'))} First fit, with every standard "
+                f"({text_or_dash(first.get('n_points'))} in the fit): {figures}, r "
+                f"{format_compact(first.get('r'))}, residual SD "
+                f"{format_compact(first.get('residual_sd'))}; verdict on it: "
+                f"{words(first.get('verdict'))}.")
         proposed = as_mapping(working.get("proposed"))
         if proposed:
             notes.append(

@@ -171,7 +171,7 @@ def back_calculation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
     if tol.notes:
         detail += "; " + "; ".join(tol.notes)
     problems = []
-    if round(share, 1) < need:
+    if as_shown(share, 1) < need:  # compared as printed, to 0.1 %
         problems.append(f"only {share:.1f} % of the standards pass")
 
     levels: dict[float, list[StandardResult]] = {}
@@ -213,7 +213,7 @@ def _level_passes(members: list[StandardResult], passing: set[int], need: float 
     n = sum(id(s) in passing for s in members)
     if need is None:
         return n >= 1
-    return round(100 * n / len(members), 1) >= need
+    return as_shown(100 * n / len(members), 1) >= need
 
 
 def min_replicates(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:

@@ -28,7 +28,11 @@ from calib.checks.result import CheckResult, CurveVerdict
 from calib.checks.rules.standards import rejected_standards, tolerances
 from calib.fit.curve import CurveFit
 
-__all__ = ["Refit", "RejectedStandard", "refit_without_rejected"]
+__all__ = ["MAX_ROUNDS", "Refit", "RejectedStandard", "refit_without_rejected"]
+
+#: Refits at most; a curve still shedding standards after this many is no curve to trust,
+#: and a hostile file must not make calib refit a large curve once per standard.
+MAX_ROUNDS = 20
 
 #: Fits ``(points in the fit)`` -> (fit or None, reason there is none).
 Fitter = Callable[[Sequence[int]], tuple[CurveFit | None, str]]
@@ -140,9 +144,14 @@ def refit_without_rejected(
     reasons = list(reasons)
     rejected: list[RejectedStandard] = []
     note = ""
-    for round_ in range(1, len(results) + 1):
+    for round_ in range(1, MAX_ROUNDS + 2):
         failing = {id(s) for s in rejected_standards(results, params)}
         if not failing:
+            break
+        if round_ > MAX_ROUNDS:
+            note = (f"The rejection stopped after {MAX_ROUNDS} "
+                    f"refit{'s' if MAX_ROUNDS != 1 else ''}; the standards still "
+                    "outside their tolerance stay in the fit and count as failing.")
             break
         tol = tolerances(results, params)
         assert tol is not None  # a standard failed, so one is in the fit

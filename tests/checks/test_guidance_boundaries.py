@@ -380,3 +380,19 @@ def test_an_excluded_lloq_makes_the_next_level_meet_15_pct_in_the_default_profil
         Exclusion("Run!D2", "vial broken"), Exclusion("Run!D3", "vial broken")]).curves[0]
     check = by_id(curve)["back-calculation"]
     assert "outside ±15 %" in check.detail and curve.verdict is CurveVerdict.REJECTED
+
+
+def test_the_rejection_stops_after_a_bounded_number_of_refits(monkeypatch):
+    # A curve shedding one standard per refit stops at MAX_ROUNDS (hostile files must not
+    # make calib refit once per standard); here the limit is lowered to 1 to show it.
+    import calib.checks.refit as refit_module
+
+    monkeypatch.setattr(refit_module, "MAX_ROUNDS", 1)
+    standards = curve_points(BIO_LEVELS, deviations={10: (60.0, 17.0, 0.0)}, noise=0)
+    curve = bio(standards + qcs())
+    assert [r.source_cell for r in curve.refit.rejected] == ["Run!D8"]
+    assert curve.refit.note == ("The rejection stopped after 1 refit; the standards still "
+                                "outside their tolerance stay in the fit and count as failing.")
+    assert curve.refit.reason.endswith(curve.refit.note)
+    check = by_id(curve)["back-calculation"]
+    assert "outside: Run!D9 (+15.6 %)" in check.detail

@@ -396,3 +396,14 @@ def test_the_rejection_stops_after_a_bounded_number_of_refits(monkeypatch):
     assert curve.refit.reason.endswith(curve.refit.note)
     check = by_id(curve)["back-calculation"]
     assert "outside: Run!D9 (+15.6 %)" in check.detail
+
+
+def test_rejected_end_replicates_count_at_their_level():
+    # LLOQ in triplicate at +25, −25 and 0 %: two are rejected and refitted out, one passes, so
+    # the LLOQ stays (not every replicate failed) but its level has 1 of 3 (33 %) within
+    # tolerance, under M10's 50 % per level (from memory): 7 of 8 levels pass, at least 6 must.
+    curve = bio(curve_points(BIO_LEVELS, deviations={1: spread(25, 3)}) + qcs())
+    assert [r.source_cell for r in curve.refit.rejected] == ["Run!D2", "Run!D3"]
+    check = by_id(curve)["back-calculation"]
+    assert "7 of 8 levels pass (at least 50 % of its standards within tolerance)" in check.detail
+    assert check.value == pytest.approx(100 * 15 / 17) and curve.verdict is CurveVerdict.ACCEPTED

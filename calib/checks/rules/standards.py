@@ -177,8 +177,8 @@ def back_calculation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
     levels: dict[float, list[StandardResult]] = {}
     for s in judged:
         levels.setdefault(s.point.concentration, []).append(s)
-    for s in left_out:
-        if lowest < s.point.concentration < highest:
+    for s in left_out:  # a rejected end replicate counts at its end level too
+        if lowest <= s.point.concentration <= highest:
             levels.setdefault(s.point.concentration, []).append(s)
     if p["ends_must_pass"]:
         for conc, which in ((lowest, "lowest"), (highest, "highest")):

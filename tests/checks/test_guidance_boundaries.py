@@ -307,7 +307,9 @@ def test_default_profile_rejects_a_lowest_standard_far_outside_20_pct():
     assert curve.standards[0].deviation_pct == pytest.approx(read, rel=1e-9)
     assert f"{read:+.1f}" == "+46.7"
     assert check.value == pytest.approx(100 * 5 / 6)
-    assert "the lowest level (1, LLOQ) fails: its only standard outside ±20 %" in check.detail
+    assert ("the lowest level (1, LLOQ) fails: its only standard outside ±20 %, so the LLOQ "
+            "cannot be reported there (narrow the working range to make the next level the "
+            "LLOQ, held to ±15 %)") in check.detail
     assert curve.verdict is CurveVerdict.REJECTED
 
 

@@ -186,8 +186,14 @@ def back_calculation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
             if all(id(s) not in passing for s in members):
                 every = {1: "its only standard", 2: "both standards"}.get(
                     len(members), f"all {len(members)} standards")
+                end = "LLOQ" if which == "lowest" else "ULOQ"
+                nxt = "next" if which == "lowest" else "next lower"
+                held = (f", held to ±{tol.main:g} %" if p.get("narrowed_ends_at_main_tolerance")
+                        else "")
                 problems.append(f"{_level_words(conc, which)} fails: {every} outside "
-                                f"±{allowed(members[0]):g} %")
+                                f"±{allowed(members[0]):g} %, so the {end} cannot be reported "
+                                f"there (narrow the working range to make the {nxt} level the "
+                                f"{end}{held})")
     want_levels = p.get("min_passing_levels")
     if want_levels is not None:
         level_need = p.get("min_level_pass_pct")

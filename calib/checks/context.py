@@ -9,7 +9,11 @@ from calib.checks.history import SlopeHistory
 from calib.fit.curve import CurveFit
 from calib.run import Point
 
-__all__ = ["CurveContext", "StandardResult"]
+__all__ = ["VARIANCE_ONLY", "CurveContext", "StandardResult"]
+
+#: Why a replicate is out of the regression under ``fit_replicates = "first"``.
+VARIANCE_ONLY = ("replicate kept for the variance test only: one value per standard enters "
+                 "the regression (ISO 8466-1, from memory)")
 
 
 @dataclass(frozen=True)
@@ -77,6 +81,12 @@ class CurveContext:
     def used(self) -> tuple[StandardResult, ...]:
         """Standards in the fit."""
         return tuple(s for s in self.standards if s.used)
+
+    @functools.cached_property
+    def variance_only(self) -> tuple[StandardResult, ...]:
+        """Replicates kept out of the regression for the variance test alone (ISO 8466-1)."""
+        return tuple(s for s in self.standards if not s.used
+                     and s.exclusion_reason == VARIANCE_ONLY)
 
     @functools.cached_property
     def n_levels(self) -> int:

@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from calib.checks.context import CurveContext, StandardResult
+from calib.checks.context import VARIANCE_ONLY, CurveContext, StandardResult
 from calib.checks.exclusions import AppliedExclusion, Exclusion, apply_exclusions
 from calib.checks.history import SlopeHistory
 from calib.checks.narrowing import (
@@ -22,6 +22,7 @@ from calib.checks.narrowing import (
     propose_range,
 )
 from calib.checks.profile import Profile, load_profile
+from calib.checks.refit import Refit, refit_without_rejected
 from calib.checks.result import CheckResult, CurveVerdict, combine_verdicts, verdict_reasons, worst
 from calib.checks.rules import RULES
 from calib.errors import NotAcceptedError
@@ -63,6 +64,8 @@ class CurveAssessment(Tabular):
     #: A narrowed range calib proposes (never applied by itself), when the profile allows.
     proposal: RangeProposal | None = None
     original: CurveAssessment | None = None
+    #: How the curve was refitted without standards its profile rejected, when it was.
+    refit: Refit | None = None
 
     def to_frame(self) -> pd.DataFrame:
         """The standards, back-calculated, as a pandas DataFrame (shown as a table in Jupyter)."""
@@ -301,14 +304,34 @@ def _assess(
     fit, unfitted = fitted
     results = _standard_results(standards, levels, reasons, fit)
     zero = tuple(p for p in standards if p.concentration == 0)
-    ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
-                       slope_history=slope_history, qcs=tuple(qcs))
-    checks = tuple(RULES[spec.id].run(ctx, spec.params, spec.severity) for spec in profile.rules)
+
+    def judged(results: tuple[StandardResult, ...],
+               fit: CurveFit | None) -> tuple[CheckResult, ...]:
+        ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
+                           slope_history=slope_history, qcs=tuple(qcs))
+        return tuple(RULES[spec.id].run(ctx, spec.params, spec.severity)
+                     for spec in profile.rules)
+
+    refit = None
+    rejecting = next((spec.params for spec in profile.rules if spec.id == "back-calculation"
+                      and spec.params.get("refit_without_rejected")), None)
+    if rejecting is not None and fit is not None:
+        # Rejected standards leave the fit before anything (the QCs above all) is judged.
+        refitted, _, last, rejected, note = refit_without_rejected(
+            results, reasons, fit, rejecting,
+            fitter=lambda kept: _try_fit([standards[i] for i in kept], model=model,
+                                         weighting=weighting, confidence=confidence),
+            reader=lambda why, on: _standard_results(standards, levels, why, on))
+        if rejected:
+            first = judged(results, fit)
+            refit = Refit(tuple(rejected), fit, first, combine_verdicts(first), note)
+            results, fit = refitted, last
+    checks = judged(results, fit)
     lod, loq = detection_limits(fit, method=profile.lod_method) if fit is not None else (None, None)
     return CurveAssessment(
         analyte=analyte, model=model, weighting=weighting, confidence=confidence,
         standards=results, fit=fit, unfitted_reason=unfitted, lod=lod, loq=loq,
-        checks=checks, verdict=combine_verdicts(checks, fitted=fit is not None),
+        checks=checks, verdict=combine_verdicts(checks, fitted=fit is not None), refit=refit,
     )
 
 
@@ -360,6 +383,8 @@ def _batched_fits(standards: Mapping[str, Sequence[Point]], *, model: Model,
 def _exclusion_reasons(standards: Sequence[Point], model: Model, weighting: Weighting,
                        profile: Profile) -> list[str | None]:
     reasons = [_exclusion_reason(p, model, weighting, profile) for p in standards]
+    if profile.fit_replicates == "first":
+        reasons = _first_per_level(standards, reasons)
     if weighting is Weighting.INV_S2:
         # A level's replicate variance is judged on the standards still in the fit.
         replicates: dict[float, list[float]] = {}
@@ -372,6 +397,26 @@ def _exclusion_reasons(standards: Sequence[Point], model: Model, weighting: Weig
             for p, r in zip(standards, reasons)
         ]
     return reasons
+
+
+def _first_per_level(standards: Sequence[Point],
+                     reasons: list[str | None]) -> list[str | None]:
+    """One value per level in the fit, the first injected (file order without injection order).
+
+    ISO 8466-1 (from memory) fits ten standards, one value each; the replicates of the
+    lowest and highest standard serve the variance test alone.
+    """
+    levels: dict[float, list[int]] = {}
+    for i, (p, r) in enumerate(zip(standards, reasons)):
+        if r is None:
+            levels.setdefault(p.concentration, []).append(i)
+    out = list(reasons)
+    for members in levels.values():
+        if all(standards[i].injection_order is not None for i in members):
+            members = sorted(members, key=lambda i: (standards[i].injection_order, i))
+        for i in members[1:]:
+            out[i] = VARIANCE_ONLY
+    return out
 
 
 def _exclusion_reason(point: Point, model: Model, weighting: Weighting,

@@ -1,7 +1,8 @@
 """Acceptance profiles: a laboratory's written rules as a TOML file.
 
 A profile has ``name``, ``version``, ``description``, ``sources``, a
-``[defaults]`` table (model, weighting, confidence, zero_standards, lod_method) and a list
+``[defaults]`` table (model, weighting, confidence, zero_standards, lod_method,
+fit_replicates) and a list
 of ``[[rules]]``, each with an ``id`` from :data:`calib.checks.rules.RULES`, a
 ``severity`` and the rule's parameters.  An optional ``[signoff]`` table says
 whether the analyst who prepared a record may also review or approve it
@@ -37,8 +38,10 @@ _NARROWING_KEYS = ("propose", "max_dropped_levels")
 _SEVERITY_RANK = {Severity.INFO: 0, Severity.REVIEW: 1, Severity.REJECT: 2}
 _SIGNOFF_KEYS = ("allow_preparer_to_review", "allow_preparer_to_approve",
                  "allow_reviewer_to_approve", "require_key_signatures")
-_DEFAULT_KEYS = {"model", "weighting", "confidence", "zero_standards", "lod_method"}
+_DEFAULT_KEYS = {"model", "weighting", "confidence", "zero_standards", "lod_method",
+                 "fit_replicates"}
 _ZERO_CHOICES = ("fit", "exclude")
+_REPLICATE_CHOICES = ("all", "first")
 
 
 @dataclass(frozen=True)
@@ -119,6 +122,11 @@ class Profile:
     lod_method : LimitMethod
         How the detection and quantitation limits are worked out
         (``ich-sd`` when the profile does not say).
+    fit_replicates : str
+        ``all`` (every standard enters the regression) or ``first``: one value per
+        level, the first injected, enters it, and the other replicates are kept for
+        the variance test only (ISO 8466-1: ten standards in the regression, the ten
+        replicates of the lowest and highest for the variance test; from memory).
     """
 
     name: str
@@ -134,6 +142,7 @@ class Profile:
     signoff: SignoffPolicy = field(default_factory=SignoffPolicy)
     lod_method: LimitMethod = LimitMethod.ICH_SD
     narrowing: NarrowingPolicy = field(default_factory=NarrowingPolicy)
+    fit_replicates: str = "all"
 
     @property
     def sha256(self) -> str:
@@ -226,6 +235,10 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
     zero = defaults.get("zero_standards", "fit")
     if zero not in _ZERO_CHOICES:
         raise fail("zero_standards", f"zero_standards must be one of {', '.join(_ZERO_CHOICES)}, got {zero!r}")
+    fit_replicates = defaults.get("fit_replicates", "all")
+    if fit_replicates not in _REPLICATE_CHOICES:
+        raise fail("fit_replicates", f"fit_replicates must be one of "
+                                     f"{', '.join(_REPLICATE_CHOICES)}, got {fit_replicates!r}")
     lod_method = defaults.get("lod_method", LimitMethod.ICH_SD.value)
     if lod_method not in {m.value for m in LimitMethod}:
         raise fail("lod_method", f"lod_method must be one of "
@@ -253,6 +266,7 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
         signoff=_parse_signoff(data.get("signoff", {}), text, origin),
         lod_method=LimitMethod(lod_method),
         narrowing=_parse_narrowing(data.get("narrowing", {}), text, origin),
+        fit_replicates=fit_replicates,
     )
 
 

@@ -74,7 +74,8 @@ def _entry(profile: object) -> dict[str, object]:
         "defaults": {"model": profile.model.value, "weighting": profile.weighting.value,
                      "confidence": profile.confidence,
                      "zero_standards": profile.zero_standards,
-                     "lod_method": profile.lod_method.value},
+                     "lod_method": profile.lod_method.value,
+                     "fit_replicates": profile.fit_replicates},
         "proposes_narrowing": profile.narrowing.propose,
         "rules": [{"id": r.id, "severity": r.severity.value, "source": r.source}
                   for r in profile.rules],

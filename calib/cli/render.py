@@ -53,6 +53,9 @@ def curve_text(curve: CurveAssessment, *, unit: str | None = None) -> str:
                if c.verdict.value in ("fail", "warn") and c.severity.value != "info"]
     lines = [f"{curve.analyte}: {_VERDICT_WORDS[curve.verdict.value]}"
              + (f" ({', '.join(failing)})" if failing else "")]
+    if curve.refit is not None:
+        lines.append(textwrap.fill(refit_words(curve), width=100, initial_indent="  ",
+                                   subsequent_indent="  "))
     fit = curve.fit
     if fit is None:
         lines.append(f"  not fitted: {curve.unfitted_reason}")
@@ -79,6 +82,17 @@ def curve_text(curve: CurveAssessment, *, unit: str | None = None) -> str:
         lines.append(f"  excluded {s.point.source_cell} ({num(s.point.concentration)}): "
                      f"{s.exclusion_reason}")
     return "\n".join(lines)
+
+
+def refit_words(curve: CurveAssessment) -> str:
+    """Why the curve was refitted, and the first fit's key figures beside the refit's."""
+    refit = curve.refit
+    if refit is None:
+        return ""
+    first = refit.first_fit
+    figures = ", ".join(f"{k} {num(v, 6)}" for k, v in first.coefficients.items())
+    return (f"Refitted: {refit.reason} First fit ({first.n_points} standards): {figures}, "
+            f"r {num(first.r, 6)}, residual SD {num(first.residual_sd)}.")
 
 
 def cautions_text() -> str:

@@ -305,7 +305,8 @@ def judge_qc_samples(results: Sequence[SampleResult], *, curve: CalibrationCurve
     qcs = [(r.sample_id, float(r.nominal or 0.0), r.found) for r in results
            if r.sample_type is SampleType.QC]
     return judge_qcs(qcs, lloq=curve.lloq if curve is not None else None, rule=rule,
-                     analyte=analyte, unit=curve.unit if curve is not None else None)
+                     analyte=analyte, unit=curve.unit if curve is not None else None,
+                     uloq=curve.uloq if curve is not None else None)
 
 
 @dataclass(frozen=True)

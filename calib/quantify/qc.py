@@ -36,6 +36,9 @@ class QcRule:
         Share of all QCs that must be within tolerance (ICH M10: 2/3, written 66.7).
     min_level_pass_pct : float
         Share at each level that must be within tolerance (ICH M10: 50).
+    min_levels, min_per_level : int
+        The least QC design judged: concentration levels inside the range, and
+        QCs at each (ICH M10: 3 levels, in duplicate); 0 asks for none.
     severity : str
         ``reject``, ``review`` or ``info``: what a failure does to the batch.
     source : str
@@ -46,21 +49,27 @@ class QcRule:
     lloq_tolerance_pct: float = 20.0
     min_pass_pct: float = 66.7
     min_level_pass_pct: float = 50.0
+    min_levels: int = 0
+    min_per_level: int = 0
     severity: str = "review"
     source: str = "calib's defaults for the qc rule (ICH M10 figures, from memory)"
 
     @classmethod
     def from_params(cls, params: Mapping[str, Any], *, severity: str, source: str) -> QcRule:
         """The rule with a profile rule's parameters (missing ones take the defaults)."""
-        known = {k: float(v) for k, v in params.items()
-                 if k in ("tolerance_pct", "lloq_tolerance_pct", "min_pass_pct",
-                          "min_level_pass_pct") and v is not None}
+        known: dict[str, Any] = {
+            k: float(v) for k, v in params.items()
+            if k in ("tolerance_pct", "lloq_tolerance_pct", "min_pass_pct",
+                     "min_level_pass_pct") and v is not None}
+        known.update({k: int(v) for k, v in params.items()
+                      if k in ("min_levels", "min_per_level") and v is not None})
         return cls(**known, severity=severity, source=source)
 
     def as_dict(self) -> dict[str, Any]:
         """The rule as JSON-ready data."""
         return {"tolerance_pct": self.tolerance_pct, "lloq_tolerance_pct": self.lloq_tolerance_pct,
                 "min_pass_pct": self.min_pass_pct, "min_level_pass_pct": self.min_level_pass_pct,
+                "min_levels": self.min_levels, "min_per_level": self.min_per_level,
                 "severity": self.severity, "source": self.source}
 
 
@@ -83,7 +92,9 @@ class QcOutcome:
     at_lloq : bool
         Whether the QC's nominal concentration is the LLOQ.
     within : bool
-        |deviation| ≤ allowed.
+        |deviation| ≤ allowed (as printed, to 0.1 %) and the nominal inside the range.
+    in_range : bool
+        Whether the nominal concentration lies inside the curve's range (LLOQ to ULOQ).
     """
 
     sample_id: str
@@ -93,6 +104,7 @@ class QcOutcome:
     allowed_pct: float
     at_lloq: bool
     within: bool
+    in_range: bool = True
 
 
 @dataclass(frozen=True)
@@ -149,6 +161,26 @@ def _figure(value: float) -> str:
     return f"{value:.4g}"
 
 
+def _design_short(levels: Sequence[QcLevel], outcomes: Sequence[QcOutcome], rule: QcRule,
+                  unit: str) -> str:
+    """Why the QCs fall short of the rule's minimum design, or ``""``."""
+    inside = [lv for lv in levels
+              if all(o.in_range for o in outcomes if math.isclose(o.nominal, lv.nominal,
+                                                                   rel_tol=1e-9))]
+    problems = []
+    if len(inside) < rule.min_levels:
+        problems.append(f"QCs at {len(inside)} concentration level{'s' if len(inside) != 1 else ''}"
+                        f" inside the range, at least {rule.min_levels} required")
+    thin = [lv for lv in inside if lv.n < rule.min_per_level]
+    if thin:
+        problems.append(f"fewer than {rule.min_per_level} QCs at " + ", ".join(
+            f"{_figure(lv.nominal)}{unit} ({lv.n})" for lv in thin))
+    if not problems:
+        return ""
+    return ("the QC design is too small to judge the run: " + "; ".join(problems)
+            + " (e.g. low, medium and high QCs, at least in duplicate, ICH M10 from memory)")
+
+
 def judge_qcs(
     qcs: Sequence[tuple[str, float, float | None]],
     *,
@@ -156,6 +188,7 @@ def judge_qcs(
     rule: QcRule | None = None,
     analyte: str = "",
     unit: str | None = None,
+    uloq: float | None = None,
 ) -> QcSummary:
     """Apply the QC acceptance rule to one analyte's QCs.
 
@@ -166,11 +199,14 @@ def judge_qcs(
         applied, or None when the QC could not be read back.
     lloq : float or None
         The curve's LLOQ; a QC whose nominal equals it (to 1 part in 10⁶) gets
-        the LLOQ tolerance.
+        the LLOQ tolerance.  A QC whose nominal lies below it (or above ``uloq``)
+        is outside the range and counts as failing.
     rule : QcRule, optional
         The parameters; the defaults (ICH M10 figures) when None.
     analyte, unit : str, optional
         For the explanation.
+    uloq : float, optional
+        The curve's ULOQ (the top of the range).
 
     Returns
     -------
@@ -194,10 +230,15 @@ def judge_qcs(
         dev = None
         if found is not None and math.isfinite(found) and nominal > 0:
             dev = 100 * (found - nominal) / nominal
-        within = dev is not None and abs(dev) <= allowed
+        # Within the range, allowing for the last digit of concentrations read from a file.
+        in_range = ((lloq is None or nominal >= lloq * (1 - 1e-9))
+                    and (uloq is None or nominal <= uloq * (1 + 1e-9)))
+        # Compared as printed ("−15.0 %"): the limit is inclusive at the reported precision.
+        within = (in_range and dev is not None
+                  and abs(float(f"{dev:.1f}")) <= allowed)
         outcomes.append(QcOutcome(str(sample_id), float(nominal),
                                   None if found is None else float(found), dev, allowed,
-                                  at_lloq, within))
+                                  at_lloq, within, in_range))
     n = len(outcomes)
     n_within = sum(o.within for o in outcomes)
     if n == 0:
@@ -219,11 +260,20 @@ def judge_qcs(
     if weak:
         detail += "; too few at " + ", ".join(
             f"{_figure(lv.nominal)}{u} ({lv.n_within} of {lv.n})" for lv in weak)
-    outside = [o for o in outcomes if not o.within]
+    beyond = [o for o in outcomes if not o.in_range]
+    if beyond:
+        ends = f"{_figure(lloq) if lloq is not None else '?'} to {_figure(uloq) if uloq is not None else '?'}"
+        detail += (f"; outside the curve's range {ends}{u}, so read by extrapolation and counted "
+                   "as failing: " + ", ".join(f"{o.sample_id} (nominal {_figure(o.nominal)}{u})"
+                                             for o in beyond))
+    outside = [o for o in outcomes if not o.within and o.in_range]
     if outside:
         detail += "; outside: " + ", ".join(
             f"{o.sample_id} ({'not read back' if o.deviation_pct is None else f'{o.deviation_pct:+.1f} %'})"
             for o in outside)
-    verdict = _PASS if overall and not weak else _FAIL
+    short = _design_short(levels, outcomes, rule, u)
+    if short:
+        detail += "; " + short
+    verdict = _PASS if overall and not weak and not short else _FAIL
     return QcSummary(analyte, rule, tuple(outcomes), tuple(levels), n, n_within, share, verdict,
                      detail + ".")

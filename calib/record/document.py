@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from typing import Any
 
 from calib import __version__
 from calib.checks.evaluate import CurveAssessment, RunAssessment
+from calib.checks.result import verdict_reasons
 
 __all__ = ["CHECK_SCHEMA", "check_document", "finite_or_none"]
 
@@ -33,7 +35,7 @@ def check_document(assessment: RunAssessment) -> dict[str, Any]:
     Every number keeps full double precision; values that cannot be computed
     are ``None``.  Beyond the keys of SPEC §7 the document carries
     ``exclusions`` (what the analyst excluded when checking) and, per curve,
-    ``reasons`` and ``working_range`` (see ``calib/record/schemas/check-1.json``).
+    ``reasons``, ``working_range`` and ``refit`` (see ``calib/record/schemas/check-1.json``).
     """
     run, profile = assessment.run, assessment.profile
     return {
@@ -99,6 +101,35 @@ def curve_document(curve: CurveAssessment) -> dict[str, Any]:
         "verdict": curve.verdict.value,
         "reasons": list(curve.reasons),
         "working_range": _working_range(curve),
+        "refit": _refit(curve),
+    }
+
+
+def _refit(curve: CurveAssessment) -> dict[str, Any] | None:
+    """The standards rejected and left out before the QCs were read, and the first fit."""
+    refit = curve.refit
+    if refit is None:
+        return None
+    first = refit.first_fit
+    # The first fit's checks in the very form of the curve's own.
+    checks = _checks(replace(curve, checks=refit.first_checks))
+    return {
+        "reason": refit.reason,
+        "rounds": refit.rounds,
+        "note": refit.note,
+        "rejected": [{"source_cell": r.source_cell, "concentration": r.concentration,
+                      "deviation_pct": finite_or_none(r.deviation_pct),
+                      "allowed_pct": r.allowed_pct, "round": r.round}
+                     for r in refit.rejected],
+        "first_fit": {
+            "n_points": int(first.x.size),
+            "coefficients": {k: finite_or_none(v) for k, v in first.coefficients.items()},
+            "residual_sd": finite_or_none(first.residual_sd),
+            "r": finite_or_none(first.r),
+            "verdict": refit.first_verdict.value,
+            "reasons": list(verdict_reasons(refit.first_checks)),
+            "checks": checks,
+        },
     }
 
 

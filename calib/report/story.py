@@ -434,13 +434,27 @@ class _Builder:
         return [KeepTogether([self.heading(self.t.titles.signoff), table])]
 
     def range_notes(self, curve: Mapping[str, Any]) -> list[Flowable]:
-        """The analyst's applied working range (with the full-range result) and calib's proposal.
+        """The analyst's applied working range (with the full-range result), the refit
+        without rejected standards, and calib's proposal.
 
         A range is stated once: when the analyst applied the range calib
         proposed, the proposal is not repeated as if it were still open; when
         the analyst applied another range, the proposal is named as such.
         """
-        return [self.para(n) for n in range_sentences(curve, self.t.verdicts.word)]
+        words = self.t.verdicts.word
+        notes = list(range_sentences(curve, words))
+        refit = as_mapping(curve.get("refit"))
+        if refit:
+            first = as_mapping(refit.get("first_fit"))
+            figures = ", ".join(f"{k} {format_compact(v)}"
+                                for k, v in as_mapping(first.get("coefficients")).items())
+            notes.append(
+                f"{text_or_dash(refit.get('reason'))} First fit, with every standard "
+                f"({text_or_dash(first.get('n_points'))} in the fit): {figures}, r "
+                f"{format_compact(first.get('r'))}, residual SD "
+                f"{format_compact(first.get('residual_sd'))}; verdict on it: "
+                f"{words(first.get('verdict'))}.")
+        return [self.para(n) for n in notes]
 
     # -- whole sections ----------------------------------------------------------------------
     def analyte(self, curve: Mapping[str, Any]) -> list[Flowable]:

@@ -91,8 +91,8 @@ def test_profiles_that_use_r_also_use_a_relative_error_or_lack_of_fit_rule():
 # -- bioanalytical (ICH M10) ----------------------------------------------------------------
 
 
-def bio(deviations=None, *, levels=BIO_LEVELS, extra=(), **options):
-    points = curve_points(levels, deviations=deviations) + qc_points() + list(extra)
+def bio(deviations=None, *, levels=BIO_LEVELS, extra=(), qcs=(3, 80, 800), **options):
+    points = curve_points(levels, deviations=deviations) + qc_points(qcs) + list(extra)
     assert_fit_is_designed(points, weighting="1/x2")
     return judge(points, "bioanalytical", **options)
 
@@ -108,7 +108,8 @@ def test_bioanalytical_clean_run_is_accepted():
                                                  (BIO_LEVELS[:5], CurveVerdict.REJECTED)])
 def test_bioanalytical_six_levels(levels, verdict):
     # ICH M10: at least six non-zero levels (from memory).
-    curve = bio(levels=levels)
+    # The QCs sit inside the shorter range (ICH M10: QCs within the calibrated range).
+    curve = bio(levels=levels, qcs=(3, 40, 80))
     assert by_id(curve)["min-levels"].limit == 6
     assert curve.verdict is verdict
 
@@ -160,14 +161,15 @@ def test_bioanalytical_75_pct_boundary():
     curve = bio({**two, 100: spread(0)})
     assert by_id(curve)["back-calculation"].value == pytest.approx(75.0)
     assert curve.verdict is CurveVerdict.ACCEPTED
-    # The same with one exact standard excluded: it counts as failing, 11 of 16 (68.75 %).
+    # The same with one exact standard excluded: it counts as failing, 11 of 16 (68.75 %);
+    # the four rejected standards left the fit before (ICH M10 3.3.2) and count too.
     run = make_run(curve_points(BIO_LEVELS, deviations={**two, 100: spread(0)}) + qc_points())
     assessment = evaluate_run(run, profile=load_profile("bioanalytical"),
                               exclusions=[Exclusion("Run!D12", "injection error")])
     curve = assessment.curves[0]
     check = by_id(curve)["back-calculation"]
     assert check.value == pytest.approx(68.75)
-    assert "1 left out of the fit counted as failing" in check.detail
+    assert "5 left out of the fit counted as failing" in check.detail
     assert curve.verdict is CurveVerdict.REJECTED
 
 
@@ -217,7 +219,8 @@ def test_bioanalytical_proposes_a_new_lloq_and_applies_it_only_when_asked():
 
 
 def test_bioanalytical_failing_uloq_proposes_dropping_the_top():
-    curve = bio({1000: spread(15.1)})
+    # The QCs lie inside the narrowed range too (ICH M10: QCs within the calibrated range).
+    curve = bio({1000: spread(15.1)}, qcs=(3, 80, 400))
     assert curve.proposal.uloq == 500 and curve.proposal.lloq == 1
     assert "the highest level (1000)" in curve.proposal.reason
 
@@ -395,16 +398,20 @@ def test_assay_intercept_within_2_pct_when_significant(share, verdict):
                              else CurveVerdict.NEEDS_REVIEW)
 
 
-def test_assay_intercept_over_2_pct_passes_when_not_significant():
+def test_assay_intercept_over_2_pct_fails_even_when_not_significant():
+    # Common practice "intercept within 2 % of the 100 % response": the size is judged; a
+    # non-significant t-test (statsmodels) is no free pass, it only says the curve is imprecise.
     points, _, _ = assay(share_pct=2.1, noise=0.5)
     ols = sm.OLS([p.response for p in points],
                  sm.add_constant([p.concentration for p in points])).fit()
     assert ols.pvalues[0] >= 0.05  # statsmodels: not significant
     curve = judge(points, "assay-linearity")
     check = by_id(curve)["intercept-fraction"]
-    assert check.verdict is Verdict.PASS
-    assert "does not differ significantly from zero" in check.detail
-    assert check.value > 2
+    assert check.verdict is Verdict.FAIL
+    assert f"p = {ols.pvalues[0]:.3g}" in check.detail
+    assert "does not differ significantly from zero at 5 %" in check.detail
+    assert "Whether or not it is significant, an intercept this large matters" in check.detail
+    assert check.value > 2 and curve.verdict is CurveVerdict.NEEDS_REVIEW
 
 
 def _assay_r(noise: float) -> float:
@@ -437,32 +444,62 @@ def test_assay_lack_of_fit_sends_a_bent_curve_to_review():
 ISO_LEVELS = tuple(range(1, 11))
 
 
-def iso(*, low_sd=1.0, high_sd=1.0, bend=0.0, reps=10):
-    """Ten levels; ten replicates at the ends, pairs in between (±sd % of the lowest response)."""
-    b = 1.0
-    dev = {1: spread(low_sd, reps), 10: spread(high_sd * 1 / 10, reps)}
-    points = curve_points(ISO_LEVELS, deviations=dev, noise=0.1, a=0.0, b=b, analyte="Fluoride")
-    return [Point(p.analyte, p.concentration, p.response + bend * p.concentration ** 2,
-                  p.source_cell) for p in points]
+def iso(*, low_sd=1.0, high_sd=1.0, bend=0.0, reps=10, noise=0.1):
+    """ISO 8466-1 design: ten standards measured once, then replicates of the two ends.
+
+    Each level's first injection is its calibration value: on the line y = x (+ bend·x²)
+    at the ends, ±noise % alternately in between.  The lowest and highest standard are then
+    measured reps − 1 times more, ±sd % of the lowest response about the line, so their
+    variances are in the ratio (high_sd / low_sd)² exactly.
+    """
+    points, row = [], 2
+
+    def add(x, dev_pct):
+        nonlocal row
+        points.append(Point("Fluoride", float(x), x * (1 + dev_pct / 100) + bend * x ** 2,
+                            f"Run!D{row}", injection_order=row - 1))
+        row += 1
+
+    for k, x in enumerate(ISO_LEVELS):
+        add(x, 0.0 if x in (1, 10) else noise * (-1) ** k)
+    for d in spread(low_sd, reps - 1):
+        add(1, d)
+    for d in spread(high_sd / 10, reps - 1):
+        add(10, d)
+    return points
+
+
+def _in_regression(points):
+    """The first value of each level: what ISO 8466-1 regresses (from memory)."""
+    first = {}
+    for p in points:
+        first.setdefault(p.concentration, p)
+    return list(first.values())
 
 
 @pytest.mark.parametrize(("ratio", "verdict"), [(5.30, CurveVerdict.ACCEPTED),
                                                 (5.40, CurveVerdict.REJECTED)])
 def test_iso_variance_ends_against_f_099_9_9(ratio, verdict):
-    # F(0.99; 9, 9) ≈ 5.35 (SPEC §10): the variance at the top over the variance at the bottom.
+    # F(0.99; 9, 9) ≈ 5.35 (SPEC §10): the variance at the top over the variance at the bottom,
+    # of all ten replicates at each end, although nine of each are kept out of the regression.
     points = iso(high_sd=math.sqrt(ratio))
     curve = judge(points, "iso-8466")
     check = by_id(curve)["variance-ends"]
+    high = [p.response for p in points if p.concentration == 10]
+    low = [p.response for p in points if p.concentration == 1]
+    assert len(high) == len(low) == 10
     assert check.limit == pytest.approx(5.35, abs=0.005)
     assert check.limit == pytest.approx(stats.f.ppf(0.99, 9, 9), rel=1e-9)
+    assert check.value == pytest.approx(np.var(high, ddof=1) / np.var(low, ddof=1), rel=1e-9)
     assert check.value == pytest.approx(ratio, rel=1e-9)
     assert curve.verdict is verdict
 
 
 def _mandel_pg(points) -> float:
-    """ISO 8466-1 PG from numpy polynomial fits (outside calib)."""
-    x = np.array([p.concentration for p in points])
-    y = np.array([p.response for p in points])
+    """ISO 8466-1 PG from numpy polynomial fits (outside calib), on the regression values."""
+    used = _in_regression(points)
+    x = np.array([p.concentration for p in used])
+    y = np.array([p.response for p in used])
     rss1 = float(np.sum((y - np.polyval(np.polyfit(x, y, 1), x)) ** 2))
     rss2 = float(np.sum((y - np.polyval(np.polyfit(x, y, 2), x)) ** 2))
     return (rss1 - rss2) / (rss2 / (len(x) - 3))
@@ -470,8 +507,9 @@ def _mandel_pg(points) -> float:
 
 @pytest.mark.parametrize(("factor", "verdict"), [(0.95, Verdict.PASS), (1.05, Verdict.FAIL)])
 def test_iso_mandel_just_inside_and_outside(factor, verdict):
-    n = len(iso())
-    critical = stats.f.ppf(0.99, 1, n - 3)
+    # ISO 8466-1 / DIN 38402-51: PG against F(0.99; 1, N − 3) with N = 10 standards, not the
+    # 28 values the end replicates would make (from memory).
+    critical = stats.f.ppf(0.99, 1, 7)
     bend = optimize.brentq(lambda c: _mandel_pg(iso(bend=c)) - factor * critical, 0, 0.01,
                            xtol=1e-15)
     points = iso(bend=bend)
@@ -481,6 +519,25 @@ def test_iso_mandel_just_inside_and_outside(factor, verdict):
     assert check.limit == pytest.approx(critical, rel=1e-9)
     assert check.verdict is verdict
     assert (curve.verdict is CurveVerdict.REJECTED) is (verdict is Verdict.FAIL)
+
+
+def test_iso_regression_uses_one_value_per_standard():
+    # ISO 8466-1 (from memory): ten standards in the regression; s_x0 = s_y / b with
+    # s_y = √(Σ residual² / (N − 2)), N = 10 (numpy here).
+    points = iso(noise=0.5)
+    curve = judge(points, "iso-8466")
+    used = [s for s in curve.standards if s.used]
+    assert len(used) == 10 and curve.fit.residual_df == 8
+    assert [s.point.source_cell for s in used] == [p.source_cell for p in _in_regression(points)]
+    kept = [s for s in curve.standards if not s.used]
+    assert len(kept) == 18 and all("variance test only" in s.exclusion_reason for s in kept)
+    x = np.array([p.concentration for p in _in_regression(points)])
+    y = np.array([p.response for p in _in_regression(points)])
+    slope, intercept = np.polyfit(x, y, 1)
+    s_y = math.sqrt(np.sum((y - intercept - slope * x) ** 2) / 8)
+    check = by_id(curve)["method-sd"]
+    assert f"= {s_y / slope:.4g}," in check.detail
+    assert by_id(curve)["min-replicates"].value == 10
 
 
 def test_iso_ten_replicates_at_the_ends():

@@ -14,7 +14,7 @@ from typing import Any
 
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
-from calib.checks.rules.base import Param, Rule, fmt, not_evaluated, result
+from calib.checks.rules.base import Param, Rule, as_shown, fmt, not_evaluated, result
 from calib.options import Model, SampleType, Weighting
 from calib.run import Point
 
@@ -50,7 +50,7 @@ def correlation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Check
         value, limit, name = r2, float(min_r2), "r²"
     figures = f"{name} = {value:.6f}{uncentred}, at least {limit:g} required"
     caution = " A high r does not by itself show that the curve is linear."
-    if value >= limit:
+    if as_shown(value, 6) >= limit:  # compared as printed, to six decimals
         return result("correlation", sev, Verdict.PASS, value, limit, f"{figures}.{caution}")
     return result("correlation", sev, Verdict.FAIL, value, limit,
                   f"{figures}: the standards scatter too much about the curve.")
@@ -108,7 +108,7 @@ def rse(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     limit = p["max_rse_pct"]
     figures = (f"RSE = {value:.2f} % over {len(judged)} non-zero standards ({len(judged)} − "
                f"{n_params} degrees of freedom), at most {limit:g} % allowed")
-    ok = value <= limit
+    ok = as_shown(value, 2) <= limit  # compared as printed, to 0.01 %
     return result("rse", sev, Verdict.PASS if ok else Verdict.FAIL, value, float(limit),
                   figures + ("." if ok else ": the standards read back too far from nominal."))
 
@@ -117,10 +117,14 @@ def intercept_fraction(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -
     """|intercept| as a percentage of the fitted response at a chosen concentration.
 
     The concentration is ``concentration`` when given, else the ``level``-th
-    lowest non-zero level of the fit, else the middle of the range.  With
-    ``or_zero_alpha`` the check also passes when the intercept does not differ
-    significantly from zero at that α (the ICH Q2 assay practice "not
-    significant, or within 2 %", common practice).
+    lowest non-zero level of the fit, else the middle of the range.  The rule
+    judges the size of the intercept: the estimate against ``max_pct``, or,
+    with ``bound_confidence``, the farther end of the intercept's two-sided
+    interval at that confidence (so that an imprecise intercept cannot pass on
+    its point estimate).  A non-significant intercept is never a pass by
+    itself: "not significant" may only mean the curve is too imprecise to tell
+    (the issue with the old "or not significant" form of this common practice).
+    The share is compared as printed, to three significant digits.
     """
     fit = ctx.fit
     if fit is None:
@@ -150,25 +154,34 @@ def intercept_fraction(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -
     share = 100 * abs(intercept) / response
     figures = (f"intercept {fmt(intercept)} is {share:.3g} % of the fitted response "
                f"{fmt(response)} at {where}")
+    pval, alpha = fit.p_value("intercept"), 1 - fit.confidence
+    if math.isfinite(pval):
+        figures += (f" (it {'differs' if pval < alpha else 'does not differ'} significantly "
+                    f"from zero at {100 * alpha:g} %, p = {pval:.3g})")
     limit = p.get("max_pct")
     if limit is None:
         return result("intercept-fraction", sev, Verdict.NOT_EVALUATED, share, None,
                       f"{figures[0].upper()}{figures[1:]}; no limit set in the profile "
                       "(reported for information).")
-    if share <= limit:
-        return result("intercept-fraction", sev, Verdict.PASS, share, float(limit),
-                      f"{figures[0].upper()}{figures[1:]}, within {limit:g} %.")
-    alpha = p.get("or_zero_alpha")
-    if alpha is not None:
-        pval = fit.p_value("intercept")
-        if math.isfinite(pval) and pval >= alpha:
-            return result("intercept-fraction", sev, Verdict.PASS, share, float(limit), (
-                f"{figures[0].upper()}{figures[1:]}, more than {limit:g} %, but the intercept "
-                f"does not differ significantly from zero (p = {pval:.3g} ≥ {alpha:g}), which "
-                "the profile accepts instead."))
-        figures += f", and it differs significantly from zero (p = {pval:.3g} < {alpha:g})"
-    return result("intercept-fraction", sev, Verdict.FAIL, share, float(limit),
-                  f"{figures[0].upper()}{figures[1:]}: more than {limit:g} % allowed.")
+    judged, what = share, "the estimate"
+    confidence = p.get("bound_confidence")
+    if confidence is not None:
+        low, high = fit.confidence_interval("intercept", confidence)
+        if not (math.isfinite(low) and math.isfinite(high)):
+            return not_evaluated("intercept-fraction", sev, (
+                f"{figures[0].upper()}{figures[1:]}; the intercept's {100 * confidence:g} % "
+                "interval cannot be worked out, so its size cannot be bounded"))
+        judged = 100 * max(abs(low), abs(high)) / response
+        what = f"the far end of its {100 * confidence:g} % interval ({fmt(low)} to {fmt(high)})"
+        figures += f"; {what} is {judged:.3g} %"
+    # Compared as printed, to three significant digits.
+    if float(f"{judged:.3g}") <= limit:
+        return result("intercept-fraction", sev, Verdict.PASS, judged, float(limit),
+                      f"{figures[0].upper()}{figures[1:]}: {what} is within {limit:g} %.")
+    return result("intercept-fraction", sev, Verdict.FAIL, judged, float(limit),
+                  f"{figures[0].upper()}{figures[1:]}: {what} is more than the {limit:g} % "
+                  "allowed. Whether or not it is significant, an intercept this large matters "
+                  "at this level; look for blank contamination, an interference or curvature.")
 
 
 def _not_detected(point: Point) -> bool:
@@ -267,6 +280,11 @@ def _correlation_params(p: Mapping[str, Any]) -> str | None:
 
 
 def _fraction_params(p: Mapping[str, Any]) -> str | None:
+    if "or_zero_alpha" in p:
+        return ("or_zero_alpha is no longer accepted: a non-significant intercept is not a "
+                "pass by itself (it may only mean the curve is imprecise); the rule judges the "
+                "size of the intercept against max_pct, or the far end of its interval with "
+                "bound_confidence")
     if "concentration" in p and "level" in p:
         return "give either concentration or level, not both"
     return None
@@ -283,6 +301,8 @@ ACCEPTANCE_RULES: tuple[Rule, ...] = (
          {"max_pct": Param(float, low=0, high=100, low_open=True),
           "concentration": Param(float, low=0, low_open=True),
           "level": Param(int, low=1),
+          "bound_confidence": Param(float, low=0.5, high=0.999),
+          # Refused with the reason by _fraction_params; declared so the message says why.
           "or_zero_alpha": Param(float, low=0, high=0.5, low_open=True)},
          intercept_fraction, validate=_fraction_params),
     Rule("blank", "Blank responses against the LLOQ response",

@@ -10,7 +10,7 @@ from typing import Any
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
 
-__all__ = ["Param", "Rule", "fmt", "not_evaluated", "result"]
+__all__ = ["Param", "Rule", "as_shown", "fmt", "not_evaluated", "result"]
 
 
 @dataclass(frozen=True)
@@ -83,3 +83,23 @@ def fmt(value: float) -> str:
     return f"{value:.4g}"
 
 
+
+
+def as_shown(value: float, decimals: int) -> float:
+    """``value`` as the record prints it, with ``decimals`` digits after the point.
+
+    Limits are inclusive at the precision the record reports: a figure is
+    rounded to the digits it is printed with before it is compared with its
+    limit, so an exact ±15 % computed as 15.000000000000018 reads "+15.0 %"
+    and passes ±15 %, and the record never shows a figure "outside" a limit
+    it equals.  The rounding is Python's own formatting, the same that prints
+    the figure, so the comparison and the printed text cannot disagree.
+
+    Examples
+    --------
+    >>> as_shown(15.000000000000018, 1), as_shown(-20.000000000000007, 1)
+    (15.0, -20.0)
+    >>> as_shown(15.04999, 1) <= 15, as_shown(15.05001, 1) <= 15
+    (True, False)
+    """
+    return float(f"{value:.{decimals}f}") if math.isfinite(value) else value

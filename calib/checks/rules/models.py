@@ -34,12 +34,14 @@ def rf_rsd(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResul
                              "(standards above concentration 0); at least 2 are needed")
     figures = (f"response factors of {rf.n} standards: mean {fmt(rf.mean)}, SD {fmt(rf.sd)}, "
                f"%RSD {rf.rsd_pct:.2f} % (at most {limit:g} % allowed)")
+    # Compared as printed, to 0.01 % (limits are inclusive at the reported precision).
+    within = float(f"{rf.rsd_pct:.2f}") <= limit
     if fit.model is not Model.MEAN_RF:
-        would = "would be" if rf.rsd_pct <= limit else "would not be"
+        would = "would be" if within else "would not be"
         return not_evaluated("rf-rsd", sev, (
             f"Applies to the mean-rf model; this curve is {fit.model.value}. For information, "
             f"{figures}: the mean response factor {would} allowed."))
-    if rf.rsd_pct <= limit:
+    if within:
         return result("rf-rsd", sev, Verdict.PASS, rf.rsd_pct, float(limit),
                       f"{figures[0].upper()}{figures[1:]}: the mean response factor may be used.")
     return result("rf-rsd", sev, Verdict.FAIL, rf.rsd_pct, float(limit),

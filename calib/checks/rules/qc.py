@@ -5,7 +5,12 @@ ICH M10 (2022), section 4.4 (from memory): at least 2/3 of the QCs within
 QC sample (its replicate injections averaged, the dilution factor applied)
 is read back as ``calib quantify`` reads it (:mod:`calib.quantify`), so the
 check and the quantified batch agree.  A QC that cannot be read back counts
-as outside tolerance.
+as outside tolerance; so does a QC outside the curve's range (LLOQ to ULOQ of
+the fit, after any narrowing or refit), which would be read by extrapolation.
+``min_levels`` and ``min_per_level`` set the least QC design the rule judges
+(ICH M10: low, medium and high QCs, at least in duplicate, from memory).
+QCs are read against the curve the rule sees: after a refit without rejected
+standards, the refitted one.
 """
 
 from __future__ import annotations
@@ -46,6 +51,7 @@ def _pct(default: float) -> Param:
 QC_RULES: tuple[Rule, ...] = (
     Rule("qc", "QC samples within tolerance of nominal",
          {"tolerance_pct": _pct(15), "lloq_tolerance_pct": _pct(20),
-          "min_pass_pct": _pct(66.7), "min_level_pass_pct": _pct(50)},
+          "min_pass_pct": _pct(66.7), "min_level_pass_pct": _pct(50),
+          "min_levels": Param(int, low=1), "min_per_level": Param(int, low=1)},
          qc_rule),
 )

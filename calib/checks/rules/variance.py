@@ -6,10 +6,13 @@ import math
 from collections.abc import Mapping
 from typing import Any
 
+import numpy as np
+
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
 from calib.checks.rules.base import Param, Rule, fmt, not_evaluated, result
 from calib.fit.curve import CurveFit
+from calib.fit.design import fit_weights
 from calib.fit.variance import recommend_weighting, variance_ends, variance_levels
 from calib.options import Model, Weighting
 
@@ -37,7 +40,16 @@ def ends(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
         return not_evaluated("variance-ends", sev, ctx.unfitted_reason)
     weighting = fit.weight_basis
     weights = None if weighting is Weighting.NONE else fit.weights
-    test = variance_ends(fit.x, fit.y, weights=weights, confidence=p["confidence"])
+    x, y = fit.x, fit.y
+    if ctx.variance_only:
+        # ISO 8466-1: the end replicates kept out of the regression serve this test.
+        x = np.concatenate([x, [s.point.concentration for s in ctx.variance_only]])
+        y = np.concatenate([y, [s.point.response for s in ctx.variance_only]])
+        try:
+            weights = None if weighting is Weighting.NONE else fit_weights(x, weighting, y=y)
+        except ValueError as exc:
+            return not_evaluated("variance-ends", sev, f"Variance test not made: {exc}.")
+    test = variance_ends(x, y, weights=weights, confidence=p["confidence"])
     if test.reason:
         return not_evaluated("variance-ends", sev, f"Variance test not made: {test.reason}.")
     where = "highest" if test.larger_at_high else "lowest"

@@ -90,7 +90,10 @@ def test_environmental_verification_is_not_judged_at_the_bioanalytical_15_pct():
     curve = judge(standards() + [blank(20)] + qcs)
     assert by_id(curve)["qc"].verdict is Verdict.FAIL
     assert curve.verdict is CurveVerdict.REJECTED
-    bio = evaluate_run(make_run(standards() + qcs), profile=load_profile("bioanalytical"))
+    # ICH M10's QC design (low, medium, high, in duplicate; from memory) for the comparison.
+    bio_qcs = qcs + [verification(0.5, -2.0, "Run!D92"), verification(1.0, 3.0, "Run!D93"),
+                     verification(2.0, 1.0, "Run!D94"), verification(2.0, -1.0, "Run!D95")]
+    bio = evaluate_run(make_run(standards() + bio_qcs), profile=load_profile("bioanalytical"))
     check = by_id(bio.curves[0])["qc"]
     assert check.verdict is Verdict.PASS and "within ±15 % of nominal" in check.detail
 

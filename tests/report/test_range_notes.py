@@ -22,5 +22,5 @@ def test_applied_range_is_shown_with_reason(tmp_path):
     out = tmp_path / "r.pdf"
     out.write_bytes(pdf)
     text = " ".join(" ".join(p.extract_text().split()) for p in pypdf.PdfReader(out).pages)
-    assert f"Working range applied by the analyst: 2 to 100 ({reason})." in text
+    assert f"Working range applied by the analyst: 2 to 100 ({reason})" in text
     assert "On the full range the curve was:" in text

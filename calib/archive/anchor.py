@@ -145,6 +145,9 @@ def read_receipt(path: Path) -> HeadReceipt | None:
         raise ValueError(f"the head receipt {path} is damaged ({exc})") from None
     if receipt.stamp_kind not in ("sha256", "hmac-sha256"):
         raise ValueError(f"the head receipt {path} has an unknown stamp {receipt.stamp_kind!r}")
+    if receipt.stamp_kind == "sha256" and _key() is not None:
+        raise ValueError(f"the head receipt {path} is not keyed although {HEAD_KEY_ENV} is set: "
+                         "it was replaced")
     if not hmac.compare_digest(stamp_of(receipt, receipt.stamp_kind), receipt.stamp):
         raise ValueError(f"the head receipt {path} was edited: its stamp does not match its "
                          "contents")

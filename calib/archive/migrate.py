@@ -60,8 +60,13 @@ def _hashes(archive: Archive) -> list[tuple[int, str]]:
 
 
 def migrate_archive(source: str | Path, target: str | Path, *,
+                    target_receipt: str | Path | None = None,
                     progress: Callable[[int], None] | None = None) -> MigrationReport:
     """Copy the archive at ``source`` into the empty (or new) archive at ``target``.
+
+    The source keeps its own head receipt (checked before the copy).  The
+    target's receipt goes to ``target_receipt``; without one, beside an
+    SQLite target, and none for a database target (note the head printed).
 
     Raises
     ------
@@ -77,7 +82,9 @@ def migrate_archive(source: str | Path, target: str | Path, *,
             raise ArchiveError(f"{src.location}: the source archive does not verify "
                                f"({checked.problems[0]}); nothing was copied — run calib "
                                "archive verify on it")
-        with Archive(target) as dst:
+        if target_receipt is None and not is_database_url(target):
+            target_receipt = Path(str(target) + ".head.json")
+        with Archive(target, head_receipt=target_receipt) as dst:
             if len(dst):
                 raise ArchiveError(f"{dst.location}: the target archive already holds "
                                    f"{len(dst)} entries; migrate into a new, empty archive")

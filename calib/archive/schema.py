@@ -191,6 +191,7 @@ def postgres_schema() -> tuple[str, ...]:
         IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = '{WRITER_ROLE}') THEN
             CREATE ROLE {WRITER_ROLE} NOLOGIN;
         END IF;
+        EXECUTE format('GRANT USAGE ON SCHEMA %I TO {WRITER_ROLE}', current_schema());
         GRANT SELECT, INSERT ON entries, entry_data, curves TO {WRITER_ROLE};
         GRANT SELECT ON archive_meta, schema_version TO {WRITER_ROLE};
     EXCEPTION WHEN insufficient_privilege OR duplicate_object OR unique_violation THEN

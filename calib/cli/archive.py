@@ -132,6 +132,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
         formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("source", metavar="SRC", help="the archive to copy")
     p.add_argument("target", metavar="DST", help="the new archive (must be empty)")
+    p.add_argument("--target-head", metavar="FILE",
+                   help="head receipt of DST (default: beside an SQLite DST; none for a "
+                        "database, whose head is printed for the logbook)")
     add_debug(p)
     p.set_defaults(handler=run_migrate)
 
@@ -333,7 +336,7 @@ def run_head(args: argparse.Namespace) -> int:
 def run_migrate(args: argparse.Namespace) -> int:
     from calib.archive.migrate import migrate_archive
 
-    report = migrate_archive(args.source, args.target)
+    report = migrate_archive(args.source, args.target, target_receipt=args.target_head)
     print(f"Copied {report.entries} entries from {report.source} to {report.target}.")
     print(f"Both hold the same chain: every seq has the same entry hash; head seq "
           f"{report.head_seq}, entry hash {report.head_hash}. The copy verifies in full.")

@@ -127,7 +127,8 @@ class ArchiveEntry:
             "instrument": self.instrument, "analytes": list(self.analytes),
             "verdict": self.verdict, "roles": list(self.roles),
             "version_digest": self.version_digest, "content_digest": self.content_digest,
-            "pdf_sha256": self.pdf_sha256, "prev_hash": self.prev_hash, "entry_hash": self.entry_hash,
+            "pdf_sha256": self.pdf_sha256, "prev_hash": self.prev_hash,
+            "entry_hash": self.entry_hash,
         }
 
 

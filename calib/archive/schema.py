@@ -151,7 +151,8 @@ def postgres_schema() -> tuple[str, ...]:
                    for t in _TABLES)
     functions = (
         """CREATE FUNCTION calib_refuse() RETURNS trigger LANGUAGE plpgsql AS $$
-           BEGIN RAISE EXCEPTION '%', TG_ARGV[0] USING ERRCODE = 'insufficient_privilege'; END $$""",
+           BEGIN RAISE EXCEPTION '%', TG_ARGV[0] USING ERRCODE = 'insufficient_privilege';
+           END $$""",
         f"""CREATE FUNCTION calib_extend_head() RETURNS trigger LANGUAGE plpgsql AS $$
            BEGIN
              IF NEW.seq IS DISTINCT FROM (SELECT coalesce(max(seq), 0) + 1 FROM entries)

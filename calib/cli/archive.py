@@ -1,7 +1,8 @@
 """``calib archive``: list, show, export, verify, anchor and migrate the archive of records.
 
 The archive comes from ``--archive DB`` or the ``CALIB_ARCHIVE`` environment
-variable: a path is an SQLite file, ``postgresql://…`` a PostgreSQL database.  With neither, the command stops with exit code 2 (a
+variable: a path is an SQLite file, ``postgresql://…`` a PostgreSQL database.
+With neither, the command stops with exit code 2 (a
 usage error: say which archive); an archive path that does not exist is exit
 code 3 (reading never creates an archive, so a typing mistake is not taken
 for an empty one).

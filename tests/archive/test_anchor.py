@@ -132,7 +132,8 @@ def test_swapping_an_entrys_pdf_is_detected(four):
     assert ("entry seq 2: its PDF does not match the PDF digest in the chain: the stored PDF "
             "was replaced") in found
     assert (f"entry seq 2: the stored PDF carries other record data (digest "
-            f"{records[2].digest[:16]}…) than this entry: the PDF was swapped or altered") in found
+            f"{records[2].digest[:16]}…) than this entry: the PDF was swapped or "
+            "altered") in found
     with Archive(location, create=False) as archive:
         one = archive.verify_entry(records[1].digest)
     assert not one.ok and any("the PDF was swapped" in str(p) for p in one.problems)
@@ -147,7 +148,8 @@ def test_swapped_pdf_with_its_digest_rechained_is_still_detected(four):
     rechain(location, {2: {"pdf_sha256": third.pdf_sha256}})
     found = problems(location)
     assert (f"entry seq 2: the stored PDF carries other record data (digest "
-            f"{records[2].digest[:16]}…) than this entry: the PDF was swapped or altered") in found
+            f"{records[2].digest[:16]}…) than this entry: the PDF was swapped or "
+            "altered") in found
     assert any("the chain was rewritten" in p for p in found)
 
 

@@ -117,8 +117,8 @@ def test_migrate_sqlite_to_postgresql_and_back_proves_the_chain_equal(tmp_path, 
     with pytest.raises(ArchiveError, match="source and target are the same archive"):
         migrate_archive(source, source)
     tamper(str(source), ("UPDATE entries SET verdict = 'rejected' WHERE seq = 2",))
-    with pytest.raises(ArchiveError, match=r"the source archive does not verify \(append-only triggers are "
-                                           r"missing"):
+    with pytest.raises(ArchiveError, match=r"the source archive does not verify "
+                                           r"\(append-only triggers are missing"):
         migrate_archive(source, tmp_path / "third.sqlite")
 
 

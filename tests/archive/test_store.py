@@ -261,7 +261,9 @@ def test_rehashed_index_column_is_found(filled):
     assert messages[0] == ("entry seq 4: stored verdict 'rejected' does not match its JSON "
                            "('accepted')")
     # Seq 4 is the head: the head receipt written at its append names the old hash.
-    assert messages[1].startswith(f"entry seq 4: its entry hash {compute_entry_hash(e.prev_hash, fields)[:16]}… is not the {e.entry_hash[:16]}… the head receipt")
+    forged = compute_entry_hash(e.prev_hash, fields)
+    assert messages[1].startswith(f"entry seq 4: its entry hash {forged[:16]}… is not the "
+                                  f"{e.entry_hash[:16]}… the head receipt")
     assert len(messages) == 2
 
 

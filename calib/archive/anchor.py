@@ -108,8 +108,9 @@ def stamp_of(receipt: HeadReceipt, kind: str) -> str:
     Examples
     --------
     >>> r = HeadReceipt("AR-0", 1, "0" * 64, "2026-12-01T09:30:00Z")
-    >>> stamp_of(r, "sha256")[:16]
-    '3d0f4f6c1a4f1e77'
+    >>> lines = ["calib archive head", "AR-0", "1", "0" * 64, "2026-12-01T09:30:00Z"]
+    >>> stamp_of(r, "sha256") == hashlib.sha256(chr(10).join(lines).encode()).hexdigest()
+    True
     """
     text = (f"calib archive head\n{receipt.archive_id}\n{receipt.seq}\n{receipt.entry_hash}\n"
             f"{receipt.written_at}").encode("utf-8")

@@ -125,6 +125,8 @@ class SqliteStorage:
             self._conn.execute(f"PRAGMA busy_timeout = {int(timeout * 1000)}")
             self._conn.execute("PRAGMA journal_mode = WAL")
             self._conn.execute("PRAGMA synchronous = FULL")
+            # 32 MB of page cache: the indexes of a 100,000-entry archive stay in memory.
+            self._conn.execute("PRAGMA cache_size = -32768")
             self._prepare(create=create)
             self._conn.execute("PRAGMA foreign_keys = ON")
             self.archive_id = str(self._conn.execute(
@@ -313,6 +315,11 @@ class PostgresStorage:
         return self._conn.execute(self._sql(sql), tuple(params)).fetchall()
 
     def rows(self, sql: str, params: Sequence[Any] = ()) -> Iterator[tuple[Any, ...]]:
+        from psycopg.pq import TransactionStatus
+
+        if self._conn.info.transaction_status == TransactionStatus.IDLE:
+            yield from self.query(sql, params)  # a named cursor needs a transaction
+            return
         # A server-side cursor: 100,000 rows are streamed, not held in memory at once.
         with self._conn.cursor(name=f"calib_rows_{secrets.token_hex(4)}") as cur:
             cur.itersize = 5000

@@ -138,3 +138,18 @@ def test_variants_share_the_analyte_index(location):
             r = variant(base, i)
             archive.append(r, pdf_for(r), kind="issued")
         assert archive.analytes() == ["Nitrate-N"] and len(archive.curve_history("NITRATE-N")) == 3
+
+
+def test_bulk_append_chains_in_one_transaction_and_is_all_or_nothing(location):
+    records = [make_record(seed=i, run=i) for i in range(3)]
+    with Archive(location) as archive:
+        items = [archive.prepare(r, pdf_for(r), kind="issued") for r in records]
+        entries = archive.append_prepared(items[:2])
+        assert [e.seq for e in entries] == [1, 2] and entries[1].prev_hash == entries[0].entry_hash
+        assert archive.last_receipt.seq == 2
+        # A refused item (a signed version without its issued one) takes the batch with it.
+        signed = reviewed(records[2])
+        with pytest.raises(ArchiveError, match="its issued version is not in the archive"):
+            archive.append_prepared([items[2], archive.prepare(signed, pdf_for(signed),
+                                                               kind="signed")])
+        assert len(archive) == 2 and archive.verify_chain().ok

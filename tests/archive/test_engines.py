@@ -148,7 +148,7 @@ def test_bulk_append_chains_in_one_transaction_and_is_all_or_nothing(location):
         assert [e.seq for e in entries] == [1, 2] and entries[1].prev_hash == entries[0].entry_hash
         assert archive.last_receipt.seq == 2
         # A refused item (a signed version without its issued one) takes the batch with it.
-        signed = reviewed(records[2])
+        signed = reviewed(make_record(seed=9))
         with pytest.raises(ArchiveError, match="its issued version is not in the archive"):
             archive.append_prepared([items[2], archive.prepare(signed, pdf_for(signed),
                                                                kind="signed")])

@@ -125,6 +125,7 @@ def _entry(row: tuple[Any, ...]) -> ArchiveEntry:
 
 
 def verify_chain(archive: Archive, *, expected_head: str | None = None, deep: bool = True,
+                 pdfs: bool = False,
                  progress: Callable[[int], None] | None = None) -> ChainReport:
     """Verify every entry of ``archive`` (the module docstring says what is checked).
 
@@ -136,6 +137,9 @@ def verify_chain(archive: Archive, *, expected_head: str | None = None, deep: bo
         An entry hash noted earlier (a logbook): it must still be in the chain.
     deep : bool
         Also read and check every entry's JSON and PDF (the content pass).
+    pdfs : bool
+        With ``deep``, also parse every PDF and check its attached record data against the
+        entry's JSON (``calib archive verify`` does; a few ms per record PDF).
     progress : callable, optional
         Called with the number of entries checked so far, every 1,000 entries.
 
@@ -163,7 +167,7 @@ def verify_chain(archive: Archive, *, expected_head: str | None = None, deep: bo
             count += 1
             problems += check_link(entry, prev_seq, prev_hash)
             if deep:
-                problems += check_content(entry, figures.pop(entry.seq, []))
+                problems += check_content(entry, figures.pop(entry.seq, []), attachment=pdfs)
             prev_seq, prev_hash = entry.seq, entry.entry_hash
             seen_expected = seen_expected or entry.entry_hash == wanted
             if progress is not None and count % 1000 == 0:

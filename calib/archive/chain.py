@@ -309,7 +309,8 @@ def pdf_problem(pdf: bytes, version_digest: str) -> str | None:
     return "the stored PDF carries no record data: it is not this entry's record PDF"
 
 
-def check_content(entry: ArchiveEntry, stored_figures: list[tuple[Any, ...]]) -> list[ChainProblem]:
+def check_content(entry: ArchiveEntry, stored_figures: list[tuple[Any, ...]], *,
+                  attachment: bool = True) -> list[ChainProblem]:
     """The content pass over one entry: its JSON, its PDF and the indexes derived from them.
 
     Parameters
@@ -318,6 +319,9 @@ def check_content(entry: ArchiveEntry, stored_figures: list[tuple[Any, ...]]) ->
         The entry as stored, with its JSON and PDF bytes.
     stored_figures : list of tuple
         The entry's rows of the ``curves`` table as :func:`figures_row` gives them.
+    attachment : bool
+        Also parse the PDF and check that its attached record data is this entry's JSON
+        (:func:`pdf_problem`; a few milliseconds per record PDF).
     """
     seq = entry.seq
     problems = []
@@ -330,10 +334,12 @@ def check_content(entry: ArchiveEntry, stored_figures: list[tuple[Any, ...]]) ->
                 "replaced")
     if hashlib.sha256(entry.json).hexdigest() != entry.version_digest:
         problem("its JSON does not match its version digest: the record data was altered")
-    else:
+    elif attachment:
         found = pdf_problem(entry.pdf, entry.version_digest)
         if found:
             problem(found)
+    elif not entry.pdf.startswith(b"%PDF-"):
+        problem("the stored PDF is not a PDF document")
     try:
         derived = derive_record(entry.json)
     except ValueError as exc:

@@ -493,15 +493,18 @@ class Archive:
     # -- verifying (calib.archive.audit) ---------------------------------------------------
 
     def verify_chain(self, *, expected_head: str | None = None, deep: bool = True,
+                     pdfs: bool = False,
                      progress: Callable[[int], None] | None = None) -> ChainReport:
         """Verify the whole archive (see :func:`calib.archive.audit.verify_chain`).
 
         ``deep=False`` is the hash pass only (no blob read, ≥ 5,000 entries/s);
-        the default also checks every entry's JSON and PDF.
+        the default also checks every entry's JSON and PDF digests and indexes,
+        and ``pdfs=True`` each PDF's attached record data as well.
         """
         from calib.archive.audit import verify_chain
 
-        return verify_chain(self, expected_head=expected_head, deep=deep, progress=progress)
+        return verify_chain(self, expected_head=expected_head, deep=deep, pdfs=pdfs,
+                            progress=progress)
 
     def verify_entry(self, digest: str) -> EntryReport:
         """Verify one version against the archive without a pass over the chain.

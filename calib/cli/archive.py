@@ -282,7 +282,8 @@ def run_verify(args: argparse.Namespace) -> int:
     if path is None:
         return report_no_archive()
     with _open(path) as archive:
-        report = archive.verify_chain(expected_head=args.head, deep=not args.fast)
+        report = archive.verify_chain(expected_head=args.head, deep=not args.fast,
+                                      pdfs=not args.fast)
         where = archive.location
     head = (f"head seq {report.head_seq}, entry hash {report.head_hash}"
             if report.head_seq else "empty")

@@ -38,7 +38,7 @@ def four(location):
 
 def problems(location, **kwargs):
     with Archive(location, create=False) as archive:
-        return [str(p) for p in archive.verify_chain(**kwargs).problems
+        return [str(p) for p in archive.verify_chain(pdfs=True, **kwargs).problems
                 if "append-only triggers are missing" not in str(p)]
 
 
@@ -244,3 +244,23 @@ def test_a_format_1_archive_is_migrated_and_keeps_its_head(tmp_path):
     con = sqlite3.connect(path)
     assert con.execute("PRAGMA user_version").fetchone()[0] == 2
     con.close()
+
+
+def test_the_passes_find_what_they_read(four):
+    # Hash pass: links and entry hashes only.  Default deep pass: also the JSON and the PDF's
+    # digest.  With pdfs=True: also the record data attached inside each PDF.
+    location, records, _ = four
+    with Archive(location, create=False) as archive:
+        third = archive.entry_at(3)
+    tamper(location, ("UPDATE entry_data SET pdf = ? WHERE seq = 2", (third.pdf,)),
+           ("UPDATE entries SET pdf_sha256 = ? WHERE seq = 2", (third.pdf_sha256,)))
+    with Archive(location, create=False, head_receipt=None) as archive:
+        fast = [str(p) for p in archive.verify_chain(deep=False).problems if p.seq]
+        default = [str(p) for p in archive.verify_chain().problems if p.seq]
+        full = [str(p) for p in archive.verify_chain(pdfs=True).problems if p.seq]
+    hash_broken = ("entry seq 2: its entry hash does not match its fields: the entry or its "
+                   "stored hash was altered")
+    assert fast == [hash_broken] and default == [hash_broken]
+    assert full == [hash_broken, f"entry seq 2: the stored PDF carries other record data (digest "
+                                 f"{records[2].digest[:16]}…) than this entry: the PDF was "
+                                 "swapped or altered"]

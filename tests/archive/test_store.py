@@ -56,7 +56,7 @@ def plain_pdf() -> bytes:
 
 def report_of(path, **kwargs):
     with Archive(path, create=False) as archive:
-        return archive.verify_chain(**kwargs)
+        return archive.verify_chain(pdfs=True, **kwargs)
 
 
 def entry_messages(report):

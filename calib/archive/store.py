@@ -354,8 +354,10 @@ class Archive:
             clauses.append("e.run_date <= ?")
             params.append(date_to)
         if analyte is not None:
-            clauses.append("EXISTS (SELECT 1 FROM curves c WHERE lower(c.analyte) = lower(?)"
-                           " AND c.seq = e.seq)")
+            # IN (…) rather than EXISTS: the engines then start from the analyte index,
+            # so a rare analyte is found without walking the whole archive.
+            clauses.append("e.seq IN (SELECT c.seq FROM curves c"
+                           " WHERE lower(c.analyte) = lower(?))")
             params.append(analyte)
         return (f" WHERE {' AND '.join(clauses)}" if clauses else ""), params
 

@@ -153,3 +153,41 @@ def test_bulk_append_chains_in_one_transaction_and_is_all_or_nothing(location):
             archive.append_prepared([items[2], archive.prepare(signed, pdf_for(signed),
                                                                kind="signed")])
         assert len(archive) == 2 and archive.verify_chain().ok
+
+
+def test_every_search_uses_an_index(twelve):
+    """Each filtered read the archive issues is planned as an index search, not a table scan
+    (SQLite: EXPLAIN QUERY PLAN says SEARCH; PostgreSQL: with sequential scans priced out, no
+    Seq Scan is left, i.e. an index exists for it)."""
+    location, records = twelve
+    with Archive(location, create=False) as archive:
+        store = archive.storage
+        issued: list[tuple[str, tuple]] = []
+        query = store.query
+        store.query = lambda sql, params=(): issued.append((sql, tuple(params))) or query(
+            sql, params)
+        archive.entries(analyte="nitrate-n", limit=5, data=False)
+        archive.entries(record_id=records[3].record_id)
+        archive.entries(instrument="ic-2 (conductivity detector)", limit=5)
+        archive.entries(verdict="rejected", limit=5)
+        archive.entries(date_from="2026-09-03", date_to="2026-09-04")
+        archive.count(analyte="nitrate-n")
+        archive.find_digest(records[4].digest)
+        archive.latest(records[4].record_id)
+        archive.curve_history("Nitrate-N")
+        archive.verify_entry(records[6].digest)
+        store.query = query
+        # Reads without WHERE walk the primary key from one end with a LIMIT (head()).
+        searches = [(sql, params) for sql, params in issued if " WHERE " in sql]
+        assert len(searches) >= 10
+        for sql, params in searches:
+            if "sqlite" == archive.engine:
+                plan = " | ".join(str(r[-1]) for r in query("EXPLAIN QUERY PLAN " + sql, params))
+                scans = [step for step in plan.split(" | ") if step.startswith("SCAN")
+                         and "INDEX" not in step]
+            else:
+                store.execute("SET enable_seqscan = off")
+                plan = " | ".join(str(r[0]) for r in query("EXPLAIN " + sql, params))
+                store.execute("SET enable_seqscan = on")
+                scans = [step for step in plan.split(" | ") if "Seq Scan" in step]
+            assert scans == [], (sql, plan)

@@ -239,7 +239,10 @@ class Archive:
         with self._store.write():
             problems = receipt_problems(self)
             if problems:
-                raise ArchiveError(f"{self.location}: nothing appended: {problems[0]}")
+                raise ArchiveError(
+                    f"{self.location}: nothing appended: {problems[0]} (have the archive "
+                    "checked; if it was replaced on purpose, move its old head receipt "
+                    f"{self.receipt_path} away with the old archive)")
             for item in items:
                 out.append(self._chain_one(item))
         head = out[-1] if out else None

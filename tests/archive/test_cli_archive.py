@@ -56,6 +56,9 @@ def test_head_prints_the_logbook_line_and_checks_the_receipt(six, capsys):
                                                                     "entries")])
     code, out, _ = cli(capsys, "archive", "head", "--archive", location)
     assert code == 5 and "names entry seq 6, but the archive ends at seq 5" in out
+    code, out, _ = cli(capsys, "archive", "verify", "--archive", location, "--record",
+                       six[1][2].record_id)
+    assert code == 5 and "names entry seq 6, but the archive ends at seq 5" in out
     code, out, _ = cli(capsys, "archive", "verify", "--archive", location, "--fast")
     assert code == 5 and "names entry seq 6, but the archive ends at seq 5: entries were " \
                          "removed from its end or an older copy was restored" in out
@@ -78,3 +81,26 @@ def test_migrate_command_copies_and_proves(tmp_path, capsys, postgres_base, monk
     assert code == 0 and record.record_id in out
     code, _, err = cli(capsys, "archive", "migrate", source, url)
     assert code == 3 and "the target archive already holds 1 entries" in err
+
+
+def test_verify_one_record(six, capsys):
+    location, records, _ = six
+    code, out, _ = cli(capsys, "archive", "verify", "--archive", location, "--record",
+                       records[2].record_id.lower())
+    assert code == 0 and out.strip() == (
+        f"Record {records[2].record_id} in {location_shown(location)}: entries seq 3 intact, "
+        "each linked to its neighbours, JSON and PDF matching; head receipt matches.")
+    with Archive(location, create=False) as archive:
+        body = archive.entry_at(3).json.replace(b"R. Okafor", b"R. Okafoe")
+    tamper(location, ("UPDATE entry_data SET json = ? WHERE seq = 3", (body,)))
+    code, out, _ = cli(capsys, "archive", "verify", "--archive", location, "--record",
+                       records[2].record_id)
+    assert code == 5 and ("  entry seq 3: its JSON does not match its version digest: the "
+                          "record data was altered") in out.splitlines()
+    code, _, err = cli(capsys, "archive", "verify", "--archive", location, "--record", "CR-NONE")
+    assert code == 3 and "no record CR-NONE in" in err
+
+
+def location_shown(location):
+    with Archive(location, create=False) as archive:
+        return archive.location

@@ -1,4 +1,4 @@
-"""The archive under load: 8 writers × 50 records while readers verify the chain meanwhile."""
+"""The archive under load, on both engines: 8 writers × 50 records while readers verify meanwhile."""
 
 from __future__ import annotations
 
@@ -10,6 +10,7 @@ import pytest
 
 from calib.archive import Archive
 from calib.record import Record
+from tests.archive.conftest import location, postgres_base  # noqa: F401 - both engines
 from tests.archive.helpers import make_record, pdf_for, variant
 
 pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="fork is POSIX only")
@@ -43,8 +44,8 @@ def _verify_until(path: str, stop, errors, rounds) -> None:
         time.sleep(0.01)
 
 
-def test_eight_writers_and_verifying_readers_lose_nothing(tmp_path):
-    path = str(tmp_path / "busy.sqlite")
+def test_eight_writers_and_verifying_readers_lose_nothing(location):
+    path = location
     base = make_record()
     with Archive(path) as archive:  # the readers open with create=False
         first = variant(base, 100_000)

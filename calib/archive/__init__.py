@@ -4,10 +4,12 @@
 signed record version, on SQLite or PostgreSQL (:mod:`calib.archive.store`,
 engines in :mod:`calib.archive.backends`, tables in :mod:`calib.archive.schema`,
 the chain in :mod:`calib.archive.chain`, verification in
-:mod:`calib.archive.audit`, the head receipt in :mod:`calib.archive.anchor`, copying between engines in
-:mod:`calib.archive.migrate`); :mod:`calib.archive.trend` charts each analyte's slope, intercept and residual SD over time with the control limits and run
-rules of :mod:`calib.archive.control`; :mod:`calib.archive.figures` derives
-what the archive indexes from the record JSON.
+:mod:`calib.archive.audit`, the head receipt in :mod:`calib.archive.anchor`,
+copying between engines in :mod:`calib.archive.migrate`);
+:mod:`calib.archive.trend` charts each analyte's slope, intercept and residual
+SD over time with the control limits and run rules of
+:mod:`calib.archive.control`; :mod:`calib.archive.figures` derives what the
+archive indexes from the record JSON.
 """
 
 from calib.archive.chain import (

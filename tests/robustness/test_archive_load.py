@@ -1,4 +1,4 @@
-"""The archive under load, on both engines: 8 writers × 50 records while readers verify meanwhile."""
+"""The archive under load on both engines: 8 writers × 50 records while readers verify."""
 
 from __future__ import annotations
 

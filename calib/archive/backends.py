@@ -96,6 +96,10 @@ def open_storage(location: str | Path, *, create: bool, timeout: float) -> Stora
     return SqliteStorage(Path(location), create=create, timeout=timeout)
 
 
+def _first_line(exc: BaseException) -> str:
+    return (str(exc).strip().splitlines() or [type(exc).__name__])[0]
+
+
 def _now() -> str:
     return datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
 
@@ -260,7 +264,7 @@ class PostgresStorage:
                                          connect_timeout=max(1, int(timeout)))
         except psycopg.Error as exc:
             raise ArchiveError(f"{self.location}: cannot connect to the archive database "
-                               f"({str(exc).strip().splitlines()[0]})") from None
+                               f"({_first_line(exc)})") from None
         try:
             # A writer waits for the append lock at most `timeout` (advisory locks included).
             self._conn.execute(f"SET lock_timeout = {int(timeout * 1000)}")
@@ -270,7 +274,7 @@ class PostgresStorage:
         except psycopg.Error as exc:
             self._conn.close()
             raise ArchiveError(f"{self.location}: cannot use the archive "
-                               f"({str(exc).strip().splitlines()[0]})") from None
+                               f"({_first_line(exc)})") from None
         except BaseException:
             self._conn.close()
             raise
@@ -312,7 +316,11 @@ class PostgresStorage:
         return sql.replace("?", "%s")
 
     def query(self, sql: str, params: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
-        return self._conn.execute(self._sql(sql), tuple(params)).fetchall()
+        try:
+            return self._conn.execute(self._sql(sql), tuple(params)).fetchall()
+        except self._psycopg.OperationalError as exc:
+            raise ArchiveError(f"{self.location}: the archive database cannot be read "
+                               f"({_first_line(exc)})") from None
 
     def rows(self, sql: str, params: Sequence[Any] = ()) -> Iterator[tuple[Any, ...]]:
         from psycopg.pq import TransactionStatus
@@ -346,6 +354,9 @@ class PostgresStorage:
                 yield
         except psycopg.errors.RaiseException as exc:
             raise ArchiveError(f"{self.location}: {exc.diag.message_primary}") from None
+        except psycopg.OperationalError as exc:
+            raise ArchiveError(f"{self.location}: the archive database could not complete the "
+                               f"write, nothing was appended ({_first_line(exc)})") from None
 
     @contextlib.contextmanager
     def snapshot(self) -> Iterator[None]:

@@ -191,3 +191,21 @@ def test_every_search_uses_an_index(twelve):
                 store.execute("SET enable_seqscan = on")
                 scans = [step for step in plan.split(" | ") if "Seq Scan" in step]
             assert scans == [], (sql, plan)
+
+
+def test_a_writer_holding_the_append_lock_too_long_gives_a_clear_error(location):
+    if not is_database_url(location):
+        pytest.skip("the SQLite case is test_store.py's test_a_writer_holding_the_lock_too_long")
+    import psycopg
+
+    from calib.archive.backends import LOCK_KEY
+
+    record = make_record()
+    Archive(location).close()
+    with psycopg.connect(location) as holder:
+        holder.execute("SELECT pg_advisory_xact_lock(%s)", (LOCK_KEY,))  # in a transaction
+        with Archive(location, timeout=1) as archive:
+            with pytest.raises(ArchiveError, match=r": the archive is busy \(canceling statement "
+                                                   r"due to lock timeout"):
+                archive.append(record, pdf_for(record), kind="issued")
+            assert len(archive) == 0

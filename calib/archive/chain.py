@@ -4,8 +4,9 @@ Entry hash (the exact bytes, so anyone can recompute it)
     ``entry_hash = SHA-256( prev_hash + "\\n" + canonical_json(fields) )`` in
     lower-case hex, where ``prev_hash`` is the previous entry's ``entry_hash``
     (:data:`GENESIS_HASH`, 64 ``"0"``, for the first entry), ``"\\n"`` is one
-    line-feed byte, ``canonical_json`` is :func:`calib.record.canonical_json`
-    (sorted keys, UTF-8, no whitespace, integers without a decimal point) and
+    line-feed byte, ``canonical_json`` is JSON with sorted keys, UTF-8, no
+    whitespace and integers without a decimal point (the fields are strings,
+    integers, lists of strings and null, so RFC 8785 gives the same bytes) and
     ``fields`` is the object::
 
         {"analytes": [...], "content_digest": ..., "created_at": ...,
@@ -14,16 +15,19 @@ Entry hash (the exact bytes, so anyone can recompute it)
          "verdict": ..., "version_digest": ...}
 
     The record JSON enters through ``version_digest`` (its SHA-256), the PDF
-    through ``pdf_sha256``; :func:`check_entry` recomputes both from the
-    stored bytes.
+    through ``pdf_sha256`` (stored beside the entry since archive format 2);
+    :func:`check_content` recomputes both from the stored bytes, while
+    :func:`check_link` (the hash pass) needs neither blob.
 
 What a check finds
     A gap in ``seq`` (an entry deleted), a ``prev_hash`` that is not the hash
     of the entry before (deleted, inserted or altered entries), an entry hash
     that does not match the fields (an edited column or an edited stored
     hash), JSON bytes that do not match the version digest or are not
-    canonical (edited record data), a PDF that is not a PDF, and indexed
-    columns or trend figures that disagree with the JSON they were derived from.
+    canonical (edited record data), a PDF that does not match its digest or
+    does not carry this entry's JSON as its attached record data (a swapped
+    PDF), and indexed columns or trend figures that disagree with the JSON they
+    were derived from.
 
 Limits
     A hash chain shows that nothing *inside* it changed; it cannot show that

@@ -329,6 +329,18 @@ def _verify_record(path: str, record_id: str) -> int:
     return EXIT_INTEGRITY
 
 
+def logbook_note(archive: Any) -> str:
+    """The line a command that appended prints for the lab's logbook ("" without a receipt).
+
+    For ``calib check --archive`` and ``calib sign --archive``: call it on the open archive
+    right after ``append``.
+    """
+    receipt = getattr(archive, "last_receipt", None)
+    if receipt is None:
+        return ""
+    return f"For the logbook: {receipt.logbook_line()}"
+
+
 def _receipt_note(report: Any) -> str:
     if report.receipt is not None:
         return (f"Head receipt {report.receipt_path} (seq {report.receipt.seq}, written "

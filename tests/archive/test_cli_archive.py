@@ -104,3 +104,15 @@ def test_verify_one_record(six, capsys):
 def location_shown(location):
     with Archive(location, create=False) as archive:
         return archive.location
+
+
+def test_logbook_note_after_an_append(location):
+    from calib.cli.archive import logbook_note
+
+    record = make_record()
+    with Archive(location) as archive:
+        assert logbook_note(archive) == ""
+        entry = archive.append(record, pdf_for(record), kind="issued")
+        note = logbook_note(archive)
+    assert note.startswith(f"For the logbook: calib archive head {archive.archive_id}: seq 1, "
+                           f"entry hash {entry.entry_hash} (")

@@ -24,6 +24,16 @@ from collections.abc import Iterator
 from pathlib import Path
 
 URL_ENV = "CALIB_TEST_POSTGRES_URL"
+_CREATED: list[str] = []  # schemas made by fresh_schema, dropped from a lab's own server after
+
+
+def _drop_schemas(base: str) -> None:
+    """Leave a server the tests did not start as it was: drop the schemas they made."""
+    import psycopg
+
+    with psycopg.connect(base, autocommit=True) as conn:
+        while _CREATED:
+            conn.execute(f"DROP SCHEMA IF EXISTS {_CREATED.pop()} CASCADE")
 
 
 def _binaries() -> Path | None:
@@ -57,7 +67,10 @@ def _free_port() -> int:
 def server() -> Iterator[str]:
     """A base URL of a database the tests may use; the server is stopped afterwards."""
     if os.environ.get(URL_ENV):
-        yield os.environ[URL_ENV]
+        try:
+            yield os.environ[URL_ENV]
+        finally:
+            _drop_schemas(os.environ[URL_ENV])
         return
     bindir = _binaries()
     assert bindir is not None, unavailable_reason()
@@ -94,5 +107,6 @@ def fresh_schema(base: str) -> str:
     name = "t_" + uuid.uuid4().hex[:12]
     with psycopg.connect(base, autocommit=True) as conn:
         conn.execute(f"CREATE SCHEMA {name}")
+    _CREATED.append(name)
     joiner = "&" if "?" in base else "?"
     return f"{base}{joiner}options=-csearch_path%3D{name}"

@@ -264,3 +264,13 @@ def test_the_passes_find_what_they_read(four):
     assert full == [hash_broken, f"entry seq 2: the stored PDF carries other record data (digest "
                                  f"{records[2].digest[:16]}…) than this entry: the PDF was "
                                  "swapped or altered"]
+
+
+def test_a_receipt_that_cannot_be_written_is_said_with_the_entry_kept(tmp_path):
+    record = make_record()
+    missing = tmp_path / "no-such-folder" / "records.head.json"
+    with Archive(tmp_path / "records.sqlite", head_receipt=missing) as archive:
+        with pytest.raises(ArchiveError, match=rf"entry seq 1 was archived, but its head receipt "
+                                               rf"{missing} cannot be written"):
+            archive.append(record, pdf_for(record), kind="issued")
+        assert len(archive) == 1 and archive.verify_chain().ok

@@ -209,3 +209,22 @@ def test_a_writer_holding_the_append_lock_too_long_gives_a_clear_error(location)
                                                    r"due to lock timeout"):
                 archive.append(record, pdf_for(record), kind="issued")
             assert len(archive) == 0
+
+
+def test_listing_searching_and_the_hash_pass_never_touch_a_blob(twelve):
+    location, records = twelve
+    with Archive(location, create=False) as archive:
+        store = archive.storage
+        seen: list[str] = []
+        query, rows = store.query, store.rows
+        store.query = lambda sql, params=(): seen.append(sql) or query(sql, params)
+        store.rows = lambda sql, params=(): seen.append(sql) or rows(sql, params)
+        archive.entries(limit=50, newest_first=True, data=False)
+        archive.entries(analyte="Nitrate-N", verdict="accepted", data=False)
+        archive.count(date_from="2026-09-02")
+        archive.curve_history("Nitrate-N")
+        report = archive.verify_chain(deep=False)
+        archive.head()
+        store.query, store.rows = query, rows
+    assert report.ok and report.entries == 12 and len(seen) >= 6
+    assert [sql for sql in seen if "entry_data" in sql or " json" in sql or "pdf," in sql] == []

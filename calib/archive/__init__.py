@@ -1,11 +1,15 @@
 """The archive of calibration records and the trends drawn from it.
 
-:class:`Archive` is the append-only, hash-chained SQLite store of every issued
-and signed record version (:mod:`calib.archive.store`, the chain in
-:mod:`calib.archive.chain`); :mod:`calib.archive.trend` charts each analyte's
-slope, intercept and residual SD over time with the control limits and run
-rules of :mod:`calib.archive.control`; :mod:`calib.archive.figures` derives
-what the archive indexes from the record JSON.
+:class:`Archive` is the append-only, hash-chained store of every issued and
+signed record version, on SQLite or PostgreSQL (:mod:`calib.archive.store`,
+engines in :mod:`calib.archive.backends`, tables in :mod:`calib.archive.schema`,
+the chain in :mod:`calib.archive.chain`, verification in
+:mod:`calib.archive.audit`, the head receipt in :mod:`calib.archive.anchor`,
+copying between engines in :mod:`calib.archive.migrate`);
+:mod:`calib.archive.trend` charts each analyte's slope, intercept and residual
+SD over time with the control limits and run rules of
+:mod:`calib.archive.control`; :mod:`calib.archive.figures` derives what the
+archive indexes from the record JSON.
 """
 
 from calib.archive.baseline import (
@@ -37,6 +41,8 @@ from calib.archive.control import (
     run_rules,
     screened_limits,
 )
+from calib.archive.anchor import HeadReceipt
+from calib.archive.audit import EntryReport
 from calib.archive.figures import CurveFigures, RecordFacts, record_facts
 from calib.archive.store import Archive, ArchiveError
 from calib.archive.trend import (
@@ -69,7 +75,9 @@ __all__ = [
     "ControlChart",
     "ControlLimits",
     "CurveFigures",
+    "EntryReport",
     "FrozenBaseline",
+    "HeadReceipt",
     "RecordFacts",
     "RuleHit",
     "SetAside",

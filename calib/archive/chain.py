@@ -4,8 +4,9 @@ Entry hash (the exact bytes, so anyone can recompute it)
     ``entry_hash = SHA-256( prev_hash + "\\n" + canonical_json(fields) )`` in
     lower-case hex, where ``prev_hash`` is the previous entry's ``entry_hash``
     (:data:`GENESIS_HASH`, 64 ``"0"``, for the first entry), ``"\\n"`` is one
-    line-feed byte, ``canonical_json`` is :func:`calib.record.canonical_json`
-    (sorted keys, UTF-8, no whitespace, integers without a decimal point) and
+    line-feed byte, ``canonical_json`` is JSON with sorted keys, UTF-8, no
+    whitespace and integers without a decimal point (the fields are strings,
+    integers, lists of strings and null, so RFC 8785 gives the same bytes) and
     ``fields`` is the object::
 
         {"analytes": [...], "content_digest": ..., "created_at": ...,
@@ -14,27 +15,32 @@ Entry hash (the exact bytes, so anyone can recompute it)
          "verdict": ..., "version_digest": ...}
 
     The record JSON enters through ``version_digest`` (its SHA-256), the PDF
-    through ``pdf_sha256``; :func:`check_entry` recomputes both from the
-    stored bytes.
+    through ``pdf_sha256`` (stored beside the entry since archive format 2);
+    :func:`check_content` recomputes both from the stored bytes, while
+    :func:`check_link` (the hash pass) needs neither blob.
 
 What a check finds
     A gap in ``seq`` (an entry deleted), a ``prev_hash`` that is not the hash
     of the entry before (deleted, inserted or altered entries), an entry hash
     that does not match the fields (an edited column or an edited stored
     hash), JSON bytes that do not match the version digest or are not
-    canonical (edited record data), a PDF that is not a PDF, and indexed
-    columns or trend figures that disagree with the JSON they were derived from.
+    canonical (edited record data), a PDF that does not match its digest or
+    does not carry this entry's JSON as its attached record data (a swapped
+    PDF), and indexed columns or trend figures that disagree with the JSON they
+    were derived from.
 
 Limits
     A hash chain shows that nothing *inside* it changed; it cannot show that
-    entries were cut off its end.  :class:`ChainReport` gives the head (last
-    seq and its hash): note it elsewhere (a logbook, a signed report) and pass
-    it back to :meth:`calib.archive.Archive.verify_chain` as ``expected_head``.
+    entries were cut off its end, nor that the whole chain was recomputed.  The
+    head receipt (:mod:`calib.archive.anchor`) anchors the head outside the
+    archive; :class:`ChainReport` also gives the head (last seq and its hash)
+    to note elsewhere (a logbook) and pass back as ``expected_head``.
 """
 
 from __future__ import annotations
 
 import hashlib
+import json
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -47,11 +53,14 @@ __all__ = [
     "ChainProblem",
     "ChainReport",
     "DerivedRecord",
+    "check_content",
     "check_entry",
+    "check_link",
     "compute_entry_hash",
     "derive_record",
     "entry_fields",
     "figures_row",
+    "pdf_problem",
 ]
 
 GENESIS_HASH = "0" * 64
@@ -107,6 +116,7 @@ class ArchiveEntry:
     run_date: str = ""
     instrument: str | None = None
     roles: tuple[str, ...] = ()
+    pdf_sha256: str = ""
 
     @property
     def digest_matches(self) -> bool:
@@ -121,7 +131,8 @@ class ArchiveEntry:
             "instrument": self.instrument, "analytes": list(self.analytes),
             "verdict": self.verdict, "roles": list(self.roles),
             "version_digest": self.version_digest, "content_digest": self.content_digest,
-            "prev_hash": self.prev_hash, "entry_hash": self.entry_hash,
+            "pdf_sha256": self.pdf_sha256, "prev_hash": self.prev_hash,
+            "entry_hash": self.entry_hash,
         }
 
 
@@ -150,12 +161,18 @@ class ChainReport:
         Its entry hash (:data:`GENESIS_HASH` when empty): note it to detect truncation later.
     problems : tuple of ChainProblem
         Empty when the archive is intact.
+    receipt : HeadReceipt or None
+        The head receipt that was checked (:mod:`calib.archive.anchor`); None when there is none.
+    receipt_path : Path or None
+        Where the archive's head receipt is kept (None when it keeps none).
     """
 
     entries: int
     head_seq: int | None
     head_hash: str
     problems: tuple[ChainProblem, ...] = ()
+    receipt: Any = None
+    receipt_path: Any = None
 
     @property
     def ok(self) -> bool:
@@ -172,15 +189,19 @@ def compute_entry_hash(prev_hash: str, fields: dict[str, Any]) -> str:
     >>> compute_entry_hash(GENESIS_HASH, fields)[:16]
     'f32bc21214df9c88'
     """
-    # calib.record brings the fitting stack with it; listing an archive needs none of that.
-    from calib.record import canonical_json
-
-    payload = prev_hash.encode("ascii") + b"\n" + canonical_json(fields)
+    # The same bytes as calib.record.canonical_json for these fields (strings, integers,
+    # lists, null), written here so that the hash pass needs neither calib.record nor rfc8785.
+    text = json.dumps(fields, sort_keys=True, ensure_ascii=False, separators=(",", ":"),
+                      allow_nan=False)
+    payload = prev_hash.encode("ascii") + b"\n" + text.encode("utf-8")
     return hashlib.sha256(payload).hexdigest()
 
 
-def entry_fields(seq: int, meta: dict[str, Any], pdf: bytes) -> dict[str, Any]:
-    """The ``fields`` object of the entry hash: ``meta`` columns, ``seq`` and the PDF's SHA-256."""
+def entry_fields(seq: int, meta: dict[str, Any], pdf: bytes | None = None) -> dict[str, Any]:
+    """The ``fields`` object of the entry hash: ``meta`` columns, ``seq`` and the PDF's SHA-256.
+
+    The PDF's SHA-256 is computed from ``pdf`` when given, else taken from ``meta["pdf_sha256"]``.
+    """
     return {
         "seq": seq,
         "record_id": meta["record_id"],
@@ -193,7 +214,8 @@ def entry_fields(seq: int, meta: dict[str, Any], pdf: bytes) -> dict[str, Any]:
         "run_date": meta["run_date"],
         "instrument": meta["instrument"],
         "roles": list(meta["roles"]),
-        "pdf_sha256": hashlib.sha256(pdf).hexdigest(),
+        "pdf_sha256": (hashlib.sha256(pdf).hexdigest() if pdf is not None
+                       else meta["pdf_sha256"]),
     }
 
 
@@ -227,23 +249,83 @@ def figures_row(c: CurveFigures) -> tuple[Any, ...]:
             c.residual_sd, c.concentration_unit, c.response_unit)
 
 
-def check_entry(entry: ArchiveEntry, prev_seq: int, prev_hash: str,
-                 stored_figures: list[tuple[Any, ...]]) -> list[ChainProblem]:
-    """Everything that is wrong with one entry, given the seq and hash of the entry before it.
+def check_link(entry: ArchiveEntry, prev_seq: int, prev_hash: str) -> list[ChainProblem]:
+    """The hash pass over one entry: its place in the chain and its entry hash.
+
+    Reads only the short columns (the PDF enters through the stored
+    ``pdf_sha256``), so a whole chain is checked without reading any blob.
+
+    Parameters
+    ----------
+    entry : ArchiveEntry
+        The entry as stored (its JSON and PDF need not be read).
+    prev_seq, prev_hash : int, str
+        Seq and entry hash of the entry before it (0 and :data:`GENESIS_HASH` for the first).
+    """
+    seq = entry.seq
+    problems = []
+    if seq != prev_seq + 1:
+        gap = f"seq {prev_seq + 1}" if seq == prev_seq + 2 else f"seq {prev_seq + 1}–{seq - 1}"
+        where = f"follows seq {prev_seq}" if prev_seq else "is the first entry"
+        problems.append(ChainProblem(seq, f"{where}: {gap} missing (entries were removed)"))
+    if entry.prev_hash != prev_hash:
+        before = f"seq {prev_seq}" if prev_seq else "the start of the chain"
+        problems.append(ChainProblem(
+            seq, f"its prev_hash does not match the entry hash of {before}: the chain is broken "
+                 "(an entry before it was removed or altered)"))
+    expected = compute_entry_hash(entry.prev_hash, entry_fields(seq, {
+        "record_id": entry.record_id, "version_digest": entry.version_digest,
+        "content_digest": entry.content_digest, "kind": entry.kind,
+        "created_at": entry.created_at, "analytes": entry.analytes, "verdict": entry.verdict,
+        "run_date": entry.run_date, "instrument": entry.instrument, "roles": entry.roles,
+        "pdf_sha256": entry.pdf_sha256,
+    }))
+    if expected != entry.entry_hash:
+        problems.append(ChainProblem(seq, "its entry hash does not match its fields: the entry "
+                                          "or its stored hash was altered"))
+    if entry.kind not in KINDS:
+        problems.append(ChainProblem(seq, f"unknown kind {entry.kind!r}"))
+    return problems
+
+
+def pdf_problem(pdf: bytes, version_digest: str) -> str | None:
+    """Why ``pdf`` is not the PDF of the record version ``version_digest``; None when it is.
+
+    A calib record PDF carries its record JSON as an attached file; the
+    attachment's SHA-256 must be the entry's version digest, so a PDF swapped
+    for another record's (or any other PDF) is found.
+    """
+    from calib.report.embed import read_back
+
+    if not pdf.startswith(b"%PDF-"):
+        return "the stored PDF is not a PDF document"
+    try:
+        contents = read_back(pdf)
+    except ValueError as exc:
+        return f"the stored PDF cannot be read ({exc})"
+    carried = [hashlib.sha256(data).hexdigest() for name, values in contents.attachments.items()
+               if name.endswith(".json") for data in values]
+    if version_digest in carried:
+        return None
+    if carried:
+        return (f"the stored PDF carries other record data (digest {carried[0][:16]}…) than "
+                "this entry: the PDF was swapped or altered")
+    return "the stored PDF carries no record data: it is not this entry's record PDF"
+
+
+def check_content(entry: ArchiveEntry, stored_figures: list[tuple[Any, ...]], *,
+                  attachment: bool = True) -> list[ChainProblem]:
+    """The content pass over one entry: its JSON, its PDF and the indexes derived from them.
 
     Parameters
     ----------
     entry : ArchiveEntry
         The entry as stored, with its JSON and PDF bytes.
-    prev_seq, prev_hash : int, str
-        Seq and entry hash of the entry before it (0 and :data:`GENESIS_HASH` for the first).
     stored_figures : list of tuple
         The entry's rows of the ``curves`` table as :func:`figures_row` gives them.
-
-    Returns
-    -------
-    list of ChainProblem
-        Empty when the entry is intact and correctly chained.
+    attachment : bool
+        Also parse the PDF and check that its attached record data is this entry's JSON
+        (:func:`pdf_problem`; a few milliseconds per record PDF).
     """
     seq = entry.seq
     problems = []
@@ -251,30 +333,17 @@ def check_entry(entry: ArchiveEntry, prev_seq: int, prev_hash: str,
     def problem(message: str) -> None:
         problems.append(ChainProblem(seq, message))
 
-    if seq != prev_seq + 1:
-        gap = f"seq {prev_seq + 1}" if seq == prev_seq + 2 else f"seq {prev_seq + 1}–{seq - 1}"
-        where = f"follows seq {prev_seq}" if prev_seq else "is the first entry"
-        problem(f"{where}: {gap} missing (entries were removed)")
-    if entry.prev_hash != prev_hash:
-        before = f"seq {prev_seq}" if prev_seq else "the start of the chain"
-        problem(f"its prev_hash does not match the entry hash of {before}: the chain is broken "
-                "(an entry before it was removed or altered)")
-    expected = compute_entry_hash(entry.prev_hash, entry_fields(seq, {
-        "record_id": entry.record_id, "version_digest": entry.version_digest,
-        "content_digest": entry.content_digest, "kind": entry.kind,
-        "created_at": entry.created_at, "analytes": entry.analytes, "verdict": entry.verdict,
-        "run_date": entry.run_date, "instrument": entry.instrument, "roles": entry.roles,
-    }, entry.pdf))
-    if expected != entry.entry_hash:
-        problem("its entry hash does not match its fields: the entry or its stored hash was "
-                "altered")
-    if entry.kind not in KINDS:
-        problem(f"unknown kind {entry.kind!r}")
-    if not entry.pdf.startswith(b"%PDF-"):
-        problem("the stored PDF is not a PDF document")
-    actual = hashlib.sha256(entry.json).hexdigest()
-    if actual != entry.version_digest:
+    if hashlib.sha256(entry.pdf).hexdigest() != entry.pdf_sha256:
+        problem("its PDF does not match the PDF digest in the chain: the stored PDF was "
+                "replaced")
+    if hashlib.sha256(entry.json).hexdigest() != entry.version_digest:
         problem("its JSON does not match its version digest: the record data was altered")
+    elif attachment:
+        found = pdf_problem(entry.pdf, entry.version_digest)
+        if found:
+            problem(found)
+    elif not entry.pdf.startswith(b"%PDF-"):
+        problem("the stored PDF is not a PDF document")
     try:
         derived = derive_record(entry.json)
     except ValueError as exc:
@@ -293,3 +362,9 @@ def check_entry(entry: ArchiveEntry, prev_seq: int, prev_hash: str,
     if stored_figures != [figures_row(c) for c in facts.curves]:
         problem("the per-analyte figures stored for trends do not match its JSON")
     return problems
+
+
+def check_entry(entry: ArchiveEntry, prev_seq: int, prev_hash: str,
+                stored_figures: list[tuple[Any, ...]]) -> list[ChainProblem]:
+    """Both passes over one entry: :func:`check_link` then :func:`check_content`."""
+    return check_link(entry, prev_seq, prev_hash) + check_content(entry, stored_figures)

@@ -1,17 +1,13 @@
-"""The append-only, hash-chained archive of calibration records (one SQLite file).
+"""The append-only, hash-chained archive of calibration records, on SQLite or PostgreSQL.
 
 Every issued record and every signed version of it is appended as an *entry*
 holding the record JSON and the PDF bytes.  Nothing is ever changed or
-removed: triggers refuse ``UPDATE`` and ``DELETE`` on the archive's tables,
-and each entry carries the hash of the one before it, so an edit made by
-going around the triggers (dropping them, editing the file) breaks the chain
-and :meth:`Archive.verify_chain` names the entry.
-
-Tables
-    ``entries``: one row per appended version; ``seq`` counts from 1 with no
-    gaps.  ``curves``: one row per curve of an entry (slope, intercept,
-    residual SD, verdict), an index for trends, derived from the entry's JSON
-    and checked against it by :meth:`Archive.verify_chain`.
+removed: triggers refuse ``UPDATE`` and ``DELETE`` (tables and triggers in
+:mod:`calib.archive.schema`), and each entry carries the hash of the one
+before it, so an edit made by going around the triggers breaks the chain and
+:meth:`Archive.verify_chain` names the entry.  The engine is chosen by the
+location (:mod:`calib.archive.backends`): a path is an SQLite file,
+``postgresql://…`` a PostgreSQL database; both give the same guarantees.
 
 Entry hash
     Each entry's hash covers the previous entry's hash and every column of
@@ -23,8 +19,10 @@ What the archive checks on append (it never trusts the caller)
     recomputed from them; record id, content digest, analytes, verdict, run
     date, instrument, roles and curve figures are derived from the JSON
     re-read from those bytes, not taken from the object passed in.  The PDF
-    must at least be a PDF (``%PDF-``); that its pages and attachment match
-    the JSON is what ``calib verify`` checks.
+    must carry exactly this version's JSON as its attached record data.  A
+    ``signed`` version is accepted only when the record's issued version is
+    already archived.  An archive whose head receipt shows it was rolled back
+    refuses new entries until the lab has looked into it.
 
 Appending a version that is already archived
     Idempotent when JSON, PDF and kind are byte-identical: the existing entry is
@@ -33,126 +31,76 @@ Appending a version that is already archived
     (:class:`ArchiveError`): an archived entry is never replaced.
 
 Concurrency and crashes
-    WAL journal, ``synchronous = FULL``, a busy timeout (30 s by default) and
-    ``BEGIN IMMEDIATE`` transactions: a writer takes the write lock *before*
-    reading the chain head, so two writers can never extend the same head,
-    and each entry with its curve rows is committed in one transaction or
-    not at all.  A process killed mid-write leaves no partial entry; SQLite
-    rolls the unfinished transaction back when the file is next opened.
+    The head is read and extended inside a transaction holding the append lock
+    (:mod:`calib.archive.backends`), so two writers can never extend the same
+    head, and each entry with its data and curve rows is committed in one
+    transaction or not at all.
 
-Limits of the chain
-    Cutting entries off the end leaves a valid shorter chain: note the head
-    that :meth:`Archive.verify_chain` reports and pass it back as
-    ``expected_head`` (see :mod:`calib.archive.chain`).
+Anchoring
+    After each append the head receipt (:mod:`calib.archive.anchor`) moves to
+    the new head; verification checks it whenever it is present.
 """
 
 from __future__ import annotations
 
-import contextlib
 import json
-import sqlite3
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Self
 
+from calib.archive import anchor
+from calib.archive.backends import ArchiveError, Storage, is_database_url, open_storage
 from calib.archive.chain import (
     GENESIS_HASH,
     KINDS,
     ArchiveEntry,
-    ChainProblem,
     ChainReport,
-    check_entry,
     compute_entry_hash,
     derive_record,
     entry_fields,
+    pdf_problem,
 )
 from calib.archive.control import DEFAULT_BASELINE
 from calib.archive.figures import CurveFigures
 from calib.archive.trend import AnalyteTrend, ArchivedCurve, analyte_trend
-from calib.errors import CalibError
 
 if TYPE_CHECKING:
+    from calib.archive.audit import EntryReport
     from calib.record import Record
 
-__all__ = ["Archive", "ArchiveError"]
+__all__ = ["Archive", "ArchiveError", "PreparedEntry"]
 
-SCHEMA_VERSION = 1
-APPLICATION_ID = 0x43414C42  # "CALB": marks the SQLite file as a calib archive
 DEFAULT_TIMEOUT = 30.0
+AUTO = "auto"
 
-_TRIGGERS = ("entries_no_update", "entries_no_delete", "entries_extend_head",
-             "curves_no_update", "curves_no_delete", "curves_with_entry")
-
-_SCHEMA = (
-    """CREATE TABLE entries (
-        seq INTEGER PRIMARY KEY,
-        record_id TEXT NOT NULL,
-        version_digest TEXT NOT NULL UNIQUE,
-        content_digest TEXT NOT NULL,
-        kind TEXT NOT NULL,
-        created_at TEXT NOT NULL,
-        analytes TEXT NOT NULL,
-        verdict TEXT NOT NULL,
-        run_date TEXT NOT NULL,
-        instrument TEXT,
-        roles TEXT NOT NULL,
-        json BLOB NOT NULL,
-        pdf BLOB NOT NULL,
-        prev_hash TEXT NOT NULL,
-        entry_hash TEXT NOT NULL UNIQUE
-    )""",
-    "CREATE INDEX entries_record ON entries (record_id COLLATE NOCASE, seq)",
-    "CREATE INDEX entries_content ON entries (content_digest, seq)",
-    """CREATE TABLE curves (
-        seq INTEGER NOT NULL REFERENCES entries (seq),
-        position INTEGER NOT NULL,
-        analyte TEXT NOT NULL,
-        model TEXT NOT NULL,
-        weighting TEXT NOT NULL,
-        verdict TEXT NOT NULL,
-        slope REAL,
-        intercept REAL,
-        residual_sd REAL,
-        concentration_unit TEXT,
-        response_unit TEXT,
-        PRIMARY KEY (seq, position)
-    ) WITHOUT ROWID""",
-    "CREATE INDEX curves_analyte ON curves (analyte COLLATE NOCASE, seq)",
-    """CREATE TRIGGER entries_no_update BEFORE UPDATE ON entries
-       BEGIN SELECT RAISE(ABORT, 'calib archive is append-only: an entry cannot be changed'); END""",
-    """CREATE TRIGGER entries_no_delete BEFORE DELETE ON entries
-       BEGIN SELECT RAISE(ABORT, 'calib archive is append-only: an entry cannot be deleted'); END""",
-    f"""CREATE TRIGGER entries_extend_head BEFORE INSERT ON entries
-       WHEN NEW.seq IS NOT (SELECT coalesce(max(seq), 0) + 1 FROM entries)
-         OR NEW.prev_hash IS NOT coalesce(
-              (SELECT entry_hash FROM entries ORDER BY seq DESC LIMIT 1), '{GENESIS_HASH}')
-       BEGIN SELECT RAISE(ABORT, 'calib archive: a new entry must extend the chain head'); END""",
-    """CREATE TRIGGER curves_no_update BEFORE UPDATE ON curves
-       BEGIN SELECT RAISE(ABORT, 'calib archive is append-only: figures cannot be changed'); END""",
-    """CREATE TRIGGER curves_no_delete BEFORE DELETE ON curves
-       BEGIN SELECT RAISE(ABORT, 'calib archive is append-only: figures cannot be deleted'); END""",
-    """CREATE TRIGGER curves_with_entry BEFORE INSERT ON curves
-       WHEN NEW.seq IS NOT (SELECT max(seq) FROM entries)
-       BEGIN SELECT RAISE(ABORT, 'calib archive: figures are added only with their entry'); END""",
-)
-
-_META_COLUMNS = ("seq", "record_id", "version_digest", "content_digest", "kind", "created_at",
-                 "analytes", "verdict", "run_date", "instrument", "roles", "prev_hash",
-                 "entry_hash")
+META_COLUMNS = ("seq", "record_id", "version_digest", "content_digest", "kind", "created_at",
+                "analytes", "verdict", "run_date", "instrument", "roles", "pdf_sha256",
+                "prev_hash", "entry_hash")
+SELECT_META = "SELECT " + ", ".join(f"e.{c}" for c in META_COLUMNS) + " FROM entries e"
+SELECT_DATA = ("SELECT " + ", ".join(f"e.{c}" for c in META_COLUMNS)
+               + ", d.json, d.pdf FROM entries e LEFT JOIN entry_data d ON d.seq = e.seq")
+FIGURE_COLUMNS = ("position, analyte, model, weighting, verdict, slope, intercept, residual_sd,"
+                  " concentration_unit, response_unit")
 
 
-class ArchiveError(CalibError):
-    """The archive cannot be opened or used, or an append was refused."""
+@dataclass(frozen=True)
+class PreparedEntry:
+    """An entry checked and ready to be chained: everything but seq, time and hashes."""
 
-
-def _insert_figures(conn: sqlite3.Connection, seq: int, curves: Sequence[CurveFigures]) -> None:
-    conn.executemany(
-        "INSERT INTO curves (seq, position, analyte, model, weighting, verdict, slope, intercept,"
-        " residual_sd, concentration_unit, response_unit) VALUES (?,?,?,?,?,?,?,?,?,?,?)",
-        [(seq, c.position, c.analyte, c.model, c.weighting, c.verdict, c.slope, c.intercept,
-          c.residual_sd, c.concentration_unit, c.response_unit) for c in curves],
-    )
+    record_id: str
+    version_digest: str
+    content_digest: str
+    kind: str
+    analytes: tuple[str, ...]
+    verdict: str
+    run_date: str
+    instrument: str | None
+    roles: tuple[str, ...]
+    json: bytes
+    pdf: bytes
+    curves: tuple[CurveFigures, ...] = ()
 
 
 def _utc_now() -> datetime:
@@ -160,90 +108,57 @@ def _utc_now() -> datetime:
 
 
 class Archive:
-    """An archive file; open it with ``with Archive(path) as archive:``.
+    """An archive; open it with ``with Archive(location) as archive:``.
 
     Parameters
     ----------
     path : str or Path
-        The SQLite file.
+        The SQLite file, or a ``postgresql://…`` URL.
     create : bool
-        Create the file and its tables when missing (the default).  Readers
-        pass False so that a mistyped path is an error, not a new empty archive.
+        Create the archive when missing (the default).  Readers pass False so
+        that a mistyped path is an error, not a new empty archive.
     timeout : float
         Seconds to wait for another writer before giving up.
     clock : callable, optional
         Returns the current UTC time for ``created_at`` (tests pass a fixed clock).
+    head_receipt : str, Path or None
+        Where the head receipt goes; ``"auto"`` (the default) is
+        :func:`calib.archive.anchor.default_receipt_path`, None writes none.
 
     Raises
     ------
     ArchiveError
-        If the file is missing (with ``create=False``), is not a calib archive,
-        or was written by a newer calib.
+        If the archive is missing (with ``create=False``), is not a calib
+        archive, or was written by a newer calib.
 
     Examples
     --------
     >>> import tempfile, pathlib
     >>> with Archive(pathlib.Path(tempfile.mkdtemp()) / "records.sqlite") as archive:
-    ...     len(archive), archive.verify_chain().ok
-    (0, True)
+    ...     len(archive), archive.verify_chain().ok, archive.engine
+    (0, True, 'sqlite')
     """
 
     def __init__(self, path: str | Path, *, create: bool = True,
                  timeout: float = DEFAULT_TIMEOUT,
-                 clock: Callable[[], datetime] | None = None) -> None:
-        self.path = Path(path)
+                 clock: Callable[[], datetime] | None = None,
+                 head_receipt: str | Path | None = AUTO) -> None:
         self._clock = clock or _utc_now
-        if not create and not self.path.is_file():
-            raise ArchiveError(f"{self.path}: no archive at this path")
-        try:
-            self._conn = sqlite3.connect(str(self.path), timeout=timeout, isolation_level=None)
-        except sqlite3.Error as exc:
-            raise ArchiveError(f"{self.path}: cannot open the archive ({exc})") from None
-        try:
-            self._conn.execute(f"PRAGMA busy_timeout = {int(timeout * 1000)}")
-            self._conn.execute("PRAGMA journal_mode = WAL")
-            self._conn.execute("PRAGMA synchronous = FULL")
-            self._conn.execute("PRAGMA foreign_keys = ON")
-            self._prepare(create=create)
-        except sqlite3.OperationalError as exc:
-            self._conn.close()
-            raise ArchiveError(f"{self.path}: cannot use the archive ({exc})") from None
-        except sqlite3.DatabaseError as exc:
-            self._conn.close()
-            raise ArchiveError(f"{self.path}: not a calib archive ({exc})") from None
-        except BaseException:
-            self._conn.close()
-            raise
-
-    # -- opening ---------------------------------------------------------------------------
-
-    def _pragma(self, name: str) -> int:
-        return int(self._conn.execute(f"PRAGMA {name}").fetchone()[0])
-
-    def _prepare(self, *, create: bool) -> None:
-        if self._pragma("application_id") == 0:
-            if not create:
-                raise ArchiveError(f"{self.path}: not a calib archive")
-            with self._write():
-                # Another process may have set the archive up while we waited for the lock.
-                if self._pragma("application_id") == 0:
-                    if self._conn.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]:
-                        raise ArchiveError(
-                            f"{self.path}: an SQLite database that is not a calib archive")
-                    for statement in _SCHEMA:
-                        self._conn.execute(statement)
-                    self._conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
-                    self._conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
-        if self._pragma("application_id") != APPLICATION_ID:
-            raise ArchiveError(f"{self.path}: an SQLite database that is not a calib archive")
-        version = self._pragma("user_version")
-        if version > SCHEMA_VERSION:
-            raise ArchiveError(f"{self.path}: archive format {version} was written by a newer "
-                               f"calib (this one reads format {SCHEMA_VERSION})")
+        self._store: Storage = open_storage(path, create=create, timeout=timeout)
+        database = is_database_url(path)
+        self.path: Path | str = self._store.location if database else Path(path)
+        self.location = self._store.location
+        self.engine = self._store.engine
+        self.archive_id = self._store.archive_id
+        if head_receipt == AUTO:
+            self.receipt_path = anchor.default_receipt_path(str(path), database=database)
+        else:
+            self.receipt_path = Path(head_receipt) if head_receipt is not None else None
+        self.last_receipt: anchor.HeadReceipt | None = None
 
     def close(self) -> None:
         """Close the connection (the archive stays as written)."""
-        self._conn.close()
+        self._store.close()
 
     def __enter__(self) -> Self:
         return self
@@ -251,28 +166,10 @@ class Archive:
     def __exit__(self, *exc: object) -> None:
         self.close()
 
-    @contextlib.contextmanager
-    def _write(self) -> Iterator[None]:
-        """A write transaction holding the write lock from its first statement."""
-        try:
-            self._conn.execute("BEGIN IMMEDIATE")
-        except sqlite3.OperationalError as exc:
-            raise ArchiveError(f"{self.path}: the archive is busy or locked ({exc})") from None
-        try:
-            yield
-        except BaseException:
-            self._conn.execute("ROLLBACK")
-            raise
-        self._conn.execute("COMMIT")
-
-    @contextlib.contextmanager
-    def _snapshot(self) -> Iterator[None]:
-        """A read transaction: one consistent view while writers go on appending."""
-        self._conn.execute("BEGIN")
-        try:
-            yield
-        finally:
-            self._conn.execute("COMMIT")
+    @property
+    def storage(self) -> Storage:
+        """The engine underneath (for :mod:`calib.archive.audit` and the migration)."""
+        return self._store
 
     # -- writing ---------------------------------------------------------------------------
 
@@ -285,7 +182,8 @@ class Archive:
             The record; only its canonical JSON bytes are used, everything else
             is derived from them.
         pdf : bytes
-            The rendered PDF of exactly this version.
+            The rendered PDF of exactly this version (its attached record data
+            must be this version's JSON).
         kind : str
             ``issued`` (a new record) or ``signed`` (a new sign-off version).
 
@@ -293,16 +191,22 @@ class Archive:
         -------
         ArchiveEntry
             The new entry, or the existing one when this exact version, PDF and
-            kind are already archived.
+            kind are already archived.  :attr:`last_receipt` is the head receipt
+            written for it (None when the archive has no receipt).
 
         Raises
         ------
         ValueError
             If ``kind`` is not ``issued`` or ``signed``.
         ArchiveError
-            If the record or PDF is unusable, or the version is archived with
-            different bytes.
+            If the record or PDF is unusable, the version is archived with
+            different bytes, a signed version's issued version is not archived,
+            or the head receipt shows that the archive was rolled back.
         """
+        return self.append_prepared([self.prepare(record, pdf, kind=kind)])[0]
+
+    def prepare(self, record: Record, pdf: bytes, *, kind: str) -> PreparedEntry:
+        """Check a record version and its PDF and derive what is indexed (no writing)."""
         if kind not in KINDS:
             raise ValueError(f"kind must be one of {', '.join(KINDS)}; got {kind!r}")
         if not isinstance(pdf, (bytes, bytearray)) or not bytes(pdf).startswith(b"%PDF-"):
@@ -315,71 +219,158 @@ class Archive:
             raise ArchiveError(f"cannot archive this record: {exc}") from None
         if getattr(record, "digest", derived.version_digest) != derived.version_digest:
             raise ArchiveError("cannot archive this record: its digest does not match its JSON")
+        wrong_pdf = pdf_problem(pdf, derived.version_digest)
+        if wrong_pdf:
+            raise ArchiveError(f"cannot archive {derived.record_id}: "
+                               f"{wrong_pdf.replace('the stored PDF', 'the PDF')}")
         facts = derived.facts
-        meta = {
-            "record_id": derived.record_id, "version_digest": derived.version_digest,
-            "content_digest": derived.content_digest, "kind": kind,
-            "analytes": facts.analytes, "verdict": facts.verdict, "run_date": facts.run_date,
-            "instrument": facts.instrument, "roles": facts.roles,
-        }
-        with self._write():
-            # Read under the lock, so archive times never run backwards along the chain.
-            meta["created_at"] = self._clock().astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
-            existing = self._one("WHERE version_digest = ?", (derived.version_digest,))
-            if existing is not None:
-                return self._same_or_refuse(existing, data, pdf, kind)
-            head = self._conn.execute(
-                "SELECT seq, entry_hash FROM entries ORDER BY seq DESC LIMIT 1").fetchone()
-            seq, prev = (head[0] + 1, head[1]) if head else (1, GENESIS_HASH)
-            entry_hash = compute_entry_hash(prev, entry_fields(seq, meta, pdf))
-            self._conn.execute(
-                "INSERT INTO entries (seq, record_id, version_digest, content_digest, kind,"
-                " created_at, analytes, verdict, run_date, instrument, roles, json, pdf,"
-                " prev_hash, entry_hash) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
-                (seq, meta["record_id"], meta["version_digest"], meta["content_digest"], kind,
-                 meta["created_at"], _json_list(facts.analytes), facts.verdict, facts.run_date,
-                 facts.instrument, _json_list(facts.roles), data, pdf, prev, entry_hash),
-            )
-            _insert_figures(self._conn, seq, facts.curves)
-        return ArchiveEntry(
-            seq=seq, record_id=derived.record_id, version_digest=derived.version_digest,
-            content_digest=derived.content_digest, kind=kind, created_at=meta["created_at"],
-            analytes=facts.analytes, verdict=facts.verdict, json=data, pdf=pdf, prev_hash=prev,
-            entry_hash=entry_hash, run_date=facts.run_date, instrument=facts.instrument,
-            roles=facts.roles,
-        )
+        return PreparedEntry(derived.record_id, derived.version_digest, derived.content_digest,
+                             kind, facts.analytes, facts.verdict, facts.run_date,
+                             facts.instrument, facts.roles, data, pdf, facts.curves)
 
-    @staticmethod
-    def _same_or_refuse(existing: ArchiveEntry, data: bytes, pdf: bytes,
-                        kind: str) -> ArchiveEntry:
-        differs = [name for name, same in (("JSON", existing.json == data),
-                                           ("PDF", existing.pdf == pdf),
-                                           ("kind", existing.kind == kind)) if not same]
-        if not differs:
-            return existing
-        raise ArchiveError(
-            f"version {existing.version_digest[:16]} of record {existing.record_id} is already "
-            f"archived as entry seq {existing.seq} with a different {' and '.join(differs)}; "
-            "an archived entry is never replaced")
+    def append_prepared(self, items: Sequence[PreparedEntry]) -> list[ArchiveEntry]:
+        """Chain entries made by :meth:`prepare`, in one transaction under the append lock.
+
+        Used by :meth:`append` (one item) and by bulk loads (the scale bench).
+        """
+        from calib.archive.audit import receipt_problems
+
+        out = []
+        with self._store.write():
+            problems = receipt_problems(self)
+            if problems:
+                raise ArchiveError(
+                    f"{self.location}: nothing appended: {problems[0]} (have the archive "
+                    "checked; if it was replaced on purpose, move its old head receipt "
+                    f"{self.receipt_path} away with the old archive)")
+            for item in items:
+                out.append(self._chain_one(item))
+        head = out[-1] if out else None
+        if head is not None and self.receipt_path is not None:
+            try:
+                self.last_receipt = anchor.write_receipt(
+                    self.receipt_path, self.archive_id, head.seq, head.entry_hash,
+                    head.created_at)
+            except (OSError, ValueError) as exc:
+                raise ArchiveError(f"entry seq {head.seq} was archived, but its head receipt "
+                                   f"{self.receipt_path} cannot be written ({exc})") from None
+        return out
+
+    def _chain_one(self, item: PreparedEntry) -> ArchiveEntry:
+        existing = self._one("WHERE e.version_digest = ?", (item.version_digest,))
+        if existing is not None:
+            return _same_or_refuse(existing, item)
+        if item.kind == "signed" and not self._store.query(
+                "SELECT 1 FROM entries WHERE content_digest = ? AND kind = 'issued' LIMIT 1",
+                (item.content_digest,)):
+            raise ArchiveError(
+                f"cannot archive a signed version of {item.record_id}: its issued version is "
+                "not in the archive (file the issued record first; a signed version is only "
+                "ever filed after the version it continues)")
+        # Read under the lock, so archive times never run backwards along the chain.
+        created_at = self._clock().astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
+        head = self.head()
+        seq, prev = (head[0] + 1, head[1]) if head else (1, GENESIS_HASH)
+        meta = {"record_id": item.record_id, "version_digest": item.version_digest,
+                "content_digest": item.content_digest, "kind": item.kind,
+                "created_at": created_at, "analytes": item.analytes, "verdict": item.verdict,
+                "run_date": item.run_date, "instrument": item.instrument, "roles": item.roles}
+        entry_hash = compute_entry_hash(prev, entry_fields(seq, meta, item.pdf))
+        entry = ArchiveEntry(
+            seq=seq, record_id=item.record_id, version_digest=item.version_digest,
+            content_digest=item.content_digest, kind=item.kind, created_at=created_at,
+            analytes=item.analytes, verdict=item.verdict, json=item.json, pdf=item.pdf,
+            prev_hash=prev, entry_hash=entry_hash, run_date=item.run_date,
+            instrument=item.instrument, roles=item.roles,
+            pdf_sha256=entry_fields(seq, meta, item.pdf)["pdf_sha256"])
+        self._insert(entry, item.curves)
+        return entry
+
+    def _insert(self, entry: ArchiveEntry, curves: Iterable[CurveFigures]) -> None:
+        """Write one entry as given (the triggers still refuse anything but the next head)."""
+        self._store.execute(
+            f"INSERT INTO entries ({', '.join(META_COLUMNS)}) VALUES "
+            f"({', '.join('?' * len(META_COLUMNS))})",
+            (entry.seq, entry.record_id, entry.version_digest, entry.content_digest, entry.kind,
+             entry.created_at, _json_list(entry.analytes), entry.verdict, entry.run_date,
+             entry.instrument, _json_list(entry.roles), entry.pdf_sha256, entry.prev_hash,
+             entry.entry_hash))
+        self._store.execute("INSERT INTO entry_data (seq, json, pdf) VALUES (?, ?, ?)",
+                            (entry.seq, entry.json, entry.pdf))
+        rows = [(entry.seq, c.position, c.analyte, c.model, c.weighting, c.verdict, c.slope,
+                 c.intercept, c.residual_sd, c.concentration_unit, c.response_unit)
+                for c in curves]
+        if rows:
+            self._store.executemany(
+                f"INSERT INTO curves (seq, {FIGURE_COLUMNS}) VALUES (?,?,?,?,?,?,?,?,?,?,?)",
+                rows)
+
+    def copy_entries(self, entries: Iterable[tuple[ArchiveEntry, Sequence[CurveFigures]]],
+                     ) -> int:
+        """Append entries of another archive exactly as they are (``calib archive migrate``).
+
+        Seq, times and hashes are kept; each entry's hash is recomputed first
+        and the triggers make sure each one extends this archive's head, so a
+        copy either reproduces the chain or stops.  Returns the number copied.
+        """
+        count, last = 0, None
+        with self._store.write():
+            for entry, curves in entries:
+                fields = entry_fields(entry.seq, {**entry.summary(), "pdf_sha256": None},
+                                      entry.pdf)
+                if compute_entry_hash(entry.prev_hash, fields) != entry.entry_hash:
+                    raise ArchiveError(f"entry seq {entry.seq} of the source does not match "
+                                       "its own hash: nothing was copied (verify the source)")
+                self._insert(entry, curves)
+                count, last = count + 1, entry
+        if last is not None and self.receipt_path is not None:
+            self.last_receipt = anchor.write_receipt(self.receipt_path, self.archive_id,
+                                                     last.seq, last.entry_hash, last.created_at)
+        return count
 
     # -- reading ---------------------------------------------------------------------------
 
-    def _select(self, *, data: bool) -> str:
-        blobs = "json, pdf" if data else "CAST('' AS BLOB), CAST('' AS BLOB)"
-        return f"SELECT {', '.join(_META_COLUMNS)}, {blobs} FROM entries"
-
     def _one(self, where: str, params: tuple[Any, ...]) -> ArchiveEntry | None:
-        row = self._conn.execute(f"{self._select(data=True)} {where} LIMIT 1", params).fetchone()
-        return _entry(row) if row else None
+        rows = self._store.query(f"{SELECT_DATA} {where} LIMIT 1", params)
+        return entry_from_row(rows[0]) if rows else None
 
     def __len__(self) -> int:
-        return int(self._conn.execute("SELECT count(*) FROM entries").fetchone()[0])
+        return int(self._store.query("SELECT count(*) FROM entries")[0][0])
+
+    @staticmethod
+    def _filters(record_id: str | None, analyte: str | None, verdict: str | None,
+                 instrument: str | None, date_from: str | None, date_to: str | None,
+                 kind: str | None) -> tuple[str, list[Any]]:
+        clauses, params = [], []
+        for column, value in (("record_id", record_id), ("instrument", instrument)):
+            if value is not None:
+                clauses.append(f"lower(e.{column}) = lower(?)")
+                params.append(value)
+        for column, value in (("verdict", verdict), ("kind", kind)):
+            if value is not None:
+                clauses.append(f"e.{column} = ?")
+                params.append(value)
+        if date_from is not None:
+            clauses.append("e.run_date >= ?")
+            params.append(date_from)
+        if date_to is not None:
+            clauses.append("e.run_date <= ?")
+            params.append(date_to)
+        if analyte is not None:
+            # IN (…) rather than EXISTS: the engines then start from the analyte index,
+            # so a rare analyte is found without walking the whole archive.
+            clauses.append("e.seq IN (SELECT c.seq FROM curves c"
+                           " WHERE lower(c.analyte) = lower(?))")
+            params.append(analyte)
+        return (f" WHERE {' AND '.join(clauses)}" if clauses else ""), params
 
     def entries(self, record_id: str | None = None, analyte: str | None = None, *,
                 verdict: str | None = None, instrument: str | None = None,
                 date_from: str | None = None, date_to: str | None = None,
-                kind: str | None = None, data: bool = True) -> list[ArchiveEntry]:
-        """Entries in chain order, optionally filtered.
+                kind: str | None = None, data: bool = True, limit: int | None = None,
+                offset: int = 0, after_seq: int | None = None,
+                newest_first: bool = False) -> list[ArchiveEntry]:
+        """Entries in chain order, optionally filtered and paged.
 
         Parameters
         ----------
@@ -396,48 +387,72 @@ class Archive:
         kind : str, optional
             ``issued`` or ``signed``.
         data : bool
-            Read the JSON and PDF bytes; with False they are left empty (a fast listing).
+            Read the JSON and PDF bytes; with False they are left empty and no
+            blob is read (a fast listing).
+        limit, offset : int, optional
+            One page: at most ``limit`` entries after skipping ``offset``.
+        after_seq : int, optional
+            Keyset paging: only entries after this seq (before it with
+            ``newest_first``); faster than a large offset.
+        newest_first : bool
+            Newest entry first.
+
+        Raises
+        ------
+        ValueError
+            If ``limit`` or ``offset`` is negative.
         """
-        clauses, params = [], []
-        for column, value in (("record_id", record_id), ("instrument", instrument)):
-            if value is not None:
-                clauses.append(f"{column} = ? COLLATE NOCASE")
-                params.append(value)
-        for column, value in (("verdict", verdict), ("kind", kind)):
-            if value is not None:
-                clauses.append(f"{column} = ?")
-                params.append(value)
-        if date_from is not None:
-            clauses.append("run_date >= ?")
-            params.append(date_from)
-        if date_to is not None:
-            clauses.append("run_date <= ?")
-            params.append(date_to)
-        if analyte is not None:
-            clauses.append("EXISTS (SELECT 1 FROM curves c WHERE c.seq = entries.seq"
-                           " AND c.analyte = ? COLLATE NOCASE)")
-            params.append(analyte)
-        where = f" WHERE {' AND '.join(clauses)}" if clauses else ""
-        rows = self._conn.execute(f"{self._select(data=data)}{where} ORDER BY seq", params)
-        return [_entry(row) for row in rows]
+        if (limit is not None and limit < 0) or offset < 0:
+            raise ValueError(f"limit and offset must be 0 or more; got {limit}, {offset}")
+        where, params = self._filters(record_id, analyte, verdict, instrument, date_from,
+                                      date_to, kind)
+        if after_seq is not None:
+            where += (" AND " if where else " WHERE ") + (
+                "e.seq < ?" if newest_first else "e.seq > ?")
+            params.append(int(after_seq))
+        order = " ORDER BY e.seq DESC" if newest_first else " ORDER BY e.seq"
+        page = ""
+        if limit is not None or offset:
+            page = " LIMIT ? OFFSET ?"
+            params += [limit if limit is not None else 2**62, offset]
+        rows = self._store.query(f"{SELECT_DATA if data else SELECT_META}{where}{order}{page}",
+                                 params)
+        return [entry_from_row(row) for row in rows]
+
+    def count(self, record_id: str | None = None, analyte: str | None = None, *,
+              verdict: str | None = None, instrument: str | None = None,
+              date_from: str | None = None, date_to: str | None = None,
+              kind: str | None = None) -> int:
+        """How many entries :meth:`entries` would list with these filters (for paging)."""
+        where, params = self._filters(record_id, analyte, verdict, instrument, date_from,
+                                      date_to, kind)
+        return int(self._store.query(f"SELECT count(*) FROM entries e{where}", params)[0][0])
 
     def latest(self, record_id: str) -> ArchiveEntry | None:
         """The newest version of ``record_id`` (case-insensitive), or None."""
-        return self._one("WHERE record_id = ? COLLATE NOCASE ORDER BY seq DESC", (record_id,))
+        return self._one("WHERE lower(e.record_id) = lower(?) ORDER BY e.seq DESC", (record_id,))
 
     def find_digest(self, digest: str) -> ArchiveEntry | None:
         """The entry whose version digest is ``digest`` (full hex), or None."""
-        return self._one("WHERE version_digest = ?", (digest.strip().lower(),))
+        return self._one("WHERE e.version_digest = ?", (digest.strip().lower(),))
+
+    def entry_at(self, seq: int) -> ArchiveEntry | None:
+        """The entry at ``seq`` with its JSON and PDF, or None."""
+        return self._one("WHERE e.seq = ?", (int(seq),))
 
     def head(self) -> tuple[int, str] | None:
         """Seq and entry hash of the newest entry; None when the archive is empty."""
-        row = self._conn.execute(
-            "SELECT seq, entry_hash FROM entries ORDER BY seq DESC LIMIT 1").fetchone()
-        return (int(row[0]), str(row[1])) if row else None
+        rows = self._store.query("SELECT seq, entry_hash FROM entries ORDER BY seq DESC LIMIT 1")
+        return (int(rows[0][0]), str(rows[0][1])) if rows else None
+
+    def figures(self, seq: int) -> list[CurveFigures]:
+        """The curve figures stored for the entry at ``seq``."""
+        return [CurveFigures(*row) for row in self._store.query(
+            f"SELECT {FIGURE_COLUMNS} FROM curves WHERE seq = ? ORDER BY position", (seq,))]
 
     def analytes(self) -> list[str]:
         """Every analyte name in the archive, sorted."""
-        rows = self._conn.execute("SELECT DISTINCT analyte FROM curves ORDER BY analyte")
+        rows = self._store.query("SELECT DISTINCT analyte FROM curves ORDER BY analyte")
         return [r[0] for r in rows]
 
     def curve_history(self, analyte: str, *, instrument: str | None = None,
@@ -453,19 +468,18 @@ class Archive:
             "SELECT e.record_id, e.seq, e.run_date, e.instrument,"
             " (SELECT l.roles FROM entries l WHERE l.content_digest = e.content_digest"
             "  ORDER BY l.seq DESC LIMIT 1),"
-            " c.position, c.analyte, c.model, c.weighting, c.verdict, c.slope, c.intercept,"
-            " c.residual_sd, c.concentration_unit, c.response_unit"
+            f" {', '.join('c.' + c.strip() for c in FIGURE_COLUMNS.split(','))}"
             " FROM curves c JOIN entries e ON e.seq = c.seq"
-            " WHERE c.analyte = ? COLLATE NOCASE"
+            " WHERE lower(c.analyte) = lower(?)"
             " AND e.seq = (SELECT min(f.seq) FROM entries f"
             "              WHERE f.content_digest = e.content_digest)"
         )
         params: list[Any] = [analyte]
         if instrument is not None:
-            query += " AND e.instrument = ? COLLATE NOCASE"
+            query += " AND lower(e.instrument) = lower(?)"
             params.append(instrument)
         out = []
-        for row in self._conn.execute(query + " ORDER BY e.seq, c.position", params):
+        for row in self._store.query(query + " ORDER BY e.seq, c.position", params):
             figures = CurveFigures(*row[5:])
             out.append(ArchivedCurve(row[0], row[1], row[2], row[3], tuple(_loads_list(row[4])),
                                      figures))
@@ -482,68 +496,63 @@ class Archive:
         name = history[0].figures.analyte if history else analyte
         return analyte_trend(history, analyte=name, baseline=baseline, **options)
 
-    # -- verifying -------------------------------------------------------------------------
+    # -- verifying (calib.archive.audit) ---------------------------------------------------
 
-    def verify_chain(self, *, expected_head: str | None = None) -> ChainReport:
-        """Recompute every digest and entry hash and compare the indexes with the JSON.
+    def verify_chain(self, *, expected_head: str | None = None, deep: bool = True,
+                     pdfs: bool = False,
+                     progress: Callable[[int], None] | None = None) -> ChainReport:
+        """Verify the whole archive (see :func:`calib.archive.audit.verify_chain`).
 
-        Parameters
-        ----------
-        expected_head : str, optional
-            An entry hash noted earlier: it must still be in the chain, or
-            entries were cut off the end or the file was replaced.
-
-        Returns
-        -------
-        ChainReport
-            Every problem names the entry (seq) it concerns.
+        ``deep=False`` is the hash pass only (no blob read, ≥ 5,000 entries/s);
+        the default also checks every entry's JSON and PDF digests and indexes,
+        and ``pdfs=True`` each PDF's attached record data as well.
         """
-        problems: list[ChainProblem] = []
-        with self._snapshot():
-            present = {r[0] for r in self._conn.execute(
-                "SELECT name FROM sqlite_master WHERE type = 'trigger'")}
-            missing = [t for t in _TRIGGERS if t not in present]
-            if missing:
-                problems.append(ChainProblem(None, "append-only triggers are missing ("
-                                             + ", ".join(missing) + "): the archive was opened "
-                                             "for editing outside calib"))
-            figures: dict[int, list[tuple[Any, ...]]] = {}
-            for row in self._conn.execute(
-                    "SELECT seq, position, analyte, model, weighting, verdict, slope, intercept,"
-                    " residual_sd, concentration_unit, response_unit FROM curves"
-                    " ORDER BY seq, position"):
-                figures.setdefault(row[0], []).append(tuple(row[1:]))
-            count, prev_seq, prev_hash = 0, 0, GENESIS_HASH
-            hashes = set()
-            for row in self._conn.execute(f"{self._select(data=True)} ORDER BY seq"):
-                entry = _entry(row)
-                count += 1
-                problems += check_entry(entry, prev_seq, prev_hash, figures.pop(entry.seq, []))
-                prev_seq, prev_hash = entry.seq, entry.entry_hash
-                hashes.add(entry.entry_hash)
-        for seq in sorted(figures):
-            problems.append(ChainProblem(seq, "figures are stored for an entry that does not "
-                                              "exist (the entry was removed)"))
-        if expected_head is not None and expected_head.strip().lower() not in hashes:
-            problems.append(ChainProblem(None, f"the noted head {expected_head.strip()[:16]}… is "
-                                               "not in the archive: entries were removed from "
-                                               "its end, or the file was replaced"))
-        return ChainReport(count, prev_seq or None, prev_hash, tuple(problems))
+        from calib.archive.audit import verify_chain
+
+        return verify_chain(self, expected_head=expected_head, deep=deep, pdfs=pdfs,
+                            progress=progress)
+
+    def verify_entry(self, digest: str) -> EntryReport:
+        """Verify one version against the archive without a pass over the chain.
+
+        See :func:`calib.archive.audit.verify_entry`: the entry, its links to the
+        entries before and after it, its JSON and PDF, the append-only triggers
+        and the head receipt — a few indexed reads, whatever the archive's size.
+        """
+        from calib.archive.audit import verify_entry
+
+        return verify_entry(self, digest)
+
+
+def _same_or_refuse(existing: ArchiveEntry, item: PreparedEntry) -> ArchiveEntry:
+    differs = [name for name, same in (("JSON", existing.json == item.json),
+                                       ("PDF", existing.pdf == item.pdf),
+                                       ("kind", existing.kind == item.kind)) if not same]
+    if not differs:
+        return existing
+    raise ArchiveError(
+        f"version {existing.version_digest[:16]} of record {existing.record_id} is already "
+        f"archived as entry seq {existing.seq} with a different {' and '.join(differs)}; "
+        "an archived entry is never replaced")
 
 
 def _json_list(values: Sequence[str]) -> str:
     return json.dumps(list(values), ensure_ascii=False, separators=(",", ":"))
 
 
-def _entry(row: Sequence[Any]) -> ArchiveEntry:
-    meta = dict(zip(_META_COLUMNS, row))
+def entry_from_row(row: Sequence[Any]) -> ArchiveEntry:
+    """An :class:`ArchiveEntry` from a row of ``SELECT_META`` (or ``SELECT_DATA``)."""
+    meta = dict(zip(META_COLUMNS, row))
+    data = len(row) > len(META_COLUMNS)
     return ArchiveEntry(
-        seq=meta["seq"], record_id=meta["record_id"], version_digest=meta["version_digest"],
-        content_digest=meta["content_digest"], kind=meta["kind"], created_at=meta["created_at"],
+        seq=int(meta["seq"]), record_id=meta["record_id"],
+        version_digest=meta["version_digest"], content_digest=meta["content_digest"],
+        kind=meta["kind"], created_at=meta["created_at"],
         analytes=tuple(_loads_list(meta["analytes"])), verdict=meta["verdict"],
-        json=_blob(row[-2]), pdf=_blob(row[-1]), prev_hash=meta["prev_hash"],
-        entry_hash=meta["entry_hash"], run_date=meta["run_date"],
+        json=_blob(row[-2]) if data else b"", pdf=_blob(row[-1]) if data else b"",
+        prev_hash=meta["prev_hash"], entry_hash=meta["entry_hash"], run_date=meta["run_date"],
         instrument=meta["instrument"], roles=tuple(_loads_list(meta["roles"])),
+        pdf_sha256=meta["pdf_sha256"],
     )
 
 
@@ -561,5 +570,3 @@ def _loads_list(text: Any) -> list[str]:
     except (TypeError, ValueError):
         return [str(text)]
     return [str(v) for v in value] if isinstance(value, list) else [str(value)]
-
-

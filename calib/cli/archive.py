@@ -1,7 +1,8 @@
-"""``calib archive``: list, show, export and verify the archive of calibration records.
+"""``calib archive``: list, show, export, verify, anchor and migrate the archive of records.
 
-The archive file comes from ``--archive DB`` or the ``CALIB_ARCHIVE``
-environment variable.  With neither, the command stops with exit code 2 (a
+The archive comes from ``--archive DB`` or the ``CALIB_ARCHIVE`` environment
+variable: a path is an SQLite file, ``postgresql://…`` a PostgreSQL database.
+With neither, the command stops with exit code 2 (a
 usage error: say which archive); an archive path that does not exist is exit
 code 3 (reading never creates an archive, so a typing mistake is not taken
 for an empty one).
@@ -31,17 +32,27 @@ examples:
   calib archive list --analyte Nitrate-N --from 2026-11-01 --to 2026-11-30 --verdict accepted
   calib archive show CR-3F9A1C2B77DE
   calib archive export CR-3F9A1C2B77DE --out exported/ --all-versions
+  calib archive list --limit 50 --offset 100   (one page: entries 101-150)
   calib archive verify                       (with CALIB_ARCHIVE=records.sqlite set)
+  calib archive verify --fast                hash pass only: links and entry hashes
+  calib archive verify --record CR-3F9A1C2B77DE   one record only, in milliseconds
+  calib archive head                         the head receipt line for the lab's logbook
+  calib archive migrate records.sqlite postgresql://calib@lab-db/records
 
-exit codes: 0 done / archive intact, 5 archive damaged or altered, 2 usage error
-            (no archive named), 3 archive or record not found or unreadable
+The archive is an SQLite file or a postgresql:// URL.  Each append moves its head receipt
+(records.sqlite.head.json beside the file, or where CALIB_ARCHIVE_HEAD points), which
+verify checks whenever it is present.
+
+exit codes: 0 done / archive intact, 2 usage error (no archive named), 3 archive or record
+            not found or unreadable, 5 archive damaged, altered or rolled back
 """
 
 
 def add_archive_option(parser: argparse.ArgumentParser, *, help_text: str | None = None) -> None:
     """``--archive DB``, falling back on the ``CALIB_ARCHIVE`` environment variable."""
     parser.add_argument("--archive", metavar="DB", help=help_text or (
-        f"archive file (SQLite); default: the {ENV_VAR} environment variable"))
+        "archive: an SQLite file or a postgresql://… URL; default: the "
+        f"{ENV_VAR} environment variable"))
 
 
 def archive_path(args: argparse.Namespace) -> str | None:
@@ -96,6 +107,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--verdict", choices=("accepted", "rejected", "needs-review"),
                    help="only records with this run verdict")
     p.add_argument("--instrument", metavar="I", help="only runs on this instrument")
+    p.add_argument("--limit", type=_count, metavar="N",
+                   help="list at most N entries (one page)")
+    p.add_argument("--offset", type=_count, default=0, metavar="N",
+                   help="skip the first N matching entries (with --limit: the next page)")
     p.add_argument("--json", action="store_true", help="print the entries as a JSON list")
     p = action("show", "show a record's versions, curves and signatures", run_show)
     p.add_argument("record_id", metavar="RECORD_ID", help="record id, e.g. CR-3F9A1C2B77DE")
@@ -108,6 +123,32 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     p = action("verify", "check every entry and the hash chain of the archive", run_verify)
     p.add_argument("--head", metavar="HASH",
                    help="an entry hash noted earlier; it must still be in the archive")
+    p.add_argument("--fast", action="store_true",
+                   help="hash pass only: every link and entry hash, no JSON or PDF read")
+    p.add_argument("--record", metavar="RECORD_ID",
+                   help="check only this record's versions: each entry, its links on either "
+                        "side, its JSON and PDF, and the head receipt (no pass over the chain)")
+    action("head", "print the archive's head and its receipt line for the logbook", run_head)
+    p = actions.add_parser(
+        "migrate", help="copy an archive to another file or database and prove the chain equal",
+        description="Copy every entry of SRC, as is, into the new or empty archive DST (an "
+                    "SQLite file or a postgresql:// URL), then verify DST and compare every "
+                    "entry hash with SRC.", epilog=EXAMPLES,
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("source", metavar="SRC", help="the archive to copy")
+    p.add_argument("target", metavar="DST", help="the new archive (must be empty)")
+    p.add_argument("--target-head", metavar="FILE",
+                   help="head receipt of DST (default: beside an SQLite DST; none for a "
+                        "database, whose head is printed for the logbook)")
+    add_debug(p)
+    p.set_defaults(handler=run_migrate)
+
+
+def _count(text: str) -> int:
+    """argparse type: a whole number, 0 or more."""
+    if not text.isdigit():
+        raise argparse.ArgumentTypeError(f"expected a whole number 0 or more, got {text!r}")
+    return int(text)
 
 
 def _open(path: str) -> Any:
@@ -120,15 +161,19 @@ def run_list(args: argparse.Namespace) -> int:
     path = archive_path(args)
     if path is None:
         return report_no_archive()
+    filters = {"analyte": args.analyte, "verdict": args.verdict, "instrument": args.instrument,
+               "date_from": args.date_from, "date_to": args.date_to}
     with _open(path) as archive:
-        found = archive.entries(analyte=args.analyte, verdict=args.verdict,
-                                instrument=args.instrument, date_from=args.date_from,
-                                date_to=args.date_to, data=False)
+        found = archive.entries(**filters, data=False, limit=args.limit, offset=args.offset)
+        paged = args.limit is not None or args.offset
+        total = archive.count(**filters) if paged else len(found)
     if args.json:
         json.dump([e.summary() for e in found], sys.stdout, ensure_ascii=False, indent=1)
         sys.stdout.write("\n")
         return 0
     print(_entries_table(found) if found else f"No entries in {path} match.")
+    if paged and found:
+        print(f"(entries {args.offset + 1}–{args.offset + len(found)} of {total} matching)")
     return 0
 
 
@@ -240,16 +285,102 @@ def run_verify(args: argparse.Namespace) -> int:
     path = archive_path(args)
     if path is None:
         return report_no_archive()
+    if args.record:
+        return _verify_record(path, args.record)
     with _open(path) as archive:
-        report = archive.verify_chain(expected_head=args.head)
+        report = archive.verify_chain(expected_head=args.head, deep=not args.fast,
+                                      pdfs=not args.fast)
+        where = archive.location
     head = (f"head seq {report.head_seq}, entry hash {report.head_hash}"
             if report.head_seq else "empty")
+    what = ("every link and entry hash intact (hash pass only: JSON and PDFs not read)"
+            if args.fast else "every digest, PDF and the hash chain intact")
     if report.ok:
-        print(f"Archive {path}: {report.entries} entries, every digest and the hash chain "
-              f"intact; {head} (note the head to detect later truncation)")
+        print(f"Archive {where}: {report.entries} entries, {what}; {head}")
+        print(_receipt_note(report))
         return 0
-    print(f"Archive {path}: {len(report.problems)} problem"
+    print(f"Archive {where}: {len(report.problems)} problem"
           f"{'s' if len(report.problems) != 1 else ''} in {report.entries} entries; {head}")
     for problem in report.problems:
         print(f"  {problem}")
     return EXIT_INTEGRITY
+
+
+def _verify_record(path: str, record_id: str) -> int:
+    from calib.archive import ArchiveError
+
+    with _open(path) as archive:
+        versions = archive.entries(record_id=record_id, data=False)
+        if not versions:
+            raise ArchiveError(f"no record {record_id} in {archive.location}")
+        reports = [archive.verify_entry(v.version_digest) for v in versions]
+        where = archive.location
+    problems = list(dict.fromkeys(str(p) for r in reports for p in r.problems))
+    seqs = ", ".join(str(v.seq) for v in versions)
+    if not problems:
+        print(f"Record {versions[0].record_id} in {where}: entries seq {seqs} intact, each "
+              "linked to its neighbours, JSON and PDF matching; "
+              + ("head receipt matches." if reports[-1].receipt else "no head receipt kept."))
+        return 0
+    print(f"Record {versions[0].record_id} in {where}: {len(problems)} problem"
+          f"{'s' if len(problems) != 1 else ''} (entries seq {seqs})")
+    for problem in problems:
+        print(f"  {problem}")
+    return EXIT_INTEGRITY
+
+
+def logbook_note(archive: Any) -> str:
+    """The line a command that appended prints for the lab's logbook ("" without a receipt).
+
+    For ``calib check --archive`` and ``calib sign --archive``: call it on the open archive
+    right after ``append``.
+    """
+    receipt = getattr(archive, "last_receipt", None)
+    if receipt is None:
+        return ""
+    return f"For the logbook: {receipt.logbook_line()}"
+
+
+def _receipt_note(report: Any) -> str:
+    if report.receipt is not None:
+        return (f"Head receipt {report.receipt_path} (seq {report.receipt.seq}, written "
+                f"{report.receipt.written_at}) matches the archive.")
+    if report.receipt_path is not None:
+        return (f"No head receipt at {report.receipt_path} yet: note the head above in the "
+                "lab's logbook to detect later truncation.")
+    return ("This archive keeps no head receipt (set CALIB_ARCHIVE_HEAD): note the head above "
+            "in the lab's logbook to detect later truncation.")
+
+
+def run_head(args: argparse.Namespace) -> int:
+    from calib.archive.audit import receipt_problems
+
+    path = archive_path(args)
+    if path is None:
+        return report_no_archive()
+    with _open(path) as archive:
+        head = archive.head()
+        problems = receipt_problems(archive)
+        receipt_path = archive.receipt_path
+        archive_id = archive.archive_id
+    if head is None:
+        print(f"Archive {archive_id} is empty.")
+    else:
+        print(f"calib archive head {archive_id}: seq {head[0]}, entry hash {head[1]}")
+    if problems:
+        for problem in problems:
+            print(f"  {problem}")
+        return EXIT_INTEGRITY
+    print(f"(head receipt: {receipt_path or 'none kept; set CALIB_ARCHIVE_HEAD'}; copy the line "
+          "above into the lab's logbook)")
+    return 0
+
+
+def run_migrate(args: argparse.Namespace) -> int:
+    from calib.archive.migrate import migrate_archive
+
+    report = migrate_archive(args.source, args.target, target_receipt=args.target_head)
+    print(f"Copied {report.entries} entries from {report.source} to {report.target}.")
+    print(f"Both hold the same chain: every seq has the same entry hash; head seq "
+          f"{report.head_seq}, entry hash {report.head_hash}. The copy verifies in full.")
+    return 0

@@ -72,3 +72,21 @@ def variant(record: Record, minutes: int) -> Record:
     when = (T0 + timedelta(minutes=minutes)).strftime("%Y-%m-%dT%H:%M:%SZ")
     signatures = [{**s, "signed_at": when} for s in record.body["signatures"]]
     return Record({**record.body, "created_at": when, "signatures": signatures})
+
+
+def pdf_for(record: Record) -> bytes:
+    """A one-page PDF carrying ``record``'s JSON as its attached record data, as every calib
+    record PDF does (a stand-in for the rendered record: the archive checks the attachment)."""
+    import io
+
+    from reportlab.pdfgen.canvas import Canvas
+
+    from calib.report.embed import embed_file
+
+    out = io.BytesIO()
+    canvas = Canvas(out, invariant=1)
+    canvas.drawString(72, 720, f"Stand-in page for {record.record_id}")
+    embed_file(canvas, name="calib-record.json", data=record.canonical,
+               mime_type="application/json")
+    canvas.save()
+    return out.getvalue()

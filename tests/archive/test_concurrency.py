@@ -10,7 +10,6 @@ from __future__ import annotations
 import multiprocessing
 import os
 import signal
-import sqlite3
 import sys
 import time
 
@@ -18,7 +17,7 @@ import pytest
 
 from calib.archive import Archive
 from calib.record import Record
-from tests.archive.helpers import FAKE_PDF, make_record, variant
+from tests.archive.helpers import make_record, pdf_for, variant
 
 pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="SIGKILL is POSIX only")
 
@@ -29,30 +28,31 @@ CTX = multiprocessing.get_context("fork" if sys.platform.startswith("linux") els
 def _write_many(path: str, records: list[bytes]) -> None:
     with Archive(path) as archive:
         for data in records:
-            archive.append(Record.from_json(data), FAKE_PDF, kind="issued")
+            record = Record.from_json(data)
+            archive.append(record, pdf_for(record), kind="issued")
 
 
 def _stall_mid_transaction(path: str, ready) -> None:
     """Append, but stop for good after the entry row is written and before the commit."""
-    from calib.archive import store
+    insert = Archive._insert
 
-    insert = store._insert_figures
-
-    def insert_then_stall(conn, seq, curves):
-        insert(conn, seq, curves)
+    def insert_then_stall(self, entry, curves):
+        insert(self, entry, curves)
         ready.set()
         time.sleep(60)
 
-    store._insert_figures = insert_then_stall
+    Archive._insert = insert_then_stall
+    record = make_record(seed=999)
     with Archive(path) as archive:
-        archive.append(make_record(seed=999), FAKE_PDF, kind="issued")
+        archive.append(record, pdf_for(record), kind="issued")
 
 
 def _append_forever(path: str, started) -> None:
     base = make_record(seed=5000)
     with Archive(path) as archive:
         for i in range(100_000):
-            archive.append(variant(base, i), FAKE_PDF, kind="issued")
+            record = variant(base, i)
+            archive.append(record, pdf_for(record), kind="issued")
             started.set()
 
 
@@ -62,9 +62,9 @@ def _run(target, *args):
     return process
 
 
-def test_four_writers_lose_nothing(tmp_path):
-    # All four also race to create the archive file itself.
-    path = str(tmp_path / "shared.sqlite")
+def test_four_writers_lose_nothing(location):
+    # All four also race to create the archive itself.
+    path = location
     base = make_record()
     batches = [[variant(base, w * EACH + i).canonical for i in range(EACH)]
                for w in range(WORKERS)]
@@ -82,10 +82,11 @@ def test_four_writers_lose_nothing(tmp_path):
     assert report.ok, report.problems
 
 
-def test_writer_killed_before_commit_leaves_no_partial_entry(tmp_path):
-    path = str(tmp_path / "a.sqlite")
+def test_writer_killed_before_commit_leaves_no_partial_entry(location):
+    path = location
+    first, second = make_record(seed=1), make_record(seed=2)
     with Archive(path) as archive:
-        archive.append(make_record(seed=1), FAKE_PDF, kind="issued")
+        archive.append(first, pdf_for(first), kind="issued")
     ready = CTX.Event()
     process = _run(_stall_mid_transaction, path, ready)
     assert ready.wait(60), "the writer never reached the middle of its transaction"
@@ -97,15 +98,14 @@ def test_writer_killed_before_commit_leaves_no_partial_entry(tmp_path):
         assert len(archive) == 1
         assert archive.verify_chain().ok
         # The lock died with the writer: the next append goes straight on from seq 1.
-        assert archive.append(make_record(seed=2), FAKE_PDF, kind="issued").seq == 2
+        assert archive.append(second, pdf_for(second), kind="issued").seq == 2
         assert archive.verify_chain().ok
-    con = sqlite3.connect(path)
-    assert con.execute("SELECT count(*) FROM curves").fetchone()[0] == 2
-    con.close()
+        assert archive.storage.query("SELECT count(*) FROM curves")[0][0] == 2
+        assert archive.storage.query("SELECT count(*) FROM entry_data")[0][0] == 2
 
 
-def test_writer_killed_in_a_tight_loop_leaves_a_verifiable_archive(tmp_path):
-    path = str(tmp_path / "a.sqlite")
+def test_writer_killed_in_a_tight_loop_leaves_a_verifiable_archive(location):
+    path = location
     started = CTX.Event()
     process = _run(_append_forever, path, started)
     assert started.wait(60)
@@ -120,7 +120,8 @@ def test_writer_killed_in_a_tight_loop_leaves_a_verifiable_archive(tmp_path):
     with Archive(path, create=False) as archive:
         report = archive.verify_chain()
         count = len(archive)
-        archive.append(make_record(seed=1), FAKE_PDF, kind="issued")
+        record = make_record(seed=1)
+        archive.append(record, pdf_for(record), kind="issued")
         after = archive.verify_chain()
     assert count >= 15 and report.ok and report.entries == count, report.problems
     assert after.ok and after.entries == count + 1

@@ -1,4 +1,8 @@
-"""The archive: append, read back, refuse changes, and find every kind of tampering."""
+"""The archive on both engines: append, read back, page, refuse changes, find tampering.
+
+Every test taking ``location`` runs once on an SQLite file and once on a PostgreSQL
+database (tests/archive/conftest.py); the expected messages are calib's own wording.
+"""
 
 from __future__ import annotations
 
@@ -11,7 +15,8 @@ import pytest
 
 from calib.archive import GENESIS_HASH, Archive, ArchiveError, compute_entry_hash
 from calib.record import Record
-from tests.archive.helpers import FAKE_PDF, make_record
+from tests.archive.helpers import FAKE_PDF, make_record, pdf_for
+from tests.archive.tamper import sql_error, tamper
 
 FIXED = datetime(2026, 12, 1, 9, 30, tzinfo=UTC)
 
@@ -25,36 +30,37 @@ def reviewed(record: Record, name: str = "T. Øvergaard") -> Record:
 
 
 @pytest.fixture
-def filled(tmp_path):
+def filled(location):
     """An archive of three issued records and one signed version of the first."""
-    path = tmp_path / "records.sqlite"
     records = [make_record(seed=i, run=i) for i in range(3)]
-    with Archive(path, clock=lambda: FIXED) as archive:
+    with Archive(location, clock=lambda: FIXED) as archive:
         for r in records:
-            archive.append(r, FAKE_PDF, kind="issued")
-        archive.append(reviewed(records[0]), FAKE_PDF + b"v2", kind="signed")
-    return path, records
+            archive.append(r, pdf_for(r), kind="issued")
+        signed = reviewed(records[0])
+        archive.append(signed, pdf_for(signed), kind="signed")
+    return location, records
 
 
-def tamper(path, *statements):
-    """Run SQL on the file as someone going around calib would: triggers dropped first."""
-    con = sqlite3.connect(path)
-    for name, in con.execute("SELECT name FROM sqlite_master WHERE type = 'trigger'").fetchall():
-        con.execute(f"DROP TRIGGER {name}")
-    for sql, *params in statements:
-        con.execute(sql, *params)
-    con.commit()
-    con.close()
+def plain_pdf() -> bytes:
+    """A genuine PDF with no attached record data."""
+    import io
+
+    from reportlab.pdfgen.canvas import Canvas
+
+    out = io.BytesIO()
+    canvas = Canvas(out, invariant=1)
+    canvas.drawString(72, 720, "A page of something else")
+    canvas.save()
+    return out.getvalue()
 
 
 def report_of(path, **kwargs):
     with Archive(path, create=False) as archive:
-        return archive.verify_chain(**kwargs)
+        return archive.verify_chain(pdfs=True, **kwargs)
 
 
 def entry_messages(report):
     return [str(p) for p in report.problems if p.seq is not None]
-
 
 def test_append_and_read_back(filled):
     path, records = filled
@@ -66,7 +72,7 @@ def test_append_and_read_back(filled):
         assert first.record_id == records[0].record_id
         assert first.version_digest == records[0].digest
         assert first.content_digest == records[0].content_digest
-        assert first.json == records[0].canonical and first.pdf == FAKE_PDF
+        assert first.json == records[0].canonical and first.pdf == pdf_for(records[0])
         assert first.analytes == ("Nitrate-N",) and first.verdict == "accepted"
         assert first.run_date == "2026-09-01" and first.instrument.startswith("IC-2")
         assert first.created_at == "2026-12-01T09:30:00Z"
@@ -116,42 +122,71 @@ def test_entry_hash_follows_the_documented_layout(filled):
 def test_same_version_again_is_idempotent_and_different_bytes_are_refused(filled):
     path, records = filled
     with Archive(path) as archive:
-        again = archive.append(records[1], FAKE_PDF, kind="issued")
+        again = archive.append(records[1], pdf_for(records[1]), kind="issued")
         assert again.seq == 2 and len(archive) == 4
         with pytest.raises(ArchiveError, match=r"already archived as entry seq 2 with a "
                                                r"different PDF and kind; an archived entry is "
                                                r"never replaced"):
-            archive.append(records[1], FAKE_PDF + b"other", kind="signed")
+            archive.append(records[1], pdf_for(records[1]) + b"\n", kind="signed")
 
 
-def test_bad_appends_are_refused_with_the_reason(tmp_path):
-    with Archive(tmp_path / "a.sqlite") as archive:
+def test_bad_appends_are_refused_with_the_reason(location):
+    with Archive(location) as archive:
         record = make_record()
         with pytest.raises(ValueError, match="kind must be one of issued, signed; got 'final'"):
-            archive.append(record, FAKE_PDF, kind="final")
+            archive.append(record, pdf_for(record), kind="final")
         with pytest.raises(ArchiveError, match="not a PDF document"):
             archive.append(record, b"<html>", kind="issued")
         with pytest.raises(ArchiveError, match="cannot archive this record: not a calib record"):
             archive.append(Record({"schema": "something/else"}), FAKE_PDF, kind="issued")
+        # The PDF must carry this very version as its attached record data (issue 16).
+        with pytest.raises(ArchiveError, match=f"cannot archive {record.record_id}: the PDF "
+                                               r"cannot be read \(not a readable PDF"):
+            archive.append(record, FAKE_PDF, kind="issued")
+        with pytest.raises(ArchiveError, match=f"cannot archive {record.record_id}: the PDF "
+                                               "carries no record data: it is not this entry's "
+                                               "record PDF"):
+            archive.append(record, plain_pdf(), kind="issued")
+        other = make_record(seed=7)
+        with pytest.raises(ArchiveError, match=f"cannot archive {record.record_id}: the PDF "
+                                               rf"carries other record data \(digest "
+                                               rf"{other.digest[:16]}…\) than this entry: the "
+                                               "PDF was swapped or altered"):
+            archive.append(record, pdf_for(other), kind="issued")
+        # A signed version whose issued version was never archived (issue 16, attack).
+        signed = reviewed(record)
+        with pytest.raises(ArchiveError, match=f"cannot archive a signed version of "
+                                               f"{record.record_id}: its issued version is not "
+                                               "in the archive"):
+            archive.append(signed, pdf_for(signed), kind="signed")
         assert len(archive) == 0
 
 
 def test_update_and_delete_are_refused_by_triggers(filled):
     path, _ = filled
-    con = sqlite3.connect(path)
     refused = {
         "UPDATE entries SET verdict = 'accepted' WHERE seq = 2": "an entry cannot be changed",
         "DELETE FROM entries WHERE seq = 4": "an entry cannot be deleted",
+        "UPDATE entry_data SET pdf = json WHERE seq = 1": "a stored record or PDF cannot be "
+                                                          "changed",
+        "DELETE FROM entry_data WHERE seq = 4": "a stored record or PDF cannot be deleted",
         "UPDATE curves SET slope = 0.3": "figures cannot be changed",
         "DELETE FROM curves": "figures cannot be deleted",
+        "UPDATE archive_meta SET value = 'AR-OTHER'": "the archive identity cannot be changed",
         "INSERT INTO entries SELECT * FROM entries WHERE seq = 1": "must extend the chain head",
-        "INSERT OR REPLACE INTO entries SELECT * FROM entries WHERE seq = 2":
-            "must extend the chain head",
+        "INSERT INTO curves SELECT 2, position + 5, analyte, model, weighting, verdict, slope,"
+        " intercept, residual_sd, concentration_unit, response_unit FROM curves WHERE seq = 1":
+            "figures are added only with their entry",
     }
+    if not path.startswith("postgresql"):
+        refused["INSERT OR REPLACE INTO entries SELECT * FROM entries WHERE seq = 2"] = \
+            "must extend the chain head"
+    else:
+        # PostgreSQL's TRUNCATE skips row triggers; a statement trigger refuses it.
+        refused["TRUNCATE entries CASCADE"] = "calib archive is append-only: entries cannot be " \
+                                             "emptied"
     for sql, message in refused.items():
-        with pytest.raises(sqlite3.DatabaseError, match=message):
-            con.execute(sql)
-    con.close()
+        assert message in sql_error(path, sql), sql
     assert report_of(path).ok
 
 
@@ -167,7 +202,7 @@ def test_edited_json_byte_is_found(filled):
     # One digit of the residual SD, as an editor with a hex viewer would change it.
     at = data.index(b'"residual_sd":0.00') + len(b'"residual_sd":0.00')
     edited = data[:at] + (b"7" if data[at:at + 1] != b"7" else b"8") + data[at + 1:]
-    tamper(path, ("UPDATE entries SET json = ? WHERE seq = 2", (edited,)))
+    tamper(path, ("UPDATE entry_data SET json = ? WHERE seq = 2", (edited,)))
     report = report_of(path)
     assert not report.ok
     assert ("entry seq 2: its JSON does not match its version digest: the record data was "
@@ -182,8 +217,8 @@ def test_edited_number_with_rehashed_digest_is_found(filled):
         body = json.loads(archive.entries()[2].json)
     body["check"]["curves"][0]["coefficients"]["slope"]["estimate"] *= 1.1
     forged = Record(body)
-    tamper(path, ("UPDATE entries SET json = ?, version_digest = ? WHERE seq = 3",
-                  (forged.canonical, forged.digest)))
+    tamper(path, ("UPDATE entry_data SET json = ? WHERE seq = 3", (forged.canonical,)),
+           ("UPDATE entries SET version_digest = ? WHERE seq = 3", (forged.digest,)))
     messages = entry_messages(report_of(path))
     assert "entry seq 3: its entry hash does not match its fields: the entry or its stored hash " \
            "was altered" in messages
@@ -202,7 +237,7 @@ def test_edited_stored_hash_is_found(filled):
 
 def test_deleted_row_is_found(filled):
     path, _ = filled
-    tamper(path, ("DELETE FROM entries WHERE seq = 2",))
+    tamper(path, ("DELETE FROM entry_data WHERE seq = 2",), ("DELETE FROM entries WHERE seq = 2",))
     messages = entry_messages(report_of(path))
     assert "entry seq 3: follows seq 1: seq 2 missing (entries were removed)" in messages
     assert any(m.startswith("entry seq 3: its prev_hash does not match") for m in messages)
@@ -222,8 +257,14 @@ def test_rehashed_index_column_is_found(filled):
               "pdf_sha256": hashlib.sha256(e.pdf).hexdigest()}
     tamper(path, ("UPDATE entries SET verdict = 'rejected', entry_hash = ? WHERE seq = 4",
                   (compute_entry_hash(e.prev_hash, fields),)))
-    assert entry_messages(report_of(path)) == [
-        "entry seq 4: stored verdict 'rejected' does not match its JSON ('accepted')"]
+    messages = entry_messages(report_of(path))
+    assert messages[0] == ("entry seq 4: stored verdict 'rejected' does not match its JSON "
+                           "('accepted')")
+    # Seq 4 is the head: the head receipt written at its append names the old hash.
+    forged = compute_entry_hash(e.prev_hash, fields)
+    assert messages[1].startswith(f"entry seq 4: its entry hash {forged[:16]}… is not the "
+                                  f"{e.entry_hash[:16]}… the head receipt")
+    assert len(messages) == 2
 
 
 def test_edited_trend_figures_are_found(filled):
@@ -236,10 +277,14 @@ def test_edited_trend_figures_are_found(filled):
 def test_truncation_is_found_only_against_a_noted_head(filled):
     path, _ = filled
     noted = report_of(path).head_hash
-    tamper(path, ("DELETE FROM curves WHERE seq = 4",), ("DELETE FROM entries WHERE seq = 4",))
-    report = report_of(path)
-    assert entry_messages(report) == [] and report.head_seq == 3
-    problems = [str(p) for p in report_of(path, expected_head=noted).problems]
+    tamper(path, ("DELETE FROM curves WHERE seq = 4",), ("DELETE FROM entry_data WHERE seq = 4",),
+           ("DELETE FROM entries WHERE seq = 4",))
+    with Archive(path, create=False, head_receipt=None) as archive:
+        # Without the head receipt the chain alone cannot show a cut-off end ...
+        report = archive.verify_chain()
+        assert entry_messages(report) == [] and report.head_seq == 3
+        # ... but a head noted in the logbook can.
+        problems = [str(p) for p in archive.verify_chain(expected_head=noted).problems]
     assert f"the noted head {noted[:16]}… is not in the archive: entries were removed from its " \
            "end, or the file was replaced" in problems
 
@@ -272,22 +317,22 @@ def test_opening_something_else_is_refused(tmp_path):
 
 def test_wal_mode_and_busy_timeout(tmp_path):
     with Archive(tmp_path / "a.sqlite", timeout=7) as archive:
-        con = archive._conn
+        con = archive.storage._conn
         assert con.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
         assert con.execute("PRAGMA busy_timeout").fetchone()[0] == 7000
 
 
-def test_rejected_at_sign_off_is_left_out_of_the_trend(tmp_path):
-    with Archive(tmp_path / "a.sqlite") as archive:
+def test_rejected_at_sign_off_is_left_out_of_the_trend(location):
+    with Archive(location) as archive:
         records = [make_record(seed=i, run=i) for i in range(4)]
         for r in records:
-            archive.append(r, FAKE_PDF, kind="issued")
+            archive.append(r, pdf_for(r), kind="issued")
         rejected = Record({**records[1].body, "signatures": [
             *records[1].body["signatures"],
             {"role": "rejected", "name": "T. Øvergaard", "signed_at": "2026-12-02T10:00:00Z",
              "meaning": "Reviewed: this calibration is rejected and must not be used",
              "previous_digest": records[1].digest}]})
-        archive.append(rejected, FAKE_PDF, kind="signed")
+        archive.append(rejected, pdf_for(rejected), kind="signed")
         history = archive.curve_history("NITRATE-N")
         trend = archive.trend("nitrate-n", baseline=3)
     # One point per record (the signed version does not count twice), in run-date order.
@@ -299,7 +344,7 @@ def test_rejected_at_sign_off_is_left_out_of_the_trend(tmp_path):
 
 def test_deleted_first_row_is_found(filled):
     path, _ = filled
-    tamper(path, ("DELETE FROM entries WHERE seq = 1",))
+    tamper(path, ("DELETE FROM entry_data WHERE seq = 1",), ("DELETE FROM entries WHERE seq = 1",))
     messages = entry_messages(report_of(path))
     assert messages[0] == "entry seq 2: is the first entry: seq 1 missing (entries were removed)"
     assert messages[1] == ("entry seq 2: its prev_hash does not match the entry hash of the start "
@@ -316,7 +361,8 @@ def test_a_writer_holding_the_lock_too_long_gives_a_clear_error(tmp_path):
         busy = pytest.raises(ArchiveError, match=r"a.sqlite: the archive is busy or locked "
                                                  r"\(database is locked\)")
         with Archive(path, timeout=0.2) as archive, busy:
-            archive.append(make_record(), FAKE_PDF, kind="issued")
+            record = make_record()
+            archive.append(record, pdf_for(record), kind="issued")
     finally:
         holder.execute("ROLLBACK")
         holder.close()

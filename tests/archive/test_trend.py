@@ -21,7 +21,7 @@ from calib.archive import (
     trend_document,
 )
 from calib.checks.profile import load_profile
-from tests.archive.helpers import FAKE_PDF, make_record
+from tests.archive.helpers import make_record, pdf_for
 
 UNIT = ControlLimits(0.0, 1.0, 10)  # values are then z-scores
 
@@ -181,7 +181,7 @@ def test_sensitivity_loss_is_flagged_before_a_curve_fails(tmp_path):
         for run in range(24):
             slope = 0.25 * (1 + rng.normal(0, 0.006)) * 0.985 ** max(0, run - 9)
             record = make_record(slope=slope, seed=300 + run, run=run, profile=profile)
-            archive.append(record, FAKE_PDF, kind="issued")
+            archive.append(record, pdf_for(record), kind="issued")
             verdicts.append(record.body["check"]["verdict"])
         trend = archive.trend("Nitrate-N")
     first_failure = verdicts.index("rejected")

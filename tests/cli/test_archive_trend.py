@@ -13,7 +13,7 @@ from pypdf import PdfReader
 from calib.archive import Archive
 from calib.cli.main import main
 from calib.record import Record
-from tests.archive.helpers import FAKE_PDF, LEVELS, make_record
+from tests.archive.helpers import LEVELS, make_record, pdf_for
 
 NITRATE_CSV = """\
 "Nitrate-N calibration, ion chromatography"
@@ -61,9 +61,11 @@ def archived(tmp_path, capsys):
     with Archive(db) as archive:
         first = archive.entries()[0]
         record = Record.from_json(first.json)
-        archive.append(reviewed(record), first.pdf, kind="signed")
+        signed = reviewed(record)
+        archive.append(signed, pdf_for(signed), kind="signed")
         for i in (1, 2):
-            archive.append(make_record(seed=i, run=i), FAKE_PDF, kind="issued")
+            other = make_record(seed=i, run=i)
+            archive.append(other, pdf_for(other), kind="issued")
     return db, record, code, out
 
 
@@ -149,11 +151,16 @@ def _drop_triggers_and(db, sql):
 def test_verify(archived, capsys, tmp_path):
     db, record, *_ = archived
     code, out, _ = cli(capsys, "archive", "verify", "--archive", db)
-    assert code == 0 and out.startswith(f"Archive {db}: 4 entries, every digest and the hash "
-                                        "chain intact; head seq 4, entry hash ")
+    assert code == 0 and out.startswith(f"Archive {db}: 4 entries, every digest, PDF and the "
+                                        "hash chain intact; head seq 4, entry hash ")
+    assert f"Head receipt {db}.head.json (seq 4, written " in out
+    code, out, _ = cli(capsys, "archive", "verify", "--archive", db, "--fast")
+    assert code == 0 and out.startswith(f"Archive {db}: 4 entries, every link and entry hash "
+                                        "intact (hash pass only: JSON and PDFs not read)")
     code, out, _ = cli(capsys, "archive", "verify", "--archive", db, "--head", "ab" * 32)
+    # Exit code 5: an integrity failure (SPEC §7).
     assert code == 5 and "the noted head abababababababab… is not in the archive" in out
-    _drop_triggers_and(db, "UPDATE entries SET json = CAST(replace(CAST(json AS TEXT), "
+    _drop_triggers_and(db, "UPDATE entry_data SET json = CAST(replace(CAST(json AS TEXT), "
                            "'R. Okafor', 'R. Okafoe') AS BLOB) WHERE seq = 2")
     code, out, _ = cli(capsys, "archive", "verify", "--archive", db)
     assert code == 5
@@ -185,8 +192,8 @@ def _series(db, *, runs, drift_from=None, seed=5):
         for run in range(runs):
             loss = 0.985 ** max(0, run - drift_from + 1) if drift_from is not None else 1.0
             slope = 0.25 * (1 + rng.normal(0, 0.006)) * loss
-            archive.append(make_record(slope=slope, seed=400 + run, run=run), FAKE_PDF,
-                           kind="issued")
+            record = make_record(slope=slope, seed=400 + run, run=run)
+            archive.append(record, pdf_for(record), kind="issued")
 
 
 def test_trend_in_control_exits_0(tmp_path, capsys):

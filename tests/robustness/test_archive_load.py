@@ -1,4 +1,4 @@
-"""The archive under load: 8 writers × 50 records while readers verify the chain meanwhile."""
+"""The archive under load on both engines: 8 writers × 50 records while readers verify."""
 
 from __future__ import annotations
 
@@ -10,7 +10,8 @@ import pytest
 
 from calib.archive import Archive
 from calib.record import Record
-from tests.archive.helpers import FAKE_PDF, make_record, variant
+from tests.archive.conftest import location, postgres_base  # noqa: F401 - both engines
+from tests.archive.helpers import make_record, pdf_for, variant
 
 pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="fork is POSIX only")
 
@@ -22,7 +23,8 @@ def _write(path: str, records: list[bytes], errors) -> None:
     try:
         with Archive(path) as archive:
             for data in records:
-                archive.append(Record.from_json(data), FAKE_PDF, kind="issued")
+                record = Record.from_json(data)
+                archive.append(record, pdf_for(record), kind="issued")
     except Exception as exc:
         errors.put(f"writer: {type(exc).__name__}: {exc}")
         raise
@@ -42,11 +44,12 @@ def _verify_until(path: str, stop, errors, rounds) -> None:
         time.sleep(0.01)
 
 
-def test_eight_writers_and_verifying_readers_lose_nothing(tmp_path):
-    path = str(tmp_path / "busy.sqlite")
+def test_eight_writers_and_verifying_readers_lose_nothing(location):
+    path = location
     base = make_record()
     with Archive(path) as archive:  # the readers open with create=False
-        archive.append(variant(base, 100_000), FAKE_PDF, kind="issued")
+        first = variant(base, 100_000)
+        archive.append(first, pdf_for(first), kind="issued")
     batches = [[variant(base, w * EACH + i).canonical for i in range(EACH)]
                for w in range(WRITERS)]
     errors, rounds, stop = CTX.Queue(), CTX.Queue(), CTX.Event()

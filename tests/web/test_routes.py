@@ -16,7 +16,7 @@ from starlette.testclient import TestClient
 
 from calib.web import create_app
 from calib.web.security import CSRF_FIELD, safe_filename
-from tests.archive.helpers import FAKE_PDF, make_record, variant
+from tests.archive.helpers import make_record, pdf_for, variant
 
 ROOT = Path(__file__).resolve().parents[2]
 RUNS = ROOT / "sample_runs"
@@ -70,7 +70,8 @@ def fill_archive(path: Path, n: int = 4) -> None:
 
     with Archive(path) as store:
         for i in range(n):
-            store.append(variant(make_record(seed=i, run=i), i), FAKE_PDF, kind="issued")
+            record = variant(make_record(seed=i, run=i), i)
+            store.append(record, pdf_for(record), kind="issued")
 
 
 # ---------------------------------------------------------------------- check a run

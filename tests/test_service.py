@@ -175,7 +175,7 @@ def test_sign_and_verify_find_the_lab_template_in_the_record(tmp_path, capsys):
     template.unlink()  # years later: the file is gone, the record still carries its layout
     capsys.readouterr()
     assert main(["verify", str(v1)]) == 0
-    assert capsys.readouterr().out.startswith(f"{v1}: intact\n")
+    assert capsys.readouterr().out.startswith(f"{v1}: intact, origin not verified throughout")
     v2 = tmp_path / "v2.pdf"
     assert main(["sign", str(v1), "--role", "reviewed", "--name", "T. Reviewer",
                  "--out", str(v2)]) == 0
@@ -264,7 +264,7 @@ def _pdf(folder: Path, data: bytes) -> Path:
 
 
 def test_quantify_and_trend_write_their_pdfs_with_the_chosen_template(tmp_path):
-    from tests.archive.helpers import make_record
+    from tests.archive.helpers import make_record, pdf_for
     from tests.quantify.helpers import write_run_csv
 
     template = lab_template(tmp_path)
@@ -277,8 +277,8 @@ def test_quantify_and_trend_write_their_pdfs_with_the_chosen_template(tmp_path):
 
     with Archive(tmp_path / "a.sqlite") as archive:
         for run in range(4):
-            archive.append(make_record(slope=0.25 + 0.001 * run, seed=40 + run, run=run),
-                           b"%PDF-1.4 stand-in", kind="issued")
+            record = make_record(slope=0.25 + 0.001 * run, seed=40 + run, run=run)
+            archive.append(record, pdf_for(record), kind="issued")
     found = service.trend(tmp_path / "a.sqlite", "Nitrate-N", pdf=tmp_path / "t.pdf",
                           template=template)
     assert found.written == (tmp_path / "t.pdf",) and len(found.trend.points) == 4

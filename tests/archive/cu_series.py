@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from calib.archive import Archive
-from tests.archive.helpers import FAKE_PDF, make_record
+from tests.archive.helpers import make_record, pdf_for
 
 ANALYTE = "Cu 324.754"
 INSTRUMENT = "ICP-OES-2"
@@ -38,6 +38,6 @@ def fill_cu_archive(path, days: int = 12) -> list[str]:
     with Archive(path) as archive:
         for day, slope in enumerate(cu_slopes(days)):
             record = cu_record(day, slope, intercept=0.05 if day in REVIEW_DAYS else 0.0)
-            archive.append(record, FAKE_PDF, kind="issued")
+            archive.append(record, pdf_for(record), kind="issued")
             verdicts.append(record.body["check"]["verdict"])
     return verdicts

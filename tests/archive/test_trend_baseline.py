@@ -38,7 +38,7 @@ from tests.archive.cu_series import (
     cu_slopes,
     fill_cu_archive,
 )
-from tests.archive.helpers import FAKE_PDF
+from tests.archive.helpers import pdf_for
 
 STAMP = "2026-12-02T07:00:00Z"
 
@@ -273,7 +273,7 @@ def test_later_runs_are_judged_against_the_frozen_limits(cu_archive, tmp_path):
         # Four more days in control, then the sensitivity falls 6 %: within the spread of
         # the whole unscreened series, far outside the frozen limits.
         for day, slope in enumerate([0.251, 0.249, 0.2505, 0.2495, 0.235], start=12):
-            archive.append(cu_record(day, slope), FAKE_PDF, kind="issued")
+            archive.append((rec := cu_record(day, slope)), pdf_for(rec), kind="issued")
         trend = archive.trend(ANALYTE, instrument=INSTRUMENT, frozen=frozen)
     lim = trend.chart("slope").limits
     assert lim == frozen.limits["slope"]  # fixed: the new curves do not move them

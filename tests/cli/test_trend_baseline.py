@@ -10,7 +10,7 @@ from pypdf import PdfReader
 from calib.archive import Archive
 from calib.cli.main import main
 from tests.archive.cu_series import ANALYTE, INSTRUMENT, cu_record, fill_cu_archive
-from tests.archive.helpers import FAKE_PDF
+from tests.archive.helpers import pdf_for
 
 
 @pytest.fixture(autouse=True)
@@ -89,7 +89,7 @@ def test_freeze_then_monitor(db, capsys, tmp_path):
     # Phase II: later runs against the frozen limits; a 6 % loss of sensitivity is flagged.
     with Archive(db) as archive:
         for day, slope in enumerate([0.251, 0.249, 0.235], start=12):
-            archive.append(cu_record(day, slope), FAKE_PDF, kind="issued")
+            archive.append((rec := cu_record(day, slope)), pdf_for(rec), kind="issued")
     code, out, _ = cli(capsys, "trend", ANALYTE, "--archive", db, "--instrument", INSTRUMENT,
                        "--json")
     doc = json.loads(out)

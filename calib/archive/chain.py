@@ -293,7 +293,9 @@ def pdf_problem(pdf: bytes, version_digest: str) -> str | None:
 
     A calib record PDF carries its record JSON as an attached file; the
     attachment's SHA-256 must be the entry's version digest, so a PDF swapped
-    for another record's (or any other PDF) is found.
+    for another record's (or any other PDF) is found.  A digitally signed
+    record PDF carries its issued JSON and one signature entry per incremental
+    update; its version is the issued record plus those entries.
     """
     from calib.report.embed import read_back
 
@@ -307,10 +309,26 @@ def pdf_problem(pdf: bytes, version_digest: str) -> str | None:
                if name.endswith(".json") for data in values]
     if version_digest in carried:
         return None
+    signed_version = _signed_version_digest(pdf)
+    if signed_version == version_digest:
+        return None
     if carried:
         return (f"the stored PDF carries other record data (digest {carried[0][:16]}…) than "
                 "this entry: the PDF was swapped or altered")
     return "the stored PDF carries no record data: it is not this entry's record PDF"
+
+
+def _signed_version_digest(pdf: bytes) -> str | None:
+    """The version digest of a digitally signed record PDF (issued JSON plus the entries its
+    PDF signatures carry, one incremental update each); None when it has none or is unreadable.
+    """
+    from calib.errors import CalibError
+    from calib.record.recordfile import record_from_pdf
+
+    try:
+        return record_from_pdf(pdf).digest
+    except (CalibError, ValueError):
+        return None
 
 
 def check_content(entry: ArchiveEntry, stored_figures: list[tuple[Any, ...]], *,

@@ -413,7 +413,8 @@ def test_archive_entry_and_chain(signed):
         report = verify_file(signed["paths"][1], keyring=signed["ring"], archive=archive)
         assert report.ok, report.problems
         assert f"this version is entry seq 2 of the archive {db}, byte for byte" in report.notes
-        assert f"the hash chain of the archive {db} verifies (2 entries)" in report.notes
+        assert (f"entry seq 2 of the archive {db} is linked to its neighbours in the hash chain "
+                "(head seq 2; head receipt matches)") in report.notes
         older = verify_file(signed["paths"][0], archive=archive, keyring=signed["ring"])
         assert older.ok
         assert (f"the archive {db} holds a later version of {v1.record_id}: entry seq 2 "
@@ -515,10 +516,11 @@ class FakeArchive:
     def latest(self, record_id):
         return self.entry
 
-    def verify_chain(self):
+    def verify_entry(self, digest):
         from types import SimpleNamespace
 
-        return SimpleNamespace(ok=not self.problems, problems=self.problems, entries=1)
+        return SimpleNamespace(ok=not self.problems, problems=self.problems, head_seq=4,
+                               receipt=None)
 
 
 def test_archive_copy_that_differs(signed):

@@ -81,16 +81,21 @@ def check_file(
 def _slope_history(archive: str | Path | None, profile: Profile, analytes: Sequence[str], *,
                    model: str | None, weighting: str | None) -> dict[str, SlopeHistory] | None:
     """Earlier accepted slopes from the archive, when the profile compares with them."""
-    if archive is None or not os.path.isfile(archive) or not any(
+    if archive is None or not any(
             r.id == "slope-reference" and r.params.get("recent_curves") for r in profile.rules):
+        return None
+    from calib.archive.backends import is_database_url, redact
+
+    if not (is_database_url(archive) or os.path.isfile(archive)):
         return None
     from calib.archive import Archive
     from calib.checks.history import slope_history
 
+    source = redact(str(archive)) if is_database_url(archive) else os.path.basename(archive)
     model, weighting = model or profile.model, weighting or profile.weighting
     with Archive(archive, create=False) as store:
         return {a: slope_history(store.curve_history(a), model=model, weighting=weighting,
-                                 source=os.path.basename(archive)) for a in analytes}
+                                 source=source) for a in analytes}
 
 
 def issue_record(

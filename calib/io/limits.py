@@ -19,13 +19,13 @@ never run: calib reads the values the spreadsheet program saved.
 from __future__ import annotations
 
 import io
-import re
 import struct
 import zipfile
 from dataclasses import dataclass
 
 from calib.errors import InputError
 from calib.io.files import RawFile
+from calib.io.sheetscan import XLSX_COLUMNS, Extent, OdsScanner, XlsxScanner
 
 __all__ = [
     "MAX_CELLS",
@@ -57,12 +57,7 @@ _FEATURES = {
     "merged": (b"<mergeCell ", b"number-rows-spanned=", b"number-columns-spanned="),
 }
 _ROW_TAGS = (b"<row ", b"<row>", b":row ", b"<table:table-row")
-# The row number of an .xlsx row and the columns past Z of its cells: calamine builds a
-# dense grid up to the farthest cell, so one stray cell at XFD1048576 would ask for
-# 17 billion cells.  (calamine's own .ods reader stops at 100 million cells.)
-# Spreadsheet programs write r first; literal prefixes keep these scans fast.
-_ROW_NUMBERS = (re.compile(rb'<row r="(\d+)"'), re.compile(rb':row r="(\d+)"'))
-_WIDE_CELLS = (re.compile(rb'<c r="([A-Z]{2,3})\d'), re.compile(rb':c r="([A-Z]{2,3})\d'))
+_UNICODE_MARKS = (b"\xff\xfe", b"\xfe\xff", b"\x00<", b"<\x00")
 
 
 @dataclass(frozen=True)
@@ -118,61 +113,74 @@ def inspect_archive(raw: RawFile, *, what: str) -> ArchiveFacts | None:
         for info in archive.infolist():
             macros = macros or "vbaproject" in info.filename.casefold()
             sheet = _is_sheet(info.filename)
-            rows = last_row = 0
-            widest = 1
+            rows = 0
+            scanner = _scanner(info.filename) if sheet else None
             tail = b""
             try:
                 with archive.open(info) as member:
                     while chunk := member.read(_CHUNK):
+                        if scanner is not None and not tail and chunk.startswith(_UNICODE_MARKS):
+                            raise InputError(
+                                f"cannot be read as a workbook (the sheet {info.filename} is "
+                                f"not stored as UTF-8 XML); expected {what} saved by a "
+                                f"spreadsheet program", file=raw.given)
                         total += len(chunk)
                         if total > MAX_UNZIPPED_BYTES:
                             raise _too_big(raw, what)
-                        if not sheet:
+                        if scanner is None:
                             continue
                         rows += sum(chunk.count(tag) for tag in _ROW_TAGS)
                         window = tail + chunk
                         for feature, needles in _FEATURES.items():
                             if not found[feature] and any(n in window for n in needles):
                                 found[feature] = True
-                        for pattern in _ROW_NUMBERS:
-                            numbers = pattern.findall(window)
-                            if numbers:
-                                last_row = max(last_row, max(map(int, numbers)))
-                        for pattern in _WIDE_CELLS:
-                            for letters in set(pattern.findall(window)):
-                                widest = max(widest, _column_number(letters))
+                        scanner.feed(chunk)
                         tail = chunk[-_OVERLAP:]
+                    extent = scanner.close() if scanner is not None else Extent()
             except InputError:
                 raise
+            except ValueError as exc:  # the .ods scanner: XML not well formed, or a DTD
+                raise InputError(
+                    f"cannot be read as a workbook ({info.filename}: {exc}; the file is damaged "
+                    f"or was not written by a spreadsheet program); expected {what} saved by a "
+                    f"spreadsheet program",
+                    file=raw.given,
+                ) from None
             except Exception as exc:  # noqa: BLE001 - zlib.error, BadZipFile, unsupported methods
                 raise InputError(
                     f"cannot be read as a workbook (damaged member {info.filename}: {exc}); "
                     f"expected {what} saved by a spreadsheet program",
                     file=raw.given,
                 ) from None
-            rows = max(rows, last_row)
+            rows = max(rows, extent.rows)
             if rows > MAX_ROWS:
                 raise InputError(
                     f"a sheet of the workbook has {rows:,} rows; calib reads at most "
                     f"{MAX_ROWS:,} rows per sheet (split the export)",
                     file=raw.given,
                 )
-            if rows * widest > MAX_CELLS:
-                raise _too_many_cells(raw, rows, widest)
+            if isinstance(scanner, XlsxScanner) and extent.columns > XLSX_COLUMNS:
+                raise InputError(
+                    f"the sheet {info.filename} names column {extent.columns:,} (cell "
+                    f"{extent.corner}), past the {XLSX_COLUMNS:,} columns an .xlsx sheet can "
+                    f"hold; expected {what} saved by a spreadsheet program",
+                    file=raw.given,
+                )
+            if rows * max(extent.columns, 1) > MAX_CELLS:
+                raise _too_many_cells(raw, Extent(rows, max(extent.columns, 1)))
             most_rows = max(most_rows, rows)
     return ArchiveFacts(total, most_rows, macros=macros, **found)
 
 
-def _column_number(letters: bytes) -> int:
-    number = 0
-    for letter in letters:
-        number = number * 26 + letter - 64
-    return number
+def _scanner(name: str) -> XlsxScanner | OdsScanner:
+    return OdsScanner() if name == "content.xml" else XlsxScanner()
 
 
-def _too_many_cells(raw: RawFile, rows: int, columns: int) -> InputError:
+def _too_many_cells(raw: RawFile, extent: Extent) -> InputError:
+    rows, columns = extent.rows, extent.columns
     return InputError(
-        f"a sheet of the workbook reaches row {rows:,} and column {columns:,}; calib reads at "
+        f"a sheet of the workbook reaches row {rows:,} and column {columns:,} (cell "
+        f"{extent.corner}); calib reads at "
         f"most {MAX_CELLS:,} cells per sheet (delete stray cells far from the table, or split "
         f"the export)",
         file=raw.given,
@@ -405,4 +413,4 @@ def check_xls(raw: RawFile, *, what: str = "an .xls workbook") -> None:
         raise _damaged_xls(raw, f"a cell record names column {columns:,}, past the 256 columns "
                                 f"an .xls sheet can hold")
     if rows * columns > MAX_CELLS:
-        raise _too_many_cells(raw, rows, columns)
+        raise _too_many_cells(raw, Extent(rows, columns))

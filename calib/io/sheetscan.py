@@ -1,0 +1,278 @@
+"""How far a workbook's sheet XML reaches, read from its attributes before any reader allocates.
+
+A spreadsheet reader builds a dense grid up to the farthest cell a sheet
+names, so one stray cell written ``<c r="XFD1048576">`` in a 5 kB file would
+ask for billions of cells.  The scanners here read the positions a sheet
+declares, whatever the attribute order, quoting, spacing or namespace prefix
+(``<x:c t="n" r='XFD1048576'>``), and whatever a repeat count says in an
+OpenDocument sheet, so that :mod:`calib.io.limits` can refuse the sheet with
+a clear message first.
+
+* ``.xlsx``: every attribute named ``r`` (a cell or row position, with or
+  without a namespace prefix) and the ``ref`` of ``<dimension>``.  The scan
+  works on bytes with regular expressions, cut at tag boundaries, because a
+  full XML parse of a 60,000-row sheet costs more than the read itself; a
+  value holding an entity or character reference (``&#88;FD1``) is decoded
+  before it is read.  The scan may over-count (a comment that looks like a
+  cell), never under-count: it can refuse a file, never let one past.
+* ``.ods``: ``content.xml`` is parsed with expat, streaming, with document
+  type declarations (and so every entity definition) refused.  Only rows
+  and cells holding content count, as the reader skips trailing empty ones.
+"""
+
+from __future__ import annotations
+
+import re
+import xml.parsers.expat
+from dataclasses import dataclass
+from html import unescape
+from operator import itemgetter
+
+__all__ = ["Extent", "OdsScanner", "XlsxScanner", "column_letters"]
+
+XLSX_COLUMNS = 16_384
+"""Columns an .xlsx sheet can hold (A to XFD)."""
+
+# An attribute named r (any namespace prefix), its value up to the closing quote.
+LONGEST_TAG = 1_000_000
+"""Longest tag (with its attributes) a sheet may hold; spreadsheet programs write short ones."""
+
+# A complete tag: its closing > is outside every quoted attribute value.
+_TAG = re.compile(rb'<[^"\'>]*(?:(?:"[^"]*"|\'[^\']*\')[^"\'>]*)*>')
+# Written without a look-behind for the character before r (a literal first letter keeps the
+# scan fast): an attribute whose name merely ends in r can only add to the count.
+_R_VALUE = re.compile(rb'r\s*=\s*["\']\s*\$?([A-Za-z]*)\$?0*(\d{0,30})')
+_R_WITH_REFERENCE = re.compile(rb'[\s:]r\s*=\s*["\']([^"\'<]*&[^"\'<]*)["\']')
+_DIMENSION = re.compile(rb'<(?:[A-Za-z_][\w.-]*:)?dimension\b([^<]*)')
+_REF = re.compile(rb'[\s:]ref\s*=\s*["\']([^"\'<]*)["\']')
+_POSITION = re.compile(r"\s*\$?([A-Za-z]*)\$?(\d*)\s*")
+
+
+def column_letters(number: int) -> str:
+    """Spreadsheet letters of a 1-based column number.
+
+    Examples
+    --------
+    >>> column_letters(1), column_letters(28), column_letters(16384)
+    ('A', 'AB', 'XFD')
+    """
+    letters = ""
+    while number > 0:
+        number, rest = divmod(number - 1, 26)
+        letters = chr(65 + rest) + letters
+    return letters
+
+
+def _column_number(letters: str) -> int:
+    number = 0
+    for letter in letters[:8].upper():  # eight letters already far exceed any sheet
+        number = number * 26 + ord(letter) - 64
+    return number
+
+
+@dataclass(frozen=True)
+class Extent:
+    """The farthest row and column a sheet names (1-based; 0 when it names none).
+
+    Attributes
+    ----------
+    rows, columns : int
+        Farthest row and column.
+    """
+
+    rows: int = 0
+    columns: int = 0
+
+    @property
+    def corner(self) -> str:
+        """The far corner of the grid as a cell reference (``"XFD1048576"``)."""
+        return f"{column_letters(self.columns)}{self.rows}"
+
+    @property
+    def cells(self) -> int:
+        """Cells of the dense grid a reader would build."""
+        return self.rows * self.columns
+
+
+class XlsxScanner:
+    """Feed an .xlsx sheet part in chunks; :attr:`extent` says how far it reaches.
+
+    Examples
+    --------
+    >>> scan = XlsxScanner()
+    >>> scan.feed(b'<row spans="1:1" r="7"><x:c t="n" r = \\'XFD7\\'><v>1</v></x:c></row>')
+    >>> scan.close().corner
+    'XFD7'
+    """
+
+    def __init__(self) -> None:
+        self._carry = b""
+        self._rows = 0
+        self._columns = 0
+
+    def feed(self, chunk: bytes) -> None:
+        """Scan the complete tags of ``chunk`` (a tag cut at its end waits for the next).
+
+        Raises
+        ------
+        ValueError
+            When one tag runs past :data:`LONGEST_TAG` bytes.
+        """
+        buffer = self._carry + chunk
+        self._carry = b""
+        cut = buffer.rfind(b"<")
+        if cut < 0:
+            return  # text between tags only
+        if _TAG.match(buffer, cut):
+            self._scan(buffer)
+            return
+        self._scan(buffer[:cut])
+        self._carry = buffer[cut:]
+        if len(self._carry) > LONGEST_TAG:
+            raise ValueError(f"one XML tag runs past {LONGEST_TAG:,} bytes")
+
+    def close(self) -> Extent:
+        """Scan what is left and return the extent."""
+        if self._carry:
+            self._scan(self._carry)
+            self._carry = b""
+        return Extent(self._rows, self._columns)
+
+    def _note(self, letters: str, digits: str) -> None:
+        if digits:
+            self._rows = max(self._rows, int(digits[:30]))  # 30 digits already refuse
+        if letters:
+            self._columns = max(self._columns, _column_number(letters))
+
+    def _scan(self, part: bytes) -> None:
+        found = _R_VALUE.findall(part)
+        if found:
+            farthest = max(map(int, filter(None, map(itemgetter(1), found))), default=0)
+            self._rows = max(self._rows, farthest)
+            for letters in set(map(itemgetter(0), found)):
+                self._note(letters.decode(), "")
+        if b"&" in part:
+            for value in _R_WITH_REFERENCE.findall(part):
+                self._position(value)
+        for attributes in _DIMENSION.findall(part):
+            for value in _REF.findall(attributes):
+                for end in value.split(b":"):
+                    self._position(end)
+
+    def _position(self, value: bytes) -> None:
+        text = unescape(value.decode("utf-8", "replace"))
+        match = _POSITION.fullmatch(text)
+        if match:
+            self._note(*match.groups())
+
+
+def _repeat(attributes: dict[str, str], name: str) -> int:
+    value = attributes.get(name, "1")
+    try:
+        return max(int(value), 1)
+    except ValueError:
+        return 1
+
+
+class OdsScanner:
+    """Feed an .ods ``content.xml`` in chunks; :attr:`extent` is its largest table's reach.
+
+    Raises
+    ------
+    ValueError
+        From :meth:`feed` or :meth:`close` when the XML is not well formed or
+        declares a document type (entities); the message says where.
+
+    Examples
+    --------
+    >>> scan = OdsScanner()
+    >>> scan.feed(b'<t:table xmlns:t="urn:oasis:names:tc:opendocument:xmlns:table:1.0">'
+    ...           b'<t:table-row t:number-rows-repeated="3"><t:table-cell '
+    ...           b't:number-columns-repeated="4"><p>x</p></t:table-cell></t:table-row>'
+    ...           b'<t:table-row t:number-rows-repeated="1000000"><t:table-cell/>'
+    ...           b'</t:table-row></t:table>')
+    >>> scan.close()
+    Extent(rows=3, columns=4)
+    """
+
+    _TABLE = "urn:oasis:names:tc:opendocument:xmlns:table:1.0"
+
+    def __init__(self) -> None:
+        parser = xml.parsers.expat.ParserCreate(namespace_separator=" ")
+        parser.StartElementHandler = self._start
+        parser.EndElementHandler = self._end
+        parser.StartDoctypeDeclHandler = self._doctype
+        parser.EntityDeclHandler = self._doctype
+        parser.buffer_text = True
+        self._parser = parser
+        self._rows = self._columns = 0
+        self._row = 0  # rows seen in the current table
+        self._row_repeat = 1
+        self._column = 0
+        self._cell: tuple[int, int] | None = None  # (column, repeat) of an open cell
+        self._row_last_column = 0
+        self._depth_in_cell = 0
+
+    def _doctype(self, *_args: object) -> None:
+        raise ValueError("the XML declares a document type or entities, which calib refuses")
+
+    def _start(self, name: str, attributes: dict[str, str]) -> None:
+        table = self._TABLE + " "
+        if self._cell is not None:
+            self._depth_in_cell += 1
+            self._content()
+            return
+        if name == table + "table":
+            self._row = 0
+        elif name == table + "table-row":
+            self._row_repeat = _repeat(attributes, table + "number-rows-repeated")
+            self._column = 0
+            self._row_last_column = 0
+        elif name in (table + "table-cell", table + "covered-table-cell"):
+            repeat = _repeat(attributes, table + "number-columns-repeated")
+            self._cell = (self._column, repeat)
+            if (table + "value-type") in attributes or (
+                    "urn:org:documentfoundation:names:experimental:calc:xmlns:calcext:1.0 "
+                    "value-type") in attributes or (table + "formula") in attributes:
+                self._content()
+
+    def _content(self) -> None:
+        if self._cell is None:
+            return
+        column, repeat = self._cell
+        self._row_last_column = max(self._row_last_column, column + repeat)
+
+    def _end(self, name: str) -> None:
+        table = self._TABLE + " "
+        if self._cell is not None:
+            if self._depth_in_cell:
+                self._depth_in_cell -= 1
+                return
+            column, repeat = self._cell
+            self._column = column + repeat
+            self._cell = None
+            return
+        if name == table + "table-row":
+            if self._row_last_column:
+                self._rows = max(self._rows, self._row + self._row_repeat)
+                self._columns = max(self._columns, self._row_last_column)
+            self._row += self._row_repeat
+
+    def _fail(self, exc: xml.parsers.expat.ExpatError) -> ValueError:
+        return ValueError(f"the XML is not well formed ({xml.parsers.expat.errors.messages[exc.code]}"
+                          f" at line {exc.lineno}, column {exc.offset})")
+
+    def feed(self, chunk: bytes) -> None:
+        """Parse the next part of the document."""
+        try:
+            self._parser.Parse(chunk, False)
+        except xml.parsers.expat.ExpatError as exc:
+            raise self._fail(exc) from None
+
+    def close(self) -> Extent:
+        """End the document and return the extent of its largest table."""
+        try:
+            self._parser.Parse(b"", True)
+        except xml.parsers.expat.ExpatError as exc:
+            raise self._fail(exc) from None
+        return Extent(self._rows, self._columns)

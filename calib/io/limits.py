@@ -28,13 +28,17 @@ from calib.io.files import RawFile
 from calib.io.sheetscan import XLSX_COLUMNS, Extent, OdsScanner, XlsxScanner
 
 __all__ = [
+    "LARGEST_VALUE",
     "MAX_CELLS",
+    "MAX_COLUMNS",
     "MAX_ROWS",
     "MAX_UNZIPPED_BYTES",
     "ArchiveFacts",
     "check_compound",
+    "check_magnitudes",
     "check_sheet_size",
     "check_text_rows",
+    "check_text_width",
     "check_xls",
     "inspect_archive",
 ]
@@ -47,6 +51,17 @@ MAX_ROWS = 2_000_000
 
 MAX_CELLS = 40_000_000
 """Most cells (rows × columns of the used range) read from one sheet."""
+
+MAX_COLUMNS = 16_384
+"""Most cells in one line of a text file (as many columns as an .xlsx sheet holds)."""
+
+LARGEST_VALUE = 1e30
+"""Largest magnitude of a concentration or response; non-zero values must exceed its inverse.
+
+Weighted least squares squares responses and multiplies them by weights such as
+1/x², so a value of 1e308 (or 1e-300 as a weight's base) overflows floating point.
+No measurement in a laboratory comes within many decades of these bounds.
+"""
 
 _CHUNK = 1 << 20
 _OVERLAP = 64
@@ -230,6 +245,71 @@ def check_text_rows(lines: int, *, file: str) -> None:
             f"export)",
             file=file,
         )
+
+
+def check_text_width(text: str, delimiter: str, *, file: str) -> None:
+    """Refuse a text file with a line of more than :data:`MAX_COLUMNS` cells, before splitting it.
+
+    Counting delimiters costs little; splitting a line of a million cells would
+    build a million strings.  Delimiters inside quotes are counted too, so the
+    check may refuse early, never late.
+
+    Examples
+    --------
+    >>> check_text_width("a,b\n" + "," * 20_000 + "\n", ",", file="wide.csv")
+    Traceback (most recent call last):
+    ...
+    calib.errors.InputError: wide.csv, row 2: the line holds 20,001 cells separated by ','; calib reads at most 16,384 columns (a damaged file, or not a table?)
+    """
+    if text.count(delimiter) < MAX_COLUMNS:
+        return
+    for number, line in enumerate(text.split("\n"), start=1):
+        if len(line) >= MAX_COLUMNS and (cells := line.count(delimiter) + 1) > MAX_COLUMNS:
+            raise InputError(
+                f"the line holds {cells:,} cells separated by {delimiter!r}; calib reads at "
+                f"most {MAX_COLUMNS:,} columns (a damaged file, or not a table?)",
+                file=file, row=number,
+            )
+
+
+_VALUES = (("concentration", "concentration"), ("response", "response"),
+           ("is_response", "internal-standard response"),
+           ("analyte_response", "analyte response"))
+
+
+def check_magnitudes(points: object, *, file: str) -> None:
+    """Refuse a concentration or response that is not finite or outside the range the fit can use.
+
+    Parameters
+    ----------
+    points : iterable of Point
+        The points read.
+    file : str
+        The file, for messages.
+
+    Raises
+    ------
+    InputError
+        Naming the value and its cell, when a value is NaN, infinite, larger than
+        :data:`LARGEST_VALUE` or non-zero and smaller than its inverse.
+    """
+    low = 1.0 / LARGEST_VALUE
+    for point in points:  # type: ignore[attr-defined]
+        for name, words in _VALUES:
+            value = getattr(point, name, None)
+            if value is None:
+                continue
+            size = abs(value)
+            if size <= LARGEST_VALUE and (size >= low or size == 0.0):
+                continue
+            where = f"in the row of {point.source_cell}" if name != "response" else (
+                f"in {point.source_cell}")
+            raise InputError(
+                f"found the {words} {value:g} {where}; expected a finite value of magnitude "
+                f"between {low:g} and {LARGEST_VALUE:g} (or zero): larger or smaller values "
+                f"overflow the fit (check the cell, or change the unit)",
+                file=file,
+            )
 
 
 # --- Excel 97-2003 (.xls): a compound file holding a BIFF8 record stream ---------------------

@@ -17,6 +17,7 @@ import io
 import sys
 import zipfile
 from collections.abc import Callable
+from xml.etree.ElementTree import canonicalize
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
@@ -117,13 +118,20 @@ def _openpyxl(rows: list[list[object]], *, edit: Callable | None = None) -> byte
 
 
 def _restamp(data: bytes) -> bytes:
-    """Rewrite a zip with fixed timestamps and metadata so the bytes are reproducible."""
+    """Rewrite a zip with fixed timestamps, metadata and XML spelling so the bytes are reproducible.
+
+    openpyxl spells the same XML differently with and without lxml installed (``<a/>`` or
+    ``<a />``, where namespaces are declared), so every XML member is rewritten in its
+    canonical form (W3C Canonical XML 2.0, :func:`xml.etree.ElementTree.canonicalize`).
+    """
     src = zipfile.ZipFile(io.BytesIO(data))
     members = {}
     for info in src.infolist():
         body = src.read(info)
         if info.filename == "docProps/core.xml":
             body = b""
+        elif info.filename.endswith((".xml", ".rels")):
+            body = canonicalize(body.decode("utf-8")).encode("utf-8")
         members[info.filename] = body
     members = {k: v for k, v in members.items() if v}
     return _zip(members)
@@ -257,6 +265,27 @@ def _stray_cell() -> bytes:
     return _hand_xlsx(sheet)
 
 
+def _stray_cell_written(tail: bytes, *, prefix: bytes = b"") -> bytes:
+    """The ordinary table plus one stray cell spelled ``tail`` (elements under ``prefix``)."""
+    rows = _inline_rows(_table())
+    if prefix:
+        rows = rows.replace(b"<row", b"<" + prefix + b"row").replace(b"</row", b"</" + prefix + b"row")
+        rows = rows.replace(b"<c ", b"<" + prefix + b"c ").replace(b"</c>", b"</" + prefix + b"c>")
+        rows = rows.replace(b"<v>", b"<" + prefix + b"v>").replace(b"</v>", b"</" + prefix + b"v>")
+        rows = rows.replace(b"<is>", b"<" + prefix + b"is>").replace(b"</is>", b"</" + prefix + b"is>")
+        rows = rows.replace(b"<t>", b"<" + prefix + b"t>").replace(b"</t>", b"</" + prefix + b"t>")
+        opening = (b'<?xml version="1.0" encoding="UTF-8"?><x:worksheet xmlns:x="http://schemas.'
+                   b'openxmlformats.org/spreadsheetml/2006/main"><x:sheetData>')
+        return _hand_xlsx(opening + rows + tail + b"</x:sheetData></x:worksheet>")
+    return _hand_xlsx(_SHEET_OPEN + b"<sheetData>" + rows + tail + b"</sheetData></worksheet>")
+
+
+def _utf16_sheet() -> bytes:
+    sheet = (_SHEET_OPEN.replace(b"UTF-8", b"UTF-16") + b"<sheetData>" + _inline_rows(_table())
+             + b"</sheetData></worksheet>")
+    return _hand_xlsx(b"\xff\xfe" + sheet.decode().encode("utf-16-le"))
+
+
 def _missing_shared_string() -> bytes:
     rows = _table()
     sheet = (_SHEET_OPEN + b"<sheetData>" + _inline_rows(rows)[:-6]
@@ -295,6 +324,66 @@ def _xls_truncated() -> bytes:
     return xls.read_bytes()[:4096]
 
 
+_ODS_NS = (b'xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
+           b'xmlns:table="urn:oasis:names:tc:opendocument:xmlns:table:1.0" '
+           b'xmlns:text="urn:oasis:names:tc:opendocument:xmlns:text:1.0" office:version="1.2"')
+
+
+def _ods_cell(value: object) -> str:
+    if isinstance(value, str):
+        return f'<table:table-cell office:value-type="string"><text:p>{value}</text:p></table:table-cell>'
+    return (f'<table:table-cell office:value-type="float" office:value="{value}">'
+            f'<text:p>{value}</text:p></table:table-cell>')
+
+
+def _hand_ods(body: bytes) -> bytes:
+    """A minimal OpenDocument spreadsheet written by hand, so content.xml can be anything."""
+    content = (b'<?xml version="1.0" encoding="UTF-8"?><office:document-content ' + _ODS_NS
+               + b'><office:body><office:spreadsheet>' + body)
+    manifest = (b'<?xml version="1.0" encoding="UTF-8"?><manifest:manifest xmlns:manifest="urn:'
+                b'oasis:names:tc:opendocument:xmlns:manifest:1.0" manifest:version="1.2">'
+                b'<manifest:file-entry manifest:full-path="/" manifest:media-type="application/'
+                b'vnd.oasis.opendocument.spreadsheet"/><manifest:file-entry manifest:full-path='
+                b'"content.xml" manifest:media-type="text/xml"/></manifest:manifest>')
+    buf = io.BytesIO()
+    with zipfile.ZipFile(buf, "w") as zf:
+        stored = zipfile.ZipInfo("mimetype", STAMP)  # first and uncompressed, as the format asks
+        zf.writestr(stored, b"application/vnd.oasis.opendocument.spreadsheet")
+        for name, data in (("content.xml", content), ("META-INF/manifest.xml", manifest)):
+            info = zipfile.ZipInfo(name, STAMP)
+            info.compress_type = zipfile.ZIP_DEFLATED
+            zf.writestr(info, data)
+    return buf.getvalue()
+
+
+def _ods_rows(rows: list[list[object]]) -> bytes:
+    return "".join("<table:table-row>" + "".join(_ods_cell(v) for v in row) + "</table:table-row>"
+                   for row in rows).encode()
+
+
+def _ods_unterminated() -> bytes:
+    """A sheet whose table is never closed (``</table:table>`` missing); the document ends."""
+    return _hand_ods(b'<table:table table:name="Run">' + _ods_rows(_table() * 4)
+                     + b"</office:spreadsheet></office:body></office:document-content>")
+
+
+def _ods_repeated() -> bytes:
+    """One number repeated over 100,000 columns of 1,000,000 rows: 10^11 cells in 1 kB."""
+    return _hand_ods(b'<table:table table:name="Run">' + _ods_rows(_table())
+                     + b'<table:table-row table:number-rows-repeated="1000000">'
+                       b'<table:table-cell table:number-columns-repeated="100000" '
+                       b'office:value-type="float" office:value="1"><text:p>1</text:p>'
+                       b'</table:table-cell></table:table-row>'
+                       b"</table:table></office:spreadsheet></office:body>"
+                       b"</office:document-content>")
+
+
+def _ods_good() -> bytes:
+    return _hand_ods(b'<table:table table:name="Run">' + _ods_rows(_table())
+                     + b"</table:table></office:spreadsheet></office:body>"
+                       b"</office:document-content>")
+
+
 def _bom_in_middle() -> bytes:
     rows = _curve()
     rows[4] = "\ufeff" + rows[4]
@@ -329,6 +418,22 @@ SMALL: dict[str, Callable[[], bytes]] = {
     "compound_file_directory_in_a_circle.xls": _ole_circular,
     "password_protected_workbook_named_xls.xls": _ole_encrypted,
     "truncated_xls.xls": _xls_truncated,
+    "truncated_xls_where_the_reader_panics.xls": lambda: (
+        HERE.parents[2] / "sample_runs" / "kestrel_kx214_plasma_2026-12-09.xls").read_bytes()[:6656],
+    "stray_cell_attributes_in_another_order.xlsx": lambda: _stray_cell_written(
+        b'<row spans="1:1" r="1048576"><c t="n" r="XFD1048576"><v>1</v></c></row>'),
+    "stray_cell_with_namespace_prefix.xlsx": lambda: _stray_cell_written(
+        b'<x:row spans="1:1" r="1048576"><x:c t="n" r="XFD1048576"><x:v>1</x:v></x:c></x:row>',
+        prefix=b"x:"),
+    "stray_cell_in_single_quotes_with_spaces.xlsx": lambda: _stray_cell_written(
+        b"<row r = '1048576' ><c t='n'\n r\t=\t'XFD1048576'><v>1</v></c></row>"),
+    "stray_cell_written_with_a_character_reference.xlsx": lambda: _stray_cell_written(
+        b'<row r="&#49;048576"><c t="n" r="&#88;FD&#49;048576"><v>1</v></c></row>'),
+    "stray_cell_after_a_quoted_closing_bracket.xlsx": lambda: _stray_cell_written(
+        b'<row r="12"><c t="n" s=">" r="XFD1048576"><v>1</v></c></row>'),
+    "sheet_xml_in_utf16.xlsx": _utf16_sheet,
+    "ods_table_never_closed.ods": _ods_unterminated,
+    "ods_one_cell_repeated_over_a_billion_cells.ods": _ods_repeated,
     "xml_entity_expansion_bomb.xlsx": _entity_bomb,
     "stray_cell_in_last_row_and_column.xlsx": _stray_cell,
     "headers_only.csv": lambda: _csv([]),

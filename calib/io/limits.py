@@ -256,7 +256,7 @@ def check_text_width(text: str, delimiter: str, *, file: str) -> None:
 
     Examples
     --------
-    >>> check_text_width("a,b\n" + "," * 20_000 + "\n", ",", file="wide.csv")
+    >>> check_text_width("a,b" + chr(10) + "," * 20_000, ",", file="wide.csv")
     Traceback (most recent call last):
     ...
     calib.errors.InputError: wide.csv, row 2: the line holds 20,001 cells separated by ','; calib reads at most 16,384 columns (a damaged file, or not a table?)
@@ -278,7 +278,7 @@ _VALUES = (("concentration", "concentration"), ("response", "response"),
 
 
 def check_magnitudes(points: object, *, file: str) -> None:
-    """Refuse a concentration or response that is not finite or outside the range the fit can use.
+    """Refuse a concentration or response that is infinite or outside the range the fit can use.
 
     Parameters
     ----------
@@ -290,15 +290,15 @@ def check_magnitudes(points: object, *, file: str) -> None:
     Raises
     ------
     InputError
-        Naming the value and its cell, when a value is NaN, infinite, larger than
+        Naming the value and its cell, when a value is infinite, larger than
         :data:`LARGEST_VALUE` or non-zero and smaller than its inverse.
     """
     low = 1.0 / LARGEST_VALUE
     for point in points:  # type: ignore[attr-defined]
         for name, words in _VALUES:
             value = getattr(point, name, None)
-            if value is None:
-                continue
+            if value is None or value != value:
+                continue  # no value (NaN marks a missing one, judged elsewhere)
             size = abs(value)
             if size <= LARGEST_VALUE and (size >= low or size == 0.0):
                 continue

@@ -174,6 +174,13 @@ def _repeat(attributes: dict[str, str], name: str) -> int:
         return 1
 
 
+_VALUE_ATTRIBUTES = (
+    "urn:oasis:names:tc:opendocument:xmlns:office:1.0 value-type",
+    "urn:org:documentfoundation:names:experimental:calc:xmlns:calcext:1.0 value-type",
+    "urn:oasis:names:tc:opendocument:xmlns:table:1.0 formula",
+)
+
+
 class OdsScanner:
     """Feed an .ods ``content.xml`` in chunks; :attr:`extent` is its largest table's reach.
 
@@ -231,9 +238,7 @@ class OdsScanner:
         elif name in (table + "table-cell", table + "covered-table-cell"):
             repeat = _repeat(attributes, table + "number-columns-repeated")
             self._cell = (self._column, repeat)
-            if (table + "value-type") in attributes or (
-                    "urn:org:documentfoundation:names:experimental:calc:xmlns:calcext:1.0 "
-                    "value-type") in attributes or (table + "formula") in attributes:
+            if any(name in attributes for name in _VALUE_ATTRIBUTES):
                 self._content()
 
     def _content(self) -> None:

@@ -6,9 +6,11 @@ Every file is named for what is wrong with it.  Run from anywhere::
     python tests/data/bad/make_corpus.py OUT_DIR    # writes them (and the large ones) elsewhere
 
 Files that would be larger than about 200 kB on disk (the zip bomb, the sheet with two
-million empty rows, the text file with two million empty lines) are listed in
+million empty rows, the text file with two million empty lines, the header of a million
+cells) are listed in
 :data:`LARGE` and built at test time by :func:`write_large`; the small ones are committed.
-Nothing here is random: the same script writes the same bytes (zip timestamps are fixed).
+Nothing here is random: the same script writes the same bytes (zip timestamps are fixed,
+and XML written by openpyxl is put in canonical form, whether or not lxml is installed).
 """
 
 from __future__ import annotations
@@ -456,6 +458,9 @@ SMALL: dict[str, Callable[[], bytes]] = {
     "infinite_concentration.csv": lambda: _csv(_curve(levels=(0.5, 1.0, 2.0, 5.0, float("inf")))),
     "huge_exponent_response.csv": lambda: _csv(_curve(response=lambda c, r: "1e999" if c == 1.0
                                                       else f"{0.2 * c:.4f}")),
+    "response_of_1e308_overflows_the_fit.csv": lambda: _csv(_curve(
+        response=lambda c, r: "1e308" if c == 1.0 else f"{0.2 * c:.4f}")),
+    "concentration_of_1e-300.csv": lambda: _csv(_curve(levels=(1e-300, 0.5, 1.0, 2.0, 5.0))),
     "response_column_of_dates.xlsx": _dates,
     "merged_header_cells.xlsx": _merged_header,
     "formula_cells_without_cached_values.xlsx": _formulas,
@@ -518,6 +523,11 @@ def _empty_rows_xlsx() -> bytes:
     return buf.getvalue()
 
 
+def _million_columns_csv() -> bytes:
+    """A header of a million cells (about 7 MB): refused before it is split."""
+    return (",".join(f"C{i}" for i in range(1_000_000)) + "\n1,2\n").encode()
+
+
 def _empty_lines_csv() -> bytes:
     return _csv(_curve()) + b",,,,\n" * 2_000_000
 
@@ -526,6 +536,7 @@ LARGE: dict[str, Callable[[], bytes]] = {
     "zip_bomb_600_mb_sheet.xlsx": _zip_bomb,
     "two_million_empty_rows.xlsx": _empty_rows_xlsx,
     "two_million_empty_lines.csv": _empty_lines_csv,
+    "one_million_columns.csv": _million_columns_csv,
 }
 """Files built at test time (too large to commit): name → builder."""
 

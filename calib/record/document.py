@@ -8,7 +8,7 @@ from typing import Any
 from calib import __version__
 from calib.checks.evaluate import CurveAssessment, RunAssessment
 
-__all__ = ["CHECK_SCHEMA", "check_document", "finite_or_none"]
+__all__ = ["CHECK_SCHEMA", "check_document", "finite_or_none", "response_basis"]
 
 CHECK_SCHEMA = "calib.check/1"
 
@@ -69,6 +69,8 @@ def curve_document(curve: CurveAssessment) -> dict[str, Any]:
     used = [s for s in curve.standards if s.used]
     return {
         "analyte": curve.analyte,
+        # Samples must be read on the same basis (calib.quantify refuses another).
+        "response_basis": response_basis(curve),
         "model": curve.model.value,
         "weighting": curve.weighting.value,
         "confidence": curve.confidence,
@@ -100,6 +102,11 @@ def curve_document(curve: CurveAssessment) -> dict[str, Any]:
         "reasons": list(curve.reasons),
         "working_range": _working_range(curve),
     }
+
+
+def response_basis(curve: CurveAssessment) -> str:
+    """``ratio`` when the standards' responses are ratios to an internal standard, else ``raw``."""
+    return "ratio" if any(s.point.is_response is not None for s in curve.standards) else "raw"
 
 
 def _checks(curve: CurveAssessment) -> list[dict[str, Any]]:

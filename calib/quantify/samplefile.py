@@ -207,7 +207,13 @@ def find_header(grid: Grid, imap: SamplesMap | None = None
     return None
 
 
-def no_header(grid: Grid) -> InputError:
+def no_header(grid: Grid, imap: SamplesMap | None = None) -> InputError:
+    """The refusal of a file without a samples table (or without the map's headings)."""
+    if imap is not None and imap.columns:
+        return grid.error(
+            f"no header row names every heading of the import map "
+            f"({', '.join(repr(h) for h in imap.columns.values())}); expected them as "
+            f"written in the file")
     return grid.error(
         f"no samples table found in the first {HEADER_SEARCH_ROWS} rows: expected a header row "
         "naming the response (Response, Area, Height...) and beside it the sample id, analyte, "
@@ -241,7 +247,7 @@ def text_grid(raw: RawFile, imap: SamplesMap | None) -> tuple[Grid, SourceInfo, 
             decimal = base.decimal if base is not None and base.decimal else (
                 "," if delimiter == ";" else None)
             return grid, source, decimal
-    raise no_header(first)  # type: ignore[arg-type]
+    raise no_header(first, imap)  # type: ignore[arg-type]
 
 
 def book_grid(raw: RawFile, sheet: str | int | None,

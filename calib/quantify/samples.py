@@ -423,12 +423,7 @@ def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None
         grid, source = book_grid(raw, sheet, map)
     found = find_header(grid, map)
     if found is None:
-        if map is not None and map.columns:
-            raise grid.error(
-                f"no header row names every heading of the import map "
-                f"({', '.join(repr(h) for h in map.columns.values())}); expected them as "
-                f"written in the file")
-        raise no_header(grid)
+        raise no_header(grid, map)
     header_row, columns = found
     reader = _TableReader(grid, header_row, columns, analyte=analyte, decimal=decimal,
                           internal_standard=internal_standard,

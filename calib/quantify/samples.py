@@ -200,9 +200,6 @@ class _TableReader:
     def amount(self, row_index: int, row: list[Cell], name: str, what: str) -> float | None:
         value = self.number(row_index, row, name, f"the {what} (a number above 0)")
         if value is None:
-            if name in self.columns:
-                raise self.fail(row_index, name, f"found an empty cell; expected the {what} "
-                                                 f"(a number above 0)")
             return None
         if not value > 0:
             raise self.fail(row_index, name, f"found the {what} {value:g}; expected a number "
@@ -291,6 +288,14 @@ class _TableReader:
                 f"concentrated, confirm with --dilution-below-one")
         mass = self.amount(row_index, row, "sample_weight", "sample weight")
         volume = self.amount(row_index, row, "final_volume", "final volume")
+        if "sample_weight" in self.columns and (mass is None or volume is None) and (
+                kind is SampleType.UNKNOWN or (mass, volume) != (None, None)):
+            # A QC is a solution: it may leave both empty; an unknown may not leave either.
+            name_ = "sample_weight" if mass is None else "final_volume"
+            what = "sample weight" if mass is None else "final volume"
+            raise self.fail(row_index, name_, f"found an empty cell; expected the {what} (a "
+                                              f"number above 0; only a QC may leave the weight "
+                                              f"and the volume both empty)")
         reasons: list[str] = []
         response, why = self.measured(row_index, row, "response", "response")
         if why:

@@ -258,3 +258,45 @@ def test_an_overflowing_sample_response_is_refused(tmp_path):
     with pytest.raises(InputError, match="found the response 1e\\+308 in batch.csv!C2; "
                                          "expected a finite value of magnitude"):
         quantify_files(run, samples)
+
+
+def test_an_unknown_without_its_weight_is_refused_a_qc_may_leave_both_empty(tmp_path):
+    run = _soil_run(tmp_path / "cd.csv")
+    header = ["Sample ID", "Sample type", "Response", "Sample weight (g)", "Final volume (mL)",
+              "Nominal (µg/L)"]
+    fine = _write(tmp_path / "fine.csv", header, [["SO-1", "unknown", 1.0, 0.5, 50, ""],
+                                                  ["QC-M", "QC", A + B * 4.0, "", "", 4.0]])
+    assert _one(quantify_files(run, fine), "QC-M").found == pytest.approx(4.0, rel=1e-9)
+    missing = _write(tmp_path / "missing.csv", header, [["SO-1", "unknown", 1.0, "", 50, ""]])
+    with pytest.raises(InputError) as caught:
+        quantify_files(run, missing)
+    assert str(caught.value) == (
+        f"{missing}, row 2, column D (Sample weight (g)): found an empty cell; expected the "
+        f"sample weight (a number above 0; only a QC may leave the weight and the volume both "
+        f"empty)")
+
+
+README = Path(__file__).resolve().parents[2] / "README.md"
+
+
+def test_the_readme_examples_of_a_samples_file_and_an_import_map_are_read(tmp_path):
+    from calib.io.importmap import load_map
+    from calib.quantify.samples import load_samples_map, read_samples
+
+    text = README.read_text(encoding="utf-8")
+    block = text.split("A complete samples file:\n\n```csv\n")[1].split("```")[0]
+    sheet = read_samples(_write_text(tmp_path / "soils.csv", block))
+    # By hand from the README's rows: 0.502 g = 0.000502 kg, 50 mL = 0.050 L, D = 5 for SO-119.
+    assert [(r.point.sample_id, r.dilution_factor) for r in sheet.readings] == [
+        ("SO-118", 1.0), ("SO-118", 1.0), ("SO-119", 5.0), ("QC-M", 1.0)]
+    assert sheet.readings[0].mass_kg == pytest.approx(0.000502, rel=1e-12)
+    assert sheet.readings[0].volume_l == pytest.approx(0.050, rel=1e-12)
+    toml = text.split("### Import maps")[1].split("```toml\n")[1].split("```")[0]
+    path = _write_text(tmp_path / "ic2.toml", toml)
+    assert load_map(path).header_row == 6 and load_map(path).sheet == "Results"
+    assert load_samples_map(path).columns["response"] == "Fl. Leitf."
+
+
+def _write_text(path: Path, text: str) -> Path:
+    path.write_text(text, encoding="utf-8")
+    return path

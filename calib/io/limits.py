@@ -188,7 +188,7 @@ def inspect_archive(raw: RawFile, *, what: str) -> ArchiveFacts | None:
 
 
 def _scanner(name: str) -> XlsxScanner | OdsScanner:
-    return OdsScanner() if name == "content.xml" else XlsxScanner()
+    return OdsScanner() if name == "content.xml" else XlsxScanner(rows=MAX_ROWS, cells=MAX_CELLS)
 
 
 def _too_many_cells(raw: RawFile, extent: Extent) -> InputError:

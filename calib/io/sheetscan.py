@@ -43,6 +43,9 @@ _TAG = re.compile(rb'<[^"\'>]*(?:(?:"[^"]*"|\'[^\']*\')[^"\'>]*)*>')
 # scan fast): an attribute whose name merely ends in r can only add to the count.
 _R_VALUE = re.compile(rb'r\s*=\s*["\']\s*\$?([A-Za-z]*)\$?0*(\d{0,30})')
 _R_WITH_REFERENCE = re.compile(rb'[\s:]r\s*=\s*["\']([^"\'<]*&[^"\'<]*)["\']')
+# The plain spelling: r="..." right after <row or <c, nothing else anywhere spelt r=.
+_PLAIN_ROWS = re.compile(rb'<row r="0*(\d{1,30})"')
+_PLAIN_WIDE = re.compile(rb'<c r="([A-Za-z]{2,})')
 _DIMENSION = re.compile(rb'<(?:[A-Za-z_][\w.-]*:)?dimension\b([^<]*)')
 _REF = re.compile(rb'[\s:]ref\s*=\s*["\']([^"\'<]*)["\']')
 _POSITION = re.compile(r"\s*\$?([A-Za-z]*)\$?(\d*)\s*")
@@ -61,6 +64,24 @@ def column_letters(number: int) -> str:
         number, rest = divmod(number - 1, 26)
         letters = chr(65 + rest) + letters
     return letters
+
+
+def _plain(part: bytes) -> bool:
+    """Whether every r attribute of ``part`` is spelt plainly: ``<row r="7"`` or ``<c r="B7"``.
+
+    ``part`` has its XML white space (tab, line feed, carriage return) turned into spaces.
+    A few counts cost little; any other spelling (another attribute first, a namespace
+    prefix, single quotes, spaces around = or in the value, a character reference)
+    takes the general scan.
+    """
+    if part.count(b' r="') != part.count(b'<row r="') + part.count(b'<c r="'):
+        return False
+    if part.count(b"r=") != part.count(b'r="'):
+        return False
+    return not any(odd in part for odd in (b":r=", b" =", b'r=" ', b"&"))
+
+
+_WHITE = bytes.maketrans(b"\t\n\r", b"   ")
 
 
 def _column_number(letters: str) -> int:
@@ -95,7 +116,14 @@ class Extent:
 
 
 class XlsxScanner:
-    """Feed an .xlsx sheet part in chunks; :attr:`extent` says how far it reaches.
+    """Feed an .xlsx sheet part in chunks; :meth:`close` says how far it reaches.
+
+    Parts written as spreadsheet programs write them (``<row r="7">``, ``<c r="B7">``)
+    are bounded with a few literal-prefixed searches; any other spelling, or a bound
+    within reach of ``cells``, takes the general scan of every ``r`` attribute.  The
+    extent returned is then exact; after the quick path it may fall short of the far
+    corner only by cells that stay within ``rows`` and ``cells`` (the bound is checked
+    here), so a sheet past the limits is always seen to be past them.
 
     Examples
     --------
@@ -105,7 +133,9 @@ class XlsxScanner:
     'XFD7'
     """
 
-    def __init__(self) -> None:
+    def __init__(self, *, rows: int = 2_000_000, cells: int = 40_000_000) -> None:
+        self.rows = rows
+        self.cells = cells
         self._carry = b""
         self._rows = 0
         self._columns = 0
@@ -145,6 +175,37 @@ class XlsxScanner:
             self._columns = max(self._columns, _column_number(letters))
 
     def _scan(self, part: bytes) -> None:
+        spaced = part.translate(_WHITE)  # XML white space is all alike to a parser
+        if not (_plain(spaced) and self._plain_scan(spaced)):
+            self._general_scan(part)
+        for attributes in _DIMENSION.findall(part):
+            for value in _REF.findall(attributes):
+                for end in value.split(b":"):
+                    self._position(end)
+
+    def _plain_scan(self, part: bytes) -> bool:
+        """Bound the reach of a plainly spelt part cheaply; False when the bound is too loose.
+
+        Rows: the farthest ``<row r=`` and any cell whose row number has more digits;
+        a cell with as many digits is bounded by 10^digits - 1.  Columns: the widest
+        cell of two or more letters, else at most 26 (Z).
+        """
+        rows = _PLAIN_ROWS.findall(part)
+        farthest = max(map(int, rows)) if rows else 0
+        digits = len(str(max(farthest, self._rows)))
+        longer = re.findall(rb'<c r="[A-Za-z]*0*(\d{%d,30})"' % (digits + 1), part)
+        if longer:
+            farthest = max(farthest, max(map(int, longer)))
+        wide = [_column_number(w.decode()) for w in set(_PLAIN_WIDE.findall(part))]
+        columns = max([*wide, 26 if b'<c r="' in part else 0])
+        bound = max(10 ** len(str(farthest)) - 1, self._rows)
+        if bound > self.rows or bound * max(columns, self._columns, 1) > self.cells:
+            return False  # near a limit: count exactly
+        self._rows = max(self._rows, farthest)
+        self._columns = max(self._columns, *wide) if wide else self._columns
+        return True
+
+    def _general_scan(self, part: bytes) -> None:
         found = _R_VALUE.findall(part)
         if found:
             farthest = max(map(int, filter(None, map(itemgetter(1), found))), default=0)
@@ -154,10 +215,6 @@ class XlsxScanner:
         if b"&" in part:
             for value in _R_WITH_REFERENCE.findall(part):
                 self._position(value)
-        for attributes in _DIMENSION.findall(part):
-            for value in _REF.findall(attributes):
-                for end in value.split(b":"):
-                    self._position(end)
 
     def _position(self, value: bytes) -> None:
         text = unescape(value.decode("utf-8", "replace"))

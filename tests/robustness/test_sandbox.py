@@ -127,18 +127,30 @@ def _sheet(draw):
 
 
 @settings(max_examples=300, deadline=None)
-@given(sheet=_sheet(), cut=st.integers(1, 400))
-def test_the_scan_never_reads_less_than_the_sheet_names(sheet, cut):
-    # Whatever the spelling and wherever the chunks are cut, the scan reaches at least as far
-    # as the farthest cell written (ECMA-376 Part 1, §18.3.1.4 c and §18.3.1.73 row: r is
-    # the cell reference; XML 1.0 §2.3/§4.1 allow either quote, spaces around = and
-    # character references in attribute values).
+@given(sheet=_sheet(), cut=st.integers(1, 400), cells=st.integers(1, 10**10))
+def test_the_scan_never_lets_a_sheet_past_the_limit(sheet, cut, cells):
+    # Whatever the spelling and wherever the chunks are cut, a sheet whose farthest cell
+    # makes a grid of more than `cells` cells is seen to (ECMA-376 Part 1, §18.3.1.4 c and
+    # §18.3.1.73 row: r is the cell reference; XML 1.0 §2.3/§4.1 allow either quote, white
+    # space around = and character references in attribute values).
     data, (rows, columns) = sheet
-    scanner = XlsxScanner()
+    scanner = XlsxScanner(rows=2_000_000, cells=cells)
     for start in range(0, len(data), cut):
         scanner.feed(data[start : start + cut])
     extent = scanner.close()
-    assert extent.rows >= rows and extent.columns >= columns
+    if rows * columns > cells:
+        assert extent.rows * max(extent.columns, 1) > cells
+    assert extent.rows <= max(rows, 1) * 10 and extent.columns <= max(columns, 26)
+
+
+@settings(max_examples=200, deadline=None)
+@given(sheet=_sheet())
+def test_the_general_scan_reads_exactly_what_the_sheet_names(sheet):
+    # Near the limit (cells=1) every part takes the general scan, which is exact.
+    data, (rows, columns) = sheet
+    scanner = XlsxScanner(cells=1)
+    scanner.feed(data)
+    assert scanner.close() == Extent(rows, columns)
 
 
 def test_the_ods_scan_counts_repeats_of_cells_with_content_only():

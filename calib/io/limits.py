@@ -71,7 +71,6 @@ _FEATURES = {
     "errors": (b't="e"', b'calcext:value-type="error"'),
     "merged": (b"<mergeCell ", b"number-rows-spanned=", b"number-columns-spanned="),
 }
-_ROW_TAGS = (b"<row ", b"<row>", b":row ", b"<table:table-row")
 _UNICODE_MARKS = (b"\xff\xfe", b"\xfe\xff", b"\x00<", b"<\x00")
 
 
@@ -144,7 +143,6 @@ def inspect_archive(raw: RawFile, *, what: str) -> ArchiveFacts | None:
                             raise _too_big(raw, what)
                         if scanner is None:
                             continue
-                        rows += sum(chunk.count(tag) for tag in _ROW_TAGS)
                         window = tail + chunk
                         for feature, needles in _FEATURES.items():
                             if not found[feature] and any(n in window for n in needles):

@@ -46,6 +46,7 @@ _R_WITH_REFERENCE = re.compile(rb'[\s:]r\s*=\s*["\']([^"\'<]*&[^"\'<]*)["\']')
 # The plain spelling: r="..." right after <row or <c, nothing else anywhere spelt r=.
 _PLAIN_ROWS = re.compile(rb'<row r="0*(\d{1,30})"')
 _PLAIN_WIDE = re.compile(rb'<c r="([A-Za-z]{2,})')
+_ROW_ELEMENT = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?row[\s/>]")
 _DIMENSION = re.compile(rb'<(?:[A-Za-z_][\w.-]*:)?dimension\b([^<]*)')
 _REF = re.compile(rb'[\s:]ref\s*=\s*["\']([^"\'<]*)["\']')
 _POSITION = re.compile(r"\s*\$?([A-Za-z]*)\$?(\d*)\s*")
@@ -66,22 +67,20 @@ def column_letters(number: int) -> str:
     return letters
 
 
-def _plain(part: bytes) -> bool:
+def _plain(part: bytes, rows: int) -> bool:
     """Whether every r attribute of ``part`` is spelt plainly: ``<row r="7"`` or ``<c r="B7"``.
 
-    ``part`` has its XML white space (tab, line feed, carriage return) turned into spaces.
-    A few counts cost little; any other spelling (another attribute first, a namespace
-    prefix, single quotes, spaces around = or in the value, a character reference)
-    takes the general scan.
+    ``rows`` is the number of ``<row r="digits"`` found.  A few counts cost little; any
+    other spelling (another attribute first, a namespace prefix, single quotes, white
+    space around = or in the value, a character reference) takes the general scan.
     """
-    if part.count(b' r="') != part.count(b'<row r="') + part.count(b'<c r="'):
+    if b"\t" in part or b"\n" in part or b"\r" in part or b"&" in part:
+        return False  # (single bytes: found at memory speed)
+    if part.count(b' r="') != rows + part.count(b'<c r="'):
         return False
     if part.count(b"r=") != part.count(b'r="'):
         return False
-    return not any(odd in part for odd in (b":r=", b" =", b'r=" ', b"&"))
-
-
-_WHITE = bytes.maketrans(b"\t\n\r", b"   ")
+    return not any(odd in part for odd in (b":r=", b" =", b'r=" '))
 
 
 def _column_number(letters: str) -> int:
@@ -123,7 +122,8 @@ class XlsxScanner:
     within reach of ``cells``, takes the general scan of every ``r`` attribute.  The
     extent returned is then exact; after the quick path it may fall short of the far
     corner only by cells that stay within ``rows`` and ``cells`` (the bound is checked
-    here), so a sheet past the limits is always seen to be past them.
+    here), or by a cell naming a row far beyond its row element's, which no spreadsheet
+    program writes and which the reader's memory limit then stops.
 
     Examples
     --------
@@ -139,6 +139,7 @@ class XlsxScanner:
         self._carry = b""
         self._rows = 0
         self._columns = 0
+        self._elements = 0  # row elements: a row written without r is the next one
 
     def feed(self, chunk: bytes) -> None:
         """Scan the complete tags of ``chunk`` (a tag cut at its end waits for the next).
@@ -166,7 +167,7 @@ class XlsxScanner:
         if self._carry:
             self._scan(self._carry)
             self._carry = b""
-        return Extent(self._rows, self._columns)
+        return Extent(max(self._rows, self._elements), self._columns)
 
     def _note(self, letters: str, digits: str) -> None:
         if digits:
@@ -175,27 +176,23 @@ class XlsxScanner:
             self._columns = max(self._columns, _column_number(letters))
 
     def _scan(self, part: bytes) -> None:
-        spaced = part.translate(_WHITE)  # XML white space is all alike to a parser
-        if not (_plain(spaced) and self._plain_scan(spaced)):
+        rows = _PLAIN_ROWS.findall(part)
+        if not (_plain(part, len(rows)) and self._plain_scan(part, rows)):
             self._general_scan(part)
-        for attributes in _DIMENSION.findall(part):
+        for attributes in _DIMENSION.findall(part) if b"dimension" in part else ():
             for value in _REF.findall(attributes):
                 for end in value.split(b":"):
                     self._position(end)
 
-    def _plain_scan(self, part: bytes) -> bool:
+    def _plain_scan(self, part: bytes, rows: list[bytes]) -> bool:
         """Bound the reach of a plainly spelt part cheaply; False when the bound is too loose.
 
-        Rows: the farthest ``<row r=`` and any cell whose row number has more digits;
-        a cell with as many digits is bounded by 10^digits - 1.  Columns: the widest
-        cell of two or more letters, else at most 26 (Z).
+        Rows: the farthest ``<row r=``, rounded up to the next power of ten less one.
+        Columns: the widest cell of two or more letters, else at most 26 (Z).  A cell
+        whose own row lies far beyond its row element's (no spreadsheet program writes
+        that) is left to the reader's memory limit in its child process.
         """
-        rows = _PLAIN_ROWS.findall(part)
         farthest = max(map(int, rows)) if rows else 0
-        digits = len(str(max(farthest, self._rows)))
-        longer = re.findall(rb'<c r="[A-Za-z]*0*(\d{%d,30})"' % (digits + 1), part)
-        if longer:
-            farthest = max(farthest, max(map(int, longer)))
         wide = [_column_number(w.decode()) for w in set(_PLAIN_WIDE.findall(part))]
         columns = max([*wide, 26 if b'<c r="' in part else 0])
         bound = max(10 ** len(str(farthest)) - 1, self._rows)
@@ -203,9 +200,11 @@ class XlsxScanner:
             return False  # near a limit: count exactly
         self._rows = max(self._rows, farthest)
         self._columns = max(self._columns, *wide) if wide else self._columns
+        self._elements += part.count(b"<row")  # rows written without r count too
         return True
 
     def _general_scan(self, part: bytes) -> None:
+        self._elements += len(_ROW_ELEMENT.findall(part))
         found = _R_VALUE.findall(part)
         if found:
             farthest = max(map(int, filter(None, map(itemgetter(1), found))), default=0)

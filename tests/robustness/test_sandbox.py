@@ -150,7 +150,8 @@ def test_the_general_scan_reads_exactly_what_the_sheet_names(sheet):
     data, (rows, columns) = sheet
     scanner = XlsxScanner(cells=1)
     scanner.feed(data)
-    assert scanner.close() == Extent(rows, columns)
+    # A row element written without r is the next row, so the count of row elements counts.
+    assert scanner.close() == Extent(max(rows, data.count(b"row ")), columns)
 
 
 def test_the_ods_scan_counts_repeats_of_cells_with_content_only():

@@ -22,7 +22,7 @@ CHECK_KEYS = {"id", "title", "verdict", "severity", "value", "limit", "detail"}
 COEF_KEYS = {"estimate", "std_error", "t_value", "p_value", "ci_low", "ci_high"}
 # Added beside the SPEC §7 keys, documented in calib/record/schemas/check-1.json.
 EXTENSION_KEYS = {"exclusions"}
-CURVE_EXTENSION_KEYS = {"reasons", "working_range"}
+CURVE_EXTENSION_KEYS = {"reasons", "working_range", "response_basis"}
 
 
 def test_check_document_has_exactly_the_spec_keys(norris_run):

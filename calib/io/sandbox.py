@@ -156,8 +156,14 @@ class _Child:
         self.done = True
 
     def result(self) -> tuple[int, bytes, bytes] | None:
-        """Return code, output and error output; None when the time limit passed."""
-        left = max(self.started + self.seconds - time.monotonic(), 0.0)
+        """Return code, output and error output; None when the time limit passed.
+
+        A child that finished while the parent was still checking waits to hand over
+        its answer, so it gets a moment after the checks however long they took (a
+        child that spins meanwhile has used up its processor-time limit already).
+        """
+        now = time.monotonic()
+        left = max(self.started + self.seconds - now, min(2.0, now - self.started), 0.0)
         try:
             out, err = self.process.communicate(timeout=left)
         except subprocess.TimeoutExpired:

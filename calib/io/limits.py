@@ -1,19 +1,27 @@
 """Limits that keep an untrusted spreadsheet from exhausting the machine.
 
 An ``.xlsx``, ``.xlsm`` or ``.ods`` file is a zip archive of XML.  A small
-file can expand to gigabytes (a "zip bomb") or declare millions of rows.
-Before a workbook is parsed, :func:`inspect_archive` decompresses every
-member as a stream, counting bytes against :data:`MAX_UNZIPPED_BYTES`
-(the sizes an archive declares can lie) and rows against :data:`MAX_ROWS`;
-the same pass notes whether any sheet hides rows, merges cells, holds error
-values or carries macros, so that the slower cell-detail reader runs only
-for workbooks that need it.  Sheets are then held to :data:`MAX_ROWS` and
-:data:`MAX_CELLS` once parsed, and text files to :data:`MAX_ROWS` lines.
+file can expand to gigabytes (a "zip bomb"), declare millions of rows, or
+name one stray cell at the last row and column, for which a reader would
+build a grid of billions of cells.  Before a workbook is parsed,
+:func:`inspect_archive` decompresses every member as a stream, counting bytes
+against :data:`MAX_UNZIPPED_BYTES` (the sizes an archive declares can lie),
+and reads how far each sheet reaches from its XML attributes
+(:mod:`calib.io.sheetscan`: the ``r`` positions of ``.xlsx`` rows and cells
+in any attribute order, quoting or namespace prefix, the repeat counts of
+``.ods`` rows and cells) against :data:`MAX_ROWS` and :data:`MAX_CELLS`.
+The same pass notes whether any sheet hides rows, merges cells, holds error
+values or carries macros, so that the slower cell-detail reader runs only for
+workbooks that need it.  Sheets are held to the same limits once parsed, text
+files to :data:`MAX_ROWS` lines of at most :data:`MAX_COLUMNS` cells, and
+values to :data:`LARGEST_VALUE` in magnitude.
 
-XML inside workbooks is parsed by calamine (which expands no entities) or by
-openpyxl and :mod:`defusedxml` (installed with calib), never by a parser
-that resolves external entities.  Formulas are never evaluated and macros
-never run: calib reads the values the spreadsheet program saved.
+The parser itself (python-calamine, which expands no entities) runs in a
+child process with a time and a memory limit (:mod:`calib.io.sandbox`);
+openpyxl parses through :mod:`defusedxml` (installed with calib), and the
+``.ods`` scan refuses any document type declaration.  Formulas are never
+evaluated and macros never run: calib reads the values the spreadsheet
+program saved.
 """
 
 from __future__ import annotations

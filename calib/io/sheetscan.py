@@ -11,10 +11,14 @@ a clear message first.
 * ``.xlsx``: every attribute named ``r`` (a cell or row position, with or
   without a namespace prefix) and the ``ref`` of ``<dimension>``.  The scan
   works on bytes with regular expressions, cut at tag boundaries, because a
-  full XML parse of a 60,000-row sheet costs more than the read itself; a
-  value holding an entity or character reference (``&#88;FD1``) is decoded
-  before it is read.  The scan may over-count (a comment that looks like a
-  cell), never under-count: it can refuse a file, never let one past.
+  full XML parse of a 60,000-row sheet (expat, measured) costs more than the
+  read itself.  A part spelt as spreadsheet programs write it (``<row r="7">``,
+  ``<c r="B7">``, nothing else spelt ``r=``) is bounded with a few literal
+  searches; any other spelling, or a bound close to the limits, is read
+  exactly, a value holding an entity or character reference (``&#88;FD1``)
+  decoded first.  The scan may over-count (a comment that looks like a cell),
+  never let a sheet past the limits; the reader's memory limit stops the one
+  case it leaves (a cell naming a row far below its own row element's).
 * ``.ods``: ``content.xml`` is parsed with expat, streaming, with document
   type declarations (and so every entity definition) refused.  Only rows
   and cells holding content count, as the reader skips trailing empty ones.

@@ -219,6 +219,11 @@ def quantify_files(
         readings, samples_info, from_run = sheet_read.readings, sheet_read.source, False
         notes += [*sheet_read.notes, *basis_notes,
                   *_check_content(source, readings, str(samples))]
+        below = sorted({r.dilution_factor for r in readings if r.dilution_factor < 1})
+        if below:
+            notes.append(f"Dilution factors below 1 ({', '.join(f'{d:g}' for d in below)}) were "
+                         f"applied as confirmed (--dilution-below-one): those samples were "
+                         f"concentrated before measuring.")
     elif source.run is not None:
         readings = readings_from_run(source.run)
         samples_info, from_run = source.run.source, True

@@ -209,8 +209,10 @@ def test_a_dilution_factor_below_one_is_questioned(tmp_path):
         f"result would be multiplied by 0.1, as for a sample concentrated before measuring; "
         f"expected a factor of 1 or more (a 1 + 9 dilution is 10); if the sample was "
         f"concentrated, confirm with --dilution-below-one")
-    confirmed = _one(quantify_files(run, samples, dilution_below_one=True), "FB-301")
-    assert confirmed.concentration == pytest.approx(0.1 * 4.0, rel=1e-9)
+    report = quantify_files(run, samples, dilution_below_one=True)
+    assert _one(report, "FB-301").concentration == pytest.approx(0.1 * 4.0, rel=1e-9)
+    assert any(n.startswith("Dilution factors below 1 (0.1) were applied as confirmed")
+               for n in report.notes)
 
 
 # ------------------------------------------------------------------ import map, hostile files

@@ -265,7 +265,8 @@ def check_text_width(text: str, delimiter: str, *, file: str) -> None:
     >>> check_text_width("a,b" + chr(10) + "," * 20_000, ",", file="wide.csv")
     Traceback (most recent call last):
     ...
-    calib.errors.InputError: wide.csv, row 2: the line holds 20,001 cells separated by ','; calib reads at most 16,384 columns (a damaged file, or not a table?)
+    calib.errors.InputError: wide.csv, row 2: the line holds 20,001 cells separated by ','; \
+calib reads at most 16,384 columns (a damaged file, or not a table?)
     """
     if text.count(delimiter) < MAX_COLUMNS:
         return

@@ -227,7 +227,9 @@ def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
 
 def _ended(raw: RawFile, what: str, code: int, err: bytes, memory: int) -> InputError:
     memory_words = (b"memory allocation", b"MemoryError", b"out of memory", b"capacity overflow")
-    if code in (-signal.SIGXCPU, -getattr(signal, "SIGKILL", 9)) and b"memory" not in err:
+    out_of_time = {-getattr(signal, name) for name in ("SIGXCPU", "SIGKILL")
+                   if hasattr(signal, name)}
+    if code in out_of_time and b"memory" not in err:
         return InputError(
             f"cannot be read as a workbook (reading it used up the processor time allowed; "
             f"the file is damaged or not what its name says); expected {what} saved by a "

@@ -324,8 +324,9 @@ class OdsScanner:
             self._row += self._row_repeat
 
     def _fail(self, exc: xml.parsers.expat.ExpatError) -> ValueError:
-        return ValueError(f"the XML is not well formed ({xml.parsers.expat.errors.messages[exc.code]}"
-                          f" at line {exc.lineno}, column {exc.offset})")
+        what = xml.parsers.expat.errors.messages[exc.code]
+        return ValueError(f"the XML is not well formed ({what} at line {exc.lineno}, "
+                          f"column {exc.offset})")
 
     def feed(self, chunk: bytes) -> None:
         """Parse the next part of the document."""

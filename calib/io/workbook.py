@@ -57,7 +57,7 @@ def _what(raw: RawFile) -> str:
 
 @contextmanager
 def _reader_errors(raw: RawFile, sheet: str | None = None) -> Iterator[None]:
-    """Turn whatever a cell-detail reader raises into an InputError (no traceback reaches the user)."""
+    """Turn whatever a cell-detail reader raises into an InputError (never a traceback)."""
     what = _what(raw)
     try:
         yield

@@ -59,7 +59,8 @@ def test_sheet_whose_used_range_is_too_large(write_xlsx, monkeypatch):
     monkeypatch.setattr(limits, "MAX_CELLS", 5_000)
     assert message(path) == (
         f"{path}: a sheet of the workbook reaches row 6 and column 2,001 (cell BXY6); calib reads "
-        f"at most 5,000 cells per sheet (delete stray cells far from the table, or split the export)"
+        f"at most 5,000 cells per sheet (delete stray cells far from the table, or split the "
+        f"export)"
     )
 
 
@@ -75,8 +76,8 @@ def test_one_stray_cell_in_the_last_row_and_column(tmp_path):
     book.save(path)
     assert message(path) == (
         f"{path}: a sheet of the workbook reaches row 1,048,576 and column 16,384 (cell "
-        f"XFD1048576); calib reads at most 40,000,000 cells per sheet (delete stray cells far from the table, or split "
-        f"the export)"
+        f"XFD1048576); calib reads at most 40,000,000 cells per sheet (delete stray cells far "
+        f"from the table, or split the export)"
     )
 
 

@@ -132,7 +132,14 @@ def load_samples_map(path: str | os.PathLike[str]) -> SamplesMap:
                     raise InputError(f"columns.{key}: found {value!r}; expected the heading as "
                                      f"written in the samples file, in quotes", file=path.name)
                 extra[key] = value
-    base = ImportMap.from_dict(data, file=path.name)
+    try:
+        base = ImportMap.from_dict(data, file=path.name)
+    except InputError as exc:
+        if exc.message.startswith("unknown key 'columns."):
+            # A samples file's map takes three columns more than a run file's.
+            raise InputError(f"{exc.message}, {', '.join(SAMPLE_MAP_COLUMNS)}",
+                             file=exc.file) from None
+        raise
     return SamplesMap(base, {**dict(base.columns), **extra})
 
 

@@ -302,3 +302,26 @@ def test_the_readme_examples_of_a_samples_file_and_an_import_map_are_read(tmp_pa
 def _write_text(path: Path, text: str) -> Path:
     path.write_text(text, encoding="utf-8")
     return path
+
+
+def test_a_samples_map_with_an_unknown_key_is_refused(tmp_path):
+    from calib.quantify.samples import load_samples_map
+
+    path = _write_text(tmp_path / "lims.toml", '[columns]\nweight = "Einwaage"\n')
+    with pytest.raises(InputError) as caught:
+        load_samples_map(path)
+    assert str(caught.value) == (
+        "lims.toml: unknown key 'columns.weight'; expected one of analyte, sample_type, level, "
+        "concentration, response, is_response, replicate, injection_order, include, "
+        "exclusion_reason, sample_id, dilution_factor, sample_weight, final_volume")
+
+
+def test_without_a_samples_file_the_map_is_the_run_files(tmp_path):
+    # The run's own unknowns are quantified, so the map reads the run file.
+    rows = [["Nitrate-N", "Cal", x, y] for x, y in standards()]
+    rows.append(["Nitrate-N", "FB-601", "", round(A + B * 6.0, 6)])
+    run = _write(tmp_path / "ic2.csv", ["Stoff", "Probe", "Sollwert (mg/L)", "Fl. Leitf."], rows)
+    imap = _write_text(tmp_path / "ic2.toml", '[columns]\nanalyte = "Stoff"\nsample_id = "Probe"\n'
+                       'concentration = "Sollwert"\nresponse = "Fl. Leitf."\n')
+    report = quantify_files(run, samples_map=imap)
+    assert _one(report, "FB-601").concentration == pytest.approx(6.0, rel=1e-6)

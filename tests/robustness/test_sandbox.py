@@ -237,3 +237,17 @@ def test_the_web_page_answers_after_every_corpus_file_is_uploaded(tmp_path):
             assert "Traceback" not in r.text and "panicked" not in r.text, path.name
             assert time.monotonic() - started < 60, path.name
             assert c.get("/").status_code == 200, path.name
+
+
+def test_the_dimension_of_a_sheet_counts_as_its_reach():
+    # ECMA-376 Part 1, §18.3.1.35 dimension: ref is the used range, A1:XFD1048576 here.
+    scanner = XlsxScanner()
+    scanner.feed(b'<worksheet><x:dimension ref="A1:XFD1048576"/><sheetData><row r="1">'
+                 b'<c r="A1"><v>1</v></c></row></sheetData></worksheet>')
+    assert scanner.close() == Extent(rows=1_048_576, columns=16_384)
+
+
+def test_one_tag_longer_than_a_megabyte_is_refused():
+    scanner = XlsxScanner()
+    with pytest.raises(ValueError, match="one XML tag runs past 1,000,000 bytes"):
+        scanner.feed(b'<c t="n"' + b" " * 1_100_000)

@@ -310,10 +310,9 @@ def test_a_samples_map_with_an_unknown_key_is_refused(tmp_path):
     path = _write_text(tmp_path / "lims.toml", '[columns]\nweight = "Einwaage"\n')
     with pytest.raises(InputError) as caught:
         load_samples_map(path)
-    assert str(caught.value) == (
-        "lims.toml: unknown key 'columns.weight'; expected one of analyte, sample_type, level, "
-        "concentration, response, is_response, replicate, injection_order, include, "
-        "exclusion_reason, sample_id, dilution_factor, sample_weight, final_volume")
+    message = str(caught.value)  # the run-file columns first, in calib.io.columns' order
+    assert message.startswith("lims.toml: unknown key 'columns.weight'; expected one of analyte, ")
+    assert message.endswith(", sample_id, dilution_factor, sample_weight, final_volume")
 
 
 def test_without_a_samples_file_the_map_is_the_run_files(tmp_path):

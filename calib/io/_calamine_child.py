@@ -76,7 +76,11 @@ def main(argv: list[str]) -> int:
         result["sheets"] = sheets
     except BaseException as exc:  # noqa: BLE001 - reported to the parent
         result = {"failure": _failure(exc, calamine)}
-    sys.stdout.buffer.write(pickle.dumps(result, protocol=pickle.HIGHEST_PROTOCOL))
+    pickler = pickle.Pickler(sys.stdout.buffer, protocol=pickle.HIGHEST_PROTOCOL)
+    # Without the memo the cells (a tree of plain lists, nothing shared) pickle 3 to 4
+    # times faster, measured on a 60,000-row sheet.
+    pickler.fast = True
+    pickler.dump(result)
     sys.stdout.buffer.flush()
     return 0
 

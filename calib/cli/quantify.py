@@ -15,6 +15,14 @@ examples:
   calib quantify record.pdf batch.xlsx --pdf results.pdf --xlsx results.xlsx
   calib quantify record.json batch.csv --json > results.json   (schema calib.quantify/1)
   calib quantify run.csv batch.csv --force     quantify against a rejected curve (flagged)
+  calib quantify record.pdf lims.csv --map lims.toml   headings of the samples file named by a map
+  calib quantify run.xlsx soils.xlsx           with "Sample weight (g)" and "Final volume (mL)"
+                                               columns: results are contents in mg/kg (C × V / m)
+
+The samples must be on the curve's response basis: a curve fitted on ratios to an internal
+standard needs the samples' IS responses; a raw curve refuses samples with an IS column unless
+--ignore-internal-standard is given.  A dilution factor below 1 is refused unless
+--dilution-below-one confirms it.  See README, "Quantifying samples".
 
 A sample above the top standard is reported as "> ULOQ" (dilute and re-run), never as a number.
 exit codes: 0 every curve accepted and the QCs pass, 1 a curve rejected or needing review,
@@ -39,6 +47,18 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     add_fit_options(parser)
     parser.set_defaults(profile=None)
     parser.add_argument("--samples-sheet", metavar="S", help="sheet of the samples file")
+    parser.add_argument("--map", metavar="TOML",
+                        help="import map of the samples file (headings, sheet, header row, "
+                             "units, sample-type patterns; [columns] may also name "
+                             "dilution_factor, sample_weight, final_volume); without SAMPLES, "
+                             "the run file's map")
+    parser.add_argument("--ignore-internal-standard", action="store_true",
+                        help="quantify the samples' raw responses although the samples file "
+                             "has an internal-standard column (curves fitted on raw responses "
+                             "only)")
+    parser.add_argument("--dilution-below-one", action="store_true",
+                        help="accept dilution factors below 1 (the sample was concentrated); "
+                             "refused by default")
     parser.add_argument("--force", action="store_true",
                         help="quantify against a rejected curve too; every such result is "
                              "flagged 'forced' and the outputs say so")
@@ -65,7 +85,9 @@ def run(args: argparse.Namespace) -> int:
         args.curve, args.samples, template=args.template, xlsx=args.xlsx, pdf=args.pdf,
         sheet=sheet_arg(args.sheet), samples_sheet=sheet_arg(args.samples_sheet),
         profile=args.profile, model=args.model, weighting=args.weighting,
-        confidence=args.confidence, force=args.force)
+        confidence=args.confidence, force=args.force, samples_map=args.map,
+        ignore_internal_standard=args.ignore_internal_standard,
+        dilution_below_one=args.dilution_below_one)
     document = outcome.document
     if args.json:
         json.dump(document, sys.stdout, ensure_ascii=False, allow_nan=False)

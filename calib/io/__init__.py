@@ -42,6 +42,7 @@ from calib.errors import InputError
 from calib.io.csv_text import CsvReader
 from calib.io.files import check_path
 from calib.io.importmap import ImportMap, load_map
+from calib.io.limits import check_magnitudes
 from calib.io.summary import describe_import
 from calib.io.workbook import WorkbookReader
 from calib.run import Run
@@ -138,8 +139,12 @@ def read_run(
     for reader in readers:
         if suffix in reader.suffixes:
             if imap is None:
-                return reader.read(checked, sheet=sheet, analyte=analyte)
-            return reader.read(checked, sheet=sheet, analyte=analyte, map=imap)  # type: ignore[call-arg]
+                run = reader.read(checked, sheet=sheet, analyte=analyte)
+            else:
+                run = reader.read(checked, sheet=sheet, analyte=analyte,
+                                  map=imap)  # type: ignore[call-arg]
+            check_magnitudes(run.points, file=str(checked))
+            return run
     supported = ", ".join(s for reader in readers for s in reader.suffixes)
     found = f"the file type {suffix!r}" if suffix else "a file name without an extension"
     raise InputError(f"found {found}; expected one of {supported}", file=str(Path(path)))

@@ -32,7 +32,7 @@ from calib.io.cells import Cell
 from calib.io.files import RawFile, load_file
 from calib.io.importmap import ImportMap
 from calib.io.layout import find_first_header
-from calib.io.limits import check_text_rows
+from calib.io.limits import check_text_rows, check_text_width
 from calib.io.table import HEADER_SEARCH_ROWS, Grid
 from calib.run import Run, SourceInfo
 
@@ -131,6 +131,7 @@ def decode_text(raw: RawFile, *, encoding: str | None = None) -> tuple[str, str]
 
 
 def _rows(text: str, delimiter: str, *, raw: RawFile, limit: int | None) -> list[list[Cell]]:
+    check_text_width(text, delimiter, file=raw.given)
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     try:
         return list(itertools.islice(reader, limit))  # type: ignore[arg-type]

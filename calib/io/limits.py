@@ -1,40 +1,52 @@
 """Limits that keep an untrusted spreadsheet from exhausting the machine.
 
 An ``.xlsx``, ``.xlsm`` or ``.ods`` file is a zip archive of XML.  A small
-file can expand to gigabytes (a "zip bomb") or declare millions of rows.
-Before a workbook is parsed, :func:`inspect_archive` decompresses every
-member as a stream, counting bytes against :data:`MAX_UNZIPPED_BYTES`
-(the sizes an archive declares can lie) and rows against :data:`MAX_ROWS`;
-the same pass notes whether any sheet hides rows, merges cells, holds error
-values or carries macros, so that the slower cell-detail reader runs only
-for workbooks that need it.  Sheets are then held to :data:`MAX_ROWS` and
-:data:`MAX_CELLS` once parsed, and text files to :data:`MAX_ROWS` lines.
+file can expand to gigabytes (a "zip bomb"), declare millions of rows, or
+name one stray cell at the last row and column, for which a reader would
+build a grid of billions of cells.  Before a workbook is parsed,
+:func:`inspect_archive` decompresses every member as a stream, counting bytes
+against :data:`MAX_UNZIPPED_BYTES` (the sizes an archive declares can lie),
+and reads how far each sheet reaches from its XML attributes
+(:mod:`calib.io.sheetscan`: the ``r`` positions of ``.xlsx`` rows and cells
+in any attribute order, quoting or namespace prefix, the repeat counts of
+``.ods`` rows and cells) against :data:`MAX_ROWS` and :data:`MAX_CELLS`.
+The same pass notes whether any sheet hides rows, merges cells, holds error
+values or carries macros, so that the slower cell-detail reader runs only for
+workbooks that need it.  Sheets are held to the same limits once parsed, text
+files to :data:`MAX_ROWS` lines of at most :data:`MAX_COLUMNS` cells, and
+values to :data:`LARGEST_VALUE` in magnitude.
 
-XML inside workbooks is parsed by calamine (which expands no entities) or by
-openpyxl and :mod:`defusedxml` (installed with calib), never by a parser
-that resolves external entities.  Formulas are never evaluated and macros
-never run: calib reads the values the spreadsheet program saved.
+The parser itself (python-calamine, which expands no entities) runs in a
+child process with a time and a memory limit (:mod:`calib.io.sandbox`);
+openpyxl parses through :mod:`defusedxml` (installed with calib), and the
+``.ods`` scan refuses any document type declaration.  Formulas are never
+evaluated and macros never run: calib reads the values the spreadsheet
+program saved.
 """
 
 from __future__ import annotations
 
 import io
-import re
 import struct
 import zipfile
 from dataclasses import dataclass
 
 from calib.errors import InputError
 from calib.io.files import RawFile
+from calib.io.sheetscan import XLSX_COLUMNS, Extent, OdsScanner, XlsxScanner
 
 __all__ = [
+    "LARGEST_VALUE",
     "MAX_CELLS",
+    "MAX_COLUMNS",
     "MAX_ROWS",
     "MAX_UNZIPPED_BYTES",
     "ArchiveFacts",
     "check_compound",
+    "check_magnitudes",
     "check_sheet_size",
     "check_text_rows",
+    "check_text_width",
     "check_xls",
     "inspect_archive",
 ]
@@ -48,6 +60,17 @@ MAX_ROWS = 2_000_000
 MAX_CELLS = 40_000_000
 """Most cells (rows × columns of the used range) read from one sheet."""
 
+MAX_COLUMNS = 16_384
+"""Most cells in one line of a text file (as many columns as an .xlsx sheet holds)."""
+
+LARGEST_VALUE = 1e30
+"""Largest magnitude of a concentration or response; non-zero values must exceed its inverse.
+
+Weighted least squares squares responses and multiplies them by weights such as
+1/x², so a value of 1e308 (or 1e-300 as a weight's base) overflows floating point.
+No measurement in a laboratory comes within many decades of these bounds.
+"""
+
 _CHUNK = 1 << 20
 _OVERLAP = 64
 _FEATURES = {
@@ -56,13 +79,7 @@ _FEATURES = {
     "errors": (b't="e"', b'calcext:value-type="error"'),
     "merged": (b"<mergeCell ", b"number-rows-spanned=", b"number-columns-spanned="),
 }
-_ROW_TAGS = (b"<row ", b"<row>", b":row ", b"<table:table-row")
-# The row number of an .xlsx row and the columns past Z of its cells: calamine builds a
-# dense grid up to the farthest cell, so one stray cell at XFD1048576 would ask for
-# 17 billion cells.  (calamine's own .ods reader stops at 100 million cells.)
-# Spreadsheet programs write r first; literal prefixes keep these scans fast.
-_ROW_NUMBERS = (re.compile(rb'<row r="(\d+)"'), re.compile(rb':row r="(\d+)"'))
-_WIDE_CELLS = (re.compile(rb'<c r="([A-Z]{2,3})\d'), re.compile(rb':c r="([A-Z]{2,3})\d'))
+_UNICODE_MARKS = (b"\xff\xfe", b"\xfe\xff", b"\x00<", b"<\x00")
 
 
 @dataclass(frozen=True)
@@ -118,61 +135,73 @@ def inspect_archive(raw: RawFile, *, what: str) -> ArchiveFacts | None:
         for info in archive.infolist():
             macros = macros or "vbaproject" in info.filename.casefold()
             sheet = _is_sheet(info.filename)
-            rows = last_row = 0
-            widest = 1
+            rows = 0
+            scanner = _scanner(info.filename) if sheet else None
             tail = b""
             try:
                 with archive.open(info) as member:
                     while chunk := member.read(_CHUNK):
+                        if scanner is not None and not tail and chunk.startswith(_UNICODE_MARKS):
+                            raise InputError(
+                                f"cannot be read as a workbook (the sheet {info.filename} is "
+                                f"not stored as UTF-8 XML); expected {what} saved by a "
+                                f"spreadsheet program", file=raw.given)
                         total += len(chunk)
                         if total > MAX_UNZIPPED_BYTES:
                             raise _too_big(raw, what)
-                        if not sheet:
+                        if scanner is None:
                             continue
-                        rows += sum(chunk.count(tag) for tag in _ROW_TAGS)
                         window = tail + chunk
                         for feature, needles in _FEATURES.items():
                             if not found[feature] and any(n in window for n in needles):
                                 found[feature] = True
-                        for pattern in _ROW_NUMBERS:
-                            numbers = pattern.findall(window)
-                            if numbers:
-                                last_row = max(last_row, max(map(int, numbers)))
-                        for pattern in _WIDE_CELLS:
-                            for letters in set(pattern.findall(window)):
-                                widest = max(widest, _column_number(letters))
+                        scanner.feed(chunk)
                         tail = chunk[-_OVERLAP:]
+                    extent = scanner.close() if scanner is not None else Extent()
             except InputError:
                 raise
+            except ValueError as exc:  # the .ods scanner: XML not well formed, or a DTD
+                raise InputError(
+                    f"cannot be read as a workbook ({info.filename}: {exc}; the file is damaged "
+                    f"or was not written by a spreadsheet program); expected {what} saved by a "
+                    f"spreadsheet program",
+                    file=raw.given,
+                ) from None
             except Exception as exc:  # noqa: BLE001 - zlib.error, BadZipFile, unsupported methods
                 raise InputError(
                     f"cannot be read as a workbook (damaged member {info.filename}: {exc}); "
                     f"expected {what} saved by a spreadsheet program",
                     file=raw.given,
                 ) from None
-            rows = max(rows, last_row)
+            rows = max(rows, extent.rows)
             if rows > MAX_ROWS:
                 raise InputError(
                     f"a sheet of the workbook has {rows:,} rows; calib reads at most "
                     f"{MAX_ROWS:,} rows per sheet (split the export)",
                     file=raw.given,
                 )
-            if rows * widest > MAX_CELLS:
-                raise _too_many_cells(raw, rows, widest)
+            if isinstance(scanner, XlsxScanner) and extent.columns > XLSX_COLUMNS:
+                raise InputError(
+                    f"the sheet {info.filename} names column {extent.columns:,} (cell "
+                    f"{extent.corner}), past the {XLSX_COLUMNS:,} columns an .xlsx sheet can "
+                    f"hold; expected {what} saved by a spreadsheet program",
+                    file=raw.given,
+                )
+            if rows * max(extent.columns, 1) > MAX_CELLS:
+                raise _too_many_cells(raw, Extent(rows, max(extent.columns, 1)))
             most_rows = max(most_rows, rows)
     return ArchiveFacts(total, most_rows, macros=macros, **found)
 
 
-def _column_number(letters: bytes) -> int:
-    number = 0
-    for letter in letters:
-        number = number * 26 + letter - 64
-    return number
+def _scanner(name: str) -> XlsxScanner | OdsScanner:
+    return OdsScanner() if name == "content.xml" else XlsxScanner(rows=MAX_ROWS, cells=MAX_CELLS)
 
 
-def _too_many_cells(raw: RawFile, rows: int, columns: int) -> InputError:
+def _too_many_cells(raw: RawFile, extent: Extent) -> InputError:
+    rows, columns = extent.rows, extent.columns
     return InputError(
-        f"a sheet of the workbook reaches row {rows:,} and column {columns:,}; calib reads at "
+        f"a sheet of the workbook reaches row {rows:,} and column {columns:,} (cell "
+        f"{extent.corner}); calib reads at "
         f"most {MAX_CELLS:,} cells per sheet (delete stray cells far from the table, or split "
         f"the export)",
         file=raw.given,
@@ -222,6 +251,72 @@ def check_text_rows(lines: int, *, file: str) -> None:
             f"export)",
             file=file,
         )
+
+
+def check_text_width(text: str, delimiter: str, *, file: str) -> None:
+    """Refuse a text file with a line of more than :data:`MAX_COLUMNS` cells, before splitting it.
+
+    Counting delimiters costs little; splitting a line of a million cells would
+    build a million strings.  Delimiters inside quotes are counted too, so the
+    check may refuse early, never late.
+
+    Examples
+    --------
+    >>> check_text_width("a,b" + chr(10) + "," * 20_000, ",", file="wide.csv")
+    Traceback (most recent call last):
+    ...
+    calib.errors.InputError: wide.csv, row 2: the line holds 20,001 cells separated by ','; \
+calib reads at most 16,384 columns (a damaged file, or not a table?)
+    """
+    if text.count(delimiter) < MAX_COLUMNS:
+        return
+    for number, line in enumerate(text.split("\n"), start=1):
+        if len(line) >= MAX_COLUMNS and (cells := line.count(delimiter) + 1) > MAX_COLUMNS:
+            raise InputError(
+                f"the line holds {cells:,} cells separated by {delimiter!r}; calib reads at "
+                f"most {MAX_COLUMNS:,} columns (a damaged file, or not a table?)",
+                file=file, row=number,
+            )
+
+
+_VALUES = (("concentration", "concentration"), ("response", "response"),
+           ("is_response", "internal-standard response"),
+           ("analyte_response", "analyte response"))
+
+
+def check_magnitudes(points: object, *, file: str) -> None:
+    """Refuse a concentration or response that is infinite or outside the range the fit can use.
+
+    Parameters
+    ----------
+    points : iterable of Point
+        The points read.
+    file : str
+        The file, for messages.
+
+    Raises
+    ------
+    InputError
+        Naming the value and its cell, when a value is infinite, larger than
+        :data:`LARGEST_VALUE` or non-zero and smaller than its inverse.
+    """
+    low = 1.0 / LARGEST_VALUE
+    for point in points:  # type: ignore[attr-defined]
+        for name, words in _VALUES:
+            value = getattr(point, name, None)
+            if value is None or value != value:
+                continue  # no value (NaN marks a missing one, judged elsewhere)
+            size = abs(value)
+            if size <= LARGEST_VALUE and (size >= low or size == 0.0):
+                continue
+            where = f"in the row of {point.source_cell}" if name != "response" else (
+                f"in {point.source_cell}")
+            raise InputError(
+                f"found the {words} {value:g} {where}; expected a finite value of magnitude "
+                f"between {low:g} and {LARGEST_VALUE:g} (or zero): larger or smaller values "
+                f"overflow the fit (check the cell, or change the unit)",
+                file=file,
+            )
 
 
 # --- Excel 97-2003 (.xls): a compound file holding a BIFF8 record stream ---------------------
@@ -405,4 +500,4 @@ def check_xls(raw: RawFile, *, what: str = "an .xls workbook") -> None:
         raise _damaged_xls(raw, f"a cell record names column {columns:,}, past the 256 columns "
                                 f"an .xls sheet can hold")
     if rows * columns > MAX_CELLS:
-        raise _too_many_cells(raw, rows, columns)
+        raise _too_many_cells(raw, Extent(rows, columns))

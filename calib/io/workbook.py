@@ -1,7 +1,9 @@
 """Reading a run from a workbook (``.xlsx``, ``.xlsm``, ``.xls``, ``.ods``) with python-calamine.
 
 calamine reads the cell values a spreadsheet program saved (formulas are
-never evaluated, macros never run) and is fast on large exports.  Where it
+never evaluated, macros never run) and is fast on large exports.  It runs in
+a child process with a time and a memory limit (:mod:`calib.io.sandbox`)
+while this process checks the archive (:mod:`calib.io.limits`).  Where it
 gives less than calib needs (error values, hidden rows; see
 :mod:`calib.io.detail`) the reader asks openpyxl or the ODS XML, but only
 for workbooks whose archive scan found such features.
@@ -15,14 +17,11 @@ the run's warnings.
 
 from __future__ import annotations
 
-import io
 import os
 import re
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-
-import python_calamine
 
 from calib.errors import InputError
 from calib.io.assemble import assemble
@@ -31,7 +30,9 @@ from calib.io.detail import FormulaInspector, SheetDetail, ods_detail, xlsx_deta
 from calib.io.files import RawFile, load_file
 from calib.io.importmap import ImportMap
 from calib.io.layout import find_first_header
+from calib.io import limits
 from calib.io.limits import ArchiveFacts, check_sheet_size, check_xls, inspect_archive
+from calib.io.sandbox import BookData, SheetData, failure_error, limits_for, parse_workbook
 from calib.io.table import HEADER_SEARCH_ROWS, Grid
 from calib.options import SampleType
 from calib.run import Run, SourceInfo
@@ -55,20 +56,13 @@ def _what(raw: RawFile) -> str:
 
 
 @contextmanager
-def _calamine_errors(raw: RawFile, sheet: str | None = None) -> Iterator[None]:
-    """Turn whatever calamine raises into an InputError (no traceback reaches the user)."""
+def _reader_errors(raw: RawFile, sheet: str | None = None) -> Iterator[None]:
+    """Turn whatever a cell-detail reader raises into an InputError (never a traceback)."""
     what = _what(raw)
     try:
         yield
     except InputError:
         raise
-    except python_calamine.PasswordError:
-        raise InputError(
-            f"the workbook is password-protected; expected {what} without a password "
-            f"(save an unprotected copy)",
-            file=raw.given,
-            sheet=sheet,
-        ) from None
     except (KeyboardInterrupt, SystemExit):
         raise
     except BaseException as exc:  # noqa: BLE001 - a panic inside calamine is a BaseException
@@ -88,28 +82,32 @@ def _quoted(names: Sequence[str]) -> str:
 class _Book:
     """An open workbook whose sheets are parsed once, however often they are read."""
 
-    def __init__(self, raw: RawFile, facts: ArchiveFacts | None) -> None:
+    def __init__(self, raw: RawFile, facts: ArchiveFacts | None, data: BookData) -> None:
         self.raw = raw
         self.facts = facts
         self.suffix = raw.path.suffix.lower()
-        with _calamine_errors(raw):
-            self.book = python_calamine.CalamineWorkbook.from_filelike(io.BytesIO(raw.data))
-            self.names: list[str] = list(self.book.sheet_names)
-        self._sheets: dict[str, python_calamine.CalamineSheet] = {}
+        self.names: list[str] = data.names
+        self._data = data
+        self._handed: set[str] = set()
         self._ods: dict[str, SheetDetail] | None = None
         self._details: dict[str, SheetDetail] = {}
 
-    def close(self) -> None:
-        self.book.close()
+    def _sheet(self, name: str) -> SheetData:
+        sheet = self._data.sheets[name]
+        if sheet.failure is not None:
+            raise failure_error(self.raw, _what(self.raw), sheet.failure,
+                                memory=limits_for(len(self.raw.data))[0], sheet=name)
+        if sheet.end is not None:
+            check_sheet_size(sheet.end[0] + 1, sheet.end[1] + 1, file=self.raw.given, sheet=name)
+        return sheet
 
-    def _sheet(self, name: str) -> python_calamine.CalamineSheet:
-        if name not in self._sheets:
-            sheet = self.book.get_sheet_by_name(name)
-            end = sheet.end
-            if end is not None:
-                check_sheet_size(end[0] + 1, end[1] + 1, file=self.raw.given, sheet=name)
-            self._sheets[name] = sheet
-        return self._sheets[name]
+    def _rows(self, name: str, limit: int | None) -> list[list[Cell]]:
+        """The sheet's rows; the first full read gets the child's lists, later reads copies."""
+        rows = self._sheet(name).rows or []
+        if limit is None and name not in self._handed:
+            self._handed.add(name)
+            return rows  # type: ignore[return-value]
+        return [list(row) for row in rows[:limit]]  # type: ignore[misc]
 
     def _detail(self, name: str) -> SheetDetail | None:
         facts = self.facts
@@ -125,15 +123,10 @@ class _Book:
 
     def grid(self, name: str, *, limit: int | None = None) -> Grid:
         """The first ``limit`` rows of a sheet (all by default) as a Grid."""
-        with _calamine_errors(self.raw, name):
-            sheet = self._sheet(name)
-            # skip_empty_area=False keeps row 0 = spreadsheet row 1, so source cells are right.
-            rows: list[list[Cell]] = sheet.to_python(  # type: ignore[assignment]
-                skip_empty_area=False, nrows=limit
-            )
-            merges = sheet.merged_cell_ranges or []
+        rows = self._rows(name, limit)
+        merges = self._sheet(name).merges
         if name not in self._details:
-            with _calamine_errors(self.raw, name):
+            with _reader_errors(self.raw, name):
                 detail = self._detail(name) or SheetDetail()
             for (first_row, first_column), (last_row, last_column) in merges:
                 detail.merges.append((first_row, first_column, last_row, last_column))
@@ -158,12 +151,7 @@ class _Book:
 
     def visible(self) -> list[str]:
         """Names of the visible worksheets (no chart sheets), in workbook order."""
-        return [
-            meta.name
-            for meta in self.book.sheets_metadata
-            if meta.visible == python_calamine.SheetVisibleEnum.Visible
-            and meta.typ == python_calamine.SheetTypeEnum.WorkSheet
-        ]
+        return list(self._data.worksheets)
 
 
 def _xls_empty(row: int, column: int) -> str:
@@ -270,25 +258,28 @@ class WorkbookReader:
         if sheet is None and map is not None:
             sheet = map.sheet
         raw = load_file(Path(path), what=_what_for(path))
-        facts = inspect_archive(raw, what=_what(raw))
-        if facts is None:
-            check_xls(raw, what=_what(raw))
+
+        def checks() -> ArchiveFacts | None:
+            facts = inspect_archive(raw, what=_what(raw))
+            if facts is None:
+                check_xls(raw, what=_what(raw))
+            return facts
+
+        data, facts = parse_workbook(raw, what=_what(raw), max_rows=limits.MAX_ROWS,
+                                     max_cells=limits.MAX_CELLS, checks=checks)
         warnings = []
         if facts is not None and facts.macros:
             warnings.append("the workbook carries macros; calib read the saved cell values and "
                             "ran no macro")
-        book = _Book(raw, facts)
-        try:
-            base = SourceInfo(file=raw.name, sha256=raw.sha256)
-            if sheet is not None:
-                name = _named(book, sheet)
-                return self._one(book, name, base, analyte, map, warnings)
-            names = _candidates(book, map)
-            if len(names) == 1:
-                return self._one(book, names[0], base, analyte, map, warnings)
-            return self._several(book, names, base, analyte, map, warnings)
-        finally:
-            book.close()
+        book = _Book(raw, facts, data)
+        base = SourceInfo(file=raw.name, sha256=raw.sha256)
+        if sheet is not None:
+            name = _named(book, sheet)
+            return self._one(book, name, base, analyte, map, warnings)
+        names = _candidates(book, map)
+        if len(names) == 1:
+            return self._one(book, names[0], base, analyte, map, warnings)
+        return self._several(book, names, base, analyte, map, warnings)
 
     @staticmethod
     def _one(book: _Book, name: str, base: SourceInfo, analyte: str | None,

@@ -131,6 +131,12 @@ class SampleResult:
         its deviation only).
     deviation_pct : float or None
         A QC's 100·(found − nominal)/nominal.
+    content : float or None
+        The sample's content D·x₀·V/m when the file gives its weight m and
+        final volume V (:mod:`calib.quantify.amounts`); None otherwise or
+        outside the calibrated range.  ``reported`` then gives it with its unit.
+    content_unit : str or None
+        The content's unit (``mg/kg``) when weight and volume were given.
     """
 
     sample_id: str
@@ -151,6 +157,8 @@ class SampleResult:
     nominal: float | None = None
     found: float | None = None
     deviation_pct: float | None = None
+    content: float | None = None
+    content_unit: str | None = None
 
 
 def _finite(value: float) -> float | None:
@@ -220,6 +228,7 @@ def quantify_sample(
     """
     convention = convention or ReportingConvention()
     point = readings[0].point
+    per_content = _content_factor(curve, readings[0]) if refused is None else None
     kind = point.sample_type
     dilution = readings[0].dilution_factor
     usable = [r for r in readings if r.point.included and math.isfinite(r.point.response)]
@@ -227,7 +236,7 @@ def quantify_sample(
     nominal = point.concentration if kind is SampleType.QC else None
     pred: InversePrediction | None = None
     shown: tuple[float | None, ...] = (None, None, None, None)
-    found = deviation = None
+    found = deviation = content = None
     flags: list[str] = [Flag.FORCED.value] if forced else []
     if curve is not None and refused is None and curve.verdict == "needs-review":
         # A result is only as good as its curve: say so on every result read from it.
@@ -265,17 +274,41 @@ def quantify_sample(
                                             (Flag.BELOW_LOD, below_lod)) if on]
             reported = (convention.below_lod if below_lod else convention.below_lloq
                         if below_lloq else convention.number(dilution * x0))
+            if per_content is not None and shown[0] is not None:
+                content = _finite(shown[0] * per_content[0])
+                if not (below_lod or below_lloq) and content is not None:
+                    reported = f"{convention.number(content)} {per_content[1]}"
+                r0 = readings[0]
+                note = "; ".join(filter(None, [note, (
+                    f"content = C × V / m with V = {r0.volume_l:g} L, m = {r0.mass_kg:g} kg")]))
     return SampleResult(
         sample_id=point.sample_id or point.source_cell, analyte=point.analyte, sample_type=kind,
         readings=tuple(readings), n_replicates=len(usable), mean_response=mean,
         dilution_factor=dilution, prediction=pred, concentration=shown[0], std_error=shown[1],
         ci_low=shown[2], ci_high=shown[3], flags=tuple(flags), reported=reported, note=note,
-        nominal=nominal, found=found, deviation_pct=deviation,
+        nominal=nominal, found=found, deviation_pct=deviation, content=content,
+        content_unit=per_content[1] if per_content is not None else None,
     )
 
 
+def _content_factor(curve: CalibrationCurve | None, reading: Reading
+                    ) -> tuple[float, str] | None:
+    """V/m and the content unit when the sample has a weight and a final volume."""
+    if curve is None or reading.mass_kg is None or reading.volume_l is None:
+        return None
+    from calib.quantify.amounts import content_factor
+
+    try:
+        return content_factor(curve.unit, reading.volume_l, reading.mass_kg)
+    except ValueError as exc:
+        raise InputError(f"sample {reading.point.sample_id or reading.point.source_cell} "
+                         f"({reading.point.source_cell}) gives a sample weight and a final "
+                         f"volume, but {exc}: the content cannot be worked out (give the "
+                         f"curve's unit, for example with --map [units])") from None
+
+
 def group_readings(readings: Sequence[Reading]) -> list[list[Reading]]:
-    """Readings grouped into samples: same analyte, type, sample id and dilution factor.
+    """Readings grouped into samples: same analyte, type, sample id, dilution, weight and volume.
 
     Replicates at another dilution (a sample diluted and re-run) make a sample
     of their own; without a sample id each injection is one sample.
@@ -294,7 +327,7 @@ def group_readings(readings: Sequence[Reading]) -> list[list[Reading]]:
         p = r.point
         # Without a sample id every injection is a sample of its own.
         key = (p.analyte, p.sample_type.value, p.sample_id if p.sample_id else p.source_cell,
-               r.dilution_factor)
+               r.dilution_factor, r.mass_kg, r.volume_l)
         groups.setdefault(key, []).append(r)
     return list(groups.values())
 

@@ -67,6 +67,9 @@ class CalibrationCurve:
         How the LOD was worked out.
     unit : str or None
         Concentration unit.
+    response_basis : str or None
+        ``raw`` (the standards' own responses) or ``ratio`` (ratios to an
+        internal standard); None for a record issued before calib stated it.
     """
 
     analyte: str
@@ -87,12 +90,14 @@ class CalibrationCurve:
     loq: float | None = None
     lod_method: str | None = None
     unit: str | None = field(default=None)
+    response_basis: str | None = None
 
     # -- construction --------------------------------------------------------------------------
     @classmethod
     def from_fit(cls, fit: CurveFit, *, analyte: str, verdict: str = "accepted",
                  lod: float | None = None, loq: float | None = None,
-                 lod_method: str | None = None, unit: str | None = None) -> CalibrationCurve:
+                 lod_method: str | None = None, unit: str | None = None,
+                 response_basis: str | None = None) -> CalibrationCurve:
         """The curve of a live fit.
 
         Examples
@@ -115,12 +120,15 @@ class CalibrationCurve:
             weight_scale=float(fit.weight_scale), level_variances=levels,
             x=np.array(fit.x, dtype=float), y=np.array(fit.y, dtype=float), verdict=verdict,
             lod=_finite(lod), loq=_finite(loq), lod_method=lod_method, unit=unit,
+            response_basis=response_basis,
         )
 
     @classmethod
     def from_assessment(cls, curve: CurveAssessment, *, unit: str | None = None
                         ) -> CalibrationCurve | None:
         """The curve of a checked analyte; None when its standards could not be fitted."""
+        from calib.record.document import response_basis
+
         if curve.fit is None:
             return None
         return cls.from_fit(
@@ -128,6 +136,7 @@ class CalibrationCurve:
             lod=curve.lod.value if curve.lod is not None else None,
             loq=curve.loq.value if curve.loq is not None else None,
             lod_method=curve.lod.method if curve.lod is not None else None, unit=unit,
+            response_basis=response_basis(curve),
         )
 
     # -- figures -------------------------------------------------------------------------------
@@ -275,7 +284,17 @@ def _record_curve(curve: Mapping[str, Any], details: Mapping[str, Any], *, where
         residual_sd=sd, residual_df=df, weight_scale=scale, level_variances=levels, x=x, y=y,
         verdict=str(curve.get("verdict")), lod=_finite(lod.get("value")),
         loq=_finite(loq.get("value")), lod_method=lod.get("method"), unit=unit,
+        response_basis=_basis(curve.get("response_basis"), where),
     )
+
+
+def _basis(value: Any, where: str) -> str | None:
+    if value is None:
+        return None  # issued before records stated it
+    if value not in ("raw", "ratio"):
+        raise InputError(f"{where}: the stored response basis {value!r} is neither 'raw' nor "
+                         f"'ratio'")
+    return str(value)
 
 
 def curves_from_record(body: Mapping[str, Any], *, label: str = "record"

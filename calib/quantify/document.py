@@ -14,7 +14,9 @@ Each sample: ``sample_id``, ``analyte``, ``sample_type``, ``n_replicates``,
 (dilution applied; null outside the calibrated range), ``confidence``,
 ``dilution_factor``, ``flags``, ``reported``, ``note``, ``source_cells``,
 ``set_aside`` (readings not used, with the reason) and, for QCs, ``nominal``,
-``found`` and ``deviation_pct``.  Numbers keep full double precision; what
+``found`` and ``deviation_pct``; ``content`` and ``content_unit`` (the
+sample's content C × V / m, null without a weight and final volume) with
+``sample_weight_kg`` and ``final_volume_l``.  Numbers keep full double precision; what
 cannot be computed is null.  The PDF and XLSX writers render this document,
 never live objects.
 """
@@ -64,6 +66,10 @@ def _sample(r: SampleResult) -> dict[str, Any]:
         "nominal": _num(r.nominal),
         "found": _num(r.found),
         "deviation_pct": _num(r.deviation_pct),
+        "content": _num(r.content),
+        "content_unit": r.content_unit,
+        "sample_weight_kg": r.readings[0].mass_kg,
+        "final_volume_l": r.readings[0].volume_l,
         "source_cells": [x.point.source_cell for x in r.readings],
         "set_aside": [{"source_cell": x.point.source_cell,
                        "reason": x.point.exclusion_reason or "no usable response"}

@@ -4,13 +4,19 @@ A samples file is a long table, one row per injection, under a header row
 that may have title lines above it::
 
     Sample ID | Analyte | Sample type | Response | IS response | Dilution factor | Replicate | Nominal
+    Sample weight (g) | Final volume (mL)
 
 Only ``response`` is required, with at least one of ``sample_id``,
 ``analyte``, ``sample_type``, ``concentration`` (a QC's nominal) or
 ``dilution_factor`` beside it.  Headings are matched as the run importer
 matches them (:mod:`calib.io.columns`); the dilution factor, which a run file
 does not carry, is recognised here ("Dilution", "Dilution factor", "DF",
-"Verdünnungsfaktor"...).  A blank dilution cell means 1.
+"Verdünnungsfaktor"...).  A blank dilution cell means 1; a factor below 1
+(a concentrated sample, or a factor entered upside down) is refused unless
+the caller confirms it.  A sample weight and a final volume, with their units
+in the headings, turn the concentration into the sample's content
+(:mod:`calib.quantify.amounts`); one without the other is refused.  An import
+map (``--map``) names headings the detection does not know.
 
 The sample type comes from a type cell or the sample name (``QC-L``,
 ``LQC``); a row whose name says nothing is a QC when it gives a nominal
@@ -19,47 +25,46 @@ the file are left out (and listed in the notes).  A response that is a
 non-detect marker, an error value or empty sets the injection aside with the
 reason, as the run importer does.  The file's cells are read with the run
 importer's cell rules (:mod:`calib.io.cells`); workbooks are read with
-python-calamine after the same archive limits (:mod:`calib.io.limits`).
+python-calamine in the same time- and memory-limited child process as run
+files (:mod:`calib.io.sandbox`), after the same archive limits
+(:mod:`calib.io.limits`).
 """
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 import os
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-import python_calamine
-
 from calib.errors import InputError
 from calib.io.cells import Cell, CellError, is_blank, to_flag, to_integer, to_number, to_text
-from calib.io.columns import column_letter, match_heading, split_unit, squash
-from calib.io.csv_text import DELIMITERS, decode_text
-from calib.io.files import RawFile, load_file
-from calib.io.limits import check_sheet_size, check_text_rows, check_xls, inspect_archive
+from calib.io.columns import column_letter
+from calib.io.files import load_file
+from calib.io.limits import check_magnitudes
 from calib.io.numbers import find_marker
 from calib.io.sampletypes import SampleTyper, type_from_name
-from calib.io.table import HEADER_SEARCH_ROWS, Grid
+from calib.io.table import Grid
 from calib.options import SampleType
+from calib.quantify.samplefile import (
+    DILUTION_HEADINGS,
+    SAMPLE_MAP_COLUMNS,
+    VOLUME_HEADINGS,
+    WEIGHT_HEADINGS,
+    SamplesMap,
+    book_grid,
+    find_header,
+    load_samples_map,
+    no_header,
+    text_grid,
+)
 from calib.run import Point, Run, SourceInfo
 
-__all__ = ["DILUTION_HEADINGS", "Reading", "SampleSheet", "dilution_of", "read_samples",
-           "readings_from_run"]
+__all__ = ["DILUTION_HEADINGS", "SAMPLE_MAP_COLUMNS", "VOLUME_HEADINGS", "WEIGHT_HEADINGS",
+           "Reading", "SampleSheet", "SamplesMap", "dilution_of", "load_samples_map",
+           "read_samples", "readings_from_run"]
 
-DILUTION_HEADINGS: tuple[str, ...] = (
-    "dilution", "dilution factor", "dil factor", "dil", "df", "fold dilution", "dilution fold",
-    "verdünnung", "verdünnungsfaktor", "vf", "facteur de dilution", "dilution (facteur)",
-    "dilución", "factor de dilución",
-)
-"""Headings of the dilution factor column (compared after :func:`calib.io.columns.squash`)."""
-
-_DILUTION = frozenset(squash(h) for h in DILUTION_HEADINGS)
-_COLUMNS = ("analyte", "sample_type", "concentration", "response", "is_response", "replicate",
-            "include", "exclusion_reason", "sample_id", "injection_order", "level",
-            "dilution_factor")
-_BESIDE = ("sample_id", "analyte", "sample_type", "concentration", "dilution_factor")
 _TEXT = (".csv", ".tsv", ".txt")
 _BOOKS = (".xlsx", ".xlsm", ".xls", ".ods")
 _WHAT = "a samples table (.xlsx, .xlsm, .xls, .ods, .csv, .tsv or .txt)"
@@ -76,10 +81,15 @@ class Reading:
         ``concentration`` is its nominal, an unknown's is ``nan``).
     dilution_factor : float
         Factor the measured concentration is multiplied by (1 = undiluted).
+    mass_kg, volume_l : float or None
+        Sample weight (kg) and final volume (L) when the file gives them: the
+        result is then the content C × V / m (:mod:`calib.quantify.amounts`).
     """
 
     point: Point
     dilution_factor: float = 1.0
+    mass_kg: float | None = None
+    volume_l: float | None = None
 
 
 @dataclass(frozen=True)
@@ -96,12 +106,16 @@ class SampleSheet:
         ``{"concentration": unit}`` when the nominal heading gives one.
     notes : tuple of str
         Rows left out (standards, blanks), in plain words.
+    internal_standard : str or None
+        The internal-standard response column (letter and heading) when the
+        file has one and its ratios were formed; None otherwise.
     """
 
     source: SourceInfo
     readings: tuple[Reading, ...]
     units: dict[str, str]
     notes: tuple[str, ...] = ()
+    internal_standard: str | None = None
 
 
 def dilution_of(point: Point) -> float:
@@ -130,66 +144,67 @@ def readings_from_run(run: Run) -> tuple[Reading, ...]:
                  if p.sample_type in (SampleType.UNKNOWN, SampleType.QC))
 
 
-def _heading(cell: Cell) -> tuple[str | None, str | None]:
-    text = to_text(cell) if isinstance(cell, str) else None
-    if text is None:
-        return None, None
-    name, unit = split_unit(text)
-    if squash(name) in _DILUTION or squash(text) in _DILUTION:
-        return "dilution_factor", None
-    found, unit = match_heading(text)
-    return (found, unit) if found in _COLUMNS else (None, None)
-
-
-def _header(grid: Grid, index: int) -> dict[str, tuple[int, str, str | None]] | None:
-    """Columns of a header row: name → (index, heading, unit); None if it is no header."""
-    columns: dict[str, tuple[int, str, str | None]] = {}
-    for col, cell in enumerate(grid.rows[index]):
-        name, unit = _heading(cell)
-        if name is None:
-            continue
-        if name in columns:
-            first = columns[name]
-            raise grid.error(
-                f"two columns name the {name.replace('_', ' ')}: {column_letter(first[0])} "
-                f"({first[1]}) and {column_letter(col)} ({to_text(cell)}); keep one", row=index)
-        columns[name] = (col, str(to_text(cell)), unit)
-    if "response" in columns and any(k in columns for k in _BESIDE):
-        return columns
-    return None
-
-
-def _find_header(grid: Grid) -> tuple[int, dict[str, tuple[int, str, str | None]]] | None:
-    for index in range(min(len(grid.rows), HEADER_SEARCH_ROWS)):
-        columns = _header(grid, index)
-        if columns is not None:
-            return index, columns
-    return None
-
-
-def _no_header(grid: Grid) -> InputError:
-    return grid.error(
-        f"no samples table found in the first {HEADER_SEARCH_ROWS} rows: expected a header row "
-        "naming the response (Response, Area, Height...) and beside it the sample id, analyte, "
-        "sample type, nominal concentration or dilution factor")
-
-
 class _TableReader:
     """Turns the body rows under a header into readings."""
 
     def __init__(self, grid: Grid, header_row: int, columns: dict[str, tuple[int, str, str | None]],
-                 *, analyte: str | None, decimal: str | None) -> None:
+                 *, analyte: str | None, decimal: str | None, internal_standard: bool = True,
+                 dilution_below_one: bool = False,
+                 patterns: Mapping[SampleType, tuple[str, ...]] | None = None) -> None:
         self.grid = grid
         self.header_row = header_row
         self.columns = columns
         self.analyte = analyte
         self.decimal = decimal
-        self.typer = SampleTyper()
+        self.ratios = internal_standard and "is_response" in columns
+        self.dilution_below_one = dilution_below_one
+        self.typer = SampleTyper(patterns=dict(patterns or {}))
         self.readings: list[Reading] = []
         self.notes: list[str] = []
         if "analyte" not in columns and analyte is None:
             raise grid.error("the samples table has no analyte column; add one, or quantify "
                              "against a curve of a single analyte", row=header_row)
+        self.mass_unit = self.volume_unit = 1.0
+        self._amount_columns()
+
+    def _amount_columns(self) -> None:
+        """Check the sample weight and final volume columns: both or neither, with units."""
+        from calib.quantify.amounts import mass_in_kg, volume_in_litres
+
+        weight, volume = self.columns.get("sample_weight"), self.columns.get("final_volume")
+        if weight is None and volume is None:
+            return
+        if weight is None or volume is None:
+            have, lack = (("sample weight", "final volume") if volume is None
+                          else ("final volume", "sample weight"))
+            index, heading, _ = weight or volume  # type: ignore[misc]
+            raise self.grid.error(
+                f"the samples table gives the {have} (column {column_letter(index)}, {heading}) "
+                f"but no {lack}; the content C × V / m needs both: add the {lack} column, or "
+                f"remove the {have} column to report concentrations", row=self.header_row)
+        for (index, heading, unit), convert, kind, example in (
+                (weight, mass_in_kg, "mass", "Sample weight (g)"),
+                (volume, volume_in_litres, "volume", "Final volume (mL)")):
+            factor = convert(unit)
+            if factor is None:
+                found = f"the unit {unit!r}" if unit else "no unit"
+                raise self.grid.error(
+                    f"found {found} in the heading {heading!r}; expected a {kind} unit in the "
+                    f"heading, such as {example!r}", row=self.header_row,
+                    column=column_letter(index))
+            if kind == "mass":
+                self.mass_unit = factor
+            else:
+                self.volume_unit = factor
+
+    def amount(self, row_index: int, row: list[Cell], name: str, what: str) -> float | None:
+        value = self.number(row_index, row, name, f"the {what} (a number above 0)")
+        if value is None:
+            return None
+        if not value > 0:
+            raise self.fail(row_index, name, f"found the {what} {value:g}; expected a number "
+                                             f"above 0")
+        return value
 
     def cell(self, row: list[Cell], name: str) -> Cell:
         if name not in self.columns:
@@ -264,12 +279,29 @@ class _TableReader:
         if dilution is not None and not dilution > 0:
             raise self.fail(row_index, "dilution_factor", f"found the dilution factor "
                                                           f"{dilution:g}; expected a number above 0")
+        if dilution is not None and dilution < 1 and not self.dilution_below_one:
+            raise self.fail(
+                row_index, "dilution_factor",
+                f"found the dilution factor {dilution:g}, below 1: the result would be "
+                f"multiplied by {dilution:g}, as for a sample concentrated before measuring; "
+                f"expected a factor of 1 or more (a 1 + 9 dilution is 10); if the sample was "
+                f"concentrated, confirm with --dilution-below-one")
+        mass = self.amount(row_index, row, "sample_weight", "sample weight")
+        volume = self.amount(row_index, row, "final_volume", "final volume")
+        if "sample_weight" in self.columns and (mass is None or volume is None) and (
+                kind is SampleType.UNKNOWN or (mass, volume) != (None, None)):
+            # A QC is a solution: it may leave both empty; an unknown may not leave either.
+            name_ = "sample_weight" if mass is None else "final_volume"
+            what = "sample weight" if mass is None else "final volume"
+            raise self.fail(row_index, name_, f"found an empty cell; expected the {what} (a "
+                                              f"number above 0; only a QC may leave the weight "
+                                              f"and the volume both empty)")
         reasons: list[str] = []
         response, why = self.measured(row_index, row, "response", "response")
         if why:
             reasons.append(why)
         analyte_response = is_response = None
-        if "is_response" in self.columns and not why:
+        if self.ratios and not why:
             is_value, is_why = self.measured(row_index, row, "is_response",
                                              "internal-standard response")
             analyte_response = response
@@ -309,7 +341,10 @@ class _TableReader:
         )
         if not point.analyte:
             raise self.fail(row_index, "analyte", "found an empty cell; expected the analyte name")
-        self.readings.append(Reading(point, 1.0 if dilution is None else float(dilution)))
+        self.readings.append(Reading(
+            point, 1.0 if dilution is None else float(dilution),
+            mass_kg=None if mass is None else mass * self.mass_unit,
+            volume_l=None if volume is None else volume * self.volume_unit))
 
     def read(self) -> None:
         seen_gap = False
@@ -324,76 +359,10 @@ class _TableReader:
             self.row(row_index, row)
 
 
-def _text_grid(raw: RawFile) -> tuple[Grid, SourceInfo, str | None]:
-    text, encoding = decode_text(raw)
-    check_text_rows(text.count("\n"), file=raw.given)
-    order = list(DELIMITERS)
-    if raw.path.suffix.lower() == ".tsv":
-        order.remove("\t")
-        order.insert(0, "\t")
-    first: Grid | None = None
-    for delimiter in order:
-        try:
-            rows: list[list[Cell]] = list(csv.reader(io.StringIO(text, newline=""),
-                                                     delimiter=delimiter))
-        except csv.Error as exc:
-            raise InputError(f"cannot be split into cells ({exc}); expected {_WHAT}",
-                             file=raw.given) from None
-        grid = Grid(rows, file=raw.given, label=raw.name)
-        first = first or grid
-        if _find_header(grid) is not None:
-            source = SourceInfo(file=raw.name, sha256=raw.sha256, encoding=encoding,
-                                delimiter=delimiter)
-            return grid, source, "," if delimiter == ";" else None
-    raise _no_header(first)  # type: ignore[arg-type]
-
-
-def _book_grid(raw: RawFile, sheet: str | int | None) -> tuple[Grid, SourceInfo]:
-    what = f"a workbook ({raw.path.suffix.lower()})"
-    if inspect_archive(raw, what=what) is None:
-        check_xls(raw, what=what)
-    try:
-        book = python_calamine.CalamineWorkbook.from_filelike(io.BytesIO(raw.data))
-    except Exception as exc:  # noqa: BLE001 - calamine raises several unrelated types
-        raise InputError(f"cannot be read as a workbook ({exc}); expected {what} saved by a "
-                         "spreadsheet program", file=raw.given) from None
-    names = list(book.sheet_names)
-    if sheet is not None:
-        if isinstance(sheet, int):
-            if not 0 <= sheet < len(names):
-                raise InputError(f"the workbook has {len(names)} sheet(s); sheet index {sheet} "
-                                 "does not exist (indexes start at 0)", file=raw.given)
-            candidates = [names[sheet]]
-        elif sheet not in names:
-            raise InputError(f"no sheet named {sheet!r}; the sheets are "
-                             f"{', '.join(map(repr, names))}", file=raw.given)
-        else:
-            candidates = [sheet]
-    else:
-        candidates = names
-    for name in candidates:
-        try:
-            data = book.get_sheet_by_name(name)
-            end = data.end
-            if end is not None:
-                check_sheet_size(end[0] + 1, end[1] + 1, file=raw.given, sheet=name)
-            rows = data.to_python(skip_empty_area=False)
-        except InputError:
-            raise
-        except Exception as exc:  # noqa: BLE001
-            raise InputError(f"cannot be read ({exc})", file=raw.given, sheet=name) from None
-        grid = Grid(rows, file=raw.given, label=name, sheet=name)
-        if _find_header(grid) is not None or sheet is not None:
-            return grid, SourceInfo(file=raw.name, sha256=raw.sha256, sheet=name,
-                                    sheets=(name,))
-    raise InputError(f"no sheet holds a samples table: expected a header row naming the "
-                     f"response and the sample id, analyte, sample type, nominal concentration "
-                     f"or dilution factor (sheets: {', '.join(map(repr, names))})",
-                     file=raw.given)
-
-
 def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None,
-                 analyte: str | None = None) -> SampleSheet:
+                 analyte: str | None = None, map: SamplesMap | None = None,
+                 internal_standard: bool = True,
+                 dilution_below_one: bool = False) -> SampleSheet:
     """Read the unknowns and QCs of a samples file.
 
     Parameters
@@ -405,6 +374,14 @@ def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None
         holding a samples table.
     analyte : str, optional
         Analyte of every row when the table has no analyte column.
+    map : SamplesMap, optional
+        Import map (:func:`load_samples_map`): headings, sheet, header row,
+        text settings, units and sample-type patterns.
+    internal_standard : bool
+        Form the ratio to the internal standard when the file has its column
+        (True); False reads the raw responses and leaves that column aside.
+    dilution_below_one : bool
+        Accept dilution factors below 1 (a concentrated sample); refused otherwise.
 
     Returns
     -------
@@ -436,22 +413,37 @@ def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None
         found = f"the file type {suffix!r}" if suffix else "a file name without an extension"
         raise InputError(f"found {found}; expected {_WHAT}", file=str(path))
     raw = load_file(path, what=_WHAT)
+    base = map.base if map is not None else None
+    if sheet is None and base is not None:
+        sheet = base.sheet
+    if analyte is None and base is not None:
+        analyte = base.analyte
     decimal: str | None = None
     if suffix in _TEXT:
         if sheet is not None:
             raise InputError(f"a text file has no sheets; got sheet {sheet!r} (leave the sheet "
                              "out)", file=raw.given)
-        grid, source, decimal = _text_grid(raw)
+        grid, source, decimal = text_grid(raw, map)
     else:
-        grid, source = _book_grid(raw, sheet)
-    found = _find_header(grid)
+        grid, source = book_grid(raw, sheet, map)
+    found = find_header(grid, map)
     if found is None:
-        raise _no_header(grid)
+        raise no_header(grid, map)
     header_row, columns = found
-    reader = _TableReader(grid, header_row, columns, analyte=analyte, decimal=decimal)
+    reader = _TableReader(grid, header_row, columns, analyte=analyte, decimal=decimal,
+                          internal_standard=internal_standard,
+                          dilution_below_one=dilution_below_one,
+                          patterns=base.sample_types if base is not None else None)
     reader.read()
+    check_magnitudes((r.point for r in reader.readings), file=raw.given)
     units = {}
     if "concentration" in columns and columns["concentration"][2]:
         units["concentration"] = str(columns["concentration"][2])
+    elif base is not None and base.units.get("concentration"):
+        units["concentration"] = str(base.units["concentration"])
+    is_column = None
+    if reader.ratios:
+        index, heading, _ = columns["is_response"]
+        is_column = f"column {column_letter(index)} ({heading})"
     return SampleSheet(replace(source, layout="long"), tuple(reader.readings), units,
-                       tuple(reader.notes))
+                       tuple(reader.notes), internal_standard=is_column)

@@ -183,6 +183,7 @@ def load_curves(
     model: str | None = None,
     weighting: str | None = None,
     confidence: float | None = None,
+    map: str | Path | None = None,
 ) -> CurveSource:
     """Read the curves of a run file or an issued record.
 
@@ -198,6 +199,8 @@ def load_curves(
         rule (the record's own profile when None).
     model, weighting, confidence : optional
         Run files only: override the profile's defaults, as in ``calib check``.
+    map : str or Path, optional
+        Run files only: the import map of the run file.
 
     Returns
     -------
@@ -214,7 +217,7 @@ def load_curves(
     """
     if is_record_file(path):
         given = [name for name, value in (("model", model), ("weighting", weighting),
-                                          ("sheet", sheet)) if value is not None]
+                                          ("sheet", sheet), ("map", map)) if value is not None]
         if given:
             raise ValueError(f"{' and '.join(given)} apply to a run file; the curve of an "
                              "issued record is fixed (its model and weighting were reviewed)")
@@ -222,5 +225,5 @@ def load_curves(
     from calib.workflow import check_file
 
     assessment = check_file(path, sheet=sheet, profile=profile or "default", model=model,
-                            weighting=weighting, confidence=confidence)
+                            weighting=weighting, confidence=confidence, map=map)
     return _from_assessment(assessment)

@@ -10,7 +10,7 @@ from calib import __version__
 from calib.checks.evaluate import CurveAssessment, RunAssessment
 from calib.checks.result import verdict_reasons
 
-__all__ = ["CHECK_SCHEMA", "check_document", "finite_or_none"]
+__all__ = ["CHECK_SCHEMA", "check_document", "finite_or_none", "response_basis"]
 
 CHECK_SCHEMA = "calib.check/1"
 
@@ -71,6 +71,8 @@ def curve_document(curve: CurveAssessment) -> dict[str, Any]:
     used = [s for s in curve.standards if s.used]
     return {
         "analyte": curve.analyte,
+        # Samples must be read on the same basis (calib.quantify refuses another).
+        "response_basis": response_basis(curve),
         "model": curve.model.value,
         "weighting": curve.weighting.value,
         "confidence": curve.confidence,
@@ -131,6 +133,11 @@ def _refit(curve: CurveAssessment) -> dict[str, Any] | None:
             "checks": checks,
         },
     }
+
+
+def response_basis(curve: CurveAssessment) -> str:
+    """``ratio`` when the standards' responses are ratios to an internal standard, else ``raw``."""
+    return "ratio" if any(s.point.is_response is not None for s in curve.standards) else "raw"
 
 
 def _checks(curve: CurveAssessment) -> list[dict[str, Any]]:

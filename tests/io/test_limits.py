@@ -58,8 +58,9 @@ def test_sheet_whose_used_range_is_too_large(write_xlsx, monkeypatch):
     path = write_xlsx({"Run": rows + [[None] * 2000 + ["stray"]]})
     monkeypatch.setattr(limits, "MAX_CELLS", 5_000)
     assert message(path) == (
-        f"{path}: a sheet of the workbook reaches row 6 and column 2,001; calib reads at most "
-        f"5,000 cells per sheet (delete stray cells far from the table, or split the export)"
+        f"{path}: a sheet of the workbook reaches row 6 and column 2,001 (cell BXY6); calib reads "
+        f"at most 5,000 cells per sheet (delete stray cells far from the table, or split the "
+        f"export)"
     )
 
 
@@ -74,9 +75,9 @@ def test_one_stray_cell_in_the_last_row_and_column(tmp_path):
     path = tmp_path / "stray.xlsx"
     book.save(path)
     assert message(path) == (
-        f"{path}: a sheet of the workbook reaches row 1,048,576 and column 16,384; calib reads "
-        f"at most 40,000,000 cells per sheet (delete stray cells far from the table, or split "
-        f"the export)"
+        f"{path}: a sheet of the workbook reaches row 1,048,576 and column 16,384 (cell "
+        f"XFD1048576); calib reads at most 40,000,000 cells per sheet (delete stray cells far "
+        f"from the table, or split the export)"
     )
 
 

@@ -23,7 +23,7 @@ CHECK_KEYS = {"id", "title", "verdict", "severity", "value", "limit", "detail"}
 COEF_KEYS = {"estimate", "std_error", "t_value", "p_value", "ci_low", "ci_high"}
 # Added beside the SPEC §7 keys, documented in calib/record/schemas/check-1.json.
 EXTENSION_KEYS = {"exclusions"}
-CURVE_EXTENSION_KEYS = {"reasons", "working_range", "refit"}
+CURVE_EXTENSION_KEYS = {"reasons", "working_range", "refit", "response_basis"}
 
 
 def test_check_document_has_exactly_the_spec_keys(norris_run):

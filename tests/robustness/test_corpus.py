@@ -91,6 +91,31 @@ UNUSABLE = {
     "zip_bomb_600_mb_sheet.xlsx": "expands to more than 500,000,000 bytes",
     "two_million_empty_rows.xlsx": "has 2,000,011 rows; calib reads at most 2,000,000",
     "two_million_empty_lines.csv": "has 2,000,011 lines; calib reads at most 2,000,000",
+    "one_million_columns.csv": "row 1: the line holds 1,000,000 cells separated by ','; calib "
+                               "reads at most 16,384 columns",
+    "response_of_1e308_overflows_the_fit.csv": "found the response 1e+308 in "
+                                               "response_of_1e308_overflows_the_fit.csv!D4; "
+                                               "expected a finite value of magnitude between "
+                                               "1e-30 and 1e+30",
+    "concentration_of_1e-300.csv": "found the concentration 1e-300 in the row of "
+                                   "'concentration_of_1e-300.csv'!D2; expected a finite value",
+    "truncated_xls_where_the_reader_panics.xls": "sector allocation table is missing",
+    "stray_cell_attributes_in_another_order.xlsx": "reaches row 1,048,576 and column 16,384 "
+                                                   "(cell XFD1048576); calib reads at most "
+                                                   "40,000,000 cells per sheet",
+    "stray_cell_with_namespace_prefix.xlsx": "reaches row 1,048,576 and column 16,384 (cell "
+                                             "XFD1048576); calib reads at most 40,000,000",
+    "stray_cell_in_single_quotes_with_spaces.xlsx": "reaches row 1,048,576 and column 16,384 "
+                                                    "(cell XFD1048576)",
+    "stray_cell_written_with_a_character_reference.xlsx": "reaches row 1,048,576 and column "
+                                                          "16,384 (cell XFD1048576)",
+    "stray_cell_after_a_quoted_closing_bracket.xlsx": "reaches row 1,048,576 and column 16,384 "
+                                                      "(cell XFD1048576)",
+    "sheet_xml_in_utf16.xlsx": "the sheet xl/worksheets/sheet1.xml is not stored as UTF-8 XML",
+    "ods_table_never_closed.ods": "content.xml: the XML is not well formed (mismatched tag",
+    "ods_one_cell_repeated_over_a_billion_cells.ods": "reaches row 1,000,011 and column "
+                                                      "100,000 (cell EQXD1000011); calib reads "
+                                                      "at most 40,000,000 cells per sheet",
 }
 """File → part of its one-line message (exit 3)."""
 
@@ -231,7 +256,9 @@ def test_readable_file_gives_a_verdict_and_its_record(outcomes, name):
 
 @pytest.mark.parametrize("name", ["password_protected_workbook.xlsx",
                                   "compound_file_directory_in_a_circle.xls",
-                                  "xml_entity_expansion_bomb.xlsx"])
+                                  "xml_entity_expansion_bomb.xlsx",
+                                  "stray_cell_with_namespace_prefix.xlsx",
+                                  "ods_table_never_closed.ods"])
 def test_a_fresh_interpreter_refuses_hostile_files(tmp_path, name):
     env = {**os.environ, "PYTHONPATH": str(ROOT), "NO_COLOR": "1"}
     env.pop("CALIB_ARCHIVE", None)

@@ -6,9 +6,11 @@ Every file is named for what is wrong with it.  Run from anywhere::
     python tests/data/bad/make_corpus.py OUT_DIR    # writes them (and the large ones) elsewhere
 
 Files that would be larger than about 200 kB on disk (the zip bomb, the sheet with two
-million empty rows, the text file with two million empty lines) are listed in
+million empty rows, the text file with two million empty lines, the header of a million
+cells) are listed in
 :data:`LARGE` and built at test time by :func:`write_large`; the small ones are committed.
-Nothing here is random: the same script writes the same bytes (zip timestamps are fixed).
+Nothing here is random: the same script writes the same bytes (zip timestamps are fixed,
+and XML written by openpyxl is put in canonical form, whether or not lxml is installed).
 """
 
 from __future__ import annotations
@@ -17,6 +19,7 @@ import io
 import sys
 import zipfile
 from collections.abc import Callable
+from xml.etree.ElementTree import canonicalize
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
@@ -117,13 +120,20 @@ def _openpyxl(rows: list[list[object]], *, edit: Callable | None = None) -> byte
 
 
 def _restamp(data: bytes) -> bytes:
-    """Rewrite a zip with fixed timestamps and metadata so the bytes are reproducible."""
+    """Rewrite a zip with fixed timestamps, metadata and XML spelling so the bytes are reproducible.
+
+    openpyxl spells the same XML differently with and without lxml installed (``<a/>`` or
+    ``<a />``, where namespaces are declared), so every XML member is rewritten in its
+    canonical form (W3C Canonical XML 2.0, :func:`xml.etree.ElementTree.canonicalize`).
+    """
     src = zipfile.ZipFile(io.BytesIO(data))
     members = {}
     for info in src.infolist():
         body = src.read(info)
         if info.filename == "docProps/core.xml":
             body = b""
+        elif info.filename.endswith((".xml", ".rels")):
+            body = canonicalize(body.decode("utf-8")).encode("utf-8")
         members[info.filename] = body
     members = {k: v for k, v in members.items() if v}
     return _zip(members)
@@ -257,6 +267,25 @@ def _stray_cell() -> bytes:
     return _hand_xlsx(sheet)
 
 
+def _stray_cell_written(tail: bytes, *, prefix: bytes = b"") -> bytes:
+    """The ordinary table plus one stray cell spelled ``tail`` (elements under ``prefix``)."""
+    rows = _inline_rows(_table())
+    if prefix:
+        for tag in (b"row", b"c ", b"c>", b"v>", b"is>", b"t>"):
+            rows = rows.replace(b"<" + tag, b"<" + prefix + tag)
+            rows = rows.replace(b"</" + tag, b"</" + prefix + tag)
+        opening = (b'<?xml version="1.0" encoding="UTF-8"?><x:worksheet xmlns:x="http://schemas.'
+                   b'openxmlformats.org/spreadsheetml/2006/main"><x:sheetData>')
+        return _hand_xlsx(opening + rows + tail + b"</x:sheetData></x:worksheet>")
+    return _hand_xlsx(_SHEET_OPEN + b"<sheetData>" + rows + tail + b"</sheetData></worksheet>")
+
+
+def _utf16_sheet() -> bytes:
+    sheet = (_SHEET_OPEN.replace(b"UTF-8", b"UTF-16") + b"<sheetData>" + _inline_rows(_table())
+             + b"</sheetData></worksheet>")
+    return _hand_xlsx(b"\xff\xfe" + sheet.decode().encode("utf-16-le"))
+
+
 def _missing_shared_string() -> bytes:
     rows = _table()
     sheet = (_SHEET_OPEN + b"<sheetData>" + _inline_rows(rows)[:-6]
@@ -295,6 +324,73 @@ def _xls_truncated() -> bytes:
     return xls.read_bytes()[:4096]
 
 
+_ODS_NS = (b'xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
+           b'xmlns:table="urn:oasis:names:tc:opendocument:xmlns:table:1.0" '
+           b'xmlns:text="urn:oasis:names:tc:opendocument:xmlns:text:1.0" office:version="1.2"')
+
+
+def _ods_cell(value: object) -> str:
+    if isinstance(value, str):
+        return (f'<table:table-cell office:value-type="string"><text:p>{value}</text:p>'
+                f'</table:table-cell>')
+    return (f'<table:table-cell office:value-type="float" office:value="{value}">'
+            f'<text:p>{value}</text:p></table:table-cell>')
+
+
+def _hand_ods(body: bytes) -> bytes:
+    """A minimal OpenDocument spreadsheet written by hand, so content.xml can be anything."""
+    content = (b'<?xml version="1.0" encoding="UTF-8"?><office:document-content ' + _ODS_NS
+               + b'><office:body><office:spreadsheet>' + body)
+    manifest = (b'<?xml version="1.0" encoding="UTF-8"?><manifest:manifest xmlns:manifest="urn:'
+                b'oasis:names:tc:opendocument:xmlns:manifest:1.0" manifest:version="1.2">'
+                b'<manifest:file-entry manifest:full-path="/" manifest:media-type="application/'
+                b'vnd.oasis.opendocument.spreadsheet"/><manifest:file-entry manifest:full-path='
+                b'"content.xml" manifest:media-type="text/xml"/></manifest:manifest>')
+    buf = io.BytesIO()
+    with zipfile.ZipFile(buf, "w") as zf:
+        stored = zipfile.ZipInfo("mimetype", STAMP)  # first and uncompressed, as the format asks
+        zf.writestr(stored, b"application/vnd.oasis.opendocument.spreadsheet")
+        for name, data in (("content.xml", content), ("META-INF/manifest.xml", manifest)):
+            info = zipfile.ZipInfo(name, STAMP)
+            info.compress_type = zipfile.ZIP_DEFLATED
+            zf.writestr(info, data)
+    return buf.getvalue()
+
+
+def _ods_rows(rows: list[list[object]]) -> bytes:
+    return "".join("<table:table-row>" + "".join(_ods_cell(v) for v in row) + "</table:table-row>"
+                   for row in rows).encode()
+
+
+def _ods_unterminated() -> bytes:
+    """A sheet whose table is never closed (``</table:table>`` missing); the document ends."""
+    return _hand_ods(b'<table:table table:name="Run">' + _ods_rows(_table() * 4)
+                     + b"</office:spreadsheet></office:body></office:document-content>")
+
+
+def _ods_repeated() -> bytes:
+    """One number repeated over 100,000 columns of 1,000,000 rows: 10^11 cells in 1 kB."""
+    return _hand_ods(b'<table:table table:name="Run">' + _ods_rows(_table())
+                     + b'<table:table-row table:number-rows-repeated="1000000">'
+                       b'<table:table-cell table:number-columns-repeated="100000" '
+                       b'office:value-type="float" office:value="1"><text:p>1</text:p>'
+                       b'</table:table-cell></table:table-row>'
+                       b"</table:table></office:spreadsheet></office:body>"
+                       b"</office:document-content>")
+
+
+def _ods_good() -> bytes:
+    return _hand_ods(b'<table:table table:name="Run">' + _ods_rows(_table())
+                     + b"</table:table></office:spreadsheet></office:body>"
+                       b"</office:document-content>")
+
+
+def _xls_panicking() -> bytes:
+    """The sample .xls cut at 6,656 bytes: the reader panics on it (found by cutting at 512s)."""
+    xls = HERE.parents[2] / "sample_runs" / "kestrel_kx214_plasma_2026-12-09.xls"
+    return xls.read_bytes()[:6656]
+
+
 def _bom_in_middle() -> bytes:
     rows = _curve()
     rows[4] = "\ufeff" + rows[4]
@@ -329,6 +425,21 @@ SMALL: dict[str, Callable[[], bytes]] = {
     "compound_file_directory_in_a_circle.xls": _ole_circular,
     "password_protected_workbook_named_xls.xls": _ole_encrypted,
     "truncated_xls.xls": _xls_truncated,
+    "truncated_xls_where_the_reader_panics.xls": _xls_panicking,
+    "stray_cell_attributes_in_another_order.xlsx": lambda: _stray_cell_written(
+        b'<row spans="1:1" r="1048576"><c t="n" r="XFD1048576"><v>1</v></c></row>'),
+    "stray_cell_with_namespace_prefix.xlsx": lambda: _stray_cell_written(
+        b'<x:row spans="1:1" r="1048576"><x:c t="n" r="XFD1048576"><x:v>1</x:v></x:c></x:row>',
+        prefix=b"x:"),
+    "stray_cell_in_single_quotes_with_spaces.xlsx": lambda: _stray_cell_written(
+        b"<row r = '1048576' ><c t='n'\n r\t=\t'XFD1048576'><v>1</v></c></row>"),
+    "stray_cell_written_with_a_character_reference.xlsx": lambda: _stray_cell_written(
+        b'<row r="&#49;048576"><c t="n" r="&#88;FD&#49;048576"><v>1</v></c></row>'),
+    "stray_cell_after_a_quoted_closing_bracket.xlsx": lambda: _stray_cell_written(
+        b'<row r="12"><c t="n" s=">" r="XFD1048576"><v>1</v></c></row>'),
+    "sheet_xml_in_utf16.xlsx": _utf16_sheet,
+    "ods_table_never_closed.ods": _ods_unterminated,
+    "ods_one_cell_repeated_over_a_billion_cells.ods": _ods_repeated,
     "xml_entity_expansion_bomb.xlsx": _entity_bomb,
     "stray_cell_in_last_row_and_column.xlsx": _stray_cell,
     "headers_only.csv": lambda: _csv([]),
@@ -351,6 +462,9 @@ SMALL: dict[str, Callable[[], bytes]] = {
     "infinite_concentration.csv": lambda: _csv(_curve(levels=(0.5, 1.0, 2.0, 5.0, float("inf")))),
     "huge_exponent_response.csv": lambda: _csv(_curve(response=lambda c, r: "1e999" if c == 1.0
                                                       else f"{0.2 * c:.4f}")),
+    "response_of_1e308_overflows_the_fit.csv": lambda: _csv(_curve(
+        response=lambda c, r: "1e308" if c == 1.0 else f"{0.2 * c:.4f}")),
+    "concentration_of_1e-300.csv": lambda: _csv(_curve(levels=(1e-300, 0.5, 1.0, 2.0, 5.0))),
     "response_column_of_dates.xlsx": _dates,
     "merged_header_cells.xlsx": _merged_header,
     "formula_cells_without_cached_values.xlsx": _formulas,
@@ -413,6 +527,11 @@ def _empty_rows_xlsx() -> bytes:
     return buf.getvalue()
 
 
+def _million_columns_csv() -> bytes:
+    """A header of a million cells (about 7 MB): refused before it is split."""
+    return (",".join(f"C{i}" for i in range(1_000_000)) + "\n1,2\n").encode()
+
+
 def _empty_lines_csv() -> bytes:
     return _csv(_curve()) + b",,,,\n" * 2_000_000
 
@@ -421,6 +540,7 @@ LARGE: dict[str, Callable[[], bytes]] = {
     "zip_bomb_600_mb_sheet.xlsx": _zip_bomb,
     "two_million_empty_rows.xlsx": _empty_rows_xlsx,
     "two_million_empty_lines.csv": _empty_lines_csv,
+    "one_million_columns.csv": _million_columns_csv,
 }
 """Files built at test time (too large to commit): name → builder."""
 

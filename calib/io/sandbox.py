@@ -1,0 +1,262 @@
+"""Parse an untrusted workbook in a child process with a time and a memory limit.
+
+A crafted or damaged workbook can make a spreadsheet parser spin forever
+(an ``.ods`` cut off inside a table), ask for hundreds of gigabytes (a stray
+cell at the last row and column) or panic.  In the command line that would
+hang or abort calib; in ``calib serve`` it would pin a worker thread or kill
+the server.  So the parse runs in a child process (``_calamine_child.py``,
+which imports nothing of calib and starts in a few hundredths of a second)
+that is given
+
+* a memory limit (address space, ``RLIMIT_AS``) of :data:`BASE_MEMORY` plus
+  :data:`MEMORY_PER_BYTE` times the file size, and
+* a wall-clock limit of :data:`BASE_SECONDS` plus :data:`SECONDS_PER_MB` per
+  megabyte of file (and the same processor-time limit),
+
+and returns the cells.  The parent starts the child first and meanwhile runs
+its own checks of the archive (:mod:`calib.io.limits`), so the checks cost
+no extra time on a machine with two cores; when they refuse the file, the
+child is stopped.  What the child prints (a Rust panic message) is never
+shown: every way it can end becomes one :class:`~calib.errors.InputError`.
+
+The child's answer is unpickled with only plain values and the date and time
+types allowed, so even a child subverted by a hostile file cannot make the
+parent run code.
+"""
+
+from __future__ import annotations
+
+import datetime
+import io
+import pickle
+import signal
+import subprocess
+import sys
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TypeVar
+
+from calib.errors import InputError
+from calib.io.files import RawFile
+
+__all__ = ["BASE_MEMORY", "BASE_SECONDS", "BookData", "SheetData", "parse_workbook"]
+
+BASE_MEMORY = 1024**3
+"""Address space allowed to the child for any workbook (1 GiB)."""
+
+MEMORY_PER_BYTE = 24
+"""Further address space per byte of the workbook file."""
+
+BASE_SECONDS = 15.0
+"""Wall-clock seconds allowed to the child for any workbook."""
+
+SECONDS_PER_MB = 1.0
+"""Further seconds per megabyte of the workbook file."""
+
+_CHILD = Path(__file__).with_name("_calamine_child.py")
+_T = TypeVar("_T")
+
+
+@dataclass(frozen=True)
+class SheetData:
+    """What the child read from one sheet.
+
+    Attributes
+    ----------
+    rows : list of list, optional
+        Every cell from A1 to the farthest cell, None when the sheet was too
+        large to read (see ``end``) or could not be read (see ``failure``).
+    end : tuple of int, optional
+        0-based (row, column) of the farthest cell.
+    merges : list
+        Merged ranges as ((first row, first column), (last row, last column)).
+    failure : tuple of str, optional
+        (kind, detail) when the sheet could not be read.
+    """
+
+    rows: list[list[object]] | None = None
+    end: tuple[int, int] | None = None
+    merges: list[tuple[tuple[int, int], tuple[int, int]]] = field(default_factory=list)
+    failure: tuple[str, str] | None = None
+
+
+@dataclass(frozen=True)
+class BookData:
+    """What the child read from a workbook.
+
+    Attributes
+    ----------
+    names : list of str
+        Every sheet, in workbook order.
+    worksheets : list of str
+        The visible worksheets (no chart sheets), in workbook order.
+    sheets : dict
+        Sheet name → :class:`SheetData`.
+    """
+
+    names: list[str]
+    worksheets: list[str]
+    sheets: dict[str, SheetData]
+
+
+class _PlainValues(pickle.Unpickler):
+    """Unpickle lists, strings, numbers and the date and time types, nothing else."""
+
+    _ALLOWED = {("datetime", name) for name in ("datetime", "date", "time", "timedelta",
+                                                "timezone")}
+
+    def find_class(self, module: str, name: str) -> object:
+        if (module, name) in self._ALLOWED:
+            return getattr(datetime, name)
+        raise pickle.UnpicklingError(f"{module}.{name} is not a cell value")
+
+
+def limits_for(size: int) -> tuple[int, float]:
+    """Memory (bytes) and wall-clock seconds allowed for a workbook of ``size`` bytes.
+
+    Examples
+    --------
+    >>> memory, seconds = limits_for(2_000_000)
+    >>> memory // 1024**2, seconds
+    (1069, 17.0)
+    """
+    return BASE_MEMORY + MEMORY_PER_BYTE * size, BASE_SECONDS + SECONDS_PER_MB * size / 1e6
+
+
+class _Child:
+    """The running child: started at once, answered by :meth:`result`."""
+
+    def __init__(self, raw: RawFile, max_rows: int, max_cells: int) -> None:
+        self.memory, self.seconds = limits_for(len(raw.data))
+        command = [sys.executable, "-P", str(_CHILD), str(self.memory),
+                   str(int(self.seconds) + 1), str(max_rows), str(max_cells)]
+        self.started = time.monotonic()
+        self.process = subprocess.Popen(command, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                        stderr=subprocess.PIPE)
+        # The child reads all its input before it writes anything, so this cannot block for
+        # long; its answer waits in the pipe while the parent runs its own checks (reading
+        # it meanwhile in a thread would only take turns with them).
+        try:
+            self.process.stdin.write(raw.data)  # type: ignore[union-attr]
+            self.process.stdin.close()  # type: ignore[union-attr]
+        except OSError:  # the child ended early; its return code will say how
+            pass
+        self.process.stdin = None  # communicate() must not touch the closed pipe
+        self.done = False
+
+    def stop(self) -> None:
+        """End the child if it still runs (the parent refused the file, or gave up)."""
+        if self.done:
+            return
+        if self.process.poll() is None:
+            self.process.kill()
+        self.process.communicate()
+        self.done = True
+
+    def result(self) -> tuple[int, bytes, bytes] | None:
+        """Return code, output and error output; None when the time limit passed.
+
+        A child that finished while the parent was still checking waits to hand over
+        its answer, so it gets a moment after the checks however long they took (a
+        child that spins meanwhile has used up its processor-time limit already).
+        """
+        now = time.monotonic()
+        left = max(self.started + self.seconds - now, min(2.0, now - self.started), 0.0)
+        try:
+            out, err = self.process.communicate(timeout=left)
+        except subprocess.TimeoutExpired:
+            self.stop()
+            return None
+        self.done = True
+        return self.process.returncode, out, err
+
+
+def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
+                   checks: Callable[[], _T]) -> tuple[BookData, _T]:
+    """Parse ``raw`` in a child process while ``checks`` runs here; return both results.
+
+    Parameters
+    ----------
+    raw : RawFile
+        The workbook.
+    what : str
+        What the file should be, for messages (``"an .xlsx workbook"``).
+    max_rows, max_cells : int
+        Sheets reaching past these are not read (their ``end`` says how far they reach).
+    checks : callable
+        Run in this process meanwhile; when it raises, the child is stopped.
+
+    Raises
+    ------
+    InputError
+        When the child runs out of time or memory, stops on damaged data, or
+        the workbook as a whole cannot be read.
+    """
+    child = _Child(raw, max_rows, max_cells)
+    try:
+        checked = checks()
+        outcome = child.result()
+    finally:
+        child.stop()
+    if outcome is None:
+        raise InputError(
+            f"cannot be read as a workbook (reading it took longer than {child.seconds:.0f} s, "
+            f"the limit for a file of this size; the file is damaged or not what its name "
+            f"says); expected {what} saved by a spreadsheet program",
+            file=raw.given,
+        )
+    code, out, err = outcome
+    answer = None
+    if code == 0:
+        try:
+            answer = _PlainValues(io.BytesIO(out)).load()
+        except Exception:  # noqa: BLE001 - any damage to the answer is a failed read
+            answer = None
+    if not isinstance(answer, dict):
+        raise _ended(raw, what, code, err, child.memory)
+    if "failure" in answer:
+        raise failure_error(raw, what, tuple(answer["failure"]), memory=child.memory)
+    sheets = {name: SheetData(rows=s.get("rows"), end=s.get("end"),
+                              merges=list(s.get("merges", [])),
+                              failure=tuple(s["failure"]) if "failure" in s else None)
+              for name, s in answer["sheets"].items()}
+    return BookData(list(answer["names"]), list(answer["worksheets"]), sheets), checked
+
+
+def _ended(raw: RawFile, what: str, code: int, err: bytes, memory: int) -> InputError:
+    memory_words = (b"memory allocation", b"MemoryError", b"out of memory", b"capacity overflow")
+    out_of_time = {-getattr(signal, name) for name in ("SIGXCPU", "SIGKILL")
+                   if hasattr(signal, name)}
+    if code in out_of_time and b"memory" not in err:
+        return InputError(
+            f"cannot be read as a workbook (reading it used up the processor time allowed; "
+            f"the file is damaged or not what its name says); expected {what} saved by a "
+            f"spreadsheet program",
+            file=raw.given,
+        )
+    if any(word in err for word in memory_words) or code == -signal.SIGABRT:
+        return failure_error(raw, what, ("memory", ""), memory=memory)
+    return failure_error(raw, what, ("panic", ""), memory=memory)
+
+
+def failure_error(raw: RawFile, what: str, failure: tuple[str, ...], *, memory: int,
+                  sheet: str | None = None) -> InputError:
+    """The one-line refusal for a failure the child reported (kind, detail)."""
+    kind, detail = failure[0], failure[1] if len(failure) > 1 else ""
+    if kind == "password":
+        text = (f"the workbook is password-protected; expected {what} without a password "
+                f"(save an unprotected copy)")
+    elif kind == "memory":
+        text = (f"cannot be read as a workbook (reading it needed more than the "
+                f"{memory // 1024**2:,} MB of memory calib allows for a file of this size; "
+                f"a stray cell far from the table, or a damaged file?); expected {what} saved "
+                f"by a spreadsheet program")
+    elif kind == "panic":
+        text = (f"cannot be read as a workbook (the reader stopped at data it could not "
+                f"follow; the file is damaged); expected {what} saved by a spreadsheet program")
+    else:
+        text = (f"cannot be read as a workbook ({detail}); expected {what} saved by a "
+                f"spreadsheet program")
+    return InputError(text, file=raw.given, sheet=sheet)

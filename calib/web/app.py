@@ -148,7 +148,11 @@ async def run_exclude(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
     target, reason = _text(form, "target"), _text(form, "reason")
-    back = _text(form, "back")
+    place = _place(run, _text(form, "back"), _text(form, "row"))
+    if not reason:
+        return _review_view(request, run_id, run, place, error=(
+            f"Excluding {target or 'a point'} needs a reason in words: type why in the box "
+            "beside the point (spaces alone are not a reason)."))
     from calib.checks.exclusions import parse_exclusion
 
     try:
@@ -159,34 +163,58 @@ async def run_exclude(request: Request) -> Response:
         if (target, reason) in run.exclusions:
             run.exclusions.remove((target, reason))
             await run_in_threadpool(_assess, run)
-        return _run_view(request, run_id, run, error=one_line(str(exc)), status=400)
-    return RedirectResponse(_back(run_id, back), 303)
+        return _review_view(request, run_id, run, place, error=one_line(str(exc)))
+    return RedirectResponse(_back(run_id, run, place), 303)
 
 
 async def run_include(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
     target, reason = _text(form, "target"), _text(form, "reason")
-    back = _text(form, "back")
+    place = _place(run, _text(form, "back"), _text(form, "row"))
     kept = [(t, r) for t, r in run.exclusions if t != target]
     if len(kept) == len(run.exclusions):
-        return _run_view(request, run_id, run, status=400, error=(
+        return _review_view(request, run_id, run, place, error=(
             f"{target or 'That point'} was not excluded on this page, so it cannot be put back "
             "here (a point the run file excludes stays out)."))
     if not reason:
-        return _run_view(request, run_id, run, status=400, error=(
+        return _review_view(request, run_id, run, place, error=(
             f"Putting {target} back needs a reason: type it in the box beside the point."))
     run.exclusions = kept
     run.reinclusions.append((target, reason))
     await run_in_threadpool(_assess, run)
-    return RedirectResponse(_back(run_id, back), 303)
+    return RedirectResponse(_back(run_id, run, place), 303)
 
 
-def _back(run_id: str, back: str) -> str:
-    """Where to return after a form: this run's page or one of its curves (never elsewhere)."""
-    if back.isdigit():
-        return f"/run/{run_id}/curve/{int(back)}"
-    return f"/run/{run_id}"
+def _place(run: OpenRun, back: str, row: str) -> tuple[int | None, int | None]:
+    """The curve and standards-table row a form came from (None where not given or unknown)."""
+    curve = int(back) if back.isdigit() and int(back) < len(run.assessment.curves) else None
+    line = int(row) if row.isdigit() and 0 < int(row) <= 100_000 else None
+    return curve, line
+
+
+def _review_view(request: Request, run_id: str, run: OpenRun,
+                 place: tuple[int | None, int | None], *, error: str) -> Response:
+    """The page the form came from, with ``error`` (status 400): a curve page or the run's."""
+    curve, _ = place
+    if curve is None or len(run.assessment.curves) == 1:
+        return _run_view(request, run_id, run, error=error, status=400)
+    return _render(request, "curve.html", status=400, run_id=run_id, run=run, error=error,
+                   curve=pages.curve_view(run.assessment, curve))
+
+
+def _back(run_id: str, run: OpenRun, place: tuple[int | None, int | None]) -> str:
+    """Where to return after a form: the same curve and table row (never another site).
+
+    A run of one curve shows it on the run's own page, so that page is the place.
+    """
+    curve, row = place
+    if curve is None:
+        return f"/run/{run_id}"
+    anchor = f"#std-{curve}-{row}" if row is not None else f"#curve-{curve}"
+    if len(run.assessment.curves) == 1:
+        return f"/run/{run_id}{anchor}"
+    return f"/run/{run_id}/curve/{curve}{anchor}"
 
 
 async def run_close(request: Request) -> Response:

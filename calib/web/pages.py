@@ -12,8 +12,8 @@ from collections.abc import Mapping, Sequence
 from typing import Any
 
 __all__ = [
-    "check_word", "choices", "curve_view", "num", "quantify_view", "record_view", "run_summary",
-    "size_text", "trend_view", "verdict_word", "verify_view",
+    "check_word", "choices", "curve_view", "flagged_cells", "neighbours", "num", "quantify_view", "record_view", "run_summary",
+    "short_check_name", "size_text", "summary_order", "trend_view", "verdict_word", "verify_view",
 ]
 
 #: Verdicts in words, each with a symbol so that no verdict rests on colour.
@@ -96,20 +96,108 @@ def choices(profiles: Sequence[str]) -> dict[str, Sequence[str]]:
             "weightings": [w.value for w in Weighting]}
 
 
+#: Summary order: the curves that need the reviewer first.
+_SEVERITY = {"rejected": 0, "needs-review": 1, "accepted": 2}
+#: Checks that name a verdict reason (a failed rule that rejects or asks for review).
+_WEIGHTY = {"reject", "review"}
+
+
+def short_check_name(title: str) -> str:
+    """A check's title without its parenthesised method, for a summary cell.
+
+    Examples
+    --------
+    >>> short_check_name("Lack of fit against replicate error (F-test)")
+    'Lack of fit against replicate error'
+    >>> short_check_name("Weighting advice")
+    'Weighting advice'
+    """
+    return title.split(" (", 1)[0].strip() or title
+
+
+def flagged_cells(curve: Any) -> dict[str, str]:
+    """Cells the checks single out, each with why: suggested outliers, standards out of tolerance.
+
+    Read from the outlier and back-calculation checks' own sentences, which name
+    each cell (``CELL: finding`` and ``outside: CELL (+x %)``); no statistic is
+    computed here.
+    """
+    out: dict[str, str] = {}
+    details = {c.id: (c.verdict.value, c.detail) for c in curve.checks}
+    verdict, detail = details.get("outliers", ("", ""))
+    cells = [s.point.source_cell for s in curve.standards]
+    if verdict == "warn":
+        head = detail.split(". ", 1)[0]
+        for cell in cells:
+            if f"{cell}:" in head:
+                out[cell] = "suggested outlier"
+    verdict, detail = details.get("back-calculation", ("", ""))
+    if "; outside: " in detail:
+        tail = detail.split("; outside: ", 1)[1]
+        for cell in cells:
+            if f"{cell} (" in tail:
+                out[cell] = (out[cell] + "; " if cell in out else "") + "outside tolerance"
+    return out
+
+
+def _worst(curve: Any) -> tuple[float | None, str]:
+    """The largest back-calculated deviation (%) of a standard in the fit, and its cell."""
+    best: tuple[float | None, str] = (None, "")
+    for s in curve.standards:
+        dev = s.deviation_pct
+        if s.used and dev is not None and math.isfinite(dev):
+            if best[0] is None or abs(dev) > abs(best[0]):
+                best = (dev, s.point.source_cell)
+    return best
+
+
+def summary_order(assessment: Any) -> list[int]:
+    """Curve indexes, rejected first, then needing review, then accepted (file order within)."""
+    return sorted(range(len(assessment.curves)),
+                  key=lambda i: (_SEVERITY.get(assessment.curves[i].verdict.value, 3), i))
+
+
 def run_summary(assessment: Any, *, show: str = "all") -> dict[str, Any]:
-    """One row per curve (filtered by verdict), with the counts of each verdict."""
+    """One row per curve, worst verdict first (filtered by verdict), with each verdict's count.
+
+    Each row names the failed checks by their short names, the worst
+    back-calculated deviation and the cells the checks single out.
+    """
     rows, counts = [], {"accepted": 0, "rejected": 0, "needs-review": 0}
-    for index, curve in enumerate(assessment.curves):
+    for curve in assessment.curves:
+        counts[curve.verdict.value] = counts.get(curve.verdict.value, 0) + 1
+    for index in summary_order(assessment):
+        curve = assessment.curves[index]
         verdict = curve.verdict.value
-        counts[verdict] = counts.get(verdict, 0) + 1
         if show not in ("all", verdict):
             continue
+        failed = [short_check_name(c.title) for c in curve.checks
+                  if c.verdict.value == "fail" and c.severity.value in _WEIGHTY]
+        if not failed and verdict != "accepted":
+            failed = [short_check_name(c.title) for c in curve.checks
+                      if c.verdict.value == "warn" and c.severity.value in _WEIGHTY]
+        if curve.fit is None and curve.unfitted_reason:
+            failed.insert(0, "Not fitted")
+        worst, worst_cell = _worst(curve)
         rows.append({"index": index, "analyte": curve.analyte, "verdict": verdict,
-                     "reasons": curve.reasons, "n_used": sum(s.used for s in curve.standards),
+                     "checks": failed, "worst": worst, "worst_cell": worst_cell,
+                     "flagged": flagged_cells(curve),
+                     "n_used": sum(s.used for s in curve.standards),
                      "n": len(curve.standards),
                      "slope": curve.fit.coefficients.get("slope") if curve.fit else None,
                      "r_squared": curve.fit.r_squared if curve.fit else None})
     return {"rows": rows, "counts": counts, "filters": FILTERS, "total": len(assessment.curves)}
+
+
+def neighbours(assessment: Any, index: int) -> tuple[int | None, int | None]:
+    """The previous and next curve not accepted, in the summary's order (None at either end)."""
+    order = [i for i in summary_order(assessment)
+             if assessment.curves[i].verdict.value != "accepted"]
+    if index in order:
+        at = order.index(index)
+        return (order[at - 1] if at > 0 else None,
+                order[at + 1] if at + 1 < len(order) else None)
+    return (None, order[0]) if order else (None, None)
 
 
 def curve_view(assessment: Any, index: int) -> dict[str, Any]:
@@ -126,6 +214,7 @@ def curve_view(assessment: Any, index: int) -> dict[str, Any]:
     analyst = {cell: reason for e in assessment.exclusions for cell in e.cells
                for reason in (e.reason,)}
     targets = {cell: e.target for e in assessment.exclusions for cell in e.cells}
+    flags = flagged_cells(curve)
     standards = []
     for s in curve.standards:
         cell = s.point.source_cell
@@ -135,6 +224,7 @@ def curve_view(assessment: Any, index: int) -> dict[str, Any]:
             "fitted": s.fitted, "back": s.back_calculated, "deviation": s.deviation_pct,
             "used": s.used, "reason": s.exclusion_reason or "",
             "by_analyst": cell in analyst, "target": targets.get(cell, cell),
+            "flag": flags.get(cell, ""),
         })
     fit = curve.fit
     return {
@@ -147,6 +237,7 @@ def curve_view(assessment: Any, index: int) -> dict[str, Any]:
         "fit": fit, "unfitted": curve.unfitted_reason, "lod": curve.lod, "loq": curve.loq,
         "checks": curve.checks, "standards": standards,
         "units": units, "lloq": curve.lloq, "uloq": curve.uloq,
+        "neighbours": neighbours(assessment, index), "total": len(assessment.curves),
     }
 
 

@@ -168,14 +168,26 @@ def test_exclude_a_point_with_a_reason_recomputes_and_put_it_back(client):
     assert "Put back " in r.text and "cap was fine on inspection" in r.text
 
 
-def test_exclude_without_a_reason_is_refused_with_the_cli_message(client):
+@pytest.mark.parametrize("reason", ["", " ", "   \t  "])
+def test_exclude_with_a_reason_of_only_spaces_is_refused_in_a_plain_sentence(client, reason):
+    # Rule of the trade (data integrity): every exclusion carries a reason in words.
     run_id = upload(client)
-    r = post(client, f"/run/{run_id}/exclude", {"target": FIRST_CELL, "reason": " "})
+    r = post(client, f"/run/{run_id}/exclude", {"target": FIRST_CELL, "reason": reason})
     assert r.status_code == 400
     assert error_of(r.text) == (
-        f"exclusion {FIRST_CELL + '='!r} has no reason: write CELL=REASON (every exclusion "
-        "needs one)").replace("'", "&#39;").replace('"', "&#34;")
+        f"Excluding {FIRST_CELL} needs a reason in words: type why in the box beside the point "
+        "(spaces alone are not a reason).").replace("'", "&#39;")
     assert "18 standards in the fit" in r.text
+
+
+def test_the_reason_box_refuses_spaces_before_sending(client):
+    # The browser checks the pattern first: a reason must hold a character that is not a space.
+    run_id = upload(client)
+    html = client.get(f"/run/{run_id}").text
+    boxes = re.findall(r'<input name="reason"[^>]*>', html)
+    assert boxes and all('required' in b and 'pattern=".*\\S.*"' in b for b in boxes)
+    pattern = re.search(r'pattern="([^"]+)"', boxes[0]).group(1)
+    assert re.fullmatch(pattern, "   ") is None and re.fullmatch(pattern, " air bubble ")
 
 
 def test_exclude_of_an_unknown_cell_is_refused_and_leaves_the_run_as_it_was(client):
@@ -596,3 +608,117 @@ def test_a_full_disk_while_filing_is_one_sentence(client, monkeypatch):
     assert r.status_code == 507
     assert error_of(r.text) == ("Cannot write records.sqlite: the disk is full (No space left "
                                 "on device); nothing was written.")
+
+
+# ---------------------------------------------------------------------- the review desk
+
+SCREEN = RUNS / "multiresidue_screen_40_2026-12-10.xlsx"
+
+
+@pytest.fixture(scope="module")
+def screen():
+    from calib.workflow import check_file
+
+    return check_file(SCREEN)
+
+
+def test_summary_lists_the_worst_curves_first_with_short_check_names(client, screen):
+    run_id = upload(client, SCREEN)
+    html = client.get(f"/run/{run_id}").text
+    shown = re.findall(r'<a href="/run/[^/]+/curve/(\d+)">', html)
+    verdicts = [screen.curves[int(i)].verdict.value for i in shown]
+    rank = {"rejected": 0, "needs-review": 1, "accepted": 2}  # common practice: worst first
+    assert len(shown) == 40 and verdicts == sorted(verdicts, key=rank.get)
+    rejected = [i for i, c in enumerate(screen.curves) if c.verdict.value == "rejected"]
+    assert [int(i) for i in shown[:len(rejected)]] == rejected  # file order within a verdict
+    row = html[html.index(f'/curve/{rejected[0]}"'):]
+    row = row[:row.index("</tr>")]
+    # The short name, not the check's sentence (the method in brackets is dropped).
+    assert "<li>Back-calculated standards within tolerance</li>" in row
+    assert "(F-test)" not in row and "standards within ±" not in row
+
+
+def test_summary_names_the_worst_deviation_and_the_suggested_outlier(client, screen):
+    import numpy as np
+    import statsmodels.api as sm
+    from statsmodels.stats.outliers_influence import OLSInfluence
+
+    index = next(i for i, c in enumerate(screen.curves) if c.analyte == "MRS-101")
+    curve = screen.curves[index]
+    assert curve.model.value == "linear" and curve.weighting.value == "none"
+    used = [s for s in curve.standards if s.used]
+    x = np.array([s.point.concentration for s in used])
+    y = np.array([s.point.response for s in used])
+    fit = sm.OLS(y, sm.add_constant(x)).fit()
+    # Reference: statsmodels on the same standards. Back-calculated x = (y - a) / b.
+    back = (y - fit.params[0]) / fit.params[1]
+    dev = 100 * (back - x) / x
+    worst = int(np.argmax(np.abs(dev)))
+    outlier = int(np.argmax(np.abs(OLSInfluence(fit).resid_studentized_external)))
+
+    run_id = upload(client, SCREEN)
+    html = client.get(f"/run/{run_id}").text
+    row = html[html.index(f'/curve/{index}"'):]
+    row = row[:row.index("</tr>")]
+    assert f"{dev[worst]:+.1f} %" in row and used[worst].point.source_cell in row
+    assert f"{used[outlier].point.source_cell} <span class=\"small\">(suggested outlier)" in row
+
+
+def test_curve_page_has_a_heading_flagged_rows_and_links_to_the_neighbours(client, screen):
+    from calib.web.pages import summary_order
+
+    run_id = upload(client, SCREEN)
+    order = [i for i in summary_order(screen) if screen.curves[i].verdict.value != "accepted"]
+    middle = order[1]
+    html = client.get(f"/run/{run_id}/curve/{middle}").text
+    h1 = re.findall(r"<h1[^>]*>(.*?)</h1>", html, re.DOTALL)
+    assert len(h1) == 1 and screen.curves[middle].analyte in h1[0]
+    assert f'href="/run/{run_id}/curve/{order[0]}" rel="prev">Previous flagged curve' in html
+    assert f'href="/run/{run_id}/curve/{order[2]}" rel="next">Next flagged curve' in html
+    first = client.get(f"/run/{run_id}/curve/{order[0]}").text
+    assert "Previous flagged curve" not in first and "Next flagged curve" in first
+    # MRS-101's suggested outlier (see the statsmodels check above) is a highlighted row.
+    index = next(i for i, c in enumerate(screen.curves) if c.analyte == "MRS-101")
+    html = client.get(f"/run/{run_id}/curve/{index}").text
+    flagged = re.findall(r'<tr id="std-\d+-\d+" tabindex="-1" class="flagged">\s*<td>([^<]+)<br>'
+                         r'<strong class="flag">⚑ flagged: ([^<]+)</strong>', html)
+    assert flagged and all("suggested outlier" in why for _, why in flagged)
+
+
+def test_exclude_on_a_curve_page_returns_to_the_same_curve_and_row(client, screen):
+    run_id = upload(client, SCREEN)
+    index = next(i for i, c in enumerate(screen.curves) if c.analyte == "MRS-101")
+    cell = screen.curves[index].standards[4].point.source_cell
+    r = post(client, f"/run/{run_id}/exclude",
+             {"target": cell, "reason": "split peak", "back": str(index), "row": "5"},
+             follow_redirects=False)
+    assert r.status_code == 303
+    assert r.headers["location"] == f"/run/{run_id}/curve/{index}#std-{index}-5"
+    page = client.get(r.headers["location"]).text
+    row = page[page.index(f'id="std-{index}-5"'):]
+    row = row[:row.index("</tr>")]
+    assert cell.replace("'", "&#39;") in row and "no: split peak" in row and "Put back" in row
+    r = post(client, f"/run/{run_id}/include",
+             {"target": cell, "reason": "peak fine on reintegration", "back": str(index),
+              "row": "5"}, follow_redirects=False)
+    assert r.headers["location"] == f"/run/{run_id}/curve/{index}#std-{index}-5"
+    # A refusal stays on the curve page too, with the sentence.
+    r = post(client, f"/run/{run_id}/exclude",
+             {"target": cell, "reason": "  ", "back": str(index), "row": "5"})
+    assert r.status_code == 400 and "<h1" in r.text
+    assert screen.curves[index].analyte in re.search(r"<h1[^>]*>(.*?)</h1>", r.text).group(1)
+    # A "back" that is not a curve of the run goes to the run's page, never elsewhere.
+    r = post(client, f"/run/{run_id}/exclude",
+             {"target": cell, "reason": "again", "back": "//evil.example", "row": "x"},
+             follow_redirects=False)
+    assert r.headers["location"] == f"/run/{run_id}"
+
+
+def test_nav_offers_archive_and_trend_only_with_an_archive():
+    with TestClient(create_app(), base_url=LOCAL, client=("127.0.0.1", 50000)) as bare:
+        html = bare.get("/").text
+    assert 'href="/archive"' not in html and 'href="/archive/trend"' not in html
+    with TestClient(create_app(archive="unused.sqlite"), base_url=LOCAL,
+                    client=("127.0.0.1", 50000)) as full:
+        html = full.get("/").text
+    assert 'href="/archive"' in html and 'href="/archive/trend"' in html

@@ -25,3 +25,15 @@ document.querySelectorAll("[data-drop]").forEach(function (zone) {
     }
   });
 });
+
+// After excluding or putting back a point the page returns to the same table row
+// (#std-CURVE-ROW): keyboard focus goes back to that row's reason box, or the row.
+(function () {
+  var id = window.location.hash.slice(1);
+  if (!/^std-\d+-\d+$/.test(id)) { return; }
+  var row = document.getElementById(id);
+  if (!row) { return; }
+  var box = row.querySelector("input[name=reason]");
+  (box || row).focus();
+  row.scrollIntoView({block: "center"});
+}());

@@ -204,7 +204,6 @@ def curve_view(assessment: Any, index: int) -> dict[str, Any]:
     """Everything the curve section shows: verdict sentence, charts, fit, checks, standards."""
     from calib.report import load_template
     from calib.report.wording import verdict_sentence
-    from calib.web.svg import curve_charts
 
     curve = assessment.curves[index]
     units = assessment.run.units_of(curve.analyte)
@@ -231,14 +230,115 @@ def curve_view(assessment: Any, index: int) -> dict[str, Any]:
         "index": index, "analyte": curve.analyte, "verdict": curve.verdict.value,
         "sentence": sentence, "reasons": curve.reasons, "model": curve.model.value,
         "weighting": curve.weighting.value, "confidence": curve.confidence,
-        "charts": curve_charts(curve, unit_x=units.get("concentration", ""),
-                               unit_y=units.get("response", "")),
+        "charts": curve_plots(curve, index, unit_x=units.get("concentration", ""),
+                              unit_y=units.get("response", "")),
         "coefficients": fit.coefficient_table() if fit else (),
         "fit": fit, "unfitted": curve.unfitted_reason, "lod": curve.lod, "loq": curve.loq,
         "checks": curve.checks, "standards": standards,
         "units": units, "lloq": curve.lloq, "uloq": curve.uloq,
         "neighbours": neighbours(assessment, index), "total": len(assessment.curves),
     }
+
+
+def _titles(unit_x: str, unit_y: str) -> tuple[str, str, str]:
+    return ("Concentration" + (f" ({unit_x})" if unit_x else ""),
+            "Response" + (f" ({unit_y})" if unit_y else ""),
+            "Residual" + (f" ({unit_y})" if unit_y else ""))
+
+
+def curve_plots(curve: Any, index: int, *, unit_x: str = "", unit_y: str = "") -> list[str]:
+    """Calibration plot (with the fitted curve and its confidence band) and residual plot.
+
+    Each standard is a link to its row of the standards table (``#std-CURVE-ROW``)
+    named by its cell.
+    """
+    import numpy as np
+
+    from calib.report.charts import wants_log_axis
+    from calib.web.plot import Mark, chart_svg, residual_marks
+
+    x_title, y_title, r_title = _titles(unit_x, unit_y)
+    marks = [Mark(s.point.concentration, s.point.response, s.used, f"#std-{index}-{k}",
+                  f"{s.point.source_cell}: nominal {num(s.point.concentration)}, response "
+                  f"{num(s.point.response)}{'' if s.used else ' (excluded)'}")
+             for k, s in enumerate(curve.standards, start=1)]
+    xs = [m.x for m in marks]
+    log_x = wants_log_axis(xs)
+    line: list[tuple[float, float]] = []
+    band: list[tuple[float, float, float]] = []
+    limits: list[tuple[float, float, float]] = []
+    fit = curve.fit
+    if fit is not None and xs:
+        lo, hi = min(xs), max(xs)
+        grid = np.geomspace(lo, hi, 80) if log_x and lo > 0 else np.linspace(lo, hi, 80)
+        yhat, half = fit.predict(grid), fit.confidence_band(grid)
+        if np.all(np.isfinite(yhat)):
+            line = list(zip(grid.tolist(), yhat.tolist()))
+            if np.all(np.isfinite(half)):
+                band = [(x, y - h, y + h) for x, y, h in zip(grid.tolist(), yhat.tolist(),
+                                                              half.tolist())]
+            pred = fit.prediction_band(grid)
+            if np.all(np.isfinite(pred)):
+                limits = [(x, y - h, y + h) for x, y, h in zip(grid.tolist(), yhat.tolist(),
+                                                                pred.tolist())]
+    words = f"{curve.confidence * 100:g} % confidence band of the mean"
+    plots = [chart_svg(marks, x_title=x_title, y_title=y_title, curve=line, band=band,
+                       band_words=words, limits=limits, log_x=log_x,
+                       limits_words=f"{curve.confidence * 100:g} % prediction limits for one "
+                                    "reading",
+                       label=f"{curve.analyte}: response against concentration")]
+    residuals = residual_marks(marks, [s.fitted for s in curve.standards])
+    if residuals:
+        plots.append(chart_svg(residuals, x_title=x_title, y_title=r_title, zero_line=True,
+                               log_x=log_x, label=f"{curve.analyte}: residuals"))
+    return plots
+
+
+def record_curves(body: Mapping[str, Any], *, plots: bool = True) -> list[dict[str, Any]]:
+    """Each curve of a record body: verdict, failed checks by short name, reasons, plots.
+
+    What a signer reads before signing; drawn from the record itself, so it is
+    exactly what the signature will cover.
+    """
+    from calib.web.plot import Mark, chart_svg, residual_marks
+
+    check = body.get("check") if isinstance(body.get("check"), Mapping) else {}
+    run = body.get("run") if isinstance(body.get("run"), Mapping) else {}
+    units = run.get("units") if isinstance(run.get("units"), Mapping) else {}
+    out = []
+    curves = check.get("curves") if isinstance(check.get("curves"), list) else []
+    for index, c in enumerate(x for x in curves if isinstance(x, Mapping)):
+        checks = [k for k in c.get("checks") or () if isinstance(k, Mapping)]
+        failed = [short_check_name(str(k.get("title") or k.get("id")))
+                  for k in checks if k.get("verdict") == "fail"
+                  and k.get("severity") in _WEIGHTY]
+        points = [p for p in c.get("points") or () if isinstance(p, Mapping)]
+        charts: list[str] = []
+        if plots and points:
+            x_title, y_title, r_title = _titles(str(units.get("concentration") or ""),
+                                                str(units.get("response") or ""))
+            marks, fitted = [], []
+            for p in points:
+                x, y = p.get("concentration"), p.get("response")
+                if isinstance(x, (int, float)) and isinstance(y, (int, float)):
+                    marks.append(Mark(float(x), float(y), bool(p.get("included", True)), "",
+                                      f"{p.get('source_cell', '')}: nominal {num(x)}, "
+                                      f"response {num(y)}"))
+                    f = p.get("fitted")
+                    fitted.append(float(f) if isinstance(f, (int, float)) else None)
+            pairs = sorted((m.x, f) for m, f in zip(marks, fitted) if f is not None)
+            analyte = str(c.get("analyte", ""))
+            if marks:
+                charts.append(chart_svg(marks, x_title=x_title, y_title=y_title, curve=pairs,
+                                        label=f"{analyte}: response against concentration"))
+                residuals = residual_marks(marks, fitted)
+                if residuals:
+                    charts.append(chart_svg(residuals, x_title=x_title, y_title=r_title,
+                                            zero_line=True, label=f"{analyte}: residuals"))
+        out.append({"index": index, "analyte": str(c.get("analyte", "")),
+                    "verdict": str(c.get("verdict", "")), "checks": failed,
+                    "reasons": [str(r) for r in c.get("reasons") or ()], "charts": charts})
+    return out
 
 
 def verify_view(report: Any, label: str) -> dict[str, Any]:
@@ -271,7 +371,6 @@ def record_view(versions: Sequence[Any]) -> dict[str, Any]:
 def trend_view(trend: Any) -> dict[str, Any]:
     """A trend: its control charts as SVG, the limits, and each point's flags."""
     from calib.archive import RULES
-    from calib.web.svg import trend_charts
 
     rows = []
     for i, p in enumerate(trend.points):
@@ -282,10 +381,32 @@ def trend_view(trend: Any) -> dict[str, Any]:
                      "fired": fired})
     fired_rules = [f"{r}: {RULES[r]}" for r in RULES
                    if any(h.rule == r for c in trend.charts for h in c.hits)]
-    return {"analyte": trend.analyte, "charts": trend_charts(trend) if trend.evaluated else [],
+    return {"analyte": trend.analyte, "charts": trend_plots(trend) if trend.evaluated else [],
             "limits": trend.charts, "rows": rows, "flagged": trend.flagged,
             "fired_rules": fired_rules, "notes": trend.notes, "evaluated": trend.evaluated,
             "left_out": len(trend.left_out), "baseline": min(trend.baseline, len(trend.points))}
+
+
+_QUANTITIES = {"slope": "Slope b", "intercept": "Intercept a", "residual_sd": "Residual SD"}
+
+
+def trend_plots(trend: Any) -> list[tuple[str, str]]:
+    """(title, svg) of each control chart with limits, drawn against the run dates."""
+    from calib.web.plot import trend_svg
+
+    dates = [p.run_date for p in trend.points]
+    out = []
+    for chart in trend.charts:
+        lim = chart.limits
+        if lim is None:
+            continue
+        title = _QUANTITIES.get(chart.quantity, chart.quantity)
+        out.append((title, trend_svg(
+            dates, [float("nan") if v is None else float(v) for v in chart.values],
+            y_title=title, label=f"{trend.analyte}: control chart of {title.lower()} by run date",
+            mean=lim.mean, warning=lim.warning, action=lim.action, baseline=trend.baseline,
+            flagged=chart.flagged_points())))
+    return out
 
 
 def quantify_view(document: Mapping[str, Any]) -> dict[str, Any]:

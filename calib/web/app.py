@@ -287,7 +287,9 @@ async def issued_page(request: Request) -> Response:
     run_id, run = _open_run(request)
     if run.issued is None:
         return RedirectResponse(f"/run/{run_id}/issue", 303)
-    return _render(request, "issued.html", run_id=run_id, run=run, record=run.issued)
+    return _render(request, "issued.html", run_id=run_id, run=run, record=run.issued,
+                   curves=pages.record_curves(run.issued.body),
+                   version=len(run.issued.body.get("signatures") or ()))
 
 
 async def issued_pdf(request: Request) -> Response:
@@ -308,6 +310,43 @@ async def sign_post(request: Request) -> Response:
     form = await _form(request)
     upload = await _file(form, "record", what="record (its PDF or JSON)")
     assert upload is not None
+    outcome = await _sign(request, form, upload, file_it=form.get("file_in_archive") == "yes")
+    return _signed_view(request, outcome)
+
+
+async def sign_issued(request: Request) -> Response:
+    """Sign the record just issued for this run, from its page (no download and upload)."""
+    form = await _form(request)
+    run_id, run = _open_run(request)
+    if run.issued is None or run.issued_pdf is None:
+        raise PageError("No record has been issued for this run yet.", 404)
+    upload = (f"{run.issued.record_id}.pdf", run.issued_pdf)
+    outcome = await _sign(request, form, upload, file_it=form.get("file_in_archive") == "yes")
+    # The run's record is now the signed version: a later signature continues it.
+    run.issued, run.issued_pdf = outcome.record, outcome.signed.pdf
+    return _signed_view(request, outcome,
+                        back=(f"/run/{run_id}/issued", f"the record of {run.name}"))
+
+
+async def sign_archived(request: Request) -> Response:
+    """Sign the latest archived version of a record, from its archive page; file the new one."""
+    form = await _form(request)
+    record_id = request.path_params["record_id"]
+    from calib.archive import Archive
+
+    with Archive(_archive_path(request), create=False) as store:
+        latest = store.latest(record_id)
+    if latest is None:
+        raise PageError(f"No record {record_id} in the archive.", 404)
+    outcome = await _sign(request, form, (f"{latest.record_id}.pdf", latest.pdf), file_it=True)
+    return _signed_view(request, outcome,
+                        back=(f"/archive/record/{latest.record_id}",
+                              f"record {latest.record_id} in the archive"))
+
+
+async def _sign(request: Request, form: FormData, upload: tuple[str, bytes], *,
+                file_it: bool) -> Any:
+    """Check the signing form, sign the record bytes with calib.service.sign, file if asked."""
     role, name = _text(form, "role"), _text(form, "name")
     if role not in ("reviewed", "approved", "rejected"):
         raise PageError("Choose what the signature means: reviewed, approved or rejected.")
@@ -325,7 +364,6 @@ async def sign_post(request: Request) -> Response:
     passphrase = passphrase if isinstance(passphrase, str) else ""
     if key_file and not passphrase:
         raise PageError("A key file needs its passphrase: type it in the passphrase box.")
-    file_it = form.get("file_in_archive") == "yes"
     if file_it:
         _archive_path(request)
 
@@ -342,6 +380,11 @@ async def sign_post(request: Request) -> Response:
                                 archive=request.app.state.archive if file_it else None)
 
     outcome = await run_in_threadpool(sign)
+    request.state.keyed = bool(key_file)
+    return outcome
+
+
+def _signed_view(request: Request, outcome: Any, *, back: tuple[str, str] | None = None) -> Response:
     record = outcome.record
     # Version N holds N signatures (prepared is 1), as calib sign and calib verify count.
     version = len(record.body["signatures"])
@@ -349,7 +392,7 @@ async def sign_post(request: Request) -> Response:
         f"{record.record_id}-v{version}.pdf", "application/pdf", outcome.signed.pdf))
     return _render(request, "signed.html", record=record, signature=record.body["signatures"][-1],
                    version=version, download=download, entries=outcome.entries,
-                   keyed=bool(key_file))
+                   keyed=bool(getattr(request.state, "keyed", False)), back=back)
 
 
 async def verify_page(request: Request) -> Response:
@@ -499,6 +542,7 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         Route("/run/{run_id}/issue", _closing(issue_post), methods=["POST"]),
         Route("/run/{run_id}/issued", issued_page),
         Route("/run/{run_id}/record.pdf", issued_pdf),
+        Route("/run/{run_id}/sign", _closing(sign_issued), methods=["POST"]),
         Route("/sign", sign_page),
         Route("/sign", _closing(sign_post), methods=["POST"]),
         Route("/verify", verify_page),
@@ -509,6 +553,7 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         Route("/archive/trend", trend_page),
         Route("/archive/record/{record_id}", archive_record),
         Route("/archive/record/{record_id}/verify", archive_verify_record),
+        Route("/archive/record/{record_id}/sign", _closing(sign_archived), methods=["POST"]),
         Route("/archive/record/{record_id}/{seq:int}.pdf", archive_pdf),
         Route("/quantify", quantify_page),
         Route("/quantify", _closing(quantify_post), methods=["POST"]),

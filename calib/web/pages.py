@@ -365,6 +365,7 @@ def record_view(versions: Sequence[Any]) -> dict[str, Any]:
     facts = record_facts(body)
     return {"record_id": latest.record_id, "versions": versions, "latest": latest,
             "run": body.get("run") or {}, "curves": facts.curves,
+            "review": record_curves(body),
             "signatures": body.get("signatures") or [], "intact": latest.digest_matches}
 
 

@@ -722,3 +722,68 @@ def test_nav_offers_archive_and_trend_only_with_an_archive():
                     client=("127.0.0.1", 50000)) as full:
         html = full.get("/").text
     assert 'href="/archive"' in html and 'href="/archive/trend"' in html
+
+
+def test_sign_from_the_issued_page_after_seeing_verdict_reasons_and_plots(client, archive,
+                                                                          tmp_path):
+    from calib import service
+
+    run_id = upload(client)
+    post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                         "file_in_archive": "yes"})
+    page = client.get(f"/run/{run_id}/issued").text
+    # What the signer sees first: the verdict, the reasons in words and both plots.
+    assert page.index("Needs review") < page.index('action="/run/')
+    assert "Intercept against zero" in page and page.count('<svg class="chart"') == 2
+    assert "You sign version 1 as shown above; your signature makes version 2." in page
+    r = post(client, f"/run/{run_id}/sign", {"role": "reviewed", "name": "T. Overgaard",
+                                            "file_in_archive": "yes"})
+    assert r.status_code == 200 and "Signed: reviewed by T. Overgaard" in r.text
+    # SPEC: version N holds N signatures (prepared is 1): one review makes version 2.
+    assert "Record " in r.text and ": version 2</h1>" in r.text
+    assert "Filed in the archive as entry seq 2 (signed)." in r.text
+    link = re.search(r'href="(/download/[^"]+)"', r.text).group(1)
+    got = client.get(link)
+    assert got.headers["content-disposition"].endswith('-v2.pdf"')
+    signed = tmp_path / "signed.pdf"
+    signed.write_bytes(got.content)
+    report = service.verify(signed, archive=archive)  # the library's own verification
+    assert report.ok, [p.message for p in report.problems]
+    # The run's page now offers the next signature on version 2.
+    page = client.get(f"/run/{run_id}/issued").text
+    assert "You sign version 2 as shown above; your signature makes version 3." in page
+
+
+def test_sign_from_the_archive_record_page_files_the_next_version(client, archive):
+    run_id = upload(client)
+    post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                         "file_in_archive": "yes"})
+    post(client, f"/run/{run_id}/sign", {"role": "reviewed", "name": "T. Overgaard",
+                                        "file_in_archive": "yes"})
+    from calib.archive import Archive
+
+    with Archive(archive, create=False) as store:
+        record_id = store.entries()[-1].record_id
+    page = client.get(f"/archive/record/{record_id}").text
+    assert "Intercept against zero" in page and '<svg class="chart"' in page
+    assert "You sign version 2 as shown above; your signature makes version 3." in page
+    r = post(client, f"/archive/record/{record_id}/sign",
+             {"role": "approved", "name": "M. Lindqvist"})
+    assert r.status_code == 200 and "Signed: approved by M. Lindqvist" in r.text
+    assert ": version 3</h1>" in r.text and "entry seq 3 (signed)" in r.text
+    with Archive(archive, create=False) as store:
+        assert [e.roles for e in store.entries(record_id=record_id)][-1] == (
+            "prepared", "reviewed", "approved")
+    # The preparer may not approve (default sign-off rules): refused in one sentence.
+    r = post(client, f"/archive/record/{record_id}/sign",
+             {"role": "approved", "name": "R. Okafor"})
+    assert r.status_code == 400 and error_of(r.text)
+    r = post(client, "/archive/record/CR-NOPE/sign", {"role": "reviewed", "name": "A. B"})
+    assert r.status_code == 404 and error_of(r.text) == "No record CR-NOPE in the archive."
+
+
+def test_sign_on_the_run_page_needs_an_issued_record(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/sign", {"role": "reviewed", "name": "T. Overgaard"})
+    assert r.status_code == 404
+    assert error_of(r.text) == "No record has been issued for this run yet."

@@ -787,3 +787,51 @@ def test_sign_on_the_run_page_needs_an_issued_record(client):
     r = post(client, f"/run/{run_id}/sign", {"role": "reviewed", "name": "T. Overgaard"})
     assert r.status_code == 404
     assert error_of(r.text) == "No record has been issued for this run yet."
+
+
+def test_archive_search_by_part_of_an_analyte_shows_each_curves_own_verdict(client, archive):
+    run_id = upload(client, ANIONS)  # run verdict: needs review; Sulfate's own curve: accepted
+    r = post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                              "file_in_archive": "yes"})
+    record_id = re.search(r"Record (CR-[0-9A-F]+) issued", r.text).group(1)
+    page = client.get("/archive", params={"analyte": "sulf"}).text  # part, lower case
+    rows = re.findall(r'<tr><th scope="row">([^<]+)</th><td><span class="verdict v-([a-z-]+)"',
+                      page)
+    assert rows == [("Sulfate", "accepted")]
+    assert f'href="/archive/record/{record_id}"' in page
+    page = client.get("/archive", params={"analyte": "NITRATE"}).text
+    rows = re.findall(r'<tr><th scope="row">([^<]+)</th><td><span class="verdict v-([a-z-]+)"',
+                      page)
+    assert rows == [("Nitrate-N", "needs-review")]
+    page = client.get("/archive", params={"analyte": "ride"}).text  # Fluoride and Chloride
+    assert "2 curves of Chloride, Fluoride" in page
+    only = client.get("/archive", params={"analyte": "e", "verdict": "accepted"}).text
+    assert re.findall(r'<tr><th scope="row">([^<]+)</th>', only) == ["Sulfate"]
+    none = client.get("/archive", params={"analyte": "arsenic"}).text
+    assert "no analyte whose name holds “arsenic”" in none and "No entries match." in none
+
+
+def test_archive_listing_is_paged_and_a_long_entry_does_not_list_every_analyte(client, archive):
+    from calib.archive import Archive
+    from calib.web.archive_pages import PAGE_ROWS
+
+    fill_archive(archive, PAGE_ROWS + 3)
+    first = client.get("/archive").text
+    assert f"{PAGE_ROWS + 3} entries. Showing 1–{PAGE_ROWS}." in first
+    assert "Page 1 of 2" in first and 'rel="next"' in first and 'rel="prev"' not in first
+    second = client.get("/archive", params={"page": "2"}).text
+    assert f"Showing {PAGE_ROWS + 1}–{PAGE_ROWS + 3}." in second and "Page 2 of 2" in second
+    r = client.get("/archive", params={"page": "3"})
+    assert r.status_code == 404 and error_of(r.text) == (
+        f"There is no page 3: the search found {PAGE_ROWS + 3} rows (2 pages).")
+    r = client.get("/archive", params={"page": "two"})
+    assert r.status_code == 400 and error_of(r.text) == (
+        "The page number must be a whole number from 1; got &#39;two&#39;.")
+    # A 40-analyte screen: the cell gives the count and a few names, not all forty.
+    run_id = upload(client, SCREEN)
+    post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor", "file_in_archive": "yes"})
+    last = client.get("/archive", params={"page": "2"}).text
+    table = last[last.index("<table>"):last.index("</table>")]
+    assert "40 analytes: MRS-101, MRS-102 … MRS-140" in table and "MRS-120" not in table
+    with Archive(archive, create=False) as store:
+        assert len(store.entries(data=False)) == PAGE_ROWS + 4

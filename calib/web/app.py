@@ -437,24 +437,34 @@ async def quantify_post(request: Request) -> Response:
     force = form.get("force") == "yes"
     assert curve is not None
 
-    def quantify() -> tuple[dict[str, Any], bytes]:
+    def quantify() -> tuple[dict[str, Any], bytes, bytes]:
+        import tempfile
+
         from calib import service
 
-        # The workbook is made with the results, as calib quantify --xlsx makes it.
-        with private_copy(curve[0], curve[1]) as curve_path:
+        # The workbook and the PDF report are made with the results, as
+        # calib quantify --xlsx --pdf makes them; the PDF is read back and deleted.
+        with tempfile.TemporaryDirectory(prefix="calib-web-") as folder, \
+                private_copy(curve[0], curve[1]) as curve_path:
+            pdf = Path(folder) / "quantify.pdf"
             if samples is None:
-                outcome = service.quantify(curve_path, None, force=force, workbook=True)
+                outcome = service.quantify(curve_path, None, force=force, workbook=True,
+                                           pdf=pdf)
             else:
                 with private_copy(samples[0], samples[1]) as samples_path:
                     outcome = service.quantify(curve_path, samples_path, force=force,
-                                               workbook=True)
-        return outcome.document, outcome.workbook
+                                               workbook=True, pdf=pdf)
+            return outcome.document, outcome.workbook, pdf.read_bytes()
 
-    document, workbook = await run_in_threadpool(quantify)
-    xlsx = _runs(request, create=True).add_download(Download(
-        "quantify-results.xlsx",
+    document, workbook, pdf = await run_in_threadpool(quantify)
+    store = _runs(request, create=True)
+    stem = Path(curve[0]).stem or "quantify"
+    xlsx = store.add_download(Download(
+        f"{stem}-results.xlsx",
         "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet", workbook))
-    return _render(request, "quantify.html", result=pages.quantify_view(document), xlsx=xlsx)
+    pdf_id = store.add_download(Download(f"{stem}-results.pdf", "application/pdf", pdf))
+    return _render(request, "quantify.html", result=pages.quantify_view(document), xlsx=xlsx,
+                   pdf=pdf_id, curve_name=curve[0])
 
 
 # ---------------------------------------------------------------------- errors

@@ -411,8 +411,23 @@ def trend_plots(trend: Any) -> list[tuple[str, str]]:
 
 
 def quantify_view(document: Mapping[str, Any]) -> dict[str, Any]:
-    """The ``calib.quantify/1`` document's curves, samples, QC and refusals, for the page."""
-    return {"verdict": document.get("verdict"), "curves": document.get("curves", []),
-            "samples": document.get("samples", []), "qc": document.get("qc", []),
+    """The ``calib.quantify/1`` document for the page: source, curves, samples, QC, refusals.
+
+    Each sample row gets its analyte's unit; each QC its nominal, found value and
+    deviation as the document holds them.
+    """
+    curves = [c for c in document.get("curves", []) if isinstance(c, Mapping)]
+    units = {c.get("analyte"): c.get("unit") or "" for c in curves}
+    samples = [{**s, "unit": units.get(s.get("analyte"), "")}
+               for s in document.get("samples", []) if isinstance(s, Mapping)]
+    qc = document.get("qc") if isinstance(document.get("qc"), Mapping) else {}
+    qc_rows = [{**o, "analyte": a.get("analyte"), "unit": units.get(a.get("analyte"), "")}
+               for a in qc.get("analytes", []) if isinstance(a, Mapping)
+               for o in a.get("outcomes", []) if isinstance(o, Mapping)]
+    source = document.get("curve") if isinstance(document.get("curve"), Mapping) else {}
+    return {"verdict": document.get("verdict"), "curves": curves, "samples": samples,
+            "qc": qc, "qc_rows": qc_rows, "source": source,
+            "samples_source": document.get("samples_source") or {},
             "refused": document.get("refused", {}), "forced": document.get("forced"),
+            "reasons": document.get("reasons", []),
             "cautions": document.get("cautions", ""), "notes": document.get("notes", [])}

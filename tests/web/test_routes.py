@@ -440,10 +440,45 @@ def test_quantify_the_runs_own_samples_and_download_the_workbook(client):
     with PHOSPHATE.open("rb") as f:
         r = post(client, "/quantify", {}, {"curve": (PHOSPHATE.name, f)})
     assert r.status_code == 200 and "Batch verdict" in r.text and "✓ Accepted" in r.text
-    link = re.search(r'href="(/download/[^"]+)"', r.text).group(1)
-    xlsx = client.get(link)
-    assert xlsx.content[:2] == b"PK" and "quantify-results.xlsx" in xlsx.headers[
-        "content-disposition"]
+    links = dict((name, link) for link, name in re.findall(
+        r'href="(/download/[^"]+)" download>Download the results ([^<]+)</a>', r.text))
+    xlsx = client.get(links["workbook (XLSX)"])
+    assert xlsx.content[:2] == b"PK" and "fernbrook_phosphate_2026-12-06-results.xlsx" in \
+        xlsx.headers["content-disposition"]
+    pdf = client.get(links["(PDF)"])
+    assert pdf.content.startswith(b"%PDF") and pdf.headers["content-disposition"].endswith(
+        '-results.pdf"')
+
+
+def test_quantify_shows_units_source_range_detection_limit_and_qc_deviation(client):
+    import numpy as np
+    import statsmodels.api as sm
+
+    from calib.workflow import check_file
+
+    curve = check_file(PHOSPHATE).curves[0]
+    used = [s for s in curve.standards if s.used]
+    x = np.array([s.point.concentration for s in used])
+    y = np.array([s.point.response for s in used])
+    fit = sm.OLS(y, sm.add_constant(x)).fit()  # reference: statsmodels, same standards
+    lod = 3.3 * np.sqrt(fit.scale) / fit.params[1]  # ICH Q2(R2): 3.3·σ/S
+    found = (0.2756 - fit.params[0]) / fit.params[1]  # the QC's response, read from the file
+    with PHOSPHATE.open("rb") as f:
+        html = post(client, "/quantify", {}, {"curve": (PHOSPHATE.name, f)}).text
+    assert f"run file <strong>{PHOSPHATE.name}</strong>, checked now" in html
+    assert "with profile default (version 1)" in html
+    row = html[html.index('<th scope="row">Orthophosphate-P</th>'):]
+    row = row[:row.index("</tr>")]
+    assert "0.05 to 0.8" in row and "mg/L" in row
+    assert re.search(rf">{lod:.4g}<", row), (lod, row)
+    qc = html[html.index('aria-label="QC samples"'):]
+    qc = qc[qc.index("<tbody>"):]
+    qc = qc[:qc.index("</tr>")]
+    deviation = 100 * (found - 0.3) / 0.3
+    assert ">0.3<" in qc and f">{found:.4g}<" in qc and f">{deviation:+.1f}<" in qc
+    assert ">yes<" in qc
+    samples = html[html.index('aria-label="Samples"'):]
+    assert "<td>mg/L</td>" in samples[:samples.index("</table>")]
 
 
 def test_quantify_errors_are_one_sentence(client):

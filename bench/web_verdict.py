@@ -115,8 +115,8 @@ def main() -> int:
     load = None
     if not args.no_load:
         load = subprocess.Popen([sys.executable, "-c",
-                                 f"import time\nend = time.time() + {LOAD_SECONDS}\n"
-                                 "while time.time() < end: pass"])
+                                 (f"import time\nend = time.time() + {LOAD_SECONDS}\n"
+                                 "while time.time() < end: pass")])
     port = free_port()
     server = start_server(port)
     try:

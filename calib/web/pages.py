@@ -145,9 +145,9 @@ def _worst(curve: Any) -> tuple[float | None, str]:
     best: tuple[float | None, str] = (None, "")
     for s in curve.standards:
         dev = s.deviation_pct
-        if s.used and dev is not None and math.isfinite(dev):
-            if best[0] is None or abs(dev) > abs(best[0]):
-                best = (dev, s.point.source_cell)
+        if (s.used and dev is not None and math.isfinite(dev)
+                and (best[0] is None or abs(dev) > abs(best[0]))):
+            best = (dev, s.point.source_cell)
     return best
 
 

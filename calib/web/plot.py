@@ -18,7 +18,7 @@ from xml.sax.saxutils import escape, quoteattr
 
 from calib.report.charts import nice_ticks, wants_log_axis
 
-__all__ = ["Mark", "chart_svg", "residual_marks", "trend_svg", "FONT_SIZE", "VIEW_WIDTH"]
+__all__ = ["FONT_SIZE", "VIEW_WIDTH", "Mark", "chart_svg", "residual_marks", "trend_svg"]
 
 #: ViewBox width and label size in its units.  A chart is at least ~340 CSS px wide on a
 #: 390 px screen (main's padding aside), so labels render at 17 · 340 / 460 ≈ 12.6 px there

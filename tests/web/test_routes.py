@@ -440,8 +440,8 @@ def test_quantify_the_runs_own_samples_and_download_the_workbook(client):
     with PHOSPHATE.open("rb") as f:
         r = post(client, "/quantify", {}, {"curve": (PHOSPHATE.name, f)})
     assert r.status_code == 200 and "Batch verdict" in r.text and "✓ Accepted" in r.text
-    links = dict((name, link) for link, name in re.findall(
-        r'href="(/download/[^"]+)" download>Download the results ([^<]+)</a>', r.text))
+    links = {name: link for link, name in re.findall(
+        r'href="(/download/[^"]+)" download>Download the results ([^<]+)</a>', r.text)}
     xlsx = client.get(links["workbook (XLSX)"])
     assert xlsx.content[:2] == b"PK" and "fernbrook_phosphate_2026-12-06-results.xlsx" in \
         xlsx.headers["content-disposition"]

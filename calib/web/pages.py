@@ -258,9 +258,13 @@ def curve_plots(curve: Any, index: int, *, unit_x: str = "", unit_y: str = "") -
     from calib.web.plot import Mark, chart_svg, residual_marks
 
     x_title, y_title, r_title = _titles(unit_x, unit_y)
+    flags = flagged_cells(curve)
     marks = [Mark(s.point.concentration, s.point.response, s.used, f"#std-{index}-{k}",
                   f"{s.point.source_cell}: nominal {num(s.point.concentration)}, response "
-                  f"{num(s.point.response)}{'' if s.used else ' (excluded)'}")
+                  f"{num(s.point.response)}{'' if s.used else ' (excluded)'}"
+                  + (f"; flagged: {flags[s.point.source_cell]}"
+                     if s.point.source_cell in flags else ""),
+                  s.point.source_cell in flags)
              for k, s in enumerate(curve.standards, start=1)]
     xs = [m.x for m in marks]
     log_x = wants_log_axis(xs)

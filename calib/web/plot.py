@@ -44,6 +44,7 @@ class Mark:
     used: bool = True
     href: str = ""
     label: str = ""
+    flagged: bool = False
 
 
 class _Scale:
@@ -127,6 +128,9 @@ def _legend(out: list[str], items: Sequence[tuple[str, str]], top: float) -> Non
             fill = colour if kind == "used" else "#ffffff"
             out.append(f'<circle cx="22" cy="{y - 5:.1f}" r="5" fill="{fill}" stroke="{colour}" '
                        'stroke-width="2"/>')
+        elif kind == "flagged":
+            out.append(f'<circle cx="22" cy="{y - 5:.1f}" r="9" fill="none" stroke="{_WARN}" '
+                       'stroke-width="2.5"/>')
         elif kind == "band":
             out.append(f'<rect x="12" y="{y - 11:.1f}" width="20" height="11" fill="{_BAND}"/>')
         else:
@@ -141,13 +145,17 @@ def _legend(out: list[str], items: Sequence[tuple[str, str]], top: float) -> Non
 
 
 def _marks(out: list[str], xs: _Scale, ys: _Scale, marks: Sequence[Mark]) -> None:
-    for m in marks:
+    # Flagged points last, so that they sit on top of a replicate at the same place.
+    for m in sorted(marks, key=lambda m: m.flagged):
         if not (xs.inside(m.x) and ys.inside(m.y)):
             continue
         colour = _POINT if m.used else _EXCLUDED
         fill = colour if m.used else "#ffffff"
         dot = (f'<circle cx="{xs(m.x):.1f}" cy="{ys(m.y):.1f}" r="6" fill="{fill}" '
                f'stroke="{colour}" stroke-width="2"/>')
+        if m.flagged:
+            dot += (f'<circle cx="{xs(m.x):.1f}" cy="{ys(m.y):.1f}" r="11" fill="none" '
+                    f'stroke="{_WARN}" stroke-width="2.5"/>')
         title = f"<title>{escape(m.label)}</title>" if m.label else ""
         if m.href:
             out.append(f'<a href={quoteattr(m.href)} aria-label={quoteattr(m.label or m.href)}>'
@@ -187,6 +195,8 @@ def chart_svg(marks: Sequence[Mark], *, x_title: str, y_title: str, label: str,
     items = [("used", "Standard in the fit")]
     if any(not m.used for m in marks):
         items.append(("excluded", "Standard excluded"))
+    if any(m.flagged for m in marks):
+        items.append(("flagged", "Flagged by a check"))
     if band:
         items.append(("band", band_words or "Confidence band"))
     if curve:
@@ -232,7 +242,8 @@ def chart_svg(marks: Sequence[Mark], *, x_title: str, y_title: str, label: str,
 
 def residual_marks(marks: Sequence[Mark], fitted: Sequence[float | None]) -> list[Mark]:
     """``marks`` as residuals (response − fitted), leaving out points without a fitted value."""
-    return [Mark(m.x, m.y - f, m.used, m.href, m.label) for m, f in zip(marks, fitted)
+    return [Mark(m.x, m.y - f, m.used, m.href, m.label, m.flagged)
+            for m, f in zip(marks, fitted)
             if f is not None and math.isfinite(f)]
 
 

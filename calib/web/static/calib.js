@@ -37,3 +37,12 @@ document.querySelectorAll("[data-drop]").forEach(function (zone) {
   (box || row).focus();
   row.scrollIntoView({block: "center"});
 }());
+
+// A box whose pattern says "words, not only spaces" explains itself in the page's own
+// sentence (its title) instead of the browser's "match the requested format".
+document.querySelectorAll("input[pattern][title]").forEach(function (box) {
+  box.addEventListener("invalid", function () {
+    box.setCustomValidity(box.validity.patternMismatch ? box.title : "");
+  });
+  box.addEventListener("input", function () { box.setCustomValidity(""); });
+});

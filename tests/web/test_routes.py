@@ -870,3 +870,6 @@ def test_archive_listing_is_paged_and_a_long_entry_does_not_list_every_analyte(c
     assert "40 analytes: MRS-101, MRS-102 … MRS-140" in table and "MRS-120" not in table
     with Archive(archive, create=False) as store:
         assert len(store.entries(data=False)) == PAGE_ROWS + 4
+    found = client.get("/archive", params={"analyte": "mrs-1"}).text
+    assert ("40 curves of 40 analytes whose name holds “mrs-1” (MRS-101, MRS-102, MRS-103 …)"
+            in found) and "Page 1 of 2" in found

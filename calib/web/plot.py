@@ -100,7 +100,7 @@ def _text(x: float, y: float, text: str, *, anchor: str = "middle", size: int = 
 
 
 def _frame(out: list[str], xs: _Scale, ys: _Scale, x_title: str, y_title: str,
-           x_labels: Sequence[tuple[float, str]] | None = None) -> None:
+           x_labels: Sequence[tuple[float, str, str]] | None = None) -> None:
     left, right, top, bottom = xs.start, xs.end, ys.end, ys.start
     out.append(f'<rect x="{left:.1f}" y="{top:.1f}" width="{right - left:.1f}" '
                f'height="{bottom - top:.1f}" fill="none" stroke="{_MUTED}"/>')
@@ -109,12 +109,12 @@ def _frame(out: list[str], xs: _Scale, ys: _Scale, x_title: str, y_title: str,
         out.append(f'<line x1="{left:.1f}" y1="{y:.1f}" x2="{right:.1f}" y2="{y:.1f}" '
                    f'stroke="{_LINE}" stroke-width="0.6"/>')
         out.append(_text(left - 5, y + FONT_SIZE * 0.35, _tick(t), anchor="end"))
-    labels = x_labels if x_labels is not None else [(t, _tick(t)) for t in xs.ticks]
-    for t, word in labels:
+    labels = x_labels if x_labels is not None else [(t, _tick(t), "middle") for t in xs.ticks]
+    for t, word, anchor in labels:
         x = xs(t)
         out.append(f'<line x1="{x:.1f}" y1="{bottom:.1f}" x2="{x:.1f}" y2="{bottom + 5:.1f}" '
                    f'stroke="{_MUTED}"/>')
-        out.append(_text(x, bottom + FONT_SIZE + 4, word))
+        out.append(_text(x, bottom + FONT_SIZE + 4, word, anchor=anchor))
     out.append(_text((left + right) / 2, bottom + 2 * FONT_SIZE + 10, x_title))
     out.append(_text(FONT_SIZE, (top + bottom) / 2, y_title, rotate=True))
 
@@ -292,7 +292,10 @@ def trend_svg(dates: Sequence[str], values: Sequence[float], *, y_title: str, la
         x0 = xs(days[0]) - 4
         out.append(f'<rect x="{x0:.1f}" y="{ys.end:.1f}" width="{x1 - x0:.1f}" '
                    f'height="{ys.start - ys.end:.1f}" fill="{_BAND}"/>')
-    ends = [(float(d), dt.date.fromordinal(d).isoformat()) for d in sorted({lo, hi})]
+    # The first and last run dates, kept inside the frame (the axis is in days).
+    ends = [(float(lo), dt.date.fromordinal(lo).isoformat(), "start")]
+    if hi != lo:
+        ends.append((float(hi), dt.date.fromordinal(hi).isoformat(), "end"))
     _frame(out, xs, ys, "Run date", y_title, x_labels=ends)
     for kind, colour, pair in (("warning", _WARN, warning), ("action", _ACTION, action)):
         for v in pair or ():

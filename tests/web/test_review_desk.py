@@ -176,6 +176,7 @@ def test_forty_analyte_review_from_summary_to_signed_record_in_the_archive(
 
 PAGES = ("/", "/sign", "/verify", "/quantify", "/archive", "/archive/chain", "{run}",
          "{curve}", "{issued}", "{record}", "/archive?analyte=mrs-1", "/archive/trend",
+         "/archive/trend?analyte=MRS-101",
          "{quantified}", "/no/such/page")
 
 

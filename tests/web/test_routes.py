@@ -421,6 +421,19 @@ def test_trend_page_draws_control_charts(client, archive):
     assert r.status_code == 200
     assert r.text.count("<svg") == 3 and "control chart of slope b" in r.text
     assert "Limits from the first 4 accepted curves" in r.text
+    # Against run dates (make_record dates run i at T0 + i days): the axis names the first and
+    # last, and the legend says what is drawn: 4 baseline curves, as the limits used.
+    from datetime import timedelta
+
+    from tests.archive.helpers import T0
+
+    first, last = T0.date().isoformat(), (T0 + timedelta(days=3)).date()
+    charts = re.findall(r'<svg class="chart".*?</svg>', r.text, re.DOTALL)
+    assert len(charts) == 3
+    for svg in charts:
+        assert f">{first}</text>" in svg and f">{last.isoformat()}</text>" in svg
+        assert ">Run date</text>" in svg and ">Baseline: first 4 curves</text>" in svg
+        assert "first 10" not in svg
     r = client.get("/archive/trend", params={"analyte": "Arsenic"})
     assert r.status_code == 404
     assert error_of(r.text) == ("No curve of &#39;Arsenic&#39; in the archive; analytes "

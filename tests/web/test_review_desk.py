@@ -182,7 +182,7 @@ PAGES = ("/", "/sign", "/verify", "/quantify", "/archive", "/archive/chain", "{r
 
 @pytest.mark.parametrize("width", WIDTHS)
 def test_every_page_has_no_axe_violations_and_no_sideways_scroll(server, browser, tmp_path,
-                                                               width):  # noqa: F811
+                                                               width):
     script = axe_script()
     if script is None:
         pytest.skip("axe-core is not installed: npm install axe-core into "

@@ -23,7 +23,7 @@ from pathlib import Path
 
 import pytest
 
-from tests.web.test_browser import CHROMIUM, FLAGS, ROOT, server  # noqa: F401  (fixture)
+from tests.web.test_browser import CHROMIUM, FLAGS, ROOT
 
 sync_api = pytest.importorskip("playwright.sync_api")
 
@@ -75,7 +75,7 @@ def chart_text_sizes(page) -> list[float]:
 
 
 def test_forty_analyte_review_from_summary_to_signed_record_in_the_archive(
-        server, browser, tmp_path):  # noqa: F811
+        server, browser, tmp_path):
     base, _ = server
     blocked: list[str] = []
     page = browser.new_page(viewport={"width": 1280, "height": 900}, accept_downloads=True)

@@ -151,6 +151,24 @@ def _worst(curve: Any) -> tuple[float | None, str]:
     return best
 
 
+def failed_checks(checks: Sequence[tuple[str, str, str]], verdict: str) -> list[str]:
+    """Short names of the checks behind a verdict, from (title, result, severity) triples.
+
+    The failed rules that reject or ask for review; for a curve needing review
+    with none failed, the warnings that ask for review (a suggested outlier).
+
+    Examples
+    --------
+    >>> failed_checks([("Suggested outliers (Grubbs)", "warn", "review"),
+    ...                ("Weighting advice", "warn", "info")], "needs-review")
+    ['Suggested outliers']
+    """
+    names = [short_check_name(t) for t, r, sev in checks if r == "fail" and sev in _WEIGHTY]
+    if not names and verdict != "accepted":
+        names = [short_check_name(t) for t, r, sev in checks if r == "warn" and sev in _WEIGHTY]
+    return names
+
+
 def summary_order(assessment: Any) -> list[int]:
     """Curve indexes, rejected first, then needing review, then accepted (file order within)."""
     return sorted(range(len(assessment.curves)),
@@ -171,11 +189,8 @@ def run_summary(assessment: Any, *, show: str = "all") -> dict[str, Any]:
         verdict = curve.verdict.value
         if show not in ("all", verdict):
             continue
-        failed = [short_check_name(c.title) for c in curve.checks
-                  if c.verdict.value == "fail" and c.severity.value in _WEIGHTY]
-        if not failed and verdict != "accepted":
-            failed = [short_check_name(c.title) for c in curve.checks
-                      if c.verdict.value == "warn" and c.severity.value in _WEIGHTY]
+        failed = failed_checks([(c.title, c.verdict.value, c.severity.value)
+                                for c in curve.checks], verdict)
         if curve.fit is None and curve.unfitted_reason:
             failed.insert(0, "Not fitted")
         worst, worst_cell = _worst(curve)
@@ -313,9 +328,9 @@ def record_curves(body: Mapping[str, Any], *, plots: bool = True) -> list[dict[s
     curves = check.get("curves") if isinstance(check.get("curves"), list) else []
     for index, c in enumerate(x for x in curves if isinstance(x, Mapping)):
         checks = [k for k in c.get("checks") or () if isinstance(k, Mapping)]
-        failed = [short_check_name(str(k.get("title") or k.get("id")))
-                  for k in checks if k.get("verdict") == "fail"
-                  and k.get("severity") in _WEIGHTY]
+        failed = failed_checks([(str(k.get("title") or k.get("id")), str(k.get("verdict")),
+                                 str(k.get("severity"))) for k in checks],
+                               str(c.get("verdict", "")))
         points = [p for p in c.get("points") or () if isinstance(p, Mapping)]
         charts: list[str] = []
         if plots and points:
@@ -340,9 +355,10 @@ def record_curves(body: Mapping[str, Any], *, plots: bool = True) -> list[dict[s
                     charts.append(chart_svg(residuals, x_title=x_title, y_title=r_title,
                                             zero_line=True, label=f"{analyte}: residuals"))
         out.append({"index": index, "analyte": str(c.get("analyte", "")),
+                    "rank": _SEVERITY.get(str(c.get("verdict", "")), 3),
                     "verdict": str(c.get("verdict", "")), "checks": failed,
                     "reasons": [str(r) for r in c.get("reasons") or ()], "charts": charts})
-    return out
+    return sorted(out, key=lambda c: (c["rank"], c["index"]))
 
 
 def verify_view(report: Any, label: str) -> dict[str, Any]:

@@ -883,6 +883,16 @@ def test_archive_listing_is_paged_and_a_long_entry_does_not_list_every_analyte(c
     assert "40 analytes: MRS-101, MRS-102 … MRS-140" in table and "MRS-120" not in table
     with Archive(archive, create=False) as store:
         assert len(store.entries(data=False)) == PAGE_ROWS + 4
+    # Its record page: worst first, each curve with the checks behind its own verdict.
+    record_id = re.search(r'href="/archive/record/(CR-[0-9A-F]+)">[^<]+</a></td><td>issued'
+                          r'</td><td>[^<]*</td><td><span class="verdict v-rejected"', last)
+    assert record_id, "the 40-analyte entry is listed with its run verdict"
+    page = client.get(f"/archive/record/{record_id.group(1)}").text
+    table = page[page.index('aria-label="Curves in the record"'):]
+    names = re.findall(r'<tr><th scope="row">(MRS-\d+)</th>', table[:table.index("</table>")])
+    assert len(names) == 40 and names[0] == "MRS-105"  # the first rejected curve in file order
+    row = table[table.index(">MRS-101<"):]
+    assert "<li>Suggested outliers</li>" in row[:row.index("</tr>")]
     found = client.get("/archive", params={"analyte": "mrs-1"}).text
     assert ("40 curves of 40 analytes whose name holds “mrs-1” (MRS-101, MRS-102, MRS-103 …)"
             in found) and "Page 1 of 2" in found

@@ -171,6 +171,20 @@ def test_forty_analyte_review_from_summary_to_signed_record_in_the_archive(
     rows.first.get_by_role("link").click()
     assert "prepared, rejected" in page.inner_text("main")
     shot(page, tmp_path, "7-record")
+
+    # Quantify: results with units and QC, and the PDF report as a download.
+    page.goto(base + "/quantify")
+    page.set_input_files("#curve", str(ROOT / "sample_runs" / "fernbrook_phosphate_2026-12-06.tsv"))
+    page.get_by_role("button", name="Quantify").click()
+    page.wait_for_selector("text=Batch verdict")
+    assert "mg/L" in page.inner_text("main") and page.locator("[aria-label='QC samples']").count()
+    with page.expect_download() as info:
+        page.get_by_role("link", name="Download the results (PDF)").click()
+    saved = tmp_path / "quantify.pdf"
+    info.value.save_as(str(saved))
+    assert saved.read_bytes().startswith(b"%PDF")
+    assert info.value.suggested_filename == "fernbrook_phosphate_2026-12-06-results.pdf"
+    shot(page, tmp_path, "8-quantify")
     assert blocked == []
 
 

@@ -81,6 +81,10 @@ WILDCARDS = ("0.0.0.0", "::", "")
 def run(args: argparse.Namespace) -> int:
     import os
 
+    # Before numpy loads: one BLAS thread per request (calib.web.threads says why).
+    from calib.web.threads import limit_blas_threads
+
+    blas = limit_blas_threads()
     try:
         import uvicorn
 
@@ -128,6 +132,7 @@ def run(args: argparse.Namespace) -> int:
     if token:
         print("calib: listening beyond this computer; every browser needs the access token "
               f"above ({token})", flush=True)
+    print(f"calib: {blas}", flush=True)
     print("calib: press Ctrl+C to stop", flush=True)
     if args.open:
         import webbrowser

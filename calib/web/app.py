@@ -148,7 +148,11 @@ async def run_exclude(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
     target, reason = _text(form, "target"), _text(form, "reason")
-    back = _text(form, "back")
+    place = _place(run, _text(form, "back"), _text(form, "row"))
+    if not reason:
+        return _review_view(request, run_id, run, place, error=(
+            f"Excluding {target or 'a point'} needs a reason in words: type why in the box "
+            "beside the point (spaces alone are not a reason)."))
     from calib.checks.exclusions import parse_exclusion
 
     try:
@@ -159,34 +163,58 @@ async def run_exclude(request: Request) -> Response:
         if (target, reason) in run.exclusions:
             run.exclusions.remove((target, reason))
             await run_in_threadpool(_assess, run)
-        return _run_view(request, run_id, run, error=one_line(str(exc)), status=400)
-    return RedirectResponse(_back(run_id, back), 303)
+        return _review_view(request, run_id, run, place, error=one_line(str(exc)))
+    return RedirectResponse(_back(run_id, run, place), 303)
 
 
 async def run_include(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
     target, reason = _text(form, "target"), _text(form, "reason")
-    back = _text(form, "back")
+    place = _place(run, _text(form, "back"), _text(form, "row"))
     kept = [(t, r) for t, r in run.exclusions if t != target]
     if len(kept) == len(run.exclusions):
-        return _run_view(request, run_id, run, status=400, error=(
+        return _review_view(request, run_id, run, place, error=(
             f"{target or 'That point'} was not excluded on this page, so it cannot be put back "
             "here (a point the run file excludes stays out)."))
     if not reason:
-        return _run_view(request, run_id, run, status=400, error=(
+        return _review_view(request, run_id, run, place, error=(
             f"Putting {target} back needs a reason: type it in the box beside the point."))
     run.exclusions = kept
     run.reinclusions.append((target, reason))
     await run_in_threadpool(_assess, run)
-    return RedirectResponse(_back(run_id, back), 303)
+    return RedirectResponse(_back(run_id, run, place), 303)
 
 
-def _back(run_id: str, back: str) -> str:
-    """Where to return after a form: this run's page or one of its curves (never elsewhere)."""
-    if back.isdigit():
-        return f"/run/{run_id}/curve/{int(back)}"
-    return f"/run/{run_id}"
+def _place(run: OpenRun, back: str, row: str) -> tuple[int | None, int | None]:
+    """The curve and standards-table row a form came from (None where not given or unknown)."""
+    curve = int(back) if back.isdigit() and int(back) < len(run.assessment.curves) else None
+    line = int(row) if row.isdigit() and 0 < int(row) <= 100_000 else None
+    return curve, line
+
+
+def _review_view(request: Request, run_id: str, run: OpenRun,
+                 place: tuple[int | None, int | None], *, error: str) -> Response:
+    """The page the form came from, with ``error`` (status 400): a curve page or the run's."""
+    curve, _ = place
+    if curve is None or len(run.assessment.curves) == 1:
+        return _run_view(request, run_id, run, error=error, status=400)
+    return _render(request, "curve.html", status=400, run_id=run_id, run=run, error=error,
+                   curve=pages.curve_view(run.assessment, curve))
+
+
+def _back(run_id: str, run: OpenRun, place: tuple[int | None, int | None]) -> str:
+    """Where to return after a form: the same curve and table row (never another site).
+
+    A run of one curve shows it on the run's own page, so that page is the place.
+    """
+    curve, row = place
+    if curve is None:
+        return f"/run/{run_id}"
+    anchor = f"#std-{curve}-{row}" if row is not None else f"#curve-{curve}"
+    if len(run.assessment.curves) == 1:
+        return f"/run/{run_id}{anchor}"
+    return f"/run/{run_id}/curve/{curve}{anchor}"
 
 
 async def run_close(request: Request) -> Response:
@@ -259,7 +287,9 @@ async def issued_page(request: Request) -> Response:
     run_id, run = _open_run(request)
     if run.issued is None:
         return RedirectResponse(f"/run/{run_id}/issue", 303)
-    return _render(request, "issued.html", run_id=run_id, run=run, record=run.issued)
+    return _render(request, "issued.html", run_id=run_id, run=run, record=run.issued,
+                   curves=pages.record_curves(run.issued.body),
+                   version=len(run.issued.body.get("signatures") or ()))
 
 
 async def issued_pdf(request: Request) -> Response:
@@ -280,6 +310,43 @@ async def sign_post(request: Request) -> Response:
     form = await _form(request)
     upload = await _file(form, "record", what="record (its PDF or JSON)")
     assert upload is not None
+    outcome = await _sign(request, form, upload, file_it=form.get("file_in_archive") == "yes")
+    return _signed_view(request, outcome)
+
+
+async def sign_issued(request: Request) -> Response:
+    """Sign the record just issued for this run, from its page (no download and upload)."""
+    form = await _form(request)
+    run_id, run = _open_run(request)
+    if run.issued is None or run.issued_pdf is None:
+        raise PageError("No record has been issued for this run yet.", 404)
+    upload = (f"{run.issued.record_id}.pdf", run.issued_pdf)
+    outcome = await _sign(request, form, upload, file_it=form.get("file_in_archive") == "yes")
+    # The run's record is now the signed version: a later signature continues it.
+    run.issued, run.issued_pdf = outcome.record, outcome.signed.pdf
+    return _signed_view(request, outcome,
+                        back=(f"/run/{run_id}/issued", f"the record of {run.name}"))
+
+
+async def sign_archived(request: Request) -> Response:
+    """Sign the latest archived version of a record, from its archive page; file the new one."""
+    form = await _form(request)
+    record_id = request.path_params["record_id"]
+    from calib.archive import Archive
+
+    with Archive(_archive_path(request), create=False) as store:
+        latest = store.latest(record_id)
+    if latest is None:
+        raise PageError(f"No record {record_id} in the archive.", 404)
+    outcome = await _sign(request, form, (f"{latest.record_id}.pdf", latest.pdf), file_it=True)
+    return _signed_view(request, outcome,
+                        back=(f"/archive/record/{latest.record_id}",
+                              f"record {latest.record_id} in the archive"))
+
+
+async def _sign(request: Request, form: FormData, upload: tuple[str, bytes], *,
+                file_it: bool) -> Any:
+    """Check the signing form, sign the record bytes with calib.service.sign, file if asked."""
     role, name = _text(form, "role"), _text(form, "name")
     if role not in ("reviewed", "approved", "rejected"):
         raise PageError("Choose what the signature means: reviewed, approved or rejected.")
@@ -297,7 +364,6 @@ async def sign_post(request: Request) -> Response:
     passphrase = passphrase if isinstance(passphrase, str) else ""
     if key_file and not passphrase:
         raise PageError("A key file needs its passphrase: type it in the passphrase box.")
-    file_it = form.get("file_in_archive") == "yes"
     if file_it:
         _archive_path(request)
 
@@ -314,6 +380,11 @@ async def sign_post(request: Request) -> Response:
                                 archive=request.app.state.archive if file_it else None)
 
     outcome = await run_in_threadpool(sign)
+    request.state.keyed = bool(key_file)
+    return outcome
+
+
+def _signed_view(request: Request, outcome: Any, *, back: tuple[str, str] | None = None) -> Response:
     record = outcome.record
     # Version N holds N signatures (prepared is 1), as calib sign and calib verify count.
     version = len(record.body["signatures"])
@@ -321,7 +392,7 @@ async def sign_post(request: Request) -> Response:
         f"{record.record_id}-v{version}.pdf", "application/pdf", outcome.signed.pdf))
     return _render(request, "signed.html", record=record, signature=record.body["signatures"][-1],
                    version=version, download=download, entries=outcome.entries,
-                   keyed=bool(key_file))
+                   keyed=bool(getattr(request.state, "keyed", False)), back=back)
 
 
 async def verify_page(request: Request) -> Response:
@@ -366,24 +437,34 @@ async def quantify_post(request: Request) -> Response:
     force = form.get("force") == "yes"
     assert curve is not None
 
-    def quantify() -> tuple[dict[str, Any], bytes]:
+    def quantify() -> tuple[dict[str, Any], bytes, bytes]:
+        import tempfile
+
         from calib import service
 
-        # The workbook is made with the results, as calib quantify --xlsx makes it.
-        with private_copy(curve[0], curve[1]) as curve_path:
+        # The workbook and the PDF report are made with the results, as
+        # calib quantify --xlsx --pdf makes them; the PDF is read back and deleted.
+        with tempfile.TemporaryDirectory(prefix="calib-web-") as folder, \
+                private_copy(curve[0], curve[1]) as curve_path:
+            pdf = Path(folder) / "quantify.pdf"
             if samples is None:
-                outcome = service.quantify(curve_path, None, force=force, workbook=True)
+                outcome = service.quantify(curve_path, None, force=force, workbook=True,
+                                           pdf=pdf)
             else:
                 with private_copy(samples[0], samples[1]) as samples_path:
                     outcome = service.quantify(curve_path, samples_path, force=force,
-                                               workbook=True)
-        return outcome.document, outcome.workbook
+                                               workbook=True, pdf=pdf)
+            return outcome.document, outcome.workbook, pdf.read_bytes()
 
-    document, workbook = await run_in_threadpool(quantify)
-    xlsx = _runs(request, create=True).add_download(Download(
-        "quantify-results.xlsx",
+    document, workbook, pdf = await run_in_threadpool(quantify)
+    store = _runs(request, create=True)
+    stem = Path(curve[0]).stem or "quantify"
+    xlsx = store.add_download(Download(
+        f"{stem}-results.xlsx",
         "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet", workbook))
-    return _render(request, "quantify.html", result=pages.quantify_view(document), xlsx=xlsx)
+    pdf_id = store.add_download(Download(f"{stem}-results.pdf", "application/pdf", pdf))
+    return _render(request, "quantify.html", result=pages.quantify_view(document), xlsx=xlsx,
+                   pdf=pdf_id, curve_name=curve[0])
 
 
 # ---------------------------------------------------------------------- errors
@@ -471,6 +552,7 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         Route("/run/{run_id}/issue", _closing(issue_post), methods=["POST"]),
         Route("/run/{run_id}/issued", issued_page),
         Route("/run/{run_id}/record.pdf", issued_pdf),
+        Route("/run/{run_id}/sign", _closing(sign_issued), methods=["POST"]),
         Route("/sign", sign_page),
         Route("/sign", _closing(sign_post), methods=["POST"]),
         Route("/verify", verify_page),
@@ -481,6 +563,7 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         Route("/archive/trend", trend_page),
         Route("/archive/record/{record_id}", archive_record),
         Route("/archive/record/{record_id}/verify", archive_verify_record),
+        Route("/archive/record/{record_id}/sign", _closing(sign_archived), methods=["POST"]),
         Route("/archive/record/{record_id}/{seq:int}.pdf", archive_pdf),
         Route("/quantify", quantify_page),
         Route("/quantify", _closing(quantify_post), methods=["POST"]),

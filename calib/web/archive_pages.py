@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from typing import Any
+from urllib.parse import urlencode
 
 from starlette.concurrency import run_in_threadpool
 from starlette.requests import Request
@@ -22,6 +23,18 @@ def _store(request: Request) -> Any:
     return Archive(_archive_path(request), create=False)
 
 
+#: Rows on one page of the archive listing.
+PAGE_ROWS = 25
+
+
+def _page_number(text: str) -> int:
+    if not text:
+        return 1
+    if not text.isdigit() or not 1 <= int(text) <= 1_000_000:
+        raise PageError(f"The page number must be a whole number from 1; got {text!r}.")
+    return int(text)
+
+
 async def archive_page(request: Request) -> Response:
     query = {k: " ".join(request.query_params.get(k, "").split())
              for k in ("analyte", "from", "to", "verdict", "instrument")}
@@ -30,13 +43,39 @@ async def archive_page(request: Request) -> Response:
             pages.check_date(query[key], key)
     if query["verdict"] and query["verdict"] not in ("accepted", "rejected", "needs-review"):
         raise PageError(f"Unknown verdict {query['verdict']!r}: choose one from the list.")
+    number = _page_number(request.query_params.get("page", ""))
     with _store(request) as store:
-        found = store.entries(analyte=query["analyte"] or None, verdict=query["verdict"] or None,
-                              instrument=query["instrument"] or None,
-                              date_from=query["from"] or None, date_to=query["to"] or None,
-                              data=False)
         analytes = store.analytes()
-    return _render(request, "archive.html", query=query, entries=found, analytes=analytes)
+        if query["analyte"]:
+            # One row per curve of every analyte whose name holds the words typed, with
+            # that curve's own verdict (not the run's).
+            wanted = query["analyte"].casefold()
+            matched = [a for a in analytes if wanted in a.casefold()]
+            rows: list[Any] = [
+                c for name in matched for c in store.curve_history(
+                    name, instrument=query["instrument"] or None)
+                if (not query["verdict"] or c.figures.verdict == query["verdict"])
+                and (not query["from"] or c.run_date >= query["from"])
+                and (not query["to"] or c.run_date <= query["to"])]
+            rows.sort(key=lambda c: (c.seq, c.figures.position))
+        else:
+            matched = []
+            rows = store.entries(verdict=query["verdict"] or None,
+                                 instrument=query["instrument"] or None,
+                                 date_from=query["from"] or None, date_to=query["to"] or None,
+                                 data=False)
+    pages_total = max(1, -(-len(rows) // PAGE_ROWS))
+    if number > pages_total:
+        raise PageError(f"There is no page {number}: the search found {len(rows)} row"
+                        f"{'' if len(rows) == 1 else 's'} ({pages_total} page"
+                        f"{'' if pages_total == 1 else 's'}).", 404)
+    shown = rows[(number - 1) * PAGE_ROWS:number * PAGE_ROWS]
+    keep = {k: v for k, v in query.items() if v}
+    return _render(request, "archive.html", query=query, rows=shown, by_analyte=bool(
+        query["analyte"]), matched=matched, analytes=analytes, found=len(rows), page=number,
+        pages_total=pages_total, first=(number - 1) * PAGE_ROWS + 1 if rows else 0,
+        last=(number - 1) * PAGE_ROWS + len(shown),
+        page_link=lambda n: "/archive?" + urlencode({**keep, "page": n}))
 
 
 async def archive_record(request: Request) -> Response:

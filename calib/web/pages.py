@@ -12,8 +12,8 @@ from collections.abc import Mapping, Sequence
 from typing import Any
 
 __all__ = [
-    "check_word", "choices", "curve_view", "num", "quantify_view", "record_view", "run_summary",
-    "size_text", "trend_view", "verdict_word", "verify_view",
+    "check_word", "choices", "curve_view", "flagged_cells", "neighbours", "num", "quantify_view", "record_view", "run_summary",
+    "short_check_name", "size_text", "summary_order", "trend_view", "verdict_word", "verify_view",
 ]
 
 #: Verdicts in words, each with a symbol so that no verdict rests on colour.
@@ -96,27 +96,129 @@ def choices(profiles: Sequence[str]) -> dict[str, Sequence[str]]:
             "weightings": [w.value for w in Weighting]}
 
 
+#: Summary order: the curves that need the reviewer first.
+_SEVERITY = {"rejected": 0, "needs-review": 1, "accepted": 2}
+#: Checks that name a verdict reason (a failed rule that rejects or asks for review).
+_WEIGHTY = {"reject", "review"}
+
+
+def short_check_name(title: str) -> str:
+    """A check's title without its parenthesised method, for a summary cell.
+
+    Examples
+    --------
+    >>> short_check_name("Lack of fit against replicate error (F-test)")
+    'Lack of fit against replicate error'
+    >>> short_check_name("Weighting advice")
+    'Weighting advice'
+    """
+    return title.split(" (", 1)[0].strip() or title
+
+
+def flagged_cells(curve: Any) -> dict[str, str]:
+    """Cells the checks single out, each with why: suggested outliers, standards out of tolerance.
+
+    Read from the outlier and back-calculation checks' own sentences, which name
+    each cell (``CELL: finding`` and ``outside: CELL (+x %)``); no statistic is
+    computed here.
+    """
+    out: dict[str, str] = {}
+    details = {c.id: (c.verdict.value, c.detail) for c in curve.checks}
+    verdict, detail = details.get("outliers", ("", ""))
+    cells = [s.point.source_cell for s in curve.standards]
+    if verdict == "warn":
+        head = detail.split(". ", 1)[0]
+        for cell in cells:
+            if f"{cell}:" in head:
+                out[cell] = "suggested outlier"
+    verdict, detail = details.get("back-calculation", ("", ""))
+    if "; outside: " in detail:
+        tail = detail.split("; outside: ", 1)[1]
+        for cell in cells:
+            if f"{cell} (" in tail:
+                out[cell] = (out[cell] + "; " if cell in out else "") + "outside tolerance"
+    return out
+
+
+def _worst(curve: Any) -> tuple[float | None, str]:
+    """The largest back-calculated deviation (%) of a standard in the fit, and its cell."""
+    best: tuple[float | None, str] = (None, "")
+    for s in curve.standards:
+        dev = s.deviation_pct
+        if (s.used and dev is not None and math.isfinite(dev)
+                and (best[0] is None or abs(dev) > abs(best[0]))):
+            best = (dev, s.point.source_cell)
+    return best
+
+
+def failed_checks(checks: Sequence[tuple[str, str, str]], verdict: str) -> list[str]:
+    """Short names of the checks behind a verdict, from (title, result, severity) triples.
+
+    The failed rules that reject or ask for review; for a curve needing review
+    with none failed, the warnings that ask for review (a suggested outlier).
+
+    Examples
+    --------
+    >>> failed_checks([("Suggested outliers (Grubbs)", "warn", "review"),
+    ...                ("Weighting advice", "warn", "info")], "needs-review")
+    ['Suggested outliers']
+    """
+    names = [short_check_name(t) for t, r, sev in checks if r == "fail" and sev in _WEIGHTY]
+    if not names and verdict != "accepted":
+        names = [short_check_name(t) for t, r, sev in checks if r == "warn" and sev in _WEIGHTY]
+    return names
+
+
+def summary_order(assessment: Any) -> list[int]:
+    """Curve indexes, rejected first, then needing review, then accepted (file order within)."""
+    return sorted(range(len(assessment.curves)),
+                  key=lambda i: (_SEVERITY.get(assessment.curves[i].verdict.value, 3), i))
+
+
 def run_summary(assessment: Any, *, show: str = "all") -> dict[str, Any]:
-    """One row per curve (filtered by verdict), with the counts of each verdict."""
+    """One row per curve, worst verdict first (filtered by verdict), with each verdict's count.
+
+    Each row names the failed checks by their short names, the worst
+    back-calculated deviation and the cells the checks single out.
+    """
     rows, counts = [], {"accepted": 0, "rejected": 0, "needs-review": 0}
-    for index, curve in enumerate(assessment.curves):
+    for curve in assessment.curves:
+        counts[curve.verdict.value] = counts.get(curve.verdict.value, 0) + 1
+    for index in summary_order(assessment):
+        curve = assessment.curves[index]
         verdict = curve.verdict.value
-        counts[verdict] = counts.get(verdict, 0) + 1
         if show not in ("all", verdict):
             continue
+        failed = failed_checks([(c.title, c.verdict.value, c.severity.value)
+                                for c in curve.checks], verdict)
+        if curve.fit is None and curve.unfitted_reason:
+            failed.insert(0, "Not fitted")
+        worst, worst_cell = _worst(curve)
         rows.append({"index": index, "analyte": curve.analyte, "verdict": verdict,
-                     "reasons": curve.reasons, "n_used": sum(s.used for s in curve.standards),
+                     "checks": failed, "worst": worst, "worst_cell": worst_cell,
+                     "flagged": flagged_cells(curve),
+                     "n_used": sum(s.used for s in curve.standards),
                      "n": len(curve.standards),
                      "slope": curve.fit.coefficients.get("slope") if curve.fit else None,
                      "r_squared": curve.fit.r_squared if curve.fit else None})
     return {"rows": rows, "counts": counts, "filters": FILTERS, "total": len(assessment.curves)}
 
 
+def neighbours(assessment: Any, index: int) -> tuple[int | None, int | None]:
+    """The previous and next curve not accepted, in the summary's order (None at either end)."""
+    order = [i for i in summary_order(assessment)
+             if assessment.curves[i].verdict.value != "accepted"]
+    if index in order:
+        at = order.index(index)
+        return (order[at - 1] if at > 0 else None,
+                order[at + 1] if at + 1 < len(order) else None)
+    return (None, order[0]) if order else (None, None)
+
+
 def curve_view(assessment: Any, index: int) -> dict[str, Any]:
     """Everything the curve section shows: verdict sentence, charts, fit, checks, standards."""
     from calib.report import load_template
     from calib.report.wording import verdict_sentence
-    from calib.web.svg import curve_charts
 
     curve = assessment.curves[index]
     units = assessment.run.units_of(curve.analyte)
@@ -126,6 +228,7 @@ def curve_view(assessment: Any, index: int) -> dict[str, Any]:
     analyst = {cell: reason for e in assessment.exclusions for cell in e.cells
                for reason in (e.reason,)}
     targets = {cell: e.target for e in assessment.exclusions for cell in e.cells}
+    flags = flagged_cells(curve)
     standards = []
     for s in curve.standards:
         cell = s.point.source_cell
@@ -135,19 +238,127 @@ def curve_view(assessment: Any, index: int) -> dict[str, Any]:
             "fitted": s.fitted, "back": s.back_calculated, "deviation": s.deviation_pct,
             "used": s.used, "reason": s.exclusion_reason or "",
             "by_analyst": cell in analyst, "target": targets.get(cell, cell),
+            "flag": flags.get(cell, ""),
         })
     fit = curve.fit
     return {
         "index": index, "analyte": curve.analyte, "verdict": curve.verdict.value,
         "sentence": sentence, "reasons": curve.reasons, "model": curve.model.value,
         "weighting": curve.weighting.value, "confidence": curve.confidence,
-        "charts": curve_charts(curve, unit_x=units.get("concentration", ""),
-                               unit_y=units.get("response", "")),
+        "charts": curve_plots(curve, index, unit_x=units.get("concentration", ""),
+                              unit_y=units.get("response", "")),
         "coefficients": fit.coefficient_table() if fit else (),
         "fit": fit, "unfitted": curve.unfitted_reason, "lod": curve.lod, "loq": curve.loq,
         "checks": curve.checks, "standards": standards,
         "units": units, "lloq": curve.lloq, "uloq": curve.uloq,
+        "neighbours": neighbours(assessment, index), "total": len(assessment.curves),
     }
+
+
+def _titles(unit_x: str, unit_y: str) -> tuple[str, str, str]:
+    return ("Concentration" + (f" ({unit_x})" if unit_x else ""),
+            "Response" + (f" ({unit_y})" if unit_y else ""),
+            "Residual" + (f" ({unit_y})" if unit_y else ""))
+
+
+def curve_plots(curve: Any, index: int, *, unit_x: str = "", unit_y: str = "") -> list[str]:
+    """Calibration plot (with the fitted curve and its confidence band) and residual plot.
+
+    Each standard is a link to its row of the standards table (``#std-CURVE-ROW``)
+    named by its cell.
+    """
+    import numpy as np
+
+    from calib.report.charts import wants_log_axis
+    from calib.web.plot import Mark, chart_svg, residual_marks
+
+    x_title, y_title, r_title = _titles(unit_x, unit_y)
+    flags = flagged_cells(curve)
+    marks = [Mark(s.point.concentration, s.point.response, s.used, f"#std-{index}-{k}",
+                  f"{s.point.source_cell}: nominal {num(s.point.concentration)}, response "
+                  f"{num(s.point.response)}{'' if s.used else ' (excluded)'}"
+                  + (f"; flagged: {flags[s.point.source_cell]}"
+                     if s.point.source_cell in flags else ""),
+                  s.point.source_cell in flags)
+             for k, s in enumerate(curve.standards, start=1)]
+    xs = [m.x for m in marks]
+    log_x = wants_log_axis(xs)
+    line: list[tuple[float, float]] = []
+    band: list[tuple[float, float, float]] = []
+    limits: list[tuple[float, float, float]] = []
+    fit = curve.fit
+    if fit is not None and xs:
+        lo, hi = min(xs), max(xs)
+        grid = np.geomspace(lo, hi, 80) if log_x and lo > 0 else np.linspace(lo, hi, 80)
+        yhat, half = fit.predict(grid), fit.confidence_band(grid)
+        if np.all(np.isfinite(yhat)):
+            line = list(zip(grid.tolist(), yhat.tolist()))
+            if np.all(np.isfinite(half)):
+                band = [(x, y - h, y + h) for x, y, h in zip(grid.tolist(), yhat.tolist(),
+                                                              half.tolist())]
+            pred = fit.prediction_band(grid)
+            if np.all(np.isfinite(pred)):
+                limits = [(x, y - h, y + h) for x, y, h in zip(grid.tolist(), yhat.tolist(),
+                                                                pred.tolist())]
+    words = f"{curve.confidence * 100:g} % confidence band of the mean"
+    plots = [chart_svg(marks, x_title=x_title, y_title=y_title, curve=line, band=band,
+                       band_words=words, limits=limits, log_x=log_x,
+                       limits_words=f"{curve.confidence * 100:g} % prediction limits for one "
+                                    "reading",
+                       label=f"{curve.analyte}: response against concentration")]
+    residuals = residual_marks(marks, [s.fitted for s in curve.standards])
+    if residuals:
+        plots.append(chart_svg(residuals, x_title=x_title, y_title=r_title, zero_line=True,
+                               log_x=log_x, label=f"{curve.analyte}: residuals"))
+    return plots
+
+
+def record_curves(body: Mapping[str, Any], *, plots: bool = True) -> list[dict[str, Any]]:
+    """Each curve of a record body: verdict, failed checks by short name, reasons, plots.
+
+    What a signer reads before signing; drawn from the record itself, so it is
+    exactly what the signature will cover.
+    """
+    from calib.web.plot import Mark, chart_svg, residual_marks
+
+    check = body.get("check") if isinstance(body.get("check"), Mapping) else {}
+    run = body.get("run") if isinstance(body.get("run"), Mapping) else {}
+    units = run.get("units") if isinstance(run.get("units"), Mapping) else {}
+    out = []
+    curves = check.get("curves") if isinstance(check.get("curves"), list) else []
+    for index, c in enumerate(x for x in curves if isinstance(x, Mapping)):
+        checks = [k for k in c.get("checks") or () if isinstance(k, Mapping)]
+        failed = failed_checks([(str(k.get("title") or k.get("id")), str(k.get("verdict")),
+                                 str(k.get("severity"))) for k in checks],
+                               str(c.get("verdict", "")))
+        points = [p for p in c.get("points") or () if isinstance(p, Mapping)]
+        charts: list[str] = []
+        if plots and points:
+            x_title, y_title, r_title = _titles(str(units.get("concentration") or ""),
+                                                str(units.get("response") or ""))
+            marks, fitted = [], []
+            for p in points:
+                x, y = p.get("concentration"), p.get("response")
+                if isinstance(x, (int, float)) and isinstance(y, (int, float)):
+                    marks.append(Mark(float(x), float(y), bool(p.get("included", True)), "",
+                                      f"{p.get('source_cell', '')}: nominal {num(x)}, "
+                                      f"response {num(y)}"))
+                    f = p.get("fitted")
+                    fitted.append(float(f) if isinstance(f, (int, float)) else None)
+            pairs = sorted((m.x, f) for m, f in zip(marks, fitted) if f is not None)
+            analyte = str(c.get("analyte", ""))
+            if marks:
+                charts.append(chart_svg(marks, x_title=x_title, y_title=y_title, curve=pairs,
+                                        label=f"{analyte}: response against concentration"))
+                residuals = residual_marks(marks, fitted)
+                if residuals:
+                    charts.append(chart_svg(residuals, x_title=x_title, y_title=r_title,
+                                            zero_line=True, label=f"{analyte}: residuals"))
+        out.append({"index": index, "analyte": str(c.get("analyte", "")),
+                    "rank": _SEVERITY.get(str(c.get("verdict", "")), 3),
+                    "verdict": str(c.get("verdict", "")), "checks": failed,
+                    "reasons": [str(r) for r in c.get("reasons") or ()], "charts": charts})
+    return sorted(out, key=lambda c: (c["rank"], c["index"]))
 
 
 def verify_view(report: Any, label: str) -> dict[str, Any]:
@@ -174,13 +385,13 @@ def record_view(versions: Sequence[Any]) -> dict[str, Any]:
     facts = record_facts(body)
     return {"record_id": latest.record_id, "versions": versions, "latest": latest,
             "run": body.get("run") or {}, "curves": facts.curves,
+            "review": record_curves(body),
             "signatures": body.get("signatures") or [], "intact": latest.digest_matches}
 
 
 def trend_view(trend: Any) -> dict[str, Any]:
     """A trend: its control charts as SVG, the limits, and each point's flags."""
     from calib.archive import RULES
-    from calib.web.svg import trend_charts
 
     rows = []
     for i, p in enumerate(trend.points):
@@ -191,15 +402,52 @@ def trend_view(trend: Any) -> dict[str, Any]:
                      "fired": fired})
     fired_rules = [f"{r}: {RULES[r]}" for r in RULES
                    if any(h.rule == r for c in trend.charts for h in c.hits)]
-    return {"analyte": trend.analyte, "charts": trend_charts(trend) if trend.evaluated else [],
+    return {"analyte": trend.analyte, "charts": trend_plots(trend) if trend.evaluated else [],
             "limits": trend.charts, "rows": rows, "flagged": trend.flagged,
             "fired_rules": fired_rules, "notes": trend.notes, "evaluated": trend.evaluated,
             "left_out": len(trend.left_out), "baseline": min(trend.baseline, len(trend.points))}
 
 
+_QUANTITIES = {"slope": "Slope b", "intercept": "Intercept a", "residual_sd": "Residual SD"}
+
+
+def trend_plots(trend: Any) -> list[tuple[str, str]]:
+    """(title, svg) of each control chart with limits, drawn against the run dates."""
+    from calib.web.plot import trend_svg
+
+    dates = [p.run_date for p in trend.points]
+    out = []
+    for chart in trend.charts:
+        lim = chart.limits
+        if lim is None:
+            continue
+        title = _QUANTITIES.get(chart.quantity, chart.quantity)
+        out.append((title, trend_svg(
+            dates, [float("nan") if v is None else float(v) for v in chart.values],
+            y_title=title, label=f"{trend.analyte}: control chart of {title.lower()} by run date",
+            mean=lim.mean, warning=lim.warning, action=lim.action, baseline=trend.baseline,
+            flagged=chart.flagged_points())))
+    return out
+
+
 def quantify_view(document: Mapping[str, Any]) -> dict[str, Any]:
-    """The ``calib.quantify/1`` document's curves, samples, QC and refusals, for the page."""
-    return {"verdict": document.get("verdict"), "curves": document.get("curves", []),
-            "samples": document.get("samples", []), "qc": document.get("qc", []),
+    """The ``calib.quantify/1`` document for the page: source, curves, samples, QC, refusals.
+
+    Each sample row gets its analyte's unit; each QC its nominal, found value and
+    deviation as the document holds them.
+    """
+    curves = [c for c in document.get("curves", []) if isinstance(c, Mapping)]
+    units = {c.get("analyte"): c.get("unit") or "" for c in curves}
+    samples = [{**s, "unit": units.get(s.get("analyte"), "")}
+               for s in document.get("samples", []) if isinstance(s, Mapping)]
+    qc = document.get("qc") if isinstance(document.get("qc"), Mapping) else {}
+    qc_rows = [{**o, "analyte": a.get("analyte"), "unit": units.get(a.get("analyte"), "")}
+               for a in qc.get("analytes", []) if isinstance(a, Mapping)
+               for o in a.get("outcomes", []) if isinstance(o, Mapping)]
+    source = document.get("curve") if isinstance(document.get("curve"), Mapping) else {}
+    return {"verdict": document.get("verdict"), "curves": curves, "samples": samples,
+            "qc": qc, "qc_rows": qc_rows, "source": source,
+            "samples_source": document.get("samples_source") or {},
             "refused": document.get("refused", {}), "forced": document.get("forced"),
+            "reasons": document.get("reasons", []),
             "cautions": document.get("cautions", ""), "notes": document.get("notes", [])}

@@ -169,14 +169,26 @@ def test_exclude_a_point_with_a_reason_recomputes_and_put_it_back(client):
     assert "Put back " in r.text and "cap was fine on inspection" in r.text
 
 
-def test_exclude_without_a_reason_is_refused_with_the_cli_message(client):
+@pytest.mark.parametrize("reason", ["", " ", "   \t  "])
+def test_exclude_with_a_reason_of_only_spaces_is_refused_in_a_plain_sentence(client, reason):
+    # Rule of the trade (data integrity): every exclusion carries a reason in words.
     run_id = upload(client)
-    r = post(client, f"/run/{run_id}/exclude", {"target": FIRST_CELL, "reason": " "})
+    r = post(client, f"/run/{run_id}/exclude", {"target": FIRST_CELL, "reason": reason})
     assert r.status_code == 400
     assert error_of(r.text) == (
-        f"exclusion {FIRST_CELL + '='!r} has no reason: write CELL=REASON (every exclusion "
-        "needs one)").replace("'", "&#39;").replace('"', "&#34;")
+        f"Excluding {FIRST_CELL} needs a reason in words: type why in the box beside the point "
+        "(spaces alone are not a reason).").replace("'", "&#39;")
     assert "18 standards in the fit" in r.text
+
+
+def test_the_reason_box_refuses_spaces_before_sending(client):
+    # The browser checks the pattern first: a reason must hold a character that is not a space.
+    run_id = upload(client)
+    html = client.get(f"/run/{run_id}").text
+    boxes = re.findall(r'<input name="reason"[^>]*>', html)
+    assert boxes and all('required' in b and 'pattern=".*\\S.*"' in b for b in boxes)
+    pattern = re.search(r'pattern="([^"]+)"', boxes[0]).group(1)
+    assert re.fullmatch(pattern, "   ") is None and re.fullmatch(pattern, " air bubble ")
 
 
 def test_exclude_of_an_unknown_cell_is_refused_and_leaves_the_run_as_it_was(client):
@@ -411,6 +423,19 @@ def test_trend_page_draws_control_charts(client, archive):
     assert r.status_code == 200
     assert r.text.count("<svg") == 3 and "control chart of slope b" in r.text
     assert "Limits from the first 4 accepted curves" in r.text
+    # Against run dates (make_record dates run i at T0 + i days): the axis names the first and
+    # last, and the legend says what is drawn: 4 baseline curves, as the limits used.
+    from datetime import timedelta
+
+    from tests.archive.helpers import T0
+
+    first, last = T0.date().isoformat(), (T0 + timedelta(days=3)).date()
+    charts = re.findall(r'<svg class="chart".*?</svg>', r.text, re.DOTALL)
+    assert len(charts) == 3
+    for svg in charts:
+        assert f">{first}</text>" in svg and f">{last.isoformat()}</text>" in svg
+        assert ">Run date</text>" in svg and ">Baseline: first 4 curves</text>" in svg
+        assert "first 10" not in svg
     r = client.get("/archive/trend", params={"analyte": "Arsenic"})
     assert r.status_code == 404
     assert error_of(r.text) == ("No curve of &#39;Arsenic&#39; in the archive; analytes "
@@ -430,10 +455,45 @@ def test_quantify_the_runs_own_samples_and_download_the_workbook(client):
     with PHOSPHATE.open("rb") as f:
         r = post(client, "/quantify", {}, {"curve": (PHOSPHATE.name, f)})
     assert r.status_code == 200 and "Batch verdict" in r.text and "✓ Accepted" in r.text
-    link = re.search(r'href="(/download/[^"]+)"', r.text).group(1)
-    xlsx = client.get(link)
-    assert xlsx.content[:2] == b"PK" and "quantify-results.xlsx" in xlsx.headers[
-        "content-disposition"]
+    links = {name: link for link, name in re.findall(
+        r'href="(/download/[^"]+)" download>Download the results ([^<]+)</a>', r.text)}
+    xlsx = client.get(links["workbook (XLSX)"])
+    assert xlsx.content[:2] == b"PK" and "fernbrook_phosphate_2026-12-06-results.xlsx" in \
+        xlsx.headers["content-disposition"]
+    pdf = client.get(links["(PDF)"])
+    assert pdf.content.startswith(b"%PDF") and pdf.headers["content-disposition"].endswith(
+        '-results.pdf"')
+
+
+def test_quantify_shows_units_source_range_detection_limit_and_qc_deviation(client):
+    import numpy as np
+    import statsmodels.api as sm
+
+    from calib.workflow import check_file
+
+    curve = check_file(PHOSPHATE).curves[0]
+    used = [s for s in curve.standards if s.used]
+    x = np.array([s.point.concentration for s in used])
+    y = np.array([s.point.response for s in used])
+    fit = sm.OLS(y, sm.add_constant(x)).fit()  # reference: statsmodels, same standards
+    lod = 3.3 * np.sqrt(fit.scale) / fit.params[1]  # ICH Q2(R2): 3.3·σ/S
+    found = (0.2756 - fit.params[0]) / fit.params[1]  # the QC's response, read from the file
+    with PHOSPHATE.open("rb") as f:
+        html = post(client, "/quantify", {}, {"curve": (PHOSPHATE.name, f)}).text
+    assert f"run file <strong>{PHOSPHATE.name}</strong>, checked now" in html
+    assert "with profile default (version 1)" in html
+    row = html[html.index('<th scope="row">Orthophosphate-P</th>'):]
+    row = row[:row.index("</tr>")]
+    assert "0.05 to 0.8" in row and "mg/L" in row
+    assert re.search(rf">{lod:.4g}<", row), (lod, row)
+    qc = html[html.index('aria-label="QC samples"'):]
+    qc = qc[qc.index("<tbody>"):]
+    qc = qc[:qc.index("</tr>")]
+    deviation = 100 * (found - 0.3) / 0.3
+    assert ">0.3<" in qc and f">{found:.4g}<" in qc and f">{deviation:+.1f}<" in qc
+    assert ">yes<" in qc
+    samples = html[html.index('aria-label="Samples"'):]
+    assert "<td>mg/L</td>" in samples[:samples.index("</table>")]
 
 
 def test_quantify_errors_are_one_sentence(client):
@@ -598,3 +658,243 @@ def test_a_full_disk_while_filing_is_one_sentence(client, monkeypatch):
     assert r.status_code == 507
     assert error_of(r.text) == ("Cannot write records.sqlite: the disk is full (No space left "
                                 "on device); nothing was written.")
+
+
+# ---------------------------------------------------------------------- the review desk
+
+SCREEN = RUNS / "multiresidue_screen_40_2026-12-10.xlsx"
+
+
+@pytest.fixture(scope="module")
+def screen():
+    from calib.workflow import check_file
+
+    return check_file(SCREEN)
+
+
+def test_summary_lists_the_worst_curves_first_with_short_check_names(client, screen):
+    run_id = upload(client, SCREEN)
+    html = client.get(f"/run/{run_id}").text
+    shown = re.findall(r'<a href="/run/[^/]+/curve/(\d+)">', html)
+    verdicts = [screen.curves[int(i)].verdict.value for i in shown]
+    rank = {"rejected": 0, "needs-review": 1, "accepted": 2}  # common practice: worst first
+    assert len(shown) == 40 and verdicts == sorted(verdicts, key=rank.get)
+    rejected = [i for i, c in enumerate(screen.curves) if c.verdict.value == "rejected"]
+    assert [int(i) for i in shown[:len(rejected)]] == rejected  # file order within a verdict
+    row = html[html.index(f'/curve/{rejected[0]}"'):]
+    row = row[:row.index("</tr>")]
+    # The short name, not the check's sentence (the method in brackets is dropped).
+    assert "<li>Back-calculated standards within tolerance</li>" in row
+    assert "(F-test)" not in row and "standards within ±" not in row
+
+
+def test_summary_names_the_worst_deviation_and_the_suggested_outlier(client, screen):
+    import numpy as np
+    import statsmodels.api as sm
+    from statsmodels.stats.outliers_influence import OLSInfluence
+
+    index = next(i for i, c in enumerate(screen.curves) if c.analyte == "MRS-101")
+    curve = screen.curves[index]
+    assert curve.model.value == "linear" and curve.weighting.value == "none"
+    used = [s for s in curve.standards if s.used]
+    x = np.array([s.point.concentration for s in used])
+    y = np.array([s.point.response for s in used])
+    fit = sm.OLS(y, sm.add_constant(x)).fit()
+    # Reference: statsmodels on the same standards. Back-calculated x = (y - a) / b.
+    back = (y - fit.params[0]) / fit.params[1]
+    dev = 100 * (back - x) / x
+    worst = int(np.argmax(np.abs(dev)))
+    outlier = int(np.argmax(np.abs(OLSInfluence(fit).resid_studentized_external)))
+
+    run_id = upload(client, SCREEN)
+    html = client.get(f"/run/{run_id}").text
+    row = html[html.index(f'/curve/{index}"'):]
+    row = row[:row.index("</tr>")]
+    assert f"{dev[worst]:+.1f} %" in row and used[worst].point.source_cell in row
+    assert f"{used[outlier].point.source_cell} <span class=\"small\">(suggested outlier)" in row
+
+
+def test_curve_page_has_a_heading_flagged_rows_and_links_to_the_neighbours(client, screen):
+    from calib.web.pages import summary_order
+
+    run_id = upload(client, SCREEN)
+    order = [i for i in summary_order(screen) if screen.curves[i].verdict.value != "accepted"]
+    middle = order[1]
+    html = client.get(f"/run/{run_id}/curve/{middle}").text
+    h1 = re.findall(r"<h1[^>]*>(.*?)</h1>", html, re.DOTALL)
+    assert len(h1) == 1 and screen.curves[middle].analyte in h1[0]
+    assert f'href="/run/{run_id}/curve/{order[0]}" rel="prev">Previous flagged curve' in html
+    assert f'href="/run/{run_id}/curve/{order[2]}" rel="next">Next flagged curve' in html
+    first = client.get(f"/run/{run_id}/curve/{order[0]}").text
+    assert "Previous flagged curve" not in first and "Next flagged curve" in first
+    # MRS-101's suggested outlier (see the statsmodels check above) is a highlighted row.
+    index = next(i for i, c in enumerate(screen.curves) if c.analyte == "MRS-101")
+    html = client.get(f"/run/{run_id}/curve/{index}").text
+    flagged = re.findall(r'<tr id="std-\d+-\d+" tabindex="-1" class="flagged">\s*<td>([^<]+)<br>'
+                         r'<strong class="flag">⚑ flagged: ([^<]+)</strong>', html)
+    assert flagged and all("suggested outlier" in why for _, why in flagged)
+
+
+def test_exclude_on_a_curve_page_returns_to_the_same_curve_and_row(client, screen):
+    run_id = upload(client, SCREEN)
+    index = next(i for i, c in enumerate(screen.curves) if c.analyte == "MRS-101")
+    cell = screen.curves[index].standards[4].point.source_cell
+    r = post(client, f"/run/{run_id}/exclude",
+             {"target": cell, "reason": "split peak", "back": str(index), "row": "5"},
+             follow_redirects=False)
+    assert r.status_code == 303
+    assert r.headers["location"] == f"/run/{run_id}/curve/{index}#std-{index}-5"
+    page = client.get(r.headers["location"]).text
+    row = page[page.index(f'id="std-{index}-5"'):]
+    row = row[:row.index("</tr>")]
+    assert cell.replace("'", "&#39;") in row and "no: split peak" in row and "Put back" in row
+    r = post(client, f"/run/{run_id}/include",
+             {"target": cell, "reason": "peak fine on reintegration", "back": str(index),
+              "row": "5"}, follow_redirects=False)
+    assert r.headers["location"] == f"/run/{run_id}/curve/{index}#std-{index}-5"
+    # A refusal stays on the curve page too, with the sentence.
+    r = post(client, f"/run/{run_id}/exclude",
+             {"target": cell, "reason": "  ", "back": str(index), "row": "5"})
+    assert r.status_code == 400 and "<h1" in r.text
+    assert screen.curves[index].analyte in re.search(r"<h1[^>]*>(.*?)</h1>", r.text).group(1)
+    # A "back" that is not a curve of the run goes to the run's page, never elsewhere.
+    r = post(client, f"/run/{run_id}/exclude",
+             {"target": cell, "reason": "again", "back": "//evil.example", "row": "x"},
+             follow_redirects=False)
+    assert r.headers["location"] == f"/run/{run_id}"
+
+
+def test_nav_offers_archive_and_trend_only_with_an_archive():
+    with TestClient(create_app(), base_url=LOCAL, client=("127.0.0.1", 50000)) as bare:
+        html = bare.get("/").text
+    assert 'href="/archive"' not in html and 'href="/archive/trend"' not in html
+    with TestClient(create_app(archive="unused.sqlite"), base_url=LOCAL,
+                    client=("127.0.0.1", 50000)) as full:
+        html = full.get("/").text
+    assert 'href="/archive"' in html and 'href="/archive/trend"' in html
+
+
+def test_sign_from_the_issued_page_after_seeing_verdict_reasons_and_plots(client, archive,
+                                                                          tmp_path):
+    from calib import service
+
+    run_id = upload(client)
+    post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                         "file_in_archive": "yes"})
+    page = client.get(f"/run/{run_id}/issued").text
+    # What the signer sees first: the verdict, the reasons in words and both plots.
+    assert page.index("Needs review") < page.index('action="/run/')
+    assert "Intercept against zero" in page and page.count('<svg class="chart"') == 2
+    assert "You sign version 1 as shown above; your signature makes version 2." in page
+    r = post(client, f"/run/{run_id}/sign", {"role": "reviewed", "name": "T. Overgaard",
+                                            "file_in_archive": "yes"})
+    assert r.status_code == 200 and "Signed: reviewed by T. Overgaard" in r.text
+    # SPEC: version N holds N signatures (prepared is 1): one review makes version 2.
+    assert "Record " in r.text and ": version 2</h1>" in r.text
+    assert "Filed in the archive as entry seq 2 (signed)." in r.text
+    link = re.search(r'href="(/download/[^"]+)"', r.text).group(1)
+    got = client.get(link)
+    assert got.headers["content-disposition"].endswith('-v2.pdf"')
+    signed = tmp_path / "signed.pdf"
+    signed.write_bytes(got.content)
+    report = service.verify(signed, archive=archive)  # the library's own verification
+    assert report.ok, [p.message for p in report.problems]
+    # The run's page now offers the next signature on version 2.
+    page = client.get(f"/run/{run_id}/issued").text
+    assert "You sign version 2 as shown above; your signature makes version 3." in page
+
+
+def test_sign_from_the_archive_record_page_files_the_next_version(client, archive):
+    run_id = upload(client)
+    post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                         "file_in_archive": "yes"})
+    post(client, f"/run/{run_id}/sign", {"role": "reviewed", "name": "T. Overgaard",
+                                        "file_in_archive": "yes"})
+    from calib.archive import Archive
+
+    with Archive(archive, create=False) as store:
+        record_id = store.entries()[-1].record_id
+    page = client.get(f"/archive/record/{record_id}").text
+    assert "Intercept against zero" in page and '<svg class="chart"' in page
+    assert "You sign version 2 as shown above; your signature makes version 3." in page
+    r = post(client, f"/archive/record/{record_id}/sign",
+             {"role": "approved", "name": "M. Lindqvist"})
+    assert r.status_code == 200 and "Signed: approved by M. Lindqvist" in r.text
+    assert ": version 3</h1>" in r.text and "entry seq 3 (signed)" in r.text
+    with Archive(archive, create=False) as store:
+        assert [e.roles for e in store.entries(record_id=record_id)][-1] == (
+            "prepared", "reviewed", "approved")
+    # The preparer may not approve (default sign-off rules): refused in one sentence.
+    r = post(client, f"/archive/record/{record_id}/sign",
+             {"role": "approved", "name": "R. Okafor"})
+    assert r.status_code == 400 and error_of(r.text)
+    r = post(client, "/archive/record/CR-NOPE/sign", {"role": "reviewed", "name": "A. B"})
+    assert r.status_code == 404 and error_of(r.text) == "No record CR-NOPE in the archive."
+
+
+def test_sign_on_the_run_page_needs_an_issued_record(client):
+    run_id = upload(client)
+    r = post(client, f"/run/{run_id}/sign", {"role": "reviewed", "name": "T. Overgaard"})
+    assert r.status_code == 404
+    assert error_of(r.text) == "No record has been issued for this run yet."
+
+
+def test_archive_search_by_part_of_an_analyte_shows_each_curves_own_verdict(client, archive):
+    run_id = upload(client, ANIONS)  # run verdict: needs review; Sulfate's own curve: accepted
+    r = post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor",
+                                              "file_in_archive": "yes"})
+    record_id = re.search(r"Record (CR-[0-9A-F]+) issued", r.text).group(1)
+    page = client.get("/archive", params={"analyte": "sulf"}).text  # part, lower case
+    rows = re.findall(r'<tr><th scope="row">([^<]+)</th><td><span class="verdict v-([a-z-]+)"',
+                      page)
+    assert rows == [("Sulfate", "accepted")]
+    assert f'href="/archive/record/{record_id}"' in page
+    page = client.get("/archive", params={"analyte": "NITRATE"}).text
+    rows = re.findall(r'<tr><th scope="row">([^<]+)</th><td><span class="verdict v-([a-z-]+)"',
+                      page)
+    assert rows == [("Nitrate-N", "needs-review")]
+    page = client.get("/archive", params={"analyte": "ride"}).text  # Fluoride and Chloride
+    assert "2 curves of Chloride, Fluoride" in page
+    only = client.get("/archive", params={"analyte": "e", "verdict": "accepted"}).text
+    assert re.findall(r'<tr><th scope="row">([^<]+)</th>', only) == ["Sulfate"]
+    none = client.get("/archive", params={"analyte": "arsenic"}).text
+    assert "no analyte whose name holds “arsenic”" in none and "No entries match." in none
+
+
+def test_archive_listing_is_paged_and_a_long_entry_does_not_list_every_analyte(client, archive):
+    from calib.archive import Archive
+    from calib.web.archive_pages import PAGE_ROWS
+
+    fill_archive(archive, PAGE_ROWS + 3)
+    first = client.get("/archive").text
+    assert f"{PAGE_ROWS + 3} entries. Showing 1–{PAGE_ROWS}." in first
+    assert "Page 1 of 2" in first and 'rel="next"' in first and 'rel="prev"' not in first
+    second = client.get("/archive", params={"page": "2"}).text
+    assert f"Showing {PAGE_ROWS + 1}–{PAGE_ROWS + 3}." in second and "Page 2 of 2" in second
+    r = client.get("/archive", params={"page": "3"})
+    assert r.status_code == 404 and error_of(r.text) == (
+        f"There is no page 3: the search found {PAGE_ROWS + 3} rows (2 pages).")
+    r = client.get("/archive", params={"page": "two"})
+    assert r.status_code == 400 and error_of(r.text) == (
+        "The page number must be a whole number from 1; got &#39;two&#39;.")
+    # A 40-analyte screen: the cell gives the count and a few names, not all forty.
+    run_id = upload(client, SCREEN)
+    post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor", "file_in_archive": "yes"})
+    last = client.get("/archive", params={"page": "2"}).text
+    table = last[last.index("<table>"):last.index("</table>")]
+    assert "40 analytes: MRS-101, MRS-102 … MRS-140" in table and "MRS-120" not in table
+    with Archive(archive, create=False) as store:
+        assert len(store.entries(data=False)) == PAGE_ROWS + 4
+    # Its record page: worst first, each curve with the checks behind its own verdict.
+    record_id = re.search(r'href="/archive/record/(CR-[0-9A-F]+)">[^<]+</a></td><td>issued'
+                          r'</td><td>[^<]*</td><td><span class="verdict v-rejected"', last)
+    assert record_id, "the 40-analyte entry is listed with its run verdict"
+    page = client.get(f"/archive/record/{record_id.group(1)}").text
+    table = page[page.index('aria-label="Curves in the record"'):]
+    names = re.findall(r'<tr><th scope="row">(MRS-\d+)</th>', table[:table.index("</table>")])
+    assert len(names) == 40 and names[0] == "MRS-105"  # the first rejected curve in file order
+    row = table[table.index(">MRS-101<"):]
+    assert "<li>Suggested outliers</li>" in row[:row.index("</tr>")]
+    found = client.get("/archive", params={"analyte": "mrs-1"}).text
+    assert ("40 curves of 40 analytes whose name holds “mrs-1” (MRS-101, MRS-102, MRS-103 …)"
+            in found) and "Page 1 of 2" in found

@@ -25,3 +25,24 @@ document.querySelectorAll("[data-drop]").forEach(function (zone) {
     }
   });
 });
+
+// After excluding or putting back a point the page returns to the same table row
+// (#std-CURVE-ROW): keyboard focus goes back to that row's reason box, or the row.
+(function () {
+  var id = window.location.hash.slice(1);
+  if (!/^std-\d+-\d+$/.test(id)) { return; }
+  var row = document.getElementById(id);
+  if (!row) { return; }
+  var box = row.querySelector("input[name=reason]");
+  (box || row).focus();
+  row.scrollIntoView({block: "center"});
+}());
+
+// A box whose pattern says "words, not only spaces" explains itself in the page's own
+// sentence (its title) instead of the browser's "match the requested format".
+document.querySelectorAll("input[pattern][title]").forEach(function (box) {
+  box.addEventListener("invalid", function () {
+    box.setCustomValidity(box.validity.patternMismatch ? box.title : "");
+  });
+  box.addEventListener("input", function () { box.setCustomValidity(""); });
+});

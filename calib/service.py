@@ -453,7 +453,7 @@ def _frozen_baseline(path: str, store: Any, history: list[Any], name: str, *,
             instrument=instrument, archive=state, note=freeze.note)
         target = next_baseline_file(folder, name, instrument)
         try:
-            write_atomic(target, baseline_document(made), replace=False)
+            write_atomic(target, baseline_document(made), replace=False, private=True)
         except FileExistsError:
             raise BaselineError(f"{target} appeared while freezing; run again") from None
         return load_baseline(target), f"Baseline frozen: {target}"

@@ -39,6 +39,7 @@ if TYPE_CHECKING:
     from calib.checks.narrowing import WorkingRange
     from calib.checks.profile import Profile
     from calib.io import ImportMap
+    from calib.io.standards import Standards
     from calib.record import Record
     from calib.report.template import ReportTemplate
 
@@ -164,10 +165,14 @@ def check(
     ranges: Sequence[WorkingRange] = (),
     archive: str | os.PathLike[str] | None = None,
     progress: Progress | None = None,
+    standards: Standards | str | os.PathLike[str] | None = None,
 ) -> CheckOutcome:
     """Read a run file and judge every curve in it; nothing is written.
 
-    Parameters are those of :func:`calib.workflow.check_file`.
+    Parameters are those of :func:`calib.workflow.check_file`, and
+    ``standards``: a standards file (:mod:`calib.io.standards`) or its parsed
+    form, naming the reference materials the standards came from; each curve
+    then gets the ``standards-expiry`` check and the record a ``standards`` section.
 
     Raises
     ------
@@ -181,6 +186,12 @@ def check(
                             weighting=weighting, confidence=confidence, map=map,
                             exclusions=exclusions, ranges=ranges, archive=archive,
                             progress=progress)
+    if standards is not None:
+        from calib.checks.traceability import with_standards
+        from calib.io.standards import Standards, read_standards
+
+        chosen = standards if isinstance(standards, Standards) else read_standards(standards)
+        assessment = with_standards(assessment, chosen)
     return CheckOutcome(assessment, check_document(assessment))
 
 

@@ -44,6 +44,7 @@ examples:
   calib check kx214.xlsx --profile bioanalytical --range "KX-214:2..1000"   apply the proposed range
   calib check run.xlsx --range "2..500=LLOQ outside ±20 %, SOP 7.3" --xlsx results.xlsx
   calib check run.xlsx --csv results.csv       one row per curve, for a LIMS or a script
+  calib check icp.xlsx --standards metals-standards.toml --pdf icp.pdf   name the materials
 
 exit codes: 0 every curve accepted, 1 a curve rejected or needs review,
             2 usage error, 3 unusable input (also a full disk; nothing is written),
@@ -87,6 +88,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="apply a working range: standards outside LOW..HIGH leave the fit; "
                              "append =REASON unless it is the range calib proposes; repeatable, "
                              "one per analyte")
+    parser.add_argument("--standards", metavar="FILE",
+                        help="TOML or CSV file naming the reference materials (id, lot, "
+                             "certified value and uncertainty, expiry) and how each level was "
+                             "prepared; the record carries it and flags an expired material")
     parser.add_argument("--xlsx", metavar="OUT", help="write the results workbook to OUT "
                                                       "(several run files: a folder)")
     parser.add_argument("--csv", metavar="OUT", help="write the results, one row per curve, to "
@@ -109,6 +114,10 @@ def run(args: argparse.Namespace) -> int:
         from calib.io import load_map
 
         imap = load_map(args.map)  # read once, before the run file, so its errors come first
+    if args.standards:
+        from calib.io.standards import read_standards
+
+        args.standards = read_standards(args.standards)  # once, and its errors before the runs'
     from calib.cli.check_many import expand_runs, run_many
 
     runs = expand_runs(args.run)
@@ -195,7 +204,8 @@ def _check(args: argparse.Namespace, imap: ImportMap | None) -> CheckOutcome:
         return service.check(args.run, sheet=sheet_arg(args.sheet), profile=args.profile,
                              model=args.model, weighting=args.weighting,
                              confidence=args.confidence, map=imap, exclusions=args.exclude,
-                             ranges=args.ranges, archive=archive_path(args), progress=bar)
+                             ranges=args.ranges, archive=archive_path(args), progress=bar,
+                             standards=args.standards)
     finally:
         if bar is not None:
             bar.close()

@@ -78,6 +78,12 @@ def default_text(assessment: RunAssessment) -> str:
     lines = [_header(assessment)]
     for w in assessment.run.warnings:
         lines.append(f"  Import note: {w}")
+    if assessment.standards is not None:
+        lines.append("  Reference materials: " + "; ".join(
+            f"{m.id} lot {m.lot} ({m.value:g} ± {m.uncertainty:g} {m.unit}, expires "
+            f"{m.expires.isoformat()})" if m.uncertainty is not None else
+            f"{m.id} lot {m.lot} ({m.value:g} {m.unit}, expires {m.expires.isoformat()})"
+            for m in assessment.standards.materials))
     for curve in assessment.curves:
         fit = curve.fit
         numbers = ("not fitted" if fit is None else

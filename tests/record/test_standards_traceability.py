@@ -124,3 +124,15 @@ def test_bad_standards_file_is_unusable_input_before_the_run(tmp_path, capsys):
     err = capsys.readouterr().err
     assert code == 3
     assert "s.toml: entry 1 of [[material]], key name: name is missing" in err
+
+
+def test_check_document_with_standards_validates_against_its_schema(tmp_path):
+    import jsonschema
+    from importlib import resources
+
+    schema = json.loads(resources.files("calib.record").joinpath("schemas/check-1.json")
+                        .read_text("utf-8"))
+    doc = service.check(NITRATE, standards=standards_file(tmp_path, "2027-01-01")).document
+    jsonschema.Draft202012Validator(schema).validate(json.loads(json.dumps(doc)))
+    doc["standards"]["materials"][0]["colour"] = "red"
+    assert not jsonschema.Draft202012Validator(schema).is_valid(doc)

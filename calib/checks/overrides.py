@@ -268,8 +268,8 @@ def apply_overrides(analytes: Sequence[str], profile: Profile,
 
 
 def _named(curve: CurveAssessment, entry: AnalyteOverride) -> CurveAssessment:
-    note = f" ({entry.note})" if entry.note else ""
+    note = f" Note: {entry.note}" if entry.note else ""
     line = CheckResult(SETTINGS_ID, "Per-analyte settings of the profile", Verdict.PASS,
                        Severity.INFO, None, None,
-                       f"Judged with {entry.label}: {entry.changes()}{note}.")
+                       f"Judged with {entry.label}: {entry.changes()}.{note}")
     return replace(curve, checks=(*curve.checks, line))

@@ -1,8 +1,8 @@
 """An invented six-element ICP-OES run at the Fernbrook Water Laboratory, generated in code.
 
 Seven calibration levels × three replicates per element, a calibration blank,
-and calibration-verification standards (ICV/CCV at 10 µg/L) as the trade runs
-them.  Responses are slope × concentration (+ a blank emission) with a scatter
+calibration-verification standards (ICV/CCV at 10 µg/L) as the trade runs
+them, and two water samples.  Responses are slope × concentration (+ a blank emission) with a scatter
 growing as the square root of the signal, from a seeded generator; lead bends (a quadratic term) as a
 plasma line does near its upper range.  Everything here is invented.
 """
@@ -24,6 +24,7 @@ ELEMENTS = {  # name: (slope cps per µg/L, blank cps, quadratic coefficient)
     "As 188.980": (380.0, 22.0, 0.0),
 }
 RUN_DATE = "2026-12-03"
+SAMPLES = {"FW-1203-01 tap Elm St": 3.7, "FW-1203-02 well 4": 42.0}  # true µg/L (invented)
 
 
 def response(element: str, x: float, rng: np.random.Generator) -> float:
@@ -37,6 +38,7 @@ def response(element: str, x: float, rng: np.random.Generator) -> float:
 def write_run(path: Path, *, seed: int = 20261203, run_date: str = RUN_DATE) -> Path:
     """Write the run as a CSV export with metadata lines above the table."""
     rng = np.random.default_rng(seed)
+    samples_rng = np.random.default_rng(seed + 1)  # its own stream: standards stay as they were
     lines = [
         "ICP-OES metals calibration (invented demo data)",
         "Laboratory: Fernbrook Water Laboratory (fictional)",
@@ -55,5 +57,7 @@ def write_run(path: Path, *, seed: int = 20261203, run_date: str = RUN_DATE) -> 
                 lines.append(f"{element},Cal-{i},standard,{x:g},{response(element, x, rng)},{rep}")
         for name in ("ICV", "CCV-1"):
             lines.append(f"{element},{name},qc,10,{response(element, 10.0, rng)},1")
+        for name, x in SAMPLES.items():
+            lines.append(f"{element},{name},unknown,,{response(element, x, samples_rng)},1")
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
     return path

@@ -71,3 +71,26 @@ def test_lab_settings_stay_private(tmp_path, umask):
     lab.write_text('[lab]\nname = "Fernbrook Water Laboratory"\n', encoding="utf-8")
     settings = write_settings(lab, path=tmp_path / "settings.toml")
     assert mode(settings.source) == 0o600
+
+
+def test_trend_pdf_follows_umask_and_frozen_baseline_stays_private(tmp_path, umask, capsys,
+                                                                     monkeypatch):
+    from calib.archive import Archive
+    from tests.archive.cu_series import ANALYTE, INSTRUMENT, fill_cu_archive
+
+    monkeypatch.delenv("CALIB_ARCHIVE", raising=False)
+    umask(0o022)
+    db = tmp_path / "a.sqlite"
+    fill_cu_archive(db)
+    with Archive(db) as archive:
+        bad = next(c.record_id for c in archive.curve_history(ANALYTE)
+                   if c.run_date == "2026-09-07")
+    code = main(["trend", ANALYTE, "--archive", str(db), "--instrument", INSTRUMENT,
+                 "--freeze", "--baseline", "8", "--reviewed-by", "M. Castellanos",
+                 "--exclude", f"{bad}=nebuliser partly blocked",
+                 "--pdf", str(tmp_path / "cu-trend.pdf")])
+    capsys.readouterr()
+    assert code in (0, 7)
+    baseline = tmp_path / "a.sqlite.baselines" / "Cu 324.754@ICP-OES-2.v1.json"
+    assert mode(baseline) == 0o600
+    assert mode(tmp_path / "cu-trend.pdf") == 0o644

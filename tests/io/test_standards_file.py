@@ -163,3 +163,32 @@ def test_hostile_files_refused_quickly(tmp_path):
         parse_standards(b"\xff\xfe\x00", name="s.toml")
     with pytest.raises(InputError, match="cannot read the standards file"):
         read_standards(tmp_path / "missing.toml")
+
+
+def test_the_readme_examples_parse(tmp_path):
+    """The TOML and CSV examples of README "Standards traceability" read as documented."""
+    from pathlib import Path
+
+    readme = (Path(__file__).resolve().parents[2] / "README.md").read_text(encoding="utf-8")
+    section = readme[readme.index("### Standards traceability"):readme.index("## JSON output")]
+    toml = section.split("```toml\n")[1].split("```")[0]
+    csv_text = section.split("```csv\n")[1].split("```")[0]
+    a = parse_standards(toml.encode(), name="metals.toml")
+    b = parse_standards(csv_text.encode(), name="metals.csv")
+    assert [lv.concentration for lv in a.levels] == pytest.approx([1.0, 0.1])  # 100/100, /10
+    assert b.materials[0].analytes == ("Pb 220.353", "Cu 324.754")
+    assert b.levels[0].concentration == pytest.approx(1.0)
+
+
+def test_the_readme_profile_example_parses():
+    """The [[analyte]] example of README "Per-analyte settings" loads beside a shipped profile."""
+    from pathlib import Path
+
+    from calib.checks.profile import parse_profile, shipped_profiles
+
+    readme = (Path(__file__).resolve().parents[2] / "README.md").read_text(encoding="utf-8")
+    section = readme[readme.index("### Per-analyte settings"):]
+    example = section.split("```toml\n")[1].split("```")[0]
+    prof = parse_profile(shipped_profiles()["plasma-spectrometry"] + example, origin="p.toml")
+    (entry,) = prof.overrides
+    assert (entry.pattern, entry.model.value, entry.digits) == ("Pb*", "quadratic", 4)

@@ -39,8 +39,14 @@ if TYPE_CHECKING:
     from calib.checks.evaluate import CurveAssessment, RunAssessment
     from calib.checks.profile import Profile, RuleSpec
 
-__all__ = ["AnalyteOverride", "SETTINGS_ID", "apply_overrides", "digits_by_analyte",
-           "override_for", "parse_overrides"]
+__all__ = [
+    "SETTINGS_ID",
+    "AnalyteOverride",
+    "apply_overrides",
+    "digits_by_analyte",
+    "override_for",
+    "parse_overrides",
+]
 
 SETTINGS_ID = "analyte-settings"
 """Id of the information line naming the ``[[analyte]]`` entry a curve was judged with."""

@@ -59,9 +59,9 @@ def test_lead_quadratic_the_rest_linear(tmp_path):
                                                          rel=1e-9)
     settings = [c for c in pb.checks if c.id == "analyte-settings"]
     assert [c.detail for c in settings] == [
-        'Judged with [[analyte]] 1 (match "pb*"): model quadratic; back-calculation '
+        ('Judged with [[analyte]] 1 (match "pb*"): model quadratic; back-calculation '
         "tolerance_pct = 15; 4 significant figures reported. Note: Pb 220.353 bends above "
-        "50 µg/L (invented validation)"]
+        "50 µg/L (invented validation)")]
     assert all(c.id != "analyte-settings" for c in cu.checks)
     back = next(c for c in pb.checks if c.id == "back-calculation")
     assert "±15 %" in back.detail  # the entry's limit, not the profile's ±10 %
@@ -100,8 +100,8 @@ def test_a_name_entry_is_more_specific_than_a_pattern():
     ('[[analyte]]\nname = "Cu 324.754"\n[[analyte]]\nmatch = "cu 324.754"\n',
      "name the same analyte; merge them into one entry"),
     ('[[analyte]]\nmatch = "Pb*"\nname = "Pb"\n',
-     "an [[analyte]] entry gives match (a pattern such as \"Pb*\") or name (one analyte), "
-     "exactly one of them"),
+     ("an [[analyte]] entry gives match (a pattern such as \"Pb*\") or name (one analyte), "
+     "exactly one of them")),
     ('[[analyte]]\nweighting = "1/x"\n', "exactly one of them"),
     ('[[analyte]]\nmatch = "Pb*"\nmodel = "cubic"\n', "'cubic' is not a valid Model"),
     ('[[analyte]]\nmatch = "Pb*"\ndigits = 0\n', "digits must be a whole number from 1 to 8, got 0"),

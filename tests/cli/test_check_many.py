@@ -106,7 +106,7 @@ def test_several_files_pdf_needs_a_folder(tmp_path, capsys):
     code, _, err = run(capsys, NITRATE, FLUORIDE, "--pdf", tmp_path / "one.pdf")
     assert code == 2
     assert "with several run files --pdf names a folder (one file per run)" in err
-    code, out, _ = run(capsys, NITRATE, FLUORIDE, "--pdf", tmp_path / "records",
+    code, _, _ = run(capsys, NITRATE, FLUORIDE, "--pdf", tmp_path / "records",
                        "--csv", tmp_path / "csv")
     assert code == 1
     assert sorted(p.name for p in (tmp_path / "records").iterdir()) == [

@@ -84,14 +84,14 @@ def test_csv_form_gives_the_same_material(tmp_path):
 @pytest.mark.parametrize(("text", "message"), [
     (b'[[material]]\nid = "A"\nname = "n"\nlot = "L"\nvalue = 1.0\nunit = "mg/L"\n',
      "metals.toml: entry 1 of [[material]], key expires: expires is missing"),
-    (b'[[material]]\nid = "A"\nname = "n"\nlot = "L"\nvalue = 1.0\nunit = "mg/L"\n'
-     b'expires = "31.03.2027"\n',
+    ((b'[[material]]\nid = "A"\nname = "n"\nlot = "L"\nvalue = 1.0\nunit = "mg/L"\n'
+     b'expires = "31.03.2027"\n'),
      "metals.toml: entry 1 of [[material]], key expires: must be a date written YYYY-MM-DD"),
-    (b'[[material]]\nid = "A"\nname = "n"\nlot = "L"\nvalue = -1.0\nunit = "mg/L"\n'
-     b'expires = 2027-01-01\n',
+    ((b'[[material]]\nid = "A"\nname = "n"\nlot = "L"\nvalue = -1.0\nunit = "mg/L"\n'
+     b'expires = 2027-01-01\n'),
      "key value: must be a finite number above zero, not -1"),
-    (b'[[material]]\nid = "A"\nname = "n"\nlot = "L"\nvalue = 1.0\nunit = "mg/L"\n'
-     b'expires = 2027-01-01\ncolour = "red"\n',
+    ((b'[[material]]\nid = "A"\nname = "n"\nlot = "L"\nvalue = 1.0\nunit = "mg/L"\n'
+     b'expires = 2027-01-01\ncolour = "red"\n'),
      "entry 1 of [[material]]: unknown key 'colour'"),
     (b'[[level]]\nname = "S1"\nfrom = "A"\ndilution = 10\n',
      "no [[material]] entry: name at least one reference material"),
@@ -111,17 +111,17 @@ MATERIAL = (b'[[material]]\nid = "A"\nname = "n"\nlot = "L"\nvalue = 1000.0\nuni
 @pytest.mark.parametrize(("levels", "message"), [
     (b'[[level]]\nname = "S1"\nfrom = "B"\ndilution = 10\n',
      "entry 1 of [[level]]: from = 'B' names no material or level"),
-    (b'[[level]]\nname = "S1"\nfrom = "S2"\ndilution = 10\n'
-     b'[[level]]\nname = "S2"\nfrom = "S1"\ndilution = 10\n',
+    ((b'[[level]]\nname = "S1"\nfrom = "S2"\ndilution = 10\n'
+     b'[[level]]\nname = "S2"\nfrom = "S1"\ndilution = 10\n'),
      "levels made from each other in a loop (s1 → s2 → s1)"),
-    (b'[[level]]\nname = "S1"\nfrom = "A"\ndilution = 10\n'
-     b'[[level]]\nname = "s1"\nfrom = "A"\ndilution = 20\n',
+    ((b'[[level]]\nname = "S1"\nfrom = "A"\ndilution = 10\n'
+     b'[[level]]\nname = "s1"\nfrom = "A"\ndilution = 20\n'),
      "entry 2 of [[level]]: name 's1' is used twice"),
     (b'[[level]]\nname = "S1"\nfrom = "A"\ndilution = 0.5\n',
      "key dilution: must be 1 or more (final volume / aliquot volume), not 0.5"),
     (b'[[level]]\nname = "S1"\nfrom = "A"\ndilution = 100\nconcentration = 1.0\n',
-     "concentration 1 mg/L differs from the preparation (1000 mg/L diluted 100-fold = 10) by "
-     "more than 1 %"),
+     ("concentration 1 mg/L differs from the preparation (1000 mg/L diluted 100-fold = 10) by "
+     "more than 1 %")),
 ])
 def test_level_refusals(levels, message):
     with pytest.raises(InputError) as caught:

@@ -127,8 +127,9 @@ def test_bad_standards_file_is_unusable_input_before_the_run(tmp_path, capsys):
 
 
 def test_check_document_with_standards_validates_against_its_schema(tmp_path):
-    import jsonschema
     from importlib import resources
+
+    import jsonschema
 
     schema = json.loads(resources.files("calib.record").joinpath("schemas/check-1.json")
                         .read_text("utf-8"))

@@ -16,8 +16,8 @@ line, or reports copper to four figures, says so in the profile::
 An entry gives ``match`` (a glob: ``*``, ``?``, ``[...]``) or ``name`` (one
 analyte, exactly, ignoring case), never both.  An analyte named by a ``name``
 entry takes that entry; otherwise the one pattern that matches it.  Two
-patterns matching one analyte are ambiguous and refused, naming both: at load
-when the two patterns are the same, else when a run holds such an analyte.
+patterns that can match one analyte are ambiguous and refused when the profile
+is loaded, naming both and an example name (:mod:`calib.checks.globs`).
 A rule named under ``rules`` must be one of the profile's rules; its
 parameters are checked as the rule's own.  Command-line ``--model`` and
 ``--weighting`` apply to every curve and take precedence.
@@ -182,20 +182,26 @@ def parse_overrides(entries: Any, rules: Sequence[RuleSpec], *, where: Callable[
 
 
 def _refuse_same(entries: Sequence[AnalyteOverride], where: Callable[[int], str]) -> None:
-    """Two entries naming the same analytes in the same words are ambiguous at once."""
-    seen: dict[tuple[str, str], AnalyteOverride] = {}
+    """Refuse two names alike, and two patterns that can match one analyte (both named)."""
+    from calib.checks.globs import common_match
+
+    names: dict[str, AnalyteOverride] = {}
+    patterns: list[AnalyteOverride] = []
     for e in entries:
-        key = ("name", e.name.casefold()) if e.name else ("match", e.pattern.casefold())
-        if key in seen:
-            raise ProfileError(f"{where(e.index)}: {seen[key].label} and {e.label} name the same "
-                               "analytes; merge them into one entry")
-        seen[key] = e
-    for e in entries:  # a name no pattern may also be written as a pattern equal to it
         if e.name:
-            twin = seen.get(("match", e.name.casefold()))
-            if twin is not None and not any(c in twin.pattern for c in "*?["):
-                raise ProfileError(f"{where(e.index)}: {twin.label} and {e.label} name the same "
-                                   "analyte; merge them into one entry")
+            if e.name.casefold() in names:
+                raise ProfileError(f"{where(e.index)}: {names[e.name.casefold()].label} and "
+                                   f"{e.label} name the same analyte; merge them into one entry")
+            names[e.name.casefold()] = e
+            continue
+        for other in patterns:
+            example = common_match(other.pattern, e.pattern)
+            if example is not None:
+                raise ProfileError(
+                    f"{where(e.index)}: {other.label} and {e.label} can both match one analyte "
+                    f"(e.g. {example!r}): the profile would be ambiguous; narrow a pattern, or "
+                    "give that analyte its own name entry and patterns that do not overlap")
+        patterns.append(e)
 
 
 def override_for(analyte: str, entries: Sequence[AnalyteOverride]) -> AnalyteOverride | None:

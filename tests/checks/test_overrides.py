@@ -77,28 +77,50 @@ def test_command_line_model_wins_for_every_curve(tmp_path):
     assert {c.model.value for c in assessment.curves} == {"linear"}
 
 
-def test_two_patterns_matching_one_analyte_are_refused_naming_both(tmp_path):
+def test_two_patterns_that_can_match_one_analyte_are_refused_at_load(tmp_path):
     extra = PB_QUADRATIC + '\n[[analyte]]\nmatch = "*220*"\nweighting = "1/x2"\n'
-    prof = profile_file(tmp_path, extra)
-    load_profile(prof)  # different patterns: only a run can show they overlap
     with pytest.raises(ProfileError) as caught:
-        check_file(write_run(tmp_path / "icp.csv"), profile=prof)
+        load_profile(profile_file(tmp_path, extra))
+    message = str(caught.value)
+    assert '[[analyte]] 1 (match "pb*") and [[analyte]] 2 (match "*220*") can both match one ' \
+           "analyte (e.g. 'pb220')" in message
+    line = (PLASMA + extra).splitlines().index('match = "*220*"')  # the header above it
+    assert message.startswith(f"{tmp_path / 'fernbrook-icp.toml'}, line {line}: ")
+
+
+def test_patterns_that_cannot_overlap_load(tmp_path):
+    extra = ('\n[[analyte]]\nmatch = "Pb*"\ndigits = 4\n[[analyte]]\nmatch = "Cu*"\n'
+             'digits = 4\n[[analyte]]\nmatch = "[!pc]*"\ndigits = 2\n')
+    prof = load_profile(profile_file(tmp_path, extra))
+    assert [override_for(a, prof.overrides).index for a in ("Pb 220.353", "cu 324.754",
+                                                            "Zn 213.857")] == [1, 2, 3]
+
+
+def test_runtime_guard_names_both_patterns():
+    from calib.checks.overrides import AnalyteOverride
+
+    a, b = AnalyteOverride(1, pattern="Pb*"), AnalyteOverride(2, pattern="*220*")
+    with pytest.raises(ProfileError) as caught:
+        override_for("Pb 220.353", [a, b])
     assert str(caught.value) == (
-        "analyte 'Pb 220.353' is matched by [[analyte]] 1 (match \"pb*\") and [[analyte]] 2 "
+        "analyte 'Pb 220.353' is matched by [[analyte]] 1 (match \"Pb*\") and [[analyte]] 2 "
         "(match \"*220*\"): the profile is ambiguous; add a name entry for it or narrow a pattern")
 
 
 def test_a_name_entry_is_more_specific_than_a_pattern():
-    prof = parse_profile(PLASMA + PB_QUADRATIC + '\n[[analyte]]\nmatch = "*220*"\n'
-                         '[[analyte]]\nname = "PB 220.353"\nmodel = "linear"\n', origin="p")
-    assert override_for("Pb 220.353", prof.overrides).index == 3
+    prof = parse_profile(PLASMA + PB_QUADRATIC + '\n[[analyte]]\nname = "PB 220.353"\n'
+                         'model = "linear"\n', origin="p")
+    assert override_for("Pb 220.353", prof.overrides).index == 2
+    assert override_for("Pb 217.000", prof.overrides).index == 1
 
 
 @pytest.mark.parametrize(("extra", "message"), [
     ('[[analyte]]\nmatch = "Pb*"\n[[analyte]]\nmatch = "PB*"\n',
-     '[[analyte]] 1 (match "Pb*") and [[analyte]] 2 (match "PB*") name the same analytes'),
-    ('[[analyte]]\nname = "Cu 324.754"\n[[analyte]]\nmatch = "cu 324.754"\n',
-     "name the same analyte; merge them into one entry"),
+     '[[analyte]] 1 (match "Pb*") and [[analyte]] 2 (match "PB*") can both match one analyte '
+     "(e.g. 'pb')"),
+    ('[[analyte]]\nname = "Cu 324.754"\n[[analyte]]\nname = "cu 324.754"\n',
+     '[[analyte]] 1 (name "Cu 324.754") and [[analyte]] 2 (name "cu 324.754") name the same '
+     "analyte; merge them into one entry"),
     ('[[analyte]]\nmatch = "Pb*"\nname = "Pb"\n',
      ("an [[analyte]] entry gives match (a pattern such as \"Pb*\") or name (one analyte), "
      "exactly one of them")),

@@ -116,11 +116,11 @@ def test_a_name_entry_is_more_specific_than_a_pattern():
 
 @pytest.mark.parametrize(("extra", "message"), [
     ('[[analyte]]\nmatch = "Pb*"\n[[analyte]]\nmatch = "PB*"\n',
-     '[[analyte]] 1 (match "Pb*") and [[analyte]] 2 (match "PB*") can both match one analyte '
-     "(e.g. 'pb')"),
+     ('[[analyte]] 1 (match "Pb*") and [[analyte]] 2 (match "PB*") can both match one analyte '
+     "(e.g. 'pb')")),
     ('[[analyte]]\nname = "Cu 324.754"\n[[analyte]]\nname = "cu 324.754"\n',
-     '[[analyte]] 1 (name "Cu 324.754") and [[analyte]] 2 (name "cu 324.754") name the same '
-     "analyte; merge them into one entry"),
+     ('[[analyte]] 1 (name "Cu 324.754") and [[analyte]] 2 (name "cu 324.754") name the same '
+     "analyte; merge them into one entry")),
     ('[[analyte]]\nmatch = "Pb*"\nname = "Pb"\n',
      ("an [[analyte]] entry gives match (a pattern such as \"Pb*\") or name (one analyte), "
      "exactly one of them")),

@@ -171,8 +171,9 @@ def check(
 
     Parameters are those of :func:`calib.workflow.check_file`, and
     ``standards``: a standards file (:mod:`calib.io.standards`) or its parsed
-    form, naming the reference materials the standards came from; each curve
-    then gets the ``standards-expiry`` check and the record a ``standards`` section.
+    form, naming the reference materials the standards came from (default: the
+    file a ``Standards file:`` line of the run names, if any); each curve then
+    gets the ``standards-expiry`` check and the record a ``standards`` section.
 
     Raises
     ------
@@ -186,11 +187,12 @@ def check(
                             weighting=weighting, confidence=confidence, map=map,
                             exclusions=exclusions, ranges=ranges, archive=archive,
                             progress=progress)
-    if standards is not None:
-        from calib.checks.traceability import with_standards
-        from calib.io.standards import Standards, read_standards
+    from calib.io.standards import standards_for_run
 
-        chosen = standards if isinstance(standards, Standards) else read_standards(standards)
+    chosen = standards_for_run(path, assessment.run.metadata, standards)
+    if chosen is not None:
+        from calib.checks.traceability import with_standards
+
         assessment = with_standards(assessment, chosen)
     return CheckOutcome(assessment, check_document(assessment))
 

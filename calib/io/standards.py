@@ -24,6 +24,10 @@ passed with ``calib check --standards FILE``, says so, in TOML::
 or as CSV, one row per material or level, with a ``kind`` column
 (``material`` or ``level``) and the same column names (``analytes`` separated
 by ``;``).  Every refusal names the file and the row (CSV) or entry (TOML).
+
+Instead of the option, the run file may name its standards file in its
+metadata lines (``Standards file: metals-standards.toml``): a plain file name,
+read from the run file's own folder (:func:`standards_for_run`).
 """
 
 from __future__ import annotations
@@ -40,8 +44,11 @@ from typing import Any
 
 from calib.errors import InputError
 
-__all__ = ["Level", "Material", "Standards", "parse_standards", "read_standards",
-           "standards_section"]
+__all__ = ["METADATA_KEYS", "Level", "Material", "Standards", "parse_standards",
+           "read_standards", "standards_for_run", "standards_section"]
+
+METADATA_KEYS = ("standards file", "standards", "reference materials")
+"""Metadata keys (folded) of a run-file line naming its standards file."""
 
 MAX_BYTES = 1_000_000
 """A standards file is a few dozen lines; anything larger is refused before parsing."""
@@ -176,6 +183,42 @@ def parse_standards(data: bytes, *, name: str) -> Standards:
         raise InputError(f"more than {MAX_ENTRIES} materials and levels", file=name)
     made = _link_levels(materials, levels, name)
     return Standards(name, hashlib.sha256(data).hexdigest(), tuple(m for m, _ in materials), made)
+
+
+def standards_for_run(run_path: str | Path, metadata: Mapping[str, str],
+                      given: Standards | str | Path | None) -> Standards | None:
+    """The standards of a run: those ``given``, else the file its metadata names, else None.
+
+    The metadata may only name a file in the run file's own folder (a plain
+    name: no folders, so a run file never points calib elsewhere).  When both
+    are given and name different files, the run is refused: which one holds is
+    not ours to guess.
+
+    Raises
+    ------
+    InputError
+        When the named file cannot be used, or the two disagree.
+    """
+    named = [(k, v.strip()) for k, v in metadata.items()
+             if " ".join(str(k).casefold().replace("_", " ").split()) in METADATA_KEYS
+             and str(v).strip()]
+    run_path = Path(run_path)
+    if len(named) > 1:
+        raise InputError(f"the run names two standards files ({named[0][1]!r}, {named[1][1]!r}); "
+                         "keep one line", file=run_path.name)
+    if given is not None:
+        chosen = given if isinstance(given, Standards) else read_standards(given)
+        if named and named[0][1].casefold() != chosen.file.casefold():
+            raise InputError(f"the run names standards file {named[0][1]!r} but --standards "
+                             f"gives {chosen.file!r}: give one of them", file=run_path.name)
+        return chosen
+    if not named:
+        return None
+    name = named[0][1]
+    if Path(name).name != name or name in (".", ".."):
+        raise InputError(f"line {named[0][0]!r}: {name!r} must be a file name in the run file's "
+                         "folder (no folders); or pass --standards FILE", file=run_path.name)
+    return read_standards(run_path.parent / name)
 
 
 def standards_section(standards: Standards) -> dict[str, Any]:

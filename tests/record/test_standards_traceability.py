@@ -14,9 +14,11 @@ import io
 import json
 
 import pypdf
+import pytest
 
 from calib import service
 from calib.cli.main import main
+from calib.errors import InputError
 from calib.record.lots import records_with_lot
 from calib.resources import bundled_folder
 
@@ -137,3 +139,37 @@ def test_check_document_with_standards_validates_against_its_schema(tmp_path):
     jsonschema.Draft202012Validator(schema).validate(json.loads(json.dumps(doc)))
     doc["standards"]["materials"][0]["colour"] = "red"
     assert not jsonschema.Draft202012Validator(schema).is_valid(doc)
+
+
+def run_naming(tmp_path, line: str):
+    """The fluoride demo run with one more metadata line (the run date is 2026-11-30)."""
+    source = bundled_folder("sample_runs") / "fernbrook_fluoride_2026-11-30.csv"
+    text = source.read_text(encoding="utf-8").replace("Operator: R. Okafor",
+                                                      f"Operator: R. Okafor\n{line}", 1)
+    run = tmp_path / "fluoride.csv"
+    run.write_text(text, encoding="utf-8")
+    return run
+
+
+def test_the_run_file_may_name_its_standards_file(tmp_path):
+    standards_file(tmp_path, "2027-01-01", '["Fluoride"]')
+    outcome = service.check(run_naming(tmp_path, "Standards file: nitrate-standards.toml"))
+    assert outcome.document["standards"]["file"] == "nitrate-standards.toml"
+    checks = outcome.document["curves"][0]["checks"]
+    assert next(c for c in checks if c["id"] == "standards-expiry")["verdict"] == "pass"
+
+
+def test_a_run_file_may_not_point_elsewhere_or_disagree(tmp_path):
+    standards_file(tmp_path, "2027-01-01", '["Fluoride"]')
+    with pytest.raises(InputError) as caught:
+        service.check(run_naming(tmp_path, "Standards file: ../elsewhere/s.toml"))
+    assert ("fluoride.csv: line 'Standards file': '../elsewhere/s.toml' must be a file name in "
+            "the run file's folder (no folders); or pass --standards FILE") == str(caught.value)
+    other = tmp_path / "other.toml"
+    other.write_text((tmp_path / "nitrate-standards.toml").read_text(encoding="utf-8"),
+                     encoding="utf-8")
+    with pytest.raises(InputError) as caught:
+        service.check(run_naming(tmp_path, "Standards file: nitrate-standards.toml"),
+                      standards=other)
+    assert ("the run names standards file 'nitrate-standards.toml' but --standards gives "
+            "'other.toml': give one of them") in str(caught.value)

@@ -48,7 +48,8 @@ examples:
 
 exit codes: 0 every curve accepted, 1 a curve rejected or needs review,
             2 usage error, 3 unusable input (also a full disk; nothing is written),
-            4 internal error
+            4 internal error; with several run files the worst of them (3 when one
+            could not be used: the others are still checked)
 """
 
 

@@ -139,7 +139,7 @@ def write_settings(template: str | Path, *, path: str | Path | None = None) -> L
             "[lab]\n"
             f"template = {_toml_string(str(resolved))}\n"
             f"template_sha256 = {_toml_string(loaded.sha256)}\n")
-    write_atomic(target, text.encode("utf-8"))
+    write_atomic(target, text.encode("utf-8"), private=True)
     return LabSettings(resolved, loaded.sha256, target)
 
 

@@ -11,7 +11,33 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
-__all__ = ["Output", "disk_message", "safe_file_name", "write_all", "write_atomic"]
+__all__ = ["Output", "disk_message", "file_mode", "safe_file_name", "write_all", "write_atomic"]
+
+PRIVATE_MODE = 0o600
+"""Mode of private files (archive copies, frozen baselines, lab settings): owner only."""
+
+
+def file_mode(*, private: bool = False) -> int:
+    """The permission bits a new output file gets: ``0o666`` less the umask, or 0600 if private.
+
+    Reports, workbooks and CSVs are meant to be opened by a reviewer on a shared
+    drive, so they follow the process umask as any other program's files would;
+    private files stay owner-only whatever the umask.
+
+    Examples
+    --------
+    >>> import os
+    >>> old = os.umask(0o022)
+    >>> oct(file_mode()), oct(file_mode(private=True))
+    ('0o644', '0o600')
+    >>> _ = os.umask(old)
+    """
+    if private:
+        return PRIVATE_MODE
+    # The umask can only be read by setting it; put it straight back.
+    mask = os.umask(0o077)
+    os.umask(mask)
+    return 0o666 & ~mask
 
 # Characters no file name of ours holds: path separators, the characters Windows forbids,
 # and control characters (which also include the bidirectional controls, category Cf).
@@ -48,7 +74,8 @@ def safe_file_name(text: str, *, fallback: str = "unnamed") -> str:
     return name
 
 
-def write_atomic(path: str | Path, data: bytes, *, replace: bool = True) -> Path:
+def write_atomic(path: str | Path, data: bytes, *, replace: bool = True,
+                 private: bool = False) -> Path:
     """Write ``data`` to ``path`` through a temporary file in the same folder, then rename.
 
     The rename is atomic on one file system, so readers see either the old
@@ -56,6 +83,8 @@ def write_atomic(path: str | Path, data: bytes, *, replace: bool = True) -> Path
     With ``replace=False`` an existing ``path`` is never overwritten, even one
     created while the data was being written: the temporary file is linked to
     ``path`` (which fails when it exists) instead of renamed over it.
+    The file's mode follows the umask unless ``private`` (then 0600), see
+    :func:`file_mode`.
 
     Raises
     ------
@@ -72,7 +101,7 @@ def write_atomic(path: str | Path, data: bytes, *, replace: bool = True) -> Path
     >>> write_atomic(target, b"{}").read_bytes()
     b'{}'
     """
-    return write_all([Output(Path(path), data, replace)])[0]
+    return write_all([Output(Path(path), data, replace, private)])[0]
 
 
 _DISK_ERRNOS = {errno.ENOSPC: "the disk is full", errno.EDQUOT: "the disk quota is used up",
@@ -98,11 +127,16 @@ def disk_message(exc: BaseException) -> str | None:
 
 @dataclass(frozen=True)
 class Output:
-    """One file to write: where, what, and whether an existing file may be replaced."""
+    """One file to write: where, what, whether an existing file may be replaced, who may read it.
+
+    ``private`` files (archive copies, baselines, settings) are created 0600;
+    the others follow the umask (:func:`file_mode`).
+    """
 
     path: Path
     data: bytes
     replace: bool = True
+    private: bool = False
 
 
 def write_all(outputs: Sequence[Output], *, before_commit: Callable[[], None] | None = None
@@ -144,7 +178,7 @@ def write_all(outputs: Sequence[Output], *, before_commit: Callable[[], None] | 
     try:
         for out in outputs:
             target = Path(out.path)
-            staged.append((out, _stage(target, out.data)))
+            staged.append((out, _stage(target, out.data, file_mode(private=out.private))))
         if before_commit is not None:
             before_commit()
         for out, tmp in staged:
@@ -164,8 +198,12 @@ def write_all(outputs: Sequence[Output], *, before_commit: Callable[[], None] | 
     return [Path(out.path) for out in outputs]
 
 
-def _stage(target: Path, data: bytes) -> str:
-    """Write ``data`` to a new temporary file beside ``target``, on disk; returns its name."""
+def _stage(target: Path, data: bytes, mode: int = PRIVATE_MODE) -> str:
+    """Write ``data`` to a new temporary file beside ``target``, on disk; returns its name.
+
+    The temporary file is created 0600 (no one reads a half-written file) and
+    given ``mode`` only once complete, before it is renamed into place.
+    """
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
         fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
@@ -175,6 +213,7 @@ def _stage(target: Path, data: bytes) -> str:
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()
+            os.fchmod(fh.fileno(), mode)
             os.fsync(fh.fileno())
     except OSError as exc:
         Path(tmp).unlink(missing_ok=True)

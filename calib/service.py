@@ -39,6 +39,7 @@ if TYPE_CHECKING:
     from calib.checks.narrowing import WorkingRange
     from calib.checks.profile import Profile
     from calib.io import ImportMap
+    from calib.io.standards import Standards
     from calib.record import Record
     from calib.report.template import ReportTemplate
 
@@ -164,10 +165,15 @@ def check(
     ranges: Sequence[WorkingRange] = (),
     archive: str | os.PathLike[str] | None = None,
     progress: Progress | None = None,
+    standards: Standards | str | os.PathLike[str] | None = None,
 ) -> CheckOutcome:
     """Read a run file and judge every curve in it; nothing is written.
 
-    Parameters are those of :func:`calib.workflow.check_file`.
+    Parameters are those of :func:`calib.workflow.check_file`, and
+    ``standards``: a standards file (:mod:`calib.io.standards`) or its parsed
+    form, naming the reference materials the standards came from (default: the
+    file a ``Standards file:`` line of the run names, if any); each curve then
+    gets the ``standards-expiry`` check and the record a ``standards`` section.
 
     Raises
     ------
@@ -181,6 +187,13 @@ def check(
                             weighting=weighting, confidence=confidence, map=map,
                             exclusions=exclusions, ranges=ranges, archive=archive,
                             progress=progress)
+    from calib.io.standards import standards_for_run
+
+    chosen = standards_for_run(path, assessment.run.metadata, standards)
+    if chosen is not None:
+        from calib.checks.traceability import with_standards
+
+        assessment = with_standards(assessment, chosen)
     return CheckOutcome(assessment, check_document(assessment))
 
 
@@ -453,7 +466,7 @@ def _frozen_baseline(path: str, store: Any, history: list[Any], name: str, *,
             instrument=instrument, archive=state, note=freeze.note)
         target = next_baseline_file(folder, name, instrument)
         try:
-            write_atomic(target, baseline_document(made), replace=False)
+            write_atomic(target, baseline_document(made), replace=False, private=True)
         except FileExistsError:
             raise BaselineError(f"{target} appeared while freezing; run again") from None
         return load_baseline(target), f"Baseline frozen: {target}"

@@ -37,6 +37,8 @@ from calib.tabular import Tabular
 if TYPE_CHECKING:
     import pandas as pd
 
+    from calib.io.standards import Standards
+
 __all__ = ["CurveAssessment", "RunAssessment", "assess_curve", "evaluate_run"]
 
 #: Called as progress(done, total) after each curve; the CLI may draw a bar with it.
@@ -113,6 +115,9 @@ class RunAssessment(Tabular):
     curves: tuple[CurveAssessment, ...]
     #: Exclusions the analyst asked for when checking (beside those the run file makes).
     exclusions: tuple[AppliedExclusion, ...] = ()
+    #: The reference materials and levels the standards came from (calib.io.standards),
+    #: when a standards file was given; see calib.checks.traceability.
+    standards: Standards | None = None
 
     def to_frame(self) -> pd.DataFrame:
         """One row per curve, as a pandas DataFrame (shown as a table in Jupyter)."""

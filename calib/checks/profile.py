@@ -8,7 +8,9 @@ of ``[[rules]]``, each with an ``id`` from :data:`calib.checks.rules.RULES`, a
 whether the analyst who prepared a record may also review or approve it
 (both false unless the profile says so; see :class:`SignoffPolicy`).  An
 optional ``[narrowing]`` table lets calib propose a narrowed working range
-(see :class:`NarrowingPolicy`).  A profile that uses ``correlation`` must
+(see :class:`NarrowingPolicy`).  Optional ``[[analyte]]`` tables set the model,
+weighting, rule limits and reporting digits of some analytes by name or pattern
+(:mod:`calib.checks.overrides`).  A profile that uses ``correlation`` must
 also use a relative-error or lack-of-fit rule (AMC Technical Brief No. 3).
 Anything unknown or out of range is a :class:`~calib.errors.ProfileError`
 naming the file and line.
@@ -22,18 +24,21 @@ import tomllib
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from calib.checks.result import Severity
 from calib.checks.rules import RULES
 from calib.errors import ProfileError
 from calib.options import LimitMethod, Model, Weighting
 
+if TYPE_CHECKING:
+    from calib.checks.overrides import AnalyteOverride
+
 __all__ = ["NarrowingPolicy", "Profile", "RuleSpec", "SignoffPolicy", "load_profile",
            "shipped_profiles", "signoff_policy"]
 
 _TOP_KEYS = {"name", "version", "description", "sources", "defaults", "rules", "signoff",
-             "narrowing"}
+             "narrowing", "analyte"}
 _NARROWING_KEYS = ("propose", "max_dropped_levels")
 _SEVERITY_RANK = {Severity.INFO: 0, Severity.REVIEW: 1, Severity.REJECT: 2}
 _SIGNOFF_KEYS = ("allow_preparer_to_review", "allow_preparer_to_approve",
@@ -143,6 +148,8 @@ class Profile:
     lod_method: LimitMethod = LimitMethod.ICH_SD
     narrowing: NarrowingPolicy = field(default_factory=NarrowingPolicy)
     fit_replicates: str = "all"
+    #: Per-analyte settings, the ``[[analyte]]`` tables (calib.checks.overrides).
+    overrides: tuple[AnalyteOverride, ...] = ()
 
     @property
     def sha256(self) -> str:
@@ -267,7 +274,22 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
         lod_method=LimitMethod(lod_method),
         narrowing=_parse_narrowing(data.get("narrowing", {}), text, origin),
         fit_replicates=fit_replicates,
+        overrides=_parse_overrides(data.get("analyte", []), specs, text, origin),
     )
+
+
+def _parse_overrides(entries: Any, specs: list[RuleSpec], text: str, origin: str
+                     ) -> tuple[AnalyteOverride, ...]:
+    from calib.checks.overrides import parse_overrides
+
+    starts = [m.start() for m in re.finditer(r"^[ \t]*\[\[[ \t]*analyte[ \t]*\]\]", text,
+                                             re.MULTILINE)]
+
+    def where(i: int) -> str:
+        line = text.count("\n", 0, starts[i - 1]) + 1 if i <= len(starts) else 1
+        return f"{origin}, line {line}"
+
+    return parse_overrides(entries, specs, where=where)
 
 
 def _parse_narrowing(table: Any, text: str, origin: str) -> NarrowingPolicy:

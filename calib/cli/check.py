@@ -29,6 +29,10 @@ if TYPE_CHECKING:
 EXAMPLES = """\
 examples:
   calib check sample_runs/fernbrook_nitrate_2026-11-30.xlsx
+  calib check run.xlsx --brief                 one line per analyte
+  calib check run.xlsx --full                  every check of every curve
+  calib check monday.xlsx tuesday.xlsx         several runs, one summary, the worst exit code
+  calib check runs/ --pdf records/             every run file in a folder, one record each
   calib check run.csv --model quadratic --weighting 1/x --confidence 0.99
   calib check run.xlsx --pdf nitrate-record.pdf --prepared-by "R. Okafor"
   calib check run.xlsx --prepared-by "R. Okafor" --archive records.sqlite
@@ -40,10 +44,12 @@ examples:
   calib check kx214.xlsx --profile bioanalytical --range "KX-214:2..1000"   apply the proposed range
   calib check run.xlsx --range "2..500=LLOQ outside ±20 %, SOP 7.3" --xlsx results.xlsx
   calib check run.xlsx --csv results.csv       one row per curve, for a LIMS or a script
+  calib check icp.xlsx --standards metals-standards.toml --pdf icp.pdf   name the materials
 
 exit codes: 0 every curve accepted, 1 a curve rejected or needs review,
             2 usage error, 3 unusable input (also a full disk; nothing is written),
-            4 internal error
+            4 internal error; with several run files the worst of them (3 when one
+            could not be used: the others are still checked)
 """
 
 
@@ -54,12 +60,22 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "verdicts; optionally issue the PDF calibration record.",
         epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    parser.add_argument("run", metavar="RUN",
-                        help="instrument export: .xlsx, .xlsm, .xls, .ods, .csv, .tsv or .txt")
+    parser.add_argument("run", metavar="RUN", nargs="+",
+                        help="instrument export (.xlsx, .xlsm, .xls, .ods, .csv, .tsv or .txt), "
+                             "several, or a folder of them")
     add_fit_options(parser)
     parser.add_argument("--json", action="store_true",
-                        help="print the calib.check/1 JSON document instead of tables")
-    parser.add_argument("--pdf", metavar="OUT", help="write the PDF calibration record to OUT")
+                        help="print the calib.check/1 JSON document instead of tables; with "
+                             "several run files one calib.check-set/1 document listing them")
+    length = parser.add_mutually_exclusive_group()
+    length.add_argument("--brief", action="store_true",
+                        help="one line per analyte: verdict and the checks that failed or warned")
+    length.add_argument("--full", action="store_true",
+                        help="every check of every curve (default: details only of the curves "
+                             "not accepted)")
+    parser.add_argument("--pdf", metavar="OUT",
+                        help="write the PDF calibration record to OUT (with several run files: "
+                             "a folder, one RUN-NAME.pdf each)")
     add_force(parser, what="a --pdf record file")
     add_template_option(parser)
     parser.add_argument("--prepared-by", metavar="NAME",
@@ -73,8 +89,14 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="apply a working range: standards outside LOW..HIGH leave the fit; "
                              "append =REASON unless it is the range calib proposes; repeatable, "
                              "one per analyte")
-    parser.add_argument("--xlsx", metavar="OUT", help="write the results workbook to OUT")
-    parser.add_argument("--csv", metavar="OUT", help="write the results, one row per curve, to OUT")
+    parser.add_argument("--standards", metavar="FILE",
+                        help="TOML or CSV file naming the reference materials (id, lot, "
+                             "certified value and uncertainty, expiry) and how each level was "
+                             "prepared; the record carries it and flags an expired material")
+    parser.add_argument("--xlsx", metavar="OUT", help="write the results workbook to OUT "
+                                                      "(several run files: a folder)")
+    parser.add_argument("--csv", metavar="OUT", help="write the results, one row per curve, to "
+                                                     "OUT (several run files: a folder)")
     add_archive_option(parser, help_text="file the issued record (JSON and PDF) in this archive; "
                                          "default: the CALIB_ARCHIVE environment variable, "
                                          "when set")
@@ -93,6 +115,18 @@ def run(args: argparse.Namespace) -> int:
         from calib.io import load_map
 
         imap = load_map(args.map)  # read once, before the run file, so its errors come first
+    if args.standards:
+        from calib.io.standards import read_standards
+
+        args.standards = read_standards(args.standards)  # once, and its errors before the runs'
+    from calib.cli.check_many import expand_runs, run_many
+
+    runs = expand_runs(args.run)
+    if runs is None:
+        return 2
+    if len(runs) > 1 or any(Path(r).is_dir() for r in args.run):
+        return run_many(args, runs, imap)
+    args.run = str(runs[0])
     if args.show_import:
         print(service.describe_import(args.run, sheet=sheet_arg(args.sheet), map=imap))
         return 0
@@ -130,10 +164,17 @@ def run(args: argparse.Namespace) -> int:
         for line in exported:
             print(f"calib: {line}", file=sys.stderr)
     else:
+        from calib.cli.check_text import brief_text, default_text
         from calib.export import verdict_text
 
-        print(verdict_text(document, colour=_colour()) + "\n")
-        print(render.assessment_text(outcome.assessment))
+        if args.brief:
+            print(brief_text(outcome.assessment))
+        elif args.full:
+            print(verdict_text(document, colour=_colour()) + "\n")
+            print(render.assessment_text(outcome.assessment))
+        else:
+            print(verdict_text(document, colour=_colour()) + "\n")
+            print(default_text(outcome.assessment))
         if issued is not None and args.pdf:
             print(f"\nRecord {issued.record.record_id} written to {args.pdf}")
         if issued is not None:
@@ -164,7 +205,8 @@ def _check(args: argparse.Namespace, imap: ImportMap | None) -> CheckOutcome:
         return service.check(args.run, sheet=sheet_arg(args.sheet), profile=args.profile,
                              model=args.model, weighting=args.weighting,
                              confidence=args.confidence, map=imap, exclusions=args.exclude,
-                             ranges=args.ranges, archive=archive_path(args), progress=bar)
+                             ranges=args.ranges, archive=archive_path(args), progress=bar,
+                             standards=args.standards)
     finally:
         if bar is not None:
             bar.close()

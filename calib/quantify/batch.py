@@ -32,7 +32,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from enum import StrEnum
 from typing import TYPE_CHECKING
 
@@ -395,6 +395,7 @@ def quantify(
     qc_rule: QcRule | None = None,
     unfitted: Mapping[str, str] | None = None,
     convention: ReportingConvention | None = None,
+    digits: Mapping[str, int] | None = None,
 ) -> Batch:
     """Quantify every sample against its analyte's curve and judge the QCs.
 
@@ -415,6 +416,9 @@ def quantify(
         Analytes without a fitted curve, with the reason.
     convention : ReportingConvention, optional
         How results that are not numbers are written.
+    digits : mapping of analyte to int, optional
+        Significant figures reported for these analytes (the profile's
+        ``[[analyte]]`` entries), instead of the convention's.
 
     Returns
     -------
@@ -447,7 +451,8 @@ def quantify(
                                     "(force quantifies them anyway, flagged)")
     results = tuple(
         quantify_sample(curves.get(g[0].point.analyte), g, confidence=confidence,
-                        convention=convention, refused=refused.get(g[0].point.analyte),
+                        convention=_convention(convention, digits, g[0].point.analyte),
+                        refused=refused.get(g[0].point.analyte),
                         forced=g[0].point.analyte in forced)
         for g in group_readings(readings)
     )
@@ -476,3 +481,11 @@ def quantify(
             reasons.append(f"{analyte}: the QC rule could not be evaluated (no QC samples)")
     return Batch(dict(curves), results, tuple(summaries), confidence, tuple(forced),
                  {a: refused[a] for a in needed if a in refused}, verdict, tuple(reasons))
+
+
+def _convention(convention: ReportingConvention | None, digits: Mapping[str, int] | None,
+                analyte: str) -> ReportingConvention | None:
+    """The convention with the analyte's own reporting digits, when the profile sets them."""
+    if not digits or analyte not in digits:
+        return convention
+    return replace(convention or ReportingConvention(), digits=digits[analyte])

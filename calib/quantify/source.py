@@ -70,6 +70,8 @@ class CurveSource:
     digest: str | None = None
     run: Run | None = None
     notes: tuple[str, ...] = field(default=())
+    digits: dict[str, int] = field(default_factory=dict)
+    """Significant figures the profile's ``[[analyte]]`` entries set for reported results."""
 
     @property
     def label(self) -> str:
@@ -127,8 +129,14 @@ def _from_assessment(assessment: RunAssessment) -> CurveSource:
         kind="run", file=run.source.file, sha256=run.source.sha256, curves=curves,
         unfitted=unfitted, qc_rule=rule,
         profile={"name": p.name, "version": p.version, "sha256": p.sha256}, run=run,
-        notes=(note,) if note else (),
+        notes=(note,) if note else (), digits=_digits(p, [*curves, *unfitted]),
     )
+
+
+def _digits(profile: Any, analytes: list[str]) -> dict[str, int]:
+    from calib.checks.overrides import digits_by_analyte
+
+    return digits_by_analyte(profile, analytes) if profile is not None else {}
 
 
 def _record_source(path: str | Path, *, profile: str | Path | None) -> CurveSource:
@@ -152,6 +160,7 @@ def _record_source(path: str | Path, *, profile: str | Path | None) -> CurveSour
     curves, unfitted = curves_from_record(record.body, label=label)
     stored = record.body.get("profile") if isinstance(record.body.get("profile"), dict) else {}
     notes: list[str] = []
+    prof = None
     if profile is not None:
         prof = load_profile(profile)
         rule, note = qc_rule_of(prof)
@@ -172,6 +181,7 @@ def _record_source(path: str | Path, *, profile: str | Path | None) -> CurveSour
         qc_rule=rule,
         profile={k: stored.get(k) for k in ("name", "version", "sha256")},
         record_id=record.record_id, digest=record.digest, notes=tuple(notes),
+        digits=_digits(prof, [*curves, *unfitted]),
     )
 
 

@@ -235,6 +235,7 @@ def quantify_files(
         raise InputError("no unknown or QC samples found to quantify (a run file's unknowns "
                          "and QCs are used when no samples file is given)", file=where)
     batch = quantify(source.curves, readings, confidence=confidence, force=force,
-                     qc_rule=source.qc_rule, unfitted=source.unfitted, convention=convention)
+                     qc_rule=source.qc_rule, unfitted=source.unfitted, convention=convention,
+                     digits=source.digits)
     when = (created_at or datetime.now(UTC)).astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     return QuantifyReport(source, samples_info, from_run, batch, when, tuple(notes))

@@ -35,10 +35,11 @@ def check_document(assessment: RunAssessment) -> dict[str, Any]:
     Every number keeps full double precision; values that cannot be computed
     are ``None``.  Beyond the keys of SPEC §7 the document carries
     ``exclusions`` (what the analyst excluded when checking) and, per curve,
-    ``reasons``, ``working_range`` and ``refit`` (see ``calib/record/schemas/check-1.json``).
+    ``reasons``, ``working_range``, ``refit`` and ``response_basis``, and ``standards``
+    when the run names its reference materials (see ``calib/record/schemas/check-1.json``).
     """
     run, profile = assessment.run, assessment.profile
-    return {
+    document = {
         "schema": CHECK_SCHEMA,
         "tool_version": __version__,
         "source": {"file": run.source.file, "sha256": run.source.sha256, "sheet": run.source.sheet,
@@ -52,6 +53,11 @@ def check_document(assessment: RunAssessment) -> dict[str, Any]:
             for e in assessment.exclusions
         ],
     }
+    if assessment.standards is not None:  # only when a standards file was given
+        from calib.io.standards import standards_section
+
+        document["standards"] = standards_section(assessment.standards)
+    return document
 
 
 def curve_document(curve: CurveAssessment) -> dict[str, Any]:

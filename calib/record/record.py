@@ -197,6 +197,11 @@ def build_record(
             if c.fit is not None
         ],
     }
+    if assessment.standards is not None:
+        # Which reference materials the standards came from (ISO/IEC 17025 §6.5, §7.5).
+        from calib.io.standards import standards_section
+
+        body["standards"] = standards_section(assessment.standards)
     return Record(body)
 
 

@@ -474,7 +474,29 @@ class _Builder:
             out += [*self.table_heading(t.titles.checks), self.checks_table(curve)]
         if t.show.standards:
             out += [*self.table_heading(t.titles.standards), *self.standards_table(curve)]
+        out += self.traceability(name)
         return out + self.plots(curve) + self.cautions() + self.signoff()
+
+    def traceability(self, analyte: str) -> list[Flowable]:
+        """The reference materials and prepared levels behind this curve (when the record names
+        them): calib.report.traceability."""
+        from calib.report import traceability as tr
+
+        section = as_mapping(self.record.get("standards"))
+        if not section:
+            return []
+        materials = tr.materials_for(section, analyte)
+        if not materials:
+            return [*self.table_heading(tr.TITLE),
+                    self.para(f"The standards file {section.get('file')} names no reference "
+                              f"material for {analyte}.")]
+        out = [*self.table_heading(tr.TITLE),
+               self.tables.grid(tr.material_rows(materials), [0.17, 0.3, 0.13, 0.26, 0.14])]
+        levels = tr.level_rows(section, materials)
+        if len(levels) > 1:
+            out += [Spacer(1, 4), self.tables.grid(levels, [0.2, 0.2, 0.14, 0.2, 0.26],
+                                                   right=(2, 3))]
+        return out
 
     def summary(self) -> list[Flowable]:
         t = self.t

@@ -51,7 +51,7 @@ def test_schema_requires_exactly_the_spec_keys(schema):
     assert set(defs["curve"]["required"]) == SPEC_CURVE
     assert set(defs["point"]["required"]) == SPEC_POINT
     assert set(defs["check"]["required"]) == SPEC_CHECK
-    assert set(schema["properties"]) - SPEC_TOP == {"exclusions"}
+    assert set(schema["properties"]) - SPEC_TOP == {"exclusions", "standards"}
     assert set(defs["curve"]["properties"]) - SPEC_CURVE == {"reasons", "working_range", "refit",
                                                              "response_basis"}
     assert "working_range" in schema["description"] and "exclusions" in schema["description"]

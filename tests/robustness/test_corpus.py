@@ -158,7 +158,7 @@ def _child(path: Path, folder: str) -> None:
             os.dup2(os.open(Path(folder).parent / name, os.O_WRONLY | os.O_CREAT), fd)
         sys.stdout = open(1, "w", encoding="utf-8", closefd=False)  # noqa: SIM115
         sys.stderr = open(2, "w", encoding="utf-8", closefd=False)  # noqa: SIM115
-        code = main(["check", str(path), "--pdf", str(Path(folder, "record.pdf"))])
+        code = main(["check", str(path), "--full", "--pdf", str(Path(folder, "record.pdf"))])
     except BaseException:  # noqa: BLE001 - anything escaping main is what this test looks for
         traceback.print_exc()
         code = 99

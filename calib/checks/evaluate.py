@@ -11,6 +11,7 @@ import numpy as np
 
 from calib.checks.context import CurveContext, StandardResult
 from calib.checks.exclusions import AppliedExclusion, Exclusion, apply_exclusions
+from calib.checks.family import apply_family
 from calib.checks.history import SlopeHistory
 from calib.checks.narrowing import (
     AppliedRange,
@@ -303,7 +304,8 @@ def _assess(
     zero = tuple(p for p in standards if p.concentration == 0)
     ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
                        slope_history=slope_history, qcs=tuple(qcs))
-    checks = tuple(RULES[spec.id].run(ctx, spec.params, spec.severity) for spec in profile.rules)
+    checks = apply_family([RULES[spec.id].run(ctx, spec.params, spec.severity)
+                           for spec in profile.rules], profile.review_family)
     lod, loq = detection_limits(fit, method=profile.lod_method) if fit is not None else (None, None)
     return CurveAssessment(
         analyte=analyte, model=model, weighting=weighting, confidence=confidence,

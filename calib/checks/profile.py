@@ -23,6 +23,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from calib.checks.family import ReviewFamily, parse_review_family
 from calib.checks.result import Severity
 from calib.checks.rules import RULES
 from calib.errors import ProfileError
@@ -32,7 +33,7 @@ __all__ = ["NarrowingPolicy", "Profile", "RuleSpec", "SignoffPolicy", "load_prof
            "shipped_profiles", "signoff_policy"]
 
 _TOP_KEYS = {"name", "version", "description", "sources", "defaults", "rules", "signoff",
-             "narrowing"}
+             "narrowing", "review_family"}
 _NARROWING_KEYS = ("propose", "max_dropped_levels")
 _SEVERITY_RANK = {Severity.INFO: 0, Severity.REVIEW: 1, Severity.REJECT: 2}
 _SIGNOFF_KEYS = ("allow_preparer_to_review", "allow_preparer_to_approve")
@@ -125,6 +126,8 @@ class Profile:
     signoff: SignoffPolicy = field(default_factory=SignoffPolicy)
     lod_method: LimitMethod = LimitMethod.ICH_SD
     narrowing: NarrowingPolicy = field(default_factory=NarrowingPolicy)
+    #: The review-level diagnostics judged together (Holm), when the profile declares them.
+    review_family: ReviewFamily | None = None
 
     @property
     def sha256(self) -> str:
@@ -244,7 +247,15 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
         signoff=_parse_signoff(data.get("signoff", {}), text, origin),
         lod_method=LimitMethod(lod_method),
         narrowing=_parse_narrowing(data.get("narrowing", {}), text, origin),
+        review_family=_parse_family(data.get("review_family"), text, origin),
     )
+
+
+def _parse_family(table: Any, text: str, origin: str) -> ReviewFamily | None:
+    try:
+        return parse_review_family(table, f"{origin}, line {_line_of(text, 'review_family')}")
+    except ValueError as exc:
+        raise ProfileError(str(exc)) from None
 
 
 def _parse_narrowing(table: Any, text: str, origin: str) -> NarrowingPolicy:

@@ -12,9 +12,10 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 from scipy import optimize, stats
 
-__all__ = ["detectable_f_noncentrality", "detectable_t_noncentrality"]
+__all__ = ["detectable_bend_pct", "detectable_f_noncentrality", "detectable_t_noncentrality"]
 
 
 def detectable_t_noncentrality(df: int, alpha: float = 0.05, power: float = 0.80) -> float:
@@ -77,3 +78,35 @@ def detectable_f_noncentrality(dfn: int, dfd: int, alpha: float = 0.05,
     while short(high) < 0:
         high *= 2
     return float(optimize.brentq(short, 1e-9, high, xtol=1e-8))
+
+
+def detectable_bend_pct(x: np.ndarray, weights: np.ndarray, fitted: np.ndarray, sigma2: float,
+                        lam: float) -> float:
+    """The quadratic bend a test with noncentrality ``lam`` at 80 % power would detect.
+
+    The bend is c·x² beyond the straight line; its part the line cannot absorb is
+    q⊥ = c·(x² − its weighted projection on [1, x]), and the test's noncentrality is
+    Σ wᵢ·q⊥ᵢ²/σ².  Returned: the departure q⊥ at the highest standard for that λ, as %
+    of the fitted response there (NaN when it cannot be worked out).
+
+    Examples
+    --------
+    Three equally weighted levels 0, 1, 2: x² − (2x − 1/3) gives q⊥ = 1/3, −2/3, 1/3,
+    Σq⊥² = 2/3; with σ² = 1 and λ = 6, c = 3, so the bend at x = 2 is 1 on a fitted 10,
+    i.e. 10 %:
+
+    >>> round(detectable_bend_pct(np.array([0., 1, 2]), np.ones(3), np.array([0., 5, 10]),
+    ...                           1.0, 6.0), 6)
+    10.0
+    """
+    X = np.column_stack([np.ones_like(x), x])
+    sw = np.sqrt(weights)
+    q = x * x
+    coef, *_ = np.linalg.lstsq(X * sw[:, None], q * sw, rcond=None)
+    perp = q - X @ coef
+    energy = float(np.sum(weights * perp * perp))
+    top = int(np.argmax(x))
+    if energy <= 0 or sigma2 <= 0 or fitted[top] == 0:
+        return math.nan
+    c = math.sqrt(lam * sigma2 / energy)
+    return float(100 * abs(c * perp[top]) / abs(fitted[top]))

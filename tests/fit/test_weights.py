@@ -1,7 +1,7 @@
 """Weightings 1/y, 1/y2 and 1/s2: statsmodels' WLS with the same raw weights, and the refusals.
 
-statsmodels gets the raw weights (1/yᵢ, 1/yᵢ², 1/s²ⱼ with s²ⱼ numpy's sample variance of the
-level); calib scales them to a mean of 1, which changes only σ̂² (by the mean raw weight).
+statsmodels gets the raw weights (1/yᵢ, 1/yᵢ², 1/s²(xᵢ) with s²(x) the variance function
+fitted to numpy's level variances, tests/fit/variance_fn.py); calib scales them to a mean of 1, which changes only σ̂² (by the mean raw weight).
 Compared with relative tolerance 1e-10: estimates, standard errors, p-values, intervals, R²,
 fitted values and σ̂².
 """
@@ -13,6 +13,7 @@ import re
 import numpy as np
 import pytest
 import statsmodels.api as sm
+from scipy.special import digamma
 
 from calib.checks import evaluate_run
 from calib.fit.curve import fit_curve
@@ -25,6 +26,7 @@ from calib.fit.design import (
 )
 from calib.options import Model, Weighting
 from tests.conftest import make_run
+from tests.fit.variance_fn import smoothed_s2
 
 RTOL = 1e-10
 
@@ -46,7 +48,7 @@ def reference_raw(weighting: str) -> np.ndarray:
         return 1.0 / Y_DATA
     if weighting == "1/y2":
         return 1.0 / Y_DATA**2
-    s2 = {c: np.var(Y_DATA[X_DATA == c], ddof=1) for c in np.unique(X_DATA)}
+    s2 = smoothed_s2(X_DATA, Y_DATA)
     return np.array([1.0 / s2[c] for c in X_DATA])
 
 
@@ -75,9 +77,14 @@ def test_weights_have_mean_one_and_follow_the_definition() -> None:
     for weighting in Weighting:
         w = fit_weights(x, weighting, y=y)
         assert w.mean() == pytest.approx(1.0, rel=1e-14), weighting
-    # 1/s2 by hand: level variances 0.02, 0.08, 0.32 → raw weights 50, 12.5, 3.125.
+    # 1/s2 by hand: level variances 0.02, 0.08, 0.32 = 0.02·x² exactly, so the fitted
+    # variance function follows them, lifted by the log-variance bias of 1 df:
+    # E ln χ²₁ = ψ(1/2) + ln 2 = −1.2703628 (closed form, from memory) → raw weights
+    # 50, 12.5, 3.125 divided by e^1.2703628 = 3.5621448 (ψ(1/2) = −γ − 2 ln 2).
+    bias = float(np.exp(-(digamma(0.5) + np.log(2.0))))
+    assert bias == pytest.approx(np.exp(np.euler_gamma + np.log(2.0)), rel=1e-12)
     np.testing.assert_allclose(raw_weights(x, Weighting.INV_S2, y=y),
-                               [50, 50, 12.5, 12.5, 3.125, 3.125], rtol=1e-12)
+                               np.array([50, 50, 12.5, 12.5, 3.125, 3.125]) / bias, rtol=1e-12)
     levels, s2, n = level_variances(x, y)
     np.testing.assert_allclose(s2, [0.02, 0.08, 0.32], rtol=1e-12)
     assert levels.tolist() == [1.0, 2.0, 4.0] and n.tolist() == [2, 2, 2]
@@ -91,8 +98,8 @@ def test_a_stack_of_curves_gets_one_row_of_weights_each() -> None:
         w = fit_weights(x, weighting, y=y)
         for row in range(2):
             np.testing.assert_allclose(w[row], fit_weights(x[row], weighting, y=y[row]))
-    xs = np.array([[1.0, 1.0, 2.0, 2.0], [1.0, 1.0, 3.0, 3.0]])
-    ys = np.array([[1.0, 1.2, 2.0, 2.4], [1.0, 1.4, 3.0, 3.2]])
+    xs = np.array([[1.0, 1.0, 2.0, 2.0, 4.0, 4.0], [1.0, 1.0, 3.0, 3.0, 5.0, 5.0]])
+    ys = np.array([[1.0, 1.2, 2.0, 2.4, 4.0, 4.3], [1.0, 1.4, 3.0, 3.2, 5.0, 5.5]])
     w = fit_weights(xs, Weighting.INV_S2, y=ys)
     np.testing.assert_allclose(w[1], fit_weights(xs[1], Weighting.INV_S2, y=ys[1]))
 

@@ -113,8 +113,12 @@ def test_weight_at_follows_the_fit_scale() -> None:
 def test_bands_from_a_stored_record_match_the_fit() -> None:
     # The record keeps what the prediction band needs; redrawing from the JSON alone (after a
     # round trip through its canonical bytes) gives the same band as the live fit.
+    rng = np.random.default_rng(7)
+    x10 = np.repeat([1.0, 5.0, 10.0, 50.0, 100.0, 200.0], 10)  # 1/s2 needs ~6+ replicates
+    y10 = 1.5 * x10 * (1 + 0.02 * rng.standard_normal(x10.size))
     for weighting in ("none", "1/x2", "1/y", "1/s2"):
-        assessment = evaluate_run(make_run(X_DATA, Y_DATA), weighting=weighting)
+        xs, ys = (x10, y10) if weighting == "1/s2" else (X_DATA, Y_DATA)
+        assessment = evaluate_run(make_run(xs, ys), weighting=weighting)
         fit = assessment.curves[0].fit
         body = Record.from_json(build_record(assessment).canonical).body
         (details,) = body["fit_details"]

@@ -150,15 +150,22 @@ def test_evaluate_leaves_out_a_negative_response_under_1_over_y() -> None:
     assert curve.fit.weighting is Weighting.INV_Y
 
 
+def _proportional(levels: list[float], n: int) -> tuple[list[float], list[float]]:
+    """Invented: n replicates per level at ±2 % in a fixed pattern (s ∝ x)."""
+    pattern = np.linspace(-0.02, 0.02, n)
+    xs = [float(v) for v in levels for _ in range(n)]
+    return xs, [v * (1 + d) for v in levels for d in pattern]
+
+
 def test_evaluate_leaves_out_a_level_without_replicates_under_1_over_s2() -> None:
-    xs = [1, 1, 1, 2, 4, 4, 4, 8, 8, 8]
-    ys = [1.02, 0.99, 1.01, 2.0, 4.05, 3.96, 4.01, 8.1, 7.9, 8.02]
+    xs, ys = _proportional([1, 10, 100, 1000], 8)
+    xs, ys = [*xs[:8], 2.0, *xs[8:]], [*ys[:8], 2.0, *ys[8:]]
     curve = evaluate_run(make_run(xs, ys), weighting="1/s2").curves[0]
-    single = curve.standards[3]
+    single = curve.standards[8]
     assert not single.used
     assert single.exclusion_reason == (
         "weighting 1/s2 needs at least 2 replicates at each level; concentration 2 has 1")
-    assert curve.fit is not None and curve.fit.n_points == 9
+    assert curve.fit is not None and curve.fit.n_points == 32
     # The left-out level is still read back from the curve.
     assert single.back_calculated == pytest.approx(2.0, rel=0.05)
 
@@ -166,11 +173,27 @@ def test_evaluate_leaves_out_a_level_without_replicates_under_1_over_s2() -> Non
 def test_1_over_s2_counts_only_replicates_still_in_the_fit() -> None:
     # The analyst excluded one of the two replicates at concentration 4: the other one alone
     # has no variance, so 1/s2 must leave it out too.
-    xs = [1, 1, 2, 2, 4, 4, 8, 8]
-    ys = [1.02, 0.99, 2.03, 1.98, 4.05, 3.96, 8.1, 7.9]
-    run = make_run(xs, ys, excluded={5: "vial cracked"})
+    xs, ys = _proportional([1, 10, 100, 1000], 8)
+    xs, ys = [*xs, 4.0, 4.0], [*ys, 4.05, 3.96]
+    run = make_run(xs, ys, excluded={33: "vial cracked"})
     curve = evaluate_run(run, weighting="1/s2").curves[0]
-    assert curve.standards[5].exclusion_reason == "vial cracked"
-    assert curve.standards[4].exclusion_reason == (
+    assert curve.standards[33].exclusion_reason == "vial cracked"
+    assert curve.standards[32].exclusion_reason == (
         "weighting 1/s2 needs at least 2 replicates at each level; concentration 4 has 1")
-    assert curve.fit.n_points == 6
+    assert curve.fit.n_points == 32
+
+
+def test_1_over_s2_is_refused_when_the_replicates_fix_the_variance_too_loosely() -> None:
+    # Triplicates at 6 levels: Var ln s² = ψ′(1) = π²/6 per level (closed form), so the
+    # power's SE is √(π²/6 / Σ(ln x − mean)²) ≈ 0.32 > 0.2 — weights chosen this loosely
+    # cost the intervals their coverage (tests/fit/test_variance_function.py).
+    xs, ys = _proportional([1, 2, 5, 10, 50, 100], 3)
+    curve = evaluate_run(make_run(xs, ys), weighting="1/s2").curves[0]
+    logs = np.log([1, 2, 5, 10, 50, 100])
+    se = np.sqrt(np.pi**2 / 6 / np.sum((logs - logs.mean()) ** 2))
+    assert curve.fit is None
+    assert curve.unfitted_reason == (
+        "weighting 1/s2 needs the replicate variances to fix the power of the variance "
+        f"function s² = a·x^θ to within a standard error of 0.2; these 6 levels give θ = 2.00 "
+        f"± {se:.2f} (more replicates or a wider range would; or use 1/x or 1/x2, chosen in "
+        "validation)")

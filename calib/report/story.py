@@ -266,10 +266,20 @@ class _Builder:
             if verdict in ("fail", "warn"):
                 bold.append((3, i))
             severity = str(c.get("severity") or "")
+            value, limit = format_compact(c.get("value")), format_compact(c.get("limit"))
+            test = as_mapping(c.get("test"))
+            if test:
+                # A statistical test: name the statistic and give raw (and family) p and α.
+                value = (f"{test.get('statistic')} = {format_compact(test.get('statistic_value'))}"
+                         f"; p = {format_p(test.get('p_value'))}")
+                limit = f"α = {format_compact(test.get('alpha'))}"
+                if test.get("adjusted_p") is not None:
+                    limit += (f"; Holm p = {format_p(test.get('adjusted_p'))} "
+                              f"(family α = {format_compact(test.get('family_alpha'))})")
             rows.append([
                 text_or_dash(c.get("title") or c.get("id")),
-                format_compact(c.get("value")),
-                format_compact(c.get("limit")),
+                value,
+                limit,
                 CHECK_VERDICTS.get(verdict, verdict or MISSING),
                 SEVERITIES.get(severity, severity or MISSING),
                 text_or_dash(c.get("detail")),

@@ -172,7 +172,9 @@ def test_checks_reach_the_json_with_their_ids() -> None:
     # Statistical tests add their named test; method-sd is a figure against a limit.
     assert [set(c) - base for c in entries] == [{"test"}, {"test"}, {"test"}, set()]
     ends = entries[0]["test"]
-    assert ends["statistic"] == "F" and ends["alpha"] == pytest.approx(0.01)
+    # PG = larger/smaller: two-sided, size 2·(1 − 0.99) = 0.02 (closed form).
+    assert ends["statistic"] == "F (PG = larger/smaller variance)"
+    assert ends["alpha"] == pytest.approx(0.02)
     assert ends["critical_value"] == pytest.approx(stats.f.isf(0.01, 2, 2), rel=1e-12)
     assert ends["passes_when"] == "p ≥ α" and ends["adjusted_p"] is None
 

@@ -52,12 +52,18 @@ def ends(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
                f"({test.high:g}, {test.n_high} replicates, s² = {fmt(test.var_high)}): "
                f"PG = {fmt(test.statistic)} against F({test.confidence:g}; {test.df_num}, "
                f"{test.df_den}) = {fmt(test.critical)}")
-    alpha_ends = round(1 - test.confidence, 12)
+    # PG puts the larger variance on top, so either end can make it large: the test is
+    # two-sided and its size is 2·(1 − confidence) (2 % at ISO 8466-1's 0.99), its p-value
+    # twice the upper tail.
+    alpha_ends = round(2 * (1 - test.confidence), 12)
+    p_two = min(1.0, 2 * test.p_value)
+    figures += f" (two-sided: p = {p_two:.3g}, size {alpha_ends:g})"
 
     def result(rule_id: str, sev: Severity, verdict: Verdict, value: float | None,
                limit: float | None, detail: str) -> CheckResult:
-        return with_test(_result(rule_id, sev, verdict, value, limit, detail), statistic="F",
-                         statistic_value=test.statistic, p_value=test.p_value, alpha=alpha_ends,
+        return with_test(_result(rule_id, sev, verdict, value, limit, detail),
+                         statistic="F (PG = larger/smaller variance)",
+                         statistic_value=test.statistic, p_value=p_two, alpha=alpha_ends,
                          critical_value=test.critical)
 
     if test.homogeneous:

@@ -252,10 +252,16 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
 
 
 def _parse_family(table: Any, text: str, origin: str) -> ReviewFamily | None:
+    where = f"{origin}, line {_line_of(text, 'review_family')}"
     try:
-        return parse_review_family(table, f"{origin}, line {_line_of(text, 'review_family')}")
+        family = parse_review_family(table, where)
     except ValueError as exc:
         raise ProfileError(str(exc)) from None
+    unknown = [i for i in (family.leave_out if family else ()) if i not in RULES]
+    if unknown:
+        raise ProfileError(f"{where}: [review_family] leave_out names unknown rule id "
+                           f"{unknown[0]!r}; known: {', '.join(RULES)}")
+    return family
 
 
 def _parse_narrowing(table: Any, text: str, origin: str) -> NarrowingPolicy:

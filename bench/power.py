@@ -25,6 +25,9 @@ Defects (each on its own):
 * ``outlier``: one standard, chosen at random, moved by 8 σ (σ at its level);
 * ``prop-unweighted``: proportional noise fitted unweighted (what a wrong weighting costs).
 
+Each curve also has QC samples in duplicate at 3× the lowest level, mid-range and 80 % of the
+top, read with the same true curve and noise (the bioanalytical profile judges them).
+
 Printed per cell: the share of curves not accepted under the profile (false review on sound
 curves, power on defects) and, for sound curves, the share of curves on which each check
 fails or warns (its false-alarm rate) beside its nominal size where it has one.  Binomial
@@ -59,6 +62,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from calib.checks.evaluate import evaluate_run  # noqa: E402
 from calib.checks.profile import Profile, load_profile  # noqa: E402
+from calib.options import SampleType  # noqa: E402
 from calib.run import Point, Run, SourceInfo  # noqa: E402
 
 SLOPE = 100.0
@@ -116,11 +120,18 @@ def simulate(design: Design, noise: str, defect: str | None, n_curves: int,
     top = float(lv[-1])
     sd = sigma(x, true_noise, top)
     weighting = "1/x2" if noise == "proportional" and defect != "prop-unweighted" else "none"
-    mean = SLOPE * x
-    if defect == "intercept":
-        mean = mean + 3 * intercept_se(x, sd, weighting != "none")
-    elif defect == "curvature":
-        mean = mean * (1 + CURVATURE * x / top)
+    offset = 3 * intercept_se(x, sd, weighting != "none") if defect == "intercept" else 0.0
+
+    def truth(c: np.ndarray) -> np.ndarray:
+        bend = 1 + CURVATURE * c / top if defect == "curvature" else 1.0
+        return SLOPE * c * bend + offset
+
+    mean = truth(x)
+    # QC samples in duplicate at low, mid and high (3× the lowest level, mid-range, 80 % of
+    # the top), read with the same noise: the profiles that judge QCs (ICH M10) need them.
+    qc_x = np.repeat([3 * float(lv[0]), (float(lv[0]) + top) / 2, 0.8 * top], 2)
+    qc_mean = truth(qc_x)
+    qc_sd = sigma(qc_x, true_noise, top)
     points = []
     order = np.arange(1, x.size + 1)
     for k in range(n_curves):
@@ -133,6 +144,9 @@ def simulate(design: Design, noise: str, defect: str | None, n_curves: int,
         name = f"c{k}"
         points += [Point(name, float(xi), float(yi), f"Sim!D{j + 2}", injection_order=int(o))
                    for j, (xi, yi, o) in enumerate(zip(x, y, inj))]
+        qc_y = qc_mean + qc_sd * rng.standard_normal(qc_x.size)
+        points += [Point(name, float(xi), float(yi), f"Sim!D{x.size + j + 2}",
+                         sample_type=SampleType.QC) for j, (xi, yi) in enumerate(zip(qc_x, qc_y))]
     return points, weighting
 
 

@@ -66,10 +66,10 @@ def intercept_zero(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Ch
     lowest = _lowest_response(ctx)
     detect = detectable_t_noncentrality(df, alpha) * se
     share = 100 * detect / abs(lowest) if lowest else math.nan
-    power_words = (f"; with 80 % power this test detects an intercept of ±{fmt(detect)} "
+    power_words = (f" With 80 % power this test detects an intercept of ±{fmt(detect)} "
                    f"(response units)"
                    + (f", {share:.3g} % of the fitted response at the lowest standard"
-                      if math.isfinite(share) else ""))
+                      if math.isfinite(share) else "") + ".")
     figures = (f"intercept {fmt(est)}, t = {t:.3f} on {df} df, |t| against "
                f"t({1 - alpha / 2:g}; {df}) = {crit:.3f}, two-sided p = {pval:.3g}; "
                f"{100 * level:g} % interval {fmt(low)} to {fmt(high)}")
@@ -82,7 +82,7 @@ def intercept_zero(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Ch
 
     if pval >= alpha:
         return done(Verdict.PASS, f"The intercept does not differ significantly from zero "
-                                  f"({figures}){power_words}.")
+                                  f"({figures}).{power_words}")
     significant = f"The intercept differs significantly from zero ({figures})"
     margin = p.get("negligible_pct")
     if margin is not None and math.isfinite(lowest) and lowest != 0:
@@ -92,14 +92,14 @@ def intercept_zero(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Ch
                 f"{significant}, but it is negligible in practice: its whole {100 * level:g} % "
                 f"interval lies within ±{reach:.3g} % of the fitted response at the lowest "
                 f"standard, inside the ±{margin:g} % the profile treats as negligible, so it "
-                f"does not change the verdict{power_words}."))
+                f"does not change the verdict.{power_words}"))
         relevance = (f"; its {100 * level:g} % interval reaches {reach:.3g} % of the fitted "
                      f"response at the lowest standard, beyond the ±{margin:g} % the profile "
                      "treats as negligible")
     else:
         relevance = ""
     return done(Verdict.FAIL, f"{significant}{relevance}. Look for blank contamination, an "
-                              f"interference, or curvature{power_words}.")
+                              f"interference, or curvature.{power_words}")
 
 
 INTERCEPT_RULES: tuple[Rule, ...] = (

@@ -240,7 +240,7 @@ class _Builder:
         stats = self.tables.pairs([
             ("Residual SD σ̂", with_unit(format_number(curve.get("residual_sd"), 5), resp),
              False),
-            ("R²", fixed_digits(curve.get("r_squared")), False),
+            (_r2_label(curve), fixed_digits(curve.get("r_squared")), False),
             ("Correlation r", fixed_digits(curve.get("r")), False),
             ("Points in the fit N", text_or_dash(curve.get("n_points")), False),
             ("Levels", text_or_dash(curve.get("n_levels")), False),
@@ -578,3 +578,12 @@ def build_story(
     sections = story_sections(record, record_id=record_id, digest=digest, template=template,
                               width=width)
     return [flowable for section in sections for flowable in section]
+
+
+def _r2_label(curve: Mapping[str, Any]) -> str:
+    """R² named for what it is: centred or uncentred, weighted or unweighted (issue 15)."""
+    model, weighting = str(curve.get("model") or ""), str(curve.get("weighting") or "none")
+    centred = "uncentred" if model in ("origin", "mean-rf") else "centred"
+    weighted = ("weighted 1/x2" if model == "mean-rf"
+                else "unweighted" if weighting == "none" else f"weighted {weighting}")
+    return f"R² ({centred}, {weighted})"

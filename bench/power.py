@@ -35,8 +35,12 @@ slack: a rate is flagged ``!`` when above nominal + 2.58·√(α(1−α)/n) (one
 
 Run from the repository root::
 
-    python bench/power.py --quick          # a few designs, 200 curves per cell (~1 min)
+    python bench/power.py --quick          # 9–10 designs, 200 curves per cell
     python bench/power.py                  # every design, 400 curves per cell
+    python bench/power.py --profile default --quick --curves 300 --no-defects
+
+The fits are batched; the rules run curve by curve (about 7 ms a curve), so ``--quick`` takes
+a few minutes per profile on an idle core and the full table about half an hour per profile.
     python bench/power.py --profile bioanalytical --curves 1000
 """
 

@@ -11,6 +11,7 @@ import numpy as np
 
 from calib.checks.context import VARIANCE_ONLY, CurveContext, StandardResult
 from calib.checks.exclusions import AppliedExclusion, Exclusion, apply_exclusions
+from calib.checks.family import apply_family
 from calib.checks.history import SlopeHistory
 from calib.checks.narrowing import (
     AppliedRange,
@@ -28,7 +29,12 @@ from calib.checks.rules import RULES
 from calib.errors import NotAcceptedError
 from calib.fit.batch import fit_batch
 from calib.fit.curve import CurveFit, fit_curve
-from calib.fit.design import COEFFICIENTS, model_refuses, weighting_refuses
+from calib.fit.design import (
+    COEFFICIENTS,
+    model_refuses,
+    variance_power_problem,
+    weighting_refuses,
+)
 from calib.fit.limits import DetectionLimit, detection_limits
 from calib.options import Model, SampleType, Weighting, parse_option
 from calib.run import Point, Run
@@ -314,8 +320,8 @@ def _assess(
                fit: CurveFit | None) -> tuple[CheckResult, ...]:
         ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
                            slope_history=slope_history, qcs=tuple(qcs))
-        return tuple(RULES[spec.id].run(ctx, spec.params, spec.severity)
-                     for spec in profile.rules)
+        return tuple(apply_family([RULES[spec.id].run(ctx, spec.params, spec.severity)
+                                   for spec in profile.rules], profile.review_family))
 
     refit = None
     rejecting = next((spec.params for spec in profile.rules if spec.id == "back-calculation"
@@ -367,7 +373,8 @@ def _batched_fits(standards: Mapping[str, Sequence[Point]], *, model: Model,
     for analyte, points in standards.items():
         reasons = _exclusion_reasons(points, model, weighting, profile)
         used = [pt for pt, r in zip(points, reasons) if r is None]
-        if len(used) > p and len({pt.concentration for pt in used}) >= p:
+        if (len(used) > p and len({pt.concentration for pt in used}) >= p
+                and _s2_problem(used, weighting) is None):
             names.append(analyte)
             rows.append(used)
     if len(rows) < 2:
@@ -446,10 +453,21 @@ def _try_fit(points: Sequence[Point], *, model: Model, weighting: Weighting,
                       f"{n_levels} available")
     x = np.array([pt.concentration for pt in points])
     y = np.array([pt.response for pt in points])
+    problem = _s2_problem(points, weighting)
+    if problem is not None:
+        return None, problem
     try:
         return fit_curve(x, y, model=model, weighting=weighting, confidence=confidence), ""
     except ValueError as exc:
         return None, f"the curve could not be fitted: {exc}"
+
+
+def _s2_problem(points: Sequence[Point], weighting: Weighting) -> str | None:
+    """Why ``1/s2`` cannot weight these standards' fit for the checks, or None."""
+    if weighting is not Weighting.INV_S2:
+        return None
+    return variance_power_problem(np.array([pt.concentration for pt in points]),
+                                  np.array([pt.response for pt in points]))
 
 
 def _standard_results(standards: Sequence[Point], levels: Mapping[float, int],

@@ -26,6 +26,7 @@ from importlib import resources
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from calib.checks.family import ReviewFamily, parse_review_family
 from calib.checks.result import Severity
 from calib.checks.rules import RULES
 from calib.errors import ProfileError
@@ -38,7 +39,7 @@ __all__ = ["NarrowingPolicy", "Profile", "RuleSpec", "SignoffPolicy", "load_prof
            "shipped_profiles", "signoff_policy"]
 
 _TOP_KEYS = {"name", "version", "description", "sources", "defaults", "rules", "signoff",
-             "narrowing", "analyte"}
+             "narrowing", "analyte", "review_family"}
 _NARROWING_KEYS = ("propose", "max_dropped_levels")
 _SEVERITY_RANK = {Severity.INFO: 0, Severity.REVIEW: 1, Severity.REJECT: 2}
 _SIGNOFF_KEYS = ("allow_preparer_to_review", "allow_preparer_to_approve",
@@ -150,6 +151,8 @@ class Profile:
     fit_replicates: str = "all"
     #: Per-analyte settings, the ``[[analyte]]`` tables (calib.checks.overrides).
     overrides: tuple[AnalyteOverride, ...] = ()
+    #: The review-level diagnostics judged together (Holm), when the profile declares them.
+    review_family: ReviewFamily | None = None
 
     @property
     def sha256(self) -> str:
@@ -275,6 +278,7 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
         narrowing=_parse_narrowing(data.get("narrowing", {}), text, origin),
         fit_replicates=fit_replicates,
         overrides=_parse_overrides(data.get("analyte", []), specs, text, origin),
+        review_family=_parse_family(data.get("review_family"), text, origin),
     )
 
 
@@ -290,6 +294,19 @@ def _parse_overrides(entries: Any, specs: list[RuleSpec], text: str, origin: str
         return f"{origin}, line {line}"
 
     return parse_overrides(entries, specs, where=where)
+
+
+def _parse_family(table: Any, text: str, origin: str) -> ReviewFamily | None:
+    where = f"{origin}, line {_line_of(text, 'review_family')}"
+    try:
+        family = parse_review_family(table, where)
+    except ValueError as exc:
+        raise ProfileError(str(exc)) from None
+    unknown = [i for i in (family.leave_out if family else ()) if i not in RULES]
+    if unknown:
+        raise ProfileError(f"{where}: [review_family] leave_out names unknown rule id "
+                           f"{unknown[0]!r}; known: {', '.join(RULES)}")
+    return family
 
 
 def _parse_narrowing(table: Any, text: str, origin: str) -> NarrowingPolicy:

@@ -64,6 +64,26 @@ class CheckResult:
         The limit ``value`` is judged against.
     detail : str
         One-line explanation in plain words.
+    statistic : str or None
+        Name of the test statistic for a statistical test (``t``, ``F``, ``G``,
+        ``runs``, ``chi2``...); None for a check against a fixed limit.
+    statistic_value : float or None
+        The statistic's value.
+    p_value : float or None
+        The test's own (raw) p-value, before any family adjustment.
+    alpha : float or None
+        The significance level the check was tested at on its own.
+    critical_value : float or None
+        The statistic's critical value at ``alpha`` where one is defined.
+    passes_when : str
+        Which side passes, in words (``p ≥ α``, ``value ≤ limit``...).
+    adjusted_p : float or None
+        The p-value adjusted within the profile's review family (Holm), when
+        the check belongs to it; the family decision is ``adjusted_p < family_alpha``.
+    family_alpha : float or None
+        The family's level when the check belongs to it.
+    detectable : tuple of (str, float) pairs
+        What the test would detect with 80 % power on this curve (named figures).
     """
 
     id: str
@@ -73,6 +93,15 @@ class CheckResult:
     value: float | None
     limit: float | None
     detail: str
+    statistic: str | None = None
+    statistic_value: float | None = None
+    p_value: float | None = None
+    alpha: float | None = None
+    critical_value: float | None = None
+    passes_when: str = ""
+    adjusted_p: float | None = None
+    family_alpha: float | None = None
+    detectable: tuple[tuple[str, float], ...] = ()
 
     def __post_init__(self) -> None:
         # A NaN never passes: it can only mean the check could not be evaluated.

@@ -19,7 +19,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from calib.fit.design import design_matrix
+from calib.fit.design import design_matrix, variance_function
 from calib.options import Model, Weighting, parse_option
 
 if TYPE_CHECKING:
@@ -202,7 +202,7 @@ def band_figures(fit: CurveFit) -> dict[str, Any]:
     dict
         ``residual_sd``, ``residual_df``, ``weight_function`` (the weighting the
         weights follow), ``weight_scale`` and ``level_variances`` (pairs of
-        concentration and s², for ``1/s2`` only); numbers that are not finite
+        concentration and the fitted variance s²(x), for ``1/s2`` only); numbers that are not finite
         become ``None``.  Pass them to :func:`prediction_band` by keyword
         (all but ``residual_df``).
 
@@ -218,7 +218,8 @@ def band_figures(fit: CurveFit) -> dict[str, Any]:
 
     levels: list[list[float | None]] = []
     if fit.weight_basis is Weighting.INV_S2:
-        concentrations, s2, _ = fit.level_variances
+        # The fitted variance function at each level: the weights the fit used.
+        concentrations, s2, _ = variance_function(fit.x, fit.y)
         levels = [[finite(c), finite(v)] for c, v in zip(concentrations, s2)]
     return {
         "residual_sd": finite(fit.residual_sd),

@@ -17,6 +17,7 @@ from calib.fit.design import (
     design_matrix,
     fit_weights,
     level_variances,
+    variance_function,
     raw_weights,
     weight_basis,
 )
@@ -342,7 +343,7 @@ class CurveFit(Tabular):
     def _level_table(self) -> list[list[float]]:
         if self.weight_basis is not Weighting.INV_S2:
             return []
-        c, s2, _ = self.level_variances
+        c, s2, _ = variance_function(self.x, self.y)
         return np.column_stack([c, s2]).tolist()
 
     @property

@@ -26,7 +26,7 @@ from calib.options import LimitMethod, Model, Weighting, parse_option
 
 __all__ = [
     "DetectionLimit", "Iso11843Limits", "MethodSd", "detection_limits", "ich_limits",
-    "iso11843_limits", "method_sd",
+    "iso11843_limits", "method_sd", "sigma_at",
 ]
 
 _SIGMA_CHOICES = ("residual-sd", "intercept-se")
@@ -55,8 +55,10 @@ def ich_limits(fit: CurveFit, *, sigma: str = "residual-sd") -> tuple[DetectionL
     Notes
     -----
     For the quadratic, S is the slope at concentration 0 (the linear term).
-    For a weighted fit σ̂ belongs to weights scaled to a mean of 1, a variance
-    averaged over the range rather than the one near zero.
+    For a weighted fit σ is the residual SD at the lowest standard,
+    σ̂/√w(x_low), which does not depend on how the weights are scaled (σ̂ alone
+    belongs to weights scaled to a mean of 1 over the standards in the fit, so
+    dropping a level would move it); the method text names the concentration.
 
     References
     ----------
@@ -75,7 +77,15 @@ def ich_limits(fit: CurveFit, *, sigma: str = "residual-sd") -> tuple[DetectionL
     if sigma not in _SIGMA_CHOICES:
         raise ValueError(f"sigma must be one of {', '.join(_SIGMA_CHOICES)}; got {sigma!r}")
     slope = abs(fit.coefficients["slope"])
-    if sigma == "residual-sd":
+    if sigma == "residual-sd" and fit.weight_basis is not Weighting.NONE:
+        # σ̂ of a weighted fit belongs to weights scaled to a mean of 1 over whichever
+        # standards are in the fit; σ̂/√w(x) at a stated concentration does not depend on
+        # that scaling.  Near the limits the lowest standard's σ is the relevant one.
+        low = _lowest(fit)
+        value = sigma_at(fit, low)
+        note = (f"ICH Q2: {{k}}·σ/S, σ = residual SD at the lowest standard (x = {low:g}; "
+                f"σ̂/√w(x), weighting {fit.weight_basis.value}), S = slope")
+    elif sigma == "residual-sd":
         note = "ICH Q2: {k}·σ/S, σ = residual SD, S = slope"
         value = fit.residual_sd
     else:
@@ -251,6 +261,29 @@ class MethodSd:
     relative_pct: float
 
 
+def _lowest(fit: CurveFit) -> float:
+    positive = fit.x[fit.x > 0]
+    return float(positive.min()) if positive.size else float(fit.x.min())
+
+
+def sigma_at(fit: CurveFit, x: float) -> float:
+    """Residual SD of one reading at concentration ``x``: σ̂/√w(x) (σ̂ when unweighted).
+
+    Independent of the scale of the weights: σ̂² scales as the weights' mean does.
+
+    Examples
+    --------
+    >>> from calib.fit.curve import fit_curve
+    >>> fit = fit_curve([1, 2, 4, 8], [1.02, 1.97, 4.1, 7.9], weighting="1/x2")
+    >>> bool(abs(sigma_at(fit, 2.0) / sigma_at(fit, 1.0) - 2.0) < 1e-12)  # σ ∝ x under 1/x²
+    True
+    """
+    if fit.weight_basis is Weighting.NONE:
+        return float(fit.residual_sd)
+    w = float(fit.weight_at(x)[0])
+    return float(fit.residual_sd / math.sqrt(w)) if w > 0 else math.nan
+
+
 def method_sd(fit: CurveFit) -> MethodSd:
     """s_x0 = σ̂/b and V_x0 = 100·s_x0/x̄ of the calibration.
 
@@ -273,9 +306,11 @@ def method_sd(fit: CurveFit) -> MethodSd:
     b = fit.coefficients["slope"]
     if fit.model is Model.QUADRATIC:
         b = b + 2 * fit.coefficients["quadratic"] * xbar
-    value = fit.residual_sd / abs(b) if b else math.nan
+    # Weighted: σ of one reading at the mean concentration x̄, independent of weight scaling.
+    sd = sigma_at(fit, xbar) if xbar > 0 else float(fit.residual_sd)
+    value = sd / abs(b) if b else math.nan
     relative = 100 * value / xbar if xbar else math.nan
-    return MethodSd(fit.residual_sd, b, xbar, value, relative)
+    return MethodSd(sd, b, xbar, value, relative)
 
 
 def detection_limits(

@@ -546,12 +546,16 @@ def runs_test(signs: Sequence[float] | np.ndarray) -> RunsTest:
 
 
 def residual_runs(fit: CurveFit) -> RunsTest:
-    """Runs test on the signs of the residuals ordered by concentration.
+    """Runs test on the signs of the level-mean residuals ordered by concentration.
 
-    Points at the same concentration are taken from the most negative residual
-    to the most positive, so the result does not depend on the order of the rows
-    in the file (replicates at one level have no order along the concentration);
-    residuals that are zero to rounding are dropped (they carry no sign).
+    Replicates at one concentration have no order along it, and any order chosen for
+    them (by residual, as read) changes the count of runs the p-value assumes random:
+    sorted within a level, 10 replicates leave almost no sign changes and a sound curve
+    "fails" nearly always.  So each level contributes one sign, that of its weighted
+    mean residual Σwᵢrᵢ/Σwᵢ, and the runs are counted over the levels; with single
+    standards this is the usual runs test on the residuals.  Level means that are zero
+    to rounding are dropped (they carry no sign).  The test is one-sided: only too few
+    runs (signs clustered along the range, as a bend makes them) count against the curve.
 
     Examples
     --------
@@ -560,13 +564,15 @@ def residual_runs(fit: CurveFit) -> RunsTest:
     >>> residual_runs(fit).runs
     3
     """
-    order = np.lexsort((fit.residuals, fit.x))
-    r = fit.residuals[order]
+    levels, index = np.unique(fit.x, return_inverse=True)
+    w = fit.weights
+    sums = np.bincount(index, weights=w, minlength=levels.size)
+    means = np.bincount(index, weights=w * fit.residuals, minlength=levels.size) / sums
     if _negligible(weighted_ss(fit), fit):
-        return RunsTest(0, 0, 0, int(r.size),
+        return RunsTest(0, 0, 0, int(means.size),
                         "the curve passes through every standard, so the residuals have no sign")
     scale = float(np.max(np.abs(fit.y)))
-    return runs_test(np.where(np.abs(r) <= 1e-12 * scale, 0.0, r))
+    return runs_test(np.where(np.abs(means) <= 1e-12 * scale, 0.0, means))
 
 
 # ---------------------------------------------------------------------------------------------

@@ -147,8 +147,9 @@ def response_basis(curve: CurveAssessment) -> str:
 
 
 def _checks(curve: CurveAssessment) -> list[dict[str, Any]]:
-    return [
-        {
+    out = []
+    for c in curve.checks:
+        entry: dict[str, Any] = {
             "id": c.id,
             "title": c.title,
             "verdict": c.verdict.value,
@@ -157,8 +158,25 @@ def _checks(curve: CurveAssessment) -> list[dict[str, Any]]:
             "limit": finite_or_none(c.limit),
             "detail": c.detail,
         }
-        for c in curve.checks
-    ]
+        if c.statistic is not None:
+            entry["test"] = _test(c)
+        out.append(entry)
+    return out
+
+
+def _test(c: Any) -> dict[str, Any]:
+    """A statistical check's test, named: statistic, raw and family-adjusted p, α, side."""
+    return {
+        "statistic": c.statistic,
+        "statistic_value": finite_or_none(c.statistic_value),
+        "p_value": finite_or_none(c.p_value),
+        "alpha": finite_or_none(c.alpha),
+        "critical_value": finite_or_none(c.critical_value),
+        "passes_when": c.passes_when,
+        "adjusted_p": finite_or_none(c.adjusted_p),
+        "family_alpha": finite_or_none(c.family_alpha),
+        "detectable": {k: finite_or_none(v) for k, v in c.detectable},
+    }
 
 
 def _outcome(curve: CurveAssessment) -> dict[str, Any]:

@@ -58,10 +58,10 @@ from calib.report.wording import (
     as_mapping,
     coefficient_order,
     common_sheet,
+    fixed_digits,
     lod_remark,
     range_sentences,
     shared_reasons,
-    fixed_digits,
     signature_words,
     text_or_dash,
     verdict_sentence,
@@ -243,7 +243,7 @@ class _Builder:
         stats = self.tables.pairs([
             ("Residual SD σ̂", with_unit(format_number(curve.get("residual_sd"), 5), resp),
              False),
-            ("R²", fixed_digits(curve.get("r_squared")), False),
+            (_r2_label(curve), fixed_digits(curve.get("r_squared")), False),
             ("Correlation r", fixed_digits(curve.get("r")), False),
             ("Points in the fit N", text_or_dash(curve.get("n_points")), False),
             ("Levels", text_or_dash(curve.get("n_levels")), False),
@@ -273,10 +273,20 @@ class _Builder:
             if verdict in ("fail", "warn"):
                 bold.append((3, i))
             severity = str(c.get("severity") or "")
+            value, limit = format_compact(c.get("value")), format_compact(c.get("limit"))
+            test = as_mapping(c.get("test"))
+            if test:
+                # A statistical test: name the statistic and give raw (and family) p and α.
+                value = (f"{test.get('statistic')} = {format_compact(test.get('statistic_value'))}"
+                         f"; p = {format_p(test.get('p_value'))}")
+                limit = f"α = {format_compact(test.get('alpha'))}"
+                if test.get("adjusted_p") is not None:
+                    limit += (f"; Holm p = {format_p(test.get('adjusted_p'))} "
+                              f"(family α = {format_compact(test.get('family_alpha'))})")
             rows.append([
                 text_or_dash(c.get("title") or c.get("id")),
-                format_compact(c.get("value")),
-                format_compact(c.get("limit")),
+                value,
+                limit,
                 CHECK_VERDICTS.get(verdict, verdict or MISSING),
                 SEVERITIES.get(severity, severity or MISSING),
                 text_or_dash(c.get("detail")),
@@ -608,3 +618,11 @@ def build_story(
                               width=width)
     return [flowable for section in sections for flowable in section]
 
+
+def _r2_label(curve: Mapping[str, Any]) -> str:
+    """R² named for what it is: centred or uncentred, weighted or unweighted (issue 15)."""
+    model, weighting = str(curve.get("model") or ""), str(curve.get("weighting") or "none")
+    centred = "uncentred" if model in ("origin", "mean-rf") else "centred"
+    weighted = ("weighted 1/x2" if model == "mean-rf"
+                else "unweighted" if weighting == "none" else f"weighted {weighting}")
+    return f"R² ({centred}, {weighted})"

@@ -71,7 +71,8 @@ def _assert_same(a, b, where: str = "") -> None:
     """Equal words and flags; numbers to 1e-12 relative (arrays: relative to their scale)."""
     if where.endswith(".deviation_pct") and a is not None:
         assert abs(a - b) <= DEVIATION_ABS, (where, a, b)
-    elif ".checks[" in where and where.endswith(".value") and isinstance(a, float):
+    elif ".checks[" in where and where.endswith((".value", ".p_value", ".statistic_value",
+                                                  ".adjusted_p")) and isinstance(a, float):
         assert math.isnan(a) and math.isnan(b) or abs(a - b) <= CHECK_REL * abs(b), (where, a, b)
     elif dataclasses.is_dataclass(a) and not isinstance(a, type):
         assert type(a) is type(b), where

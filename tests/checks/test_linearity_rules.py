@@ -54,7 +54,7 @@ def test_load_cell_straight_line_fails_every_shape_check():
     assert by_id["quadratic-term"].verdict is Verdict.FAIL
     assert by_id["quadratic-term"].detail.startswith("Curvature: the quadratic term is significant")
     assert by_id["residual-runs"].verdict is Verdict.FAIL
-    assert "3 runs of residual signs in order of concentration" in by_id["residual-runs"].detail
+    assert "3 runs of the signs of the level-mean residuals in order of concentration" in by_id["residual-runs"].detail
     assert curve.verdict is CurveVerdict.REJECTED
 
 

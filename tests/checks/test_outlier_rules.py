@@ -28,8 +28,15 @@ def test_clean_curve_passes_with_the_figures():
                                         rel=1e-9)
     assert check.limit == pytest.approx(stats.t.isf(0.05 / 72, 33), rel=1e-12)
     assert check.detail.startswith("No standard stands out: largest |studentized residual| ")
-    assert "(Bonferroni, α = 0.05)" in check.detail
-    assert "; no level has 3 or more replicates for Grubbs' test; largest leverage " in check.detail
+    assert "(Bonferroni, α = 0.05, Bonferroni p = " in check.detail
+    assert ("; Grubbs' test not evaluated: no level has 4 or more replicates (with 3, G reaches "
+            "its critical value whenever two replicates nearly agree); largest leverage "
+            in check.detail)
+    # One test decides: its p-value is statsmodels' Bonferroni outlier test on the same fit.
+    bonf = sm.OLS(y, sm.add_constant(x)).fit().outlier_test(method="bonf")
+    assert check.statistic is not None and check.p_value == pytest.approx(
+        float(np.min(np.asarray(bonf)[:, 2])), rel=1e-9)
+    assert check.alpha == 0.05 and check.critical_value == check.limit
     assert ". Largest Cook's distance " in check.detail
     assert curve.verdict is CurveVerdict.ACCEPTED
 
@@ -42,7 +49,7 @@ def test_a_stray_standard_is_named_and_left_in():
     assert check.verdict is Verdict.WARN
     assert check.limit == pytest.approx(stats.t.isf(0.05 / 20, 7), rel=1e-12)
     assert check.detail.startswith("Suggested outlier: Run!C8: studentized residual +")
-    assert f"beyond ±{check.limit:.2f} (Bonferroni, α = 0.05)" in check.detail
+    assert f"beyond ±{check.limit:.2f} (Bonferroni, α = 0.05; Bonferroni p = " in check.detail
     assert check.detail.endswith("calib does not remove points: the analyst decides, and any "
                                  "exclusion needs a reason.")
     assert all(s.used for s in curve.standards)
@@ -58,7 +65,8 @@ def test_grubbs_finds_a_stray_replicate_within_a_level():
     _, check = outliers(make_run(x, y))
     assert check.verdict is Verdict.WARN
     # Four levels share α = 0.05: each is tested at 0.0125.
-    assert "Run!C14: " in check.detail and "at level 3 (α = 0.0125 per level)" in check.detail
+    assert "Run!C14: " in check.detail
+    assert "at level 3 (α = 0.0125 per level; for information)" in check.detail
     g = (y[10:15] - y[10:15].mean()) / y[10:15].std(ddof=1)
     assert f"Grubbs G = {np.max(np.abs(g)):.4f} > " in check.detail
 
@@ -68,8 +76,8 @@ def test_grubbs_alpha_sets_each_level_on_its_own():
     y = 100 * x * (1 + np.tile([0.004, -0.003, 0.002, -0.004, 0.001], 4))
     _, check = outliers(make_run(x, y), extra="grubbs_alpha = 0.05\n")
     assert check.verdict is Verdict.PASS
-    assert "Grubbs' test at 4 levels with 3 or more replicates (α = 0.05 per level) finds no " \
-           "outlier;" in check.detail
+    assert "Grubbs' test, for information, at 4 levels with 4 or more replicates (α = 0.05 per " \
+           "level) finds no outlier;" in check.detail
 
 
 def test_an_influential_standard_is_reported_but_not_called_an_outlier():
@@ -87,20 +95,22 @@ def test_too_few_degrees_of_freedom_is_not_evaluated():
     _, check = outliers(make_run([1, 2, 3], [1.0, 2.1, 2.9]))
     assert check.verdict is Verdict.NOT_EVALUATED
     assert check.detail == ("Studentized residuals not evaluated: studentized residuals need at "
-                            "least 2 residual degrees of freedom; the fit has 1; no level has 3 "
-                            "or more replicates for Grubbs' test.")
+                            "least 2 residual degrees of freedom; the fit has 1; Grubbs' test not "
+                            "evaluated: no level has 4 or more replicates (with 3, G reaches its "
+                            "critical value whenever two replicates nearly agree).")
     _, check = outliers(make_run([1, 1, 1], [1.0, 1.1, 0.9]))
     assert check.detail == "the linear model needs at least 2 concentration levels; 1 available"
 
 
-def test_grubbs_with_three_replicates_explains_its_limit():
+def test_grubbs_with_three_replicates_is_not_evaluated_and_decides_nothing():
     # Two replicates equal, the third apart: with n = 3, G takes its largest value
-    # (n − 1)/√n = 1.1547, above every critical value, so the note says what that means.
+    # (n − 1)/√n = 1.1547, above the critical value 1.1543 at α = 0.05 (Grubbs 1969 tables,
+    # from memory), whatever the third replicate reads — the test is degenerate, so calib
+    # does not run it, and the studentized residual (one test for the curve) decides.
     x = np.repeat([1.0, 2.0, 5.0, 10.0], 3)
     y = 100 * x * (1 + np.tile([0.004, -0.003, 0.001], 4))
     y[6:9] = [500.0, 500.0, 500.9]
-    _, check = outliers(make_run(x, y))
-    assert check.verdict is Verdict.WARN
-    assert "Run!C10: " in check.detail
-    assert "Grubbs G = 1.1547 > 1.1547 at level 3 (α = 0.0125 per level; with 3 replicates this " \
-           "also happens when the other two agree unusually closely)" in check.detail
+    _, check = outliers(make_run(x, y), weighting="1/x2")  # the scatter is proportional
+    assert check.verdict is Verdict.PASS
+    assert "Grubbs' test not evaluated: no level has 4 or more replicates" in check.detail
+    assert "Grubbs G" not in check.detail

@@ -1,7 +1,8 @@
 """The variance rules (variance-ends, variance-levels, weighting-advice) and method-sd as checks.
 
-Figures are checked against scipy on the same replicates (scipy.stats.f, scipy.stats.levene)
-and the ISO 8466-1 critical value F(0.99; 9, 9) ≈ 5.35 (SPEC §10, any F table).
+Figures are checked against scipy on the same replicates (scipy.stats.f, scipy.stats.bartlett,
+scipy.stats.levene), statsmodels' het_breuschpagan for the weighting test, and the ISO 8466-1
+critical value F(0.99; 9, 9) ≈ 5.35 (SPEC §10, any F table).
 """
 
 from __future__ import annotations
@@ -73,14 +74,27 @@ def test_growing_variance_fails_the_ends_and_levels_and_advice_warns() -> None:
     levels = by_id["variance-levels"]
     groups = [y[x == c] for c in np.unique(x)]
     assert levels.verdict is Verdict.FAIL
-    assert levels.value == pytest.approx(stats.levene(*groups, center="median").pvalue, rel=1e-10)
+    bartlett = stats.bartlett(*groups)
+    assert levels.value == pytest.approx(bartlett.pvalue, rel=1e-10)
+    assert levels.p_value == levels.value and levels.statistic == "chi2 (Bartlett T)"
+    assert levels.statistic_value == pytest.approx(bartlett.statistic, rel=1e-10)
+    assert levels.critical_value == pytest.approx(stats.chi2.isf(0.05, 5), rel=1e-12)
     assert levels.limit == 0.05
-    assert f"(Levene, mean-centred: p = {stats.levene(*groups, center='mean').pvalue:.3g})" in (
-        levels.detail)
+    assert (f"(Brown–Forsythe, for information: p = "
+            f"{stats.levene(*groups, center='median').pvalue:.3g})") in levels.detail
     advice = by_id["weighting-advice"]
     assert advice.verdict is Verdict.WARN
-    assert advice.detail.startswith("The fit uses weighting none; the advice is 1/x2 (the fit "
-                                    "is not changed).")
+    assert advice.detail.startswith("The fit uses weighting none; the advice is 1/x2 (Cook–"
+                                    "Weisberg score test of the weighting none")
+    assert advice.detail.endswith("The fit is not changed.")
+    # The score test is statsmodels' original (non-robust) Breusch–Pagan LM on log x.
+    from statsmodels.stats.diagnostic import het_breuschpagan
+
+    lm, lm_p, _, _ = het_breuschpagan(curve.fit.residuals,
+                                      np.column_stack([np.ones_like(x), np.log(x)]),
+                                      robust=False)
+    assert advice.statistic_value == pytest.approx(lm, rel=1e-9)
+    assert advice.p_value == pytest.approx(lm_p, rel=1e-9)
     assert curve.fit.weighting.value == "none"  # advice never changes the fit
     assert curve.verdict is CurveVerdict.NEEDS_REVIEW
 
@@ -97,8 +111,9 @@ def test_weighted_fit_is_judged_on_weighted_variances() -> None:
     assert by_id["variance-levels"].verdict is Verdict.PASS
     advice = by_id["weighting-advice"]
     assert advice.verdict is Verdict.PASS
-    assert advice.detail.startswith("The fit's weighting 1/x2 is the one advised.")
-    assert advice.value is not None and advice.value <= advice.limit
+    assert advice.detail.startswith("The weighting 1/x2 is not contradicted (Cook–Weisberg")
+    assert advice.detail.endswith("): no change advised.")
+    assert advice.value is not None and advice.value >= advice.limit  # p ≥ α passes
 
 
 def test_without_replicates_the_variance_checks_are_not_evaluated() -> None:
@@ -153,8 +168,15 @@ def test_checks_reach_the_json_with_their_ids() -> None:
     entries = check_document(assessment)["curves"][0]["checks"]
     assert [c["id"] for c in entries] == ["variance-ends", "variance-levels", "weighting-advice",
                                           "method-sd"]
-    assert all(set(c) == {"id", "title", "verdict", "severity", "value", "limit", "detail"}
-               for c in entries)
+    base = {"id", "title", "verdict", "severity", "value", "limit", "detail"}
+    # Statistical tests add their named test; method-sd is a figure against a limit.
+    assert [set(c) - base for c in entries] == [{"test"}, {"test"}, {"test"}, set()]
+    ends = entries[0]["test"]
+    # PG = larger/smaller: two-sided, size 2·(1 − 0.99) = 0.02 (closed form).
+    assert ends["statistic"] == "F (PG = larger/smaller variance)"
+    assert ends["alpha"] == pytest.approx(0.02)
+    assert ends["critical_value"] == pytest.approx(stats.f.isf(0.01, 2, 2), rel=1e-12)
+    assert ends["passes_when"] == "p ≥ α" and ends["adjusted_p"] is None
 
 
 def test_rule_parameters_are_validated() -> None:
@@ -165,3 +187,30 @@ def test_rule_parameters_are_validated() -> None:
         parse_profile(bad, origin="lab.toml")
     assert "rule 'variance-ends' parameter 'confidence' must be at most 0.999, got 1.5" in str(
         info.value)
+
+
+def test_bartlett_has_power_at_triplicates_where_brown_forsythe_has_none() -> None:
+    # Six levels × 3 replicates with SDs growing 50-fold (a 2,500-fold variance range):
+    # Bartlett (scipy.stats.bartlett on the same groups) rejects, while the Brown–Forsythe
+    # p-value (scipy.stats.levene, center="median") stays large because one of the three
+    # deviations from each median is always 0.
+    x = np.repeat([1.0, 2, 5, 10, 20, 50], 3)
+    unit = np.tile([-1.0, 0.2, 0.8], 6)
+    y = 2.0 * x + unit * x * 0.05
+    _, by_id = checks(x, y)
+    levels = by_id["variance-levels"]
+    groups = [y[x == c] for c in np.unique(x)]
+    assert levels.verdict is Verdict.FAIL
+    assert levels.p_value == pytest.approx(stats.bartlett(*groups).pvalue, rel=1e-10)
+    assert stats.levene(*groups, center="median").pvalue > 0.05
+
+
+def test_equal_variances_give_a_bartlett_statistic_of_zero() -> None:
+    # Identical replicate patterns at every level: T = 0 exactly (scipy gives ~0 too).
+    x = np.repeat([1.0, 2, 3, 4, 5], 3)
+    y = 2.0 * x + np.tile([-0.1, 0.0, 0.1], 5)
+    _, by_id = checks(x, y)
+    levels = by_id["variance-levels"]
+    assert levels.verdict is Verdict.PASS and levels.statistic_value == 0.0
+    assert levels.p_value == pytest.approx(1.0)
+    assert abs(stats.bartlett(*[y[x == c] for c in np.unique(x)]).statistic) < 1e-9

@@ -3,7 +3,7 @@
 statsmodels: ``WLS(...).fit().get_prediction(exog, weights=w_new).summary_frame(alpha)`` gives
 ``mean_ci_*`` (the confidence band of the mean) and ``obs_ci_*`` (the prediction interval of one
 new reading, variance scale/w_new).  It gets the raw weights and, for the new readings, the raw
-weight at each x: 1/x, 1/x², 1/ŷ(x), 1/ŷ(x)², or 1/s² of the level.  calib's half-widths must
+weight at each x: 1/x, 1/x², 1/ŷ(x), 1/ŷ(x)², or 1/s²(x) of the fitted variance function at the level.  calib's half-widths must
 equal (upper − lower)/2 to 1e-10 relative.
 """
 
@@ -22,6 +22,7 @@ from calib.fit.design import design_matrix
 from calib.options import Model
 from calib.record.record import Record, build_record
 from tests.conftest import make_run
+from tests.fit.variance_fn import smoothed_s2
 
 RTOL = 1e-10
 
@@ -39,7 +40,8 @@ GRID = np.array([1.0, 2.5, 10.0, 42.0, 150.0, 200.0])
 
 
 def level_s2() -> dict[float, float]:
-    return {c: float(np.var(Y_DATA[X_DATA == c], ddof=1)) for c in np.unique(X_DATA)}
+    """The fitted 1/s2 variance function at each level (tests/fit/variance_fn.py)."""
+    return smoothed_s2(X_DATA, Y_DATA)
 
 
 def raw(weighting: str, x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -111,8 +113,12 @@ def test_weight_at_follows_the_fit_scale() -> None:
 def test_bands_from_a_stored_record_match_the_fit() -> None:
     # The record keeps what the prediction band needs; redrawing from the JSON alone (after a
     # round trip through its canonical bytes) gives the same band as the live fit.
+    rng = np.random.default_rng(7)
+    x10 = np.repeat([1.0, 5.0, 10.0, 50.0, 100.0, 200.0], 10)  # 1/s2 needs ~6+ replicates
+    y10 = 1.5 * x10 * (1 + 0.02 * rng.standard_normal(x10.size))
     for weighting in ("none", "1/x2", "1/y", "1/s2"):
-        assessment = evaluate_run(make_run(X_DATA, Y_DATA), weighting=weighting)
+        xs, ys = (x10, y10) if weighting == "1/s2" else (X_DATA, Y_DATA)
+        assessment = evaluate_run(make_run(xs, ys), weighting=weighting)
         fit = assessment.curves[0].fit
         body = Record.from_json(build_record(assessment).canonical).body
         (details,) = body["fit_details"]

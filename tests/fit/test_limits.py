@@ -34,18 +34,22 @@ RAW_WEIGHTS = {"none": np.ones_like(X_DATA), "1/x": 1.0 / X_DATA, "1/x2": 1.0 / 
 @pytest.mark.parametrize("model", ["linear", "origin", "quadratic"])
 def test_ich_limits_against_statsmodels(model: str, weighting: str) -> None:
     # σ and S computed independently from statsmodels' WLS on the same points.  With weights,
-    # σ is the residual SD for weights scaled to a mean of 1 (statsmodels' scale divided by the
-    # mean raw weight), which keeps it in response units; for the quadratic S is the linear
-    # term, the slope at concentration 0.
+    # σ is the SD of one reading at the lowest standard, scale/w_raw(x_low) from statsmodels'
+    # unscaled raw weights, so it does not depend on how calib scales the weights (issue 15);
+    # for the quadratic S is the linear term, the slope at concentration 0.
     X = design_matrix(X_DATA, Model(model))
     w = RAW_WEIGHTS[weighting]
     ref = sm.WLS(Y_DATA, X, weights=w).fit(method="qr")
-    sigma = math.sqrt(ref.scale / w.mean())
+    low = int(np.argmin(X_DATA))
+    sigma = math.sqrt(ref.scale / w[low])
     slope = abs(ref.params[1 if model != "origin" else 0])
     lod, loq = ich_limits(fit_curve(X_DATA, Y_DATA, model=model, weighting=weighting))
     assert lod.value == pytest.approx(3.3 * sigma / slope, rel=1e-10)
     assert loq.value == pytest.approx(10 * sigma / slope, rel=1e-10)
     assert lod.method.startswith("ICH Q2: 3.3·σ/S")
+    if weighting != "none":
+        assert f"σ = residual SD at the lowest standard (x = 0.5; σ̂/√w(x), weighting {weighting})" \
+            in lod.method
     assert loq.method.startswith("ICH Q2: 10·σ/S")
 
 

@@ -1,7 +1,7 @@
 """Weightings 1/y, 1/y2 and 1/s2: statsmodels' WLS with the same raw weights, and the refusals.
 
-statsmodels gets the raw weights (1/yᵢ, 1/yᵢ², 1/s²ⱼ with s²ⱼ numpy's sample variance of the
-level); calib scales them to a mean of 1, which changes only σ̂² (by the mean raw weight).
+statsmodels gets the raw weights (1/yᵢ, 1/yᵢ², 1/s²(xᵢ) with s²(x) the variance function
+fitted to numpy's level variances, tests/fit/variance_fn.py); calib scales them to a mean of 1, which changes only σ̂² (by the mean raw weight).
 Compared with relative tolerance 1e-10: estimates, standard errors, p-values, intervals, R²,
 fitted values and σ̂².
 """
@@ -13,6 +13,7 @@ import re
 import numpy as np
 import pytest
 import statsmodels.api as sm
+from scipy.special import digamma
 
 from calib.checks import evaluate_run
 from calib.fit.curve import fit_curve
@@ -25,6 +26,7 @@ from calib.fit.design import (
 )
 from calib.options import Model, Weighting
 from tests.conftest import make_run
+from tests.fit.variance_fn import smoothed_s2
 
 RTOL = 1e-10
 
@@ -46,7 +48,7 @@ def reference_raw(weighting: str) -> np.ndarray:
         return 1.0 / Y_DATA
     if weighting == "1/y2":
         return 1.0 / Y_DATA**2
-    s2 = {c: np.var(Y_DATA[X_DATA == c], ddof=1) for c in np.unique(X_DATA)}
+    s2 = smoothed_s2(X_DATA, Y_DATA)
     return np.array([1.0 / s2[c] for c in X_DATA])
 
 
@@ -75,9 +77,14 @@ def test_weights_have_mean_one_and_follow_the_definition() -> None:
     for weighting in Weighting:
         w = fit_weights(x, weighting, y=y)
         assert w.mean() == pytest.approx(1.0, rel=1e-14), weighting
-    # 1/s2 by hand: level variances 0.02, 0.08, 0.32 → raw weights 50, 12.5, 3.125.
+    # 1/s2 by hand: level variances 0.02, 0.08, 0.32 = 0.02·x² exactly, so the fitted
+    # variance function follows them, lifted by the log-variance bias of 1 df:
+    # E ln χ²₁ = ψ(1/2) + ln 2 = −1.2703628 (closed form, from memory) → raw weights
+    # 50, 12.5, 3.125 divided by e^1.2703628 = 3.5621448 (ψ(1/2) = −γ − 2 ln 2).
+    bias = float(np.exp(-(digamma(0.5) + np.log(2.0))))
+    assert bias == pytest.approx(np.exp(np.euler_gamma + np.log(2.0)), rel=1e-12)
     np.testing.assert_allclose(raw_weights(x, Weighting.INV_S2, y=y),
-                               [50, 50, 12.5, 12.5, 3.125, 3.125], rtol=1e-12)
+                               np.array([50, 50, 12.5, 12.5, 3.125, 3.125]) / bias, rtol=1e-12)
     levels, s2, n = level_variances(x, y)
     np.testing.assert_allclose(s2, [0.02, 0.08, 0.32], rtol=1e-12)
     assert levels.tolist() == [1.0, 2.0, 4.0] and n.tolist() == [2, 2, 2]
@@ -91,8 +98,8 @@ def test_a_stack_of_curves_gets_one_row_of_weights_each() -> None:
         w = fit_weights(x, weighting, y=y)
         for row in range(2):
             np.testing.assert_allclose(w[row], fit_weights(x[row], weighting, y=y[row]))
-    xs = np.array([[1.0, 1.0, 2.0, 2.0], [1.0, 1.0, 3.0, 3.0]])
-    ys = np.array([[1.0, 1.2, 2.0, 2.4], [1.0, 1.4, 3.0, 3.2]])
+    xs = np.array([[1.0, 1.0, 2.0, 2.0, 4.0, 4.0], [1.0, 1.0, 3.0, 3.0, 5.0, 5.0]])
+    ys = np.array([[1.0, 1.2, 2.0, 2.4, 4.0, 4.3], [1.0, 1.4, 3.0, 3.2, 5.0, 5.5]])
     w = fit_weights(xs, Weighting.INV_S2, y=ys)
     np.testing.assert_allclose(w[1], fit_weights(xs[1], Weighting.INV_S2, y=ys[1]))
 
@@ -143,15 +150,22 @@ def test_evaluate_leaves_out_a_negative_response_under_1_over_y() -> None:
     assert curve.fit.weighting is Weighting.INV_Y
 
 
+def _proportional(levels: list[float], n: int) -> tuple[list[float], list[float]]:
+    """Invented: n replicates per level at ±2 % in a fixed pattern (s ∝ x)."""
+    pattern = np.linspace(-0.02, 0.02, n)
+    xs = [float(v) for v in levels for _ in range(n)]
+    return xs, [v * (1 + d) for v in levels for d in pattern]
+
+
 def test_evaluate_leaves_out_a_level_without_replicates_under_1_over_s2() -> None:
-    xs = [1, 1, 1, 2, 4, 4, 4, 8, 8, 8]
-    ys = [1.02, 0.99, 1.01, 2.0, 4.05, 3.96, 4.01, 8.1, 7.9, 8.02]
+    xs, ys = _proportional([1, 10, 100, 1000], 8)
+    xs, ys = [*xs[:8], 2.0, *xs[8:]], [*ys[:8], 2.0, *ys[8:]]
     curve = evaluate_run(make_run(xs, ys), weighting="1/s2").curves[0]
-    single = curve.standards[3]
+    single = curve.standards[8]
     assert not single.used
     assert single.exclusion_reason == (
         "weighting 1/s2 needs at least 2 replicates at each level; concentration 2 has 1")
-    assert curve.fit is not None and curve.fit.n_points == 9
+    assert curve.fit is not None and curve.fit.n_points == 32
     # The left-out level is still read back from the curve.
     assert single.back_calculated == pytest.approx(2.0, rel=0.05)
 
@@ -159,11 +173,27 @@ def test_evaluate_leaves_out_a_level_without_replicates_under_1_over_s2() -> Non
 def test_1_over_s2_counts_only_replicates_still_in_the_fit() -> None:
     # The analyst excluded one of the two replicates at concentration 4: the other one alone
     # has no variance, so 1/s2 must leave it out too.
-    xs = [1, 1, 2, 2, 4, 4, 8, 8]
-    ys = [1.02, 0.99, 2.03, 1.98, 4.05, 3.96, 8.1, 7.9]
-    run = make_run(xs, ys, excluded={5: "vial cracked"})
+    xs, ys = _proportional([1, 10, 100, 1000], 8)
+    xs, ys = [*xs, 4.0, 4.0], [*ys, 4.05, 3.96]
+    run = make_run(xs, ys, excluded={33: "vial cracked"})
     curve = evaluate_run(run, weighting="1/s2").curves[0]
-    assert curve.standards[5].exclusion_reason == "vial cracked"
-    assert curve.standards[4].exclusion_reason == (
+    assert curve.standards[33].exclusion_reason == "vial cracked"
+    assert curve.standards[32].exclusion_reason == (
         "weighting 1/s2 needs at least 2 replicates at each level; concentration 4 has 1")
-    assert curve.fit.n_points == 6
+    assert curve.fit.n_points == 32
+
+
+def test_1_over_s2_is_refused_when_the_replicates_fix_the_variance_too_loosely() -> None:
+    # Triplicates at 6 levels: Var ln s² = ψ′(1) = π²/6 per level (closed form), so the
+    # power's SE is √(π²/6 / Σ(ln x − mean)²) ≈ 0.32 > 0.2 — weights chosen this loosely
+    # cost the intervals their coverage (tests/fit/test_variance_function.py).
+    xs, ys = _proportional([1, 2, 5, 10, 50, 100], 3)
+    curve = evaluate_run(make_run(xs, ys), weighting="1/s2").curves[0]
+    logs = np.log([1, 2, 5, 10, 50, 100])
+    se = np.sqrt(np.pi**2 / 6 / np.sum((logs - logs.mean()) ** 2))
+    assert curve.fit is None
+    assert curve.unfitted_reason == (
+        "weighting 1/s2 needs the replicate variances to fix the power of the variance "
+        f"function s² = a·x^θ to within a standard error of 0.2; these 6 levels give θ = 2.00 "
+        f"± {se:.2f} (more replicates or a wider range would; or use 1/x or 1/x2, chosen in "
+        "validation)")

@@ -11,6 +11,7 @@ from __future__ import annotations
 from calib.checks.rules.acceptance import ACCEPTANCE_RULES
 from calib.checks.rules.base import Param, Rule
 from calib.checks.rules.basic import BASIC_RULES
+from calib.checks.rules.intercept import INTERCEPT_RULES
 from calib.checks.rules.linearity import LINEARITY_RULES
 from calib.checks.rules.models import MODELS_RULES
 from calib.checks.rules.outliers import OUTLIERS_RULES
@@ -22,7 +23,7 @@ __all__ = ["RULES", "Param", "Rule"]
 
 RULES: dict[str, Rule] = {
     rule.id: rule
-    for group in (BASIC_RULES, STANDARDS_RULES, ACCEPTANCE_RULES, MODELS_RULES, LINEARITY_RULES,
+    for group in (BASIC_RULES, INTERCEPT_RULES, STANDARDS_RULES, ACCEPTANCE_RULES, MODELS_RULES, LINEARITY_RULES,
                   VARIANCE_RULES, OUTLIERS_RULES, QC_RULES)
     for rule in group
 }

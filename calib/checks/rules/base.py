@@ -10,7 +10,7 @@ from typing import Any
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
 
-__all__ = ["Param", "Rule", "as_shown", "fmt", "not_evaluated", "result"]
+__all__ = ["Param", "Rule", "as_shown", "fmt", "not_evaluated", "result", "with_test"]
 
 
 @dataclass(frozen=True)
@@ -103,3 +103,22 @@ def as_shown(value: float, decimals: int) -> float:
     (True, False)
     """
     return float(f"{value:.{decimals}f}") if math.isfinite(value) else value
+
+
+def with_test(check: CheckResult, *, statistic: str, statistic_value: float | None,
+              p_value: float | None, alpha: float | None, critical_value: float | None = None,
+              passes_when: str = "p ≥ α",
+              detectable: tuple[tuple[str, float], ...] = ()) -> CheckResult:
+    """``check`` with its test named: statistic, raw p, α, critical value and passing side.
+
+    Non-finite figures are kept as None so that the JSON never carries NaN.
+    """
+    from dataclasses import replace
+
+    def finite(v: float | None) -> float | None:
+        return None if v is None or not math.isfinite(v) else float(v)
+
+    return replace(check, statistic=statistic, statistic_value=finite(statistic_value),
+                   p_value=finite(p_value), alpha=alpha, critical_value=finite(critical_value),
+                   passes_when=passes_when,
+                   detectable=tuple((k, float(v)) for k, v in detectable if math.isfinite(v)))

@@ -1,4 +1,4 @@
-"""The first rules: number of levels, intercept against zero, the slope against a reference."""
+"""The first rules: number of levels and the slope against a reference (the intercept: intercept.py)."""
 
 from __future__ import annotations
 
@@ -27,35 +27,6 @@ def min_levels(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckR
     verdict = Verdict.PASS if n >= limit else Verdict.FAIL
     detail = f"{n} non-zero concentration level{'s' if n != 1 else ''} in the fit; at least {limit} required"
     return result("min-levels", sev, verdict, float(n), float(limit), detail)
-
-
-def intercept_zero(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
-    """Two-sided t-test of H₀: intercept = 0 on ν = N − p degrees of freedom."""
-    fit = ctx.fit
-    if fit is None:
-        return not_evaluated("intercept-zero", sev, ctx.unfitted_reason)
-    if "intercept" not in fit.coefficients:
-        return not_evaluated("intercept-zero", sev, f"the {fit.model.value} model has no intercept")
-    if fit.exact:
-        return not_evaluated("intercept-zero", sev,
-                             "the curve passes through every standard, so the intercept's "
-                             "standard error is rounding noise and there is nothing to test "
-                             "against")
-    alpha = p["alpha"]
-    pval = fit.p_value("intercept")
-    if not math.isfinite(pval):
-        return not_evaluated("intercept-zero", sev, "the intercept's standard error is not available")
-    level = 1 - alpha
-    low, high = fit.confidence_interval("intercept", level)
-    est = fit.coefficients["intercept"]
-    figures = (f"intercept {fmt(est)}, t = {fit.t_value('intercept'):.3f} on {fit.residual_df} df, "
-               f"p = {pval:.3g}; {100 * level:g} % interval {fmt(low)} to {fmt(high)}")
-    if pval < alpha:
-        detail = (f"The intercept differs significantly from zero ({figures}). Look for blank "
-                  "contamination, an interference, or curvature.")
-        return result("intercept-zero", sev, Verdict.FAIL, pval, alpha, detail)
-    detail = f"The intercept does not differ significantly from zero ({figures})."
-    return result("intercept-zero", sev, Verdict.PASS, pval, alpha, detail)
 
 
 def slope_reference(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
@@ -135,8 +106,6 @@ BASIC_RULES: tuple[Rule, ...] = (
     Rule("min-levels", "Number of concentration levels",
          {"min_levels": Param(int, low=2, default=5),
           "quadratic_min_levels": Param(int, low=3)}, min_levels),
-    Rule("intercept-zero", "Intercept against zero (t-test)",
-         {"alpha": Param(float, low=0, high=0.5, default=0.05, low_open=True)}, intercept_zero),
     Rule("slope-reference", "Slope and its confidence interval",
          {"expected": Param(float, nonzero=True), "tolerance_pct": Param(float, low=0, low_open=True),
           "alpha": Param(float, low=0, high=0.5, default=0.05, low_open=True),

@@ -6,12 +6,14 @@ statistics live there.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping
 from typing import Any
 
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
-from calib.checks.rules.base import Param, Rule, fmt, not_evaluated, result
+from calib.checks.rules.base import Param, Rule, fmt, not_evaluated, result, with_test
+from calib.checks.rules.base import result as _result
 from calib.fit.curve import CurveFit
 from calib.fit.linearity import (
     lack_of_fit,
@@ -20,6 +22,7 @@ from calib.fit.linearity import (
     residual_drift,
     residual_runs,
 )
+from calib.fit.power import detectable_bend_pct, detectable_f_noncentrality
 from calib.options import Model
 
 __all__ = ["LINEARITY_RULES"]
@@ -49,13 +52,30 @@ def lack_of_fit_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
     # degrees of freedom whatever the data, so the F ratio then only indicates.
     caution = (" The weights come from the same replicate variances, so the test is only "
                "indicative." if fit.weighting == "1/s2" else "")
+    crit = test.critical(alpha)
+    bend = math.nan
+    if fit.model is Model.LINEAR:
+        lam = detectable_f_noncentrality(test.df_lack, test.df_pure, alpha)
+        bend = detectable_bend_pct(fit.x, fit.weights, fit.predict(fit.x),
+                                   test.ss_pure / test.df_pure, lam)
+    power_words = f" Critical F({1 - alpha:g}; {test.df_lack}, {test.df_pure}) = {fmt(crit)}."
+    power_words += (f" With 80 % power this test detects a quadratic bend that leaves the "
+                   f"straight line by {bend:.3g} % of the response at the highest standard."
+                   if math.isfinite(bend) else "")
+
+    def done(verdict: Verdict, detail: str) -> CheckResult:
+        return with_test(result("lack-of-fit", sev, verdict, test.f_value, alpha, detail),
+                         statistic="F", statistic_value=test.f_value, p_value=test.p_value,
+                         alpha=alpha, critical_value=crit,
+                         detectable=(("bend_at_top_80pct_power_pct", bend),))
+
     if test.significant(alpha):
-        detail = (f"Significant lack of fit ({figures}; p < {alpha:g}): the {fit.model.value} curve "
-                  f"misses the level means by more than the replicates scatter.{caution}")
-        return result("lack-of-fit", sev, Verdict.FAIL, test.f_value, alpha, detail)
-    detail = (f"No significant lack of fit ({figures}; p ≥ {alpha:g}): the {fit.model.value} "
-              f"curve follows the level means within the replicate scatter.{caution}")
-    return result("lack-of-fit", sev, Verdict.PASS, test.f_value, alpha, detail)
+        return done(Verdict.FAIL, f"Significant lack of fit ({figures}; p < {alpha:g}): the "
+                    f"{fit.model.value} curve misses the level means by more than the "
+                    f"replicates scatter.{caution}{power_words}")
+    return done(Verdict.PASS, f"No significant lack of fit ({figures}; p ≥ {alpha:g}): the "
+                f"{fit.model.value} curve follows the level means within the replicate "
+                f"scatter.{caution}{power_words}")
 
 
 def mandel_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
@@ -75,13 +95,18 @@ def mandel_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Check
     figures = (f"PG = {fmt(test.pg)}, F({confidence:g}; {test.df[0]}, {test.df[1]}) = "
                f"{fmt(crit)}; DS² = {fmt(test.ds2)}, s² of the line {fmt(test.s2_linear)}, "
                f"of the quadratic {fmt(test.s2_quadratic)}{weights}")
+    figures += f", p = {_p(test.p_value)}"
+
+    def done(verdict: Verdict, detail: str) -> CheckResult:
+        return with_test(result("mandel", sev, verdict, test.pg, crit, detail), statistic="F",
+                         statistic_value=test.pg, p_value=test.p_value,
+                         alpha=round(1 - confidence, 12), critical_value=crit)
+
     if test.nonlinear(confidence):
-        detail = (f"The quadratic fits significantly better than the straight line ({figures}): "
-                  "the calibration is not linear over this range.")
-        return result("mandel", sev, Verdict.FAIL, test.pg, crit, detail)
-    detail = (f"The quadratic fits no better than the straight line ({figures}): the linear "
-              "calibration function is adequate.")
-    return result("mandel", sev, Verdict.PASS, test.pg, crit, detail)
+        return done(Verdict.FAIL, f"The quadratic fits significantly better than the straight "
+                    f"line ({figures}): the calibration is not linear over this range.")
+    return done(Verdict.PASS, f"The quadratic fits no better than the straight line "
+                f"({figures}): the linear calibration function is adequate.")
 
 
 def quadratic_term_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
@@ -101,6 +126,18 @@ def quadratic_term_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) 
     figures = (f"c = {fmt(term.estimate)} (SE {fmt(term.std_error)}) in {source}{weights}, "
                f"t = {term.t_value:.3f} on {term.df} df, p = {_p(term.p_value)}")
     significant = term.significant(alpha)
+    from scipy import stats
+
+    crit = float(stats.t.ppf(1 - alpha / 2, term.df)) if term.df > 0 else math.nan
+
+    def result(rule_id: str, sev: Severity, verdict: Verdict, value: float | None,
+               limit: float | None, detail: str) -> CheckResult:
+        # The alarm side: a refitted quadratic warns on a small p; the fitted one on a large p.
+        side = "p ≥ α" if term.refitted else "p < α"
+        return with_test(_result(rule_id, sev, verdict, value, limit, detail), statistic="t",
+                         statistic_value=term.t_value, p_value=term.p_value, alpha=alpha,
+                         critical_value=crit, passes_when=side)
+
     if term.refitted and significant:
         detail = (f"Curvature: the quadratic term is significant ({figures}; p < {alpha:g}), "
                   "so the straight line misses a bend in the response.")
@@ -127,22 +164,26 @@ def runs_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckRe
     if test.reason is not None:
         return not_evaluated("residual-runs", sev, f"Runs test not evaluated: {test.reason}.")
     alpha = p["alpha"]
-    counts = f"{test.n_positive} positive and {test.n_negative} negative residuals"
+    counts = f"{test.n_positive} positive and {test.n_negative} negative level means"
     if test.smallest_p >= alpha:
         return not_evaluated(
             "residual-runs", sev,
             f"Too few residuals for the runs test: with {counts} even the strongest pattern "
             f"(2 runs) has p = {_p(test.smallest_p)} ≥ {alpha:g}.")
-    dropped = f"; {test.n_dropped} zero residual(s) left out" if test.n_dropped else ""
-    figures = (f"{test.runs} runs of residual signs in order of concentration where "
-               f"{test.expected_runs:.1f} are expected for {counts}; {test.method} p = "
-               f"{_p(test.p_value)}{dropped}")
+    dropped = f"; {test.n_dropped} zero level mean(s) left out" if test.n_dropped else ""
+    figures = (f"{test.runs} runs of the signs of the level-mean residuals in order of "
+               f"concentration where {test.expected_runs:.1f} are expected for {counts}; "
+               f"{test.method} one-sided p = P(R ≤ {test.runs}) = {_p(test.p_value)}{dropped}")
+
+    def done(verdict: Verdict, detail: str) -> CheckResult:
+        return with_test(result("residual-runs", sev, verdict, test.p_value, alpha, detail),
+                         statistic="runs", statistic_value=float(test.runs),
+                         p_value=test.p_value, alpha=alpha)
+
     if test.patterned(alpha):
-        detail = (f"The residuals follow a pattern ({figures}; p < {alpha:g}): too few runs point "
-                  "at curvature or a wrong model.")
-        return result("residual-runs", sev, Verdict.FAIL, test.p_value, alpha, detail)
-    detail = f"No pattern in the residual signs ({figures}; p ≥ {alpha:g})."
-    return result("residual-runs", sev, Verdict.PASS, test.p_value, alpha, detail)
+        return done(Verdict.FAIL, f"The residuals follow a pattern ({figures}; p < {alpha:g}): "
+                    "too few runs point at curvature or a wrong model.")
+    return done(Verdict.PASS, f"No pattern in the residual signs ({figures}; p ≥ {alpha:g}).")
 
 
 def drift_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
@@ -169,12 +210,20 @@ def drift_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckR
         caution = (f" The standards were injected nearly in order of concentration "
                    f"(r = {test.order_correlation:.2f}), so a drift would look like curvature "
                    "and can hardly be seen here.")
+    from scipy import stats
+
+    crit = float(stats.t.ppf(1 - alpha / 2, test.df)) if test.df > 0 else math.nan
+
+    def done(verdict: Verdict, detail: str) -> CheckResult:
+        return with_test(result("drift", sev, verdict, test.p_value, alpha, detail),
+                         statistic="t", statistic_value=test.t_value, p_value=test.p_value,
+                         alpha=alpha, critical_value=crit)
+
     if test.drifting(alpha):
-        detail = (f"The residuals trend with injection order ({figures}; p < {alpha:g}): the "
-                  f"response drifted during the run.{caution}")
-        return result("drift", sev, Verdict.FAIL, test.p_value, alpha, detail)
-    detail = f"No trend of the residuals with injection order ({figures}; p ≥ {alpha:g}).{caution}"
-    return result("drift", sev, Verdict.PASS, test.p_value, alpha, detail)
+        return done(Verdict.FAIL, f"The residuals trend with injection order ({figures}; "
+                    f"p < {alpha:g}): the response drifted during the run.{caution}")
+    return done(Verdict.PASS, f"No trend of the residuals with injection order ({figures}; "
+                f"p ≥ {alpha:g}).{caution}")
 
 
 def _alpha_param() -> dict[str, Param]:
@@ -188,7 +237,8 @@ LINEARITY_RULES: tuple[Rule, ...] = (
          {"confidence": Param(float, low=0.5, high=0.9999, default=0.99)}, mandel_rule),
     Rule("quadratic-term", "Significance of a quadratic term (curvature)", _alpha_param(),
          quadratic_term_rule),
-    Rule("residual-runs", "Runs of residual signs along the concentration", _alpha_param(),
+    Rule("residual-runs", "Runs of level-mean residual signs along the concentration (one-sided)",
+         _alpha_param(),
          runs_rule),
     Rule("drift", "Residual trend with injection order (drift)", _alpha_param(), drift_rule),
 )

@@ -58,7 +58,10 @@ def method_sd_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Ch
     if not math.isfinite(m.relative_pct):
         return not_evaluated("method-sd", sev, "the method standard deviation cannot be worked "
                              "out (zero slope or a mean concentration of 0)")
-    figures = (f"Method standard deviation s_x0 = σ̂/b = {fmt(m.residual_sd)}/{fmt(m.sensitivity)} "
+    at = ("" if fit.weight_basis.value == "none" else
+          f" (σ of one reading at the mean concentration, σ̂/√w(x̄), weighting "
+          f"{fit.weight_basis.value})")
+    figures = (f"Method standard deviation s_x0 = σ̂/b{at} = {fmt(m.residual_sd)}/{fmt(m.sensitivity)} "
                f"= {fmt(m.value)}, relative V_x0 = {m.relative_pct:.3g} % of the mean "
                f"concentration {fmt(m.mean_concentration)}")
     limit = p.get("max_relative_pct")

@@ -2,18 +2,21 @@
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
+from scipy import stats
 
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
-from calib.checks.rules.base import Param, Rule, fmt, not_evaluated, result
+from calib.checks.rules.base import Param, Rule, fmt, not_evaluated, result, with_test
+from calib.checks.rules.base import result as _result
 from calib.fit.curve import CurveFit
 from calib.fit.design import fit_weights
-from calib.fit.variance import recommend_weighting, variance_ends, variance_levels
+from calib.fit.homogeneity import bartlett_levels
+from calib.fit.variance import variance_ends, variance_levels
+from calib.fit.weighting_test import VARIANCE_POWER, weighting_test
 from calib.options import Model, Weighting
 
 __all__ = ["VARIANCE_RULES"]
@@ -58,6 +61,20 @@ def ends(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
                f"({test.high:g}, {test.n_high} replicates, s² = {fmt(test.var_high)}): "
                f"PG = {fmt(test.statistic)} against F({test.confidence:g}; {test.df_num}, "
                f"{test.df_den}) = {fmt(test.critical)}")
+    # PG puts the larger variance on top, so either end can make it large: the test is
+    # two-sided and its size is 2·(1 − confidence) (2 % at ISO 8466-1's 0.99), its p-value
+    # twice the upper tail.
+    alpha_ends = round(2 * (1 - test.confidence), 12)
+    p_two = min(1.0, 2 * test.p_value)
+    figures += f" (two-sided: p = {p_two:.3g}, size {alpha_ends:g})"
+
+    def result(rule_id: str, sev: Severity, verdict: Verdict, value: float | None,
+               limit: float | None, detail: str) -> CheckResult:
+        return with_test(_result(rule_id, sev, verdict, value, limit, detail),
+                         statistic="F (PG = larger/smaller variance)",
+                         statistic_value=test.statistic, p_value=p_two, alpha=alpha_ends,
+                         critical_value=test.critical)
+
     if test.homogeneous:
         meaning = ("the variances do not differ significantly, so equal weights suit this range"
                    if weighting is Weighting.NONE else
@@ -74,74 +91,94 @@ def ends(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
 
 
 def levels(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
-    """Brown–Forsythe (median-centred Levene) test across the replicated levels; value = p."""
+    """Bartlett's test across the replicated levels; value = p (see calib.fit.homogeneity)."""
     fit = ctx.fit
     if fit is None:
         return not_evaluated("variance-levels", sev, ctx.unfitted_reason)
     weighting = fit.weight_basis
     weights = None if weighting is Weighting.NONE else fit.weights
-    median = variance_levels(fit.x, fit.y, weights=weights, center="median")
-    if median.reason:
-        return not_evaluated("variance-levels", sev, f"Variance test not made: {median.reason}.")
-    mean = variance_levels(fit.x, fit.y, weights=weights, center="mean")
+    test = bartlett_levels(fit.x, fit.y, weights=weights)
+    if test.reason:
+        return not_evaluated("variance-levels", sev, f"Variance test not made: {test.reason}.")
     alpha = p["alpha"]
-    figures = (f"Brown–Forsythe test of the {_what(fit)} across {len(median.levels)} "
-               f"levels: W = {median.statistic:.3g} on ({median.df_num}, {median.df_den}) df, "
-               f"p = {median.p_value:.3g}")
-    if not mean.reason:
-        figures += f" (Levene, mean-centred: p = {mean.p_value:.3g})"
-    if median.left_out:
-        shown = ", ".join(f"{v:g}" for v in median.left_out)
+    crit = float(stats.chi2.isf(alpha, test.df))
+    figures = (f"Bartlett's test of the {_what(fit)} across {len(test.levels)} levels: "
+               f"T = {test.statistic:.3g} on {test.df} df against χ²({1 - alpha:g}; {test.df}) "
+               f"= {crit:.3g}, p = {test.p_value:.3g}; largest/smallest variance "
+               f"{max(test.variances) / min(test.variances):.3g}")
+    robust = variance_levels(fit.x, fit.y, weights=weights, center="median")
+    if not robust.reason:
+        figures += f" (Brown–Forsythe, for information: p = {robust.p_value:.3g})"
+    if test.left_out:
+        shown = ", ".join(f"{v:g}" for v in test.left_out)
         figures += f"; left out for a single replicate: {shown}"
-    if median.rejects(alpha):
+
+    def done(verdict: Verdict, detail: str) -> CheckResult:
+        return with_test(result("variance-levels", sev, verdict, test.p_value, alpha, detail),
+                         statistic="chi2 (Bartlett T)", statistic_value=test.statistic,
+                         p_value=test.p_value, alpha=alpha, critical_value=crit)
+
+    if test.rejects(alpha):
         meaning = ("the variances differ significantly across the levels: weight the fit "
                    "(see the weighting advice) or narrow the range"
                    if weighting is Weighting.NONE else
                    f"they still differ significantly under the weighting {_name(fit)}")
-        return result("variance-levels", sev, Verdict.FAIL, median.p_value, alpha,
-                      f"{figures}; {meaning}.")
-    return result("variance-levels", sev, Verdict.PASS, median.p_value, alpha,
-                  f"{figures}; the variances do not differ significantly.")
+        return done(Verdict.FAIL, f"{figures}; {meaning}.")
+    smallest = min(len(set(np.flatnonzero(fit.x == v))) for v in test.levels)
+    note = (" With so few replicates only a large difference would show." if smallest <= 3
+            else "")
+    return done(Verdict.PASS, f"{figures}; no significant difference between the variances "
+                f"at α = {alpha:g}.{note}")
 
 
 def advice(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
-    """The weighting recommendation, compared with the fit's weighting; never changes the fit."""
+    """Weighting advice as a score test of the fit's weighting; never changes the fit.
+
+    The fit's weighting is the null hypothesis; the advice differs from it only when the
+    Cook–Weisberg test rejects at ``alpha`` (see :mod:`calib.fit.weighting_test`), so a
+    correct weighting is advised against at most α of the time.  ``slack_pct`` is kept
+    for old profiles and no longer used.
+    """
     fit = ctx.fit
     if fit is None:
         return not_evaluated("weighting-advice", sev, ctx.unfitted_reason)
     if fit.model is Model.MEAN_RF:
         return not_evaluated("weighting-advice", sev, "the mean-rf model averages the response "
                              "factors with equal weight; there is no weighting to choose")
-    candidates = {Weighting.NONE, Weighting.INV_X, Weighting.INV_X2, fit.weighting}
-    try:
-        found = recommend_weighting(fit.x, fit.y, model=fit.model, candidates=candidates,
-                                    alpha=p["alpha"], slack_pct=p["slack_pct"])
-    except ValueError as exc:
-        return not_evaluated("weighting-advice", sev, f"no advice: {exc}")
-    if found.recommended is None:
-        return not_evaluated("weighting-advice", sev, found.explanation)
-    own = found.candidate(fit.weighting)
-    value = own.spread if own.fit is not None else None
-    limit = own.spread_limit if own.fit is not None else None
-    if value is not None and not math.isfinite(value):
-        # Residuals that all vanish leave no spread to compare: nothing to advise on.
-        return not_evaluated("weighting-advice", sev, "the weighted residuals have no spread "
-                             f"to compare ({found.explanation})")
-    if found.recommended is fit.weighting:
-        return result("weighting-advice", sev, Verdict.PASS, value, limit,
-                      f"The fit's weighting {fit.weighting.value} is the one advised. "
-                      f"{found.explanation}")
-    return result("weighting-advice", sev, Verdict.WARN, value, limit,
-                  f"The fit uses weighting {fit.weighting.value}; the advice is "
-                  f"{found.recommended.value} (the fit is not changed). {found.explanation}")
+    test = weighting_test(fit.x, fit.residuals, fit.weights, fit.weighting)
+    if test.reason:
+        return not_evaluated("weighting-advice", sev, f"no advice: {test.reason}")
+    alpha = p["alpha"]
+    crit = float(stats.chi2.isf(alpha, 1))
+    trend = "grows" if test.gamma > 0 else "shrinks"
+    figures = (f"Cook–Weisberg score test of the weighting {fit.weighting.value} against a "
+               f"variance that changes as a power of the concentration: S = "
+               f"{test.statistic:.3g} on 1 df against χ²({1 - alpha:g}; 1) = {crit:.3g}, "
+               f"p = {test.p_value:.3g}; the weighted scatter {trend} as x^{test.gamma:.2g}")
+
+    def done(verdict: Verdict, detail: str) -> CheckResult:
+        return with_test(result("weighting-advice", sev, verdict, test.p_value, alpha, detail),
+                         statistic="chi2 (score S)", statistic_value=test.statistic,
+                         p_value=test.p_value, alpha=alpha, critical_value=crit)
+
+    if not test.rejects(alpha):
+        return done(Verdict.PASS, f"The weighting {fit.weighting.value} is not contradicted "
+                    f"({figures}; p ≥ {alpha:g}): no change advised.")
+    if fit.weighting not in VARIANCE_POWER:
+        return done(Verdict.WARN, f"The weighted residuals still change with concentration "
+                    f"({figures}; p < {alpha:g}): reconsider the weighting (the fit is not "
+                    "changed).")
+    advised = test.advised(alpha)
+    return done(Verdict.WARN, f"The fit uses weighting {fit.weighting.value}; the advice is "
+                f"{advised.value} ({figures}; p < {alpha:g}). The fit is not changed.")
 
 
 VARIANCE_RULES: tuple[Rule, ...] = (
     Rule("variance-ends", "Equal variances at the lowest and highest level (ISO 8466-1)",
          {"confidence": Param(float, low=0.5, high=0.999, default=0.99)}, ends),
-    Rule("variance-levels", "Equal variances across the levels (Brown–Forsythe)",
+    Rule("variance-levels", "Equal variances across the levels (Bartlett)",
          {"alpha": Param(float, low=0, high=0.5, default=0.05, low_open=True)}, levels),
-    Rule("weighting-advice", "Weighting advice",
+    Rule("weighting-advice", "Weighting advice (score test of the weighting)",
          {"alpha": Param(float, low=0, high=0.5, default=0.05, low_open=True),
           "slack_pct": Param(float, low=0, high=100, default=10)}, advice),
 )

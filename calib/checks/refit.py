@@ -102,9 +102,13 @@ class Refit:
         times = "once" if self.rounds == 1 else f"{self.rounds} times"
         text = (f"Standards outside their tolerance were rejected and the curve refitted "
                 f"without them ({times}) before the QCs were read (ICH M10 3.3.2, from memory): "
-                f"{cells}. On the first fit, with them, the curve would have been "
-                f"{self.first_verdict.value}.")
+                f"{cells}. On the first fit, with them, the curve would have "
+                f"{_WOULD[self.first_verdict.value]}.")
         return f"{text} {self.note}" if self.note else text
+
+
+_WOULD = {"accepted": "been accepted", "rejected": "been rejected",
+          "needs-review": "needed review"}
 
 
 def _dev(value: float | None) -> str:

@@ -30,7 +30,7 @@ def test_terminal_text_shows_the_refit_and_the_first_fit():
     text = " ".join(curve_text(assessment.curves[0]).split())
     assert "Refitted: Standards outside their tolerance were rejected and the curve refitted" in text
     assert "Run!D2 (-26.6 %, outside ±20 %)" in text
-    assert "On the first fit, with them, the curve would have been accepted." in text
+    assert "On the first fit, with them, the curve would have needed review." in text
     assert "First fit (16 standards): intercept" in text and f"slope {slope:.6g}" in text
     assert "excluded Run!D2 (1): rejected: read back -26.6 % from nominal" in text
 
@@ -44,4 +44,4 @@ def test_pdf_record_shows_the_refit(tmp_path):
     assert "refitted without them (once) before the QCs were read" in text
     assert "First fit, with every standard (16 in the fit)" in text
     assert "First fit, with every standard (16 in the fit): intercept" in text
-    assert "; verdict on it: Accepted." in text
+    assert "; verdict on it: Needs review." in text

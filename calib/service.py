@@ -44,9 +44,9 @@ if TYPE_CHECKING:
     from calib.report.template import ReportTemplate
 
 __all__ = [
-    "CheckOutcome", "IssueOutcome", "QuantifyOutcome", "SignOutcome", "TrendOutcome", "check",
-    "describe_import", "export", "file", "issue", "quantify", "record_template", "sign", "trend",
-    "verify",
+    "CheckOutcome", "Filed", "Freeze", "IssueOutcome", "QuantifyOutcome", "SignOutcome",
+    "TrendOutcome", "check", "describe_import", "export", "file", "issue", "quantify",
+    "record_template", "sign", "trend", "verify",
 ]
 
 
@@ -102,6 +102,8 @@ class IssueOutcome:
     written: tuple[Path, ...] = ()
     filed: Any = None
     archive: str | None = None
+    logbook: str = ""
+    """The archive's new head, for the lab's logbook ("" when no head receipt is kept)."""
 
 
 @dataclass(frozen=True)
@@ -271,8 +273,11 @@ def issue(
             filed.append(file(archive, record, rendered))
 
     written = write_all(outputs, before_commit=file_it)
-    return IssueOutcome(record, rendered, chosen, tuple(written), filed[0] if filed else None,
-                        os.fspath(archive) if archive is not None else None)
+    if not filed:
+        return IssueOutcome(record, rendered, chosen, tuple(written))
+    done = filed[0]
+    return IssueOutcome(record, rendered, chosen, tuple(written), done.entry, done.location,
+                        done.logbook)
 
 
 def export(outcome: CheckOutcome, *, xlsx: str | os.PathLike[str] | None = None,
@@ -281,12 +286,26 @@ def export(outcome: CheckOutcome, *, xlsx: str | os.PathLike[str] | None = None,
     return tuple(write_all(_export_outputs(outcome.document, xlsx=xlsx, csv=csv)))
 
 
-def file(archive: str | os.PathLike[str], record: Record, pdf: bytes) -> Any:
-    """Append an issued record (JSON and PDF) to the archive; returns its entry."""
+@dataclass(frozen=True)
+class Filed:
+    """An issued record appended to the archive."""
+
+    entry: Any
+    location: str
+    """The archive's location as it may be shown (a database password hidden)."""
+    logbook: str = ""
+    """The archive's new head, for the lab's logbook ("" when no head receipt is kept)."""
+
+
+def file(archive: str | os.PathLike[str], record: Record, pdf: bytes) -> Filed:
+    """Append an issued record (JSON and PDF) to the archive; returns its entry and new head."""
     from calib.archive import Archive
 
     with Archive(os.fspath(archive)) as store:
-        return store.append(record, pdf, kind="issued")
+        entry = store.append(record, pdf, kind="issued")
+        receipt = store.last_receipt
+        return Filed(entry, str(store.location),
+                     f"For the logbook: {receipt.logbook_line()}" if receipt else "")
 
 
 def _as_outcome(outcome: CheckOutcome | RunAssessment) -> CheckOutcome:

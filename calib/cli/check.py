@@ -152,8 +152,8 @@ def run(args: argparse.Namespace) -> int:
     exported = _export_lines(args) if written else []
     filed = None
     if issued is not None and issued.filed is not None:
-        filed = (f"Record {issued.filed.record_id} filed in archive {archive} as entry seq "
-                 f"{issued.filed.seq}")
+        filed = (f"Record {issued.filed.record_id} filed in archive {issued.archive} as entry "
+                 f"seq {issued.filed.seq}" + (f"\n{issued.logbook}" if issued.logbook else ""))
     document = outcome.document
     if args.json:
         # One write: json.dump's many small writes cost seconds on a 500-analyte run.

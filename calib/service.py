@@ -222,6 +222,7 @@ def issue(
     csv: str | os.PathLike[str] | None = None,
     archive: str | os.PathLike[str] | None = None,
     replace: bool = False,
+    key: Any = None,
 ) -> IssueOutcome:
     """Build the record, render its PDF, then write the files and file it: all, or nothing.
 
@@ -245,6 +246,11 @@ def issue(
         Archive to file the issued record in.
     replace : bool
         Replace an existing record PDF or JSON.
+    key : SigningKey, optional
+        The issuing analyst's certified key (:func:`calib.record.keys.load_signing_key`):
+        the record is then signed by its issuer, in its JSON and as the PDF's first
+        digital signature, and its holder is the preparer. Without a key the record
+        is an unsigned draft, and every verification says so.
 
     Raises
     ------
@@ -260,9 +266,17 @@ def issue(
 
     check_outcome = _as_outcome(outcome)
     chosen = resolve_template(template)
-    record = build_issued_record(check_outcome.assessment, prepared_by=prepared_by,
-                                 created_at=created_at, template=chosen)
-    rendered = render_record(record, chosen)
+    record = build_issued_record(
+        check_outcome.assessment, prepared_by=prepared_by or (key.holder if key else None),
+        created_at=created_at, template=chosen)
+    if key is None:
+        rendered = render_record(record, chosen)
+    else:
+        from calib.record.signing import issue_signed
+        from calib.record.signoff import issue_pdf
+
+        record = issue_signed(record, key)
+        rendered = issue_pdf(record, key=key, template=chosen)
     outputs = [Output(Path(p), data, replace) for p, data in
                ((pdf, rendered), (record_json, record.canonical)) if p is not None]
     outputs += _export_outputs(check_outcome.document, xlsx=xlsx, csv=csv)

@@ -80,6 +80,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     add_template_option(parser)
     parser.add_argument("--prepared-by", metavar="NAME",
                         help="printed name of the analyst issuing the record")
+    parser.add_argument("--key", metavar="KEY",
+                        help="sign the issued record with your certified key (from calib keys "
+                             "new; passphrase from CALIB_KEY_PASSPHRASE or a prompt); without "
+                             "it the record is an unsigned draft")
     parser.add_argument("--exclude", action="append", default=[], metavar="CELL=REASON",
                         type=_exclusion,
                         help="leave a point out of the fit, named by its source cell (Run!C7, or "
@@ -124,7 +128,15 @@ def run(args: argparse.Namespace) -> int:
     runs = expand_runs(args.run)
     if runs is None:
         return 2
+    if args.key and not (args.pdf or archive_path(args)):
+        print("calib check: error: --key signs the issued record: give --pdf OUT or --archive DB",
+              file=sys.stderr)
+        return 2
     if len(runs) > 1 or any(Path(r).is_dir() for r in args.run):
+        if args.key:
+            print("calib check: error: --key issues one signed record: check one run file at a "
+                  "time", file=sys.stderr)
+            return 2
         return run_many(args, runs, imap)
     args.run = str(runs[0])
     if args.show_import:
@@ -143,9 +155,15 @@ def run(args: argparse.Namespace) -> int:
     issued = None
     # Everything is computed first and written last, all files or none (calib.service).
     if args.pdf or archive:
+        key = None
+        if args.key:
+            from calib.cli.keys import read_passphrase
+            from calib.record.keys import load_signing_key
+
+            key = load_signing_key(args.key, passphrase=read_passphrase(purpose=f"key {args.key}"))
         issued = service.issue(outcome, prepared_by=args.prepared_by, template=args.template,
                                pdf=args.pdf, xlsx=args.xlsx, csv=args.csv, archive=archive,
-                               replace=args.force)
+                               replace=args.force, key=key)
         written = issued.written
     else:
         written = service.export(outcome, xlsx=args.xlsx, csv=args.csv)

@@ -30,7 +30,7 @@ from starlette.routing import Mount, Route
 from starlette.staticfiles import StaticFiles
 
 from calib.errors import CalibError
-from calib.web import pages
+from calib.web import auth, pages
 from calib.web.archive_pages import (
     archive_chain,
     archive_page,
@@ -160,6 +160,8 @@ async def run_exclude(request: Request) -> Response:
             run.exclusions.remove((target, reason))
             await run_in_threadpool(_assess, run)
         return _run_view(request, run_id, run, error=one_line(str(exc)), status=400)
+    await auth.audit(request, "exclusion", subject=run.name,
+                     detail={"point": target, "reason": reason})
     return RedirectResponse(_back(run_id, back), 303)
 
 
@@ -222,7 +224,8 @@ def _lab_template_label() -> str:
 async def issue_post(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
-    prepared_by = _text(form, "prepared_by")
+    # Signed in: the record is prepared by that person, whatever the form says.
+    prepared_by = auth.acting_name(request) or _text(form, "prepared_by")
     if not prepared_by:
         raise PageError("Type the printed name of the analyst issuing the record.")
     template = _template_path(request, _text(form, "template"))
@@ -242,6 +245,8 @@ async def issue_post(request: Request) -> Response:
                          f"{issued.filed.seq}.")
 
     await run_in_threadpool(issue)
+    await auth.audit(request, "issue", subject=run.issued.record_id,
+                     detail={"file": run.name, "digest": run.issued.digest})
     return RedirectResponse(f"/run/{run_id}/issued", 303)
 
 
@@ -273,7 +278,8 @@ async def issued_pdf(request: Request) -> Response:
 # ---------------------------------------------------------------------- sign and verify
 
 async def sign_page(request: Request) -> Response:
-    return _render(request, "sign.html")
+    signed_in = auth.acting_name(request)
+    return _render(request, "sign_user.html" if signed_in else "sign.html", signer=signed_in)
 
 
 async def sign_post(request: Request) -> Response:
@@ -283,10 +289,13 @@ async def sign_post(request: Request) -> Response:
     role, name = _text(form, "role"), _text(form, "name")
     if role not in ("reviewed", "approved", "rejected"):
         raise PageError("Choose what the signature means: reviewed, approved or rejected.")
+    signer = await auth.signer_for(request, form, role)  # signed in: password again, own key
+    if signer is not None:
+        name = signer.name
     if not name:
         raise PageError("Type the printed name of the signer.")
     meaning = _text(form, "meaning") or None
-    key_file = await _file(form, "key", what="key file", required=False)
+    key_file = None if signer else await _file(form, "key", what="key file", required=False)
     if key_file and not key_upload_allowed(request.url.scheme,
                                            request.client.host if request.client else None):
         # The key and its passphrase would have crossed the network in plain text.
@@ -305,7 +314,7 @@ async def sign_post(request: Request) -> Response:
         from calib import service
         from calib.record.keys import load_signing_key
 
-        key = None
+        key = signer.key if signer else None
         if key_file:
             with private_copy(key_file[0], key_file[1]) as path:
                 key = load_signing_key(path, passphrase=passphrase.encode())
@@ -315,13 +324,16 @@ async def sign_post(request: Request) -> Response:
 
     outcome = await run_in_threadpool(sign)
     record = outcome.record
+    await auth.audit(request, "signature", subject=record.record_id, detail={
+        "meaning": role, "digest": record.digest, "key": bool(signer and signer.key)})
     # Version N holds N signatures (prepared is 1), as calib sign and calib verify count.
     version = len(record.body["signatures"])
     download = _runs(request, create=True).add_download(Download(
         f"{record.record_id}-v{version}.pdf", "application/pdf", outcome.signed.pdf))
     return _render(request, "signed.html", record=record, signature=record.body["signatures"][-1],
                    version=version, download=download, entries=outcome.entries,
-                   keyed=bool(key_file))
+                   keyed=bool(key_file) or bool(signer and signer.key),
+                   no_key=signer.no_key if signer else "")
 
 
 async def verify_page(request: Request) -> Response:
@@ -429,7 +441,9 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
                access_token: str | None = None,
                max_upload: int = DEFAULT_MAX_UPLOAD,
                allowed_hosts: Sequence[str] = (),
-               keyring: str | os.PathLike[str] | None = None) -> Starlette:
+               keyring: str | os.PathLike[str] | None = None,
+               users: bool | None = None, idle_minutes: float = 30,
+               signing_keys: str | os.PathLike[str] | None = None) -> Starlette:
     """The web application behind ``calib serve``.
 
     Parameters
@@ -449,6 +463,14 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         ``127.0.0.1``, ``::1``); a request naming any other host gets 400.
     keyring : path, optional
         The lab's folder of public keys: the Verify pages check key signatures with it.
+    users : bool, optional
+        Require sign-in (:mod:`calib.web.auth`).  Default: when the archive exists
+        and has users.  True needs an archive with at least one user.
+    idle_minutes : float
+        With users: a session unused this long is signed out.
+    signing_keys : path, optional
+        With users: the folder of people's encrypted keys (``NAME.key.json``), each
+        unlocked with the passphrase its holder types when signing.
 
     Examples
     --------
@@ -486,8 +508,12 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         Route("/quantify", _closing(quantify_post), methods=["POST"]),
         Mount("/static", StaticFiles(packages=[("calib.web", "static")]), name="static"),
     ]
+    with_users = auth.server_has_users(archive) if users is None else users
+    if with_users:
+        auth.check_users_setup(archive, idle_minutes)
+        routes[-1:-1] = auth.routes()
     app = Starlette(
-        routes=routes, middleware=[Middleware(Guard)],
+        routes=routes, middleware=[Middleware(Guard), Middleware(auth.SignInGate)],
         exception_handlers={PageError: _page_error, CalibError: _calib_error,
                             HTTPException: _http_error, Exception: _internal_error},
     )
@@ -498,6 +524,9 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
     app.state.keyring = os.fspath(keyring) if keyring is not None else None
     app.state.archive_if_exists = functools.partial(_existing_archive, app.state.archive)
     app.state.access_token = access_token
+    app.state.users = with_users
+    app.state.idle = auth.idle_time(idle_minutes)
+    app.state.signing_keys = os.fspath(signing_keys) if signing_keys is not None else None
     app.state.max_upload = max_upload
     app.state.profiles = tuple(shipped_profiles())
     app.state.report_templates = (

@@ -269,7 +269,7 @@ def _with_key(request: Request, name: str, passphrase: str) -> Signer:
     path = Path(folder) / f"{key_file_stem(name)}{PRIVATE_SUFFIX}" if folder else None
     if path is None or not path.is_file():
         why = ("no keys folder was given to calib serve" if path is None
-               else f"no key for {name} in the server's keys folder")
+               else f"no key for {name} in the keys folder of this server")
         return Signer(name, None, f"printed name only: {why}")
     if not passphrase:
         raise PageError(f"{name} has a key on this server: type its passphrase to sign with "

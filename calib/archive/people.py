@@ -276,42 +276,54 @@ class People:
     def check_password(self, name: str, password: str, *, purpose: str = "sign-in") -> User:
         """The user, when ``password`` is theirs and the account may act; else SignInRefused.
 
-        A failure counts towards the lock-out and is written to the audit trail,
-        whatever the ``purpose`` (signing in, or the password typed again to sign).
+        A failure counts towards the lock-out and is written to the audit trail
+        (committed before it is reported), whatever the ``purpose`` (signing in,
+        or the password typed again to sign).  The slow argon2 check runs outside
+        the archive's write lock, so sign-ins never hold up records being filed.
         """
+        from argon2.exceptions import InvalidHashError, VerificationError
+
         typed = " ".join(str(name).split())
         key = name_key(typed) if typed else ""
+        before = self.storage.query("SELECT password_hash, locked_until FROM users WHERE "
+                                    "name_key = ?", (key,)) if key else []
+        good = False
+        if before and not (before[0][1] is not None
+                           and float(before[0][1]) > self.now().timestamp()):
+            try:
+                good = (len(password) <= _MAX_PASSWORD
+                        and self._hasher.verify(str(before[0][0]), password))
+            except (VerificationError, InvalidHashError):
+                good = False
+        checked = str(before[0][0]) if before else ""
         with self.storage.write():
-            # The failure is committed (counted and in the trail) before it is reported.
-            user, refusal = self._try_password(typed, key, password, purpose)
+            # A password reset between the check and now makes the check void.
+            if good and self.storage.query("SELECT password_hash FROM users WHERE name_key = ?",
+                                           (key,)) != [(checked,)]:
+                good = False
+            user, refusal = self._outcome(typed, key, good, purpose)
         if refusal is not None:
             raise SignInRefused(refusal)
         assert user is not None
         return self._existing(user.name)
 
-    def _try_password(self, typed: str, key: str, password: str,
-                      purpose: str) -> tuple[User | None, str | None]:
-        """(user, None) when the password is right and the account may act, else (_, why)."""
-        from argon2.exceptions import InvalidHashError, VerificationError
-
+    def _outcome(self, typed: str, key: str, good: bool,
+                 purpose: str) -> tuple[User | None, str | None]:
+        """Record the result of a password check under the write lock; (user, why refused)."""
         now = self.now()
-        rows = self.storage.query(f"SELECT {_COLUMNS}, password_hash FROM users WHERE "
-                                  "name_key = ?", (key,)) if key else []
+        rows = self.storage.query(f"SELECT {_COLUMNS} FROM users WHERE name_key = ?",
+                                  (key,)) if key else []
         if not rows:
             append_row(self.storage, "failed sign-in", actor=typed[:200], at=now,
                        detail={"purpose": purpose, "reason": "unknown name"})
             return None, WRONG
-        user, stored = _user(rows[0][:9]), str(rows[0][9])
+        user = _user(rows[0])
         if user.locked_until is not None and user.locked_until > now:
             append_row(self.storage, "failed sign-in", actor=user.name, at=now,
                        detail={"purpose": purpose, "reason": "locked"})
             return user, (f"this account is locked after {MAX_FAILURES} failed sign-ins until "
                           f"{user.locked_until:%Y-%m-%d %H:%M} UTC; try again then, or ask an "
                           "administrator to reset the password")
-        try:
-            good = len(password) <= _MAX_PASSWORD and self._hasher.verify(stored, password)
-        except (VerificationError, InvalidHashError):
-            good = False
         if not good:
             failed = (0 if user.locked_until is not None else user.failed) + 1
             locked = ((now + timedelta(minutes=LOCK_MINUTES)).timestamp()

@@ -107,3 +107,23 @@ def test_audit_verify_reports_an_edited_row(tmp_path, capsys, monkeypatch):
     assert "audit trail NOT intact (1 rows)" in err
     assert "append-only triggers of the audit trail are missing (audit_trail_no_update)" in err
     assert "its content does not match its hash (the row was changed)" in err
+
+
+def test_serve_with_users_refuses_what_cannot_work(tmp_path, capsys, monkeypatch):
+    # Each refusal comes before the server would start (nothing listens).
+    monkeypatch.setenv("CALIB_USER_PASSWORD", PW)
+    empty = str(tmp_path / "empty.sqlite")
+    from calib.archive import Archive
+
+    Archive(empty).close()
+    code, _, err = run(capsys, "serve", "--users", "--archive", empty)
+    assert code == 2 and "the archive has no users yet, so nobody could sign in" in err
+    code, _, err = run(capsys, "serve", "--users")
+    assert code == 2 and "sign-in needs the archive database that holds the users" in err
+    with_users = str(tmp_path / "records.sqlite")
+    run(capsys, "users", "add", "Mira Holt", "--role", "administrator", "--archive", with_users)
+    code, _, err = run(capsys, "serve", "--archive", with_users, "--idle-minutes", "0")
+    assert code == 2 and "idle sign-out must be 1 to 1440 minutes; got 0" in err
+    code, _, err = run(capsys, "serve", "--archive", with_users, "--signing-keys",
+                       str(tmp_path / "none"))
+    assert code == 3 and "--signing-keys" in err and "is not a folder" in err

@@ -44,8 +44,8 @@ def lab(location, tmp_path):  # noqa: F811
     return location, keys
 
 
-def browser(location, keys=None, **options) -> TestClient:
-    app = create_app(archive=location, signing_keys=keys, **options)
+def browser(where, keys=None, **options) -> TestClient:
+    app = create_app(archive=where, signing_keys=keys, **options)
     c = TestClient(app, base_url=LOCAL, client=("127.0.0.1", 50000))
     c.form_token = token_of(c.get("/signin").text)
     return c
@@ -61,8 +61,8 @@ def sign_in(c, name):
     return r
 
 
-def events(location):
-    with Archive(location, create=False) as archive:
+def events(where):
+    with Archive(where, create=False) as archive:
         return [(r.event, r.actor) for r in trail_rows(archive.storage)
                 if r.event != "user added"]
 
@@ -79,7 +79,7 @@ def test_every_page_needs_sign_in(lab):
     c = browser(lab[0])
     r = c.get("/archive?analyte=Fluoride", follow_redirects=False)
     assert r.status_code == 303
-    assert r.headers["location"] == "/signin?next=%2Farchive%3Fanalyte%3DFluoride"
+    assert r.headers["where"] == "/signin?next=%2Farchive%3Fanalyte%3DFluoride"
     r = post(c, "/check", {"profile": "default"})
     assert r.status_code == 401 and error_of(r.text) == (
         "You are not signed in (or were signed out after a time without use), so nothing was "
@@ -87,13 +87,13 @@ def test_every_page_needs_sign_in(lab):
     # Sign-in sends back to the page asked for, never to another site.
     r = post(c, "/signin", {"name": PREPARER, "password": PW[PREPARER],
                             "next": "/archive?analyte=Fluoride"}, follow_redirects=False)
-    assert r.headers["location"] == "/archive?analyte=Fluoride"
+    assert r.headers["where"] == "/archive?analyte=Fluoride"
     cookie = r.cookies[USER_COOKIE]
     assert len(cookie) >= 43 and "httponly" in r.headers["set-cookie"].lower()
     assert "samesite=strict" in r.headers["set-cookie"].lower()
     r = post(c, "/signin", {"name": PREPARER, "password": PW[PREPARER],
                             "next": "//attacker.example/x"}, follow_redirects=False)
-    assert r.headers["location"] == "/"
+    assert r.headers["where"] == "/"
 
 
 def test_wrong_password_and_lock_out(lab):
@@ -144,11 +144,11 @@ def _issue(c) -> tuple[bytes, str]:
 
 
 def test_signing_needs_the_password_again_and_binds_the_signed_in_person(lab):
-    location, keys = lab
-    analyst = browser(location, keys)
+    where, keys = lab
+    analyst = browser(where, keys)
     sign_in(analyst, PREPARER)
     pdf, _ = _issue(analyst)
-    reviewer = browser(location, keys)
+    reviewer = browser(where, keys)
     sign_in(reviewer, REVIEWER)
     page = reviewer.get("/sign").text
     assert f"You sign as <strong>{REVIEWER}</strong>" in page and 'name="name"' not in page
@@ -169,7 +169,7 @@ def test_signing_needs_the_password_again_and_binds_the_signed_in_person(lab):
         f"{REVIEWER} has a key on this server: type its passphrase to sign with it. Nothing "
         "was signed.")
     # Someone with no key on the server signs with the printed name only, and is told so.
-    approver = browser(location, keys)
+    approver = browser(where, keys)
     sign_in(approver, APPROVER)
     r = post(approver, "/sign", {"role": "reviewed", "password": PW[APPROVER]}, record)
     assert r.status_code == 200, error_of(r.text)
@@ -199,19 +199,19 @@ def test_signing_needs_the_password_again_and_binds_the_signed_in_person(lab):
              {"record": ("record-v2.pdf", keyed)})
     assert r.status_code == 400 and "a printed-name-only signature cannot be added" in (
         error_of(r.text))
-    trail = events(location)
+    trail = events(where)
     assert [e for e in trail if e[0] in ("issue", "exclusion", "signature",
                                          "refused signature")] == [
         ("exclusion", PREPARER), ("issue", PREPARER), ("refused signature", REVIEWER),
         ("signature", APPROVER), ("signature", REVIEWER)]
     assert ("failed sign-in", REVIEWER) in trail
-    with Archive(location, create=False) as archive:
+    with Archive(where, create=False) as archive:
         assert verify_trail(archive.storage).ok
 
 
 def test_sign_out_idle_sign_out_and_two_instances_share_sessions(lab):
-    location, _ = lab
-    first, second = browser(location), browser(location)
+    where, _ = lab
+    first, second = browser(where), browser(where)
     sign_in(first, PREPARER)
     # A second calib serve on the same database knows the session (behind one proxy).
     second.cookies.set(USER_COOKIE, first.cookies[USER_COOKIE])
@@ -219,11 +219,11 @@ def test_sign_out_idle_sign_out_and_two_instances_share_sessions(lab):
     post(first, "/signout")
     assert second.get("/", follow_redirects=False).status_code == 303
     sign_in(first, PREPARER)
-    with Archive(location, create=False) as archive:  # 31 minutes pass without use
+    with Archive(where, create=False) as archive:  # 31 minutes pass without use
         archive.storage.execute("UPDATE sessions SET last_seen = ?", (time.time() - 31 * 60,))
     r = first.get("/", follow_redirects=False)
-    assert r.status_code == 303 and r.headers["location"].startswith("/signin")
-    assert events(location)[-4:] == [("sign-in", PREPARER), ("sign-out", PREPARER),
+    assert r.status_code == 303 and r.headers["where"].startswith("/signin")
+    assert events(where)[-4:] == [("sign-in", PREPARER), ("sign-out", PREPARER),
                                      ("sign-in", PREPARER), ("idle sign-out", PREPARER)]
 
 

@@ -79,7 +79,7 @@ def test_every_page_needs_sign_in(lab):
     c = browser(lab[0])
     r = c.get("/archive?analyte=Fluoride", follow_redirects=False)
     assert r.status_code == 303
-    assert r.headers["where"] == "/signin?next=%2Farchive%3Fanalyte%3DFluoride"
+    assert r.headers["location"] == "/signin?next=%2Farchive%3Fanalyte%3DFluoride"
     r = post(c, "/check", {"profile": "default"})
     assert r.status_code == 401 and error_of(r.text) == (
         "You are not signed in (or were signed out after a time without use), so nothing was "
@@ -87,13 +87,13 @@ def test_every_page_needs_sign_in(lab):
     # Sign-in sends back to the page asked for, never to another site.
     r = post(c, "/signin", {"name": PREPARER, "password": PW[PREPARER],
                             "next": "/archive?analyte=Fluoride"}, follow_redirects=False)
-    assert r.headers["where"] == "/archive?analyte=Fluoride"
+    assert r.headers["location"] == "/archive?analyte=Fluoride"
     cookie = r.cookies[USER_COOKIE]
     assert len(cookie) >= 43 and "httponly" in r.headers["set-cookie"].lower()
     assert "samesite=strict" in r.headers["set-cookie"].lower()
     r = post(c, "/signin", {"name": PREPARER, "password": PW[PREPARER],
                             "next": "//attacker.example/x"}, follow_redirects=False)
-    assert r.headers["where"] == "/"
+    assert r.headers["location"] == "/"
 
 
 def test_wrong_password_and_lock_out(lab):
@@ -222,7 +222,7 @@ def test_sign_out_idle_sign_out_and_two_instances_share_sessions(lab):
     with Archive(where, create=False) as archive:  # 31 minutes pass without use
         archive.storage.execute("UPDATE sessions SET last_seen = ?", (time.time() - 31 * 60,))
     r = first.get("/", follow_redirects=False)
-    assert r.status_code == 303 and r.headers["where"].startswith("/signin")
+    assert r.status_code == 303 and r.headers["location"].startswith("/signin")
     assert events(where)[-4:] == [("sign-in", PREPARER), ("sign-out", PREPARER),
                                      ("sign-in", PREPARER), ("idle sign-out", PREPARER)]
 

@@ -104,6 +104,9 @@ def _now() -> str:
     return datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
+_FORMAT_3_NOTE = "migrated from format 2: users, sessions and the audit trail added"
+
+
 def _new_archive_rows() -> list[tuple[str, ...]]:
     return [("archive_id", "AR-" + secrets.token_hex(8).upper())]
 
@@ -158,7 +161,7 @@ class SqliteStorage:
                     if self._conn.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]:
                         raise ArchiveError(
                             f"{self.path}: an SQLite database that is not a calib archive")
-                    for statement in schema.sqlite_schema():
+                    for statement in schema.sqlite_schema() + schema.people_schema("sqlite"):
                         self._conn.execute(statement)
                     self._conn.executemany("INSERT INTO archive_meta VALUES (?, ?)",
                                            _new_archive_rows())
@@ -174,6 +177,8 @@ class SqliteStorage:
                                f"calib (this one reads format {schema.SCHEMA_VERSION})")
         if version == 1:
             self._migrate_from_1()
+        if self._pragma("user_version") == 2:
+            self._migrate_from_2()
 
     def _migrate_from_1(self) -> None:
         """Format 1 → 2 in one transaction (readers included: old files just work)."""
@@ -197,6 +202,17 @@ class SqliteStorage:
             self._conn.execute("INSERT INTO schema_version VALUES (?, ?, ?)",
                                (2, _now(), "migrated from format 1: blobs apart, pdf_sha256"))
             self._conn.execute("PRAGMA user_version = 2")
+
+    def _migrate_from_2(self) -> None:
+        """Format 2 → 3: the people tables are added; nothing else changes."""
+        with self.write():
+            if self._pragma("user_version") != 2:
+                return
+            for statement in schema.people_schema("sqlite"):
+                self._conn.execute(statement)
+            self._conn.execute("INSERT INTO schema_version VALUES (?, ?, ?)",
+                               (3, _now(), _FORMAT_3_NOTE))
+            self._conn.execute("PRAGMA user_version = 3")
 
     def query(self, sql: str, params: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
         return self._conn.execute(sql, params).fetchall()
@@ -298,7 +314,8 @@ class PostgresStorage:
                     if self._has_table("entries"):
                         raise ArchiveError(f"{self.location}: a database with an entries "
                                            "table that is not a calib archive")
-                    for statement in schema.postgres_schema():
+                    for statement in (schema.postgres_schema()
+                                      + schema.people_schema("postgresql")):
                         self._conn.execute(statement)
                     self.executemany("INSERT INTO archive_meta VALUES (?, ?)",
                                      _new_archive_rows())
@@ -308,6 +325,14 @@ class PostgresStorage:
         if version > schema.SCHEMA_VERSION:
             raise ArchiveError(f"{self.location}: archive format {version} was written by a "
                                f"newer calib (this one reads format {schema.SCHEMA_VERSION})")
+        if version == 2:
+            with self.write():
+                if max(self.schema_versions()) == 2:
+                    for statement in schema.people_schema("postgresql"):
+                        self._conn.execute(statement)
+                    self.execute("INSERT INTO schema_version VALUES (?, ?, ?)",
+                                 (3, _now(), _FORMAT_3_NOTE))
+            version = 3
         if version < schema.SCHEMA_VERSION:
             raise ArchiveError(f"{self.location}: archive format {version} is not known")
 

@@ -18,6 +18,17 @@ Append-only on both engines
     account may) with ``SELECT`` and ``INSERT`` only: give the lab's analyst
     accounts that role, never table ownership.
 
+Format 3: people, sessions and the audit trail
+    ``users`` (one row per person: printed name, roles, argon2id password hash,
+    disabled flag, failed sign-ins, lock-out end), ``sessions`` (sign-in
+    sessions, kept by the SHA-256 of their random id, so several ``calib serve``
+    instances serve the same signed-in people) and ``audit_trail`` (who did
+    what and when, each row hashing the one before it, append-only like the
+    entries).  Users and sessions change (a password is reset, a session ends),
+    so only the audit trail is protected by triggers; every change to a user is
+    in the trail.  :func:`people_schema` makes them; an archive of format 2 gets
+    them when it is next opened.  The record chain is not touched.
+
 Format 1 (calib 0.1.0, SQLite only)
     JSON and PDF in ``entries``, the format in ``PRAGMA user_version``.
     :func:`migrate_sqlite_1_to_2` moves it to format 2 in one transaction; the
@@ -36,13 +47,15 @@ __all__ = [
     "SCHEMA_VERSION",
     "SQLITE_TRIGGERS",
     "POSTGRES_TRIGGERS",
+    "TRAIL_TRIGGERS",
     "WRITER_ROLE",
     "migrate_sqlite_1_to_2",
+    "people_schema",
     "postgres_schema",
     "sqlite_schema",
 ]
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 APPLICATION_ID = 0x43414C42  # "CALB": marks an SQLite file as a calib archive
 WRITER_ROLE = "calib_archive_writer"
 PROTECTED = ("entries", "entry_data", "curves", "archive_meta")
@@ -199,6 +212,94 @@ def postgres_schema() -> tuple[str, ...]:
         RAISE NOTICE 'calib: role {WRITER_ROLE} not created (no CREATEROLE privilege)';
     END $$"""
     return tables + _INDEXES + functions + tuple(triggers) + (role,)
+
+
+_PEOPLE = (
+    """CREATE TABLE users (
+        name_key TEXT PRIMARY KEY,
+        name TEXT NOT NULL,
+        roles TEXT NOT NULL,
+        password_hash TEXT NOT NULL,
+        disabled INTEGER NOT NULL,
+        failed INTEGER NOT NULL,
+        locked_until {real},
+        created_at TEXT NOT NULL,
+        changed_at TEXT NOT NULL
+    )""",
+    """CREATE TABLE sessions (
+        token_hash TEXT PRIMARY KEY,
+        name_key TEXT NOT NULL REFERENCES users (name_key),
+        created_at {real} NOT NULL,
+        last_seen {real} NOT NULL,
+        ended_at {real}
+    )""",
+    "CREATE INDEX sessions_user ON sessions (name_key)",
+    """CREATE TABLE audit_trail (
+        seq {int} PRIMARY KEY,
+        at TEXT NOT NULL,
+        event TEXT NOT NULL,
+        actor TEXT NOT NULL,
+        subject TEXT NOT NULL,
+        detail TEXT NOT NULL,
+        prev_hash TEXT NOT NULL,
+        row_hash TEXT NOT NULL UNIQUE
+    )""",
+)
+_TRAIL_HEAD = "calib audit trail: a new row must extend the trail head"
+_TRAIL_REFUSED = "calib audit trail is append-only: a row cannot be {what}"
+TRAIL_TRIGGERS = ("audit_trail_no_update", "audit_trail_no_delete", "audit_trail_extend_head")
+
+
+def people_schema(engine: str) -> tuple[str, ...]:
+    """Statements adding format 3's users, sessions and audit trail (``sqlite``/``postgresql``).
+
+    Examples
+    --------
+    >>> [s.split("(")[0].strip() for s in people_schema("sqlite")][:3]
+    ['CREATE TABLE users', 'CREATE TABLE sessions', 'CREATE INDEX sessions_user ON sessions']
+    """
+    if engine == "sqlite":
+        tables = tuple(t.format(int="INTEGER", real="REAL") for t in _PEOPLE)
+        return tables + (
+            "CREATE TRIGGER audit_trail_no_update BEFORE UPDATE ON audit_trail BEGIN SELECT "
+            f"RAISE(ABORT, '{_TRAIL_REFUSED.format(what='changed')}'); END",
+            "CREATE TRIGGER audit_trail_no_delete BEFORE DELETE ON audit_trail BEGIN SELECT "
+            f"RAISE(ABORT, '{_TRAIL_REFUSED.format(what='deleted')}'); END",
+            f"""CREATE TRIGGER audit_trail_extend_head BEFORE INSERT ON audit_trail
+               WHEN NEW.seq IS NOT (SELECT coalesce(max(seq), 0) + 1 FROM audit_trail)
+                 OR NEW.prev_hash IS NOT coalesce((SELECT row_hash FROM audit_trail
+                    ORDER BY seq DESC LIMIT 1), '{GENESIS_HASH}')
+               BEGIN SELECT RAISE(ABORT, '{_TRAIL_HEAD}'); END""",
+        )
+    if engine != "postgresql":
+        raise ValueError(f"engine must be sqlite or postgresql; got {engine!r}")
+    tables = tuple(t.format(int="BIGINT", real="DOUBLE PRECISION") for t in _PEOPLE)
+    return tables + (
+        f"""CREATE FUNCTION calib_trail_head() RETURNS trigger LANGUAGE plpgsql AS $$
+           BEGIN
+             IF NEW.seq IS DISTINCT FROM (SELECT coalesce(max(seq), 0) + 1 FROM audit_trail)
+                OR NEW.prev_hash IS DISTINCT FROM coalesce((SELECT row_hash FROM audit_trail
+                   ORDER BY seq DESC LIMIT 1), '{GENESIS_HASH}')
+             THEN RAISE EXCEPTION '{_TRAIL_HEAD}'; END IF;
+             RETURN NEW;
+           END $$""",
+        "CREATE TRIGGER audit_trail_no_update BEFORE UPDATE ON audit_trail FOR EACH ROW "
+        f"EXECUTE FUNCTION calib_refuse('{_TRAIL_REFUSED.format(what='changed')}')",
+        "CREATE TRIGGER audit_trail_no_delete BEFORE DELETE ON audit_trail FOR EACH ROW "
+        f"EXECUTE FUNCTION calib_refuse('{_TRAIL_REFUSED.format(what='deleted')}')",
+        "CREATE TRIGGER audit_trail_no_truncate BEFORE TRUNCATE ON audit_trail FOR EACH "
+        f"STATEMENT EXECUTE FUNCTION calib_refuse('{_TRAIL_REFUSED.format(what='emptied')}')",
+        "CREATE TRIGGER audit_trail_extend_head BEFORE INSERT ON audit_trail FOR EACH ROW "
+        "EXECUTE FUNCTION calib_trail_head()",
+        # Users and sessions change; the trail only grows (as for the entries).
+        f"""DO $$ BEGIN
+            GRANT SELECT, INSERT, UPDATE ON users TO {WRITER_ROLE};
+            GRANT SELECT, INSERT, UPDATE, DELETE ON sessions TO {WRITER_ROLE};
+            GRANT SELECT, INSERT ON audit_trail TO {WRITER_ROLE};
+        EXCEPTION WHEN undefined_object OR insufficient_privilege THEN
+            RAISE NOTICE 'calib: role {WRITER_ROLE} not granted the people tables';
+        END $$""",
+    )
 
 
 def _sha256(data: bytes | None) -> str:

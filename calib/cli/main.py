@@ -24,6 +24,7 @@ from calib.cli import (
     serve,
     sign,
     trend,
+    users,
     verify,
 )
 
@@ -46,6 +47,7 @@ examples:
   calib trend Nitrate-N --pdf trend.pdf        slope, intercept and residual SD over time
   calib serve --archive records.sqlite         the same in a browser, on this computer
   calib lab init --template our-lab.toml       once: the lab's letterhead on every record
+  calib users add "Mira Holt" --role administrator --archive records.sqlite   a shared server
 
 exit codes:
 """ + "\n".join(f"  {code}  {meaning}" for code, meaning in exits.TABLE) + "\n"
@@ -60,7 +62,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
     for module in (check, quantify, demo, profiles, sign, verify, keys, archive, trend, serve,
-                   lab):
+                   lab, users):
         module.add_parser(sub)
     return parser
 

@@ -18,13 +18,18 @@ examples:
   calib serve --archive records.sqlite --keyring lab-keyring/   Verify page checks lab keys
   calib serve --host 0.0.0.0 --allow-host labpc.fernbrook.example \
       --tls-cert labpc.crt --tls-key labpc.key     other computers too, over HTTPS
+  calib serve --archive postgresql://calib@lab-db/records --users --signing-keys keys/ \
+      --host 0.0.0.0 --allow-host calib.fernbrook.example --tls-cert s.crt --tls-key s.key
+                                               the lab's shared server: everyone signs in
 
 The server listens on 127.0.0.1 unless --host says otherwise.  On any other interface it
 needs HTTPS (--tls-cert and --tls-key), or --insecure-http to accept plain HTTP on a network
 you trust (a private key is then never accepted from another computer); every browser must
 present the access token printed at start.  The server answers only to the loopback names
 and those given with --allow-host (a request naming another host gets 400: this stops
-DNS-rebinding attacks).  Stop it with Ctrl+C.
+DNS-rebinding attacks).  When the archive has users (calib users add), every page needs
+sign-in instead of the access token, each action needs its role, and signing asks for the
+password again.  Stop it with Ctrl+C.
 """
 
 
@@ -55,6 +60,13 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--insecure-http", action="store_true",
                         help="allow plain HTTP beyond this computer (not recommended: forms "
                              "and records cross the network unencrypted)")
+    parser.add_argument("--users", action="store_true",
+                        help="require sign-in (the default whenever the archive has users)")
+    parser.add_argument("--idle-minutes", type=float, default=30, metavar="N",
+                        help="with users: sign out a session unused for N minutes (default 30)")
+    parser.add_argument("--signing-keys", metavar="DIR",
+                        help="with users: folder of people's encrypted keys (NAME.key.json), "
+                             "each unlocked by the passphrase its holder types when signing")
     parser.add_argument("--open", action="store_true", help="open the page in a browser")
     add_debug(parser)
     parser.set_defaults(handler=run)
@@ -124,15 +136,34 @@ def run(args: argparse.Namespace) -> int:
     allowed = list(args.allow_host)
     if not loopback and args.host not in WILDCARDS:
         allowed.append(args.host)  # the name it listens on is one browsers may use
-    token = None if loopback else new_token()
-    app = create_app(archive=archive_path(args), templates=args.templates, access_token=token,
-                     allowed_hosts=allowed, keyring=args.keyring)
+    if args.signing_keys and not os.path.isdir(args.signing_keys):
+        print(f"calib serve: error: --signing-keys {args.signing_keys} is not a folder",
+              file=sys.stderr)
+        return 3
+    from calib.web.auth import server_has_users
+
+    users = True if args.users else server_has_users(archive_path(args))
+    # With users, signing in replaces the access token (one token per instance would stop
+    # several instances behind one proxy from serving the same people).
+    token = None if loopback or users else new_token()
+    try:
+        app = create_app(archive=archive_path(args), templates=args.templates,
+                         access_token=token, allowed_hosts=allowed, keyring=args.keyring,
+                         users=users, idle_minutes=args.idle_minutes,
+                         signing_keys=args.signing_keys)
+    except ValueError as exc:
+        print(f"calib serve: error: {exc}", file=sys.stderr)
+        return 2
     url = server_url(args.host, args.port, token, tls=tls)
     print(f"calib: serving on {url}", flush=True)
     if token:
         print("calib: listening beyond this computer; every browser needs the access token "
               f"above ({token})", flush=True)
     print(f"calib: {blas}", flush=True)
+    if users:
+        print("calib: every page needs sign-in (users of the archive); the lab's computerised-"
+              "system validation (21 CFR 11, EU GMP Annex 11, GAMP 5) remains the lab's "
+              "responsibility", flush=True)
     print("calib: press Ctrl+C to stop", flush=True)
     if args.open:
         import webbrowser

@@ -30,7 +30,7 @@ from starlette.routing import Mount, Route
 from starlette.staticfiles import StaticFiles
 
 from calib.errors import CalibError
-from calib.web import pages
+from calib.web import auth, pages
 from calib.web.archive_pages import (
     archive_chain,
     archive_page,
@@ -164,6 +164,8 @@ async def run_exclude(request: Request) -> Response:
             run.exclusions.remove((target, reason))
             await run_in_threadpool(_assess, run)
         return _review_view(request, run_id, run, place, error=one_line(str(exc)))
+    await auth.audit(request, "exclusion", subject=run.name,
+                     detail={"point": target, "reason": reason})
     return RedirectResponse(_back(run_id, run, place), 303)
 
 
@@ -250,7 +252,8 @@ def _lab_template_label() -> str:
 async def issue_post(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
-    prepared_by = _text(form, "prepared_by")
+    # Signed in: the record is prepared by that person, whatever the form says.
+    prepared_by = auth.acting_name(request) or _text(form, "prepared_by")
     if not prepared_by:
         raise PageError("Type the printed name of the analyst issuing the record.")
     template = _template_path(request, _text(form, "template"))
@@ -270,6 +273,8 @@ async def issue_post(request: Request) -> Response:
                          f"{issued.filed.seq}.")
 
     await run_in_threadpool(issue)
+    await auth.audit(request, "issue", subject=run.issued.record_id,
+                     detail={"file": run.name, "digest": run.issued.digest})
     return RedirectResponse(f"/run/{run_id}/issued", 303)
 
 
@@ -303,7 +308,8 @@ async def issued_pdf(request: Request) -> Response:
 # ---------------------------------------------------------------------- sign and verify
 
 async def sign_page(request: Request) -> Response:
-    return _render(request, "sign.html")
+    signed_in = auth.acting_name(request)
+    return _render(request, "sign_user.html" if signed_in else "sign.html", signer=signed_in)
 
 
 async def sign_post(request: Request) -> Response:
@@ -350,10 +356,13 @@ async def _sign(request: Request, form: FormData, upload: tuple[str, bytes], *,
     role, name = _text(form, "role"), _text(form, "name")
     if role not in ("reviewed", "approved", "rejected"):
         raise PageError("Choose what the signature means: reviewed, approved or rejected.")
+    signer = await auth.signer_for(request, form, role)  # signed in: password again, own key
+    if signer is not None:
+        name = signer.name
     if not name:
         raise PageError("Type the printed name of the signer.")
     meaning = _text(form, "meaning") or None
-    key_file = await _file(form, "key", what="key file", required=False)
+    key_file = None if signer else await _file(form, "key", what="key file", required=False)
     if key_file and not key_upload_allowed(request.url.scheme,
                                            request.client.host if request.client else None):
         # The key and its passphrase would have crossed the network in plain text.
@@ -371,7 +380,7 @@ async def _sign(request: Request, form: FormData, upload: tuple[str, bytes], *,
         from calib import service
         from calib.record.keys import load_signing_key
 
-        key = None
+        key = signer.key if signer else None
         if key_file:
             with private_copy(key_file[0], key_file[1]) as path:
                 key = load_signing_key(path, passphrase=passphrase.encode())
@@ -380,7 +389,11 @@ async def _sign(request: Request, form: FormData, upload: tuple[str, bytes], *,
                                 archive=request.app.state.archive if file_it else None)
 
     outcome = await run_in_threadpool(sign)
-    request.state.keyed = bool(key_file)
+    record = outcome.record
+    await auth.audit(request, "signature", subject=record.record_id, detail={
+        "meaning": role, "digest": record.digest, "key": bool(signer and signer.key)})
+    request.state.keyed = bool(key_file) or bool(signer and signer.key)
+    request.state.no_key = signer.no_key if signer else ""
     return outcome
 
 
@@ -392,7 +405,8 @@ def _signed_view(request: Request, outcome: Any, *, back: tuple[str, str] | None
         f"{record.record_id}-v{version}.pdf", "application/pdf", outcome.signed.pdf))
     return _render(request, "signed.html", record=record, signature=record.body["signatures"][-1],
                    version=version, download=download, entries=outcome.entries,
-                   keyed=bool(getattr(request.state, "keyed", False)), back=back)
+                   keyed=bool(getattr(request.state, "keyed", False)),
+                   no_key=getattr(request.state, "no_key", ""), back=back)
 
 
 async def verify_page(request: Request) -> Response:
@@ -510,7 +524,9 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
                access_token: str | None = None,
                max_upload: int = DEFAULT_MAX_UPLOAD,
                allowed_hosts: Sequence[str] = (),
-               keyring: str | os.PathLike[str] | None = None) -> Starlette:
+               keyring: str | os.PathLike[str] | None = None,
+               users: bool | None = None, idle_minutes: float = 30,
+               signing_keys: str | os.PathLike[str] | None = None) -> Starlette:
     """The web application behind ``calib serve``.
 
     Parameters
@@ -530,6 +546,14 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         ``127.0.0.1``, ``::1``); a request naming any other host gets 400.
     keyring : path, optional
         The lab's folder of public keys: the Verify pages check key signatures with it.
+    users : bool, optional
+        Require sign-in (:mod:`calib.web.auth`).  Default: when the archive exists
+        and has users.  True needs an archive with at least one user.
+    idle_minutes : float
+        With users: a session unused this long is signed out.
+    signing_keys : path, optional
+        With users: the folder of people's encrypted keys (``NAME.key.json``), each
+        unlocked with the passphrase its holder types when signing.
 
     Examples
     --------
@@ -569,8 +593,12 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         Route("/quantify", _closing(quantify_post), methods=["POST"]),
         Mount("/static", StaticFiles(packages=[("calib.web", "static")]), name="static"),
     ]
+    with_users = auth.server_has_users(archive) if users is None else users
+    if with_users:
+        auth.check_users_setup(archive, idle_minutes)
+        routes[-1:-1] = auth.routes()
     app = Starlette(
-        routes=routes, middleware=[Middleware(Guard)],
+        routes=routes, middleware=[Middleware(Guard), Middleware(auth.SignInGate)],
         exception_handlers={PageError: _page_error, CalibError: _calib_error,
                             HTTPException: _http_error, Exception: _internal_error},
     )
@@ -581,6 +609,9 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
     app.state.keyring = os.fspath(keyring) if keyring is not None else None
     app.state.archive_if_exists = functools.partial(_existing_archive, app.state.archive)
     app.state.access_token = access_token
+    app.state.users = with_users
+    app.state.idle = auth.idle_time(idle_minutes)
+    app.state.signing_keys = os.fspath(signing_keys) if signing_keys is not None else None
     app.state.max_upload = max_upload
     app.state.profiles = tuple(shipped_profiles())
     app.state.report_templates = (

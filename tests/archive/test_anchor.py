@@ -240,9 +240,10 @@ def test_a_format_1_archive_is_migrated_and_keeps_its_head(tmp_path):
     assert report.ok, report.problems
     assert (report.entries, report.head_seq, report.head_hash) == (
         4, 4, "2a970f3b7f8baeb1b7472abbb39c9379b81190cae7d9867cf58c72d1dd12469b")
-    assert versions == [1, 2] and "json" not in columns and "pdf_sha256" in columns
+    # Format 2 (blobs apart) and then format 3 (people tables) are applied in turn.
+    assert versions == [1, 2, 3] and "json" not in columns and "pdf_sha256" in columns
     con = sqlite3.connect(path)
-    assert con.execute("PRAGMA user_version").fetchone()[0] == 2
+    assert con.execute("PRAGMA user_version").fetchone()[0] == 3
     con.close()
 
 

@@ -34,6 +34,7 @@ from __future__ import annotations
 
 import math
 import os
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -118,6 +119,9 @@ class SampleSheet:
     internal_standard: str | None = None
 
 
+_PLAIN_NUMBER = re.compile(r"-?[0-9]{1,30}(?:\.[0-9]{1,30})?")
+
+
 def dilution_of(point: Point) -> float:
     """The dilution factor of a run-file point: its own when the importer gives one, else 1."""
     # A run importer that carries a dilution factor on the point is used as is.
@@ -156,6 +160,10 @@ class _TableReader:
         self.columns = columns
         self.analyte = analyte
         self.decimal = decimal
+        # A plain number (digits, one decimal point) reads the same by float(); a
+        # decimal comma file reads "1.250" as 1250, so there the full parser decides.
+        self.plain = _PLAIN_NUMBER if decimal != "," else None
+        self.types: dict[str, SampleType] = {}
         self.ratios = internal_standard and "is_response" in columns
         self.dilution_below_one = dilution_below_one
         self.typer = SampleTyper(patterns=dict(patterns or {}))
@@ -218,6 +226,8 @@ class _TableReader:
 
     def number(self, row_index: int, row: list[Cell], name: str, expected: str) -> float | None:
         value = self.cell(row, name)
+        if self.plain is not None and type(value) is str and self.plain.fullmatch(value):
+            return float(value)
         if is_blank(value):
             return None
         try:
@@ -235,7 +245,7 @@ class _TableReader:
         value = self.cell(row, name)
         if is_blank(value):
             return math.nan, f"no {what} in the file"
-        if isinstance(value, str):
+        if isinstance(value, str) and not (self.plain is not None and self.plain.fullmatch(value)):
             marker = find_marker(value)
             if marker is not None:
                 return math.nan, marker.reason(what)
@@ -247,10 +257,15 @@ class _TableReader:
              ) -> SampleType:
         text = self.text(row, "sample_type")
         if text is not None:
-            try:
-                found = self.typer.from_cell(text)
-            except CellError as exc:
-                raise self.fail(row_index, "sample_type", str(exc)) from None
+            # The same few words on every row: each is typed once.
+            found = self.types.get(text)
+            if found is None:
+                try:
+                    found = self.typer.from_cell(text)
+                except CellError as exc:
+                    raise self.fail(row_index, "sample_type", str(exc)) from None
+                if found is not None:
+                    self.types[text] = found
             if found is not None:
                 return found
         named = type_from_name(name)

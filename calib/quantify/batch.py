@@ -236,8 +236,12 @@ def quantify_sample(
     per_content = _content_factor(curve, readings[0]) if refused is None else None
     kind = point.sample_type
     dilution = readings[0].dilution_factor
-    usable = _usable(readings)
-    mean = _mean_response(usable)
+    if prediction is not None:
+        # Worked out already from these readings: m and ȳ₀ are the prediction's.
+        n_usable, mean = prediction.m, prediction.response
+    else:
+        usable = _usable(readings)
+        n_usable, mean = len(usable), _mean_response(usable)
     nominal = point.concentration if kind is SampleType.QC else None
     pred: InversePrediction | None = None
     shown: tuple[float | None, ...] = (None, None, None, None)
@@ -257,7 +261,7 @@ def quantify_sample(
                                        for r in readings))
     else:
         pred = prediction if prediction is not None else inverse_predict(
-            curve, mean, m=len(usable), confidence=confidence)
+            curve, mean, m=n_usable, confidence=confidence)
         x0 = pred.concentration
         side = _side(curve, x0, mean)
         if kind is SampleType.QC:
@@ -289,7 +293,7 @@ def quantify_sample(
                     f"content = C × V / m with V = {r0.volume_l:g} L, m = {r0.mass_kg:g} kg")]))
     return SampleResult(
         sample_id=point.sample_id or point.source_cell, analyte=point.analyte, sample_type=kind,
-        readings=tuple(readings), n_replicates=len(usable), mean_response=mean,
+        readings=tuple(readings), n_replicates=n_usable, mean_response=mean,
         dilution_factor=dilution, prediction=pred, concentration=shown[0], std_error=shown[1],
         ci_low=shown[2], ci_high=shown[3], flags=tuple(flags), reported=reported, note=note,
         nominal=nominal, found=found, deviation_pct=deviation, content=content,

@@ -278,10 +278,13 @@ def quantify_sample(
                 flags.append(Flag.OUTSIDE_RANGE.value)
                 note = "below the calibrated range"
             else:
-                shown = tuple(_finite(dilution * v) for v in
-                              (x0, pred.std_error, pred.ci_low, pred.ci_high))
-            flags += [f.value for f, on in ((Flag.BELOW_LLOQ, below_lloq),
-                                            (Flag.BELOW_LOD, below_lod)) if on]
+                half = pred.half_width
+                shown = (_finite(dilution * x0), _finite(dilution * pred.std_error),
+                         _finite(dilution * (x0 - half)), _finite(dilution * (x0 + half)))
+            if below_lloq:
+                flags.append(Flag.BELOW_LLOQ.value)
+            if below_lod:
+                flags.append(Flag.BELOW_LOD.value)
             reported = (convention.below_lod if below_lod else convention.below_lloq
                         if below_lloq else convention.number(dilution * x0))
             if per_content is not None and shown[0] is not None:

@@ -46,7 +46,7 @@ from calib.io.files import load_file
 from calib.io.limits import check_magnitudes
 from calib.io.numbers import find_marker
 from calib.io.sampletypes import SampleTyper, type_from_name
-from calib.io.table import Grid
+from calib.io.table import Grid, cell_reference
 from calib.options import SampleType
 from calib.quantify.samplefile import (
     DILUTION_HEADINGS,
@@ -164,6 +164,9 @@ class _TableReader:
         # decimal comma file reads "1.250" as 1250, so there the full parser decides.
         self.plain = _PLAIN_NUMBER if decimal != "," else None
         self.types: dict[str, SampleType] = {}
+        # "run.csv!D" of every response cell: the row number is all that changes.
+        self.response_at = (cell_reference(grid.label, columns["response"][0], 0)[:-1]
+                            if "response" in columns else "")
         self.ratios = internal_standard and "is_response" in columns
         self.dilution_below_one = dilution_below_one
         self.typer = SampleTyper(patterns=dict(patterns or {}))
@@ -347,8 +350,7 @@ class _TableReader:
         point = Point(
             analyte=self.text(row, "analyte") or self.analyte or "",
             concentration=float(nominal) if kind is SampleType.QC else math.nan,
-            response=response, source_cell=self.grid.reference(self.columns["response"][0],
-                                                                 row_index),
+            response=response, source_cell=f"{self.response_at}{row_index + 1}",
             sample_type=kind, replicate=replicate, included=not reasons,
             exclusion_reason="; ".join(reasons) if reasons else None, sample_id=name,
             injection_order=order, is_response=is_response, analyte_response=analyte_response,

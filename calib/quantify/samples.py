@@ -164,6 +164,7 @@ class _TableReader:
         # decimal comma file reads "1.250" as 1250, so there the full parser decides.
         self.plain = _PLAIN_NUMBER if decimal != "," else None
         self.types: dict[str, SampleType] = {}
+        self.at = {name: spec[0] for name, spec in columns.items()}
         # "run.csv!D" of every response cell: the row number is all that changes.
         self.response_at = (cell_reference(grid.label, columns["response"][0], 0)[:-1]
                             if "response" in columns else "")
@@ -218,9 +219,9 @@ class _TableReader:
         return value
 
     def cell(self, row: list[Cell], name: str) -> Cell:
-        if name not in self.columns:
+        index = self.at.get(name)
+        if index is None:
             return None
-        index = self.columns[name][0]
         return row[index] if index < len(row) else None
 
     def fail(self, row_index: int, name: str, message: str) -> InputError:
@@ -240,7 +241,8 @@ class _TableReader:
             raise self.fail(row_index, name, f"{found}; expected {expected}") from None
 
     def text(self, row: list[Cell], name: str) -> str | None:
-        return to_text(self.cell(row, name))
+        value = self.cell(row, name)
+        return None if value is None else to_text(value)
 
     def measured(self, row_index: int, row: list[Cell], name: str, what: str
                  ) -> tuple[float, str | None]:

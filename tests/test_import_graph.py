@@ -218,3 +218,18 @@ def test_shared_reading_back_sits_below_checks_and_quantify(module: str) -> None
         todo.extend(graph[node])
     above = sorted(m for m in seen if m.startswith(("calib.checks", "calib.quantify")))
     assert above == [], f"{module} reaches {above}"
+
+
+#: quantify's only ways into the checks, left for issue 18 item 4: a run file's curves are
+#: checked first (calib.workflow.check_file), and a record's stored profile gives the QC rule.
+KNOWN_QUANTIFY_TO_CHECKS = {("calib.quantify.source", "calib.checks.profile"),
+                            ("calib.quantify.source", "calib.workflow")}
+
+
+def test_quantify_reaches_the_checks_only_where_known() -> None:
+    graph = _calib_graph()
+    edges = {(a, b) for a, targets in graph.items() for b in targets
+             if a.startswith("calib.quantify") and b.startswith(("calib.checks", "calib.workflow"))}
+    assert edges <= KNOWN_QUANTIFY_TO_CHECKS, f"new: {sorted(edges - KNOWN_QUANTIFY_TO_CHECKS)}"
+    assert edges == KNOWN_QUANTIFY_TO_CHECKS, (
+        f"gone (remove from the list): {sorted(KNOWN_QUANTIFY_TO_CHECKS - edges)}")

@@ -90,8 +90,8 @@ def run(args: argparse.Namespace) -> int:
         dilution_below_one=args.dilution_below_one)
     document = outcome.document
     if args.json:
-        json.dump(document, sys.stdout, ensure_ascii=False, allow_nan=False)
-        sys.stdout.write("\n")
+        # One piece: json.dumps runs in C, json.dump streams through the Python encoder.
+        sys.stdout.write(json.dumps(document, ensure_ascii=False, allow_nan=False) + "\n")
         print(f"calib: caution: {document['cautions']}", file=sys.stderr)
     else:
         print(batch_text(document))

@@ -9,43 +9,94 @@ Diagnostics take a fit and return named result objects: linearity
 :func:`ich_limits`, :func:`iso11843_limits`, :func:`method_sd`), bands
 (:func:`mean_band`, :func:`prediction_band`) and two-curve comparison
 (:func:`compare_curves`).
+
+Names are imported on first use (PEP 562), so that a caller that needs one
+module (``calib quantify`` reading a record needs :mod:`calib.fit.inverse`)
+does not load every diagnostic and its scipy dependencies.
 """
 
-from calib.fit.bands import mean_band, prediction_band
-from calib.fit.batch import BatchFit, fit_batch
-from calib.fit.compare import CurveComparison, compare_curves
-from calib.fit.curve import CoefficientRow, CurveFit, fit_curve
-from calib.fit.limits import (
-    DetectionLimit,
-    Iso11843Limits,
-    MethodSd,
-    detection_limits,
-    ich_limits,
-    iso11843_limits,
-    method_sd,
-)
-from calib.fit.linearity import (
-    DriftTest,
-    LackOfFit,
-    MandelTest,
-    QuadraticTerm,
-    RunsTest,
-    lack_of_fit,
-    mandel_test,
-    quadratic_term,
-    residual_drift,
-    residual_runs,
-)
-from calib.fit.outliers import GrubbsResult, Influence, grubbs, influence
-from calib.fit.response_factor import ResponseFactors, response_factors
-from calib.fit.variance import (
-    LevelVarianceTest,
-    VarianceEndsTest,
-    WeightingAdvice,
-    recommend_weighting,
-    variance_ends,
-    variance_levels,
-)
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from calib.fit.bands import mean_band, prediction_band
+    from calib.fit.batch import BatchFit, fit_batch
+    from calib.fit.compare import CurveComparison, compare_curves
+    from calib.fit.curve import CoefficientRow, CurveFit, fit_curve
+    from calib.fit.limits import (
+        DetectionLimit,
+        Iso11843Limits,
+        MethodSd,
+        detection_limits,
+        ich_limits,
+        iso11843_limits,
+        method_sd,
+    )
+    from calib.fit.linearity import (
+        DriftTest,
+        LackOfFit,
+        MandelTest,
+        QuadraticTerm,
+        RunsTest,
+        lack_of_fit,
+        mandel_test,
+        quadratic_term,
+        residual_drift,
+        residual_runs,
+    )
+    from calib.fit.outliers import GrubbsResult, Influence, grubbs, influence
+    from calib.fit.response_factor import ResponseFactors, response_factors
+    from calib.fit.variance import (
+        LevelVarianceTest,
+        VarianceEndsTest,
+        WeightingAdvice,
+        recommend_weighting,
+        variance_ends,
+        variance_levels,
+    )
+
+_EXPORTS = {
+    "BatchFit": "calib.fit.batch",
+    "CoefficientRow": "calib.fit.curve",
+    "CurveComparison": "calib.fit.compare",
+    "CurveFit": "calib.fit.curve",
+    "DetectionLimit": "calib.fit.limits",
+    "DriftTest": "calib.fit.linearity",
+    "GrubbsResult": "calib.fit.outliers",
+    "Influence": "calib.fit.outliers",
+    "Iso11843Limits": "calib.fit.limits",
+    "LackOfFit": "calib.fit.linearity",
+    "LevelVarianceTest": "calib.fit.variance",
+    "MandelTest": "calib.fit.linearity",
+    "MethodSd": "calib.fit.limits",
+    "QuadraticTerm": "calib.fit.linearity",
+    "ResponseFactors": "calib.fit.response_factor",
+    "RunsTest": "calib.fit.linearity",
+    "VarianceEndsTest": "calib.fit.variance",
+    "WeightingAdvice": "calib.fit.variance",
+    "compare_curves": "calib.fit.compare",
+    "detection_limits": "calib.fit.limits",
+    "fit_batch": "calib.fit.batch",
+    "fit_curve": "calib.fit.curve",
+    "grubbs": "calib.fit.outliers",
+    "ich_limits": "calib.fit.limits",
+    "influence": "calib.fit.outliers",
+    "iso11843_limits": "calib.fit.limits",
+    "lack_of_fit": "calib.fit.linearity",
+    "mandel_test": "calib.fit.linearity",
+    "mean_band": "calib.fit.bands",
+    "method_sd": "calib.fit.limits",
+    "prediction_band": "calib.fit.bands",
+    "quadratic_term": "calib.fit.linearity",
+    "recommend_weighting": "calib.fit.variance",
+    "residual_drift": "calib.fit.linearity",
+    "residual_runs": "calib.fit.linearity",
+    "response_factors": "calib.fit.response_factor",
+    "variance_ends": "calib.fit.variance",
+    "variance_levels": "calib.fit.variance",
+}
 
 __all__ = [
     "BatchFit", "CoefficientRow", "CurveComparison", "CurveFit", "DetectionLimit", "DriftTest",
@@ -57,3 +108,16 @@ __all__ = [
     "recommend_weighting", "residual_drift", "residual_runs", "response_factors",
     "variance_ends", "variance_levels",
 ]
+
+
+def __getattr__(name: str) -> Any:
+    module = _EXPORTS.get(name)
+    if module is None:
+        raise AttributeError(f"module 'calib.fit' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return __all__

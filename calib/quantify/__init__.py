@@ -10,8 +10,10 @@ The pipeline::
     calib.quantify.workflow  quantify_files(curve, samples)        all of the above in one call
     calib.quantify.document  quantify_document(report)             the calib.quantify/1 JSON
 
-Names are imported lazily: the ``qc`` rule of :mod:`calib.checks.rules` uses
-this package while :mod:`calib.checks` is still being imported.
+The curve object, inverse prediction and the QC judgement live in
+:mod:`calib.fit` (``calcurve``, ``inverse``, ``qc``), below both this package
+and :mod:`calib.checks`: neither imports the other.  Names are imported
+lazily, so that ``import calib.quantify`` stays light.
 """
 
 from __future__ import annotations

@@ -39,10 +39,10 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from calib.errors import InputError
+from calib.fit.calcurve import CalibrationCurve
+from calib.fit.inverse import InversePrediction, inverse_predict, inverse_predict_many
+from calib.fit.qc import QcRule, QcSummary, judge_qcs
 from calib.options import SampleType
-from calib.quantify.curve import CalibrationCurve
-from calib.quantify.inverse import InversePrediction, inverse_predict
-from calib.quantify.qc import QcRule, QcSummary, judge_qcs
 from calib.quantify.samples import Reading
 from calib.tabular import Tabular
 
@@ -189,6 +189,7 @@ def quantify_sample(
     convention: ReportingConvention | None = None,
     refused: str | None = None,
     forced: bool = False,
+    prediction: InversePrediction | None = None,
 ) -> SampleResult:
     """Quantify one sample from its readings (all of one analyte, type and dilution).
 
@@ -207,6 +208,10 @@ def quantify_sample(
     forced : bool
         The curve was rejected and quantifying was forced: the result carries
         the ``forced`` flag.
+    prediction : InversePrediction, optional
+        The sample's read-back when already worked out for many samples at
+        once (:func:`calib.fit.inverse.inverse_predict_many`, as :func:`quantify`
+        does); worked out here otherwise.
 
     Returns
     -------
@@ -231,8 +236,12 @@ def quantify_sample(
     per_content = _content_factor(curve, readings[0]) if refused is None else None
     kind = point.sample_type
     dilution = readings[0].dilution_factor
-    usable = [r for r in readings if r.point.included and math.isfinite(r.point.response)]
-    mean = float(np.mean([r.point.response for r in usable])) if usable else None
+    if prediction is not None:
+        # Worked out already from these readings: m and ȳ₀ are the prediction's.
+        n_usable, mean = prediction.m, prediction.response
+    else:
+        usable = _usable(readings)
+        n_usable, mean = len(usable), _mean_response(usable)
     nominal = point.concentration if kind is SampleType.QC else None
     pred: InversePrediction | None = None
     shown: tuple[float | None, ...] = (None, None, None, None)
@@ -251,7 +260,8 @@ def quantify_sample(
         note = "; ".join(dict.fromkeys(r.point.exclusion_reason or "no reading"
                                        for r in readings))
     else:
-        pred = inverse_predict(curve, mean, m=len(usable), confidence=confidence)
+        pred = prediction if prediction is not None else inverse_predict(
+            curve, mean, m=n_usable, confidence=confidence)
         x0 = pred.concentration
         side = _side(curve, x0, mean)
         if kind is SampleType.QC:
@@ -268,10 +278,13 @@ def quantify_sample(
                 flags.append(Flag.OUTSIDE_RANGE.value)
                 note = "below the calibrated range"
             else:
-                shown = tuple(_finite(dilution * v) for v in
-                              (x0, pred.std_error, pred.ci_low, pred.ci_high))
-            flags += [f.value for f, on in ((Flag.BELOW_LLOQ, below_lloq),
-                                            (Flag.BELOW_LOD, below_lod)) if on]
+                half = pred.half_width
+                shown = (_finite(dilution * x0), _finite(dilution * pred.std_error),
+                         _finite(dilution * (x0 - half)), _finite(dilution * (x0 + half)))
+            if below_lloq:
+                flags.append(Flag.BELOW_LLOQ.value)
+            if below_lod:
+                flags.append(Flag.BELOW_LOD.value)
             reported = (convention.below_lod if below_lod else convention.below_lloq
                         if below_lloq else convention.number(dilution * x0))
             if per_content is not None and shown[0] is not None:
@@ -283,12 +296,52 @@ def quantify_sample(
                     f"content = C × V / m with V = {r0.volume_l:g} L, m = {r0.mass_kg:g} kg")]))
     return SampleResult(
         sample_id=point.sample_id or point.source_cell, analyte=point.analyte, sample_type=kind,
-        readings=tuple(readings), n_replicates=len(usable), mean_response=mean,
+        readings=tuple(readings), n_replicates=n_usable, mean_response=mean,
         dilution_factor=dilution, prediction=pred, concentration=shown[0], std_error=shown[1],
         ci_low=shown[2], ci_high=shown[3], flags=tuple(flags), reported=reported, note=note,
         nominal=nominal, found=found, deviation_pct=deviation, content=content,
         content_unit=per_content[1] if per_content is not None else None,
     )
+
+
+def _usable(readings: Sequence[Reading]) -> list[Reading]:
+    return [r for r in readings if r.point.included and math.isfinite(r.point.response)]
+
+
+def _mean_response(usable: Sequence[Reading]) -> float | None:
+    """ȳ₀; a plain sum for a few readings (the same figure as ``np.mean`` below 8 terms)."""
+    if not usable:
+        return None
+    if len(usable) < 8:
+        # numpy adds fewer than 8 terms one after the other, as sum() does.
+        return sum(r.point.response for r in usable) / len(usable)
+    return float(np.mean([r.point.response for r in usable]))
+
+
+def _read_back(curves: Mapping[str, CalibrationCurve], groups: Sequence[Sequence[Reading]],
+               refused: Mapping[str, str], confidence: float | None
+               ) -> list[InversePrediction | None]:
+    """Every usable sample read back, one vectorised pass per analyte's curve."""
+    out: list[InversePrediction | None] = [None] * len(groups)
+    todo: dict[str, tuple[list[int], list[float], list[int]]] = {}
+    for i, group in enumerate(groups):
+        analyte = group[0].point.analyte
+        if analyte not in curves or analyte in refused:
+            continue
+        usable = _usable(group)
+        mean = _mean_response(usable)
+        if mean is None:
+            continue
+        at, ys, ms = todo.setdefault(analyte, ([], [], []))
+        at.append(i)
+        ys.append(mean)
+        ms.append(len(usable))
+    for analyte, (at, ys, ms) in todo.items():
+        many = inverse_predict_many(curves[analyte], np.array(ys), np.array(ms),
+                                    confidence=confidence)
+        for i, pred in zip(at, many.predictions(), strict=True):
+            out[i] = pred
+    return out
 
 
 def _content_factor(curve: CalibrationCurve | None, reading: Reading
@@ -449,12 +502,14 @@ def quantify(
             else:
                 refused[analyte] = ("the curve was rejected; its samples are not quantified "
                                     "(force quantifies them anyway, flagged)")
+    groups = group_readings(readings)
+    predictions = _read_back(curves, groups, refused, confidence)
     results = tuple(
         quantify_sample(curves.get(g[0].point.analyte), g, confidence=confidence,
                         convention=_convention(convention, digits, g[0].point.analyte),
                         refused=refused.get(g[0].point.analyte),
-                        forced=g[0].point.analyte in forced)
-        for g in group_readings(readings)
+                        forced=g[0].point.analyte in forced, prediction=pred)
+        for g, pred in zip(groups, predictions, strict=True)
     )
     needed = list(dict.fromkeys(r.analyte for r in results))
     summaries = []

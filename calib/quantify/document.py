@@ -48,6 +48,14 @@ def _num(value: float | None) -> float | None:
 
 def _sample(r: SampleResult) -> dict[str, Any]:
     p = r.prediction
+    first = r.readings[0]
+    cells, set_aside = [], []
+    for x in r.readings:
+        point = x.point
+        cells.append(point.source_cell)
+        if not (point.included and math.isfinite(point.response)):
+            set_aside.append({"source_cell": point.source_cell,
+                              "reason": point.exclusion_reason or "no usable response"})
     return {
         "sample_id": r.sample_id,
         "analyte": r.analyte,
@@ -68,13 +76,10 @@ def _sample(r: SampleResult) -> dict[str, Any]:
         "deviation_pct": _num(r.deviation_pct),
         "content": _num(r.content),
         "content_unit": r.content_unit,
-        "sample_weight_kg": r.readings[0].mass_kg,
-        "final_volume_l": r.readings[0].volume_l,
-        "source_cells": [x.point.source_cell for x in r.readings],
-        "set_aside": [{"source_cell": x.point.source_cell,
-                       "reason": x.point.exclusion_reason or "no usable response"}
-                      for x in r.readings
-                      if not (x.point.included and math.isfinite(x.point.response))],
+        "sample_weight_kg": first.mass_kg,
+        "final_volume_l": first.volume_l,
+        "source_cells": cells,
+        "set_aside": set_aside,
     }
 
 

@@ -34,6 +34,7 @@ from __future__ import annotations
 
 import math
 import os
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -45,7 +46,7 @@ from calib.io.files import load_file
 from calib.io.limits import check_magnitudes
 from calib.io.numbers import find_marker
 from calib.io.sampletypes import SampleTyper, type_from_name
-from calib.io.table import Grid
+from calib.io.table import Grid, cell_reference
 from calib.options import SampleType
 from calib.quantify.samplefile import (
     DILUTION_HEADINGS,
@@ -118,6 +119,9 @@ class SampleSheet:
     internal_standard: str | None = None
 
 
+_PLAIN_NUMBER = re.compile(r"-?[0-9]{1,30}(?:\.[0-9]{1,30})?")
+
+
 def dilution_of(point: Point) -> float:
     """The dilution factor of a run-file point: its own when the importer gives one, else 1."""
     # A run importer that carries a dilution factor on the point is used as is.
@@ -156,6 +160,14 @@ class _TableReader:
         self.columns = columns
         self.analyte = analyte
         self.decimal = decimal
+        # A plain number (digits, one decimal point) reads the same by float(); a
+        # decimal comma file reads "1.250" as 1250, so there the full parser decides.
+        self.plain = _PLAIN_NUMBER if decimal != "," else None
+        self.types: dict[str, SampleType] = {}
+        self.at = {name: spec[0] for name, spec in columns.items()}
+        # "run.csv!D" of every response cell: the row number is all that changes.
+        self.response_at = (cell_reference(grid.label, columns["response"][0], 0)[:-1]
+                            if "response" in columns else "")
         self.ratios = internal_standard and "is_response" in columns
         self.dilution_below_one = dilution_below_one
         self.typer = SampleTyper(patterns=dict(patterns or {}))
@@ -207,9 +219,9 @@ class _TableReader:
         return value
 
     def cell(self, row: list[Cell], name: str) -> Cell:
-        if name not in self.columns:
+        index = self.at.get(name)
+        if index is None:
             return None
-        index = self.columns[name][0]
         return row[index] if index < len(row) else None
 
     def fail(self, row_index: int, name: str, message: str) -> InputError:
@@ -218,6 +230,8 @@ class _TableReader:
 
     def number(self, row_index: int, row: list[Cell], name: str, expected: str) -> float | None:
         value = self.cell(row, name)
+        if self.plain is not None and type(value) is str and self.plain.fullmatch(value):
+            return float(value)
         if is_blank(value):
             return None
         try:
@@ -227,7 +241,8 @@ class _TableReader:
             raise self.fail(row_index, name, f"{found}; expected {expected}") from None
 
     def text(self, row: list[Cell], name: str) -> str | None:
-        return to_text(self.cell(row, name))
+        value = self.cell(row, name)
+        return None if value is None else to_text(value)
 
     def measured(self, row_index: int, row: list[Cell], name: str, what: str
                  ) -> tuple[float, str | None]:
@@ -235,7 +250,7 @@ class _TableReader:
         value = self.cell(row, name)
         if is_blank(value):
             return math.nan, f"no {what} in the file"
-        if isinstance(value, str):
+        if isinstance(value, str) and not (self.plain is not None and self.plain.fullmatch(value)):
             marker = find_marker(value)
             if marker is not None:
                 return math.nan, marker.reason(what)
@@ -247,10 +262,15 @@ class _TableReader:
              ) -> SampleType:
         text = self.text(row, "sample_type")
         if text is not None:
-            try:
-                found = self.typer.from_cell(text)
-            except CellError as exc:
-                raise self.fail(row_index, "sample_type", str(exc)) from None
+            # The same few words on every row: each is typed once.
+            found = self.types.get(text)
+            if found is None:
+                try:
+                    found = self.typer.from_cell(text)
+                except CellError as exc:
+                    raise self.fail(row_index, "sample_type", str(exc)) from None
+                if found is not None:
+                    self.types[text] = found
             if found is not None:
                 return found
         named = type_from_name(name)
@@ -332,8 +352,7 @@ class _TableReader:
         point = Point(
             analyte=self.text(row, "analyte") or self.analyte or "",
             concentration=float(nominal) if kind is SampleType.QC else math.nan,
-            response=response, source_cell=self.grid.reference(self.columns["response"][0],
-                                                                 row_index),
+            response=response, source_cell=f"{self.response_at}{row_index + 1}",
             sample_type=kind, replicate=replicate, included=not reasons,
             exclusion_reason="; ".join(reasons) if reasons else None, sample_id=name,
             injection_order=order, is_response=is_response, analyte_response=analyte_response,

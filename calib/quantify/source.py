@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from calib.errors import InputError, ProfileError
-from calib.quantify.curve import CalibrationCurve, curves_from_record
+from calib.quantify.curve import CalibrationCurve, curve_from_assessment, curves_from_record
 from calib.quantify.qc import QcRule
 
 if TYPE_CHECKING:
@@ -118,7 +118,7 @@ def _from_assessment(assessment: RunAssessment) -> CurveSource:
     unfitted: dict[str, str] = {}
     for c in assessment.curves:
         unit = run.units_of(c.analyte).get("concentration")
-        curve = CalibrationCurve.from_assessment(c, unit=unit)
+        curve = curve_from_assessment(c, unit=unit)
         if curve is None:
             unfitted[c.analyte] = c.unfitted_reason
         else:

@@ -139,3 +139,21 @@ def test_the_unknowns_and_qcs_of_a_run_file(tmp_path):
     assert kinds == ["qc"] * 6 + ["unknown"] * 6
     assert {r.dilution_factor for r in readings} == {1.0}
     assert readings[0].point.concentration == 1.5 and readings[0].point.sample_id == "QC-L"
+
+
+@pytest.mark.parametrize(("sep", "first", "expected"), [
+    # A decimal comma file: "1.250" is one thousand two hundred and fifty (common practice in
+    # decimal-comma locales: the point groups thousands), as calib.io.cells.to_number reads it.
+    (";", "0,5034", [0.5034, 1250.0, 2.0, -3.5]),
+    # A decimal point file: the same text is one and a quarter.
+    (",", "0.5034", [0.5034, 1.25, 2.0, -3.5]),
+])
+def test_plain_numbers_read_as_the_files_decimal_mark_says(tmp_path, sep, first, expected):
+    path = tmp_path / "s.csv"
+    minus = "-3,5" if sep == ";" else "-3.5"
+    rows = [["Sample ID", "Analyte", "Sample type", "Peak area"],
+            ["A1", "Nitrate-N", "unknown", first], ["A2", "Nitrate-N", "unknown", "1.250"],
+            ["A3", "Nitrate-N", "unknown", "2"], ["A4", "Nitrate-N", "unknown", minus]]
+    path.write_text("\n".join(sep.join(r) for r in rows) + "\n", encoding="utf-8")
+    got = [r.point.response for r in read_samples(path).readings]
+    assert got == pytest.approx(expected, rel=1e-15)

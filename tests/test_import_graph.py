@@ -1,0 +1,235 @@
+"""The import graph of calib/: no circle between the checks and quantify, and no new circle.
+
+The graph is built from the source with :mod:`ast`, so imports hidden inside
+functions count as much as those at the top of a module (a function-level
+import is a circle put off, not removed).  Imports under ``if TYPE_CHECKING:``
+are left out: they never run.  An edge goes to the module named: ``from
+calib.fit import inverse`` to ``calib.fit.inverse`` when that is a module,
+``from calib.fit.curve import fit_curve`` to ``calib.fit.curve``.
+
+Circles are the strongly connected components of the graph (Tarjan's
+algorithm, R. Tarjan, SIAM J. Comput. 1(2), 1972, from memory), the algorithm
+itself checked against a small graph whose components are known by hand.
+
+ARCHITECTURE.md: the QC rule in checks/ and quantify/ both read concentrations
+off a curve through fit/'s inverse prediction; neither imports the other.
+"""
+
+from __future__ import annotations
+
+import ast
+import functools
+from collections.abc import Iterable, Mapping
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent / "calib"
+
+#: Circles known when this test was written, each a set of modules, left for
+#: issue 18 item 4 (a circle not listed here fails the test; so does a listed
+#: one that is gone, so that the list only shrinks).
+KNOWN_CYCLES: tuple[frozenset[str], ...] = (
+    # A rule's result looks its title up in the registry that imports every rule.
+    frozenset({"calib.checks.rules", "calib.checks.rules.acceptance", "calib.checks.rules.base",
+               "calib.checks.rules.basic", "calib.checks.rules.linearity",
+               "calib.checks.rules.models", "calib.checks.rules.outliers",
+               "calib.checks.rules.qc", "calib.checks.rules.standards",
+               "calib.checks.rules.variance"}),
+    frozenset({"calib.archive.audit", "calib.archive.store"}),
+    frozenset({"calib.labsettings", "calib.report.template"}),
+    frozenset({"calib.web.app", "calib.web.archive_pages", "calib.web.base", "calib.web.guard",
+               "calib.web.pages"}),
+)
+
+
+def _module_name(path: Path, root: Path) -> str:
+    parts = list(path.relative_to(root.parent).with_suffix("").parts)
+    if parts[-1] == "__init__":
+        parts.pop()
+    return ".".join(parts)
+
+
+def _is_type_checking(test: ast.expr) -> bool:
+    return (isinstance(test, ast.Name) and test.id == "TYPE_CHECKING") or (
+        isinstance(test, ast.Attribute) and test.attr == "TYPE_CHECKING")
+
+
+def _imports(tree: ast.AST, package: str) -> Iterable[tuple[str, str | None]]:
+    """(module, name) of every import that runs, at any depth."""
+    stack: list[ast.AST] = [tree]
+    while stack:
+        node = stack.pop()
+        if isinstance(node, ast.If) and _is_type_checking(node.test):
+            stack.extend(node.orelse)
+            continue
+        if isinstance(node, ast.Import):
+            for alias in node.names:
+                yield alias.name, None
+        elif isinstance(node, ast.ImportFrom):
+            if node.level:
+                base = package.split(".")
+                base = base[:len(base) - node.level + 1]
+                module = ".".join(base + ([node.module] if node.module else []))
+            else:
+                module = node.module or ""
+            for alias in node.names:
+                yield module, alias.name
+        stack.extend(ast.iter_child_nodes(node))
+
+
+def import_graph(root: Path = ROOT) -> dict[str, set[str]]:
+    """Module → the calib modules it imports (module-level and function-level)."""
+    files = {_module_name(p, root): p for p in root.rglob("*.py")}
+    graph: dict[str, set[str]] = {name: set() for name in files}
+    for name, path in files.items():
+        package = name if path.name == "__init__.py" else name.rpartition(".")[0]
+        tree = ast.parse(path.read_text(encoding="utf-8"), filename=str(path))
+        for module, item in _imports(tree, package):
+            if not module.startswith("calib"):
+                continue
+            target = f"{module}.{item}" if item and f"{module}.{item}" in files else module
+            if target in files and target != name:
+                graph[name].add(target)
+    return graph
+
+
+def strongly_connected(graph: Mapping[str, Iterable[str]]) -> list[frozenset[str]]:
+    """Components of more than one node (or a node importing itself), Tarjan's algorithm."""
+    index: dict[str, int] = {}
+    low: dict[str, int] = {}
+    on_stack: set[str] = set()
+    stack: list[str] = []
+    out: list[frozenset[str]] = []
+    counter = 0
+    for start in sorted(graph):
+        if start in index:
+            continue
+        # Iterative depth-first search: (node, iterator over its successors).
+        work = [(start, iter(sorted(graph.get(start, ()))))]
+        index[start] = low[start] = counter
+        counter += 1
+        stack.append(start)
+        on_stack.add(start)
+        while work:
+            node, successors = work[-1]
+            advanced = False
+            for nxt in successors:
+                if nxt not in index:
+                    index[nxt] = low[nxt] = counter
+                    counter += 1
+                    stack.append(nxt)
+                    on_stack.add(nxt)
+                    work.append((nxt, iter(sorted(graph.get(nxt, ())))))
+                    advanced = True
+                    break
+                if nxt in on_stack:
+                    low[node] = min(low[node], index[nxt])
+            if advanced:
+                continue
+            work.pop()
+            if work:
+                parent = work[-1][0]
+                low[parent] = min(low[parent], low[node])
+            if low[node] == index[node]:
+                members = set()
+                while True:
+                    top = stack.pop()
+                    on_stack.discard(top)
+                    members.add(top)
+                    if top == node:
+                        break
+                if len(members) > 1 or node in graph.get(node, ()):
+                    out.append(frozenset(members))
+    return out
+
+
+@functools.cache
+def _calib_graph() -> dict[str, set[str]]:
+    return import_graph()
+
+
+def _describe(cycles: Iterable[frozenset[str]]) -> str:
+    return "\n".join("  " + " ↔ ".join(sorted(c)) for c in cycles) or "  (none)"
+
+
+def test_components_of_a_known_graph() -> None:
+    # Worked by hand (common practice for checking a graph algorithm): a→b→c→a is one
+    # circle, d→e→d another, f stands alone, g imports itself.
+    graph = {"a": {"b"}, "b": {"c"}, "c": {"a", "d"}, "d": {"e"}, "e": {"d", "f"},
+             "f": set(), "g": {"g"}}
+    assert sorted(sorted(c) for c in strongly_connected(graph)) == [
+        ["a", "b", "c"], ["d", "e"], ["g"]]
+
+
+def test_function_level_imports_are_seen(tmp_path: Path) -> None:
+    pkg = tmp_path / "calib"
+    (pkg / "checks").mkdir(parents=True)
+    (pkg / "__init__.py").write_text("")
+    (pkg / "checks" / "__init__.py").write_text("")
+    (pkg / "checks" / "rule.py").write_text(
+        "def f():\n    from calib.quantify import batch\n    return batch\n")
+    (pkg / "quantify").mkdir()
+    (pkg / "quantify" / "__init__.py").write_text("")
+    (pkg / "quantify" / "batch.py").write_text(
+        "from typing import TYPE_CHECKING\nif TYPE_CHECKING:\n    from calib.checks import x\n"
+        "from . import helper\nimport calib.checks.rule\n")
+    (pkg / "quantify" / "helper.py").write_text("")
+    graph = import_graph(pkg)
+    assert graph["calib.checks.rule"] == {"calib.quantify.batch"}
+    # The TYPE_CHECKING import is left out; the relative one is resolved.
+    assert graph["calib.quantify.batch"] == {"calib.quantify.helper", "calib.checks.rule"}
+    assert strongly_connected(graph) == [frozenset({"calib.checks.rule",
+                                                    "calib.quantify.batch"})]
+
+
+def test_checks_never_import_quantify() -> None:
+    graph = _calib_graph()
+    edges = sorted((a, b) for a, targets in graph.items() for b in targets
+                   if a.startswith("calib.checks") and b.startswith("calib.quantify"))
+    assert edges == [], f"checks imports quantify: {edges}"
+
+
+def test_no_circle_between_checks_and_quantify() -> None:
+    mixed = [c for c in strongly_connected(_calib_graph())
+             if any(m.startswith("calib.checks") for m in c)
+             and any(m.startswith("calib.quantify") for m in c)]
+    assert not mixed, "circles through checks and quantify:\n" + _describe(mixed)
+
+
+def test_no_new_circle() -> None:
+    found = set(strongly_connected(_calib_graph()))
+    new = found - set(KNOWN_CYCLES)
+    gone = set(KNOWN_CYCLES) - found
+    assert not new, "new import circles:\n" + _describe(new)
+    assert not gone, "circles gone (remove them from KNOWN_CYCLES):\n" + _describe(gone)
+
+
+@pytest.mark.parametrize("module", ["calib.fit.inverse", "calib.fit.calcurve", "calib.fit.qc"])
+def test_shared_reading_back_sits_below_checks_and_quantify(module: str) -> None:
+    # ARCHITECTURE.md layering: fit/ imports neither checks/ nor quantify/.
+    graph = _calib_graph()
+    seen, todo = set(), [module]
+    while todo:
+        node = todo.pop()
+        if node in seen:
+            continue
+        seen.add(node)
+        todo.extend(graph[node])
+    above = sorted(m for m in seen if m.startswith(("calib.checks", "calib.quantify")))
+    assert above == [], f"{module} reaches {above}"
+
+
+#: quantify's only ways into the checks, left for issue 18 item 4: a run file's curves are
+#: checked first (calib.workflow.check_file), and a record's stored profile gives the QC rule.
+KNOWN_QUANTIFY_TO_CHECKS = {("calib.quantify.source", "calib.checks.profile"),
+                            ("calib.quantify.source", "calib.workflow")}
+
+
+def test_quantify_reaches_the_checks_only_where_known() -> None:
+    graph = _calib_graph()
+    edges = {(a, b) for a, targets in graph.items() for b in targets
+             if a.startswith("calib.quantify") and b.startswith(("calib.checks", "calib.workflow"))}
+    assert edges <= KNOWN_QUANTIFY_TO_CHECKS, f"new: {sorted(edges - KNOWN_QUANTIFY_TO_CHECKS)}"
+    assert edges == KNOWN_QUANTIFY_TO_CHECKS, (
+        f"gone (remove from the list): {sorted(KNOWN_QUANTIFY_TO_CHECKS - edges)}")

@@ -16,46 +16,72 @@ order are the same whichever reads them.
 from __future__ import annotations
 
 import math
+from operator import itemgetter
 from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
+
 from calib.io.cells import Cell, is_blank, to_flag, to_integer, to_name, to_text
 from calib.options import SampleType
+from calib.run import Point
 
 if TYPE_CHECKING:
     from calib.io.columns import Column
     from calib.io.sampletypes import SampleTyper
 
-__all__ = ["PlainRow", "plan_rows"]
+__all__ = ["column_of", "plan_rows"]
 
 _BAD = object()
 """A cell the column-wise reader leaves to the row reader."""
 
-PlainRow = tuple[str, float, float, "float | None", SampleType, "int | None", "str | None",
-                 "int | None", "str | None"]
-"""``(analyte, concentration, response, internal-standard response, sample type,
-replicate, sample name, injection order, level)`` of a plain row."""
+_NUMBERS = frozenset((bool, int, float))
 
 
-def _column(block: Sequence[Sequence[Cell]], index: int | None, width: int) -> list[Cell]:
+def column_of(block: Sequence[Sequence[Cell]], index: int | None, width: int) -> list[Cell]:
     """One column of the rows (None where a short row ends or the table has no such column)."""
     if index is None:
         return [None] * len(block)
     if width > index:
-        return [row[index] for row in block]
+        return list(map(itemgetter(index), block))
     return [row[index] if index < len(row) else None for row in block]
 
 
 def _classify(values: list[Cell], parser: Callable[[Cell], Any]) -> list[Any]:
     """``parser`` of every cell, each distinct cell parsed once; :data:`_BAD` where it fails."""
-    keys = list(zip(map(type, values), values))  # type() keeps True apart from 1
-    seen: dict[tuple[type, Cell], Any] = {}
-    for key in set(keys):
-        try:
-            seen[key] = parser(key[1])
-        except Exception:  # noqa: BLE001 - the row reader raises the same, placed in its row
-            seen[key] = _BAD
-    return list(map(seen.__getitem__, keys))
+    distinct = set(values)
+    if len(_NUMBERS.intersection(map(type, distinct))) > 1:
+        # True == 1 == 1.0: key by type too, so that each is read as what it is.
+        keys = list(zip(map(type, values), values))
+        typed: dict[tuple[type, Cell], Any] = {}
+        for key in set(keys):
+            typed[key] = _parse(parser, key[1])
+        return list(map(typed.__getitem__, keys))
+    seen = {value: _parse(parser, value) for value in distinct}
+    return list(map(seen.__getitem__, values))
+
+
+def _parse(parser: Callable[[Cell], Any], value: Cell) -> Any:
+    try:
+        return parser(value)
+    except Exception:  # noqa: BLE001 - the row reader raises the same, placed in its row
+        return _BAD
+
+
+def _floats(values: list[Cell]) -> np.ndarray | None:
+    """The column as a float array when every cell is a float; None otherwise."""
+    if set(map(type, values)) != {float}:
+        return None
+    return np.fromiter(values, dtype=float, count=len(values))
+
+
+def _whole_numbers(values: list[Cell]) -> list[Any]:
+    """Replicate numbers or injection orders as the row reader reads them."""
+    array = _floats(values)
+    if array is not None and bool(np.all(np.isfinite(array))) and bool(
+            np.all(array == np.floor(array))) and bool(np.all(np.abs(array) < 2.0 ** 53)):
+        return array.astype(np.int64).tolist()
+    return _classify(values, _whole)
 
 
 def _whole(value: Cell) -> int | None:
@@ -67,24 +93,40 @@ def _whole(value: Cell) -> int | None:
     return to_integer(value)
 
 
-def _plain_number(value: Cell) -> float | object:
-    kind = type(value)
-    if (kind is float or kind is int) and math.isfinite(value):  # type: ignore[arg-type]
-        return float(value)  # type: ignore[arg-type]
-    return _BAD
+def _numbers(values: list[Cell], *, least: float | None = None) -> tuple[list[Any], set[int]]:
+    """The cells read as plain finite numbers (at least ``least``), and the rows that are not."""
+    array = _floats(values)
+    if array is not None:
+        good = np.isfinite(array)
+        if least is not None:
+            good &= array >= least
+        if bool(good.all()):
+            return values, set()
+        return values, set(np.flatnonzero(~good).tolist())
+    out: list[Any] = []
+    bad: set[int] = set()
+    for at, value in enumerate(values):
+        kind = type(value)
+        if (kind is float or (kind is int and least is None)) and math.isfinite(
+                value) and (least is None or value >= least):  # type: ignore[arg-type,operator]
+            out.append(float(value))  # type: ignore[arg-type]
+        else:
+            out.append(None)
+            bad.add(at)
+    return out, bad
 
 
-def _plain_concentration(value: Cell) -> float | object:
-    if type(value) is float and 0 <= value < math.inf:
-        return value
-    return _BAD
+def _bad_rows(values: list[Any]) -> set[int]:
+    if _BAD not in values:
+        return set()
+    return {at for at, value in enumerate(values) if value is _BAD}
 
 
 def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
               columns: tuple[Column, Column, Column | None], analyte: str | None,
-              typer: SampleTyper, skip: frozenset[int] | set[int] | dict[int, str],
-              first_row: int) -> list[PlainRow | None]:
-    """The values of each plain row of a long table; None for rows to read one by one.
+              typer: SampleTyper, skip: set[int], first_row: int, prefix: str
+              ) -> list[Point | None]:
+    """The point of each plain row of a long table; None for rows to read one by one.
 
     Parameters
     ----------
@@ -102,6 +144,8 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
         0-based rows never plain (hidden rows, summary rows).
     first_row : int
         0-based row of ``block[0]``.
+    prefix : str
+        Source cells of the response column start so, ``"Run!C"``.
 
     Examples
     --------
@@ -111,63 +155,76 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
     >>> rows = [["Cal 1", 0.5, 1010.0], ["Cal 2", "1,0", 2032.0], ["Blank", 0.0, 3.0]]
     >>> plan = plan_rows(rows, index={"sample_id": 0, "concentration": 1, "response": 2},
     ...                  columns=(conc, area, None), analyte="Nitrate", typer=SampleTyper(),
-    ...                  skip=set(), first_row=3)
-    >>> plan[0][:5], plan[1], plan[2][4].value
-    (('Nitrate', 0.5, 1010.0, None, <SampleType.STANDARD: 'standard'>), None, 'blank')
+    ...                  skip=set(), first_row=3, prefix="Run!C")
+    >>> plan[0].source_cell, plan[0].sample_type.value, plan[1], plan[2].sample_type.value
+    ('Run!C4', 'standard', None, 'blank')
     """
     n = len(block)
     if n == 0:
         return []
     width = min(map(len, block))
     conc_column, response_column, is_column = columns
-    concentration = list(map(_plain_concentration, _column(block, conc_column.index, width)))
-    response = list(map(_plain_number, _column(block, response_column.index, width)))
-    standard = (list(map(_plain_number, _column(block, is_column.index, width)))
-                if is_column is not None else [None] * n)
+    bad = {row - first_row for row in skip if first_row <= row < first_row + n}
+    # The row reader takes a float concentration of 0 or more as it is, any finite
+    # number (not a bool) as a response, and an internal-standard response above 0.
+    concentration, wrong = _numbers(column_of(block, conc_column.index, width), least=0.0)
+    bad |= wrong
+    found, wrong = _numbers(column_of(block, response_column.index, width))
+    bad |= wrong
 
     def named(name: str, parser: Callable[[Cell], Any]) -> list[Any]:
         if name not in index:
             return [None] * n
-        return _classify(_column(block, index[name], width), parser)
+        values = _classify(column_of(block, index[name], width), parser)
+        bad.update(_bad_rows(values))
+        return values
 
     names = named("sample_id", to_name)
     if "analyte" in index:
-        analytes = [_BAD if a is None else a for a in named("analyte", to_name)]
+        analytes = named("analyte", to_name)
+        if None in analytes:
+            bad.update(at for at, value in enumerate(analytes) if value is None)
     else:
         analytes = [analyte] * n
-    included = named("include", to_flag) if "include" in index else [True] * n
-    reasons = (_column(block, index["exclusion_reason"], width)
-               if "exclusion_reason" in index else [None] * n)
-    replicates = named("replicate", _whole)
-    orders = named("injection_order", _whole)
+    if "include" in index:
+        flags = named("include", to_flag)
+        if False in flags:
+            bad.update(at for at, value in enumerate(flags) if value is not True)
+    if "exclusion_reason" in index:
+        reasons = column_of(block, index["exclusion_reason"], width)
+        bad.update(at for at, value in enumerate(reasons) if not (value is None or value == ""))
+    replicates = orders = [None] * n
+    if "replicate" in index:
+        replicates = _whole_numbers(column_of(block, index["replicate"], width))
+        bad.update(_bad_rows(replicates))
+    if "injection_order" in index:
+        orders = _whole_numbers(column_of(block, index["injection_order"], width))
+        bad.update(_bad_rows(orders))
     levels = named("level", to_text)
-    cell_kinds = named("sample_type", lambda v: typer.from_cell(to_text(v)))
-    by_name: dict[str | None, Any] = {}
-
-    def from_name(name: str | None) -> Any:
+    kinds = named("sample_type", lambda v: typer.from_cell(to_text(v)))
+    if None in kinds:
         # Plain rows have a concentration, so a name that says no type makes a standard.
-        if name not in by_name:
-            try:
-                by_name[name] = typer.from_name(name, has_concentration=True)
-            except Exception:  # noqa: BLE001 - the row reader raises it in its row
-                by_name[name] = _BAD
-        return by_name[name]
-
-    plan: list[PlainRow | None] = [None] * n
-    for at, values in enumerate(zip(analytes, concentration, response, standard, cell_kinds,
-                                    replicates, names, orders, levels, included, reasons)):
-        row = first_row + at
-        (name_of, conc, found, is_found, kind, replicate, name, order, level, flag,
-         reason) = values
-        if (conc is _BAD or found is _BAD or is_found is _BAD or name_of is _BAD
-                or name is _BAD or kind is _BAD or replicate is _BAD or order is _BAD
-                or level is _BAD or flag is not True or row in skip
-                or not (reason is None or reason == "")
-                or (is_found is not None and is_found <= 0)):
-            continue
-        if kind is None:
-            kind = from_name(name)
-            if kind is _BAD:
-                continue
-        plan[at] = (name_of, conc, found, is_found, kind, replicate, name, order, level)
-    return plan
+        from_names = _classify(names, lambda v: typer.from_name(v, has_concentration=True))
+        kinds = [from_names[at] if kind is None else kind for at, kind in enumerate(kinds)]
+        bad.update(_bad_rows(kinds))
+    standards: list[Any] = [None] * n
+    ratios: list[Any] = found
+    own: list[Any] = [None] * n
+    if is_column is not None:
+        standards, wrong = _numbers(column_of(block, is_column.index, width))
+        bad |= wrong
+        bad.update(at for at, value in enumerate(standards) if value is not None and value <= 0)
+        ratios = [r / s if r is not None and s is not None and s > 0 else math.nan
+                  for r, s in zip(found, standards)]
+        own = found
+    ok = [True] * n
+    for at in bad:
+        ok[at] = False
+    return [
+        Point(name_of, conc, ratio, f"{prefix}{row}", kind, replicate, True, None, name, order,
+              standard, analyte_response, level) if good else None
+        for good, row, name_of, conc, ratio, kind, replicate, name, order, standard,
+        analyte_response, level in zip(
+            ok, range(first_row + 1, first_row + n + 1), analytes, concentration, ratios, kinds,
+            replicates, names, orders, standards, own, levels)
+    ]

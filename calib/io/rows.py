@@ -38,7 +38,7 @@ from calib.io.cells import (
 )
 from calib.io.columns import Column, squash
 from calib.io.decimals import DecimalReader
-from calib.io.fastrows import PlainRow, plan_rows
+from calib.io.fastrows import plan_rows
 from calib.io.layout import Table
 from calib.io.numbers import (
     Marker,
@@ -449,10 +449,19 @@ class _TableReader:
         self.result.warnings.extend(summaries.values())
         plan = self.plan(summaries)
         body = self.table.body
+        is_column = self.targets[0][3]
+        is_prefix = self.cell_prefix[is_column.index] if is_column is not None else ""
+        points, at_rows = self.result.points, self.result.rows
         for index in body:
-            ready = plan[index - body.start] if plan is not None else None
-            if ready is not None:
-                self.plain_point(index, ready)
+            point = plan[index - body.start] if plan is not None else None
+            if point is not None:
+                # A plain row, read column-wise: no cell of it can be refused.
+                if is_column is not None:
+                    self.internal_standards.append((
+                        f"the internal standard of {point.analyte}", f"{is_prefix}{index + 1}",
+                        point.is_response, point.sample_id))
+                points.append(point)
+                at_rows.append(index)
                 continue
             row = rows[index]
             if index in summaries or all(map(is_blank, row)):
@@ -473,8 +482,8 @@ class _TableReader:
         self._describe()
         return self.result
 
-    def plan(self, summaries: Mapping[int, str]) -> list[PlainRow | None] | None:
-        """The plain rows of a long table, read column-wise (None for other layouts)."""
+    def plan(self, summaries: Mapping[int, str]) -> list[Point | None] | None:
+        """The points of the plain rows of a long table, read column-wise (None: other layouts)."""
         if self.table.header.layout != "long" or len(self.targets) != 1:
             return None
         _, conc_column, response_column, is_column = self.targets[0]
@@ -485,36 +494,7 @@ class _TableReader:
         return plan_rows(self.grid.rows[body.start:body.stop], index=self.index,
                          columns=(conc_column, response_column, is_column),
                          analyte=self.analyte, typer=self.typer, skip=skip,
-                         first_row=body.start)
-
-    def plain_point(self, row_index: int, ready: PlainRow) -> None:
-        """The point of a plain row, as :meth:`row_points` would make it."""
-        analyte, concentration, response, standard, kind, replicate, name, order, level = ready
-        self.current_analyte = analyte
-        _, _, response_column, is_column = self.targets[0]
-        analyte_response = None
-        if is_column is not None:
-            assert standard is not None
-            self.internal_standards.append(
-                (f"the internal standard of {analyte}",
-                 f"{self.cell_prefix[is_column.index]}{row_index + 1}", standard, name))
-            analyte_response, response = response, response / standard
-        self.result.points.append(Point(
-            analyte=analyte,
-            concentration=concentration,
-            response=response,
-            source_cell=f"{self.cell_prefix[response_column.index]}{row_index + 1}",
-            sample_type=kind,
-            replicate=replicate,
-            included=True,
-            exclusion_reason=None,
-            sample_id=name,
-            injection_order=order,
-            is_response=standard,
-            analyte_response=analyte_response,
-            level=level,
-        ))
-        self.result.rows.append(row_index)
+                         first_row=body.start, prefix=self.cell_prefix[response_column.index])
 
     def _describe(self) -> None:
         header = self.table.header

@@ -47,8 +47,8 @@ import python_calamine  # noqa: E402
 import read_xlsx  # noqa: E402
 
 from calib.io import read_run  # noqa: E402
-from calib.io.files import load_file  # noqa: E402
-from calib.io.limits import inspect_archive  # noqa: E402
+from calib.io.files import load_file
+from calib.io.limits import inspect_archive
 
 T = TypeVar("T")
 

@@ -15,15 +15,16 @@ order are the same whichever reads them.
 
 from __future__ import annotations
 
+import dataclasses
 import math
-from operator import itemgetter
 from collections.abc import Callable, Sequence
+from itertools import repeat
+from operator import itemgetter
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from calib.io.cells import Cell, is_blank, to_flag, to_integer, to_name, to_text
-from calib.options import SampleType
 from calib.run import Point
 
 if TYPE_CHECKING:
@@ -220,11 +221,24 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
     ok = [True] * n
     for at in bad:
         ok[at] = False
+    cells = [f"{prefix}{row}" for row in range(first_row + 1, first_row + n + 1)]
     return [
-        Point(name_of, conc, ratio, f"{prefix}{row}", kind, replicate, True, None, name, order,
-              standard, analyte_response, level) if good else None
-        for good, row, name_of, conc, ratio, kind, replicate, name, order, standard,
-        analyte_response, level in zip(
-            ok, range(first_row + 1, first_row + n + 1), analytes, concentration, ratios, kinds,
-            replicates, names, orders, standards, own, levels)
+        _point(values[1:]) if values[0] else None
+        for values in zip(ok, analytes, concentration, ratios, cells, kinds, replicates,
+                          repeat(True), repeat(None), names, orders, standards, own, levels)
     ]
+
+
+_FIELDS = tuple(field.name for field in dataclasses.fields(Point))
+_NEW = object.__new__
+
+
+def _point(values: tuple[Any, ...]) -> Point:
+    """``Point(*values)``, made without the frozen dataclass's one guarded assignment per field.
+
+    The values are in field order and already checked; the point is equal to, hashes and
+    prints as the one ``Point(*values)`` makes (see tests/io/test_fastrows.py).
+    """
+    point = _NEW(Point)
+    point.__dict__.update(zip(_FIELDS, values))
+    return point

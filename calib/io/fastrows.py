@@ -126,8 +126,10 @@ def _bad_rows(values: list[Any]) -> set[int]:
 def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
               columns: tuple[Column, Column, Column | None], analyte: str | None,
               typer: SampleTyper, skip: set[int], first_row: int, prefix: str
-              ) -> list[Point | None]:
-    """The point of each plain row of a long table; None for rows to read one by one.
+              ) -> tuple[list[Point | None], bool]:
+    """The point of each plain row of a long table (None for rows to read one by one).
+
+    Returns the points, and whether every row is plain.
 
     Parameters
     ----------
@@ -154,15 +156,15 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
     >>> from calib.io.sampletypes import SampleTyper
     >>> conc, area = Column("concentration", "Conc", 1), Column("response", "Area", 2)
     >>> rows = [["Cal 1", 0.5, 1010.0], ["Cal 2", "1,0", 2032.0], ["Blank", 0.0, 3.0]]
-    >>> plan = plan_rows(rows, index={"sample_id": 0, "concentration": 1, "response": 2},
-    ...                  columns=(conc, area, None), analyte="Nitrate", typer=SampleTyper(),
-    ...                  skip=set(), first_row=3, prefix="Run!C")
-    >>> plan[0].source_cell, plan[0].sample_type.value, plan[1], plan[2].sample_type.value
-    ('Run!C4', 'standard', None, 'blank')
+    >>> plan, every = plan_rows(rows, index={"sample_id": 0, "concentration": 1, "response": 2},
+    ...                         columns=(conc, area, None), analyte="Nitrate",
+    ...                         typer=SampleTyper(), skip=set(), first_row=3, prefix="Run!C")
+    >>> plan[0].source_cell, plan[0].sample_type.value, plan[1], plan[2].sample_type.value, every
+    ('Run!C4', 'standard', None, 'blank', False)
     """
     n = len(block)
     if n == 0:
-        return []
+        return [], True
     width = min(map(len, block))
     conc_column, response_column, is_column = columns
     bad = {row - first_row for row in skip if first_row <= row < first_row + n}
@@ -226,7 +228,7 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
         _point(values[1:]) if values[0] else None
         for values in zip(ok, analytes, concentration, ratios, cells, kinds, replicates,
                           repeat(True), repeat(None), names, orders, standards, own, levels)
-    ]
+    ], not bad
 
 
 _FIELDS = tuple(field.name for field in dataclasses.fields(Point))

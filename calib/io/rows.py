@@ -447,11 +447,22 @@ class _TableReader:
         rows = self.grid.rows
         summaries = find_summary_rows(self.grid, self.table)
         self.result.warnings.extend(summaries.values())
-        plan = self.plan(summaries)
+        planned = self.plan(summaries)
+        plan = planned[0] if planned is not None else None
         body = self.table.body
         is_column = self.targets[0][3]
         is_prefix = self.cell_prefix[is_column.index] if is_column is not None else ""
         points, at_rows = self.result.points, self.result.rows
+        if plan is not None and planned is not None and planned[1]:
+            # Every row is plain (the usual export): take the points as they are.
+            if is_column is not None:
+                self.internal_standards.extend(
+                    (f"the internal standard of {point.analyte}", f"{is_prefix}{index + 1}",
+                     point.is_response, point.sample_id)
+                    for point, index in zip(plan, body) if point is not None)
+            points.extend(point for point in plan if point is not None)
+            at_rows.extend(body)
+            plan, body = None, range(0)
         for index in body:
             point = plan[index - body.start] if plan is not None else None
             if point is not None:
@@ -482,8 +493,9 @@ class _TableReader:
         self._describe()
         return self.result
 
-    def plan(self, summaries: Mapping[int, str]) -> list[Point | None] | None:
-        """The points of the plain rows of a long table, read column-wise (None: other layouts)."""
+    def plan(self, summaries: Mapping[int, str]) -> tuple[list[Point | None], bool] | None:
+        """The points of the plain rows of a long table, read column-wise, and whether every
+        row is plain (None for other layouts)."""
         if self.table.header.layout != "long" or len(self.targets) != 1:
             return None
         _, conc_column, response_column, is_column = self.targets[0]

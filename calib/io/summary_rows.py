@@ -110,7 +110,8 @@ def _unnamed(grid: Grid, table: Table, data: list[int], name: str) -> None:
     shared = table.header.shared
     column = shared[name]
     rows = grid.rows
-    values = [_cell(rows[i], column.index) for i in data]
+    at = column.index
+    values = [row[at] if at < len(row) else None for row in map(rows.__getitem__, data)]
     blank = {value: is_blank(value) for value in set(values)}  # each distinct cell tested once
     named = [i for i, value in zip(data, values) if not blank[value]]
     if len(named) < NAMED_ROWS or len(named) == len(data):

@@ -133,3 +133,15 @@ def test_any_table_reads_the_same_both_ways(body, with_is):
         plain = _read(grid, column_wise=True, monkeypatch=patch)
         reference = _read(grid, column_wise=False, monkeypatch=patch)
     _same(plain, reference)
+
+
+def test_a_table_of_plain_rows_only_reads_the_same_both_ways(monkeypatch):
+    body = [["KX-214" if i % 2 else "KX-215", f"Cal {i}", "standard", float(i), 100.0 * i,
+             1000.0 + i, 1.0, float(i), "yes", ""] for i in range(1, 13)]
+    grid = Grid([HEADER, *body], file="kx.xlsx", label="Run", sheet="Run")
+    plain = _read(grid, column_wise=True, monkeypatch=monkeypatch)
+    reference = _read(grid, column_wise=False, monkeypatch=monkeypatch)
+    _same(plain, reference)
+    # The internal-standard list names each cell of column F (rows 2 to 13), in row order.
+    assert [cell for _, cell, _, _ in plain[2]] == [f"Run!F{r}" for r in range(2, 14)]
+    assert plain[2][0][0] == "the internal standard of KX-214"

@@ -145,3 +145,36 @@ def test_a_table_of_plain_rows_only_reads_the_same_both_ways(monkeypatch):
     # The internal-standard list names each cell of column F (rows 2 to 13), in row order.
     assert [cell for _, cell, _, _ in plain[2]] == [f"Run!F{r}" for r in range(2, 14)]
     assert plain[2][0][0] == "the internal standard of KX-214"
+
+
+def test_reading_pauses_the_cycle_collector_and_resumes_it(tmp_path):
+    # Python's gc module: isenabled() says whether the collector runs.
+    import gc
+
+    from calib.io import read_run
+
+    path = tmp_path / "n.csv"
+    path.write_text("Conc (mg/L),Area\n0.5,1010\n1.0,2032\n2.0,4071\n5.0,10150\n10,20290\n",
+                    encoding="utf-8")
+    seen = []
+
+    class Spy:
+        suffixes = (".csv",)
+
+        def read(self, path, *, sheet=None, analyte=None):
+            seen.append(gc.isenabled())
+            from calib.io.csv_text import CsvReader
+            return CsvReader().read(path, sheet=sheet, analyte=analyte)
+
+    assert gc.isenabled()
+    run = read_run(path, readers=(Spy(),))
+    assert seen == [False] and gc.isenabled() and len(run.points) == 5
+    gc.disable()
+    try:
+        read_run(path, readers=(Spy(),))
+        assert not gc.isenabled()  # paused by someone else before: left paused
+    finally:
+        gc.enable()
+    with pytest.raises(InputError):
+        read_run(tmp_path / "missing.csv", readers=(Spy(),))
+    assert gc.isenabled()

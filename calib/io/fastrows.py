@@ -22,8 +22,6 @@ from itertools import repeat
 from operator import itemgetter
 from typing import TYPE_CHECKING, Any
 
-import numpy as np
-
 from calib.io.cells import Cell, is_blank, to_flag, to_integer, to_name, to_text
 from calib.run import Point
 
@@ -69,19 +67,16 @@ def _parse(parser: Callable[[Cell], Any], value: Cell) -> Any:
         return _BAD
 
 
-def _floats(values: list[Cell]) -> np.ndarray | None:
-    """The column as a float array when every cell is a float; None otherwise."""
-    if set(map(type, values)) != {float}:
-        return None
-    return np.fromiter(values, dtype=float, count=len(values))
+def _all_floats(values: list[Cell]) -> bool:
+    """True when every cell is a float (the usual numeric column of a workbook)."""
+    return set(map(type, values)) == {float}
 
 
 def _whole_numbers(values: list[Cell]) -> list[Any]:
     """Replicate numbers or injection orders as the row reader reads them."""
-    array = _floats(values)
-    if array is not None and bool(np.all(np.isfinite(array))) and bool(
-            np.all(array == np.floor(array))) and bool(np.all(np.abs(array) < 2.0 ** 53)):
-        return array.astype(np.int64).tolist()
+    if _all_floats(values) and all(map(math.isfinite, values)) and all(
+            map(float.is_integer, values)):  # type: ignore[arg-type]
+        return list(map(int, values))  # type: ignore[arg-type]
     return _classify(values, _whole)
 
 
@@ -96,14 +91,9 @@ def _whole(value: Cell) -> int | None:
 
 def _numbers(values: list[Cell], *, least: float | None = None) -> tuple[list[Any], set[int]]:
     """The cells read as plain finite numbers (at least ``least``), and the rows that are not."""
-    array = _floats(values)
-    if array is not None:
-        good = np.isfinite(array)
-        if least is not None:
-            good &= array >= least
-        if bool(good.all()):
-            return values, set()
-        return values, set(np.flatnonzero(~good).tolist())
+    if _all_floats(values) and all(map(math.isfinite, values)) and (  # type: ignore[arg-type]
+            least is None or min(values, default=0.0) >= least):  # type: ignore[type-var]
+        return values, set()
     out: list[Any] = []
     bad: set[int] = set()
     for at, value in enumerate(values):

@@ -112,7 +112,6 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     from calib import service
     from calib.cautions import CAUTIONS
-    from calib.cli import render
 
     imap = None
     if args.map:
@@ -143,6 +142,7 @@ def run(args: argparse.Namespace) -> int:
         print(service.describe_import(args.run, sheet=sheet_arg(args.sheet), map=imap))
         return 0
     from calib.checks.narrowing import RangeError
+    from calib.cli import render  # imported after --show-import, which needs no checks
 
     if args.pdf and refuse_existing("check", [Path(args.pdf)], force=args.force):
         return 2

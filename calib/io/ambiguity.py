@@ -266,6 +266,9 @@ def check_replicates(reads: Sequence[tuple[Grid, Table, TableRead]], points: Seq
     for grid, table, read in reads:
         own = points[start:start + len(read.points)]
         start += len(read.points)
+        orders = [point.injection_order for point in own]
+        if None not in orders and len(set(orders)) == len(orders):
+            continue  # every row has its own injection order: no replicate can repeat
         first: dict[tuple[object, ...], tuple[Point, int]] = {}
         repeats: dict[tuple[object, ...], list[tuple[Point, int]]] = {}
         standard = SampleType.STANDARD

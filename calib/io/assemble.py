@@ -111,12 +111,19 @@ def _range(grid: Grid, table: Table) -> str:
 
 def _check_levels(points: Sequence[Point], grids: Sequence[Grid], units: dict[str, dict[str, str]]
                   ) -> None:
-    by_analyte: dict[str, list[Point]] = {}
+    # One pass for the distinct concentrations; an analyte short of levels is looked at again.
+    concentrations: dict[str, set[float]] = {}
+    standard = SampleType.STANDARD
     for point in points:
-        by_analyte.setdefault(point.analyte, []).append(point)
+        own_levels = concentrations.setdefault(point.analyte, set())
+        if point.sample_type is standard:
+            own_levels.add(point.concentration)
     grid = grids[0]
     sheet = grid.sheet if len(grids) == 1 else None
-    for analyte, own in by_analyte.items():
+    for analyte, distinct in concentrations.items():
+        if len(distinct) >= MIN_LEVELS:
+            continue
+        own = [p for p in points if p.analyte == analyte]
         standards = [p for p in own if p.sample_type is SampleType.STANDARD]
         levels = sorted({p.concentration for p in standards})
         if len(levels) >= MIN_LEVELS:

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
+from itertools import pairwise
 
 from calib.errors import InputError
 from calib.options import SampleType
@@ -45,9 +46,22 @@ def merge_close_levels(points: list[Point], warnings: list[str]) -> None:
     Cu: the concentrations 999.9999999999999 (r.csv!C3) and 1000 (r.csv!C4) differ by less than \
 1e-09 relative and were read as one level, 1000
     """
+    standard = SampleType.STANDARD
+    distinct: dict[str, set[float]] = {}
+    for point in points:
+        if point.sample_type is standard and point.concentration == point.concentration:
+            distinct.setdefault(point.analyte, set()).add(point.concentration)
+    near = set()
+    for analyte, values in distinct.items():
+        ordered = sorted(values)
+        if any(_close(a, b) for a, b in pairwise(ordered)):
+            near.add(analyte)
+    if not near:
+        return  # the usual run: no two levels of an analyte are that close
     by_analyte: dict[str, list[int]] = {}
     for index, point in enumerate(points):
-        if point.sample_type is SampleType.STANDARD and point.concentration == point.concentration:
+        if point.sample_type is standard and point.concentration == point.concentration \
+                and point.analyte in near:
             by_analyte.setdefault(point.analyte, []).append(index)
     for analyte, indices in by_analyte.items():
         values = sorted({points[i].concentration for i in indices})

@@ -38,6 +38,7 @@ from calib.io.cells import (
 )
 from calib.io.columns import Column, squash
 from calib.io.decimals import DecimalReader
+from calib.io.fastrows import plan_rows
 from calib.io.layout import Table
 from calib.io.numbers import (
     Marker,
@@ -446,7 +447,33 @@ class _TableReader:
         rows = self.grid.rows
         summaries = find_summary_rows(self.grid, self.table)
         self.result.warnings.extend(summaries.values())
-        for index in self.table.body:
+        planned = self.plan(summaries)
+        plan = planned[0] if planned is not None else None
+        body = self.table.body
+        is_column = self.targets[0][3]
+        is_prefix = self.cell_prefix[is_column.index] if is_column is not None else ""
+        points, at_rows = self.result.points, self.result.rows
+        if plan is not None and planned is not None and planned[1]:
+            # Every row is plain (the usual export): take the points as they are.
+            if is_column is not None:
+                self.internal_standards.extend(
+                    (f"the internal standard of {point.analyte}", f"{is_prefix}{index + 1}",
+                     point.is_response, point.sample_id)
+                    for point, index in zip(plan, body) if point is not None)
+            points.extend(point for point in plan if point is not None)
+            at_rows.extend(body)
+            plan, body = None, range(0)
+        for index in body:
+            point = plan[index - body.start] if plan is not None else None
+            if point is not None:
+                # A plain row, read column-wise: no cell of it can be refused.
+                if is_column is not None:
+                    self.internal_standards.append((
+                        f"the internal standard of {point.analyte}", f"{is_prefix}{index + 1}",
+                        point.is_response, point.sample_id))
+                points.append(point)
+                at_rows.append(index)
+                continue
             row = rows[index]
             if index in summaries or all(map(is_blank, row)):
                 continue
@@ -465,6 +492,21 @@ class _TableReader:
         self.result.decimal = self.numbers.decimal if self.numbers.settled else None
         self._describe()
         return self.result
+
+    def plan(self, summaries: Mapping[int, str]) -> tuple[list[Point | None], bool] | None:
+        """The points of the plain rows of a long table, read column-wise, and whether every
+        row is plain (None for other layouts)."""
+        if self.table.header.layout != "long" or len(self.targets) != 1:
+            return None
+        _, conc_column, response_column, is_column = self.targets[0]
+        if conc_column is None or self.table.body.step != 1:
+            return None
+        body = self.table.body
+        skip = set(summaries) | set(self.grid.hidden_rows)
+        return plan_rows(self.grid.rows[body.start:body.stop], index=self.index,
+                         columns=(conc_column, response_column, is_column),
+                         analyte=self.analyte, typer=self.typer, skip=skip,
+                         first_row=body.start, prefix=self.cell_prefix[response_column.index])
 
     def _describe(self) -> None:
         header = self.table.header

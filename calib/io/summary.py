@@ -10,7 +10,7 @@ from __future__ import annotations
 from collections import Counter
 
 from calib.options import SampleType
-from calib.run import Run
+from calib.run import Point, Run
 
 __all__ = ["describe_import"]
 
@@ -83,10 +83,12 @@ def describe_import(run: Run) -> str:
         lines.extend(f"           {item}" for item in items[1:])
     if run.units:
         lines.append("Units:     " + "; ".join(f"{k} {v}" for k, v in run.units.items()))
-    analytes = run.analytes
-    lines.append(f"Analytes:  {len(analytes)}")
-    for analyte in analytes:
-        own = [p for p in run.points if p.analyte == analyte]
+    # One pass over the points, not one per analyte: exports hold hundreds of analytes.
+    by_analyte: dict[str, list[Point]] = {}
+    for point in run.points:
+        by_analyte.setdefault(point.analyte, []).append(point)
+    lines.append(f"Analytes:  {len(by_analyte)}")
+    for analyte, own in by_analyte.items():
         kinds = Counter(p.sample_type for p in own)
         standards = [p for p in own if p.sample_type is SampleType.STANDARD]
         levels = sorted({p.concentration for p in standards})

@@ -23,6 +23,7 @@ from collections.abc import Sequence
 from calib.errors import InputError
 from calib.io.cells import Cell, is_blank
 from calib.io.columns import squash
+from calib.io.fastrows import column_of
 from calib.io.layout import Table
 from calib.io.table import Grid
 from calib.options import SampleType
@@ -78,26 +79,26 @@ def find_summary_rows(grid: Grid, table: Table) -> dict[int, str]:
     """
     labels = _label_columns(grid, table)
     rows = grid.rows
+    body = table.body
+    # Column by column, each distinct text folded once (exports run to 10^5 rows); a row's
+    # note names the leftmost label cell that marks it.
+    marked: dict[int, tuple[int, str]] = {}
+    block = [rows[index] for index in body]
+    width = min(map(len, block), default=0)
+    for column in labels:
+        values = column_of(block, column, width)
+        words = {v for v in set(values) if type(v) is str and squash(v) in SUMMARY_WORDS}
+        if not words:
+            continue
+        for index, value in zip(body, values):
+            if type(value) is str and value in words and index not in marked:
+                marked[index] = (column, value)
     found: dict[int, str] = {}
-    data: list[int] = []
-    # Labels repeat from row to row: fold each distinct text once (exports run to 10^5 rows).
-    summary: dict[str, bool] = {}
-    for index in table.body:
-        row = rows[index]
-        width = len(row)
-        for column in labels:
-            value = row[column] if column < width else None
-            if type(value) is not str:
-                continue
-            hit = summary.get(value)
-            if hit is None:
-                hit = summary[value] = squash(value) in SUMMARY_WORDS
-            if hit:
-                found[index] = (f"{grid.reference(column, index)}: row {index + 1} is a summary "
-                                f"row ({value.strip()!r}), not an injection; it was set aside")
-                break
-        else:
-            data.append(index)
+    for index in sorted(marked):
+        column, value = marked[index]
+        found[index] = (f"{grid.reference(column, index)}: row {index + 1} is a summary "
+                        f"row ({value.strip()!r}), not an injection; it was set aside")
+    data = [index for index in body if index not in marked]
     shared = table.header.shared
     for name in ("sample_id", "level"):
         if name in shared:
@@ -109,7 +110,10 @@ def _unnamed(grid: Grid, table: Table, data: list[int], name: str) -> None:
     shared = table.header.shared
     column = shared[name]
     rows = grid.rows
-    named = [i for i in data if not is_blank(_cell(rows[i], column.index))]
+    at = column.index
+    values = [row[at] if at < len(row) else None for row in map(rows.__getitem__, data)]
+    blank = {value: is_blank(value) for value in set(values)}  # each distinct cell tested once
+    named = [i for i, value in zip(data, values) if not blank[value]]
     if len(named) < NAMED_ROWS or len(named) == len(data):
         return
     conc = shared.get("concentration")

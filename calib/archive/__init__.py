@@ -12,6 +12,8 @@ SD over time with the control limits and run rules of
 archive indexes from the record JSON.
 """
 
+from calib.archive.anchor import HeadReceipt
+from calib.archive.audit import EntryReport
 from calib.archive.baseline import (
     BASELINE_SCHEMA,
     BaselineCurve,
@@ -41,8 +43,6 @@ from calib.archive.control import (
     run_rules,
     screened_limits,
 )
-from calib.archive.anchor import HeadReceipt
-from calib.archive.audit import EntryReport
 from calib.archive.figures import CurveFigures, RecordFacts, record_facts
 from calib.archive.store import Archive, ArchiveError
 from calib.archive.trend import (

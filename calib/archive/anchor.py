@@ -113,7 +113,7 @@ def stamp_of(receipt: HeadReceipt, kind: str) -> str:
     True
     """
     text = (f"calib archive head\n{receipt.archive_id}\n{receipt.seq}\n{receipt.entry_hash}\n"
-            f"{receipt.written_at}").encode("utf-8")
+            f"{receipt.written_at}").encode()
     if kind == "hmac-sha256":
         key = _key()
         if key is None:

@@ -201,7 +201,6 @@ def verify_entry(archive: Archive, digest: str) -> EntryReport:
     -------
     EntryReport
     """
-    from calib.archive.store import SELECT_META
 
     with archive.storage.snapshot():
         entry = archive.find_digest(digest)

@@ -44,9 +44,9 @@ from calib.archive.chain import GENESIS_HASH
 
 __all__ = [
     "APPLICATION_ID",
+    "POSTGRES_TRIGGERS",
     "SCHEMA_VERSION",
     "SQLITE_TRIGGERS",
-    "POSTGRES_TRIGGERS",
     "TRAIL_TRIGGERS",
     "WRITER_ROLE",
     "migrate_sqlite_1_to_2",

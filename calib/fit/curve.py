@@ -17,8 +17,8 @@ from calib.fit.design import (
     design_matrix,
     fit_weights,
     level_variances,
-    variance_function,
     raw_weights,
+    variance_function,
     weight_basis,
 )
 from calib.fit.distributions import t_ppf, t_sf

@@ -24,13 +24,13 @@ from contextlib import contextmanager
 from pathlib import Path
 
 from calib.errors import InputError
+from calib.io import limits
 from calib.io.assemble import assemble
 from calib.io.cells import Cell
 from calib.io.detail import FormulaInspector, SheetDetail, ods_detail, xlsx_detail
 from calib.io.files import RawFile, load_file
 from calib.io.importmap import ImportMap
 from calib.io.layout import find_first_header
-from calib.io import limits
 from calib.io.limits import ArchiveFacts, check_sheet_size, check_xls, inspect_archive
 from calib.io.sandbox import BookData, SheetData, failure_error, limits_for, parse_workbook
 from calib.io.table import HEADER_SEARCH_ROWS, Grid

@@ -26,8 +26,13 @@ from calib.io.columns import column_letter, match_heading, split_unit, squash
 from calib.io.csv_text import DELIMITERS, decode_text
 from calib.io.files import RawFile
 from calib.io.importmap import ImportMap
-from calib.io.limits import check_sheet_size, check_text_rows, check_text_width, check_xls, \
-    inspect_archive
+from calib.io.limits import (
+    check_sheet_size,
+    check_text_rows,
+    check_text_width,
+    check_xls,
+    inspect_archive,
+)
 from calib.io.sandbox import failure_error, limits_for, parse_workbook
 from calib.io.table import HEADER_SEARCH_ROWS, Grid
 from calib.run import SourceInfo

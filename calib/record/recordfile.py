@@ -105,7 +105,7 @@ def read_path_bytes(path: str | Path) -> bytes:
         raise InputError(f"cannot be read ({exc.strerror})", file=str(path)) from None
 
 
-def record_from_pdf(data: bytes):  # noqa: ANN201 - Record; imported lazily
+def record_from_pdf(data: bytes):
     """The current version of the record in a record PDF: attached JSON plus PDF signature entries.
 
     For the archive and the web page: no judgement, only reading.  Use

@@ -109,7 +109,7 @@ class _AnalyteMark(SectionMark):
         self.top = top
         self._opens_page = False
 
-    def drawOn(self, canvas: Canvas, x: float, y: float, _sW: float = 0) -> None:  # noqa: N802
+    def drawOn(self, canvas: Canvas, x: float, y: float, _sW: float = 0) -> None:
         self._opens_page = y >= self.top - 0.5
         super().drawOn(canvas, x, y, _sW)
 
@@ -133,7 +133,7 @@ class _AnalyteMark(SectionMark):
 class _BatchCanvas(RecordCanvas):
     """The record canvas; a new page's header starts with the analyte continuing onto it."""
 
-    def showPage(self) -> None:  # noqa: N802
+    def showPage(self) -> None:
         super().showPage()
         self._calib_section = getattr(self, "_batch_last", "") or None
 

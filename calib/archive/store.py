@@ -340,12 +340,24 @@ class Archive:
     @staticmethod
     def _filters(record_id: str | None, analyte: str | None, verdict: str | None,
                  instrument: str | None, date_from: str | None, date_to: str | None,
-                 kind: str | None) -> tuple[str, list[Any]]:
+                 kind: str | None, partial: bool = False) -> tuple[str, list[Any]]:
         clauses, params = [], []
-        for column, value in (("record_id", record_id), ("instrument", instrument)):
-            if value is not None:
-                clauses.append(f"lower(e.{column}) = lower(?)")
+
+        def text(column: str, value: str) -> None:
+            # Case-insensitive; with ``partial`` any part of the name (LIKE, '!' escapes).
+            if partial:
+                clauses.append(f"lower({column}) LIKE ? ESCAPE '!'")
+                escaped = value.lower().replace("!", "!!").replace("%", "!%").replace("_", "!_")
+                params.append(f"%{escaped}%")
+            else:
+                clauses.append(f"lower({column}) = lower(?)")
                 params.append(value)
+
+        if record_id is not None:
+            clauses.append("lower(e.record_id) = lower(?)")
+            params.append(record_id)
+        if instrument is not None:
+            text("e.instrument", instrument)
         for column, value in (("verdict", verdict), ("kind", kind)):
             if value is not None:
                 clauses.append(f"e.{column} = ?")
@@ -359,9 +371,9 @@ class Archive:
         if analyte is not None:
             # IN (…) rather than EXISTS: the engines then start from the analyte index,
             # so a rare analyte is found without walking the whole archive.
-            clauses.append("e.seq IN (SELECT c.seq FROM curves c"
-                           " WHERE lower(c.analyte) = lower(?))")
-            params.append(analyte)
+            before = len(clauses)
+            text("c.analyte", analyte)
+            clauses[before] = f"e.seq IN (SELECT c.seq FROM curves c WHERE {clauses[before]})"
         return (f" WHERE {' AND '.join(clauses)}" if clauses else ""), params
 
     def entries(self, record_id: str | None = None, analyte: str | None = None, *,
@@ -369,7 +381,7 @@ class Archive:
                 date_from: str | None = None, date_to: str | None = None,
                 kind: str | None = None, data: bool = True, limit: int | None = None,
                 offset: int = 0, after_seq: int | None = None,
-                newest_first: bool = False) -> list[ArchiveEntry]:
+                newest_first: bool = False, partial: bool = False) -> list[ArchiveEntry]:
         """Entries in chain order, optionally filtered and paged.
 
         Parameters
@@ -396,6 +408,9 @@ class Archive:
             ``newest_first``); faster than a large offset.
         newest_first : bool
             Newest entry first.
+        partial : bool
+            ``analyte`` and ``instrument`` match any part of the stored name
+            (case-insensitive): "pb" finds "Pb 220.353".
 
         Raises
         ------
@@ -405,7 +420,7 @@ class Archive:
         if (limit is not None and limit < 0) or offset < 0:
             raise ValueError(f"limit and offset must be 0 or more; got {limit}, {offset}")
         where, params = self._filters(record_id, analyte, verdict, instrument, date_from,
-                                      date_to, kind)
+                                      date_to, kind, partial)
         if after_seq is not None:
             where += (" AND " if where else " WHERE ") + (
                 "e.seq < ?" if newest_first else "e.seq > ?")
@@ -422,10 +437,10 @@ class Archive:
     def count(self, record_id: str | None = None, analyte: str | None = None, *,
               verdict: str | None = None, instrument: str | None = None,
               date_from: str | None = None, date_to: str | None = None,
-              kind: str | None = None) -> int:
+              kind: str | None = None, partial: bool = False) -> int:
         """How many entries :meth:`entries` would list with these filters (for paging)."""
         where, params = self._filters(record_id, analyte, verdict, instrument, date_from,
-                                      date_to, kind)
+                                      date_to, kind, partial)
         return int(self._store.query(f"SELECT count(*) FROM entries e{where}", params)[0][0])
 
     def latest(self, record_id: str) -> ArchiveEntry | None:

@@ -99,14 +99,16 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
         return p
 
     p = action("list", "list archive entries, oldest first", run_list)
-    p.add_argument("--analyte", metavar="A", help="only records with a curve of this analyte")
+    p.add_argument("--analyte", metavar="A",
+                   help="only records with a curve of this analyte (any part of the name, any "
+                        "case: Pb finds 'Pb 220.353')")
     p.add_argument("--from", dest="date_from", type=iso_date, metavar="DATE",
                    help="only runs dated on or after DATE (YYYY-MM-DD)")
     p.add_argument("--to", dest="date_to", type=iso_date, metavar="DATE",
                    help="only runs dated on or before DATE (YYYY-MM-DD)")
     p.add_argument("--verdict", choices=("accepted", "rejected", "needs-review"),
                    help="only records with this run verdict")
-    p.add_argument("--instrument", metavar="I", help="only runs on this instrument")
+    p.add_argument("--instrument", metavar="I", help="only runs on this instrument (any part of the name, any case)")
     p.add_argument("--limit", type=_count, metavar="N",
                    help="list at most N entries (one page)")
     p.add_argument("--offset", type=_count, default=0, metavar="N",
@@ -162,7 +164,7 @@ def run_list(args: argparse.Namespace) -> int:
     if path is None:
         return report_no_archive()
     filters = {"analyte": args.analyte, "verdict": args.verdict, "instrument": args.instrument,
-               "date_from": args.date_from, "date_to": args.date_to}
+               "date_from": args.date_from, "date_to": args.date_to, "partial": True}
     with _open(path) as archive:
         found = archive.entries(**filters, data=False, limit=args.limit, offset=args.offset)
         paged = args.limit is not None or args.offset

@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import special
 
 __all__ = ["detectable_bend_pct", "detectable_f_noncentrality", "detectable_t_noncentrality"]
 
@@ -34,22 +34,23 @@ def detectable_t_noncentrality(df: int, alpha: float = 0.05, power: float = 0.80
         raise ValueError(f"need df ≥ 1 and 0 < alpha, power < 1; got {df}, {alpha}, {power}")
     if df > 2000:
         # scipy's noncentral t loses accuracy at huge df, where it is the normal anyway.
-        crit = stats.norm.ppf(1 - alpha / 2)
+        crit = special.ndtri(1 - alpha / 2)
 
         def short(delta: float) -> float:
-            return float(stats.norm.sf(crit - delta) + stats.norm.cdf(-crit - delta)) - power
+            return float(special.ndtr(delta - crit) + special.ndtr(-crit - delta)) - power
     else:
-        crit = stats.t.ppf(1 - alpha / 2, df)
+        crit = special.stdtrit(df, 1 - alpha / 2)
 
         def short(delta: float) -> float:
-            # The far tail is negligible where it matters, and scipy returns NaN for it
-            # at a large δ: count it as 0 then.
-            far = float(stats.nct.cdf(-crit, df, delta))
-            return float(stats.nct.sf(crit, df, delta)) + (far if math.isfinite(far) else 0.0) - power
+            # The far tail is negligible where it matters, and may come back NaN at a
+            # large δ: count it as 0 then.
+            far = float(special.nctdtr(df, delta, -crit))
+            near = 1.0 - float(special.nctdtr(df, delta, crit))
+            return near + (far if math.isfinite(far) else 0.0) - power
 
     # The power at δ = crit + z(power)·(a bit) already exceeds ``power``; bracket from there.
     high = float(crit) + 10.0
-    return float(optimize.brentq(short, 0.0, high, xtol=1e-10))
+    return _root(short, 0.0, high, xtol=1e-10)
 
 
 def detectable_f_noncentrality(dfn: int, dfd: int, alpha: float = 0.05,
@@ -69,15 +70,28 @@ def detectable_f_noncentrality(dfn: int, dfd: int, alpha: float = 0.05,
         raise ValueError(f"need dfn, dfd ≥ 1 and 0 < alpha, power < 1; got {dfn}, {dfd}, "
                          f"{alpha}, {power}")
     dfd = min(dfd, 2000)  # beyond, F(dfn, dfd) is χ²(dfn)/dfn to many digits
-    crit = stats.f.ppf(1 - alpha, dfn, dfd)
+    crit = special.fdtri(dfn, dfd, 1 - alpha)
 
     def short(lam: float) -> float:
-        return float(stats.ncf.sf(crit, dfn, dfd, lam)) - power
+        return 1.0 - float(special.ncfdtr(dfn, dfd, lam, crit)) - power
 
     high = 10.0
     while short(high) < 0:
         high *= 2
-    return float(optimize.brentq(short, 1e-9, high, xtol=1e-8))
+    return _root(short, 1e-9, high, xtol=1e-8)
+
+
+def _root(f, low: float, high: float, *, xtol: float) -> float:  # noqa: ANN001
+    """The root of an increasing ``f`` between ``low`` (f < 0) and ``high`` (f ≥ 0), by
+    bisection to ``xtol``: a power curve is monotone, so halving never fails (and needs no
+    scipy.optimize on the checking path)."""
+    while high - low > xtol:
+        mid = 0.5 * (low + high)
+        if f(mid) < 0:
+            low = mid
+        else:
+            high = mid
+    return 0.5 * (low + high)
 
 
 def detectable_bend_pct(x: np.ndarray, weights: np.ndarray, fitted: np.ndarray, sigma2: float,

@@ -11,7 +11,7 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from calib.checks.context import CurveContext, StandardResult
 from calib.checks.result import CheckResult, Severity, Verdict
@@ -52,8 +52,8 @@ def _residual_findings(infl: Influence, alpha: float) -> dict[int, list[str]]:
     found: dict[int, list[str]] = {}
     crit = infl.bonferroni_critical(alpha)
     for i in infl.suggested(alpha):
-        p = min(1.0, 2 * infl.n_points * float(stats.t.sf(abs(infl.studentized[i]),
-                                                          infl.residual_df - 1)))
+        p = min(1.0, 2 * infl.n_points * float(special.stdtr(infl.residual_df - 1,
+                                                               -abs(infl.studentized[i]))))
         found.setdefault(int(i), []).append(
             f"studentized residual {infl.studentized[i]:+.2f} beyond ±{crit:.2f} "
             f"(Bonferroni, α = {alpha:g}; Bonferroni p = {p:.3g})")
@@ -114,7 +114,7 @@ def outliers_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Che
         grubbs_note += " flags " + ", ".join(f"{cells[i]} ({f})" for i, f in sorted(suspects.items()))
     n_points = infl.n_points if infl is not None else 0
     df_t = infl.residual_df - 1 if infl is not None else 0
-    p_value = (min(1.0, 2 * n_points * float(stats.t.sf(value, df_t)))
+    p_value = (min(1.0, 2 * n_points * float(special.stdtr(df_t, -value)))
                if value is not None and df_t >= 1 else None)
 
     def test_of(check: CheckResult) -> CheckResult:

@@ -6,7 +6,7 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
@@ -101,7 +101,7 @@ def levels(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResul
     if test.reason:
         return not_evaluated("variance-levels", sev, f"Variance test not made: {test.reason}.")
     alpha = p["alpha"]
-    crit = float(stats.chi2.isf(alpha, test.df))
+    crit = float(special.chdtri(test.df, alpha))
     figures = (f"Bartlett's test of the {_what(fit)} across {len(test.levels)} levels: "
                f"T = {test.statistic:.3g} on {test.df} df against χ²({1 - alpha:g}; {test.df}) "
                f"= {crit:.3g}, p = {test.p_value:.3g}; largest/smallest variance "
@@ -149,7 +149,7 @@ def advice(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResul
     if test.reason:
         return not_evaluated("weighting-advice", sev, f"no advice: {test.reason}")
     alpha = p["alpha"]
-    crit = float(stats.chi2.isf(alpha, 1))
+    crit = float(special.chdtri(1, alpha))
     trend = "grows" if test.gamma > 0 else "shrinks"
     figures = (f"Cook–Weisberg score test of the weighting {fit.weighting.value} against a "
                f"variance that changes as a power of the concentration: S = "

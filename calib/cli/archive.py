@@ -33,6 +33,7 @@ examples:
   calib archive show CR-3F9A1C2B77DE
   calib archive export CR-3F9A1C2B77DE --out exported/ --all-versions
   calib archive list --limit 50 --offset 100   (one page: entries 101-150)
+  calib archive lot L24-118                  every record made with that lot (a recall)
   calib archive verify                       (with CALIB_ARCHIVE=records.sqlite set)
   calib archive verify --fast                hash pass only: links and entry hashes
   calib archive verify --record CR-3F9A1C2B77DE   one record only, in milliseconds
@@ -108,12 +109,18 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                    help="only runs dated on or before DATE (YYYY-MM-DD)")
     p.add_argument("--verdict", choices=("accepted", "rejected", "needs-review"),
                    help="only records with this run verdict")
-    p.add_argument("--instrument", metavar="I", help="only runs on this instrument (any part of the name, any case)")
+    p.add_argument("--instrument", metavar="I",
+                   help="only runs on this instrument (any part of the name, any case)")
     p.add_argument("--limit", type=_count, metavar="N",
                    help="list at most N entries (one page)")
     p.add_argument("--offset", type=_count, default=0, metavar="N",
                    help="skip the first N matching entries (with --limit: the next page)")
     p.add_argument("--json", action="store_true", help="print the entries as a JSON list")
+    p = action("lot", "list every record whose standards came from a lot (a recall)", run_lot)
+    p.add_argument("lot", metavar="LOT", help="the lot, as its certificate names it (whole, any "
+                                              "case)")
+    p.add_argument("--material", metavar="ID", help="only this reference material id")
+    p.add_argument("--json", action="store_true", help="print the records as a JSON list")
     p = action("show", "show a record's versions, curves and signatures", run_show)
     p.add_argument("record_id", metavar="RECORD_ID", help="record id, e.g. CR-3F9A1C2B77DE")
     p.add_argument("--json", action="store_true", help="print the versions as JSON")
@@ -176,6 +183,47 @@ def run_list(args: argparse.Namespace) -> int:
     print(_entries_table(found) if found else f"No entries in {path} match.")
     if paged and found:
         print(f"(entries {args.offset + 1}–{args.offset + len(found)} of {total} matching)")
+    return 0
+
+
+def run_lot(args: argparse.Namespace) -> int:
+    """Every issued record whose standards came from ``args.lot`` (record JSON, page by page)."""
+    from calib.record.lots import records_with_lot
+
+    path = archive_path(args)
+    if path is None:
+        return report_no_archive()
+    found = []
+    with _open(path) as archive:
+        after = 0
+        while True:
+            page = archive.entries(kind="issued", limit=500, after_seq=after)
+            if not page:
+                break
+            after = page[-1].seq
+            found += records_with_lot(
+                (((e.seq, e.record_id, e.run_date), json.loads(e.json)) for e in page),
+                args.lot, material=args.material)
+        where = archive.location
+    if args.json:
+        json.dump([{"seq": u.key[0], "record_id": u.key[1], "run_date": u.key[2],
+                    "material": u.material, "lot": u.lot, "run_file": u.run_file,
+                    "analytes": list(u.analytes)} for u in found],
+                  sys.stdout, ensure_ascii=False, indent=1)
+        sys.stdout.write("\n")
+        return 0
+    if not found:
+        print(f"No record in {where} names lot {args.lot.strip()!r}"
+              + (f" of material {args.material}" if args.material else "") + ".")
+        return 0
+    print(f"{len(found)} record{'s' if len(found) != 1 else ''} in {where} used lot "
+          f"{found[0].lot}:")
+    print(f"{'seq':>5}  {'record':<15}  {'run date':<10}  {'material':<16}  {'run file':<30}  "
+          "analytes")
+    for u in found:
+        seq, record_id, run_date = u.key
+        print(f"{seq:>5}  {record_id:<15}  {run_date or '—':<10}  {u.material:<16}  "
+              f"{u.run_file:<30}  {', '.join(u.analytes)}")
     return 0
 
 

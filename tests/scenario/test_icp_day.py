@@ -169,3 +169,15 @@ def test_a_folder_of_three_days_and_the_recall_of_a_lot(bench, capsys):
     assert [(u.key, u.analytes) for u in found] == [
         (f"icp_{d}.pdf", ("As 188.980",)) for d in ("2026-12-01", "2026-12-02", "2026-12-03")]
     assert records_with_lot(bodies, "ME-24-11") == []
+    # The same recall from the archive the three runs were filed in: calib archive lot.
+    code = main(["archive", "lot", "AS-25-009", "--archive", str(archive), "--json"])
+    listed = json.loads(capsys.readouterr().out)
+    assert code == 0
+    assert [(u["run_date"], u["material"], u["analytes"]) for u in listed] == [
+        (d, "FWL-RM-0077", ["As 188.980"]) for d in ("2026-12-01", "2026-12-02", "2026-12-03")]
+    code = main(["archive", "lot", "me-24-118", "--archive", str(archive)])
+    out = capsys.readouterr().out
+    assert code == 0 and out.startswith(f"3 records in {archive} used lot ME-24-118:")
+    code = main(["archive", "lot", "ME-24-11", "--archive", str(archive)])
+    assert code == 0 and capsys.readouterr().out == (
+        f"No record in {archive} names lot 'ME-24-11'.\n")

@@ -31,6 +31,7 @@ from tests.record.integrity_helpers import (
 GOLDEN = Path(__file__).parents[1] / "data" / "golden"
 LEGACY = GOLDEN / "0.1.0"
 CURRENT = GOLDEN / "2026-12-02"
+RELEASE_020 = GOLDEN / "0.2.0"
 # From each SOURCE.md.
 LEGACY_DIGESTS = {
     "issued": "2b093d9b796b0710e34d2760458a4721b47b896bfc6f0c15886e609065c97572",
@@ -42,6 +43,12 @@ CURRENT_DIGESTS = {
     "reviewed": "81bc4d2135c2604e04af92a3b3c76eab83f649beaf45cd3e24e5ab4dbb48286b",
     "approved": "ac70af380ab11657d685625d3ca79acd2f3412bae9404439181837748a6fea58",
 }
+RELEASE_020_DIGESTS = {
+    "issued": "36149bd366edd021972abfca48816b11dfbe11440a8e2707f3a165dc086583dd",
+    "reviewed": "90a0a181e5f8628998422401319ddd4860e44654bee32d10f08c01bcf1c66cb9",
+    "approved": "eeafa1fd4844b746e2073503f6d5c435bde68922ac7bf7acc993e6d5a3f09a4c",
+}
+SIGNED_SETS = [(CURRENT, CURRENT_DIGESTS), (RELEASE_020, RELEASE_020_DIGESTS)]
 
 
 @pytest.fixture
@@ -105,33 +112,35 @@ def test_legacy_record_verifies_and_signs_after_a_layout_change(moved_margin, tm
     assert verify_bytes(printed.pdf, name="v2.pdf").ok
 
 
+@pytest.mark.parametrize(("folder", "digests"), SIGNED_SETS, ids=["2026-12-02", "0.2.0"])
 @pytest.mark.parametrize("stage", ["issued", "reviewed", "approved"])
-def test_current_golden_records_verify(stage):
-    ring = load_keyring(CURRENT / "keyring")
+def test_current_golden_records_verify(stage, folder, digests):
+    ring = load_keyring(folder / "keyring")
     for suffix in (".pdf", ".json"):
-        report = verify_file(CURRENT / f"nitrate.{stage}{suffix}", keyring=ring)
+        report = verify_file(folder / f"nitrate.{stage}{suffix}", keyring=ring)
         assert report.ok, report.problems
         assert report.verdict == "verified"
-        assert report.record.digest == CURRENT_DIGESTS[stage]
-    data = (CURRENT / f"nitrate.{stage}.json").read_bytes()
+        assert report.record.digest == digests[stage]
+    data = (folder / f"nitrate.{stage}.json").read_bytes()
     # RFC 8785: the file is its own canonical form, as the rfc8785 library writes it.
     assert rfc8785.dumps(json.loads(data)) == data
-    assert hashlib.sha256(data).hexdigest() == CURRENT_DIGESTS[stage]
+    assert hashlib.sha256(data).hexdigest() == digests[stage]
 
 
-def test_current_golden_records_verify_and_sign_after_a_layout_change(moved_margin, tmp_path):
-    ring = load_keyring(CURRENT / "keyring")
-    report = verify_file(CURRENT / "nitrate.reviewed.pdf", keyring=ring)
+@pytest.mark.parametrize("folder", [CURRENT, RELEASE_020], ids=["2026-12-02", "0.2.0"])
+def test_current_golden_records_verify_and_sign_after_a_layout_change(moved_margin, tmp_path,
+                                                                      folder):
+    ring = load_keyring(folder / "keyring")
+    report = verify_file(folder / "nitrate.reviewed.pdf", keyring=ring)
     assert report.verdict == "verified"
     (note,) = [n for n in report.notes if n.startswith("note: ")]
     assert "page layout changes between releases are not a problem" in note
     # A key of this test's own lab authority signs; the keyring trusts both authorities.
-    folder = tmp_path / "ring"
-    keyring(folder)
-    (folder / "golden-authority.cert.pem").write_bytes(
-        (CURRENT / "keyring" / "lab-authority.cert.pem").read_bytes())
-    both = load_keyring(folder)
-    original = (CURRENT / "nitrate.reviewed.pdf").read_bytes()
+    keyring(tmp_path / "ring")
+    (tmp_path / "ring" / "golden-authority.cert.pem").write_bytes(
+        (folder / "keyring" / "lab-authority.cert.pem").read_bytes())
+    both = load_keyring(tmp_path / "ring")
+    original = (folder / "nitrate.reviewed.pdf").read_bytes()
     signed = sign_bytes(original, role="approved", key=person_key("Nadia Ferreira"),
                         keyring=both)
     assert signed.pdf.startswith(original)
@@ -144,6 +153,6 @@ def test_current_golden_records_verify_and_sign_after_a_layout_change(moved_marg
 def test_golden_approved_records_are_closed():
     from calib.record.signing import SignOffError
 
-    for folder in (LEGACY, CURRENT):
+    for folder in (LEGACY, CURRENT, RELEASE_020):
         with pytest.raises(SignOffError, match="^sign-off is closed: the record was approved by "):
             sign_file(folder / "nitrate.approved.pdf", role="rejected", key=person_key(REVIEWER))

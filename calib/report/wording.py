@@ -100,7 +100,7 @@ def verdict_sentence(curve: Mapping[str, Any], template: ReportTemplate) -> str:
             groups[verdict].append(title)
     parts = [f"{word}."]
     labels = (("fail", "Failed"), ("warn", "Warnings"), ("not-evaluated", "Not evaluated"),
-              ("info", "For information, not affecting the verdict"))
+              ("info", "Not met, for information only (the verdict does not depend on it)"))
     for key, label in labels:
         if groups[key]:
             parts.append(f"{label}: {'; '.join(groups[key])}.")

@@ -48,9 +48,10 @@ _NOT_LABELS = ("include", "exclusion_reason", "sample_type")
 
 
 def _label_columns(grid: Grid, table: Table) -> list[int]:
+    """Columns that may carry a summary word: labels, and the measurement columns too (a
+    spreadsheet often writes "Mean" where the concentration would stand)."""
     header = table.header
-    skip = set(header.measurement_indices())
-    skip.update(c.index for n, c in header.shared.items() if n in _NOT_LABELS)
+    skip = {c.index for n, c in header.shared.items() if n in _NOT_LABELS}
     width = len(grid.rows[header.row])
     return [i for i in range(width) if i not in skip and i not in grid.hidden_columns]
 

@@ -409,3 +409,19 @@ def test_a_label_per_level_is_not_taken_for_an_analyte(write_csv):
                    for r in (0, 1))
     run = read_run(write_csv("Label,Conc (mg/L),Area\n" + rows))
     assert run.analytes == ("run",) and len(run.standards("run")) == 8
+
+
+def test_a_summary_word_in_the_concentration_column_is_a_summary_row(tmp_path):
+    # Spreadsheets often write the label where the concentration stands ("Mittelwert" is
+    # German for mean); the row is set aside with its cell named, never read as a standard.
+    from calib.io import read_run
+
+    path = tmp_path / "n.csv"
+    path.write_text("Analyt;Konz. (mg/l);Fläche\n"
+                    + "".join(f"Nitrit-N;{c};{0.085 * c:.4f}\n".replace(".", ",")
+                              for c in (0.5, 1, 2, 5, 10))
+                    + "Nitrit-N;Mittelwert;0,3146\n", encoding="utf-8")
+    run = read_run(path)
+    assert len(run.points) == 5
+    assert any("n.csv!B7: row 7 is a summary row ('Mittelwert'), not an injection; it was set "
+               "aside" in w for w in run.warnings)

@@ -262,21 +262,12 @@ def issue(
         When a file cannot be written (a full disk, ENOSPC); nothing is left behind.
     """
     from calib.report.template import resolve_template
-    from calib.workflow import build_issued_record, render_record
+    from calib.workflow import issue_record
 
     check_outcome = _as_outcome(outcome)
     chosen = resolve_template(template)
-    record = build_issued_record(
-        check_outcome.assessment, prepared_by=prepared_by or (key.holder if key else None),
-        created_at=created_at, template=chosen)
-    if key is None:
-        rendered = render_record(record, chosen)
-    else:
-        from calib.record.signing import issue_signed
-        from calib.record.signoff import issue_pdf
-
-        record = issue_signed(record, key)
-        rendered = issue_pdf(record, key=key, template=chosen)
+    record, rendered = issue_record(check_outcome.assessment, prepared_by=prepared_by,
+                                    created_at=created_at, key=key, template=chosen)
     outputs = [Output(Path(p), data, replace) for p, data in
                ((pdf, rendered), (record_json, record.canonical)) if p is not None]
     outputs += _export_outputs(check_outcome.document, xlsx=xlsx, csv=csv)
@@ -514,11 +505,9 @@ def _frozen_baseline(path: str, store: Any, history: list[Any], name: str, *,
     return load_baseline(latest), ""
 
 
-MIN_BASELINE = 3
-"""Fewest accepted curves a control chart is drawn from."""
-
-
 def _not_evaluated(found: Any) -> str:
+    from calib.archive.control import MIN_BASELINE
+
     n = len(found.points)
     if n < MIN_BASELINE:
         return (f"{n} accepted curve{'s' if n != 1 else ''} ({len(found.left_out)} not "

@@ -147,10 +147,9 @@ def build_issued_record(assessment: RunAssessment, *, prepared_by: str | None,
 
 def render_record(record: Record, template: ReportTemplate) -> bytes:
     """Render ``record`` with ``template`` as its PDF (the record JSON attached inside)."""
-    from calib.report import write_pdf
+    from calib.record.signoff import issue_pdf
 
-    return write_pdf(record.body, digest=record.digest, record_id=record.record_id,
-                     template=template, attachment=record.canonical)
+    return issue_pdf(record, template=template)
 
 
 def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:

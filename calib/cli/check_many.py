@@ -147,8 +147,9 @@ def run_many(args: argparse.Namespace, runs: Sequence[Path], imap: Any) -> int:
             said += [f"Record {issued.record.record_id} written to {out['.pdf']}"] \
                 if ".pdf" in out else []
             if issued.filed is not None:
-                said.append(f"Record {issued.record.record_id} filed in archive {archive} as "
-                            f"entry seq {issued.filed.seq}")
+                said.append(f"Record {issued.record.record_id} filed in archive "
+                            f"{issued.archive} as entry seq {issued.filed.seq}")
+                said += [issued.logbook] if issued.logbook else []
         else:
             service.export(outcome, xlsx=out.get(".xlsx"), csv=out.get(".csv"))
         said += [f"{what} written to {out[s]}" for s, what in

@@ -66,24 +66,11 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from calib.record.keys import load_keyring
-    from calib.record.verify import verify_file
-    from calib.report import load_template
+    from calib import service
 
-    keyring = load_keyring(args.keyring) if args.keyring else None
-    from calib.service import record_template
-
-    # The template the record names (calib.service), unless --template says otherwise.
-    template = load_template(args.template) if args.template else record_template(args.record)
-    db = archive_path(args)
-    if db is None:
-        report = verify_file(args.record, keyring=keyring, template=template)
-    else:
-        from calib.archive import Archive
-
-        with Archive(db, create=False) as archive:
-            report = verify_file(args.record, keyring=keyring, archive=archive,
-                                 template=template)
+    # The template the record names, unless --template says otherwise (calib.service).
+    report = service.verify(args.record, keyring=args.keyring, archive=archive_path(args),
+                            template=args.template)
     if args.json:
         json.dump(report.to_json(), sys.stdout, ensure_ascii=False, allow_nan=False)
         sys.stdout.write("\n")

@@ -58,8 +58,11 @@ def _csrf(request: Request) -> str:
 
 
 def _render(request: Request, name: str, *, status: int = 200, **context: Any) -> HTMLResponse:
+    from calib.web.auth import acting_name
+
     state = request.app.state
     context.setdefault("archive", state.archive)
+    context.setdefault("signer", acting_name(request))  # the signed-in person, if any
     html = state.env.get_template(name).render(
         request=request, csrf_field=CSRF_FIELD, csrf=_csrf(request), **context)
     response = HTMLResponse(html, status_code=status)

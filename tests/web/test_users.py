@@ -238,3 +238,27 @@ def test_users_mode_needs_an_archive_with_users(tmp_path):
         create_app(users=True)
     with pytest.raises(ValueError, match="idle sign-out must be 1 to 1440 minutes; got 0"):
         create_app(archive=empty, users=False, idle_minutes=0)
+
+
+def test_signing_from_the_archived_record_page_asks_for_the_password(lab):
+    where, keys = lab
+    analyst = browser(where, keys)
+    sign_in(analyst, PREPARER)
+    r = post(analyst, "/check", {"profile": "default"},
+             {"run": (FLUORIDE.name, FLUORIDE.read_bytes())})
+    run_id = str(r.url).rsplit("/", 1)[-1]
+    r = post(analyst, f"/run/{run_id}/issue", {"file_in_archive": "yes"})
+    assert r.status_code == 200, error_of(r.text)
+    record_id = re.search(r"Record (CR-[0-9A-F]+) issued", r.text).group(1)
+    approver = browser(where, keys)
+    sign_in(approver, APPROVER)
+    page = approver.get(f"/archive/record/{record_id}").text
+    # The record page's form is the signed-in person's: no printed-name box, a password box.
+    assert f"You sign as <strong>{APPROVER}</strong>" in page
+    assert 'name="password"' in page and 'name="name"' not in page
+    r = post(approver, f"/archive/record/{record_id}/sign", {"role": "reviewed"})
+    assert r.status_code == 403 and error_of(r.text).startswith("Type your password again to sign")
+    r = post(approver, f"/archive/record/{record_id}/sign",
+             {"role": "reviewed", "password": PW[APPROVER], "file_in_archive": "yes"})
+    assert r.status_code == 200, error_of(r.text)
+    assert f"Signed: reviewed by {APPROVER}" in r.text

@@ -543,11 +543,13 @@ def record_template(path: str | os.PathLike[str]) -> ReportTemplate | None:
 def sign(path: str | os.PathLike[str], *, role: str, name: str | None = None,
          meaning: str | None = None, key: Any = None, keyring: Any = None, template: Any = None,
          archive: str | os.PathLike[str] | None = None, signed_at: datetime | None = None,
-         want_pdf: bool = True) -> SignOutcome:
+         want_pdf: bool = True, out: str | os.PathLike[str] | None = None) -> SignOutcome:
     """Sign a record file (delegates to :func:`calib.record.signoff.sign_file`); file it.
 
     The template is the one the record names unless ``template`` is given.
-    Nothing is written to disk here: the caller writes ``outcome.signed.pdf``.
+    With ``out`` the new version is written there (``.json``: the record JSON;
+    else the PDF; an existing file is never replaced) and filed in ``archive``
+    as one step: both, or neither. Without ``out`` nothing is written to disk.
     With ``archive`` the PDF is always made (the archive keeps it).
     """
     from calib.record.keys import load_keyring
@@ -562,11 +564,21 @@ def sign(path: str | os.PathLike[str], *, role: str, name: str | None = None,
                        signed_at=signed_at, keyring=keyring,
                        want_pdf=want_pdf or archive is not None)
     entries: list[Any] = []
-    if archive is not None:
-        from calib.archive import Archive
 
-        with Archive(os.fspath(archive)) as store:
-            entries = file_versions(store, signed)
+    def file_it() -> None:
+        if archive is not None:
+            from calib.archive import Archive
+
+            with Archive(os.fspath(archive)) as store:
+                entries.extend(file_versions(store, signed))
+
+    if out is None:
+        file_it()
+    else:
+        # The new version's file (never replacing one) and its archive entry: both, or neither.
+        target = Path(out)
+        data = signed.record.canonical if target.suffix.lower() == ".json" else signed.pdf
+        write_all([Output(target, data, replace=False)], before_commit=file_it)
     return SignOutcome(signed, tuple(entries))
 
 

@@ -87,7 +87,6 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     from calib.cli.keys import read_passphrase
     from calib.errors import IntegrityError
-    from calib.output import write_atomic
     from calib.record.keys import load_signing_key
     from calib.record.signing import SignOffError
 
@@ -111,7 +110,8 @@ def run(args: argparse.Namespace) -> int:
     try:
         outcome = service.sign(args.record, role=args.role, name=args.name,
                                meaning=args.meaning, key=key, keyring=args.keyring,
-                               template=args.template, archive=db, want_pdf=not as_json)
+                               template=args.template, archive=db, want_pdf=not as_json,
+                               out=out)
     except IntegrityError as exc:
         print(f"calib sign: not signed: {exc}", file=sys.stderr)
         return EXIT_INTEGRITY
@@ -120,7 +120,6 @@ def run(args: argparse.Namespace) -> int:
         return EXIT_REFUSED
     signed, entries = outcome.signed, outcome.entries
     record = signed.record
-    write_atomic(out, record.canonical if as_json else signed.pdf)
     entry = record.body["signatures"][-1]
     print(f"Record {record.record_id} version {len(record.body['signatures'])} written to {out}\n"
           f"  {entry['role']} by {entry['name']} at {entry['signed_at']}"

@@ -173,6 +173,14 @@ class AnalyteTrend:
                   if p.record_id in self.frozen.records or self.frozen.exclusion(p.record_id)]
         return (min(inside), max(inside) + 1) if inside else (0, 0)
 
+    @property
+    def baseline_label(self) -> str:
+        """What the shaded :attr:`baseline_span` is, for a chart's legend."""
+        if self.frozen is not None:
+            return "Frozen baseline period"
+        shown = min(self.baseline, len(self.points))
+        return f"Baseline: first {shown} curve{'s' if shown != 1 else ''}"
+
     def limits_text(self) -> str:
         """Where the limits come from, in one sentence."""
         if self.frozen is not None:

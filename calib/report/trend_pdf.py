@@ -304,8 +304,7 @@ def _charts(trend: AnalyteTrend, width: float, s: Styles) -> list[Flowable]:
         drawing = control_chart_drawing(
             chart, width=width, height=_CHART_HEIGHT, y_title=label, baseline=trend.baseline,
             dates=[p.run_date for p in trend.points], span=trend.baseline_span,
-            shade_label=("Frozen baseline period" if trend.frozen is not None
-                         else f"Baseline (first {min(trend.baseline, len(trend.points))})"))
+            shade_label=trend.baseline_label)
         parts: list[Flowable] = [_para(label, s.heading), drawing]
         if chart.reason:
             parts.append(_para(f"Not evaluated: {chart.reason}.", s.note))

@@ -426,6 +426,7 @@ def trend_plots(trend: Any) -> list[tuple[str, str]]:
             dates, [float("nan") if v is None else float(v) for v in chart.values],
             y_title=title, label=f"{trend.analyte}: control chart of {title.lower()} by run date",
             mean=lim.mean, warning=lim.warning, action=lim.action, baseline=trend.baseline,
+            span=trend.baseline_span, span_label=trend.baseline_label,
             flagged=chart.flagged_points())))
     return out
 

@@ -250,8 +250,13 @@ def residual_marks(marks: Sequence[Mark], fitted: Sequence[float | None]) -> lis
 def trend_svg(dates: Sequence[str], values: Sequence[float], *, y_title: str, label: str,
               mean: float | None = None, warning: tuple[float, float] | None = None,
               action: tuple[float, float] | None = None, baseline: int = 0,
-              flagged: Sequence[int] = ()) -> str:
+              flagged: Sequence[int] = (), span: tuple[int, int] | None = None,
+              span_label: str = "") -> str:
     """A control chart against run dates (``YYYY-MM-DD``), limits and legend as drawn.
+
+    The shaded baseline period is points ``span[0]`` to ``span[1] - 1`` named
+    ``span_label`` (a frozen baseline need not be the first curves); by default
+    the first ``baseline`` points.
 
     Examples
     --------
@@ -274,9 +279,14 @@ def trend_svg(dates: Sequence[str], values: Sequence[float], *, y_title: str, la
         items.append(("warning", "±2s warning"))
     if action is not None:
         items.append(("action", "±3s action"))
-    shown = min(baseline, len(values))
-    if mean is not None and shown:
-        items.append(("band", f"Baseline: first {shown} curve{'s' if shown != 1 else ''}"))
+    if span is None:
+        shown = min(baseline, len(values))
+        span = (0, shown)
+        span_label = f"Baseline: first {shown} curve{'s' if shown != 1 else ''}"
+    first, stop = span[0], min(span[1], len(values))
+    shade = mean is not None and stop > first
+    if shade:
+        items.append(("band", span_label))
     plot_top, plot_h = 12, 200
     legend_top = plot_top + plot_h + 2 * FONT_SIZE + 34
     height = legend_top + len(items) * (FONT_SIZE + 6)
@@ -287,9 +297,9 @@ def trend_svg(dates: Sequence[str], values: Sequence[float], *, y_title: str, la
     xs._lo, xs._hi = float(lo - pad), float(hi + pad)
     ys = _Scale(ys_all or [0.0, 1.0], plot_top + plot_h, plot_top, target=4)
     out: list[str] = []
-    if mean is not None and shown:
-        x1 = xs(days[shown - 1]) + 4
-        x0 = xs(days[0]) - 4
+    if shade:
+        x1 = xs(days[stop - 1]) + 4
+        x0 = xs(days[first]) - 4
         out.append(f'<rect x="{x0:.1f}" y="{ys.end:.1f}" width="{x1 - x0:.1f}" '
                    f'height="{ys.start - ys.end:.1f}" fill="{_BAND}"/>')
     # The first and last run dates, kept inside the frame (the axis is in days).

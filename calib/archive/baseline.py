@@ -49,7 +49,6 @@ __all__ = [
     "baseline_document",
     "baseline_folder",
     "establish_baseline",
-    "frozen_baseline_for",
     "latest_baseline_file",
     "load_baseline",
     "next_baseline_file",
@@ -433,16 +432,3 @@ def next_baseline_file(folder: Path, analyte: str, instrument: str | None) -> Pa
     n = versions[-1][0] + 1 if versions else 1
     return folder / f"{_stem(analyte, instrument)}.v{n}.json"
 
-
-def frozen_baseline_for(archive_file: str | Path, analyte: str,
-                        instrument: str | None = None) -> FrozenBaseline | None:
-    """The newest frozen baseline of ``analyte`` (and instrument) beside the archive, read and
-    checked; None when none was frozen.  For front ends (the command line, the web page).
-
-    Raises
-    ------
-    BaselineError
-        If the newest baseline file cannot be read or was edited.
-    """
-    latest = latest_baseline_file(baseline_folder(archive_file), analyte, instrument)
-    return None if latest is None else load_baseline(latest)

@@ -54,7 +54,6 @@ __all__ = [
     "ChainReport",
     "DerivedRecord",
     "check_content",
-    "check_entry",
     "check_link",
     "compute_entry_hash",
     "derive_record",
@@ -381,8 +380,3 @@ def check_content(entry: ArchiveEntry, stored_figures: list[tuple[Any, ...]], *,
         problem("the per-analyte figures stored for trends do not match its JSON")
     return problems
 
-
-def check_entry(entry: ArchiveEntry, prev_seq: int, prev_hash: str,
-                stored_figures: list[tuple[Any, ...]]) -> list[ChainProblem]:
-    """Both passes over one entry: :func:`check_link` then :func:`check_content`."""
-    return check_link(entry, prev_seq, prev_hash) + check_content(entry, stored_figures)

@@ -310,11 +310,6 @@ def resolve_template(template: str | Path | ReportTemplate | None = None) -> Rep
     return loaded
 
 
-def _read_toml(path: Path) -> dict[str, Any]:
-    text, _ = _read_file(path)
-    return _parse_toml(text, path)
-
-
 def _read_file(path: Path) -> tuple[str, str]:
     """The template's text and the SHA-256 of its bytes."""
     try:

@@ -18,7 +18,8 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special
+
+from calib.fit.distributions import chi2_sf
 
 __all__ = ["BartlettTest", "bartlett_levels"]
 
@@ -108,5 +109,5 @@ def bartlett_levels(x: Iterable[float], y: Iterable[float], *,
     t = ((total - k) * math.log(pooled) - float(np.sum(dof * np.log(s2))))
     t /= 1 + (float(np.sum(1 / dof)) - 1 / (total - k)) / (3 * (k - 1))
     t = max(t, 0.0)  # equal variances give 0 less rounding; T ≥ 0 by Jensen's inequality
-    return BartlettTest(t, k - 1, float(special.chdtrc(k - 1, t)), tuple(variances), taking,
+    return BartlettTest(t, k - 1, float(chi2_sf(t, k - 1)), tuple(variances), taking,
                         left_out)

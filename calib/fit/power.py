@@ -13,7 +13,9 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import special
+from scipy import special  # the noncentral F, which calib.fit.distributions lacks
+
+from calib.fit.distributions import f_ppf, nct_cdf, norm_cdf, norm_ppf, t_ppf
 
 __all__ = ["detectable_bend_pct", "detectable_f_noncentrality", "detectable_t_noncentrality"]
 
@@ -34,18 +36,18 @@ def detectable_t_noncentrality(df: int, alpha: float = 0.05, power: float = 0.80
         raise ValueError(f"need df ≥ 1 and 0 < alpha, power < 1; got {df}, {alpha}, {power}")
     if df > 2000:
         # scipy's noncentral t loses accuracy at huge df, where it is the normal anyway.
-        crit = special.ndtri(1 - alpha / 2)
+        crit = norm_ppf(1 - alpha / 2)
 
         def short(delta: float) -> float:
-            return float(special.ndtr(delta - crit) + special.ndtr(-crit - delta)) - power
+            return float(norm_cdf(delta - crit) + norm_cdf(-crit - delta)) - power
     else:
-        crit = special.stdtrit(df, 1 - alpha / 2)
+        crit = t_ppf(1 - alpha / 2, df)
 
         def short(delta: float) -> float:
             # The far tail is negligible where it matters, and may come back NaN at a
             # large δ: count it as 0 then.
-            far = float(special.nctdtr(df, delta, -crit))
-            near = 1.0 - float(special.nctdtr(df, delta, crit))
+            far = float(nct_cdf(-crit, df, delta))
+            near = 1.0 - float(nct_cdf(crit, df, delta))
             return near + (far if math.isfinite(far) else 0.0) - power
 
     # The power at δ = crit + z(power)·(a bit) already exceeds ``power``; bracket from there.
@@ -70,7 +72,7 @@ def detectable_f_noncentrality(dfn: int, dfd: int, alpha: float = 0.05,
         raise ValueError(f"need dfn, dfd ≥ 1 and 0 < alpha, power < 1; got {dfn}, {dfd}, "
                          f"{alpha}, {power}")
     dfd = min(dfd, 2000)  # beyond, F(dfn, dfd) is χ²(dfn)/dfn to many digits
-    crit = special.fdtri(dfn, dfd, 1 - alpha)
+    crit = f_ppf(1 - alpha, dfn, dfd)
 
     def short(lam: float) -> float:
         return 1.0 - float(special.ncfdtr(dfn, dfd, lam, crit)) - power
@@ -81,7 +83,7 @@ def detectable_f_noncentrality(dfn: int, dfd: int, alpha: float = 0.05,
     return _root(short, 1e-9, high, xtol=1e-8)
 
 
-def _root(f, low: float, high: float, *, xtol: float) -> float:  # noqa: ANN001
+def _root(f, low: float, high: float, *, xtol: float) -> float:
     """The root of an increasing ``f`` between ``low`` (f < 0) and ``high`` (f ≥ 0), by
     bisection to ``xtol``: a power curve is monotone, so halving never fails (and needs no
     scipy.optimize on the checking path)."""

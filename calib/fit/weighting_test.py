@@ -24,8 +24,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special
 
+from calib.fit.distributions import chi2_sf
 from calib.options import Weighting
 
 __all__ = ["VARIANCE_POWER", "WeightingTest", "weighting_test"]
@@ -122,7 +122,7 @@ def weighting_test(x: np.ndarray, residuals: np.ndarray, weights: np.ndarray,
     zc = z - z.mean()
     b = float(np.sum(zc * u) / np.sum(zc * zc))
     score = 0.5 * b * b * float(np.sum(zc * zc))
-    p = float(special.chdtrc(1, score))
+    p = float(chi2_sf(score, 1))
     signed = e != 0  # an exact zero has no logarithm and says nothing of the spread
     zs = z[signed] - z[signed].mean()
     logs = np.log(e[signed] ** 2)

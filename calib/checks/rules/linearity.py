@@ -126,9 +126,9 @@ def quadratic_term_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) 
     figures = (f"c = {fmt(term.estimate)} (SE {fmt(term.std_error)}) in {source}{weights}, "
                f"t = {term.t_value:.3f} on {term.df} df, p = {_p(term.p_value)}")
     significant = term.significant(alpha)
-    from scipy import special
+    from calib.fit.distributions import t_ppf
 
-    crit = float(special.stdtrit(term.df, 1 - alpha / 2)) if term.df > 0 else math.nan
+    crit = float(t_ppf(1 - alpha / 2, term.df)) if term.df > 0 else math.nan
 
     def result(rule_id: str, sev: Severity, verdict: Verdict, value: float | None,
                limit: float | None, detail: str) -> CheckResult:
@@ -210,9 +210,9 @@ def drift_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckR
         caution = (f" The standards were injected nearly in order of concentration "
                    f"(r = {test.order_correlation:.2f}), so a drift would look like curvature "
                    "and can hardly be seen here.")
-    from scipy import special
+    from calib.fit.distributions import t_ppf
 
-    crit = float(special.stdtrit(test.df, 1 - alpha / 2)) if test.df > 0 else math.nan
+    crit = float(t_ppf(1 - alpha / 2, test.df)) if test.df > 0 else math.nan
 
     def done(verdict: Verdict, detail: str) -> CheckResult:
         return with_test(result("drift", sev, verdict, test.p_value, alpha, detail),

@@ -11,11 +11,11 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from scipy import special
 
 from calib.checks.context import CurveContext, StandardResult
 from calib.checks.result import CheckResult, Severity, Verdict
 from calib.checks.rules.base import Param, Rule, not_evaluated, result, with_test
+from calib.fit.distributions import t_sf
 from calib.fit.outliers import Influence, grubbs, influence
 
 __all__ = ["OUTLIERS_RULES"]
@@ -52,8 +52,8 @@ def _residual_findings(infl: Influence, alpha: float) -> dict[int, list[str]]:
     found: dict[int, list[str]] = {}
     crit = infl.bonferroni_critical(alpha)
     for i in infl.suggested(alpha):
-        p = min(1.0, 2 * infl.n_points * float(special.stdtr(infl.residual_df - 1,
-                                                               -abs(infl.studentized[i]))))
+        p = min(1.0, 2 * infl.n_points * float(t_sf(abs(infl.studentized[i]),
+                                                           infl.residual_df - 1)))
         found.setdefault(int(i), []).append(
             f"studentized residual {infl.studentized[i]:+.2f} beyond ±{crit:.2f} "
             f"(Bonferroni, α = {alpha:g}; Bonferroni p = {p:.3g})")
@@ -114,7 +114,7 @@ def outliers_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Che
         grubbs_note += " flags " + ", ".join(f"{cells[i]} ({f})" for i, f in sorted(suspects.items()))
     n_points = infl.n_points if infl is not None else 0
     df_t = infl.residual_df - 1 if infl is not None else 0
-    p_value = (min(1.0, 2 * n_points * float(special.stdtr(df_t, -value)))
+    p_value = (min(1.0, 2 * n_points * float(t_sf(value, df_t)))
                if value is not None and df_t >= 1 else None)
 
     def test_of(check: CheckResult) -> CheckResult:

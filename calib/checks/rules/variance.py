@@ -6,7 +6,6 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from scipy import special
 
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
@@ -14,6 +13,7 @@ from calib.checks.rules.base import Param, Rule, fmt, not_evaluated, result, wit
 from calib.checks.rules.base import result as _result
 from calib.fit.curve import CurveFit
 from calib.fit.design import fit_weights
+from calib.fit.distributions import chi2_isf
 from calib.fit.homogeneity import bartlett_levels
 from calib.fit.variance import variance_ends, variance_levels
 from calib.fit.weighting_test import VARIANCE_POWER, weighting_test
@@ -101,7 +101,7 @@ def levels(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResul
     if test.reason:
         return not_evaluated("variance-levels", sev, f"Variance test not made: {test.reason}.")
     alpha = p["alpha"]
-    crit = float(special.chdtri(test.df, alpha))
+    crit = float(chi2_isf(alpha, test.df))
     figures = (f"Bartlett's test of the {_what(fit)} across {len(test.levels)} levels: "
                f"T = {test.statistic:.3g} on {test.df} df against χ²({1 - alpha:g}; {test.df}) "
                f"= {crit:.3g}, p = {test.p_value:.3g}; largest/smallest variance "
@@ -149,7 +149,7 @@ def advice(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResul
     if test.reason:
         return not_evaluated("weighting-advice", sev, f"no advice: {test.reason}")
     alpha = p["alpha"]
-    crit = float(special.chdtri(1, alpha))
+    crit = float(chi2_isf(alpha, 1))
     trend = "grows" if test.gamma > 0 else "shrinks"
     figures = (f"Cook–Weisberg score test of the weighting {fit.weighting.value} against a "
                f"variance that changes as a power of the concentration: S = "

@@ -64,11 +64,9 @@ def column_letters(number: int) -> str:
     >>> column_letters(1), column_letters(28), column_letters(16384)
     ('A', 'AB', 'XFD')
     """
-    letters = ""
-    while number > 0:
-        number, rest = divmod(number - 1, 26)
-        letters = chr(65 + rest) + letters
-    return letters
+    from calib.io.columns import column_letter
+
+    return column_letter(number - 1)
 
 
 def _plain(part: bytes, rows: int) -> bool:

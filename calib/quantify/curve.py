@@ -10,14 +10,16 @@ samples are quantified against exactly the curve that was reviewed.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from calib.errors import InputError
-from calib.fit.calcurve import CalibrationCurve
+from calib.fit.calcurve import (
+    CalibrationCurve,
+    _finite,  # one reading of a stored number
+)
 from calib.fit.design import COEFFICIENTS
 from calib.options import Model, Weighting, parse_option
 
@@ -41,12 +43,6 @@ def curve_from_assessment(curve: CurveAssessment, *, unit: str | None = None
         lod_method=curve.lod.method if curve.lod is not None else None, unit=unit,
         response_basis=response_basis(curve),
     )
-
-def _finite(value: Any) -> float | None:
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        return None
-    return float(value) if math.isfinite(value) else None
-
 
 def _need(mapping: Mapping[str, Any], key: str, where: str) -> Any:
     value = mapping.get(key)

@@ -8,7 +8,7 @@ from typing import Any
 
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
-from calib.checks.rules.base import Param, Rule, fmt, not_evaluated, result
+from calib.checks.rules.base import Param, Rule, as_shown, fmt, not_evaluated, result
 from calib.fit.limits import method_sd
 from calib.options import Model
 
@@ -35,7 +35,7 @@ def rf_rsd(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResul
     figures = (f"response factors of {rf.n} standards: mean {fmt(rf.mean)}, SD {fmt(rf.sd)}, "
                f"%RSD {rf.rsd_pct:.2f} % (at most {limit:g} % allowed)")
     # Compared as printed, to 0.01 % (limits are inclusive at the reported precision).
-    within = float(f"{rf.rsd_pct:.2f}") <= limit
+    within = as_shown(rf.rsd_pct, 2) <= limit
     if fit.model is not Model.MEAN_RF:
         would = "would be" if within else "would not be"
         return not_evaluated("rf-rsd", sev, (

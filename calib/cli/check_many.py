@@ -25,12 +25,14 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+from calib.cli import exits
 from calib.cli.check_text import RunLine, summary_text, worst
 
 RUN_SUFFIXES = (".xlsx", ".xlsm", ".xls", ".ods", ".csv", ".tsv", ".txt")
 """Suffixes of the run files a folder is searched for."""
 
-_EXIT = {"accepted": 0, "needs-review": 1, "rejected": 1, "unusable": 3}
+_EXIT = {"accepted": exits.OK, "needs-review": exits.NOT_ACCEPTED, "rejected": exits.NOT_ACCEPTED,
+         "unusable": exits.INPUT}
 
 
 def expand_runs(names: Sequence[str]) -> list[Path] | None:

@@ -167,7 +167,7 @@ def back_calculation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
         ends += f", ±{tol.high:g} % at the highest"
     counted = (f" ({len(left_out)} left out of the fit counted as failing)" if left_out else "")
     detail = (f"{len(passing)} of {total} standards within ±{tol.main:g} % ({ends}){counted}; "
-              f"at least {need:g} % must be")
+              f"at least {need:g} % must pass")
     if tol.notes:
         detail += "; " + "; ".join(tol.notes)
     problems = []

@@ -11,8 +11,8 @@ from datetime import UTC, datetime
 from pathlib import Path
 
 from calib.errors import InputError
-from calib.options import Model, Weighting
 from calib.io.columns import squash
+from calib.options import Model, Weighting
 from calib.quantify.batch import Batch, ReportingConvention, quantify
 from calib.quantify.samples import (
     Reading,

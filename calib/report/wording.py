@@ -16,19 +16,40 @@ from calib.report.template import ReportTemplate
 __all__ = ["CHECK_VERDICTS", "COEFFICIENTS", "MODELS", "ROLES", "SEVERITIES", "WEIGHTINGS",
            "as_list", "as_mapping", "coefficient_order", "common_sheet", "fixed_digits",
            "lod_remark", "range_sentences", "shared_reasons", "signature_words", "text_or_dash",
-           "verdict_sentence"]
+           "verdict_sentence", "weighting_words"]
 
 MODELS = {
     "linear": "straight line, y = a + b·x",
     "origin": "straight line through the origin, y = b·x",
     "quadratic": "quadratic, y = a + b·x + c·x²",
+    "mean-rf": "mean response factor, y = RF·x (RF the mean of yᵢ/xᵢ)",
 }
-WEIGHTINGS = {"none": "none (equal weights)", "1/x": "1/x", "1/x2": "1/x²"}
+#: Every weighting of :class:`calib.options.Weighting`, as the record pages name it.
+WEIGHTINGS = {"none": "none (equal weights)", "1/x": "1/x", "1/x2": "1/x²", "1/y": "1/y",
+              "1/y2": "1/y²", "1/s2": "1/s² (variance function fitted to the replicates)"}
 COEFFICIENTS = {"intercept": "Intercept a", "slope": "Slope b", "quadratic": "Quadratic term c"}
 CHECK_VERDICTS = {"pass": "Pass", "fail": "Fail", "warn": "Warning",
                   "not-evaluated": "Not evaluated"}
 SEVERITIES = {"reject": "Reject", "review": "Review", "info": "Information"}
 ROLES = ("prepared", "reviewed", "approved")
+
+
+def weighting_words(model: Any, weighting: Any) -> str:
+    """A curve's weighting as the record pages name it.
+
+    A ``mean-rf`` curve is fitted with 1/x² weights whatever its record says (records
+    before ``calib.record/2`` said ``none``, meaning its response factors count alike).
+
+    Examples
+    --------
+    >>> weighting_words("linear", "1/s2")
+    '1/s² (variance function fitted to the replicates)'
+    >>> weighting_words("mean-rf", "none")
+    '1/x² (each response factor counts alike)'
+    """
+    if model == "mean-rf":
+        return "1/x² (each response factor counts alike)"
+    return text_or_dash(WEIGHTINGS.get(str(weighting), weighting))
 
 
 def text_or_dash(value: Any) -> str:

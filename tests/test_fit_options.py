@@ -257,3 +257,20 @@ def test_pdf_labels_cover_every_model_and_weighting():
     assert set(MODELS) == {m.value for m in Model}
     # a calib.record/1 mean-rf curve said "none"; its fit was weighted 1/x² all the same
     assert weighting_words("mean-rf", "none") == weighting_words("mean-rf", "1/x2")
+
+
+def test_slope_history_joins_mean_rf_curves_of_both_record_versions():
+    from types import SimpleNamespace as NS
+
+    from calib.checks.history import slope_history
+
+    def curve(seq, weighting, model="mean-rf"):
+        figures = NS(model=model, weighting=weighting, slope=1.0 + seq / 100)
+        return NS(record_id=f"CR-{seq}", seq=seq, run_date=f"2026-01-0{seq}", accepted=True,
+                  figures=figures)
+
+    curves = [curve(1, "none"), curve(2, "1/x2"), curve(3, "none", model="linear")]
+    history = slope_history(curves, model=Model.MEAN_RF, weighting=Weighting.INV_X2, source="a")
+    assert history.records == ("CR-1", "CR-2")
+    linear = slope_history(curves, model=Model.LINEAR, weighting=Weighting.INV_X2, source="a")
+    assert linear.records == ()

@@ -87,7 +87,7 @@ class Record:
     Attributes
     ----------
     body : dict
-        The record data (schema ``calib.record/1``).
+        The record data (schema ``calib.record/2``; ``/1`` still read).
     """
 
     body: dict[str, Any]

@@ -5,7 +5,7 @@ release draws pages.  :func:`verify_bytes` (and :func:`verify_file`) check,
 each finding one line in plain words:
 
 data
-    The record JSON is a ``calib.record/1`` document in canonical form (RFC
+    The record JSON is a ``calib.record/2`` (or ``/1``) document in canonical form (RFC
     8785 for records that say ``"canonicalization": "RFC 8785"``, calib
     0.1.0's form for older ones); the version digest the PDF states is the
     digest of its attached JSON; every signature's ``previous_digest`` matches

@@ -1,4 +1,4 @@
-"""Turn a calibration record (the parsed ``calib.record/1`` JSON) into reportlab flowables.
+"""Turn a calibration record (parsed ``calib.record/2`` or ``/1`` JSON) into reportlab flowables.
 
 Only the record is read, never live fit objects, so a stored record renders
 again to the same pages.  Every figure printed comes from the record; the
@@ -612,7 +612,7 @@ def build_story(
     Parameters
     ----------
     record : mapping
-        The parsed ``calib.record/1`` JSON.
+        The parsed ``calib.record/2`` (or ``/1``) JSON.
     record_id, digest : str
         Identifier and SHA-256 of the record (not part of the record itself).
     template : ReportTemplate

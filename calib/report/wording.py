@@ -1,6 +1,6 @@
 """How the PDF record puts the figures of a record in words: labels, verdicts, signatures.
 
-These read the parsed ``calib.record/1`` JSON defensively (a stored record may
+These read the parsed ``calib.record/1`` or ``/2`` JSON defensively (a stored record may
 lack a field; it then prints a dash) and are shared by the PDF story and the
 web page.
 """

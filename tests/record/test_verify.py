@@ -379,8 +379,8 @@ def test_unreadable_files(tmp_path):
     bad_json = tmp_path / "bad.json"
     bad_json.write_bytes(b'{"schema": "calib.check/1"}')
     assert messages(verify_file(bad_json)) == [
-        "the file is not a calib record document (not a calib.record/1 or calib.record/2 "
-        "document)"]
+        ("the file is not a calib record document (not a calib.record/1 or calib.record/2 "
+         "document)")]
 
 
 def test_another_template_is_only_a_note(signed, tmp_path):

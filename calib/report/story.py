@@ -57,9 +57,11 @@ from calib.report.wording import (
     as_mapping,
     coefficient_order,
     common_sheet,
+    fit_weighting,
     fixed_digits,
     lod_remark,
     range_sentences,
+    settings_weighting,
     shared_reasons,
     signature_words,
     text_or_dash,
@@ -84,20 +86,12 @@ def _prediction(details: Mapping[str, Any], curve: Mapping[str, Any], beta: list
     try:
         _, half = prediction_band(
             str(curve.get("model")), np.array(beta), np.array(cov), t_crit, grid,
-            residual_sd=sd, weight_function=_weight_function(details, curve),
+            residual_sd=sd, weight_function=fit_weighting(details, curve),
             weight_scale=scale, level_variances=as_list(details.get("level_variances")),
         )
     except ValueError:
         return None
     return tuple(half.tolist()) if np.all(np.isfinite(half)) else None
-
-
-def _weight_function(details: Mapping[str, Any], curve: Mapping[str, Any]) -> str:
-    """The weights the fit used: ``fit_details`` of ``calib.record/1``, else the curve's weighting."""
-    stored = details.get("weight_function")  # calib.record/1 only
-    if stored:
-        return str(stored)
-    return "1/x2" if curve.get("model") == "mean-rf" else str(curve.get("weighting") or "none")
 
 
 class _Builder:
@@ -167,16 +161,6 @@ class _Builder:
         scale = min(_LOGO_HEIGHT / height, _LOGO_WIDTH / width)
         return Image(io.BytesIO(self.t.logo or b""), width=width * scale, height=height * scale)
 
-    def _weighting(self, source: Mapping[str, Any]) -> str:
-        """A curve's weighting; for the run, the curves' when they share one (calib.record/2)."""
-        if "weighting" in source or "model" not in source:
-            return weighting_words(source.get("model"), source.get("weighting"))
-        curves = [as_mapping(c) for c in as_list(as_mapping(self.record.get("check")).get("curves"))]
-        named = {weighting_words(c.get("model"), c.get("weighting")) for c in curves}
-        if len(named) == 1:
-            return named.pop()
-        return "per analyte (see each curve)" if named else MISSING
-
     def boxed(self, bold: str, rest: str = "") -> TextBlock:
         style = self.s.verdict
         return TextBlock([(bold, BOLD), (rest, style.fontName)], size=style.fontSize,
@@ -203,7 +187,7 @@ class _Builder:
              False),
             ("Profile SHA-256", f"{profile_sha[:16]} …" if profile_sha else MISSING, False),
             ("Model", text_or_dash(MODELS.get(str(source.get("model")), source.get("model"))), False),
-            ("Weighting", self._weighting(source), False),
+            ("Weighting", settings_weighting(self.record, source), False),
             ("Confidence level", f"{confidence * 100:g} %" if confidence else MISSING, False),
             ("Prepared by", text_or_dash(record.get("prepared_by")), False),
         ]

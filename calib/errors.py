@@ -6,6 +6,7 @@ One tree, so callers can catch everything calib means to raise with a single
     CalibError                 base of everything below
     ├── InputError             a run file cannot be read or used (names file, sheet, row, column)
     ├── ProfileError           an acceptance profile is malformed (names file and line)
+    ├── OptionError            a model, weighting or confidence that cannot be used (a usage error)
     ├── TemplateError          a report template is malformed or points outside its folder
     ├── ConfigError            the lab settings file (calib lab init) cannot be used
     ├── NotAcceptedError       raised only on request, by CurveAssessment.raise_for_verdict()
@@ -16,14 +17,16 @@ One tree, so callers can catch everything calib means to raise with a single
     └── ArchiveError           the archive cannot be opened or refuses a write (calib.archive.store)
 
 Wrong *arguments* (an unknown model name, a confidence of 1.5) raise the
-built-in ``ValueError`` naming the parameter and the value.  A curve that fails
+built-in ``ValueError`` naming the parameter and the value; the fit options a
+caller chooses (model, weighting, confidence, and the pairs of model and
+weighting that cannot go together) raise :class:`OptionError`, which is both.  A curve that fails
 its acceptance rules is *not* an error: it is a verdict in the result.
 """
 
 from __future__ import annotations
 
 __all__ = ["CalibError", "ConfigError", "InputError", "IntegrityError", "NotAcceptedError",
-           "ProfileError",
+           "OptionError", "ProfileError",
            "TemplateError"]
 
 
@@ -75,6 +78,15 @@ class InputError(CalibError):
 
 class ProfileError(CalibError):
     """An acceptance profile cannot be used (the message names file and line)."""
+
+
+class OptionError(CalibError, ValueError):
+    """A fit option (model, weighting, confidence) or a pair of them that cannot be used.
+
+    Raised where the options come in (command line, web form, library call) before
+    anything is fitted; the command line exits 2 (usage error).  Also a ``ValueError``,
+    as wrong arguments are.
+    """
 
 
 class TemplateError(CalibError):

@@ -40,6 +40,7 @@ if TYPE_CHECKING:
     from calib.checks.profile import Profile
     from calib.io import ImportMap
     from calib.io.standards import Standards
+    from calib.options import Model, Weighting
     from calib.record import Record
     from calib.report.template import ReportTemplate
 
@@ -159,9 +160,9 @@ def check(
     *,
     sheet: str | int | None = None,
     profile: str | os.PathLike[str] | Profile = "default",
-    model: str | None = None,
-    weighting: str | None = None,
-    confidence: float | None = None,
+    model: Model | str | None = None,
+    weighting: Weighting | str | None = None,
+    confidence: float | str | None = None,
     map: ImportMap | str | os.PathLike[str] | None = None,
     exclusions: Sequence[Exclusion] = (),
     ranges: Sequence[WorkingRange] = (),

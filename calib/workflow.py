@@ -20,6 +20,7 @@ if TYPE_CHECKING:
     from calib.checks.exclusions import Exclusion
     from calib.checks.history import SlopeHistory
     from calib.checks.narrowing import WorkingRange
+    from calib.options import FitOptions, Model, Weighting
     from calib.record.keys import SigningKey
     from calib.report.template import ReportTemplate
 
@@ -31,9 +32,9 @@ def check_file(
     *,
     sheet: str | int | None = None,
     profile: str | Path | Profile = "default",
-    model: str | None = None,
-    weighting: str | None = None,
-    confidence: float | None = None,
+    model: Model | str | None = None,
+    weighting: Weighting | str | None = None,
+    confidence: float | str | None = None,
     map: ImportMap | str | Path | None = None,
     exclusions: Sequence[Exclusion] = (),
     ranges: Sequence[WorkingRange] = (),
@@ -51,7 +52,8 @@ def check_file(
     profile : str, Path or Profile
         Shipped profile name, profile file, or a loaded profile.
     model, weighting, confidence : optional
-        Override the profile's defaults.
+        Override the profile's defaults; read and checked together (with each
+        ``[[analyte]]`` entry's too) before the file is read.
     map : ImportMap, str or Path, optional
         Import map for unusual exports.
     exclusions, ranges : sequences, optional
@@ -68,10 +70,19 @@ def check_file(
         If the file cannot be read or used.
     ProfileError
         If the profile is malformed.
+    OptionError
+        If the model, weighting and confidence cannot be used (together).
     """
+    from calib.checks.overrides import given_options
+
     prof = profile if isinstance(profile, Profile) else load_profile(profile)
+    options = given_options(prof, model, weighting, confidence)  # refused before any reading
+    # Typed from here on; None still means "the profile's" (or an [[analyte]] entry's).
+    model = None if model is None else options.model
+    weighting = None if weighting is None else options.weighting
+    confidence = None if confidence is None else options.confidence
     run = read_run(path, sheet=sheet, map=map)
-    history = _slope_history(archive, prof, run.analytes, model=model, weighting=weighting)
+    history = _slope_history(archive, prof, run.analytes, options)
 
     def judge(p: Profile) -> RunAssessment:
         return evaluate_run(
@@ -86,8 +97,8 @@ def check_file(
     return judge(prof)
 
 
-def _slope_history(archive: str | Path | None, profile: Profile, analytes: Sequence[str], *,
-                   model: str | None, weighting: str | None) -> dict[str, SlopeHistory] | None:
+def _slope_history(archive: str | Path | None, profile: Profile, analytes: Sequence[str],
+                   options: FitOptions) -> dict[str, SlopeHistory] | None:
     """Earlier accepted slopes from the archive, when the profile compares with them."""
     if archive is None or not any(
             r.id == "slope-reference" and r.params.get("recent_curves") for r in profile.rules):
@@ -100,9 +111,9 @@ def _slope_history(archive: str | Path | None, profile: Profile, analytes: Seque
     from calib.checks.history import slope_history
 
     source = redact(str(archive)) if is_database_url(archive) else os.path.basename(archive)
-    model, weighting = model or profile.model, weighting or profile.weighting
     with Archive(archive, create=False) as store:
-        return {a: slope_history(store.curve_history(a), model=model, weighting=weighting,
+        return {a: slope_history(store.curve_history(a), model=options.model,
+                                 weighting=options.weighting,
                                  source=source) for a in analytes}
 
 

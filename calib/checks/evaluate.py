@@ -36,7 +36,7 @@ from calib.fit.design import (
     weighting_refuses,
 )
 from calib.fit.limits import DetectionLimit, detection_limits
-from calib.options import Model, SampleType, Weighting, parse_option
+from calib.options import Model, SampleType, Weighting
 from calib.run import Point, Run
 from calib.tabular import Tabular
 
@@ -158,7 +158,8 @@ def evaluate_run(
     profile : Profile, optional
         Acceptance rules; the shipped ``default`` profile when omitted.
     model, weighting, confidence : optional
-        Override the profile's defaults.
+        Override the profile's defaults (:meth:`calib.options.FitOptions.given`: a
+        weighting not given stays the profile's, ``mean-rf`` takes its own ``1/x2``).
     progress : callable, optional
         ``progress(done, total)`` after each analyte.
     exclusions : sequence of Exclusion
@@ -174,6 +175,8 @@ def evaluate_run(
 
     Raises
     ------
+    OptionError
+        If the model, weighting and confidence cannot be used together.
     InputError
         If an exclusion names no point of the run.
     RangeError
@@ -181,9 +184,8 @@ def evaluate_run(
         the range calib proposes.
     """
     profile = profile or load_profile("default")
-    model = parse_option(Model, model or profile.model, name="model")
-    weighting = parse_option(Weighting, weighting or profile.weighting, name="weighting")
-    confidence = profile.confidence if confidence is None else confidence
+    options = profile.fit_options.given(model, weighting, confidence)
+    model, weighting, confidence = options.model, options.weighting, options.confidence
     run, applied = apply_exclusions(run, exclusions) if exclusions else (run, ())
     analytes = run.analytes
     wanted = _ranges_by_analyte(ranges, analytes)

@@ -89,9 +89,11 @@ def slope_history(curves: Iterable[Any], *, model: Model | str, weighting: Weigh
     ((1.0, 1.02), ('CR-1', 'CR-2'))
     """
     model, weighting = str(model), str(weighting)
+    # A mean-rf curve is weighted 1/x2 whatever its record says (calib.record/1 said none).
+    same = {weighting, "none", "1/x2"} if model == Model.MEAN_RF.value else {weighting}
     chosen = [
         c for c in curves
-        if c.accepted and c.figures.model == model and c.figures.weighting == weighting
+        if c.accepted and c.figures.model == model and c.figures.weighting in same
         and c.figures.slope is not None and math.isfinite(c.figures.slope)
     ]
     chosen.sort(key=lambda c: (c.run_date, c.seq))

@@ -32,8 +32,8 @@ from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
 
 from calib.checks.result import CheckResult, Severity, Verdict
-from calib.errors import ProfileError
-from calib.options import Model, Weighting
+from calib.errors import OptionError, ProfileError
+from calib.options import FitOptions, Model, Weighting
 
 if TYPE_CHECKING:
     from calib.checks.evaluate import CurveAssessment, RunAssessment
@@ -44,6 +44,7 @@ __all__ = [
     "AnalyteOverride",
     "apply_overrides",
     "digits_by_analyte",
+    "given_options",
     "override_for",
     "parse_overrides",
 ]
@@ -248,8 +249,29 @@ def profile_for(profile: Profile, entry: AnalyteOverride) -> Profile:
     """The profile as it stands for the analytes of ``entry``: its model, weighting and limits."""
     rules = tuple(replace(r, params={**r.params, **entry.rules[r.id]}) if r.id in entry.rules
                   else r for r in profile.rules)
-    return replace(profile, model=entry.model or profile.model,
-                   weighting=entry.weighting or profile.weighting, rules=rules)
+    options = profile.fit_options.given(model=entry.model, weighting=entry.weighting)
+    return replace(profile, model=options.model, weighting=options.weighting, rules=rules)
+
+
+def given_options(profile: Profile, model: Model | str | None = None,
+                  weighting: Weighting | str | None = None,
+                  confidence: float | str | None = None) -> FitOptions:
+    """The profile's fit options with those a caller gives, checked for every ``[[analyte]]`` too.
+
+    Raises
+    ------
+    OptionError
+        When the options given cannot go with the profile's, or with an entry's
+        (the entry named).
+    """
+    options = profile.fit_options.given(model, weighting, confidence)
+    for entry in profile.overrides:
+        try:
+            profile_for(profile, entry).fit_options.given(model, weighting, confidence)
+        except OptionError as exc:
+            raise OptionError(f"{exc} (for the analytes of {entry.label} of profile "
+                              f"{profile.name})") from None
+    return options
 
 
 def apply_overrides(analytes: Sequence[str], profile: Profile,

@@ -29,8 +29,8 @@ from typing import TYPE_CHECKING, Any
 from calib.checks.family import ReviewFamily, parse_review_family
 from calib.checks.result import Severity
 from calib.checks.rules import RULES
-from calib.errors import ProfileError
-from calib.options import LimitMethod, Model, Weighting
+from calib.errors import OptionError, ProfileError
+from calib.options import FitOptions, LimitMethod, Model, Weighting
 
 if TYPE_CHECKING:
     from calib.checks.overrides import AnalyteOverride
@@ -47,6 +47,9 @@ _SIGNOFF_KEYS = ("allow_preparer_to_review", "allow_preparer_to_approve",
 _DEFAULT_KEYS = {"model", "weighting", "confidence", "zero_standards", "lod_method",
                  "fit_replicates"}
 _ZERO_CHOICES = ("fit", "exclude")
+#: A profile's fit options when [defaults] sets none; a model with its own weighting
+#: (mean-rf) takes it when the profile names no weighting.
+_DEFAULT_OPTIONS = FitOptions(Model.LINEAR, Weighting.NONE, 0.95)
 _REPLICATE_CHOICES = ("all", "first")
 
 
@@ -118,7 +121,8 @@ class Profile:
     sources : tuple of str
         Where the limits come from.
     model, weighting, confidence, zero_standards
-        Defaults used unless the command line overrides them.
+        Defaults used unless the command line overrides them (see :attr:`fit_options`;
+        for ``mean-rf`` the weighting is its own, ``1/x2``).
     rules : tuple of RuleSpec
         The checks, in the order they are reported.
     text : str
@@ -153,6 +157,11 @@ class Profile:
     overrides: tuple[AnalyteOverride, ...] = ()
     #: The review-level diagnostics judged together (Holm), when the profile declares them.
     review_family: ReviewFamily | None = None
+
+    @property
+    def fit_options(self) -> FitOptions:
+        """The profile's model, weighting and confidence, checked together."""
+        return FitOptions(self.model, self.weighting, self.confidence)
 
     @property
     def sha256(self) -> str:
@@ -235,13 +244,18 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
             raise fail(key, f"unknown key {key!r} in [defaults]; expected one of "
                             f"{', '.join(sorted(_DEFAULT_KEYS))}")
     try:
-        model = Model(defaults.get("model", "linear"))
-        weighting = Weighting(defaults.get("weighting", "none"))
-    except ValueError as exc:
-        raise fail("model" if "model" in str(exc).lower() else "weighting", str(exc)) from None
+        options = _DEFAULT_OPTIONS.given(model=defaults.get("model"),
+                                         weighting=defaults.get("weighting"))
+    except OptionError as exc:
+        text_of = str(exc)
+        key = ("weighting" if text_of.startswith("weighting") or
+               ("takes no other" in text_of and "weighting" in defaults) else "model")
+        raise fail(key, str(exc)) from None
     confidence = defaults.get("confidence", 0.95)
-    if isinstance(confidence, bool) or not isinstance(confidence, (int, float)) or not 0.5 <= confidence < 1:
-        raise fail("confidence", f"confidence must be a number from 0.5 to below 1, got {confidence!r}")
+    try:
+        options = options.given(confidence=confidence)
+    except OptionError as exc:
+        raise fail("confidence", str(exc)) from None
     zero = defaults.get("zero_standards", "fit")
     if zero not in _ZERO_CHOICES:
         raise fail("zero_standards", f"zero_standards must be one of {', '.join(_ZERO_CHOICES)}, got {zero!r}")
@@ -267,9 +281,9 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
         version=data["version"].strip(),
         description=str(data.get("description", "")),
         sources=tuple(sources),
-        model=model,
-        weighting=weighting,
-        confidence=float(confidence),
+        model=options.model,
+        weighting=options.weighting,
+        confidence=options.confidence,
         zero_standards=zero,
         rules=tuple(specs),
         text=text,
@@ -277,13 +291,13 @@ def parse_profile(text: str, *, origin: str = "profile") -> Profile:
         lod_method=LimitMethod(lod_method),
         narrowing=_parse_narrowing(data.get("narrowing", {}), text, origin),
         fit_replicates=fit_replicates,
-        overrides=_parse_overrides(data.get("analyte", []), specs, text, origin),
+        overrides=_parse_overrides(data.get("analyte", []), specs, text, origin, options),
         review_family=_parse_family(data.get("review_family"), text, origin),
     )
 
 
-def _parse_overrides(entries: Any, specs: list[RuleSpec], text: str, origin: str
-                     ) -> tuple[AnalyteOverride, ...]:
+def _parse_overrides(entries: Any, specs: list[RuleSpec], text: str, origin: str,
+                     options: FitOptions) -> tuple[AnalyteOverride, ...]:
     from calib.checks.overrides import parse_overrides
 
     starts = [m.start() for m in re.finditer(r"^[ \t]*\[\[[ \t]*analyte[ \t]*\]\]", text,
@@ -293,7 +307,13 @@ def _parse_overrides(entries: Any, specs: list[RuleSpec], text: str, origin: str
         line = text.count("\n", 0, starts[i - 1]) + 1 if i <= len(starts) else 1
         return f"{origin}, line {line}"
 
-    return parse_overrides(entries, specs, where=where)
+    parsed = parse_overrides(entries, specs, where=where)
+    for entry in parsed:  # each entry's model and weighting must go together over the defaults
+        try:
+            options.given(model=entry.model, weighting=entry.weighting)
+        except OptionError as exc:
+            raise ProfileError(f"{where(entry.index)}: {exc}") from None
+    return parsed
 
 
 def _parse_family(table: Any, text: str, origin: str) -> ReviewFamily | None:

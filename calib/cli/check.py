@@ -17,6 +17,7 @@ from calib.cli.common import (
     add_import_options,
     add_template_option,
     refuse_existing,
+    refuse_fit_options,
     sheet_arg,
 )
 
@@ -34,6 +35,7 @@ examples:
   calib check monday.xlsx tuesday.xlsx         several runs, one summary, the worst exit code
   calib check runs/ --pdf records/             every run file in a folder, one record each
   calib check run.csv --model quadratic --weighting 1/x --confidence 0.99
+  calib check run.csv --model mean-rf          mean response factor (fitted with weights 1/x2)
   calib check run.xlsx --pdf nitrate-record.pdf --prepared-by "R. Okafor"
   calib check run.xlsx --prepared-by "R. Okafor" --archive records.sqlite
   calib check run.xlsx --pdf record.pdf --template our-lab.toml   another letterhead, this once
@@ -45,6 +47,9 @@ examples:
   calib check run.xlsx --range "2..500=LLOQ outside ±20 %, SOP 7.3" --xlsx results.xlsx
   calib check run.xlsx --csv results.csv       one row per curve, for a LIMS or a script
   calib check icp.xlsx --standards metals-standards.toml --pdf icp.pdf   name the materials
+
+--confidence is a fraction (0.95, 0.99); a percentage such as 95 is refused.
+--model mean-rf takes no weighting but its own (1/x2): another is refused (exit 2).
 
 exit codes: 0 every curve accepted, 1 a curve rejected or needs review,
             2 usage error, 3 unusable input (also a full disk; nothing is written),
@@ -113,6 +118,8 @@ def run(args: argparse.Namespace) -> int:
     from calib import service
     from calib.cautions import CAUTIONS
 
+    if refuse_fit_options("check", args):
+        return 2
     imap = None
     if args.map:
         from calib.io import load_map

@@ -6,36 +6,76 @@ import argparse
 import sys
 from pathlib import Path
 
-from calib.options import Model, Weighting
+from calib.errors import OptionError
+from calib.options import Model, Weighting, parse_confidence, parse_option
 
 MODELS = tuple(m.value for m in Model)
 WEIGHTINGS = tuple(w.value for w in Weighting)
 
 
 def confidence_level(text: str) -> float:
-    """argparse type: a confidence level from 0.5 to below 1 (``95`` is read as 0.95)."""
+    """argparse type: a confidence level, a fraction from 0.5 to below 1 (``95`` is refused).
+
+    The rule of :func:`calib.options.check_confidence`, as in the web form, the
+    profile and the library.
+    """
     try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number such as 0.95, got {text!r}") from None
-    if 50 <= value < 100:
-        value /= 100
-    if not 0.5 <= value < 1:
-        raise argparse.ArgumentTypeError(f"must be from 0.5 to below 1 (e.g. 0.95), got {text!r}")
-    return value
+        return parse_confidence(text)
+    except OptionError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
+def _model(text: str) -> Model:
+    try:
+        return parse_option(Model, text, name="model")  # type: ignore[return-value]
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
+def _weighting(text: str) -> Weighting:
+    try:
+        return parse_option(Weighting, text, name="weighting")  # type: ignore[return-value]
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def add_fit_options(parser: argparse.ArgumentParser) -> None:
-    """--model, --weighting, --confidence, --profile, --sheet."""
-    parser.add_argument("--model", choices=MODELS, help="calibration model (default: the profile's)")
-    parser.add_argument("--weighting", choices=WEIGHTINGS,
-                        help="weights of the standards (default: the profile's)")
+    """--model, --weighting, --confidence, --profile, --sheet (read into typed values)."""
+    parser.add_argument("--model", type=_model, metavar="{" + ",".join(MODELS) + "}",
+                        help="calibration model, e.g. --model quadratic; mean-rf (the mean "
+                             "response factor) is fitted with its own weighting 1/x2 "
+                             "(default: the profile's)")
+    parser.add_argument("--weighting", type=_weighting, metavar="{" + ",".join(WEIGHTINGS) + "}",
+                        help="weights of the standards, e.g. --weighting 1/x2; mean-rf takes "
+                             "1/x2 and no other (default: the profile's)")
     parser.add_argument("--confidence", type=confidence_level, metavar="C",
-                        help="confidence level of intervals, e.g. 0.95 (default: the profile's)")
+                        help="confidence level of intervals, a fraction from 0.5 to below 1, "
+                             "e.g. --confidence 0.99 (95 is refused: write 0.95; default: the "
+                             "profile's)")
     parser.add_argument("--profile", default="default", metavar="P",
                         help="acceptance profile: a shipped name or a TOML file (default: default)")
     parser.add_argument("--sheet", metavar="S",
                         help="sheet name or 0-based index (default: first sheet with standards)")
+
+
+def refuse_fit_options(command: str, args: argparse.Namespace) -> bool:
+    """Say so and return True when --model and --weighting cannot go with each other or the profile.
+
+    Checked before any file is read, so the answer is a usage error (exit 2) even
+    with several run files; the profile's ``[[analyte]]`` entries are checked too.
+    """
+    if args.model is None and args.weighting is None:
+        return False  # the profile's own options were checked when it was loaded
+    from calib.checks.overrides import given_options
+    from calib.checks.profile import load_profile
+
+    try:
+        given_options(load_profile(args.profile or "default"), args.model, args.weighting,
+                      args.confidence)
+    except OptionError as exc:
+        print(f"calib {command}: error: {exc}", file=sys.stderr)
+        return True
+    return False
 
 
 def add_import_options(parser: argparse.ArgumentParser) -> None:

@@ -54,6 +54,7 @@ _BY_NAME = {
     "SignOffError": REFUSED,
     "RefusedAction": REFUSED,
     "IntegrityError": INTEGRITY,
+    "OptionError": USAGE,
 }
 
 

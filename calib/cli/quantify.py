@@ -6,7 +6,13 @@ import argparse
 import json
 import sys
 
-from calib.cli.common import add_debug, add_fit_options, add_template_option, sheet_arg
+from calib.cli.common import (
+    add_debug,
+    add_fit_options,
+    add_template_option,
+    refuse_fit_options,
+    sheet_arg,
+)
 
 EXAMPLES = """\
 examples:
@@ -15,6 +21,7 @@ examples:
   calib quantify record.pdf batch.xlsx --pdf results.pdf --xlsx results.xlsx
   calib quantify record.json batch.csv --json > results.json   (schema calib.quantify/1)
   calib quantify run.csv batch.csv --force     quantify against a rejected curve (flagged)
+  calib quantify run.xlsx --model mean-rf --confidence 0.99   (a fraction: 95 is refused)
   calib quantify record.pdf lims.csv --map lims.toml   headings of the samples file named by a map
   calib quantify run.xlsx soils.xlsx           with "Sample weight (g)" and "Final volume (mL)"
                                                columns: results are contents in mg/kg (C × V / m)
@@ -80,6 +87,8 @@ def run(args: argparse.Namespace) -> int:
     if fixed and is_record_file(args.curve):
         print(f"calib quantify: error: {' and '.join(fixed)} apply to a run file; an issued "
               "record's curve is fixed", file=sys.stderr)
+        return 2
+    if refuse_fit_options("quantify", args):
         return 2
     outcome = service.quantify(
         args.curve, args.samples, template=args.template, xlsx=args.xlsx, pdf=args.pdf,

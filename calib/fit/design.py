@@ -12,7 +12,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from calib.options import Model, Weighting
+from calib.options import Model, Weighting, combination_problem, own_weighting
 
 __all__ = [
     "COEFFICIENTS", "design_matrix", "fit_weights", "level_variances", "model_refuses",
@@ -57,7 +57,8 @@ def weight_basis(model: Model, weighting: Weighting) -> Weighting:
 
     The mean of the response factors yᵢ/xᵢ is the least-squares slope of
     y = RF·x with weights 1/xᵢ², so ``mean-rf`` is fitted with 1/x² weights
-    and accepts no other weighting.
+    (:func:`calib.options.own_weighting`); ``none`` is still read as the equal
+    weight of its response factors, as records before ``calib.record/2`` say.
 
     Examples
     --------
@@ -66,14 +67,14 @@ def weight_basis(model: Model, weighting: Weighting) -> Weighting:
     >>> weight_basis(Model.MEAN_RF, Weighting.INV_X)
     Traceback (most recent call last):
     ...
-    ValueError: model mean-rf averages the response factors with equal weight; weighting must be none, got '1/x'
+    ValueError: model mean-rf is fitted with weighting 1/x2 (each response factor yᵢ/xᵢ counts alike) and takes no other; got weighting 1/x: leave the weighting out, or choose another model
     """
-    if model is not Model.MEAN_RF:
-        return weighting
-    if weighting is not Weighting.NONE:
-        raise ValueError("model mean-rf averages the response factors with equal weight; "
-                         f"weighting must be none, got {weighting.value!r}")
-    return Weighting.INV_X2
+    if model is not Model.MEAN_RF or weighting is Weighting.NONE:
+        return own_weighting(model) or weighting
+    problem = combination_problem(model, weighting)
+    if problem is not None:
+        raise ValueError(problem)
+    return weighting
 
 
 def model_refuses(concentration: float, model: Model) -> str | None:

@@ -108,7 +108,7 @@ def _basis(value: Any, where: str) -> str | None:
 
 def curves_from_record(body: Mapping[str, Any], *, label: str = "record"
                        ) -> tuple[dict[str, CalibrationCurve], dict[str, str]]:
-    """The curves of a ``calib.record/1`` body, from its stored figures.
+    """The curves of a ``calib.record`` body (/1 or /2), from its stored figures.
 
     Parameters
     ----------

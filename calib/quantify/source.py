@@ -20,13 +20,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from calib.errors import InputError, ProfileError
+from calib.errors import InputError, OptionError, ProfileError
 from calib.quantify.curve import CalibrationCurve, curve_from_assessment, curves_from_record
 from calib.quantify.qc import QcRule
 
 if TYPE_CHECKING:
     from calib.checks.evaluate import RunAssessment
     from calib.checks.profile import Profile
+    from calib.options import Model, Weighting
     from calib.run import Run
 
 __all__ = ["CurveSource", "is_record_file", "load_curves"]
@@ -190,8 +191,8 @@ def load_curves(
     *,
     sheet: str | int | None = None,
     profile: str | Path | None = None,
-    model: str | None = None,
-    weighting: str | None = None,
+    model: Model | str | None = None,
+    weighting: Weighting | str | None = None,
     confidence: float | None = None,
     map: str | Path | None = None,
 ) -> CurveSource:
@@ -218,8 +219,9 @@ def load_curves(
 
     Raises
     ------
-    ValueError
-        When ``model``, ``weighting`` or ``sheet`` is given with a record, whose curve is fixed.
+    OptionError
+        When ``model``, ``weighting`` or ``sheet`` is given with a record, whose curve is
+        fixed, or the model, weighting and confidence cannot be used together.
     InputError
         When the file cannot be read or used.
     ProfileError
@@ -229,7 +231,7 @@ def load_curves(
         given = [name for name, value in (("model", model), ("weighting", weighting),
                                           ("sheet", sheet), ("map", map)) if value is not None]
         if given:
-            raise ValueError(f"{' and '.join(given)} apply to a run file; the curve of an "
+            raise OptionError(f"{' and '.join(given)} apply to a run file; the curve of an "
                              "issued record is fixed (its model and weighting were reviewed)")
         return _record_source(path, profile=profile)
     from calib.workflow import check_file

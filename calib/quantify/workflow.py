@@ -12,6 +12,7 @@ from pathlib import Path
 
 from calib.errors import InputError
 from calib.io.columns import squash
+from calib.options import Model, Weighting
 from calib.quantify.batch import Batch, ReportingConvention, quantify
 from calib.quantify.samples import (
     Reading,
@@ -141,8 +142,8 @@ def quantify_files(
     sheet: str | int | None = None,
     samples_sheet: str | int | None = None,
     profile: str | Path | None = None,
-    model: str | None = None,
-    weighting: str | None = None,
+    model: Model | str | None = None,
+    weighting: Weighting | str | None = None,
     confidence: float | None = None,
     force: bool = False,
     convention: ReportingConvention | None = None,

@@ -9,6 +9,7 @@ from typing import Any
 from calib import __version__
 from calib.checks.evaluate import CurveAssessment, RunAssessment
 from calib.checks.result import verdict_reasons
+from calib.options import own_weighting
 
 __all__ = ["CHECK_SCHEMA", "check_document", "finite_or_none", "response_basis"]
 
@@ -80,7 +81,8 @@ def curve_document(curve: CurveAssessment) -> dict[str, Any]:
         # Samples must be read on the same basis (calib.quantify refuses another).
         "response_basis": response_basis(curve),
         "model": curve.model.value,
-        "weighting": curve.weighting.value,
+        # The one statement of the weighting: the fit's (mean-rf: its own 1/x2).
+        "weighting": (own_weighting(curve.model) or curve.weighting).value,
         "confidence": curve.confidence,
         "n_points": len(used),
         "n_levels": len({s.point.concentration for s in used}),

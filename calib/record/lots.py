@@ -57,7 +57,7 @@ def records_with_lot(records: Iterable[tuple[K, Mapping[str, Any]]], lot: str, *
     Parameters
     ----------
     records : iterable of (key, body)
-        Record bodies (parsed ``calib.record/1`` JSON) with a key of the
+        Record bodies (parsed ``calib.record`` JSON) with a key of the
         caller's (archive sequence number, file name...), returned as given.
     lot : str
         The lot to find.

@@ -25,9 +25,16 @@ from calib.fit.bands import band_figures
 from calib.record.document import check_document, finite_or_none
 from calib.record.identity import check_printed_name
 
-__all__ = ["JCS", "RECORD_SCHEMA", "Record", "build_record", "canonical_bytes", "canonical_json"]
+__all__ = ["JCS", "READ_SCHEMAS", "RECORD_SCHEMA", "Record", "build_record", "canonical_bytes",
+           "canonical_json"]
 
-RECORD_SCHEMA = "calib.record/1"
+#: Schema of the records calib issues.  Version 2 states each curve's weighting once, as
+#: ``check.curves[i].weighting``: the weighting the fit used (``1/x2`` for ``mean-rf``).
+#: Version 1 also had ``settings.weighting`` and ``fit_details[i].weight_function`` (the
+#: fit's weights, which for ``mean-rf`` were 1/x2 where ``weighting`` said ``none``).
+RECORD_SCHEMA = "calib.record/2"
+#: Schemas calib reads, verifies and renders: every version it has issued.
+READ_SCHEMAS = ("calib.record/1", RECORD_SCHEMA)
 #: Value of a record's ``canonicalization`` field: its digests are over RFC 8785 (JCS) bytes.
 #: Records without the field (calib 0.1.0) use :func:`canonical_json`, kept for them.
 JCS = "RFC 8785"
@@ -80,7 +87,7 @@ class Record:
     Attributes
     ----------
     body : dict
-        The record data (schema ``calib.record/1``).
+        The record data (schema ``calib.record/2``; ``/1`` still read).
     """
 
     body: dict[str, Any]
@@ -119,8 +126,8 @@ class Record:
     def from_json(cls, data: bytes | str) -> Record:
         """Read a record back from its JSON."""
         body = json.loads(data)
-        if not isinstance(body, dict) or body.get("schema") != RECORD_SCHEMA:
-            raise ValueError(f"not a {RECORD_SCHEMA} document")
+        if not isinstance(body, dict) or body.get("schema") not in READ_SCHEMAS:
+            raise ValueError(f"not a {' or '.join(READ_SCHEMAS)} document")
         return cls(body)
 
 
@@ -169,9 +176,9 @@ def build_record(
             "analyte_units": {a: dict(u) for a, u in run.analyte_units.items()},
             "warnings": list(run.warnings),
         },
+        # The weighting is each curve's (check.curves[i].weighting), stated once.
         "settings": {
             "model": assessment.model.value,
-            "weighting": assessment.weighting.value,
             "confidence": assessment.confidence,
         },
         "profile": {
@@ -190,8 +197,9 @@ def build_record(
                 "t_critical": finite_or_none(c.fit.t_critical()),
                 "x_min": float(c.fit.x.min()),
                 "x_max": float(c.fit.x.max()),
-                # What the prediction band needs: calib.fit.bands.prediction_band.
-                **band_figures(c.fit),
+                # What the prediction band needs (calib.fit.bands.prediction_band), but
+                # the weighting: the curve's own ``weighting`` is the fit's.
+                **{k: v for k, v in band_figures(c.fit).items() if k != "weight_function"},
             }
             for c in assessment.curves
             if c.fit is not None

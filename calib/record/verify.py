@@ -5,7 +5,7 @@ release draws pages.  :func:`verify_bytes` (and :func:`verify_file`) check,
 each finding one line in plain words:
 
 data
-    The record JSON is a ``calib.record/1`` document in canonical form (RFC
+    The record JSON is a ``calib.record/2`` (or ``/1``) document in canonical form (RFC
     8785 for records that say ``"canonicalization": "RFC 8785"``, calib
     0.1.0's form for older ones); the version digest the PDF states is the
     digest of its attached JSON; every signature's ``previous_digest`` matches
@@ -48,7 +48,7 @@ from typing import Any
 from calib import __version__
 from calib.errors import ProfileError
 from calib.record.keys import Keyring
-from calib.record.record import RECORD_SCHEMA, Record
+from calib.record.record import Record
 from calib.record.recordfile import (
     RecordFile,
     read_path_bytes,
@@ -180,7 +180,7 @@ def _parse(file: RecordFile) -> tuple[Record | None, list[Finding]]:
     except UnicodeDecodeError:
         return None, [Finding("data", f"the {what} is not UTF-8 text")]
     except ValueError as exc:
-        return None, [Finding("data", f"the {what} is not a {RECORD_SCHEMA} document ({exc})")]
+        return None, [Finding("data", f"the {what} is not a calib record document ({exc})")]
     try:
         canonical = record.canonical
     except ValueError as exc:  # NaN, infinity or a number RFC 8785 cannot carry

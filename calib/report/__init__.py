@@ -1,6 +1,6 @@
 """The PDF calibration record: template, styles, page furniture, story and writer.
 
-:func:`write_pdf` renders a record dict (the parsed ``calib.record/1`` JSON)
+:func:`write_pdf` renders a record dict (the parsed ``calib.record/2`` or ``/1`` JSON)
 with a :class:`ReportTemplate` from :func:`load_template`.
 """
 

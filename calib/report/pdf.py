@@ -43,7 +43,7 @@ def write_pdf(
     Parameters
     ----------
     record : mapping
-        The parsed ``calib.record/1`` JSON; never live fit objects, so a
+        The parsed ``calib.record/2`` (or ``/1``) JSON; never live fit objects, so a
         stored record renders again identically.
     digest : str
         SHA-256 (hex) of the canonical record JSON; the footer shows 16 digits.

@@ -1,4 +1,4 @@
-"""Turn a calibration record (the parsed ``calib.record/1`` JSON) into reportlab flowables.
+"""Turn a calibration record (parsed ``calib.record/2`` or ``/1`` JSON) into reportlab flowables.
 
 Only the record is read, never live fit objects, so a stored record renders
 again to the same pages.  Every figure printed comes from the record; the
@@ -53,18 +53,20 @@ from calib.report.wording import (
     MODELS,
     ROLES,
     SEVERITIES,
-    WEIGHTINGS,
     as_list,
     as_mapping,
     coefficient_order,
     common_sheet,
+    fit_weighting,
     fixed_digits,
     lod_remark,
     range_sentences,
+    settings_weighting,
     shared_reasons,
     signature_words,
     text_or_dash,
     verdict_sentence,
+    weighting_words,
 )
 
 __all__ = ["build_story", "story_sections"]
@@ -84,7 +86,7 @@ def _prediction(details: Mapping[str, Any], curve: Mapping[str, Any], beta: list
     try:
         _, half = prediction_band(
             str(curve.get("model")), np.array(beta), np.array(cov), t_crit, grid,
-            residual_sd=sd, weight_function=str(details.get("weight_function") or "none"),
+            residual_sd=sd, weight_function=fit_weighting(details, curve),
             weight_scale=scale, level_variances=as_list(details.get("level_variances")),
         )
     except ValueError:
@@ -185,8 +187,7 @@ class _Builder:
              False),
             ("Profile SHA-256", f"{profile_sha[:16]} …" if profile_sha else MISSING, False),
             ("Model", text_or_dash(MODELS.get(str(source.get("model")), source.get("model"))), False),
-            ("Weighting", text_or_dash(WEIGHTINGS.get(str(source.get("weighting")),
-                                               source.get("weighting"))), False),
+            ("Weighting", settings_weighting(self.record, source), False),
             ("Confidence level", f"{confidence * 100:g} %" if confidence else MISSING, False),
             ("Prepared by", text_or_dash(record.get("prepared_by")), False),
         ]
@@ -399,9 +400,10 @@ class _Builder:
                          + (", and so is the response axis of the calibration plot."
                             if all_positive else "."))
         weighting = str(curve.get("weighting") or "none")
-        if weighting != "none" and show.residual_plot:
+        if (weighting != "none" or curve.get("model") == "mean-rf") and show.residual_plot:
             notes.append("Residuals are plotted unweighted, in response units; the fit "
-                         f"weighted the standards by {WEIGHTINGS.get(weighting, weighting)}.")
+                         "weighted the standards by "
+                         f"{weighting_words(curve.get('model'), weighting)}.")
         out: list[Flowable] = [self.heading(self.t.titles.plots), table]
         if notes:
             out.append(self.para(" ".join(notes), s.note))
@@ -594,7 +596,7 @@ def build_story(
     Parameters
     ----------
     record : mapping
-        The parsed ``calib.record/1`` JSON.
+        The parsed ``calib.record/2`` (or ``/1``) JSON.
     record_id, digest : str
         Identifier and SHA-256 of the record (not part of the record itself).
     template : ReportTemplate

@@ -1,6 +1,6 @@
 """How the PDF record puts the figures of a record in words: labels, verdicts, signatures.
 
-These read the parsed ``calib.record/1`` JSON defensively (a stored record may
+These read the parsed ``calib.record/1`` or ``/2`` JSON defensively (a stored record may
 lack a field; it then prints a dash) and are shared by the PDF story and the
 web page.
 """
@@ -13,22 +13,98 @@ from typing import Any
 from calib.report.formatting import MISSING, as_float, format_compact
 from calib.report.template import ReportTemplate
 
-__all__ = ["CHECK_VERDICTS", "COEFFICIENTS", "MODELS", "ROLES", "SEVERITIES", "WEIGHTINGS",
-           "as_list", "as_mapping", "coefficient_order", "common_sheet", "fixed_digits",
-           "lod_remark", "range_sentences", "shared_reasons", "signature_words", "text_or_dash",
-           "verdict_sentence"]
+__all__ = [
+    "CHECK_VERDICTS",
+    "COEFFICIENTS",
+    "MODELS",
+    "ROLES",
+    "SEVERITIES",
+    "WEIGHTINGS",
+    "as_list",
+    "as_mapping",
+    "coefficient_order",
+    "common_sheet",
+    "fit_weighting",
+    "fixed_digits",
+    "lod_remark",
+    "range_sentences",
+    "settings_weighting",
+    "shared_reasons",
+    "signature_words",
+    "text_or_dash",
+    "verdict_sentence",
+    "weighting_words",
+]
 
 MODELS = {
     "linear": "straight line, y = a + b·x",
     "origin": "straight line through the origin, y = b·x",
     "quadratic": "quadratic, y = a + b·x + c·x²",
+    "mean-rf": "mean response factor, y = RF·x (RF the mean of yᵢ/xᵢ)",
 }
-WEIGHTINGS = {"none": "none (equal weights)", "1/x": "1/x", "1/x2": "1/x²"}
+#: Every weighting of :class:`calib.options.Weighting`, as the record pages name it.
+WEIGHTINGS = {"none": "none (equal weights)", "1/x": "1/x", "1/x2": "1/x²", "1/y": "1/y",
+              "1/y2": "1/y²", "1/s2": "1/s² (variance function fitted to the replicates)"}
 COEFFICIENTS = {"intercept": "Intercept a", "slope": "Slope b", "quadratic": "Quadratic term c"}
 CHECK_VERDICTS = {"pass": "Pass", "fail": "Fail", "warn": "Warning",
                   "not-evaluated": "Not evaluated"}
 SEVERITIES = {"reject": "Reject", "review": "Review", "info": "Information"}
 ROLES = ("prepared", "reviewed", "approved")
+
+
+def weighting_words(model: Any, weighting: Any) -> str:
+    """A curve's weighting as the record pages name it.
+
+    A ``mean-rf`` curve is fitted with 1/x² weights whatever its record says (records
+    before ``calib.record/2`` said ``none``, meaning its response factors count alike).
+
+    Examples
+    --------
+    >>> weighting_words("linear", "1/s2")
+    '1/s² (variance function fitted to the replicates)'
+    >>> weighting_words("mean-rf", "none")
+    '1/x² (each response factor counts alike)'
+    """
+    if model == "mean-rf":
+        return "1/x² (each response factor counts alike)"
+    return text_or_dash(WEIGHTINGS.get(str(weighting), weighting))
+
+
+def fit_weighting(details: Mapping[str, Any], curve: Mapping[str, Any]) -> str:
+    """The weights a curve's fit used: ``fit_details`` of ``calib.record/1``, else its weighting.
+
+    Examples
+    --------
+    >>> fit_weighting({"weight_function": "1/x2"}, {"model": "mean-rf", "weighting": "none"})
+    '1/x2'
+    >>> fit_weighting({}, {"model": "linear", "weighting": "1/y"})
+    '1/y'
+    """
+    stored = details.get("weight_function")  # calib.record/1 only
+    if stored:
+        return str(stored)
+    return "1/x2" if curve.get("model") == "mean-rf" else str(curve.get("weighting") or "none")
+
+
+def settings_weighting(record: Mapping[str, Any], source: Mapping[str, Any]) -> str:
+    """The weighting row of the settings: a curve's, or the run's (``settings``).
+
+    ``calib.record/2`` states the weighting per curve only, so the run's is the
+    curves' when they share one.
+
+    Examples
+    --------
+    >>> record = {"check": {"curves": [{"model": "linear", "weighting": "1/x"}] * 2}}
+    >>> settings_weighting(record, {"model": "linear", "confidence": 0.95})
+    '1/x'
+    """
+    if "weighting" in source or "model" not in source:
+        return weighting_words(source.get("model"), source.get("weighting"))
+    curves = [as_mapping(c) for c in as_list(as_mapping(record.get("check")).get("curves"))]
+    named = {weighting_words(c.get("model"), c.get("weighting")) for c in curves}
+    if len(named) == 1:
+        return named.pop()
+    return "per analyte (see each curve)" if named else MISSING
 
 
 def text_or_dash(value: Any) -> str:

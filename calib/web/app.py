@@ -76,17 +76,11 @@ async def check_upload(request: Request) -> Response:
 
 
 def _settings(form: FormData, request: Request) -> dict[str, Any]:
-    from calib.options import Model, Weighting
-
     profile = _text(form, "profile") or "default"
     if profile not in request.app.state.profiles:
         raise PageError(f"Unknown profile {profile!r}: choose one from the list.")
-    model, weighting = _text(form, "model") or None, _text(form, "weighting") or None
-    if model is not None and model not in {m.value for m in Model}:
-        raise PageError(f"Unknown model {model!r}: choose one from the list.")
-    if weighting is not None and weighting not in {w.value for w in Weighting}:
-        raise PageError(f"Unknown weighting {weighting!r}: choose one from the list.")
-    return {"profile": profile, "model": model, "weighting": weighting}
+    return pages.form_options(profile, _text(form, "model") or None,
+                              _text(form, "weighting") or None, _text(form, "confidence") or None)
 
 
 def _assess(run: OpenRun) -> None:
@@ -97,7 +91,7 @@ def _assess(run: OpenRun) -> None:
     exclusions = [parse_exclusion(f"{t}={r}") for t, r in run.exclusions]
     with private_copy(run.name, run.data) as path:
         run.assessment = service.check(path, profile=run.profile, model=run.model,
-                                       weighting=run.weighting,
+                                       weighting=run.weighting, confidence=run.confidence,
                                        exclusions=exclusions).assessment
     run.issued = run.issued_pdf = None
     run.filed = ""
@@ -132,13 +126,13 @@ async def curve_page(request: Request) -> Response:
 async def run_settings(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
-    before = (run.profile, run.model, run.weighting)
+    before = (run.profile, run.model, run.weighting, run.confidence)
     for key, value in _settings(form, request).items():
         setattr(run, key, value)
     try:
         await run_in_threadpool(_assess, run)
     except CalibError as exc:
-        run.profile, run.model, run.weighting = before
+        run.profile, run.model, run.weighting, run.confidence = before
         await run_in_threadpool(_assess, run)
         return _run_view(request, run_id, run, error=one_line(str(exc)), status=400)
     return RedirectResponse(f"/run/{run_id}", 303)

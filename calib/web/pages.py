@@ -88,6 +88,35 @@ def check_date(text: str, which: str) -> str:
                         f"got {text!r}.") from None
 
 
+def form_options(profile: str, model: str | None, weighting: str | None,
+                 confidence: str | None) -> dict[str, Any]:
+    """The settings form's model, weighting and confidence, typed and checked with the profile.
+
+    None stands for "the profile's".  A value not in the lists, a confidence that is
+    not a fraction from 0.5 to below 1, or a model and weighting that cannot go
+    together (with each other, the profile or its ``[[analyte]]`` entries) is a
+    :class:`~calib.web.base.PageError` (400) with the sentence to show by the form.
+    """
+    from calib.checks.overrides import given_options
+    from calib.checks.profile import load_profile
+    from calib.errors import OptionError
+    from calib.options import Model, Weighting
+    from calib.web.base import PageError
+
+    if model is not None and model not in {m.value for m in Model}:
+        raise PageError(f"Unknown model {model!r}: choose one from the list.")
+    if weighting is not None and weighting not in {w.value for w in Weighting}:
+        raise PageError(f"Unknown weighting {weighting!r}: choose one from the list.")
+    try:
+        options = given_options(load_profile(profile), model, weighting, confidence)
+    except OptionError as exc:
+        text = str(exc)
+        raise PageError(f"{text[:1].upper()}{text[1:]}.") from None
+    return {"profile": profile, "model": None if model is None else options.model,
+            "weighting": None if weighting is None else options.weighting,
+            "confidence": None if confidence is None else options.confidence}
+
+
 def choices(profiles: Sequence[str]) -> dict[str, Sequence[str]]:
     """The options of the profile, model and weighting lists."""
     from calib.options import Model, Weighting

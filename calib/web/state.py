@@ -19,9 +19,12 @@ from collections import OrderedDict
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from calib.web.security import new_token, safe_filename
+
+if TYPE_CHECKING:
+    from calib.options import Model, Weighting
 
 __all__ = ["Download", "OpenRun", "Sessions", "SessionsFull", "Store", "private_copy", "scrub"]
 
@@ -78,8 +81,10 @@ class OpenRun:
     name: str
     data: bytes
     profile: str = "default"
-    model: str | None = None
-    weighting: str | None = None
+    #: The analyst's choices, typed (calib.web.pages.form_options); None: the profile's.
+    model: Model | None = None
+    weighting: Weighting | None = None
+    confidence: float | None = None
     #: (target, reason) pairs, in the order the analyst gave them.
     exclusions: list[tuple[str, str]] = field(default_factory=list)
     #: Points put back, with the reason typed for it (shown on the page).

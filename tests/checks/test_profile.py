@@ -43,7 +43,7 @@ def test_file_profile_and_defaults_filled(tmp_path):
     ("edit", "message"),
     [
         ("colour = 'red'\n" + GOOD, "line 1: unknown key 'colour'"),
-        (GOOD.replace('model = "linear"', 'model = "cubic"'), "line 5: 'cubic' is not a valid Model"),
+        (GOOD.replace('model = "linear"', 'model = "cubic"'), "line 5: model must be one of linear, origin, quadratic, mean-rf; got 'cubic'"),
         (GOOD + "colour = 'red'\n", "line 7: rule 'min-levels' has no parameter 'colour'"),
         (GOOD.replace("min_levels = 6", "min_levels = 1"),
          "line 7: rule 'min-levels' parameter 'min_levels' must be at least 2, got 1"),

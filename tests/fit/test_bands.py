@@ -116,9 +116,10 @@ def test_bands_from_a_stored_record_match_the_fit() -> None:
     rng = np.random.default_rng(7)
     x10 = np.repeat([1.0, 5.0, 10.0, 50.0, 100.0, 200.0], 10)  # 1/s2 needs ~6+ replicates
     y10 = 1.5 * x10 * (1 + 0.02 * rng.standard_normal(x10.size))
-    for weighting in ("none", "1/x2", "1/y", "1/s2"):
+    for model, weighting in (("linear", "none"), ("linear", "1/x2"), ("linear", "1/y"),
+                             ("linear", "1/s2"), ("mean-rf", None)):
         xs, ys = (x10, y10) if weighting == "1/s2" else (X_DATA, Y_DATA)
-        assessment = evaluate_run(make_run(xs, ys), weighting=weighting)
+        assessment = evaluate_run(make_run(xs, ys), model=model, weighting=weighting)
         fit = assessment.curves[0].fit
         body = Record.from_json(build_record(assessment).canonical).body
         (details,) = body["fit_details"]
@@ -128,7 +129,9 @@ def test_bands_from_a_stored_record_match_the_fit() -> None:
         _, half = prediction_band(
             body["check"]["curves"][0]["model"], beta, details["covariance"],
             details["t_critical"], grid, residual_sd=details["residual_sd"],
-            weight_function=details["weight_function"], weight_scale=details["weight_scale"],
+            # calib.record/2 states the fit's weighting once, as the curve's weighting
+            weight_function=body["check"]["curves"][0]["weighting"],
+            weight_scale=details["weight_scale"],
             level_variances=details["level_variances"])
         np.testing.assert_allclose(half, fit.prediction_band(grid), rtol=1e-12)
         assert details["residual_df"] == fit.residual_df

@@ -545,8 +545,9 @@ Y3 = [[2.0, 4.1, 5.9, 8.2]]
 
 
 def test_mean_rf_takes_no_weighting_and_no_weights() -> None:
-    message = ("model mean-rf averages the response factors with equal weight; weighting "
-               "must be none, got '1/x'")
+    message = ("model mean-rf is fitted with weighting 1/x2 (each response factor yᵢ/xᵢ counts "
+               "alike) and takes no other; got weighting 1/x: leave the weighting out, or choose "
+               "another model")
     with pytest.raises(ValueError) as err:
         fit_curve(X3[0], Y3[0], model="mean-rf", weighting="1/x")
     assert str(err.value) == message

@@ -89,8 +89,9 @@ def test_back_calculation_predict_and_residuals() -> None:
 @pytest.mark.parametrize(
     ("kwargs", "message"),
     [
-        ({"weighting": "1/x"}, ("model mean-rf averages the response factors with equal weight; "
-                               "weighting must be none, got '1/x'")),
+        ({"weighting": "1/x"}, ("model mean-rf is fitted with weighting 1/x2 (each response "
+                               "factor yᵢ/xᵢ counts alike) and takes no other; got weighting 1/x: "
+                               "leave the weighting out, or choose another model")),
         ({"x": [0, 1, 2, 4]}, ("model mean-rf needs concentrations above 0 (each response is "
                               "divided by its concentration)")),
     ],

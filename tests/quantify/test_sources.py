@@ -97,7 +97,7 @@ def test_a_json_file_that_is_not_a_record_is_refused(tmp_path):
     other = tmp_path / "other.json"
     other.write_text('{"schema": "calib.check/1"}', encoding="utf-8")
     with pytest.raises(InputError, match="other.json: the file is not a calibration record "
-                                         r"\(not a calib.record/1 document\)"):
+                                         r"\(not a calib.record/1 or calib.record/2 document\)"):
         load_curves(other)
 
 

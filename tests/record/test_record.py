@@ -98,5 +98,5 @@ def test_any_edit_changes_the_digest():
 
 
 def test_from_json_refuses_other_documents():
-    with pytest.raises(ValueError, match="not a calib.record/1 document"):
+    with pytest.raises(ValueError, match="not a calib.record/1 or calib.record/2 document"):
         Record.from_json(b'{"schema": "calib.check/1"}')

@@ -257,9 +257,9 @@ def test_embedded_data_that_is_not_a_record(signed, tmp_path):
     v1 = signed["versions"][0]
     for data, message in [
         (b'{"schema": "calib.check/1"}',
-         ("the attached record data is not a calib.record/1 document (not a calib.record/1 "
-         "document)")),
-        (b"{not json", ("the attached record data is not a calib.record/1 document (Expecting "
+         ("the attached record data is not a calib record document (not a calib.record/1 "
+         "or calib.record/2 document)")),
+        (b"{not json", ("the attached record data is not a calib record document (Expecting "
                        "property name enclosed in double quotes: line 1 column 2 (char 1))")),
         (b'{"a": "\xff"}', "the attached record data is not UTF-8 text"),
     ]:
@@ -379,7 +379,8 @@ def test_unreadable_files(tmp_path):
     bad_json = tmp_path / "bad.json"
     bad_json.write_bytes(b'{"schema": "calib.check/1"}')
     assert messages(verify_file(bad_json)) == [
-        "the file is not a calib.record/1 document (not a calib.record/1 document)"]
+        ("the file is not a calib record document (not a calib.record/1 or calib.record/2 "
+         "document)")]
 
 
 def test_another_template_is_only_a_note(signed, tmp_path):

@@ -30,19 +30,8 @@ ROOT = Path(__file__).resolve().parent.parent / "calib"
 #: issue 18 item 4 (a circle not listed here fails the test; so does a listed
 #: one that is gone, so that the list only shrinks).
 KNOWN_CYCLES: tuple[frozenset[str], ...] = (
-    # A rule's result looks its title up in the registry that imports every rule.
-    frozenset({"calib.checks.rules", "calib.checks.rules.acceptance", "calib.checks.rules.base",
-               "calib.checks.rules.basic", "calib.checks.rules.intercept",
-               "calib.checks.rules.linearity",
-               "calib.checks.rules.models", "calib.checks.rules.outliers",
-               "calib.checks.rules.qc", "calib.checks.rules.standards",
-               "calib.checks.rules.variance"}),
-    frozenset({"calib.archive.audit", "calib.archive.store"}),
-    frozenset({"calib.labsettings", "calib.report.template"}),
     frozenset({"calib.web.app", "calib.web.archive_pages", "calib.web.auth", "calib.web.base",
                "calib.web.guard", "calib.web.pages"}),
-    # calib check of several files calls the one-file check (a function-level import).
-    frozenset({"calib.cli.check", "calib.cli.check_many"}),
 )
 
 

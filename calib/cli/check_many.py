@@ -27,6 +27,7 @@ from typing import TYPE_CHECKING, Any
 
 from calib.cli import exits
 from calib.cli.check_text import RunLine, summary_text, worst
+from calib.verdict_words import VERDICT_WORDS
 
 if TYPE_CHECKING:
     from calib.service import CheckOutcome
@@ -143,7 +144,7 @@ def run_many(args: argparse.Namespace, runs: Sequence[Path], imap: Any, *,
         except InputError as exc:
             lines.append(RunLine(path.name, "unusable", error=str(exc)))
             documents.append({"file": str(path), "verdict": "unusable", "error": str(exc)})
-            texts.append(f"{path}: UNUSABLE: {exc}")
+            texts.append(f"{path}: {VERDICT_WORDS['unusable']}: {exc}")
             continue
         out = {suffix: folder / f"{names[path]}{suffix}" for suffix, folder in folders.items()}
         said = []

@@ -400,13 +400,15 @@ def sign(path: str | os.PathLike[str], *, role: str, name: str | None = None,
     """
     from calib.record.keys import load_keyring
     from calib.record.signoff import file_versions, sign_file
+    from calib.report.pdf import record_pages
     from calib.report.template import load_template
 
     if isinstance(keyring, (str, os.PathLike)):
         keyring = load_keyring(keyring)
     chosen = (load_template(template) if isinstance(template, (str, os.PathLike))
               else template or record_template(path))
-    signed = sign_file(path, role=role, name=name, meaning=meaning, key=key, template=chosen,
+    signed = sign_file(path, role=role, name=name, meaning=meaning, key=key,
+                       pages=record_pages(chosen),
                        signed_at=signed_at, keyring=keyring,
                        want_pdf=want_pdf or archive is not None)
     entries: list[Any] = []
@@ -438,15 +440,17 @@ def verify(path: str | os.PathLike[str], *, keyring: Any = None,
     """
     from calib.record.keys import load_keyring
     from calib.record.verify import verify_file
+    from calib.report.pdf import record_pages
     from calib.report.template import load_template
 
     if isinstance(keyring, (str, os.PathLike)):
         keyring = load_keyring(keyring)
     chosen = (load_template(template) if isinstance(template, (str, os.PathLike))
               else template or record_template(path))
+    pages = record_pages(chosen)
     if archive is None:
-        return verify_file(path, keyring=keyring, template=chosen)
+        return verify_file(path, keyring=keyring, pages=pages)
     from calib.archive import Archive
 
     with Archive(os.fspath(archive), create=False) as store:
-        return verify_file(path, keyring=keyring, archive=store, template=chosen)
+        return verify_file(path, keyring=keyring, archive=store, pages=pages)

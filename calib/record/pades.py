@@ -92,7 +92,7 @@ def _stamp_pdf(width: float, height: float, lines: list[tuple[str, bool]]) -> by
     from reportlab.lib.utils import simpleSplit
     from reportlab.pdfgen.canvas import Canvas
 
-    from calib.report.styles import BOLD, REGULAR, register_fonts
+    from calib.fonts import BOLD, REGULAR, register_fonts
 
     register_fonts()
     out = io.BytesIO()
@@ -116,7 +116,7 @@ def _page_pdf(width: float, height: float, record_id: str) -> bytes:
     from reportlab.lib.utils import simpleSplit
     from reportlab.pdfgen.canvas import Canvas
 
-    from calib.report.styles import BOLD, REGULAR, register_fonts
+    from calib.fonts import BOLD, REGULAR, register_fonts
 
     register_fonts()
     out = io.BytesIO()

@@ -18,8 +18,8 @@ import rfc8785
 
 from calib.record.keys import load_keyring
 from calib.record.signoff import sign_bytes, sign_file
-from calib.report import record_pages
 from calib.record.verify import verify_bytes, verify_file
+from calib.report import record_pages
 from tests.record.integrity_helpers import (
     APPROVER,
     REVIEWER,

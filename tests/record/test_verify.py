@@ -18,8 +18,8 @@ from pypdf import PdfReader, PdfWriter
 from calib.errors import InputError
 from calib.record import Record
 from calib.record.signoff import sign_bytes
-from calib.report import record_pages
 from calib.record.verify import verify_bytes, verify_file
+from calib.report import record_pages
 from tests.record.integrity_helpers import (
     APPROVED_AT,
     APPROVER,

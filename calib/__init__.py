@@ -8,7 +8,12 @@ The pipeline, one sub-package per stage::
     calib.record   build_record(assessment) -> Record canonical JSON, digest, id
     calib.report   write_pdf(...) -> bytes            the PDF calibration record
 
-Names are imported lazily so that ``calib --help`` starts fast.
+``calib.service`` is what the commands do as library calls (check, issue,
+export, file, quantify, trend, sign, verify); :func:`quantify_files` reads
+unknowns against a checked curve.  The names in ``__all__`` are the public
+face; the errors are those a library call can raise to its caller (all
+:class:`CalibError`).  Names are imported lazily so that ``calib --help``
+starts fast.
 
 Examples
 --------
@@ -26,10 +31,19 @@ from typing import Any
 __version__ = "0.2.0"
 
 _EXPORTS = {
+    "ArchiveError": "calib.errors",
+    "BaselineError": "calib.errors",
     "CalibError": "calib.errors",
+    "ConfigError": "calib.errors",
     "InputError": "calib.errors",
+    "IntegrityError": "calib.errors",
+    "KeyFileError": "calib.errors",
     "NotAcceptedError": "calib.errors",
+    "PassphraseError": "calib.errors",
     "ProfileError": "calib.errors",
+    "RangeError": "calib.errors",
+    "RefusedAction": "calib.errors",
+    "SignOffError": "calib.errors",
     "TemplateError": "calib.errors",
     "Model": "calib.options",
     "Weighting": "calib.options",
@@ -54,18 +68,27 @@ _EXPORTS = {
     "check_document": "calib.record",
     "write_pdf": "calib.report",
     "CAUTIONS": "calib.cautions",
+    "QuantifyReport": "calib.quantify.workflow",
+    "quantify_files": "calib.quantify.workflow",
 }
 
+#: Sub-modules that are part of the public face as a whole.
+_MODULES = {"service": "calib.service"}
+
 __all__ = [
-    "CAUTIONS", "CalibError", "CheckResult", "CurveAssessment", "CurveFit", "CurveVerdict",
-    "InputError", "Model", "NotAcceptedError", "Point", "Profile", "ProfileError", "Record", "Run",
-    "RunAssessment", "SampleType", "Severity", "SourceInfo", "TemplateError", "Verdict",
+    "CAUTIONS", "ArchiveError", "BaselineError", "CalibError", "CheckResult", "ConfigError",
+    "CurveAssessment", "CurveFit", "CurveVerdict", "InputError", "IntegrityError", "KeyFileError",
+    "Model", "NotAcceptedError", "PassphraseError", "Point", "Profile", "ProfileError",
+    "QuantifyReport", "RangeError", "Record", "RefusedAction", "Run", "RunAssessment",
+    "SampleType", "Severity", "SignOffError", "SourceInfo", "TemplateError", "Verdict",
     "Weighting", "__version__", "build_record", "check_document", "evaluate_run", "fit_curve",
-    "load_profile", "read_run", "write_pdf",
+    "load_profile", "quantify_files", "read_run", "service", "write_pdf",
 ]
 
 
 def __getattr__(name: str) -> Any:
+    if name in _MODULES:
+        return importlib.import_module(_MODULES[name])
     module = _EXPORTS.get(name)
     if module is None:
         raise AttributeError(f"module 'calib' has no attribute {name!r}")

@@ -5,6 +5,9 @@ One tree, so callers can catch everything calib means to raise with a single
 
     CalibError                 base of everything below
     ├── InputError             a run file cannot be read or used (names file, sheet, row, column)
+    ├── CellError              a cell is not what its column needs (also a ValueError; calib.io)
+    ├── NumberTextError        text reads as a number in two ways (also a ValueError; calib.io)
+    ├── RangeError             a working range cannot be applied (also a ValueError; calib.checks)
     ├── ProfileError           an acceptance profile is malformed (names file and line)
     ├── OptionError            a model, weighting or confidence that cannot be used (a usage error)
     ├── TemplateError          a report template is malformed or points outside its folder
@@ -14,20 +17,29 @@ One tree, so callers can catch everything calib means to raise with a single
     ├── KeyFileError           a signing key cannot be read (calib.record.keys)
     ├── PassphraseError        no passphrase for a signing key (calib.record.keys)
     ├── IntegrityError         a record does not verify, so nothing is done with it
-    └── ArchiveError           the archive cannot be opened or refuses a write (calib.archive.store)
+    ├── ArchiveError           the archive cannot be opened or refuses a write (calib.archive.store)
+    ├── BaselineError          a trend baseline cannot be set up, read or used (calib.archive)
+    ├── RefusedAction          a change of users the rules refuse (calib.archive.people)
+    ├── SignInRefused          a sign-in, or the password typed again to sign, refused
+    ├── SessionsFull           calib serve has runs open for too many browsers (calib.web)
+    └── PageError              a request a page of calib serve refuses, with its HTTP status
 
-Wrong *arguments* (an unknown model name, a confidence of 1.5) raise the
-built-in ``ValueError`` naming the parameter and the value; the fit options a
-caller chooses (model, weighting, confidence, and the pairs of model and
-weighting that cannot go together) raise :class:`OptionError`, which is both.  A curve that fails
-its acceptance rules is *not* an error: it is a verdict in the result.
+Every exception class calib defines is here (tests/test_errors_home.py checks it);
+the modules named above re-export theirs, so ``from calib.io.cells import
+CellError`` still works.  Wrong *arguments* (an unknown model name, a
+confidence of 1.5) raise the built-in ``ValueError`` naming the parameter and
+the value; the fit options a caller chooses (model, weighting, confidence, and
+the pairs of model and weighting that cannot go together) raise
+:class:`OptionError`, which is both.  A curve that fails its acceptance rules is
+*not* an error: it is a verdict in the result.
 """
 
 from __future__ import annotations
 
-__all__ = ["CalibError", "ConfigError", "InputError", "IntegrityError", "NotAcceptedError",
-           "OptionError", "ProfileError",
-           "TemplateError"]
+__all__ = ["ArchiveError", "BaselineError", "CalibError", "CellError", "ConfigError",
+           "InputError", "IntegrityError", "KeyFileError", "NotAcceptedError", "NumberTextError",
+           "OptionError", "PageError", "PassphraseError", "ProfileError", "RangeError",
+           "RefusedAction", "SessionsFull", "SignInRefused", "SignOffError", "TemplateError"]
 
 
 class CalibError(Exception):
@@ -103,3 +115,60 @@ class IntegrityError(CalibError):
 
 class NotAcceptedError(CalibError):
     """A curve was not accepted and the caller asked for an exception."""
+
+
+class CellError(CalibError, ValueError):
+    """A cell cannot be read as what its column needs.
+
+    The message says what was found and what was expected; it names no place,
+    the caller adds file, sheet, row and column.
+    """
+
+
+class NumberTextError(CalibError, ValueError):
+    """Text that looks like a number cannot be read unambiguously (the message says why)."""
+
+
+class RangeError(CalibError, ValueError):
+    """A working range that cannot be applied (no such analyte, no reason given)."""
+
+
+class SignOffError(CalibError):
+    """The sign-off rules refuse a signature (the message says which rule)."""
+
+
+class KeyFileError(CalibError):
+    """A key file or keyring cannot be written, read or unlocked (the message names the file)."""
+
+
+class PassphraseError(CalibError):
+    """No usable passphrase was given for a private key."""
+
+
+class ArchiveError(CalibError):
+    """The archive cannot be opened or used, or an append was refused."""
+
+
+class BaselineError(CalibError):
+    """A baseline cannot be established, read or used (the message says why)."""
+
+
+class RefusedAction(CalibError):
+    """A user change the rules refuse (a second user of one name, the last administrator...)."""
+
+
+class SignInRefused(CalibError):
+    """A sign-in (or the password typed again to sign) was refused; the message says why."""
+
+
+class SessionsFull(CalibError):
+    """Every place for a browser's store on ``calib serve`` is taken by an active browser."""
+
+
+class PageError(CalibError):
+    """A request a page of ``calib serve`` refuses, with the one sentence to show and the HTTP status."""
+
+    def __init__(self, message: str, status: int = 400) -> None:
+        super().__init__(message)
+        self.message = message
+        self.status = status

@@ -118,29 +118,24 @@ def read_settings(path: str | Path | None = None) -> LabSettings | None:
     return LabSettings(Path(template), digest, source)
 
 
-def write_settings(template: str | Path, *, path: str | Path | None = None) -> LabSettings:
-    """Check ``template`` and record it (absolute path and SHA-256) as the lab's template.
+def write_settings(template: str | Path, sha256: str, *,
+                   path: str | Path | None = None) -> LabSettings:
+    """Record ``template`` (made absolute) and its ``sha256`` as the lab's template.
 
-    The template is loaded first, so a broken one is refused before anything is
-    written.  The settings file is replaced atomically.
-
-    Raises
-    ------
-    TemplateError
-        When the template cannot be used.
+    The settings file is replaced atomically.  The template is checked by the
+    caller first (:func:`calib.report.template.set_lab_template` loads it), so
+    a broken one is refused before anything is written.
     """
     from calib.output import write_atomic
-    from calib.report.template import load_template
 
     resolved = Path(template).resolve()
-    loaded = load_template(resolved)
     target = Path(path) if path is not None else config_path()
     text = ("# calib lab settings, written by `calib lab init`; run it again to change them.\n"
             "[lab]\n"
             f"template = {_toml_string(str(resolved))}\n"
-            f"template_sha256 = {_toml_string(loaded.sha256)}\n")
+            f"template_sha256 = {_toml_string(sha256)}\n")
     write_atomic(target, text.encode("utf-8"), private=True)
-    return LabSettings(resolved, loaded.sha256, target)
+    return LabSettings(resolved, sha256, target)
 
 
 def _toml_string(text: str) -> str:

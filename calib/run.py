@@ -6,11 +6,12 @@ downstream (fitting, checks, records) works on this form only.
 
 from __future__ import annotations
 
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 
 from calib.options import SampleType
 
-__all__ = ["Point", "Run", "SourceInfo"]
+__all__ = ["Point", "Run", "SourceInfo", "response_basis"]
 
 
 @dataclass(frozen=True)
@@ -67,6 +68,17 @@ class Point:
     is_response: float | None = None
     analyte_response: float | None = None
     level: str | None = None
+
+
+def response_basis(points: Iterable[Point]) -> str:
+    """``ratio`` when the points' responses are ratios to an internal standard, else ``raw``.
+
+    Examples
+    --------
+    >>> response_basis([Point("Zn", 1.0, 2.0, "A2", is_response=4.0)]), response_basis([])
+    ('ratio', 'raw')
+    """
+    return "ratio" if any(p.is_response is not None for p in points) else "raw"
 
 
 @dataclass(frozen=True)

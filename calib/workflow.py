@@ -134,6 +134,7 @@ def issue_record(
     """
     from calib.record.signing import issue_signed
     from calib.record.signoff import issue_pdf
+    from calib.report.pdf import record_pages
     from calib.report.template import resolve_template
 
     chosen = resolve_template(template)
@@ -141,7 +142,7 @@ def issue_record(
                                  created_at=created_at, template=chosen)
     if key is not None:
         record = issue_signed(record, key)
-    return record, issue_pdf(record, key=key, template=chosen)
+    return record, issue_pdf(record, pages=record_pages(chosen), key=key)
 
 
 def build_issued_record(assessment: RunAssessment, *, prepared_by: str | None,
@@ -159,8 +160,9 @@ def build_issued_record(assessment: RunAssessment, *, prepared_by: str | None,
 def render_record(record: Record, template: ReportTemplate) -> bytes:
     """Render ``record`` with ``template`` as its PDF (the record JSON attached inside)."""
     from calib.record.signoff import issue_pdf
+    from calib.report.pdf import record_pages
 
-    return issue_pdf(record, template=template)
+    return issue_pdf(record, pages=record_pages(template))
 
 
 def record_pdf(record: Record, *, template: str | Path | None = None) -> bytes:

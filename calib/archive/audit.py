@@ -37,6 +37,7 @@ from calib.archive.chain import (
     check_link,
     figures_row,
 )
+from calib.archive.rows import FIGURE_COLUMNS, SELECT_DATA, SELECT_META, entry_from_row
 
 if TYPE_CHECKING:
     from calib.archive.store import Archive
@@ -119,8 +120,6 @@ def receipt_problems(archive: Archive) -> list[ChainProblem]:
 
 
 def _entry(row: tuple[Any, ...]) -> ArchiveEntry:
-    from calib.archive.store import entry_from_row
-
     return entry_from_row(row)
 
 
@@ -148,8 +147,6 @@ def verify_chain(archive: Archive, *, expected_head: str | None = None, deep: bo
     ChainReport
         Every problem names the entry (seq) it concerns.
     """
-    from calib.archive.store import FIGURE_COLUMNS, SELECT_DATA, SELECT_META
-
     store = archive.storage
     problems: list[ChainProblem] = []
     wanted = expected_head.strip().lower() if expected_head is not None else None
@@ -218,8 +215,6 @@ def verify_entry(archive: Archive, digest: str) -> EntryReport:
 
 def _entry_problems(archive: Archive, entry: ArchiveEntry) -> list[ChainProblem]:
     """The entry, the links on either side of it, and its JSON and PDF."""
-    from calib.archive.store import SELECT_META
-
     store = archive.storage
     problems = []
     before = store.query(f"{SELECT_META} WHERE e.seq < ? ORDER BY e.seq DESC LIMIT 1",

@@ -31,16 +31,12 @@ from typing import Any, Protocol
 from urllib.parse import urlsplit, urlunsplit
 
 from calib.archive import schema
-from calib.errors import CalibError
+from calib.errors import ArchiveError
 
 __all__ = ["ArchiveError", "PostgresStorage", "SqliteStorage", "Storage", "is_database_url",
            "open_storage", "redact"]
 
 LOCK_KEY = 0x43414C42  # the advisory lock every calib writer takes on PostgreSQL
-
-
-class ArchiveError(CalibError):
-    """The archive cannot be opened or used, or an append was refused."""
 
 
 class Storage(Protocol):

@@ -39,7 +39,7 @@ from typing import Any
 import rfc8785
 
 from calib.archive.control import MIN_BASELINE, ControlLimits, screened_limits
-from calib.errors import CalibError
+from calib.errors import BaselineError
 
 __all__ = [
     "BASELINE_SCHEMA",
@@ -59,10 +59,6 @@ BASELINE_SCHEMA = "calib.baseline/1"
 _QUANTITIES = ("slope", "intercept", "residual_sd")
 _VERSIONED = re.compile(r"^(?P<stem>.+)\.v(?P<n>[1-9]\d{0,5})\.json$")
 _MIN_REASON = 4
-
-
-class BaselineError(CalibError):
-    """A baseline cannot be established, read or used (the message says why)."""
 
 
 @dataclass(frozen=True)

@@ -296,7 +296,7 @@ def pdf_problem(pdf: bytes, version_digest: str) -> str | None:
     record PDF carries its issued JSON and one signature entry per incremental
     update; its version is the issued record plus those entries.
     """
-    from calib.report.embed import read_back
+    from calib.record.pdfread import read_back
 
     if not pdf.startswith(b"%PDF-"):
         return "the stored PDF is not a PDF document"

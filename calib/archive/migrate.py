@@ -19,7 +19,8 @@ from pathlib import Path
 from calib.archive.backends import ArchiveError, is_database_url, redact
 from calib.archive.chain import ArchiveEntry, ChainReport
 from calib.archive.figures import CurveFigures
-from calib.archive.store import SELECT_DATA, Archive, entry_from_row
+from calib.archive.rows import SELECT_DATA, entry_from_row
+from calib.archive.store import Archive
 
 __all__ = ["MigrationReport", "migrate_archive"]
 

@@ -33,7 +33,7 @@ from datetime import UTC, datetime, timedelta
 from typing import TYPE_CHECKING, Any
 
 from calib.archive.trail import append_row
-from calib.errors import CalibError
+from calib.errors import RefusedAction, SignInRefused
 from calib.record.identity import check_printed_name, person_key
 
 if TYPE_CHECKING:
@@ -50,14 +50,6 @@ LOCK_MINUTES = 15
 IDLE_MINUTES = 30
 MAX_SESSION_HOURS = 12
 _MAX_PASSWORD = 1024  # argon2 reads any length; a megabyte "password" is only a way to load us
-
-
-class RefusedAction(CalibError):
-    """A user change the rules refuse (a second user of one name, the last administrator...)."""
-
-
-class SignInRefused(CalibError):
-    """A sign-in (or the password typed again to sign) was refused; the message says why."""
 
 
 WRONG = "the name or password is not right"

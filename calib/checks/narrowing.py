@@ -19,6 +19,7 @@ from typing import TYPE_CHECKING
 
 from calib.checks.result import CurveVerdict, Severity, Verdict
 from calib.checks.rules.base import fmt
+from calib.errors import RangeError
 from calib.run import Point
 
 if TYPE_CHECKING:
@@ -33,10 +34,6 @@ _RANGE = re.compile(
     rf"^\s*(?:(?P<analyte>.+):)?\s*(?P<low>{_NUMBER})\s*\.\.\s*(?P<high>{_NUMBER})\s*$")
 # Concentrations read from a file and typed on a command line may differ in the last digit.
 _SLACK = 1e-9
-
-
-class RangeError(ValueError):
-    """A working range that cannot be applied (no such analyte, no reason given)."""
 
 
 @dataclass(frozen=True)

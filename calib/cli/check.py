@@ -143,7 +143,7 @@ def run(args: argparse.Namespace) -> int:
             print("calib check: error: --key issues one signed record: check one run file at a "
                   "time", file=sys.stderr)
             return 2
-        return run_many(args, runs, imap)
+        return run_many(args, runs, imap, check=_check)
     args.run = str(runs[0])
     if args.show_import:
         print(service.describe_import(args.run, sheet=sheet_arg(args.sheet), map=imap))

@@ -21,12 +21,16 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from calib.cli import exits
 from calib.cli.check_text import RunLine, summary_text, worst
+from calib.verdict_words import VERDICT_WORDS
+
+if TYPE_CHECKING:
+    from calib.service import CheckOutcome
 
 RUN_SUFFIXES = (".xlsx", ".xlsm", ".xls", ".ods", ".csv", ".tsv", ".txt")
 """Suffixes of the run files a folder is searched for."""
@@ -93,8 +97,12 @@ def output_names(runs: Sequence[Path]) -> dict[Path, str] | None:
     return {p: safe_file_name(p.stem) for p in runs}
 
 
-def run_many(args: argparse.Namespace, runs: Sequence[Path], imap: Any) -> int:
-    """Check several run files; print each, then one summary; return the worst exit code."""
+def run_many(args: argparse.Namespace, runs: Sequence[Path], imap: Any, *,
+             check: Callable[[argparse.Namespace, Any], CheckOutcome]) -> int:
+    """Check several run files; print each, then one summary; return the worst exit code.
+
+    ``check`` reads and judges one run file as ``calib check`` of that file alone does.
+    """
     from calib import service
     from calib.cli import render
     from calib.cli.archive import archive_path
@@ -129,16 +137,14 @@ def run_many(args: argparse.Namespace, runs: Sequence[Path], imap: Any) -> int:
     lines: list[RunLine] = []
     documents: list[dict[str, Any]] = []
     texts: list[str] = []
-    from calib.cli.check import _check
-
     for path in runs:
         one = argparse.Namespace(**{**vars(args), "run": str(path)})
         try:
-            outcome = _check(one, imap)
+            outcome = check(one, imap)
         except InputError as exc:
             lines.append(RunLine(path.name, "unusable", error=str(exc)))
             documents.append({"file": str(path), "verdict": "unusable", "error": str(exc)})
-            texts.append(f"{path}: UNUSABLE: {exc}")
+            texts.append(f"{path}: {VERDICT_WORDS['unusable']}: {exc}")
             continue
         out = {suffix: folder / f"{names[path]}{suffix}" for suffix, folder in folders.items()}
         said = []

@@ -17,12 +17,11 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 from calib.cli.render import curve_text, num
+from calib.verdict_words import VERDICT_WORDS as _WORDS
 
 if TYPE_CHECKING:
     from calib.checks.evaluate import CurveAssessment, RunAssessment
 
-_WORDS = {"accepted": "ACCEPTED", "rejected": "REJECTED", "needs-review": "NEEDS REVIEW",
-          "unusable": "UNUSABLE"}
 # Worst first: the order a summary ranks runs by, and how one exit code is chosen.
 RANK = {"accepted": 0, "needs-review": 1, "rejected": 2, "unusable": 3}
 

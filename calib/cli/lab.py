@@ -48,10 +48,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run_init(args: argparse.Namespace) -> int:
-    from calib.labsettings import write_settings
-    from calib.report.template import load_template
+    from calib.report.template import load_template, set_lab_template
 
-    settings = write_settings(args.template)
+    settings = set_lab_template(args.template)
     template = load_template(settings.template)
     print(f"Lab template set up: {settings.template}\n"
           f"  laboratory: {template.lab.name}\n"

@@ -7,8 +7,10 @@ import textwrap
 
 from calib.cautions import CAUTIONS
 from calib.checks.evaluate import CurveAssessment, RunAssessment
+from calib.verdict_words import VERDICT_WORDS
 
-_VERDICT_WORDS = {"accepted": "ACCEPTED", "rejected": "REJECTED", "needs-review": "NEEDS REVIEW"}
+# The order the run summary counts verdicts in.
+_VERDICT_WORDS = {code: VERDICT_WORDS[code] for code in ("accepted", "rejected", "needs-review")}
 _CHECK_WORDS = {"pass": "pass", "fail": "FAIL", "warn": "warn", "not-evaluated": "n/e"}
 
 

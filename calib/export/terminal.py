@@ -11,15 +11,16 @@ import textwrap
 from collections.abc import Mapping
 from typing import Any
 
+from calib.verdict_words import verdict_word
+
 __all__ = ["verdict_text"]
 
-_WORDS = {"accepted": "ACCEPTED", "rejected": "REJECTED", "needs-review": "NEEDS REVIEW"}
 _COLOURS = {"accepted": "32", "rejected": "31", "needs-review": "33"}  # green, red, yellow
 _WIDTH = 100
 
 
 def _word(verdict: Any, colour: bool) -> str:
-    word = _WORDS.get(str(verdict), str(verdict).upper())
+    word = verdict_word(verdict)
     if not colour or str(verdict) not in _COLOURS:
         return word
     return f"\x1b[1;{_COLOURS[str(verdict)]}m{word}\x1b[0m"

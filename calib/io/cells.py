@@ -14,6 +14,7 @@ from __future__ import annotations
 import datetime as _dt
 import math
 
+from calib.errors import CellError
 from calib.io.numbers import (
     ERROR_VALUES,
     DecimalMark,
@@ -51,14 +52,6 @@ _FLAG_WORDS = "yes/no, y/n, true/false, 1/0"
 # one either way could reverse an analyst's exclusion, so they are refused.
 _AMBIGUOUS_MARKS = frozenset({"x", "\u2713", "\u2714", "\u2717", "\u2718", "*", "+", "-", "\u2022",
                               "\u00d7"})
-
-
-class CellError(ValueError):
-    """A cell cannot be read as what its column needs.
-
-    The message says what was found and what was expected; it names no place,
-    the caller adds file, sheet, row and column.
-    """
 
 
 def is_blank(value: Cell) -> bool:
@@ -151,7 +144,7 @@ def to_number(value: Cell, *, decimal: DecimalMark | None = None) -> float:
     >>> to_number("#N/A")
     Traceback (most recent call last):
     ...
-    calib.io.cells.CellError: found the spreadsheet error value #N/A; expected a number
+    calib.errors.CellError: found the spreadsheet error value #N/A; expected a number
     """
     kind = type(value)
     if kind is float or kind is int:
@@ -183,7 +176,7 @@ def to_integer(value: Cell) -> int:
     >>> to_integer("2.5")
     Traceback (most recent call last):
     ...
-    calib.io.cells.CellError: found the text '2.5'; expected a whole number
+    calib.errors.CellError: found the text '2.5'; expected a whole number
     """
     try:
         number = to_number(value)
@@ -209,12 +202,12 @@ def to_flag(value: Cell) -> bool:
     >>> to_flag("maybe")
     Traceback (most recent call last):
     ...
-    calib.io.cells.CellError: found the text 'maybe'; expected yes/no, y/n, true/false, 1/0 or \
+    calib.errors.CellError: found the text 'maybe'; expected yes/no, y/n, true/false, 1/0 or \
 an empty cell (included)
     >>> to_flag(" X ")
     Traceback (most recent call last):
     ...
-    calib.io.cells.CellError: found the mark 'X', which some labs use for included and others \
+    calib.errors.CellError: found the mark 'X', which some labs use for included and others \
 for excluded; write yes or no in the include column (an empty cell means included)
     """
     if is_blank(value):

@@ -465,7 +465,7 @@ def map_headings(cells: Sequence[Cell]) -> dict[str, Column]:
     >>> map_headings(["Conc", "Area", "Height"])
     Traceback (most recent call last):
     ...
-    calib.io.cells.CellError: two columns name the response: B (Area) and C (Height); keep one, \
+    calib.errors.CellError: two columns name the response: B (Area) and C (Height); keep one, \
 or rename the other so that only one heading names the response
     """
     columns: dict[str, Column] = {}

@@ -27,6 +27,8 @@ import unicodedata
 from dataclasses import dataclass
 from typing import Literal
 
+from calib.errors import NumberTextError
+
 __all__ = [
     "ERROR_VALUES",
     "DecimalMark",
@@ -100,10 +102,6 @@ _NO_VALUE = {
 }
 _LESS_THAN = re.compile(r"<\s*(?:[a-z]{1,5}|[\d.,]+(?:\s*\S+)?)", re.IGNORECASE)
 _MORE_THAN = re.compile(r">\s*(?:[a-z]{1,5}|[\d.,]+(?:\s*\S+)?)", re.IGNORECASE)
-
-
-class NumberTextError(ValueError):
-    """Text that looks like a number cannot be read unambiguously (the message says why)."""
 
 
 def _fold(text: str) -> str:
@@ -229,7 +227,7 @@ def parse_number_text(text: str, *, decimal: DecimalMark | None = None) -> float
     >>> parse_number_text("1,250")
     Traceback (most recent call last):
     ...
-    calib.io.numbers.NumberTextError: found the text '1,250', where the comma may be a decimal \
+    calib.errors.NumberTextError: found the text '1,250', where the comma may be a decimal \
 comma or a thousands separator; expected a number whose decimal mark the file makes clear \
 (for example 1250 or 1.250), or an import map naming the decimal mark
     """

@@ -22,6 +22,7 @@ from calib.fit.calcurve import (
 )
 from calib.fit.design import COEFFICIENTS
 from calib.options import Model, Weighting, parse_option
+from calib.run import response_basis
 
 if TYPE_CHECKING:
     from calib.checks.evaluate import CurveAssessment
@@ -32,8 +33,6 @@ __all__ = ["CalibrationCurve", "curve_from_assessment", "curves_from_record"]
 def curve_from_assessment(curve: CurveAssessment, *, unit: str | None = None
                           ) -> CalibrationCurve | None:
     """The curve of a checked analyte; None when its standards could not be fitted."""
-    from calib.record.document import response_basis
-
     if curve.fit is None:
         return None
     return CalibrationCurve.from_fit(
@@ -41,7 +40,7 @@ def curve_from_assessment(curve: CurveAssessment, *, unit: str | None = None
         lod=curve.lod.value if curve.lod is not None else None,
         loq=curve.loq.value if curve.loq is not None else None,
         lod_method=curve.lod.method if curve.lod is not None else None, unit=unit,
-        response_basis=response_basis(curve),
+        response_basis=response_basis(s.point for s in curve.standards),
     )
 
 def _need(mapping: Mapping[str, Any], key: str, where: str) -> Any:

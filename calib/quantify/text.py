@@ -7,9 +7,10 @@ import textwrap
 from collections.abc import Mapping, Sequence
 from typing import Any
 
+from calib.verdict_words import VERDICT_WORDS as _VERDICTS
+
 __all__ = ["batch_text"]
 
-_VERDICTS = {"accepted": "ACCEPTED", "needs-review": "NEEDS REVIEW", "rejected": "REJECTED"}
 _QC = {"pass": "pass", "fail": "FAIL", "not-evaluated": "not evaluated"}
 
 
@@ -40,7 +41,7 @@ def _curve_line(c: Mapping[str, Any]) -> str:
     if c.get("not_fitted"):
         return f"{c['analyte']}: curve not fitted ({c['not_fitted']}); its samples are not quantified"
     unit = f" {c['unit']}" if c.get("unit") else ""
-    status = {"forced": " — REJECTED CURVE USED ON REQUEST (--force)",
+    status = {"forced": f" — {_VERDICTS['rejected']} CURVE USED ON REQUEST (--force)",
               "refused": " — samples not quantified"}.get(str(c.get("status")), "")
     lod = f", LOD {_num(c.get('lod'), 3)}{unit}" if c.get("lod") is not None else ""
     return (f"{c['analyte']}: curve {_VERDICTS.get(str(c.get('verdict')), c.get('verdict'))}"

@@ -10,6 +10,7 @@ from calib import __version__
 from calib.checks.evaluate import CurveAssessment, RunAssessment
 from calib.checks.result import verdict_reasons
 from calib.options import own_weighting
+from calib.run import response_basis as basis_of
 
 __all__ = ["CHECK_SCHEMA", "check_document", "finite_or_none", "response_basis"]
 
@@ -145,7 +146,7 @@ def _refit(curve: CurveAssessment) -> dict[str, Any] | None:
 
 def response_basis(curve: CurveAssessment) -> str:
     """``ratio`` when the standards' responses are ratios to an internal standard, else ``raw``."""
-    return "ratio" if any(s.point.is_response is not None for s in curve.standards) else "raw"
+    return basis_of(s.point for s in curve.standards)
 
 
 def _checks(curve: CurveAssessment) -> list[dict[str, Any]]:

@@ -33,7 +33,7 @@ import tempfile
 from pathlib import Path
 from typing import Any
 
-from calib.errors import CalibError
+from calib.errors import KeyFileError, PassphraseError
 
 __all__ = ["KEY_FORMAT", "MIN_PASSPHRASE", "KeyFileError", "PassphraseError", "check_passphrase",
            "check_private_permissions", "decrypt_key_file", "encrypt_key_file", "write_new"]
@@ -41,14 +41,6 @@ __all__ = ["KEY_FORMAT", "MIN_PASSPHRASE", "KeyFileError", "PassphraseError", "c
 KEY_FORMAT = "calib.private-key/1"
 MIN_PASSPHRASE = 12
 SCRYPT_N, SCRYPT_R, SCRYPT_P = 2 ** 17, 8, 1
-
-
-class KeyFileError(CalibError):
-    """A key file or keyring cannot be written, read or unlocked (the message names the file)."""
-
-
-class PassphraseError(CalibError):
-    """No usable passphrase was given for a private key."""
 
 
 def check_passphrase(passphrase: bytes) -> bytes:
@@ -61,7 +53,7 @@ def check_passphrase(passphrase: bytes) -> bytes:
     >>> check_passphrase(b"1234")
     Traceback (most recent call last):
     ...
-    calib.record.keyfile.PassphraseError: the passphrase has 4 characters; a key needs at least 12 (a few words are easier to remember than symbols)
+    calib.errors.PassphraseError: the passphrase has 4 characters; a key needs at least 12 (a few words are easier to remember than symbols)
     """
     try:
         length = len(passphrase.decode("utf-8"))

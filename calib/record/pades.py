@@ -33,6 +33,7 @@ from typing import Any
 
 from calib.record.keys import SigningKey, certificate_holder
 from calib.record.record import canonical_bytes
+from calib.verdict_words import VERDICT_LABELS
 
 __all__ = ["ENTRY_KEY", "PdfSignature", "add_pdf_signature", "read_pdf_signatures"]
 
@@ -40,7 +41,7 @@ ENTRY_KEY = "/CalibSignOff"
 _PAGE_MARK = "/CalibSignaturePage"
 _SLOTS = {"prepared": 0, "reviewed": 1, "approved": 2, "rejected": 2}
 _ROLE_WORDS = {"prepared": "Prepared and issued", "reviewed": "Reviewed", "approved": "Approved",
-               "rejected": "Rejected"}
+               "rejected": VERDICT_LABELS["rejected"]}
 
 
 @dataclass(frozen=True)
@@ -91,7 +92,7 @@ def _stamp_pdf(width: float, height: float, lines: list[tuple[str, bool]]) -> by
     from reportlab.lib.utils import simpleSplit
     from reportlab.pdfgen.canvas import Canvas
 
-    from calib.report.styles import BOLD, REGULAR, register_fonts
+    from calib.fonts import BOLD, REGULAR, register_fonts
 
     register_fonts()
     out = io.BytesIO()
@@ -115,7 +116,7 @@ def _page_pdf(width: float, height: float, record_id: str) -> bytes:
     from reportlab.lib.utils import simpleSplit
     from reportlab.pdfgen.canvas import Canvas
 
-    from calib.report.styles import BOLD, REGULAR, register_fonts
+    from calib.fonts import BOLD, REGULAR, register_fonts
 
     register_fonts()
     out = io.BytesIO()

@@ -61,8 +61,7 @@ def read_record_bytes(data: bytes, *, name: str = "record") -> RecordFile:
         If the bytes are neither a PDF nor JSON, or a PDF without an attached
         ``calib-record.json`` (the message names ``name``).
     """
-    from calib.report import ATTACHMENT_NAME
-    from calib.report.embed import read_back
+    from calib.record.pdfread import ATTACHMENT_NAME, read_back
 
     path = Path(name)
     if data.lstrip()[:5] == b"%PDF-":

@@ -37,7 +37,7 @@ from datetime import UTC, datetime
 from typing import Any
 
 from calib.checks.profile import SignoffPolicy, signoff_policy
-from calib.errors import CalibError
+from calib.errors import SignOffError
 from calib.record.identity import check_printed_name, same_person
 from calib.record.keys import KEY_ALGORITHM, SigningKey
 from calib.record.record import Record
@@ -74,10 +74,6 @@ DEFAULT_MEANINGS = {
     "rejected": "Rejected: this calibration must not be used to report results",
 }
 _VERBS = {"reviewed": "review", "approved": "approve", "rejected": "reject"}
-
-
-class SignOffError(CalibError):
-    """The sign-off rules refuse a signature (the message says which rule)."""
 
 
 def record_policy(record: Record) -> SignoffPolicy:
@@ -319,7 +315,7 @@ def sign_record(
     >>> sign_record(reviewed, role="approved", name="Okafor, R.")
     Traceback (most recent call last):
     ...
-    calib.record.signing.SignOffError: Okafor, R. prepared this record (as R. Okafor) and may not \
+    calib.errors.SignOffError: Okafor, R. prepared this record (as R. Okafor) and may not \
 also approve it: the profile does not allow it (its [signoff] table would need \
 allow_preparer_to_approve = true)
     """

@@ -61,13 +61,6 @@ class SignedVersion:
     pdf: bytes | None
 
 
-def _render(record: Record, template: Any) -> bytes:
-    from calib.report import write_pdf
-
-    return write_pdf(record.body, digest=record.digest, record_id=record.record_id,
-                     template=template, attachment=record.canonical)
-
-
 def _authority_name(key: SigningKey) -> str:
     from cryptography.x509.oid import NameOID
 
@@ -85,7 +78,7 @@ def _pdf_signed(pdf: bytes, record: Record, key: SigningKey) -> bytes:
                              signed_at=when, authority=_authority_name(key))
 
 
-def issue_pdf(record: Record, *, key: SigningKey | None = None, template: Any = None) -> bytes:
+def issue_pdf(record: Record, *, pages: Any, key: SigningKey | None = None) -> bytes:
     """The PDF of an issued record; with ``key``, the issuer's signature in it.
 
     Parameters
@@ -93,17 +86,18 @@ def issue_pdf(record: Record, *, key: SigningKey | None = None, template: Any = 
     record : Record
         The issued record; with ``key`` already signed by it
         (:func:`calib.record.signing.issue_signed`).
+    pages : RecordPages
+        How the record is drawn, with the lab's report template
+        (:func:`calib.report.record_pages`).
     key : SigningKey, optional
         The issuer's key, which signed the record's ``prepared`` entry.
-    template : ReportTemplate, optional
-        The lab's report template (bundled one by default).
 
     Raises
     ------
     ValueError
         If ``key`` is not the key that signed the record's ``prepared`` entry.
     """
-    pdf = _render(record, template)
+    pdf = pages.draw(record)
     if key is None:
         return pdf
     entries = signatures_of(record)
@@ -119,8 +113,8 @@ def sign_bytes(
     role: str,
     name: str | None = None,
     meaning: str | None = None,
+    pages: Any,
     key: SigningKey | None = None,
-    template: Any = None,
     signed_at: datetime | None = None,
     keyring: Keyring | None = None,
     file_name: str = "record",
@@ -135,9 +129,10 @@ def sign_bytes(
     role, name, meaning, key, signed_at
         As for :func:`calib.record.signing.sign_record`; the meaning defaults
         to the template's wording of the role.
-    template : ReportTemplate, optional
-        The lab's template (the bundled one by default): for the re-rendering
-        note, and to draw a PDF that has no digital signature.
+    pages : RecordPages
+        How record versions are drawn, with the lab's template
+        (:func:`calib.report.record_pages`): for the re-rendering note, the
+        wording of the meaning, and to draw a PDF that has no digital signature.
     keyring : Keyring, optional
         Checks earlier key signatures before signing (recommended).
     file_name : str
@@ -155,20 +150,17 @@ def sign_bytes(
         If the sign-off rules refuse, or a printed-name-only signature is
         asked of a digitally signed PDF.
     """
-    from calib.report import load_template
-
-    template = template or load_template()
-    report = verify_bytes(data, name=file_name, keyring=keyring, template=template)
+    report = verify_bytes(data, name=file_name, keyring=keyring, pages=pages)
     blocking = [p.message for p in report.problems if p.area != "unchecked"]
     if report.record is None or blocking:
         raise IntegrityError("the record does not verify, so it was not signed: "
                              + "; ".join(blocking))
     previous = report.record
     if meaning is None:
-        meaning = getattr(template.meanings, role, None)
+        meaning = getattr(pages.template.meanings, role, None)
     signed = sign_record(previous, role=role, name=name, meaning=meaning, key=key,
                          signed_at=signed_at)
-    previous_pdf = data if report.kind == "pdf" else _render(previous, template)
+    previous_pdf = data if report.kind == "pdf" else pages.draw(previous)
     pdf = None
     if want_pdf:
         if key is not None:
@@ -179,7 +171,7 @@ def sign_bytes(
                 "cannot be added to it without breaking them: sign with your key (--key), or "
                 "write the record JSON only")
         else:
-            pdf = _render(signed, template)
+            pdf = pages.draw(signed)
     return SignedVersion(previous, previous_pdf, signed, pdf)
 
 

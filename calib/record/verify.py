@@ -270,14 +270,13 @@ def _stated_findings(file: RecordFile, attached: Record) -> list[Finding]:
     return problems
 
 
-def _render_note(file: RecordFile, attached: Record, template: Any, signed: bool) -> list[str]:
+def _render_note(file: RecordFile, attached: Record, pages: Any, signed: bool) -> list[str]:
     """Informational: would this release draw the same pages?  Never a problem."""
-    from calib.report import write_pdf
-    from calib.report.embed import read_back
+    from calib.record.pdfread import read_back
 
+    template = pages.template
     try:
-        fresh = write_pdf(attached.body, digest=attached.digest, record_id=attached.record_id,
-                          template=template, attachment=attached.canonical)
+        fresh = pages.draw(attached)
     except Exception as exc:  # noqa: BLE001 - a note must never turn into a failure
         return [f"note: this release cannot draw the record's pages again ({type(exc).__name__}); "
                 "that does not affect verification"]
@@ -361,7 +360,7 @@ def _archive_findings(record: Record, archive: Any, pdf: bytes | None,
 
 
 def verify_bytes(data: bytes, *, name: str = "record", keyring: Keyring | None = None,
-                 archive: Any = None, template: Any = None) -> VerifyReport:
+                 archive: Any = None, pages: Any = None) -> VerifyReport:
     """Verify the bytes of a record PDF or record JSON (see the module text).
 
     Parameters
@@ -374,8 +373,10 @@ def verify_bytes(data: bytes, *, name: str = "record", keyring: Keyring | None =
         The lab keyring (:func:`calib.record.keys.load_keyring`).
     archive : Archive, optional
         An open archive to look the version up in.
-    template : ReportTemplate, optional
-        Used only for the informational re-rendering note; the bundled one by default.
+    pages : RecordPages, optional
+        How this release draws a record with the lab's template
+        (:func:`calib.report.record_pages`): used only for the informational
+        note on whether the pages would be drawn the same; no note when None.
 
     Returns
     -------
@@ -386,8 +387,6 @@ def verify_bytes(data: bytes, *, name: str = "record", keyring: Keyring | None =
     InputError
         If the bytes cannot be read as a record at all.
     """
-    from calib.report import load_template
-
     file = read_record_bytes(data, name=name)
     attached, problems = _parse(file)
     problems += [Finding("pdf", f"the PDF is damaged: {d}") for d in file.damage]
@@ -422,14 +421,14 @@ def verify_bytes(data: bytes, *, name: str = "record", keyring: Keyring | None =
     notes += more_notes
     if not (checks and checks[0].role == "prepared" and checks[0].keyed):
         notes.insert(0, DRAFT_NOTE + " (anyone with calib could have made this file)")
-    if file.kind == "pdf":
-        notes += _render_note(file, attached, template or load_template(), pdf_count > 0)
+    if file.kind == "pdf" and pages is not None:
+        notes += _render_note(file, attached, pages, pdf_count > 0)
     problems.sort(key=lambda p: AREAS.index(p.area))
     return VerifyReport(name, file.kind, record, tuple(problems), tuple(notes), checks, pdf_count)
 
 
 def verify_file(path: str | Path, *, keyring: Keyring | None = None, archive: Any = None,
-                template: Any = None) -> VerifyReport:
+                pages: Any = None) -> VerifyReport:
     """Verify a record PDF or record JSON file: :func:`verify_bytes` on the file's bytes.
 
     Raises
@@ -438,5 +437,5 @@ def verify_file(path: str | Path, *, keyring: Keyring | None = None, archive: An
         If the file cannot be read as a record at all.
     """
     return verify_bytes(read_path_bytes(path), name=str(path), keyring=keyring,
-                        archive=archive, template=template)
+                        archive=archive, pages=pages)
 

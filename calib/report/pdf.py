@@ -6,6 +6,7 @@ import functools
 import hashlib
 import io
 from collections.abc import Iterator, Mapping
+from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Any
 
@@ -14,16 +15,37 @@ from reportlab.pdfbase import pdfdoc
 from reportlab.pdfgen.canvas import Canvas
 from reportlab.platypus import BaseDocTemplate, Flowable, Frame, PageTemplate
 
+from calib.record.pdfread import ATTACHMENT_NAME
 from calib.report.embed import embed_file
 from calib.report.pages import PAGE_SIZES, Furniture, RecordCanvas, page_margins
 from calib.report.story import story_sections
 from calib.report.styles import REGULAR, register_fonts
 from calib.report.template import ReportTemplate, load_template
 
-__all__ = ["ATTACHMENT_NAME", "write_pdf"]
+__all__ = ["ATTACHMENT_NAME", "RecordPages", "record_pages", "write_pdf"]
 
-#: Name of the record JSON attached inside every PDF.
-ATTACHMENT_NAME = "calib-record.json"
+
+
+@dataclass(frozen=True)
+class RecordPages:
+    """How the record versions of one template are drawn, for :mod:`calib.record`.
+
+    Issuing, signing and verifying (:mod:`calib.record.signoff`,
+    :mod:`calib.record.verify`) are handed this rather than importing the
+    drawing, so the evidence layer never imports :mod:`calib.report`.
+    """
+
+    template: ReportTemplate
+
+    def draw(self, record: Any) -> bytes:
+        """The PDF of ``record`` (a :class:`calib.record.Record`), its JSON attached."""
+        return write_pdf(record.body, digest=record.digest, record_id=record.record_id,
+                         template=self.template, attachment=record.canonical)
+
+
+def record_pages(template: ReportTemplate | None = None) -> RecordPages:
+    """:class:`RecordPages` of ``template`` (the bundled template when None)."""
+    return RecordPages(template or load_template())
 
 
 def write_pdf(

@@ -47,6 +47,7 @@ from calib.report.tables import TableMaker
 from calib.report.template import ReportTemplate, load_template
 from calib.report.text import measure
 from calib.report.wording import lod_remark
+from calib.verdict_words import VERDICT_LABELS, VERDICT_WORDS
 
 __all__ = ["QUANTIFY_ATTACHMENT", "write_quantify_pdf"]
 
@@ -54,7 +55,7 @@ __all__ = ["QUANTIFY_ATTACHMENT", "write_quantify_pdf"]
 QUANTIFY_ATTACHMENT = "calib-quantify.json"
 
 _TITLE = "Sample results"
-_VERDICTS = {"accepted": "Accepted", "needs-review": "Needs review", "rejected": "Rejected"}
+_VERDICTS = VERDICT_LABELS
 _FLAGS = (
     ("above-uloq", "above the highest standard: not reported as a number; dilute and re-run"),
     ("outside-range", "outside the calibrated range: no concentration is given (no extrapolation)"),
@@ -214,7 +215,8 @@ class _Story:
         if doc.get("forced"):
             out += [Spacer(1, 4), self.boxed(
                 "Forced.", "Samples of " + ", ".join(doc.get("forced_analytes", []))
-                + " were quantified against a REJECTED curve because the analyst asked for it "
+                + f" were quantified against a {VERDICT_WORDS['rejected']} curve because the "
+                  "analyst asked for it "
                   "(--force). Those results carry the flag 'forced' and must not be reported "
                   "without a documented justification.")]
         profile = curve.get("profile") or {}

@@ -2,8 +2,9 @@
 
 Only the record is read, never live fit objects, so a stored record renders
 again to the same pages.  Every figure printed comes from the record; the
-one thing computed here is the drawing of the confidence band, through
-:func:`calib.fit.bands.mean_band` from the stored coefficients and covariance.
+one thing computed is the drawing of the confidence band, through
+:func:`calib.fit.bands.mean_band` from the stored coefficients and covariance
+(:mod:`calib.report.story_band`).
 """
 
 from __future__ import annotations
@@ -12,7 +13,6 @@ import io
 from collections.abc import Iterator, Mapping
 from typing import Any
 
-import numpy as np
 from reportlab.lib.utils import ImageReader
 from reportlab.platypus import (
     CondPageBreak,
@@ -24,7 +24,6 @@ from reportlab.platypus import (
     Table,
 )
 
-from calib.fit.bands import mean_band, prediction_band
 from calib.report.blocks import SideBySide, TextBlock, plain
 from calib.report.charts import (
     CurveBand,
@@ -43,6 +42,7 @@ from calib.report.formatting import (
     format_utc,
 )
 from calib.report.pages import SectionMark
+from calib.report.story_band import curve_band
 from calib.report.styles import BOLD, get_styles
 from calib.report.tables import TableMaker
 from calib.report.template import ReportTemplate
@@ -57,7 +57,6 @@ from calib.report.wording import (
     as_mapping,
     coefficient_order,
     common_sheet,
-    fit_weighting,
     fixed_digits,
     lod_remark,
     range_sentences,
@@ -71,27 +70,9 @@ from calib.report.wording import (
 
 __all__ = ["build_story", "story_sections"]
 
-_BAND_POINTS = 41
 _LOGO_HEIGHT = 40.0  # points (14 mm)
 _LOGO_WIDTH = 130.0
 _PLOT_HEIGHT = 190
-
-
-def _prediction(details: Mapping[str, Any], curve: Mapping[str, Any], beta: list[Any],
-                cov: list[list[Any]], t_crit: float, grid: np.ndarray) -> tuple[float, ...] | None:
-    """Prediction half-widths on ``grid`` from the stored figures, or None if they are missing."""
-    sd, scale = as_float(details.get("residual_sd")), as_float(details.get("weight_scale"))
-    if sd is None or scale is None:
-        return None
-    try:
-        _, half = prediction_band(
-            str(curve.get("model")), np.array(beta), np.array(cov), t_crit, grid,
-            residual_sd=sd, weight_function=fit_weighting(details, curve),
-            weight_scale=scale, level_variances=as_list(details.get("level_variances")),
-        )
-    except ValueError:
-        return None
-    return tuple(half.tolist()) if np.all(np.isfinite(half)) else None
 
 
 class _Builder:
@@ -333,33 +314,7 @@ class _Builder:
 
     def band(self, curve: Mapping[str, Any], log_x: bool) -> CurveBand | None:
         """Fitted curve and confidence band from the stored fit details, or None."""
-        details = self.details.get(curve.get("analyte"))
-        coefficients = as_mapping(curve.get("coefficients"))
-        if not details or not coefficients:
-            return None
-        names = [str(n) for n in as_list(details.get("coefficient_names"))]
-        beta = [as_float(as_mapping(coefficients.get(n)).get("estimate")) for n in names]
-        cov = [[as_float(v) for v in as_list(row)] for row in as_list(details.get("covariance"))]
-        t_crit = as_float(details.get("t_critical"))
-        lo, hi = as_float(details.get("x_min")), as_float(details.get("x_max"))
-        if not (
-            names and None not in beta and t_crit is not None and lo is not None
-            and hi is not None and hi > lo and len(cov) == len(names)
-            and all(len(r) == len(names) and None not in r for r in cov)
-        ):
-            return None
-        grid = (np.geomspace(lo, hi, _BAND_POINTS) if log_x and lo > 0
-                else np.linspace(lo, hi, _BAND_POINTS))
-        try:
-            yhat, half = mean_band(str(curve.get("model")), np.array(beta), np.array(cov),
-                                   t_crit, grid)
-        except ValueError:
-            return None  # a model the band cannot draw: the points are shown alone
-        if not (np.all(np.isfinite(yhat)) and np.all(np.isfinite(half))):
-            return None
-        return CurveBand(tuple(grid.tolist()), tuple(yhat.tolist()), tuple(half.tolist()),
-                         as_float(curve.get("confidence")) or 0.95,
-                         _prediction(details, curve, beta, cov, t_crit, grid))
+        return curve_band(self.details.get(curve.get("analyte")), curve, log_x)
 
     def plots(self, curve: Mapping[str, Any]) -> list[Flowable]:
         s, show = self.s, self.t.show

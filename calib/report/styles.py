@@ -1,6 +1,6 @@
 """Fonts, paragraph styles and table styles of the PDF record.
 
-All text, chart labels included, is set in DejaVu Sans (bundled in
+All text, chart labels included, is set in DejaVu Sans (:mod:`calib.fonts`, bundled in
 ``report_templates/fonts``): the standard PDF fonts have no µ, ≤, ≥, σ, ν
 and cannot print many names (Łukasiewicz, Nguyễn).
 """
@@ -13,33 +13,18 @@ from dataclasses import dataclass
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT, TA_RIGHT
 from reportlab.lib.styles import ParagraphStyle
-from reportlab.pdfbase import pdfmetrics
-from reportlab.pdfbase.ttfonts import TTFont
 from reportlab.platypus import TableStyle
 
-from calib.report.template import bundled_folder
+from calib.fonts import BOLD, REGULAR, register_fonts
 
 __all__ = ["BOLD", "INK", "LINE", "MUTED", "REGULAR", "SHADE", "Styles", "get_styles",
            "grid_style", "register_fonts"]
-
-REGULAR = "CalibSans"
-BOLD = "CalibSans-Bold"
 
 # A sober palette that still reads when printed in black and white.
 INK = colors.HexColor("#1d1d1f")
 MUTED = colors.HexColor("#5b5f66")
 LINE = colors.HexColor("#9aa0a6")
 SHADE = colors.HexColor("#eef0f2")
-
-
-@functools.cache
-def register_fonts() -> None:
-    """Register the bundled DejaVu Sans faces with reportlab (once per process)."""
-    fonts = bundled_folder() / "fonts"
-    pdfmetrics.registerFont(TTFont(REGULAR, str(fonts / "DejaVuSans.ttf")))
-    pdfmetrics.registerFont(TTFont(BOLD, str(fonts / "DejaVuSans-Bold.ttf")))
-    pdfmetrics.registerFontFamily(REGULAR, normal=REGULAR, bold=BOLD, italic=REGULAR,
-                                  boldItalic=BOLD)
 
 
 @dataclass(frozen=True)

@@ -43,10 +43,13 @@ import json
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from calib import resources
 from calib.errors import TemplateError
+
+if TYPE_CHECKING:
+    from calib.labsettings import LabSettings
 
 __all__ = [
     "LabDetails",
@@ -59,6 +62,7 @@ __all__ = [
     "demo_template",
     "load_template",
     "resolve_template",
+    "set_lab_template",
     "template_for_record",
     "template_section",
 ]
@@ -308,6 +312,23 @@ def resolve_template(template: str | Path | ReportTemplate | None = None) -> Rep
             "check the change, then run calib lab init --template "
             f"{settings.template} again")
     return loaded
+
+
+def set_lab_template(template: str | Path, *, path: str | Path | None = None) -> LabSettings:
+    """Check ``template`` and record it (absolute path and SHA-256) as the lab's template.
+
+    The template is loaded first, so a broken one is refused before anything is
+    written (:func:`calib.labsettings.write_settings` writes the settings file).
+
+    Raises
+    ------
+    TemplateError
+        When the template cannot be used.
+    """
+    from calib.labsettings import write_settings
+
+    resolved = Path(template).resolve()
+    return write_settings(resolved, load_template(resolved).sha256, path=path)
 
 
 def _read_file(path: Path) -> tuple[str, str]:

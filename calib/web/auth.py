@@ -35,7 +35,7 @@ from starlette.middleware.base import BaseHTTPMiddleware, RequestResponseEndpoin
 from starlette.requests import Request
 from starlette.responses import RedirectResponse, Response
 
-from calib.web.base import PageError, _closing, _form, _render, _text
+from calib.web.base import PageError, _closing, _form, _render, _text, acting_name
 
 __all__ = ["USER_COOKIE", "SignInGate", "Signer", "acting_name", "audit", "needed_roles",
            "routes", "signer_for"]
@@ -100,12 +100,6 @@ async def audit(request: Request, event: str, *, subject: str = "",
                          detail=detail or {}, at=people.now())
 
     await run_in_threadpool(write)
-
-
-def acting_name(request: Request) -> str | None:
-    """The signed-in person's printed name (None on the single-user page)."""
-    user = getattr(request.state, "user", None)
-    return user.name if user is not None else None
 
 
 class SignInGate(BaseHTTPMiddleware):

@@ -14,23 +14,15 @@ from starlette.datastructures import FormData, UploadFile
 from starlette.requests import Request
 from starlette.responses import HTMLResponse, Response
 
+from calib.errors import PageError
 from calib.output import safe_file_name
 from calib.web import pages
 from calib.web.security import CSRF_COOKIE, CSRF_FIELD, new_token, same_token
 from calib.web.state import OpenRun, Store, scrub
 
-__all__ = ["PageError", "one_line"]
+__all__ = ["PageError", "acting_name", "one_line"]
 
 Handler = Callable[[Request], Awaitable[Response]]
-
-
-class PageError(Exception):
-    """A request the page refuses, with the one sentence to show and the HTTP status."""
-
-    def __init__(self, message: str, status: int = 400) -> None:
-        super().__init__(message)
-        self.message = message
-        self.status = status
 
 
 def one_line(text: str) -> str:
@@ -48,7 +40,6 @@ def _environment() -> Environment:
     return env
 
 
-
 def _csrf(request: Request) -> str:
     """The form token of this browser (made on its first page)."""
     token = request.cookies.get(CSRF_COOKIE)
@@ -57,9 +48,13 @@ def _csrf(request: Request) -> str:
     return token
 
 
-def _render(request: Request, name: str, *, status: int = 200, **context: Any) -> HTMLResponse:
-    from calib.web.auth import acting_name
+def acting_name(request: Request) -> str | None:
+    """The signed-in person's printed name (None on the single-user page)."""
+    user = getattr(request.state, "user", None)
+    return user.name if user is not None else None
 
+
+def _render(request: Request, name: str, *, status: int = 200, **context: Any) -> HTMLResponse:
     state = request.app.state
     context.setdefault("archive", state.archive)
     context.setdefault("signer", acting_name(request))  # the signed-in person, if any

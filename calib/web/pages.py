@@ -11,17 +11,19 @@ import math
 from collections.abc import Mapping, Sequence
 from typing import Any
 
+from calib.verdict_words import VERDICT_LABELS
+
 __all__ = [
     "check_word", "choices", "curve_view", "flagged_cells", "neighbours", "num", "quantify_view", "record_view", "run_summary",
     "short_check_name", "size_text", "summary_order", "trend_view", "verdict_word", "verify_view",
 ]
 
 #: Verdicts in words, each with a symbol so that no verdict rests on colour.
-_VERDICTS = {"accepted": ("Accepted", "✓"), "rejected": ("Rejected", "✗"),
-             "needs-review": ("Needs review", "!")}
+_VERDICTS = {code: (VERDICT_LABELS[code], mark)
+             for code, mark in (("accepted", "✓"), ("rejected", "✗"), ("needs-review", "!"))}
 _CHECKS = {"pass": "Pass", "fail": "Fail", "warn": "Warning", "not-evaluated": "Not evaluated"}
-FILTERS = (("all", "All curves"), ("rejected", "Rejected"), ("needs-review", "Needs review"),
-           ("accepted", "Accepted"))
+FILTERS = (("all", "All curves"),
+           *((code, VERDICT_LABELS[code]) for code in ("rejected", "needs-review", "accepted")))
 
 
 def num(value: Any, digits: int = 4) -> str:
@@ -81,7 +83,7 @@ def check_date(text: str, which: str) -> str:
     try:
         return dt.date.fromisoformat(text).isoformat()
     except ValueError:
-        from calib.web.app import PageError
+        from calib.errors import PageError
 
         label = "From" if which == "from" else "To"
         raise PageError(f"The {label} date must be written YYYY-MM-DD, e.g. 2026-11-30; "
@@ -95,13 +97,12 @@ def form_options(profile: str, model: str | None, weighting: str | None,
     None stands for "the profile's".  A value not in the lists, a confidence that is
     not a fraction from 0.5 to below 1, or a model and weighting that cannot go
     together (with each other, the profile or its ``[[analyte]]`` entries) is a
-    :class:`~calib.web.base.PageError` (400) with the sentence to show by the form.
+    :class:`~calib.errors.PageError` (400) with the sentence to show by the form.
     """
     from calib.checks.overrides import given_options
     from calib.checks.profile import load_profile
-    from calib.errors import OptionError
+    from calib.errors import OptionError, PageError
     from calib.options import Model, Weighting
-    from calib.web.base import PageError
 
     if model is not None and model not in {m.value for m in Model}:
         raise PageError(f"Unknown model {model!r}: choose one from the list.")

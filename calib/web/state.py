@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from calib.errors import SessionsFull
 from calib.web.security import new_token, safe_filename
 
 if TYPE_CHECKING:
@@ -153,10 +154,6 @@ class Store:
                     > self._max_bytes):
                 table.popitem(last=False)
         return key
-
-
-class SessionsFull(Exception):
-    """Every place for a browser's store is taken by a browser active within :data:`IDLE`."""
 
 
 class Sessions:

@@ -65,11 +65,11 @@ def test_no_leftover_temporary_files_and_umask_unchanged(tmp_path, umask):
 
 def test_lab_settings_stay_private(tmp_path, umask):
     umask(0o022)
-    from calib.labsettings import write_settings
+    from calib.report.template import set_lab_template
 
     lab = tmp_path / "fernbrook.toml"
     lab.write_text('[lab]\nname = "Fernbrook Water Laboratory"\n', encoding="utf-8")
-    settings = write_settings(lab, path=tmp_path / "settings.toml")
+    settings = set_lab_template(lab, path=tmp_path / "settings.toml")
     assert mode(settings.source) == 0o600
 
 

@@ -22,7 +22,7 @@ from calib.record import Record, build_record
 from calib.record.keys import lab_init, load_keyring, load_signing_key, new_key
 from calib.record.signing import issue_signed
 from calib.record.signoff import issue_pdf
-from calib.report import write_pdf
+from calib.report import record_pages, write_pdf
 from tests.conftest import make_run
 from tests.report.conftest import nitrate_standards
 
@@ -111,4 +111,4 @@ def issued_signed(**options) -> tuple[Record, bytes]:
     """The nitrate record signed by its issuer (the preparer's key), and its signed PDF."""
     key = person_key(PREPARER)
     record = issue_signed(issued(**options), key)
-    return record, issue_pdf(record, key=key)
+    return record, issue_pdf(record, pages=record_pages(), key=key)

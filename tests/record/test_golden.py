@@ -19,6 +19,7 @@ import rfc8785
 from calib.record.keys import load_keyring
 from calib.record.signoff import sign_bytes, sign_file
 from calib.record.verify import verify_bytes, verify_file
+from calib.report import record_pages
 from tests.record.integrity_helpers import (
     APPROVER,
     REVIEWER,
@@ -90,7 +91,7 @@ def test_legacy_approval_key_signature_still_verifies():
 
 
 def test_legacy_record_verifies_and_signs_after_a_layout_change(moved_margin, tmp_path):
-    report = verify_file(LEGACY / "nitrate.reviewed.pdf")
+    report = verify_file(LEGACY / "nitrate.reviewed.pdf", pages=record_pages())
     assert report.ok
     (note,) = [n for n in report.notes if n.startswith("note: ")]
     assert "would draw the record differently (pages 1, 2, 3 differ" in note
@@ -99,7 +100,8 @@ def test_legacy_record_verifies_and_signs_after_a_layout_change(moved_margin, tm
     # incremental update appended, and the new version verifies.
     keys, ring = make_keys(tmp_path, "a-mbeki-hale")
     original = (LEGACY / "nitrate.reviewed.pdf").read_bytes()
-    signed = sign_file(LEGACY / "nitrate.reviewed.pdf", role="approved", key=keys["a-mbeki-hale"])
+    signed = sign_file(LEGACY / "nitrate.reviewed.pdf", role="approved", key=keys["a-mbeki-hale"],
+                       pages=record_pages())
     assert signed.pdf.startswith(original)
     assert signed.previous.digest == LEGACY_DIGESTS["reviewed"]
     again = verify_bytes(signed.pdf, name="v3.pdf", keyring=ring)
@@ -108,7 +110,8 @@ def test_legacy_record_verifies_and_signs_after_a_layout_change(moved_margin, tm
     assert again.record.body["signatures"][2]["name"] == APPROVER
     assert again.record.body["signatures"][2]["previous_digest"] == LEGACY_DIGESTS["reviewed"]
     # A printed-name-only review of the issued record is drawn anew, in the new layout.
-    printed = sign_file(LEGACY / "nitrate.issued.pdf", role="reviewed", name=REVIEWER)
+    printed = sign_file(LEGACY / "nitrate.issued.pdf", role="reviewed", name=REVIEWER,
+                        pages=record_pages())
     assert verify_bytes(printed.pdf, name="v2.pdf").ok
 
 
@@ -131,7 +134,7 @@ def test_current_golden_records_verify(stage, folder, digests):
 def test_current_golden_records_verify_and_sign_after_a_layout_change(moved_margin, tmp_path,
                                                                       folder):
     ring = load_keyring(folder / "keyring")
-    report = verify_file(folder / "nitrate.reviewed.pdf", keyring=ring)
+    report = verify_file(folder / "nitrate.reviewed.pdf", keyring=ring, pages=record_pages())
     assert report.verdict == "verified"
     (note,) = [n for n in report.notes if n.startswith("note: ")]
     assert "page layout changes between releases are not a problem" in note
@@ -142,7 +145,7 @@ def test_current_golden_records_verify_and_sign_after_a_layout_change(moved_marg
     both = load_keyring(tmp_path / "ring")
     original = (folder / "nitrate.reviewed.pdf").read_bytes()
     signed = sign_bytes(original, role="approved", key=person_key("Nadia Ferreira"),
-                        keyring=both)
+                        pages=record_pages(), keyring=both)
     assert signed.pdf.startswith(original)
     again = verify_bytes(signed.pdf, name="v3.pdf", keyring=both)
     assert again.verdict == "verified", again.problems
@@ -155,4 +158,5 @@ def test_golden_approved_records_are_closed():
 
     for folder in (LEGACY, CURRENT, RELEASE_020):
         with pytest.raises(SignOffError, match="^sign-off is closed: the record was approved by "):
-            sign_file(folder / "nitrate.approved.pdf", role="rejected", key=person_key(REVIEWER))
+            sign_file(folder / "nitrate.approved.pdf", role="rejected", key=person_key(REVIEWER),
+                      pages=record_pages())

@@ -19,6 +19,7 @@ from calib.errors import InputError
 from calib.record import Record
 from calib.record.signoff import sign_bytes
 from calib.record.verify import verify_bytes, verify_file
+from calib.report import record_pages
 from tests.record.integrity_helpers import (
     APPROVED_AT,
     APPROVER,
@@ -39,8 +40,10 @@ def signed(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("signed")
     keys, ring = make_keys(tmp / "keys", "t-overgaard", "a-mbeki-hale")
     v1, pdf1 = issued_signed()
-    s2 = sign_bytes(pdf1, role="reviewed", key=keys["t-overgaard"], signed_at=REVIEWED_AT)
-    s3 = sign_bytes(s2.pdf, role="approved", key=keys["a-mbeki-hale"], signed_at=APPROVED_AT)
+    s2 = sign_bytes(pdf1, role="reviewed", key=keys["t-overgaard"], signed_at=REVIEWED_AT,
+                    pages=record_pages())
+    s3 = sign_bytes(s2.pdf, role="approved", key=keys["a-mbeki-hale"], signed_at=APPROVED_AT,
+                    pages=record_pages())
     paths = []
     for n, pdf in enumerate((pdf1, s2.pdf, s3.pdf), start=1):
         path = tmp / f"nitrate.v{n}.pdf"
@@ -62,7 +65,7 @@ def test_every_version_verifies_with_the_keyring(signed):
         assert report.record.digest == signed["versions"][n - 1].digest
         assert report.summary() == ("verified: intact, signed by its issuer, every signature "
                                     "verified with a key certified by the lab")
-    report = verify_file(signed["paths"][2], keyring=signed["ring"])
+    report = verify_file(signed["paths"][2], keyring=signed["ring"], pages=record_pages())
     assert [s.status for s in report.signatures] == ["valid", "valid", "valid"]
     data = report.to_json()
     assert data["ok"] is True and data["schema"] == "calib.verify/2"
@@ -394,8 +397,8 @@ def test_another_template_is_only_a_note(signed, tmp_path):
     path = tmp_path / "kestrel.pdf"
     path.write_bytes(render(v1, template))
     assert "note: this release draws the same pages from the record data, byte for byte" in \
-        verify_file(path, template=template).notes
-    report = verify_file(path)
+        verify_file(path, pages=record_pages(template)).notes
+    report = verify_file(path, pages=record_pages())
     assert report.ok and report.verdict == "intact"
     (note,) = [n for n in report.notes if n.startswith("note: ")]
     assert note.startswith("note: this release (calib ")
@@ -479,16 +482,16 @@ def test_attachment_with_a_value_json_cannot_carry(signed, tmp_path):
 
 
 def test_undecodable_parts_are_findings_not_unreadable_files(signed, monkeypatch):
-    from calib.report import embed
+    from calib.record import pdfread
 
-    real = embed.read_back
+    real = pdfread.read_back
 
     def damaged(pdf):
         contents = real(pdf)
-        return embed.PdfContents({}, contents.keywords, contents.pages,
-                                 ("the attached files cannot be read (error: bad stream)",))
+        return pdfread.PdfContents({}, contents.keywords, contents.pages,
+                                   ("the attached files cannot be read (error: bad stream)",))
 
-    monkeypatch.setattr(embed, "read_back", damaged)
+    monkeypatch.setattr(pdfread, "read_back", damaged)
     report = verify_file(signed["paths"][0])
     assert messages(report) == [
         "the attached record data cannot be read: the PDF is damaged",
@@ -544,7 +547,8 @@ def test_signature_added_with_a_key_of_another_lab(signed):
 
     outsider = person_key("Mallory Quist", lab="Kestrel Bioanalytical")
     pdf = signed["paths"][1].read_bytes()
-    forged = sign_bytes(pdf, role="approved", key=outsider, signed_at=APPROVED_AT)
+    forged = sign_bytes(pdf, role="approved", key=outsider, signed_at=APPROVED_AT,
+                        pages=record_pages())
     report = verify_bytes(forged.pdf, name="forged.pdf", keyring=signed["ring"])
     assert report.verdict == "not verified" and report.pdf_signatures == 3
     assert messages(report) == [

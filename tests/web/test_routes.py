@@ -623,11 +623,11 @@ def test_the_issue_page_says_which_letterhead_the_record_gets(client, tmp_path):
     page = client.get(f"/run/{run_id}/issue").text
     assert ("Letterhead unless another template is chosen: none set up, so the record says "
             "“Laboratory not configured”") in page
-    from calib.labsettings import write_settings
+    from calib.report.template import set_lab_template
 
     lab = tmp_path / "kestrel.toml"
     lab.write_text('[lab]\nname = "Kestrel Bioanalytical"\n', encoding="utf-8")
-    write_settings(lab)
+    set_lab_template(lab)
     page = client.get(f"/run/{run_id}/issue").text
     assert "the lab&#39;s, kestrel.toml (Kestrel Bioanalytical)" in page
     post(client, f"/run/{run_id}/issue", {"prepared_by": "R. Okafor"})

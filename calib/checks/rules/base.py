@@ -64,13 +64,20 @@ class Rule:
     #: what is wrong in words, or None.  Called on the parameters the profile gives.
     validate: Callable[[Mapping[str, Any]], str | None] | None = None
 
+    def __post_init__(self) -> None:
+        # Each rule's title is known here as soon as its module defines it, so a result
+        # names its rule without this module importing the registry that imports every rule.
+        _TITLES[self.id] = self.title
+
+
+#: Rule id → title, filled as the rule modules define their rules.
+_TITLES: dict[str, str] = {}
+
 
 def result(rule_id: str, severity: Severity, verdict: Verdict, value: float | None,
            limit: float | None, detail: str) -> CheckResult:
-    """A CheckResult carrying the registered title of ``rule_id``."""
-    from calib.checks.rules import RULES
-
-    return CheckResult(rule_id, RULES[rule_id].title, verdict, severity, value, limit, detail)
+    """A CheckResult carrying the title of the rule ``rule_id``."""
+    return CheckResult(rule_id, _TITLES[rule_id], verdict, severity, value, limit, detail)
 
 
 def not_evaluated(rule_id: str, severity: Severity, reason: str) -> CheckResult:

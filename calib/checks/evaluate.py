@@ -22,6 +22,7 @@ from calib.checks.narrowing import (
     narrow_points,
     propose_range,
 )
+from calib.checks.overrides import settings_by_analyte, with_settings_line
 from calib.checks.profile import Profile, load_profile
 from calib.checks.refit import Refit, refit_without_rejected
 from calib.checks.result import CheckResult, CurveVerdict, combine_verdicts, verdict_reasons, worst
@@ -156,11 +157,15 @@ def evaluate_run(
     run : Run
         As returned by :func:`calib.io.read_run`.
     profile : Profile, optional
-        Acceptance rules; the shipped ``default`` profile when omitted.
+        Acceptance rules; the shipped ``default`` profile when omitted.  Its
+        ``[[analyte]]`` entries apply to the analytes they name: each such curve is
+        judged under its own model, weighting and limits and carries an
+        ``analyte-settings`` line saying so (:mod:`calib.checks.overrides`).
     model, weighting, confidence : optional
-        Override the profile's defaults.
+        Override the profile's defaults (``model`` and ``weighting`` for every curve,
+        the ``[[analyte]]`` entries' included).
     progress : callable, optional
-        ``progress(done, total)`` after each analyte.
+        ``progress(done, total)`` after each analyte (one pass over the run).
     exclusions : sequence of Exclusion
         Points the analyst leaves out, each with a reason.
     ranges : sequence of WorkingRange
@@ -179,10 +184,12 @@ def evaluate_run(
     RangeError
         If a range names no analyte of the run, or gives no reason and is not
         the range calib proposes.
+    ProfileError
+        If two ``[[analyte]]`` patterns match one analyte of the run.
     """
     profile = profile or load_profile("default")
-    model = parse_option(Model, model or profile.model, name="model")
-    weighting = parse_option(Weighting, weighting or profile.weighting, name="weighting")
+    base_model = parse_option(Model, model or profile.model, name="model")
+    base_weighting = parse_option(Weighting, weighting or profile.weighting, name="weighting")
     confidence = profile.confidence if confidence is None else confidence
     run, applied = apply_exclusions(run, exclusions) if exclusions else (run, ())
     analytes = run.analytes
@@ -190,34 +197,58 @@ def evaluate_run(
     history = slope_history or {}
     by_analyte = _points_by_analyte(run.points)
     standards = {a: tuple(by_analyte[a]["standards"]) for a in analytes}
-    fits = _batched_fits(standards, model=model, weighting=weighting, confidence=confidence,
-                         profile=profile)
+    # [[analyte]] entries: each curve judged under its own profile; --model and
+    # --weighting, when given, apply to every curve.
+    settings = {a: (own, entry, parse_option(Model, model or own.model, name="model"),
+                    parse_option(Weighting, weighting or own.weighting, name="weighting"))
+                for a, (own, entry) in settings_by_analyte(profile, analytes).items()}
+    fits: dict[str, tuple[CurveFit | None, str]] = {}
+    for (m, w), group in _fit_groups(settings).items():
+        fits.update(_batched_fits({a: standards[a] for a in group}, model=m, weighting=w,
+                                  confidence=confidence, profile=settings[group[0]][0]))
     curves = []
     for done, analyte in enumerate(analytes, start=1):
-        blanks = tuple(by_analyte[analyte]["blanks"])
-        qcs = tuple(by_analyte[analyte]["qcs"])
-        first = fits.get(analyte)
-
-        def assess(standards: Sequence[Point], analyte: str = analyte,
-                   blanks: tuple[Point, ...] = blanks,
-                   qcs: tuple[Point, ...] = qcs) -> CurveAssessment:
-            return assess_curve(analyte, standards, model=model, weighting=weighting,
-                                confidence=confidence, profile=profile, blanks=blanks,
-                                slope_history=history.get(analyte), qcs=qcs)
-
-        def assess_first(points: Sequence[Point], analyte: str = analyte,
-                         blanks: tuple[Point, ...] = blanks, qcs: tuple[Point, ...] = qcs,
-                         first: tuple[CurveFit | None, str] | None = first) -> CurveAssessment:
-            # The full-range curve takes its fit from the batch; narrowed trials refit alone.
-            return _assess(analyte, points, model=model, weighting=weighting,
-                           confidence=confidence, profile=profile, blanks=blanks,
-                           slope_history=history.get(analyte), qcs=qcs, fitted=first)
-
-        curves.append(_with_ranges(assess, standards[analyte], profile, wanted.get(analyte),
-                                   first=assess_first))
+        own, entry, m, w = settings[analyte]
+        curve = _assess_analyte(analyte, standards[analyte], by_analyte[analyte], own,
+                                model=m, weighting=w, confidence=confidence,
+                                history=history.get(analyte), first=fits.get(analyte),
+                                working=wanted.get(analyte))
+        curves.append(curve if entry is None else with_settings_line(curve, entry))
         if progress is not None:
             progress(done, len(analytes))
-    return RunAssessment(run, profile, model, weighting, confidence, tuple(curves), applied)
+    return RunAssessment(run, profile, base_model, base_weighting, confidence, tuple(curves),
+                         applied)
+
+
+def _fit_groups(settings: Mapping[str, tuple[Profile, object, Model, Weighting]]
+                ) -> dict[tuple[Model, Weighting], list[str]]:
+    """The analytes that share a model and weighting, fitted together (in run order)."""
+    groups: dict[tuple[Model, Weighting], list[str]] = {}
+    for analyte, (_, _, m, w) in settings.items():
+        groups.setdefault((m, w), []).append(analyte)
+    return groups
+
+
+def _assess_analyte(analyte: str, standards: tuple[Point, ...],
+                    points: Mapping[str, list[Point]], profile: Profile, *, model: Model,
+                    weighting: Weighting, confidence: float, history: SlopeHistory | None,
+                    first: tuple[CurveFit | None, str] | None,
+                    working: WorkingRange | None) -> CurveAssessment:
+    """One analyte's curve under its own profile, with its proposed and applied ranges."""
+    blanks, qcs = tuple(points["blanks"]), tuple(points["qcs"])
+
+    def assess(chosen: Sequence[Point]) -> CurveAssessment:
+        return assess_curve(analyte, chosen, model=model, weighting=weighting,
+                            confidence=confidence, profile=profile, blanks=blanks,
+                            slope_history=history, qcs=qcs)
+
+    def assess_first(chosen: Sequence[Point]) -> CurveAssessment:
+        # The full-range curve takes its fit from the batch; narrowed trials refit alone.
+        return _assess(analyte, chosen, model=model, weighting=weighting,
+                       confidence=confidence, profile=profile, blanks=blanks,
+                       slope_history=history, qcs=qcs, fitted=first)
+
+    return _with_ranges(assess, standards, profile, working, first=assess_first)
 
 
 def _ranges_by_analyte(ranges: Sequence[WorkingRange],

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -66,11 +66,12 @@ class Rule:
 
 
 def result(rule_id: str, severity: Severity, verdict: Verdict, value: float | None,
-           limit: float | None, detail: str) -> CheckResult:
-    """A CheckResult carrying the registered title of ``rule_id``."""
+           limit: float | None, detail: str, *, cells: Sequence[str] = ()) -> CheckResult:
+    """A CheckResult carrying the registered title of ``rule_id`` (and the cells it flags)."""
     from calib.checks.rules import RULES
 
-    return CheckResult(rule_id, RULES[rule_id].title, verdict, severity, value, limit, detail)
+    return CheckResult(rule_id, RULES[rule_id].title, verdict, severity, value, limit, detail,
+                       cells=tuple(cells))
 
 
 def not_evaluated(rule_id: str, severity: Severity, reason: str) -> CheckResult:

@@ -1,7 +1,7 @@
 """``calib check --json`` of 500 analytes × 8 levels × 3 replicates, beside a lean script.
 
 An invented screen (analytes ``SCR-001`` … ``SCR-500``, eight levels in triplicate,
-injection order kept, a seeded random slope and proportional noise per analyte) is
+one injection order per standard, a seeded random slope and proportional noise per analyte) is
 written once as a CSV file.  Both sides start from that file in a child process each
 (so both pay their start-up and file reading):
 
@@ -90,7 +90,7 @@ sys.stdout.write(json.dumps(out))
 
 
 def write_run(path: Path, *, analytes: int = ANALYTES, seed: int = 18) -> Path:
-    """The invented screen as a CSV file (standards only, injection order kept)."""
+    """The invented screen as a CSV file (standards only; one injection order per standard)."""
     rng = np.random.default_rng(seed)
     slopes = rng.uniform(800, 5000, size=analytes)
     intercepts = rng.normal(0, 2, size=analytes)
@@ -100,8 +100,8 @@ def write_run(path: Path, *, analytes: int = ANALYTES, seed: int = 18) -> Path:
     order = 0
     for rep in range(1, REPLICATES + 1):
         for level, conc in enumerate(LEVELS, 1):
+            order += 1  # one injection measures every analyte
             for a in range(analytes):
-                order += 1
                 area = (intercepts[a] + slopes[a] * conc) * (1 + rng.normal(0, 0.02))
                 rows.append([f"SCR-{a + 1:03d}", f"Cal {level}", "standard", conc,
                              round(float(area), 4), rep, order])

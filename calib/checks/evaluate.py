@@ -9,6 +9,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from calib.checks.batched import Precomputed, precompute
 from calib.checks.context import VARIANCE_ONLY, CurveContext, StandardResult
 from calib.checks.exclusions import AppliedExclusion, Exclusion, apply_exclusions
 from calib.checks.family import apply_family
@@ -203,16 +204,20 @@ def evaluate_run(
                     parse_option(Weighting, weighting or own.weighting, name="weighting"))
                 for a, (own, entry) in settings_by_analyte(profile, analytes).items()}
     fits: dict[str, tuple[CurveFit | None, str]] = {}
+    used: dict[str, list[Point]] = {}
     for (m, w), group in _fit_groups(settings).items():
         fits.update(_batched_fits({a: standards[a] for a in group}, model=m, weighting=w,
-                                  confidence=confidence, profile=settings[group[0]][0]))
+                                  confidence=confidence, profile=settings[group[0]][0],
+                                  kept=used))
+    # The diagnostics of curves sharing a design, worked out together (calib.checks.batched).
+    shared = precompute({a: f for a, (f, _) in fits.items() if f is not None}, used)
     curves = []
     for done, analyte in enumerate(analytes, start=1):
         own, entry, m, w = settings[analyte]
         curve = _assess_analyte(analyte, standards[analyte], by_analyte[analyte], own,
                                 model=m, weighting=w, confidence=confidence,
                                 history=history.get(analyte), first=fits.get(analyte),
-                                working=wanted.get(analyte))
+                                working=wanted.get(analyte), shared=shared.get(analyte))
         curves.append(curve if entry is None else with_settings_line(curve, entry))
         if progress is not None:
             progress(done, len(analytes))
@@ -233,7 +238,8 @@ def _assess_analyte(analyte: str, standards: tuple[Point, ...],
                     points: Mapping[str, list[Point]], profile: Profile, *, model: Model,
                     weighting: Weighting, confidence: float, history: SlopeHistory | None,
                     first: tuple[CurveFit | None, str] | None,
-                    working: WorkingRange | None) -> CurveAssessment:
+                    working: WorkingRange | None,
+                    shared: Precomputed | None = None) -> CurveAssessment:
     """One analyte's curve under its own profile, with its proposed and applied ranges."""
     blanks, qcs = tuple(points["blanks"]), tuple(points["qcs"])
 
@@ -246,7 +252,7 @@ def _assess_analyte(analyte: str, standards: tuple[Point, ...],
         # The full-range curve takes its fit from the batch; narrowed trials refit alone.
         return _assess(analyte, chosen, model=model, weighting=weighting,
                        confidence=confidence, profile=profile, blanks=blanks,
-                       slope_history=history, qcs=qcs, fitted=first)
+                       slope_history=history, qcs=qcs, fitted=first, precomputed=shared)
 
     return _with_ranges(assess, standards, profile, working, first=assess_first)
 
@@ -336,8 +342,10 @@ def _assess(
     slope_history: SlopeHistory | None = None,
     qcs: Sequence[Point] = (),
     fitted: tuple[CurveFit | None, str] | None = None,
+    precomputed: Precomputed | None = None,
 ) -> CurveAssessment:
-    """:func:`assess_curve`, taking the fit (or the reason there is none) when already made."""
+    """:func:`assess_curve`, taking the fit (or the reason there is none) when already made,
+    and diagnostics worked out with the run's other curves (used for that fit only)."""
     levels = {c: i for i, c in enumerate(sorted({p.concentration for p in standards}), start=1)}
     reasons = _exclusion_reasons(standards, model, weighting, profile)
     if fitted is None:
@@ -350,7 +358,7 @@ def _assess(
     def judged(results: tuple[StandardResult, ...],
                fit: CurveFit | None) -> tuple[CheckResult, ...]:
         ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
-                           slope_history=slope_history, qcs=tuple(qcs))
+                           slope_history=slope_history, qcs=tuple(qcs), precomputed=precomputed)
         return tuple(apply_family([RULES[spec.id].run(ctx, spec.params, spec.severity)
                                    for spec in profile.rules], profile.review_family))
 
@@ -391,13 +399,14 @@ def _points_by_analyte(points: Sequence[Point]) -> dict[str, dict[str, list[Poin
 
 
 def _batched_fits(standards: Mapping[str, Sequence[Point]], *, model: Model,
-                  weighting: Weighting, confidence: float,
-                  profile: Profile) -> dict[str, tuple[CurveFit | None, str]]:
+                  weighting: Weighting, confidence: float, profile: Profile,
+                  kept: dict[str, list[Point]]) -> dict[str, tuple[CurveFit | None, str]]:
     """The full-range fit of every analyte, the fittable curves in one :func:`fit_batch` call.
 
     The curves of a run share model, weighting and confidence, so they form one group.
     A curve the batch cannot fit (or that fails the level and point counts) is left to
-    the per-curve path, which gives the reason in its own words.
+    the per-curve path, which gives the reason in its own words.  ``kept`` receives the
+    standards in each batched fit, in the order of its points.
     """
     p = len(COEFFICIENTS[model])
     names, rows = [], []
@@ -419,6 +428,7 @@ def _batched_fits(standards: Mapping[str, Sequence[Point]], *, model: Model,
         y[k, :len(used)] = [pt.response for pt in used]
         mask[k, :len(used)] = True
     batch = fit_batch(x, y, model=model, weighting=weighting, mask=mask, confidence=confidence)
+    kept.update((analyte, rows[k]) for k, analyte in enumerate(names))
     return {analyte: (batch.curve(k), "") for k, analyte in enumerate(names)
             if batch.problems[k] is None}
 

@@ -30,6 +30,7 @@ from calib.fit.design import design_matrix
 from calib.fit.distributions import chi2_sf
 from calib.fit.homogeneity import BartlettTest
 from calib.fit.linearity import DriftTest, LackOfFit, MandelTest, QuadraticTerm
+from calib.fit.outliers import Influence
 from calib.fit.power import detectable_bend_pct
 from calib.fit.wls_many import solve_wls_many
 from calib.options import Model
@@ -59,6 +60,9 @@ class Precomputed:
     quadratic_term, mandel : QuadraticTerm or MandelTest or None
     drift : DriftTest or None
     bartlett : BartlettTest or None
+    influence : Influence or None
+        Leverage (from one QR of the group's design), studentized residuals, Cook's
+        distance, as :func:`calib.fit.outliers.influence`.
     """
 
     fit: CurveFit
@@ -68,6 +72,7 @@ class Precomputed:
     mandel: MandelTest | None = None
     drift: DriftTest | None = None
     bartlett: BartlettTest | None = None
+    influence: Influence | None = None
 
     def detectable_bend_pct(self, sigma2: float, lam: float) -> float | None:
         """The bend of :func:`calib.fit.power.detectable_bend_pct` for this curve, or None
@@ -99,11 +104,12 @@ def precompute(fits: Mapping[str, CurveFit],
         members = [fits[a] for a in names]
         found: dict[str, list] = {name: [None] * len(names) for name in
                                   ("lack_of_fit", "quadratic_term", "mandel", "drift",
-                                   "bartlett")}
+                                   "bartlett", "influence")}
         found["lack_of_fit"] = _lack_of_fit(members)
         if members[0].model is Model.LINEAR:
             found["quadratic_term"], found["mandel"] = _quadratic(members)
         found["bartlett"] = _bartlett(members)
+        found["influence"] = _influence(members)
         found["drift"] = _drift_by_order(members, [used[a] for a in names])
         bend = (_bend_unit(members[0]) if members[0].model is Model.LINEAR else math.nan)
         for k, analyte in enumerate(names):
@@ -246,3 +252,30 @@ def _bartlett(fits: Sequence[CurveFit]) -> list[BartlettTest | None]:
         out.append(BartlettTest(t, k - 1, float(chi2_sf(t, k - 1)),
                                 tuple(float(v) for v in row), taking, left_out))
     return out
+
+
+def _influence(fits: Sequence[CurveFit]) -> list[Influence | None]:
+    """The case diagnostics of :func:`calib.fit.outliers.influence`, the leverage shared."""
+    first = fits[0]
+    n, nu = first.n_points, first.residual_df
+    p = n - nu
+    if nu < 2:
+        return [None] * len(fits)
+    w = first.weights
+    A = design_matrix(first.x, first.model) * np.sqrt(w)[:, None]
+    A = A / np.linalg.norm(A, axis=0)
+    q, _ = np.linalg.qr(A)
+    h = np.minimum(np.sum(q * q, axis=1), 1.0)
+    one_minus_h = 1.0 - h
+    free = one_minus_h > 1e-10
+    E = np.array([np.sqrt(w) * f.residuals for f in fits])
+    ss = np.array([float(np.sum(e * e)) for e in E])
+    clear = _clear(ss, fits)
+    sigma2 = ss / nu
+    with np.errstate(divide="ignore", invalid="ignore"):
+        standardized = np.where(free, E / np.sqrt(sigma2[:, None] * one_minus_h), np.nan)
+        deleted = np.maximum(ss[:, None] - E * E / one_minus_h, 0.0) / (nu - 1)
+        studentized = np.where(free, E / np.sqrt(deleted * one_minus_h), np.nan)
+        cooks = np.where(free, E * E * h / (p * sigma2[:, None] * one_minus_h**2), np.nan)
+    return [Influence(h.copy(), E[k], standardized[k], studentized[k], cooks[k], p, nu)
+            if clear[k] and not fits[k].exact else None for k in range(len(fits))]

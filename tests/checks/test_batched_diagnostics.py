@@ -29,6 +29,7 @@ from calib.fit.linearity import (
     quadratic_term,
     residual_drift,
 )
+from calib.fit.outliers import influence
 from calib.fit.power import detectable_bend_pct
 from calib.fit.wls import solve_wls
 from calib.fit.wls_many import solve_wls_many
@@ -87,6 +88,11 @@ def test_shared_figures_are_the_per_curve_functions(weighting):
         _same(pre.drift, residual_drift(fit, order))
         weights = None if weighting is Weighting.NONE else fit.weights
         _same(pre.bartlett, bartlett_levels(fit.x, fit.y, weights=weights))
+        infl, own = pre.influence, influence(fit)
+        for name_ in ("leverage", "weighted_residuals", "standardized", "studentized",
+                      "cooks_distance"):
+            np.testing.assert_allclose(getattr(infl, name_), getattr(own, name_), rtol=REL)
+        assert (infl.n_params, infl.residual_df) == (own.n_params, own.residual_df)
         lof = pre.lack_of_fit
         sigma2, lam = lof.ss_pure / lof.df_pure, 9.7
         assert _close(pre.detectable_bend_pct(sigma2, lam),
@@ -104,6 +110,10 @@ def test_shared_figures_against_scipy_statsmodels_and_numpy():
                                                        rel=1e-10)
         quad = sm.WLS(fit.y, np.column_stack([np.ones_like(x), x, x * x]), weights=1 / x).fit()
         assert pre.quadratic_term.t_value == pytest.approx(quad.tvalues[2], rel=1e-9)
+        root = np.sqrt(1 / x)  # WLS as OLS on √w·y and √w·X, whose influence statsmodels gives
+        ref = sm.OLS(fit.y * root, sm.add_constant(x) * root[:, None]).fit().get_influence()
+        np.testing.assert_allclose(pre.influence.studentized, ref.resid_studentized_external,
+                                   rtol=1e-9)
         e = np.sqrt(fit.weights) * fit.residuals
         assert pre.drift.slope == pytest.approx(np.polyfit(np.arange(1.0, x.size + 1), e, 1)[0],
                                                 rel=1e-9)
@@ -130,6 +140,7 @@ def test_a_curve_whose_test_has_a_reason_is_left_to_its_rule():
     used["exact"] = _points("exact", exact, x)
     pre = precompute(fits, used)["exact"]
     assert pre.lack_of_fit is None and pre.mandel is None and pre.drift is None
+    assert pre.influence is None
     assert lack_of_fit(fits["exact"]).reason is not None  # what the rule then says
     assert precompute({"alone": fits["A0"]}, {"alone": used["A0"]}) == {}
 

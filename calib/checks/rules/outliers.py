@@ -92,7 +92,7 @@ def outliers_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Che
     alpha = p["alpha"]
     cells = [s.point.source_cell for s in ctx.used]
     try:
-        infl: Influence | None = influence(fit)
+        infl: Influence | None = ctx.shared("influence", lambda: influence(fit))
         why_not = ""
     except ValueError as exc:
         infl, why_not = None, str(exc)

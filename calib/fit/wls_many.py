@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calib.fit.wls import _EPS, _economic_qr, _solve_upper
+from calib.fit.wls import _factor, _solve_upper
 
 __all__ = ["ManySolution", "solve_wls_many"]
 
@@ -59,19 +59,8 @@ def solve_wls_many(X: np.ndarray, Y: np.ndarray, w: np.ndarray | None = None) ->
     n, p = X.shape
     w = np.ones(n) if w is None else np.asarray(w, dtype=float)
     sw = np.sqrt(w)
-    Xw = X * sw[:, None]
     Yw = (Y * sw).T  # (N, K): one right-hand side per column
-    norms = np.linalg.norm(Xw, axis=0)
-    if np.any(norms == 0) or not np.all(np.isfinite(norms)):
-        raise ValueError("the design matrix has a column of zeros or non-finite values")
-    if not np.all(np.isfinite(Yw)):
-        raise ValueError("the responses y must be finite numbers")
-    A = Xw / norms
-    Q, R = _economic_qr(A)
-    diag = np.abs(np.diag(R))
-    rank = int(np.sum(diag > diag.max() * n * _EPS))
-    if rank < p:
-        raise ValueError(f"the design is singular (rank {rank} < {p} parameters)")
+    A, Q, R, norms, _ = _factor(X * sw[:, None], Yw)
     # One factorisation; each column then goes through solve_wls's own steps (matrix-vector
     # products, a triangular solve, one refinement), so its figures are solve_wls's digit
     # for digit whatever the other columns.

@@ -18,6 +18,11 @@ agree within 1e-9 (relative).  Run from the repository root::
     python bench/check_scale.py                 # 3 repeats of each
     python bench/check_scale.py --repeats 5
     python bench/check_scale.py --write run.csv # only write the input file
+    python bench/check_scale.py --compare before.json after.json   # two check JSONs alike?
+
+``--compare`` walks two ``calib check --json`` outputs (of the same file, e.g. before and
+after a change): every text and flag must be equal and every number agree within 1e-10
+relative; the largest difference and where it is are printed.
 """
 
 from __future__ import annotations
@@ -150,12 +155,60 @@ def compare(calib_out: bytes, lean_out: bytes) -> float:
     return worst
 
 
+def compare_documents(before: object, after: object, *, rel: float = 1e-10
+                      ) -> tuple[float, str, list[str]]:
+    """Largest relative difference of the numbers (and where), and every place that differs
+    beyond ``rel`` or in text, between two check documents."""
+    worst, at, differ = 0.0, "", []
+
+    def walk(a: object, b: object, path: str) -> None:
+        nonlocal worst, at
+        if isinstance(a, dict) and isinstance(b, dict):
+            if a.keys() != b.keys():
+                differ.append(f"{path}: keys {sorted(set(a) ^ set(b))}")
+                return
+            for key in a:
+                walk(a[key], b[key], f"{path}/{key}")
+        elif isinstance(a, list) and isinstance(b, list):
+            if len(a) != len(b):
+                differ.append(f"{path}: {len(a)} items against {len(b)}")
+                return
+            for i, (u, v) in enumerate(zip(a, b)):
+                walk(u, v, f"{path}[{i}]")
+        elif (isinstance(a, float) and isinstance(b, int | float) and not isinstance(b, bool)
+              and a != b):
+            gap = abs(a - b) / max(abs(b), 1e-300)
+            if gap > worst:
+                worst, at = gap, path
+            if gap > rel:
+                differ.append(f"{path}: {a!r} against {b!r}")
+        elif a != b:
+            differ.append(f"{path}: {str(a)[:120]!r} against {str(b)[:120]!r}")
+
+    walk(before, after, "")
+    return worst, at, differ
+
+
+def _compare_files(before: Path, after: Path) -> int:
+    docs = [json.loads(p.read_text(encoding="utf-8")) for p in (before, after)]
+    worst, at, differ = compare_documents(*docs)
+    print(f"largest relative difference {worst:.3g}" + (f" at {at}" if at else ""))
+    print(f"{len(differ)} places differ beyond 1e-10 relative or in text")
+    for line in differ[:20]:
+        print(f"  {line}")
+    return 0 if not differ else 1
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--analytes", type=int, default=ANALYTES)
     parser.add_argument("--write", type=Path, help="only write the input file here")
+    parser.add_argument("--compare", type=Path, nargs=2, metavar=("BEFORE", "AFTER"),
+                        help="compare two calib check --json outputs")
     args = parser.parse_args(argv)
+    if args.compare is not None:
+        return _compare_files(*args.compare)
     if args.write is not None:
         write_run(args.write, analytes=args.analytes)
         return 0

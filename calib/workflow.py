@@ -84,17 +84,11 @@ def check_file(
     run = read_run(path, sheet=sheet, map=map)
     history = _slope_history(archive, prof, run.analytes, options)
 
-    def judge(p: Profile) -> RunAssessment:
-        return evaluate_run(
-            run, profile=p, model=model, weighting=weighting, confidence=confidence,
-            exclusions=exclusions, ranges=ranges, slope_history=history, progress=progress,
-        )
-
-    if prof.overrides:  # [[analyte]] entries: each curve judged under its own settings
-        from calib.checks.overrides import apply_overrides
-
-        return apply_overrides(run.analytes, prof, judge)
-    return judge(prof)
+    # [[analyte]] entries are applied inside, each curve under its own settings, in one pass.
+    return evaluate_run(
+        run, profile=prof, model=model, weighting=weighting, confidence=confidence,
+        exclusions=exclusions, ranges=ranges, slope_history=history, progress=progress,
+    )
 
 
 def _slope_history(archive: str | Path | None, profile: Profile, analytes: Sequence[str],

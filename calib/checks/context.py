@@ -3,11 +3,18 @@
 from __future__ import annotations
 
 import functools
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any, TypeVar
 
 from calib.checks.history import SlopeHistory
 from calib.fit.curve import CurveFit
 from calib.run import Point
+
+if TYPE_CHECKING:
+    from calib.checks.batched import Precomputed
+
+_T = TypeVar("_T")
 
 __all__ = ["VARIANCE_ONLY", "CurveContext", "StandardResult"]
 
@@ -66,7 +73,9 @@ class CurveContext:
     analyte's QC samples (the ``qc`` rule reads them back from the curve).
 
     Figures several rules need are worked out once and kept (the context never
-    changes once made).
+    changes once made).  ``precomputed`` carries diagnostics worked out with the
+    run's other curves of the same design (:mod:`calib.checks.batched`); rules read
+    them through :meth:`shared`.
     """
 
     analyte: str
@@ -76,6 +85,16 @@ class CurveContext:
     blanks: tuple[Point, ...] = ()
     slope_history: SlopeHistory | None = None
     qcs: tuple[Point, ...] = ()
+    precomputed: Precomputed | None = None
+
+    def shared(self, name: str, compute: Callable[[], _T]) -> _T:
+        """The diagnostic ``name`` worked out with the run's other curves, else ``compute()``.
+
+        Precomputed figures are used only for the fit they were worked out on.
+        """
+        pre = self.precomputed
+        value: Any = getattr(pre, name) if pre is not None and pre.fit is self.fit else None
+        return compute() if value is None else value
 
     @functools.cached_property
     def used(self) -> tuple[StandardResult, ...]:

@@ -9,6 +9,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from calib.checks.batched import Precomputed, precompute
 from calib.checks.context import VARIANCE_ONLY, CurveContext, StandardResult
 from calib.checks.exclusions import AppliedExclusion, Exclusion, apply_exclusions
 from calib.checks.family import apply_family
@@ -22,6 +23,7 @@ from calib.checks.narrowing import (
     narrow_points,
     propose_range,
 )
+from calib.checks.overrides import given_options, settings_by_analyte, with_settings_line
 from calib.checks.profile import Profile, load_profile
 from calib.checks.refit import Refit, refit_without_rejected
 from calib.checks.result import CheckResult, CurveVerdict, combine_verdicts, verdict_reasons, worst
@@ -156,12 +158,16 @@ def evaluate_run(
     run : Run
         As returned by :func:`calib.io.read_run`.
     profile : Profile, optional
-        Acceptance rules; the shipped ``default`` profile when omitted.
+        Acceptance rules; the shipped ``default`` profile when omitted.  Its
+        ``[[analyte]]`` entries apply to the analytes they name: each such curve is
+        judged under its own model, weighting and limits and carries an
+        ``analyte-settings`` line saying so (:mod:`calib.checks.overrides`).
     model, weighting, confidence : optional
-        Override the profile's defaults (:meth:`calib.options.FitOptions.given`: a
-        weighting not given stays the profile's, ``mean-rf`` takes its own ``1/x2``).
+        Override the profile's defaults for every curve, the ``[[analyte]]`` entries'
+        included (:meth:`calib.options.FitOptions.given`: a weighting not given stays
+        the profile's, ``mean-rf`` takes its own ``1/x2``).
     progress : callable, optional
-        ``progress(done, total)`` after each analyte.
+        ``progress(done, total)`` after each analyte (one pass over the run).
     exclusions : sequence of Exclusion
         Points the analyst leaves out, each with a reason.
     ranges : sequence of WorkingRange
@@ -182,44 +188,76 @@ def evaluate_run(
     RangeError
         If a range names no analyte of the run, or gives no reason and is not
         the range calib proposes.
+    ProfileError
+        If two ``[[analyte]]`` patterns match one analyte of the run.
     """
     profile = profile or load_profile("default")
-    options = profile.fit_options.given(model, weighting, confidence)
-    model, weighting, confidence = options.model, options.weighting, options.confidence
+    options = given_options(profile, model, weighting, confidence)
     run, applied = apply_exclusions(run, exclusions) if exclusions else (run, ())
     analytes = run.analytes
     wanted = _ranges_by_analyte(ranges, analytes)
     history = slope_history or {}
     by_analyte = _points_by_analyte(run.points)
     standards = {a: tuple(by_analyte[a]["standards"]) for a in analytes}
-    fits = _batched_fits(standards, model=model, weighting=weighting, confidence=confidence,
-                         profile=profile)
+    # [[analyte]] entries: each curve judged under its own profile; --model and
+    # --weighting, when given, apply to every curve.
+    settings = {}
+    for a, (own, entry) in settings_by_analyte(profile, analytes).items():
+        mine = own.fit_options.given(model, weighting, confidence)
+        settings[a] = (own, entry, mine.model, mine.weighting)
+    confidence = options.confidence
+    fits: dict[str, tuple[CurveFit | None, str]] = {}
+    used: dict[str, list[Point]] = {}
+    for (m, w), group in _fit_groups(settings).items():
+        fits.update(_batched_fits({a: standards[a] for a in group}, model=m, weighting=w,
+                                  confidence=confidence, profile=settings[group[0]][0],
+                                  kept=used))
+    # The diagnostics of curves sharing a design, worked out together (calib.checks.batched).
+    shared = precompute({a: f for a, (f, _) in fits.items() if f is not None}, used)
     curves = []
     for done, analyte in enumerate(analytes, start=1):
-        blanks = tuple(by_analyte[analyte]["blanks"])
-        qcs = tuple(by_analyte[analyte]["qcs"])
-        first = fits.get(analyte)
-
-        def assess(standards: Sequence[Point], analyte: str = analyte,
-                   blanks: tuple[Point, ...] = blanks,
-                   qcs: tuple[Point, ...] = qcs) -> CurveAssessment:
-            return assess_curve(analyte, standards, model=model, weighting=weighting,
-                                confidence=confidence, profile=profile, blanks=blanks,
-                                slope_history=history.get(analyte), qcs=qcs)
-
-        def assess_first(points: Sequence[Point], analyte: str = analyte,
-                         blanks: tuple[Point, ...] = blanks, qcs: tuple[Point, ...] = qcs,
-                         first: tuple[CurveFit | None, str] | None = first) -> CurveAssessment:
-            # The full-range curve takes its fit from the batch; narrowed trials refit alone.
-            return _assess(analyte, points, model=model, weighting=weighting,
-                           confidence=confidence, profile=profile, blanks=blanks,
-                           slope_history=history.get(analyte), qcs=qcs, fitted=first)
-
-        curves.append(_with_ranges(assess, standards[analyte], profile, wanted.get(analyte),
-                                   first=assess_first))
+        own, entry, m, w = settings[analyte]
+        curve = _assess_analyte(analyte, standards[analyte], by_analyte[analyte], own,
+                                model=m, weighting=w, confidence=confidence,
+                                history=history.get(analyte), first=fits.get(analyte),
+                                working=wanted.get(analyte), shared=shared.get(analyte))
+        curves.append(curve if entry is None else with_settings_line(curve, entry))
         if progress is not None:
             progress(done, len(analytes))
-    return RunAssessment(run, profile, model, weighting, confidence, tuple(curves), applied)
+    return RunAssessment(run, profile, options.model, options.weighting, confidence, tuple(curves),
+                         applied)
+
+
+def _fit_groups(settings: Mapping[str, tuple[Profile, object, Model, Weighting]]
+                ) -> dict[tuple[Model, Weighting], list[str]]:
+    """The analytes that share a model and weighting, fitted together (in run order)."""
+    groups: dict[tuple[Model, Weighting], list[str]] = {}
+    for analyte, (_, _, m, w) in settings.items():
+        groups.setdefault((m, w), []).append(analyte)
+    return groups
+
+
+def _assess_analyte(analyte: str, standards: tuple[Point, ...],
+                    points: Mapping[str, list[Point]], profile: Profile, *, model: Model,
+                    weighting: Weighting, confidence: float, history: SlopeHistory | None,
+                    first: tuple[CurveFit | None, str] | None,
+                    working: WorkingRange | None,
+                    shared: Precomputed | None = None) -> CurveAssessment:
+    """One analyte's curve under its own profile, with its proposed and applied ranges."""
+    blanks, qcs = tuple(points["blanks"]), tuple(points["qcs"])
+
+    def assess(chosen: Sequence[Point]) -> CurveAssessment:
+        return assess_curve(analyte, chosen, model=model, weighting=weighting,
+                            confidence=confidence, profile=profile, blanks=blanks,
+                            slope_history=history, qcs=qcs)
+
+    def assess_first(chosen: Sequence[Point]) -> CurveAssessment:
+        # The full-range curve takes its fit from the batch; narrowed trials refit alone.
+        return _assess(analyte, chosen, model=model, weighting=weighting,
+                       confidence=confidence, profile=profile, blanks=blanks,
+                       slope_history=history, qcs=qcs, fitted=first, precomputed=shared)
+
+    return _with_ranges(assess, standards, profile, working, first=assess_first)
 
 
 def _ranges_by_analyte(ranges: Sequence[WorkingRange],
@@ -307,8 +345,10 @@ def _assess(
     slope_history: SlopeHistory | None = None,
     qcs: Sequence[Point] = (),
     fitted: tuple[CurveFit | None, str] | None = None,
+    precomputed: Precomputed | None = None,
 ) -> CurveAssessment:
-    """:func:`assess_curve`, taking the fit (or the reason there is none) when already made."""
+    """:func:`assess_curve`, taking the fit (or the reason there is none) when already made,
+    and diagnostics worked out with the run's other curves (used for that fit only)."""
     levels = {c: i for i, c in enumerate(sorted({p.concentration for p in standards}), start=1)}
     reasons = _exclusion_reasons(standards, model, weighting, profile)
     if fitted is None:
@@ -321,7 +361,7 @@ def _assess(
     def judged(results: tuple[StandardResult, ...],
                fit: CurveFit | None) -> tuple[CheckResult, ...]:
         ctx = CurveContext(analyte, results, fit, unfitted, blanks=(*blanks, *zero),
-                           slope_history=slope_history, qcs=tuple(qcs))
+                           slope_history=slope_history, qcs=tuple(qcs), precomputed=precomputed)
         return tuple(apply_family([RULES[spec.id].run(ctx, spec.params, spec.severity)
                                    for spec in profile.rules], profile.review_family))
 
@@ -362,13 +402,14 @@ def _points_by_analyte(points: Sequence[Point]) -> dict[str, dict[str, list[Poin
 
 
 def _batched_fits(standards: Mapping[str, Sequence[Point]], *, model: Model,
-                  weighting: Weighting, confidence: float,
-                  profile: Profile) -> dict[str, tuple[CurveFit | None, str]]:
+                  weighting: Weighting, confidence: float, profile: Profile,
+                  kept: dict[str, list[Point]]) -> dict[str, tuple[CurveFit | None, str]]:
     """The full-range fit of every analyte, the fittable curves in one :func:`fit_batch` call.
 
     The curves of a run share model, weighting and confidence, so they form one group.
     A curve the batch cannot fit (or that fails the level and point counts) is left to
-    the per-curve path, which gives the reason in its own words.
+    the per-curve path, which gives the reason in its own words.  ``kept`` receives the
+    standards in each batched fit, in the order of its points.
     """
     p = len(COEFFICIENTS[model])
     names, rows = [], []
@@ -390,6 +431,7 @@ def _batched_fits(standards: Mapping[str, Sequence[Point]], *, model: Model,
         y[k, :len(used)] = [pt.response for pt in used]
         mask[k, :len(used)] = True
     batch = fit_batch(x, y, model=model, weighting=weighting, mask=mask, confidence=confidence)
+    kept.update((analyte, rows[k]) for k, analyte in enumerate(names))
     return {analyte: (batch.curve(k), "") for k, analyte in enumerate(names)
             if batch.problems[k] is None}
 

@@ -18,6 +18,8 @@ analyte, exactly, ignoring case), never both.  An analyte named by a ``name``
 entry takes that entry; otherwise the one pattern that matches it.  Two
 patterns that can match one analyte are ambiguous and refused when the profile
 is loaded, naming both and an example name (:mod:`calib.checks.globs`).
+:func:`calib.checks.evaluate.evaluate_run` judges each analyte under its own
+effective profile (:func:`settings_by_analyte`) in one pass over the run.
 A rule named under ``rules`` must be one of the profile's rules; its
 parameters are checked as the rule's own.  Command-line ``--model`` and
 ``--weighting`` apply to every curve and take precedence.
@@ -36,17 +38,19 @@ from calib.errors import OptionError, ProfileError
 from calib.options import FitOptions, Model, Weighting
 
 if TYPE_CHECKING:
-    from calib.checks.evaluate import CurveAssessment, RunAssessment
+    from calib.checks.evaluate import CurveAssessment
     from calib.checks.profile import Profile, RuleSpec
 
 __all__ = [
     "SETTINGS_ID",
     "AnalyteOverride",
-    "apply_overrides",
     "digits_by_analyte",
     "given_options",
     "override_for",
     "parse_overrides",
+    "profile_for",
+    "settings_by_analyte",
+    "with_settings_line",
 ]
 
 SETTINGS_ID = "analyte-settings"
@@ -274,34 +278,34 @@ def given_options(profile: Profile, model: Model | str | None = None,
     return options
 
 
-def apply_overrides(analytes: Sequence[str], profile: Profile,
-                    evaluate: Callable[[Profile], RunAssessment]) -> RunAssessment:
-    """Judge a run whose profile has ``[[analyte]]`` entries.
+def settings_by_analyte(profile: Profile, analytes: Sequence[str]
+                        ) -> dict[str, tuple[Profile, AnalyteOverride | None]]:
+    """Each analyte's effective profile and the ``[[analyte]]`` entry that made it (or None).
 
-    ``evaluate(p)`` judges the whole run under profile ``p``; it is called once
-    for the profile as written and once per entry that applies to an analyte of
-    the run, and each curve is taken from the evaluation of its own entry.  The
-    result names the profile as written (its text, with the entries, is what the
-    record keeps) and each overridden curve carries an information line
-    (``analyte-settings``) saying which entry applied and what it changed.
+    An analyte no entry names keeps ``profile`` itself; the analytes of one entry share
+    one effective profile (its model, weighting and rule limits).
+
+    Raises
+    ------
+    ProfileError
+        When two patterns match one analyte (both named).
     """
-    chosen = {a: override_for(a, profile.overrides) for a in analytes}
-    base = evaluate(profile)
-    by_entry: dict[int, RunAssessment] = {}
-    for entry in {e.index: e for e in chosen.values() if e is not None}.values():
-        by_entry[entry.index] = evaluate(profile_for(profile, entry))
-    curves = []
-    for curve in base.curves:
-        entry = chosen.get(curve.analyte)
+    made: dict[int, Profile] = {}
+    out: dict[str, tuple[Profile, AnalyteOverride | None]] = {}
+    for analyte in analytes:
+        entry = override_for(analyte, profile.overrides) if profile.overrides else None
         if entry is None:
-            curves.append(curve)
+            out[analyte] = (profile, None)
             continue
-        own = next(c for c in by_entry[entry.index].curves if c.analyte == curve.analyte)
-        curves.append(_named(own, entry))
-    return replace(base, curves=tuple(curves))
+        if entry.index not in made:
+            made[entry.index] = profile_for(profile, entry)
+        out[analyte] = (made[entry.index], entry)
+    return out
 
 
-def _named(curve: CurveAssessment, entry: AnalyteOverride) -> CurveAssessment:
+def with_settings_line(curve: CurveAssessment, entry: AnalyteOverride) -> CurveAssessment:
+    """``curve`` with the information line (``analyte-settings``) naming the entry it was
+    judged with and what that entry changed."""
     note = f" Note: {entry.note}" if entry.note else ""
     line = CheckResult(SETTINGS_ID, "Per-analyte settings of the profile", Verdict.PASS,
                        Severity.INFO, None, None,

@@ -84,6 +84,11 @@ class CheckResult:
         The family's level when the check belongs to it.
     detectable : tuple of (str, float) pairs
         What the test would detect with 80 % power on this curve (named figures).
+    cells : tuple of str
+        Source cells of the standards the check singles out (a suggested outlier, a
+        standard read back outside its tolerance), in the order of the curve; empty
+        when it singles out none.  Front ends mark these cells without reading
+        ``detail``.
     """
 
     id: str
@@ -102,6 +107,7 @@ class CheckResult:
     adjusted_p: float | None = None
     family_alpha: float | None = None
     detectable: tuple[tuple[str, float], ...] = ()
+    cells: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         # A NaN never passes: it can only mean the check could not be evaluated.

@@ -9,6 +9,7 @@ raise ``ValueError``.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -482,8 +483,10 @@ class RunsTest:
         return self.reason is None and self.p_value < _alpha(alpha)
 
 
+@functools.lru_cache(maxsize=4096)
 def _runs_cdf(r: int, n1: int, n2: int) -> float:
-    """P(R ≤ r) for n1 and n2 signs in random order, exact in integers."""
+    """P(R ≤ r) for n1 and n2 signs in random order, exact in integers (remembered: the
+    curves of a run share their few sign counts)."""
     total = math.comb(n1 + n2, n1)
     count = 0
     for runs in range(2, r + 1):

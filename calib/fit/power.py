@@ -10,6 +10,7 @@ the noncentrality follows from the design, σ̂ standing in for σ).
 
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -20,10 +21,13 @@ from calib.fit.distributions import f_ppf, nct_cdf, norm_cdf, norm_ppf, t_ppf
 __all__ = ["detectable_bend_pct", "detectable_f_noncentrality", "detectable_t_noncentrality"]
 
 
+@functools.lru_cache(maxsize=256)
 def detectable_t_noncentrality(df: int, alpha: float = 0.05, power: float = 0.80) -> float:
     """Noncentrality δ at which a two-sided t-test on ``df`` degrees of freedom has ``power``.
 
     The effect detectable with that power is δ times the estimate's standard error.
+    Remembered per (df, alpha, power): the curves of a run share their degrees of
+    freedom, and the root is found once for all of them.
 
     Examples
     --------
@@ -55,9 +59,12 @@ def detectable_t_noncentrality(df: int, alpha: float = 0.05, power: float = 0.80
     return _root(short, 0.0, high, xtol=1e-10)
 
 
+@functools.lru_cache(maxsize=256)
 def detectable_f_noncentrality(dfn: int, dfd: int, alpha: float = 0.05,
                                power: float = 0.80) -> float:
     """Noncentrality λ at which an F-test on (dfn, dfd) degrees of freedom has ``power``.
+
+    Remembered per (dfn, dfd, alpha, power), as :func:`detectable_t_noncentrality`.
 
     λ = Σ wᵢ·dᵢ²/σ² for a departure dᵢ of the true means from the fitted model.
 

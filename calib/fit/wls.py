@@ -82,19 +82,8 @@ def solve_wls(X: np.ndarray, y: np.ndarray, w: np.ndarray | None = None) -> WlsS
     n, p = X.shape
     w = np.ones(n) if w is None else np.asarray(w, dtype=float)
     sw = np.sqrt(w)
-    Xw = X * sw[:, None]
     yw = y * sw
-    norms = np.linalg.norm(Xw, axis=0)
-    if np.any(norms == 0) or not np.all(np.isfinite(norms)):
-        raise ValueError("the design matrix has a column of zeros or non-finite values")
-    if not np.all(np.isfinite(yw)):
-        raise ValueError("the responses y must be finite numbers")
-    A = Xw / norms
-    Q, R = _economic_qr(A)
-    diag = np.abs(np.diag(R))
-    rank = int(np.sum(diag > diag.max() * n * _EPS))
-    if rank < p:
-        raise ValueError(f"the design is singular (rank {rank} < {p} parameters)")
+    A, Q, R, norms, rank = _factor(X * sw[:, None], yw)
     z = _solve_upper(R, Q.T @ yw)
     # One step of iterative refinement: solve again for the correction on the residual.
     z = z + _solve_upper(R, Q.T @ (yw - A @ z))
@@ -109,6 +98,25 @@ def solve_wls(X: np.ndarray, y: np.ndarray, w: np.ndarray | None = None) -> WlsS
         weighted_ss=float(np.sum(w * residuals**2)),
         rank=rank,
     )
+
+
+def _factor(Xw: np.ndarray, yw: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray,
+                                                     np.ndarray, int]:
+    """A = W½X·D (unit columns), its QR, the column norms 1/D and the rank; refuses a zero
+    or non-finite column, non-finite responses ``yw`` (any shape) and a rank below p."""
+    n, p = Xw.shape
+    norms = np.linalg.norm(Xw, axis=0)
+    if np.any(norms == 0) or not np.all(np.isfinite(norms)):
+        raise ValueError("the design matrix has a column of zeros or non-finite values")
+    if not np.all(np.isfinite(yw)):
+        raise ValueError("the responses y must be finite numbers")
+    A = Xw / norms
+    Q, R = _economic_qr(A)
+    diag = np.abs(np.diag(R))
+    rank = int(np.sum(diag > diag.max() * n * _EPS))
+    if rank < p:
+        raise ValueError(f"the design is singular (rank {rank} < {p} parameters)")
+    return A, Q, R, norms, rank
 
 
 def _workspace(query: tuple[np.ndarray, ...]) -> int:

@@ -145,28 +145,26 @@ def short_check_name(title: str) -> str:
     return title.split(" (", 1)[0].strip() or title
 
 
+#: How a flagged cell is described, by the check that flags it (else its short title).
+_FLAG_WORDS = {"outliers": "suggested outlier", "back-calculation": "outside tolerance"}
+
+
 def flagged_cells(curve: Any) -> dict[str, str]:
     """Cells the checks single out, each with why: suggested outliers, standards out of tolerance.
 
-    Read from the outlier and back-calculation checks' own sentences, which name
-    each cell (``CELL: finding`` and ``outside: CELL (+x %)``); no statistic is
-    computed here.
+    Taken from each check's ``cells`` (no sentence is parsed, no statistic computed):
+    a standard read back outside its tolerance whatever the check's verdict, the cells
+    of any other check while it warns or fails (a suggested outlier the review family
+    does not confirm is not marked).
     """
     out: dict[str, str] = {}
-    details = {c.id: (c.verdict.value, c.detail) for c in curve.checks}
-    verdict, detail = details.get("outliers", ("", ""))
-    cells = [s.point.source_cell for s in curve.standards]
-    if verdict == "warn":
-        head = detail.split(". ", 1)[0]
-        for cell in cells:
-            if f"{cell}:" in head:
-                out[cell] = "suggested outlier"
-    verdict, detail = details.get("back-calculation", ("", ""))
-    if "; outside: " in detail:
-        tail = detail.split("; outside: ", 1)[1]
-        for cell in cells:
-            if f"{cell} (" in tail:
-                out[cell] = (out[cell] + "; " if cell in out else "") + "outside tolerance"
+    for check in sorted(curve.checks, key=lambda c: c.id != "outliers"):  # outliers named first
+        if not check.cells or (check.id != "back-calculation"
+                               and check.verdict.value not in ("warn", "fail")):
+            continue
+        why = _FLAG_WORDS.get(check.id, short_check_name(check.title))
+        for cell in check.cells:
+            out[cell] = f"{out[cell]}; {why}" if cell in out else why
     return out
 
 

@@ -114,3 +114,29 @@ def test_grubbs_with_three_replicates_is_not_evaluated_and_decides_nothing():
     assert check.verdict is Verdict.PASS
     assert "Grubbs' test not evaluated: no level has 4 or more replicates" in check.detail
     assert "Grubbs G" not in check.detail
+
+
+def test_flagged_cells_are_given_as_data():
+    """The outliers and back-calculation checks list the cells they single out.
+
+    The outlier is the point whose externally studentized residual (statsmodels
+    OLSInfluence) exceeds scipy's Bonferroni t; the standards outside ±15 % are those
+    whose concentration read back from numpy's least-squares line is outside it.
+    """
+    from calib.checks import load_profile
+
+    x = np.arange(1.0, 11.0)
+    y = 2.0 * x + np.array([0.03, -0.05, 0.02, 0.04, -0.03, 0.01, 0.6, -0.02, 0.05, -0.04])
+    y[1] = 2.0 * 2 * 1.4  # the second standard reads 40 % high (invented)
+    curve = evaluate_run(make_run(x, y), profile=load_profile("default")).curves[0]
+    checks = {c.id: c for c in curve.checks}
+    cells = [s.point.source_cell for s in curve.standards]
+    t_ext = sm.OLS(y, sm.add_constant(x)).fit().get_influence().resid_studentized_external
+    beyond = np.abs(t_ext) > stats.t.isf(0.05 / 20, 7)
+    assert checks["outliers"].cells == tuple(c for c, b in zip(cells, beyond) if b)
+    slope, intercept = np.polyfit(x, y, 1)
+    outside = np.abs(((y - intercept) / slope - x) / x) > np.where(x == 1.0, 0.20, 0.15)
+    assert checks["back-calculation"].cells == tuple(c for c, o in zip(cells, outside) if o)
+    assert checks["back-calculation"].cells  # the run is built to have one
+    assert all(c.cells == () for c in curve.checks if c.id not in ("outliers",
+                                                                    "back-calculation"))

@@ -147,3 +147,32 @@ def test_refusal_names_the_line_of_the_entry():
     line = text.splitlines().index("[[analyte]]") + 1
     with pytest.raises(ProfileError, match=f"^p.toml, line {line}: digits must be"):
         parse_profile(text, origin="p.toml")
+
+
+def test_evaluate_run_applies_the_entries_in_one_pass(tmp_path):
+    """Called directly, evaluate_run judges each analyte under its own entry, once.
+
+    The lead curve is checked against statsmodels WLS (quadratic, weights 1/x) on the
+    same points; the progress callback sees every analyte once, in one pass.
+    """
+    from calib.checks.evaluate import evaluate_run
+    from calib.io import read_run
+
+    run = read_run(write_run(tmp_path / "icp.csv"))
+    calls: list[tuple[int, int]] = []
+    assessment = evaluate_run(run, profile=load_profile(profile_file(tmp_path, PB_QUADRATIC)),
+                              progress=lambda done, total: calls.append((done, total)))
+    n = len(run.analytes)
+    assert calls == [(i, n) for i in range(1, n + 1)]
+    curves = {c.analyte: c for c in assessment.curves}
+    pb = curves["Pb 220.353"]
+    assert pb.model.value == "quadratic"
+    assert pb.fit.coefficients["quadratic"] == pytest.approx(
+        wls(pb, quadratic=True).params[2], rel=1e-9)
+    assert [c.id for c in pb.checks].count("analyte-settings") == 1
+    others = [c for a, c in curves.items() if a != "Pb 220.353"]
+    assert others and all(c.model.value == "linear" for c in others)
+    assert all("analyte-settings" not in [k.id for k in c.checks] for c in others)
+    # The run keeps the profile as written and its own model.
+    assert assessment.model.value == "linear"
+    assert "[[analyte]]" in assessment.profile.text

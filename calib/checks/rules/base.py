@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -75,9 +75,10 @@ _TITLES: dict[str, str] = {}
 
 
 def result(rule_id: str, severity: Severity, verdict: Verdict, value: float | None,
-           limit: float | None, detail: str) -> CheckResult:
-    """A CheckResult carrying the title of the rule ``rule_id``."""
-    return CheckResult(rule_id, _TITLES[rule_id], verdict, severity, value, limit, detail)
+           limit: float | None, detail: str, *, cells: Sequence[str] = ()) -> CheckResult:
+    """A CheckResult carrying the title of the rule ``rule_id`` (and the cells it flags)."""
+    return CheckResult(rule_id, _TITLES[rule_id], verdict, severity, value, limit, detail,
+                       cells=tuple(cells))
 
 
 def not_evaluated(rule_id: str, severity: Severity, reason: str) -> CheckResult:
@@ -120,12 +121,17 @@ def with_test(check: CheckResult, *, statistic: str, statistic_value: float | No
 
     Non-finite figures are kept as None so that the JSON never carries NaN.
     """
-    from dataclasses import replace
-
     def finite(v: float | None) -> float | None:
         return None if v is None or not math.isfinite(v) else float(v)
 
-    return replace(check, statistic=statistic, statistic_value=finite(statistic_value),
-                   p_value=finite(p_value), alpha=alpha, critical_value=finite(critical_value),
-                   passes_when=passes_when,
-                   detectable=tuple((k, float(v)) for k, v in detectable if math.isfinite(v)))
+    # Built directly (not dataclasses.replace): every statistical check of every curve
+    # passes here, and replace's field introspection cost more than the check.
+    return CheckResult(check.id, check.title, check.verdict, check.severity, check.value,
+                       check.limit, check.detail, statistic=statistic,
+                       statistic_value=finite(statistic_value), p_value=finite(p_value),
+                       alpha=alpha, critical_value=finite(critical_value),
+                       passes_when=passes_when,
+                       detectable=tuple((k, float(v)) for k, v in detectable
+                                        if math.isfinite(v)),
+                       adjusted_p=check.adjusted_p, family_alpha=check.family_alpha,
+                       cells=check.cells)

@@ -41,7 +41,7 @@ def lack_of_fit_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
     fit = ctx.fit
     if fit is None:
         return not_evaluated("lack-of-fit", sev, ctx.unfitted_reason)
-    test = lack_of_fit(fit)
+    test = ctx.shared("lack_of_fit", lambda: lack_of_fit(fit))
     if test.reason is not None:
         return not_evaluated("lack-of-fit", sev, f"Lack of fit not tested: {test.reason}.")
     alpha = p["alpha"]
@@ -56,8 +56,12 @@ def lack_of_fit_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
     bend = math.nan
     if fit.model is Model.LINEAR:
         lam = detectable_f_noncentrality(test.df_lack, test.df_pure, alpha)
-        bend = detectable_bend_pct(fit.x, fit.weights, fit.predict(fit.x),
-                                   test.ss_pure / test.df_pure, lam)
+        sigma2 = test.ss_pure / test.df_pure
+        pre = ctx.precomputed
+        shared = (pre.detectable_bend_pct(sigma2, lam) if pre is not None and pre.fit is fit
+                  else None)
+        bend = (detectable_bend_pct(fit.x, fit.weights, fit.predict(fit.x), sigma2, lam)
+                if shared is None else shared)
     power_words = f" Critical F({1 - alpha:g}; {test.df_lack}, {test.df_pure}) = {fmt(crit)}."
     power_words += (f" With 80 % power this test detects a quadratic bend that leaves the "
                    f"straight line by {bend:.3g} % of the response at the highest standard."
@@ -86,7 +90,7 @@ def mandel_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Check
     if fit.model is not Model.LINEAR:
         return not_evaluated("mandel", sev, "Mandel's test compares a straight line with a "
                              f"quadratic; the curve is fitted as {fit.model.value}.")
-    test = mandel_test(fit)
+    test = ctx.shared("mandel", lambda: mandel_test(fit))
     if test.reason is not None:
         return not_evaluated("mandel", sev, f"Mandel's test not evaluated: {test.reason}.")
     confidence = p["confidence"]
@@ -117,7 +121,7 @@ def quadratic_term_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) 
     if fit.model not in (Model.LINEAR, Model.QUADRATIC):
         return not_evaluated("quadratic-term", sev, "The quadratic-term test applies to linear "
                              f"and quadratic curves; the curve is fitted as {fit.model.value}.")
-    term = quadratic_term(fit)
+    term = ctx.shared("quadratic_term", lambda: quadratic_term(fit))
     if term.reason is not None:
         return not_evaluated("quadratic-term", sev, f"Quadratic term not tested: {term.reason}.")
     alpha = p["alpha"]
@@ -198,7 +202,8 @@ def drift_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckR
     if missing:
         return not_evaluated("drift", sev, f"The run gives no injection order for {missing} of "
                              f"the {len(order)} standards in the fit.")
-    test = residual_drift(fit, [float(o) for o in order if o is not None])
+    test = ctx.shared("drift", lambda: residual_drift(fit, [float(o) for o in order
+                                                            if o is not None]))
     if test.reason is not None:
         return not_evaluated("drift", sev, f"Drift not tested: {test.reason}.")
     alpha = p["alpha"]

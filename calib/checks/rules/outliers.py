@@ -92,7 +92,7 @@ def outliers_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Che
     alpha = p["alpha"]
     cells = [s.point.source_cell for s in ctx.used]
     try:
-        infl: Influence | None = influence(fit)
+        infl: Influence | None = ctx.shared("influence", lambda: influence(fit))
         why_not = ""
     except ValueError as exc:
         infl, why_not = None, str(exc)
@@ -131,7 +131,8 @@ def outliers_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Che
         listed = "; ".join(f"{cells[i]}: {' and '.join(findings[i])}" for i in sorted(findings))
         detail = (f"Suggested outlier{'s' if len(findings) > 1 else ''}: {listed}."
                   f"{cook_note} {_HANDS_OFF}")
-        return test_of(result("outliers", sev, Verdict.WARN, value, limit, detail))
+        return test_of(result("outliers", sev, Verdict.WARN, value, limit, detail,
+                              cells=[cells[i] for i in sorted(findings)]))
     if infl is None:
         return not_evaluated("outliers", sev, f"Studentized residuals not evaluated: {why_not}; "
                              f"{grubbs_note}{' finds no outlier' if tested else ''}.")

@@ -158,7 +158,9 @@ def back_calculation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
     allowed = tol.allowed
 
     passing = {id(s) for s in judged if _within(s, allowed(s))}
-    outside = [_shown(s) for s in judged if id(s) not in passing]
+    failing = [s for s in judged if id(s) not in passing]
+    outside = [_shown(s) for s in failing]
+    flagged = [s.point.source_cell for s in failing]
     left_out = [s for s in _nonzero(ctx.standards) if not s.used] if p["count_excluded"] else []
     total = len(judged) + len(left_out)
     share = 100 * len(passing) / total
@@ -211,8 +213,10 @@ def back_calculation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
         detail += "; left out of the fit: " + ", ".join(_shown(s) for s in left_out)
     if problems:
         detail += ". The curve fails: " + "; ".join(problems) + "."
-        return result("back-calculation", sev, Verdict.FAIL, share, float(need), detail)
-    return result("back-calculation", sev, Verdict.PASS, share, float(need), detail)
+        return result("back-calculation", sev, Verdict.FAIL, share, float(need), detail,
+                      cells=flagged)
+    return result("back-calculation", sev, Verdict.PASS, share, float(need), detail,
+                  cells=flagged)
 
 
 def _level_passes(members: list[StandardResult], passing: set[int], need: float | None) -> bool:

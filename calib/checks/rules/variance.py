@@ -97,7 +97,7 @@ def levels(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResul
         return not_evaluated("variance-levels", sev, ctx.unfitted_reason)
     weighting = fit.weight_basis
     weights = None if weighting is Weighting.NONE else fit.weights
-    test = bartlett_levels(fit.x, fit.y, weights=weights)
+    test = ctx.shared("bartlett", lambda: bartlett_levels(fit.x, fit.y, weights=weights))
     if test.reason:
         return not_evaluated("variance-levels", sev, f"Variance test not made: {test.reason}.")
     alpha = p["alpha"]

@@ -6,16 +6,15 @@ import functools
 import math
 import weakref
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, TypeVar
 
 import numpy as np
 
 from calib.fit.bands import mean_band, prediction_band, weight_at
+from calib.fit.batch_block import StackFit, fit_stack
 from calib.fit.design import (
     COEFFICIENTS,
-    design_matrix,
-    fit_weights,
     level_variances,
     raw_weights,
     variance_function,
@@ -24,7 +23,6 @@ from calib.fit.design import (
 from calib.fit.distributions import t_ppf, t_sf
 from calib.fit.inverse import quadratic_root
 from calib.fit.response_factor import ResponseFactors, response_factors
-from calib.fit.wls import solve_wls
 from calib.options import Model, Weighting, check_confidence, parse_option
 from calib.tabular import Tabular
 
@@ -33,7 +31,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "CoefficientRow", "CoefficientTest", "CurveFit", "fit_curve", "once_per_fit",
-    "residuals_negligible", "response_sums", "weighted_ss",
+    "residuals_negligible", "response_sums", "stacked_curve", "weighted_ss",
 ]
 
 _T = TypeVar("_T")
@@ -130,6 +128,10 @@ class CurveFit(Tabular):
         ŷᵢ and yᵢ − ŷᵢ.
     r_squared : float
         Weighted R², uncentred for ``origin`` and ``mean-rf``.
+    covariance_root : ndarray or None
+        An upper triangular L with (XᵀWX)⁻¹ = L Lᵀ from the engine's factorisation (the
+        leverages of :func:`calib.fit.outliers.influence` come from it); None on a fit
+        built by other means.
     """
 
     model: Model
@@ -145,6 +147,7 @@ class CurveFit(Tabular):
     fitted: np.ndarray
     residuals: np.ndarray
     r_squared: float
+    covariance_root: np.ndarray | None = field(default=None, repr=False)
 
     def to_frame(self) -> pd.DataFrame:
         """The coefficient table as a pandas DataFrame (shown as a table in Jupyter)."""
@@ -450,41 +453,47 @@ def fit_curve(
     ys = np.asarray(y, dtype=float).ravel()
     if xs.shape != ys.shape:
         raise ValueError(f"x and y must have the same length; got {xs.size} and {ys.size}")
-    if not (np.all(np.isfinite(xs)) and np.all(np.isfinite(ys))):
-        raise ValueError("x and y must be finite numbers")
-    names = COEFFICIENTS[model]
-    p = len(names)
-    if xs.size <= p:
-        raise ValueError(f"model {model.value} needs at least {p + 1} points; got {xs.size}")
-    basis = weight_basis(model, weighting)
-    if model is Model.MEAN_RF and np.any(~(xs > 0)):
-        raise ValueError("model mean-rf needs concentrations above 0 (each response is "
-                         "divided by its concentration)")
-    w = fit_weights(xs, basis, y=ys)
-    X = design_matrix(xs, model)
-    sol = solve_wls(X, ys, w)
-    nu = xs.size - p
-    sigma2 = sol.weighted_ss / nu
-    if model in (Model.ORIGIN, Model.MEAN_RF):
-        total = float(np.sum(w * ys**2))
-    else:
-        ybar = float(np.sum(w * ys) / np.sum(w))
-        total = float(np.sum(w * (ys - ybar) ** 2))
-    r_squared = 1.0 - sol.weighted_ss / total if total > 0 else math.nan
+    # A stack of one curve through the engine that fits batches (calib.fit.batch_block),
+    # so this curve's figures are those it gets in any batch.
+    points = np.empty((4, xs.size, 1))
+    points[0, :, 0] = xs
+    points[1, :, 0] = ys
+    used = np.ones((xs.size, 1), dtype=bool)
+    fitted = fit_stack(points[0], points[1], used, None, model=model,
+                       basis=weight_basis(model, weighting), weights_out=points[2],
+                       residuals_out=points[3])
+    if fitted.problems[0] is not None:
+        raise ValueError(fitted.problems[0])
+    return stacked_curve(fitted, 0, x=points[0, :, 0], y=points[1, :, 0], used=used[:, 0],
+                         model=model, weighting=weighting, confidence=confidence)
+
+
+def stacked_curve(fitted: StackFit, k: int, *, x: np.ndarray, y: np.ndarray, used: np.ndarray,
+                  model: Model, weighting: Weighting, confidence: float) -> CurveFit:
+    """Curve ``k`` of the engine's result as a :class:`CurveFit` over its ``used`` points.
+
+    The one place a fit is made from the engine's arrays, by :func:`fit_curve` and by
+    :meth:`calib.fit.batch.BatchFit.curve` alike: ``x``, ``y`` and ``used`` are the
+    curve's row of the stack (padding included).
+    """
+    residuals = fitted.residuals[used, k]
+    ys = y[used]
+    root = fitted.root[k].copy()
     return CurveFit(
         model=model,
         weighting=weighting,
         confidence=confidence,
-        x=xs,
+        x=x[used],
         y=ys,
-        weights=w,
-        coefficients={n: float(b) for n, b in zip(names, sol.beta)},
-        covariance=sigma2 * sol.unscaled_covariance,
-        residual_df=nu,
-        residual_sd=math.sqrt(sigma2),
-        fitted=ys - sol.residuals,
-        residuals=sol.residuals,
-        r_squared=r_squared,
+        weights=fitted.weights[used, k],
+        coefficients={n: float(b) for n, b in zip(COEFFICIENTS[model], fitted.coefficients[k])},
+        covariance=fitted.covariance[k].copy(),
+        residual_df=int(fitted.residual_df[k]),
+        residual_sd=float(fitted.residual_sd[k]),
+        fitted=ys - residuals,
+        residuals=residuals,
+        r_squared=float(fitted.r_squared[k]),
+        covariance_root=root if np.isfinite(root).all() else None,
     )
 
 

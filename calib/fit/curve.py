@@ -20,6 +20,7 @@ from calib.fit.design import (
     variance_function,
     weight_basis,
 )
+from calib.fit.diagnostics_core import ROUNDING, ROUNDING_UNCENTRED, Sums, weighted_sums
 from calib.fit.distributions import t_ppf, t_sf
 from calib.fit.inverse import quadratic_root
 from calib.fit.response_factor import ResponseFactors, response_factors
@@ -538,7 +539,7 @@ def weighted_ss(fit: CurveFit) -> float:
     >>> round(weighted_ss(fit_curve([1, 2, 3], [1.0, 2.5, 3.0])), 12)   # residuals −1/6, 1/3, −1/6
     0.166666666667
     """
-    return float(np.sum(fit.weights * fit.residuals**2))
+    return float(_sums(fit).weighted_ss[0])
 
 
 @once_per_fit
@@ -548,11 +549,16 @@ def response_sums(fit: CurveFit) -> tuple[float, float]:
     The weighted spread of y about its weighted mean ȳ_w, and its uncentred sum
     of squares: the scales against which a residual sum counts as rounding noise.
     """
-    w = fit.weights
-    uncentred = float(np.sum(w * fit.y**2))
-    ybar = float(np.sum(w * fit.y) / np.sum(w))
-    spread = float(np.sum(w * (fit.y - ybar) ** 2))
-    return spread, uncentred
+    sums = _sums(fit)
+    return float(sums.spread[0]), float(sums.uncentred[0])
+
+
+@once_per_fit
+def _sums(fit: CurveFit) -> Sums:
+    """The engine's weighted sums of the fit, as a batch of one curve (diagnostics_core)."""
+    column = (fit.n_points, 1)
+    return weighted_sums(fit.y.reshape(column), fit.weights.reshape(column),
+                         fit.residuals.reshape(column), np.ones(column, dtype=bool))
 
 
 def residuals_negligible(ss: float, fit: CurveFit) -> bool:
@@ -561,4 +567,4 @@ def residuals_negligible(ss: float, fit: CurveFit) -> bool:
     See :attr:`CurveFit.exact` for the thresholds.
     """
     spread, uncentred = response_sums(fit)
-    return ss <= max(1e-20 * spread, 1e-24 * uncentred)
+    return ss <= max(ROUNDING * spread, ROUNDING_UNCENTRED * uncentred)

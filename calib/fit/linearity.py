@@ -23,6 +23,7 @@ from calib.fit.curve import (
     weighted_ss,
 )
 from calib.fit.design import design_matrix
+from calib.fit.diagnostics_core import ROUNDING, lack_of_fit_reason, level_sums
 from calib.fit.distributions import f_isf, f_ppf, f_sf, norm_cdf, t_sf
 from calib.fit.wls import WlsSolution, solve_wls
 from calib.options import Model
@@ -34,7 +35,7 @@ __all__ = [
 
 # A sum of squares this small next to the total is rounding, not scatter: the
 # curve passes through the points and no test on the scatter means anything.
-_ROUNDING = 1e-20
+_ROUNDING = ROUNDING
 
 #: Up to this many signed residuals the runs test uses the exact distribution.
 EXACT_RUNS_LIMIT = 200
@@ -151,26 +152,19 @@ def lack_of_fit(fit: CurveFit) -> LackOfFit:
     >>> lack_of_fit(fit_curve([1, 2, 3], [1.0, 2.1, 2.9])).reason
     'no concentration level has replicates, so there is no pure error to test against'
     """
-    levels, index = np.unique(fit.x, return_inverse=True)
-    m = int(levels.size)
     n = fit.n_points
     p = n - fit.residual_df
-    w = fit.weights
-    sums = np.bincount(index, weights=w, minlength=m)
-    means = np.bincount(index, weights=w * fit.y, minlength=m) / sums
-    ss_pure = float(np.sum(w * (fit.y - means[index]) ** 2))
-    ss_res = weighted_ss(fit)
-    weighted = bool(np.ptp(w) > 0)
+    column = (n, 1)
+    # The sums of batch_lack_of_fit for a batch of this one curve (the same code).
+    sums = level_sums(fit.x.reshape(column), fit.y.reshape(column), fit.weights.reshape(column),
+                      fit.residuals.reshape(column), np.ones(column, dtype=bool))
+    m = int(sums.levels[0])
+    ss_pure = float(sums.pure[0])
     reason = None
-    if n == m:
-        reason = "no concentration level has replicates, so there is no pure error to test against"
-    elif m <= p:
-        reason = (f"{m} concentration level{'s' if m != 1 else ''} for {p} fitted parameters; "
-                  "lack of fit needs more levels than parameters")
-    elif _negligible(ss_pure, fit):
-        reason = ("the replicates agree exactly at every level, so there is no pure error to "
-                  "test against")
-    return LackOfFit(ss_res - ss_pure, m - p, ss_pure, n - m, m, weighted, reason)
+    if n == m or m <= p or sums.negligible_pure()[0]:
+        reason = lack_of_fit_reason(None, n, m, p)
+    return LackOfFit(float(sums.residual[0]) - ss_pure, m - p, ss_pure, n - m, m,
+                     bool(sums.weighted[0]), reason)
 
 
 def _alpha(alpha: float) -> float:

@@ -26,6 +26,7 @@ from calib.fit.batch import BatchFit
 from calib.fit.batch_block import BLOCK_VALUES
 from calib.fit.diagnostics_core import (
     case_figures,
+    check_alpha,
     influence_reason,
     lack_of_fit_reason,
     level_sums,
@@ -34,12 +35,6 @@ from calib.fit.linearity import LackOfFit
 from calib.fit.outliers import Influence
 
 __all__ = ["BatchInfluence", "BatchLackOfFit", "batch_influence", "batch_lack_of_fit"]
-
-def _alpha(alpha: float) -> float:
-    if isinstance(alpha, bool) or not (isinstance(alpha, (int, float)) and 0 < alpha < 1):
-        raise ValueError(f"alpha must be a number between 0 and 1; got {alpha!r}")
-    return float(alpha)
-
 
 def _index(k: int, K: int) -> int:
     if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or not -K <= k < K:
@@ -95,7 +90,7 @@ class BatchInfluence:
 
     def bonferroni_critical(self, alpha: float = 0.05) -> np.ndarray:
         """t(1 − α/(2N), ν − 1) per curve: the critical value for the largest of N residuals."""
-        q = _alpha(alpha) / (2 * np.maximum(self.n_points, 1))
+        q = check_alpha(alpha) / (2 * np.maximum(self.n_points, 1))
         with np.errstate(invalid="ignore"):
             return np.where(self._judged, stats.t.isf(q, self.residual_df - 1), np.nan)
 
@@ -180,12 +175,12 @@ class BatchLackOfFit:
         """F(1 − α; ν_lof, ν_pure) per curve."""
         with np.errstate(invalid="ignore"):
             return np.where(np.isnan(self.f_value), np.nan,
-                            stats.f.isf(_alpha(alpha), self.df_lack, self.df_pure))
+                            stats.f.isf(check_alpha(alpha), self.df_lack, self.df_pure))
 
     def significant(self, alpha: float = 0.05) -> np.ndarray:
         """True where p < α: the curve does not describe the level means."""
         with np.errstate(invalid="ignore"):
-            return self.p_value < _alpha(alpha)
+            return self.p_value < check_alpha(alpha)
 
     def curve(self, k: int) -> LackOfFit:
         """Curve ``k``'s test as a :class:`~calib.fit.linearity.LackOfFit`.

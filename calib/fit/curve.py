@@ -32,7 +32,8 @@ if TYPE_CHECKING:
 
 __all__ = [
     "CoefficientRow", "CoefficientTest", "CurveFit", "fit_curve", "once_per_fit",
-    "residuals_negligible", "response_sums", "stacked_curve", "weighted_ss",
+    "residuals_negligible", "response_sums", "scatter_negligible", "stacked_curve",
+    "weighted_ss",
 ]
 
 _T = TypeVar("_T")
@@ -568,3 +569,15 @@ def residuals_negligible(ss: float, fit: CurveFit) -> bool:
     """
     spread, uncentred = response_sums(fit)
     return ss <= max(ROUNDING * spread, ROUNDING_UNCENTRED * uncentred)
+
+
+def scatter_negligible(ss: float, fit: CurveFit) -> bool:
+    """Whether a weighted sum of squares ``ss`` on ``fit``'s points (of a test's residuals,
+    of the replicates about their level means) is rounding noise, not scatter.
+
+    At most 1e-20 of the weighted spread of y (of its uncentred sum of squares when the
+    responses do not vary), or :func:`residuals_negligible`.  No test on such a sum means
+    anything: the curve (or the comparison model) passes through the points.
+    """
+    spread, uncentred = response_sums(fit)
+    return ss <= ROUNDING * (spread if spread > 0 else uncentred) or residuals_negligible(ss, fit)

@@ -23,7 +23,8 @@ from calib.options import Model
 
 __all__ = [
     "FIXED", "ROUNDING", "ROUNDING_UNCENTRED", "CaseFigures", "LevelSums", "Sums",
-    "case_figures", "influence_reason", "lack_of_fit_reason", "level_sums", "weighted_sums",
+    "case_figures", "check_alpha", "influence_reason", "lack_of_fit_reason", "level_sums",
+    "weighted_sums",
 ]
 
 #: A sum of squares at most this fraction of the weighted spread of y is rounding, not
@@ -33,6 +34,19 @@ ROUNDING = 1e-20
 ROUNDING_UNCENTRED = 1e-24
 #: 1 − hᵢᵢ at or below this: the point fixes the curve and has no residual to judge.
 FIXED = 1e-10
+
+
+def check_alpha(alpha: float) -> float:
+    """``alpha`` as a float, or ValueError unless it is a number strictly between 0 and 1.
+
+    Examples
+    --------
+    >>> check_alpha(0.05)
+    0.05
+    """
+    if isinstance(alpha, bool) or not (isinstance(alpha, (int, float)) and 0 < alpha < 1):
+        raise ValueError(f"alpha must be a number between 0 and 1; got {alpha!r}")
+    return float(alpha)
 
 
 @dataclass(frozen=True, eq=False)

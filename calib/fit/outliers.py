@@ -16,16 +16,10 @@ import numpy as np
 from calib.fit.batch_wls import solve_wls_columns
 from calib.fit.curve import CurveFit
 from calib.fit.design import design_matrix
-from calib.fit.diagnostics_core import case_figures, influence_reason
+from calib.fit.diagnostics_core import case_figures, check_alpha, influence_reason
 from calib.fit.distributions import f_ppf, t_isf
 
 __all__ = ["GrubbsResult", "Influence", "grubbs", "grubbs_critical", "influence"]
-
-def _alpha(alpha: float) -> float:
-    if isinstance(alpha, bool) or not (isinstance(alpha, (int, float)) and 0 < alpha < 1):
-        raise ValueError(f"alpha must be a number between 0 and 1; got {alpha!r}")
-    return float(alpha)
-
 
 @dataclass(frozen=True, eq=False)
 class Influence:
@@ -76,7 +70,7 @@ class Influence:
         >>> bool(abs(crit - float(stats.t.ppf(1 - 0.05 / 16, 5))) < 1e-12)
         True
         """
-        return t_isf(_alpha(alpha) / (2 * self.n_points), self.residual_df - 1)
+        return t_isf(check_alpha(alpha) / (2 * self.n_points), self.residual_df - 1)
 
     def suggested(self, alpha: float = 0.05) -> np.ndarray:
         """Indices whose |studentized residual| exceeds :meth:`bonferroni_critical`."""
@@ -202,7 +196,7 @@ def grubbs_critical(n: int, alpha: float = 0.05) -> float:
     """
     if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 3:
         raise ValueError(f"Grubbs' test needs a whole number of at least 3 values; got {n!r}")
-    return _grubbs_critical(int(n), _alpha(alpha))
+    return _grubbs_critical(int(n), check_alpha(alpha))
 
 
 @functools.lru_cache(maxsize=512)

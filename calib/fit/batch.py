@@ -2,9 +2,11 @@
 
 A multi-analyte run has hundreds of curves of the same model.  :func:`fit_batch`
 fits them together on (K, n) arrays, one row per curve, padded to a common
-length with a boolean mask of the points used, and gives the same numbers as
-fitting each curve with :func:`~calib.fit.curve.fit_curve` (to about 1e-12
-relative; ``tests/fit/test_batch.py`` holds the comparison).  ``BatchFit.curve(k)``
+length with a boolean mask of the points used.  :func:`~calib.fit.curve.fit_curve`
+is a batch of one through the same engine (:func:`calib.fit.batch_block.fit_stack`),
+whose arithmetic on a curve does not depend on the others: curve k of a batch and
+the same curve fitted alone are the same doubles (``tests/fit/test_batch_diagnostics.py``,
+``tests/checks/test_alone_or_in_batch.py``).  ``BatchFit.curve(k)``
 turns row k back into an ordinary :class:`~calib.fit.curve.CurveFit`, so everything
 downstream consumes batch results unchanged.  The case diagnostics of the whole
 batch (leverage, studentized residuals, Cook's distance, lack of fit) are in

@@ -39,6 +39,11 @@ __all__ = ["BatchWlsSolution", "Factor", "factor", "point_sum", "residuals_exact
 
 _EPS = np.finfo(float).eps
 
+#: Up to this many curves (values per point) :func:`point_sum` takes a running sum; a
+#: running sum along the points visits each curve's column separately, which beyond a few
+#: dozen curves is slower than adding whole rows.
+_RUNNING_SUM_LIMIT = 32
+
 #: 2²⁷ + 1: Veltkamp's constant, splitting a double into two halves of at most 26 bits
 #: whose products with the halves of another double are exact.
 _SPLIT = 134217729.0
@@ -47,9 +52,13 @@ _SPLIT = 134217729.0
 def point_sum(a: np.ndarray, axis: int = 0) -> np.ndarray:
     """Σ along the points axis ``axis``, each curve's terms added one after another in order.
 
-    A running sum (``np.add.accumulate``) adds in order by definition, one curve or a
-    thousand; its last entry is the sum.  Zeros in the sum (padding, unused rows)
-    change nothing, so a curve's sum is the same at any padded length.
+    Strictly left to right, whatever the number of curves and the memory layout: a few
+    curves by a running sum (``np.add.accumulate``, in order by definition), many by adding
+    the points' rows one at a time (each an elementwise addition over the curves).  Both
+    are the same additions in the same order, so the same doubles.  Zeros in the sum
+    (padding, unused rows) change nothing, so a curve's sum is the same at any padded
+    length.  ``np.sum`` is not: it adds a single column pairwise, many columns row by row
+    or pairwise depending on the layout.
 
     Examples
     --------
@@ -57,11 +66,17 @@ def point_sum(a: np.ndarray, axis: int = 0) -> np.ndarray:
     >>> point_sum(a).tolist()   # (1e16 + 1) − 1e16 in that order: the 1 is rounded away
     [0.0, 7.0]
     """
+    axis %= a.ndim
     n = a.shape[axis]
     if n == 0:
         return np.zeros(a.shape[:axis] + a.shape[axis + 1:])
-    last = (slice(None),) * (axis % a.ndim) + (-1,)
-    return np.add.accumulate(a, axis=axis)[last]
+    if a.size <= _RUNNING_SUM_LIMIT * n:
+        return np.add.accumulate(a, axis=axis)[(slice(None),) * axis + (-1,)]
+    rows = np.moveaxis(a, axis, 0)
+    total = rows[0].copy()
+    for row in rows[1:]:
+        total += row
+    return total
 
 
 @dataclass(frozen=True, eq=False)

@@ -315,37 +315,38 @@ def factor(
 
     Curves ``active`` whose design has a column of zeros (or non-finite values), or
     is singular, get their reason in ``problems`` and are not ``solved``.  The
-    entries are handled one by one as (K,) arrays: with p ≤ 3 that beats reducing
-    over the tiny trailing axes.
+    inverse factor is formed entry by entry as (K,) arrays: with p ≤ 3 that beats
+    reducing over the tiny trailing axes.
     """
     K, p, _ = R.shape
     active = active.copy()
-    r = {(i, j): np.ascontiguousarray(R[:, i, j]) for j in range(p) for i in range(j + 1)}
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        # ‖column j‖ = ‖column j of R‖; with the columns scaled to unit length the
-        # test is solve_wls's.
-        norms = [np.sqrt(sum(r[i, j] * r[i, j] for i in range(j + 1))) for j in range(p)]
-        bad_norm = np.zeros(K, dtype=bool)
+        # ‖column j‖ = ‖column j of R‖ (R is 0 below its diagonal); with the columns
+        # scaled to unit length the test is solve_wls's.
+        squares = R * R
+        norms = squares[:, 0, :]
+        for i in range(1, p):
+            norms = norms + squares[:, i, :]
+        norms = np.sqrt(norms)  # (K, p)
+        pivots = np.diagonal(R, axis1=1, axis2=2)  # (K, p)
         # After a pivot of 0 (a column that depends on the earlier ones) the later entries
         # of R are 0/0: the design is singular, which the rank test below reports.
-        pivots_ok = np.ones(K, dtype=bool)
-        for j, norm in enumerate(norms):
-            bad_norm |= pivots_ok & (~(norm > 0) | ~np.isfinite(norm))
-            pivots_ok &= np.isfinite(r[j, j]) & (r[j, j] != 0)
-        bad_norm &= active
+        pivots_ok = np.ones((K, p), dtype=bool)
+        pivots_ok[:, 1:] = np.logical_and.accumulate(np.isfinite(pivots) & (pivots != 0),
+                                                     axis=1)[:, :-1]
+        bad_norm = (pivots_ok & (~(norms > 0) | ~np.isfinite(norms))).any(axis=1) & active
         for k in np.flatnonzero(bad_norm):
             problems[k] = "the design matrix has a column of zeros or non-finite values"
         active &= ~bad_norm
-        diag = [np.abs(r[j, j]) / norms[j] for j in range(p)]
-        tol = diag[0]
-        for d in diag[1:]:
-            tol = np.fmax(tol, d)  # a 0/0 entry (nan) counts as a zero pivot
-        tol = tol * np.maximum(n_used, 1) * _EPS
-        rank = sum((d > tol).astype(int) for d in diag)
+        diag = np.abs(pivots) / norms
+        # A 0/0 entry (nan) counts as a zero pivot: fmax passes over it.
+        tol = np.fmax.reduce(diag, axis=1) * np.maximum(n_used, 1) * _EPS
+        rank = np.count_nonzero(diag > tol[:, None], axis=1)
         singular = active & (rank < p)
         for k in np.flatnonzero(singular):
             problems[k] = f"the design is singular (rank {rank[k]} < {p} parameters)"
         active &= ~singular
+        r = {(i, j): R[:, i, j] for j in range(p) for i in range(j + 1)}
         # L = R⁻¹ column by column (back substitution on the unit vectors), then L Lᵀ.
         inv: dict[tuple[int, int], np.ndarray] = {}
         for j in range(p):

@@ -429,6 +429,10 @@ def fit_curve(
     R² = 1 − Σwr²/Σw(y − ȳ_w)², and 1 − Σwr²/Σwy² (uncentred) for ``origin``
     and ``mean-rf``.
 
+    The fit is a batch of one through the engine of :func:`calib.fit.batch.fit_batch`
+    (:func:`calib.fit.batch_block.fit_stack`): the same curve in any batch gives the same
+    doubles, so the same record.
+
     ``mean-rf``: RF̄ = Σ(yᵢ/xᵢ)/n minimises Σ (yᵢ − RF·xᵢ)²/xᵢ², so it is
     fitted as y = RF·x with weights 1/xᵢ²; then SE(RF̄) = s(RF)/√n and t has
     n − 1 degrees of freedom, the figures of US EPA SW-846 Method 8000D

@@ -346,21 +346,19 @@ def factor(
         for k in np.flatnonzero(singular):
             problems[k] = f"the design is singular (rank {rank[k]} < {p} parameters)"
         active &= ~singular
-        r = {(i, j): R[:, i, j] for j in range(p) for i in range(j + 1)}
-        # L = R⁻¹ column by column (back substitution on the unit vectors), then L Lᵀ.
-        inv: dict[tuple[int, int], np.ndarray] = {}
-        for j in range(p):
-            inv[j, j] = 1.0 / r[j, j]
-            for i in range(j - 1, -1, -1):
-                inv[i, j] = -sum(r[i, l] * inv[l, j] for l in range(i + 1, j + 1)) / r[i, i]
+        # L = R⁻¹ row by row from the last (back substitution on every unit vector at
+        # once), then L Lᵀ; each entry's terms are added in the order of their index.
         root = np.zeros((K, p, p))
-        unscaled = np.empty((K, p, p))
-        for j in range(p):
-            for i in range(j + 1):
-                root[:, i, j] = inv[i, j]
-                # (L Lᵀ)ᵢⱼ = Σₗ Lᵢₗ Lⱼₗ over l ≥ j (L upper triangular).
-                unscaled[:, i, j] = unscaled[:, j, i] = sum(inv[i, l] * inv[j, l]
-                                                            for l in range(j, p))
+        for i in range(p - 1, -1, -1):
+            row = np.zeros((K, p - i))  # columns i… of row i (L is 0 below its diagonal)
+            row[:, 0] = 1.0
+            for l in range(i + 1, p):
+                row = row - R[:, i, l, None] * root[:, l, i:]
+            root[:, i, i:] = row / R[:, i, i, None]
+        unscaled = root[:, :, 0, None] * root[:, None, :, 0]
+        for l in range(1, p):
+            # (L Lᵀ)ᵢⱼ = Σₗ Lᵢₗ Lⱼₗ.
+            unscaled = unscaled + root[:, :, l, None] * root[:, None, :, l]
     off = ~active
     if off.any():
         root[off] = np.nan

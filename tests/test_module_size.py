@@ -10,9 +10,6 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parent.parent / "calib"
 LIMIT = 600
 
-#: Over the limit when this test was written, each being split elsewhere (issue 18: the fit
-#: engine's work splits linearity.py); the list only shrinks.
-KNOWN_LONG = {"calib/fit/linearity.py"}
 
 
 def lengths(root: Path = ROOT) -> dict[str, int]:
@@ -31,7 +28,5 @@ def test_counting_lines(tmp_path: Path) -> None:
 
 def test_no_module_over_600_lines() -> None:
     long = {name: n for name, n in lengths().items() if n > LIMIT}
-    new = sorted(f"{name}: {n} lines" for name, n in long.items() if name not in KNOWN_LONG)
-    assert not new, f"modules over {LIMIT} lines (split them by topic):\n" + "\n".join(new)
-    gone = sorted(KNOWN_LONG - set(long))
-    assert not gone, f"no longer over {LIMIT} lines (remove from KNOWN_LONG): {gone}"
+    over = sorted(f"{name}: {n} lines" for name, n in long.items())
+    assert not over, f"modules over {LIMIT} lines (split them by topic):\n" + "\n".join(over)

@@ -3,7 +3,8 @@
 One curve: :func:`fit_curve` → :class:`CurveFit`; many at once: :func:`fit_batch`.
 Diagnostics take a fit and return named result objects: linearity
 (:func:`lack_of_fit`, :func:`mandel_test`, :func:`quadratic_term`,
-:func:`residual_runs`, :func:`residual_drift`), variance (:func:`variance_ends`,
+:func:`residual_runs`, :func:`residual_drift`; the last two in
+``residual_patterns``), variance (:func:`variance_ends`,
 :func:`variance_levels`, :func:`recommend_weighting`), outliers
 (:func:`influence`, :func:`grubbs`), limits (:func:`detection_limits`,
 :func:`ich_limits`, :func:`iso11843_limits`, :func:`method_sd`), bands
@@ -35,18 +36,15 @@ if TYPE_CHECKING:
         method_sd,
     )
     from calib.fit.linearity import (
-        DriftTest,
         LackOfFit,
         MandelTest,
         QuadraticTerm,
-        RunsTest,
         lack_of_fit,
         mandel_test,
         quadratic_term,
-        residual_drift,
-        residual_runs,
     )
     from calib.fit.outliers import GrubbsResult, Influence, grubbs, influence
+    from calib.fit.residual_patterns import DriftTest, RunsTest, residual_drift, residual_runs
     from calib.fit.response_factor import ResponseFactors, response_factors
     from calib.fit.variance import (
         LevelVarianceTest,
@@ -63,7 +61,7 @@ _EXPORTS = {
     "CurveComparison": "calib.fit.compare",
     "CurveFit": "calib.fit.curve",
     "DetectionLimit": "calib.fit.limits",
-    "DriftTest": "calib.fit.linearity",
+    "DriftTest": "calib.fit.residual_patterns",
     "GrubbsResult": "calib.fit.outliers",
     "Influence": "calib.fit.outliers",
     "Iso11843Limits": "calib.fit.limits",
@@ -73,7 +71,7 @@ _EXPORTS = {
     "MethodSd": "calib.fit.limits",
     "QuadraticTerm": "calib.fit.linearity",
     "ResponseFactors": "calib.fit.response_factor",
-    "RunsTest": "calib.fit.linearity",
+    "RunsTest": "calib.fit.residual_patterns",
     "VarianceEndsTest": "calib.fit.variance",
     "WeightingAdvice": "calib.fit.variance",
     "compare_curves": "calib.fit.compare",
@@ -91,8 +89,8 @@ _EXPORTS = {
     "prediction_band": "calib.fit.bands",
     "quadratic_term": "calib.fit.linearity",
     "recommend_weighting": "calib.fit.variance",
-    "residual_drift": "calib.fit.linearity",
-    "residual_runs": "calib.fit.linearity",
+    "residual_drift": "calib.fit.residual_patterns",
+    "residual_runs": "calib.fit.residual_patterns",
     "response_factors": "calib.fit.response_factor",
     "variance_ends": "calib.fit.variance",
     "variance_levels": "calib.fit.variance",

@@ -2,9 +2,11 @@
 
 A multi-analyte run has hundreds of curves of the same model.  :func:`fit_batch`
 fits them together on (K, n) arrays, one row per curve, padded to a common
-length with a boolean mask of the points used, and gives the same numbers as
-fitting each curve with :func:`~calib.fit.curve.fit_curve` (to about 1e-12
-relative; ``tests/fit/test_batch.py`` holds the comparison).  ``BatchFit.curve(k)``
+length with a boolean mask of the points used.  :func:`~calib.fit.curve.fit_curve`
+is a batch of one through the same engine (:func:`calib.fit.batch_block.fit_stack`),
+whose arithmetic on a curve does not depend on the others: curve k of a batch and
+the same curve fitted alone are the same doubles (``tests/fit/test_batch_diagnostics.py``,
+``tests/checks/test_alone_or_in_batch.py``).  ``BatchFit.curve(k)``
 turns row k back into an ordinary :class:`~calib.fit.curve.CurveFit`, so everything
 downstream consumes batch results unchanged.  The case diagnostics of the whole
 batch (leverage, studentized residuals, Cook's distance, lack of fit) are in
@@ -18,9 +20,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import special
 
-from calib.fit.batch_block import BLOCK_VALUES, Stack, fit_block
-from calib.fit.batch_wls import factor
-from calib.fit.curve import CurveFit
+from calib.fit.batch_block import StackFit, fit_stack
+from calib.fit.curve import CurveFit, stacked_curve
 from calib.fit.design import COEFFICIENTS, weight_basis
 from calib.fit.inverse import quadratic_root
 from calib.options import Model, Weighting, check_confidence, parse_option
@@ -300,22 +301,22 @@ class BatchFit:
         problem = self.problems[k]
         if problem is not None:
             raise ValueError(f"curve {k} has no fit: {problem}")
-        used = self.mask[k]
-        return CurveFit(
-            model=self.model,
-            weighting=self.weighting,
-            confidence=self.confidence,
-            x=self.x[k, used].copy(),
-            y=self.y[k, used].copy(),
-            weights=self.weights[k, used].copy(),
-            coefficients={n: float(b) for n, b in zip(self.names, self.coefficients[k])},
-            covariance=self.covariance[k].copy(),
-            residual_df=int(self.residual_df[k]),
-            residual_sd=float(self.residual_sd[k]),
-            fitted=self.y[k, used] - self.residuals[k, used],
-            residuals=self.residuals[k, used].copy(),
-            r_squared=float(self.r_squared[k]),
-        )
+        return stacked_curve(self._stack(), k % self.n_curves, x=self.x[k], y=self.y[k],
+                             used=self.mask[k], model=self.model, weighting=self.weighting,
+                             confidence=self.confidence)
+
+    def _stack(self) -> StackFit:
+        """The batch's figures in the engine's layout (points × curves), for :meth:`curve`."""
+        if "stack" not in self._cache:
+            root = self.covariance_root
+            if root is None:
+                root = np.full(self.covariance.shape, np.nan)
+            self._cache["stack"] = StackFit(
+                weights=self.weights.T, residuals=self.residuals.T,
+                coefficients=self.coefficients, covariance=self.covariance, root=root,
+                residual_df=self.residual_df, residual_sd=self.residual_sd,
+                r_squared=self.r_squared, problems=self.problems)
+        return self._cache["stack"]
 
     def _index(self, name: str) -> int:
         try:
@@ -509,29 +510,8 @@ def fit_batch(
         if given.shape != xs.shape:
             raise ValueError(f"weights must have the shape of x, {xs.shape}; got {given.shape}")
         given = given.T
-    p = len(COEFFICIENTS[model])
-
-    stack = Stack(K, p, weights=points[2], residuals=points[3])
-    # The quadratic's two design columns travel as one (2, n, B) array: half the curves.
-    step = max(1, BLOCK_VALUES // (max(n, 1) * (2 if model is Model.QUADRATIC else 1)))
-    for start in range(0, K, step):
-        at = slice(start, start + step)
-        fit_block(X[:, at], Y[:, at], U[:, at], None if given is None else given[:, at],
-                  model=model, basis=basis, out=stack, at=at)
-
-    # What takes one number per curve, once for the whole batch.
-    fitted_rows = stack.ok.copy()
-    fac = factor(stack.R, stack.n_used, stack.ok, stack.problems)
-    ok = fac.solved
-    lost = fitted_rows & ~ok
-    if lost.any():
-        stack.residuals[:, lost] = np.nan
-    with np.errstate(invalid="ignore", divide="ignore"):
-        nu = np.where(ok, stack.n_used - p, np.nan)
-        sigma2 = np.where(ok, stack.weighted_ss, np.nan) / nu
-        r_squared = np.where(ok & (stack.total_ss > 0),
-                             1.0 - stack.weighted_ss / stack.total_ss, np.nan)
-    residuals = stack.residuals
+    fitted = fit_stack(X, Y, U, given, model=model, basis=basis, weights_out=points[2],
+                       residuals_out=points[3])
     result = BatchFit(
         model=model,
         weighting=weighting,
@@ -539,19 +519,19 @@ def fit_batch(
         x=X.T,
         y=Y.T,
         mask=U.T,
-        weights=stack.weights.T,
-        coefficients=np.where(ok[:, None], stack.beta, np.nan),
-        covariance=sigma2[:, None, None] * fac.unscaled_covariance,
-        residual_df=nu,
-        residual_sd=np.sqrt(sigma2),
-        r_squared=r_squared,
-        residuals=residuals.T,
-        problems=tuple(stack.problems),
-        covariance_root=fac.root,
+        weights=fitted.weights.T,
+        coefficients=fitted.coefficients,
+        covariance=fitted.covariance,
+        residual_df=fitted.residual_df,
+        residual_sd=fitted.residual_sd,
+        r_squared=fitted.r_squared,
+        residuals=fitted.residuals.T,
+        problems=fitted.problems,
+        covariance_root=fitted.root,
     )
     _readonly(result.x, result.y, result.mask, result.weights, result.residuals,
-              result.coefficients, result.covariance, fac.root, nu, result.residual_sd,
-              r_squared)
+              result.coefficients, result.covariance, fitted.root, result.residual_df,
+              result.residual_sd, result.r_squared)
     return result
 
 

@@ -1,4 +1,9 @@
-"""One block of curves, from the padded inputs to the least-squares solution.
+"""The fitting engine: curves laid out points × curves, fitted block by block.
+
+:func:`fit_stack` is what every calibration fit goes through: a batch of many
+(:func:`calib.fit.batch.fit_batch`) and a single curve
+(:func:`calib.fit.curve.fit_curve`, a stack of one) alike, so a curve's figures are
+the same whatever else is fitted beside it.
 
 :func:`calib.fit.batch.fit_batch` cuts a batch into blocks of curves small enough
 that every working array of a block stays in the processor's cache (tens of
@@ -14,13 +19,15 @@ fit_batch, once for the whole batch.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
-from calib.fit.batch_wls import solve_block
+from calib.fit.batch_wls import factor, point_sum, solve_block
 from calib.fit.design import COEFFICIENTS, raw_weights
 from calib.options import Model, Weighting
 
-__all__ = ["BLOCK_VALUES", "Stack", "fit_block"]
+__all__ = ["BLOCK_VALUES", "Stack", "StackFit", "fit_block", "fit_stack"]
 
 #: Values per working array of a block (8 bytes each): curves per block = this / points
 #: (half that for the quadratic, whose two design columns travel together).  96 KiB keeps
@@ -54,6 +61,85 @@ class Stack:
         self.total_ss = np.empty(K)
         self.weights = weights
         self.residuals = residuals
+
+
+@dataclass(frozen=True, eq=False)
+class StackFit:
+    """The engine's figures of K curves (see :func:`fit_stack`).
+
+    ``weights`` and ``residuals`` are points × curves (n, K), ``nan`` off each curve's
+    fit; ``coefficients`` (K, p), ``covariance`` σ̂²·(XᵀWX)⁻¹ and ``root`` L with
+    (XᵀWX)⁻¹ = L Lᵀ (K, p, p), ``residual_df``, ``residual_sd`` and ``r_squared`` (K,),
+    all ``nan`` on a curve with a reason in ``problems``.
+    """
+
+    weights: np.ndarray
+    residuals: np.ndarray
+    coefficients: np.ndarray
+    covariance: np.ndarray
+    root: np.ndarray
+    residual_df: np.ndarray
+    residual_sd: np.ndarray
+    r_squared: np.ndarray
+    problems: tuple[str | None, ...]
+
+
+def fit_stack(
+    X: np.ndarray,
+    Y: np.ndarray,
+    U: np.ndarray,
+    given: np.ndarray | None,
+    *,
+    model: Model,
+    basis: Weighting,
+    weights_out: np.ndarray,
+    residuals_out: np.ndarray,
+) -> StackFit:
+    """Fit K curves of one model, arrays points × curves (n, K); nothing loops over curves.
+
+    ``X``, ``Y`` the concentrations and responses, ``U`` True where a point is used,
+    ``given`` precomputed weights or None to form those of ``basis``.  The weights and
+    residuals are written to ``weights_out`` and ``residuals_out`` (n, K).
+
+    Notes
+    -----
+    σ̂² = Σ wᵢ rᵢ² / ν with ν = N − p, covariance σ̂²·(XᵀWX)⁻¹, R² = 1 − Σwr²/Σw(y − ȳ_w)²
+    (uncentred for the models without intercept).  The blocks only bound the size of the
+    working arrays: every figure of a curve is computed from its own column alone, in
+    the same order whatever the block (module notes of :mod:`calib.fit.batch_wls`).
+    """
+    n, K = X.shape
+    p = len(COEFFICIENTS[model])
+    stack = Stack(K, p, weights=weights_out, residuals=residuals_out)
+    # The quadratic's two design columns travel as one (2, n, B) array: half the curves.
+    step = max(1, BLOCK_VALUES // (max(n, 1) * (2 if model is Model.QUADRATIC else 1)))
+    for start in range(0, K, step):
+        at = slice(start, start + step)
+        fit_block(X[:, at], Y[:, at], U[:, at], None if given is None else given[:, at],
+                  model=model, basis=basis, out=stack, at=at)
+    # What takes one number per curve, once for the whole stack.
+    fitted_rows = stack.ok.copy()
+    fac = factor(stack.R, stack.n_used, stack.ok, stack.problems)
+    ok = fac.solved
+    lost = fitted_rows & ~ok
+    if lost.any():
+        stack.residuals[:, lost] = np.nan
+    with np.errstate(invalid="ignore", divide="ignore"):
+        nu = np.where(ok, stack.n_used - p, np.nan)
+        sigma2 = np.where(ok, stack.weighted_ss, np.nan) / nu
+        r_squared = np.where(ok & (stack.total_ss > 0),
+                             1.0 - stack.weighted_ss / stack.total_ss, np.nan)
+    return StackFit(
+        weights=stack.weights,
+        residuals=stack.residuals,
+        coefficients=np.where(ok[:, None], stack.beta, np.nan),
+        covariance=sigma2[:, None, None] * fac.unscaled_covariance,
+        root=fac.root,
+        residual_df=nu,
+        residual_sd=np.sqrt(sigma2),
+        r_squared=r_squared,
+        problems=tuple(stack.problems),
+    )
 
 
 class _Problems:
@@ -131,8 +217,8 @@ def fit_block(
     out.weighted_ss[at] = sol.weighted_ss
     # The total sum of squares of R²: about the weighted mean, or uncentred for the models
     # without intercept, as in fit_curve.
-    out.total_ss[at] = sol.centred_ss if sol.centred_ss is not None else np.einsum(
-        "ij,ij->j", w * Y0, Y0)
+    out.total_ss[at] = sol.centred_ss if sol.centred_ss is not None else point_sum(
+        (w * Y0) * Y0)
 
 
 def _weights_from(X0: np.ndarray, Y0: np.ndarray, rows: np.ndarray, n_used: np.ndarray,
@@ -172,7 +258,7 @@ def _weights_from(X0: np.ndarray, Y0: np.ndarray, rows: np.ndarray, n_used: np.n
     count = np.where(problems.ok, n_used, 0)
     with np.errstate(invalid="ignore", divide="ignore"):
         # A curve without any point has a mean of 0/0: its weights stay 0.
-        mean = np.where(count > 0, np.sum(raw, axis=0) / count, 1.0)
+        mean = np.where(count > 0, point_sum(raw) / count, 1.0)
     w = raw / mean
     out[...] = np.where(rows, w, np.nan)
     return w
@@ -189,7 +275,7 @@ def _given_weights(w: np.ndarray, used: np.ndarray, rows: np.ndarray, problems: 
     raw = np.where(ok, w, 0.0)
     count = np.count_nonzero(ok, axis=0)
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.where(count > 0, np.sum(raw, axis=0) / count, 1.0)
+        mean = np.where(count > 0, point_sum(raw) / count, 1.0)
     scaled = raw / mean
     out[...] = np.where(ok, scaled, np.nan)
     return np.where(rows & problems.ok, scaled, 0.0)

@@ -8,6 +8,10 @@ with its mask and weights, with the same definitions, thresholds and reasons as 
 per-curve functions (``tests/fit/test_batch_diagnostics.py`` compares them to
 1e-10).  ``curve(k)`` on either result gives the per-curve object, so the rules
 that judge one curve can take their figures from the batch.
+
+The numbers come from :mod:`calib.fit.diagnostics_core`, which the per-curve functions
+call on a block of one curve: ``batch_influence(batch).curve(k)`` and
+``influence(batch.curve(k))`` are the same figures, bit for bit.
 """
 
 from __future__ import annotations
@@ -20,25 +24,17 @@ from scipy import special, stats
 
 from calib.fit.batch import BatchFit
 from calib.fit.batch_block import BLOCK_VALUES
+from calib.fit.diagnostics_core import (
+    case_figures,
+    check_alpha,
+    influence_reason,
+    lack_of_fit_reason,
+    level_sums,
+)
 from calib.fit.linearity import LackOfFit
 from calib.fit.outliers import Influence
-from calib.options import Model
 
 __all__ = ["BatchInfluence", "BatchLackOfFit", "batch_influence", "batch_lack_of_fit"]
-
-# The thresholds of calib.fit.outliers and calib.fit.linearity: a sum of squares this
-# small next to the weighted spread of y is rounding, not scatter.
-_ROUNDING = 1e-20
-_ROUNDING_UNCENTRED = 1e-24
-#: 1 − hᵢᵢ at or below this: the point fixes the curve and has no residual to judge.
-_FIXED = 1e-10
-
-
-def _alpha(alpha: float) -> float:
-    if isinstance(alpha, bool) or not (isinstance(alpha, (int, float)) and 0 < alpha < 1):
-        raise ValueError(f"alpha must be a number between 0 and 1; got {alpha!r}")
-    return float(alpha)
-
 
 def _index(k: int, K: int) -> int:
     if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or not -K <= k < K:
@@ -94,7 +90,7 @@ class BatchInfluence:
 
     def bonferroni_critical(self, alpha: float = 0.05) -> np.ndarray:
         """t(1 − α/(2N), ν − 1) per curve: the critical value for the largest of N residuals."""
-        q = _alpha(alpha) / (2 * np.maximum(self.n_points, 1))
+        q = check_alpha(alpha) / (2 * np.maximum(self.n_points, 1))
         with np.errstate(invalid="ignore"):
             return np.where(self._judged, stats.t.isf(q, self.residual_df - 1), np.nan)
 
@@ -179,12 +175,12 @@ class BatchLackOfFit:
         """F(1 − α; ν_lof, ν_pure) per curve."""
         with np.errstate(invalid="ignore"):
             return np.where(np.isnan(self.f_value), np.nan,
-                            stats.f.isf(_alpha(alpha), self.df_lack, self.df_pure))
+                            stats.f.isf(check_alpha(alpha), self.df_lack, self.df_pure))
 
     def significant(self, alpha: float = 0.05) -> np.ndarray:
         """True where p < α: the curve does not describe the level means."""
         with np.errstate(invalid="ignore"):
-            return self.p_value < _alpha(alpha)
+            return self.p_value < check_alpha(alpha)
 
     def curve(self, k: int) -> LackOfFit:
         """Curve ``k``'s test as a :class:`~calib.fit.linearity.LackOfFit`.
@@ -202,10 +198,6 @@ class BatchLackOfFit:
                          self.reasons[k])
 
 
-def _not_fitted(problem: str) -> str:
-    return f"the curve was not fitted: {problem}"
-
-
 def _blocks(fit: BatchFit) -> Iterator[tuple[slice, np.ndarray, np.ndarray, np.ndarray,
                                               np.ndarray, np.ndarray]]:
     """(slice, points × curves views of x, y, weights, residuals, rows) per block of curves.
@@ -219,32 +211,6 @@ def _blocks(fit: BatchFit) -> Iterator[tuple[slice, np.ndarray, np.ndarray, np.n
     for start in range(0, K, step):
         at = slice(start, start + step)
         yield at, X[:, at], Y[:, at], W[:, at], R[:, at], rows_all[:, at]
-
-
-def _sums(Y: np.ndarray, W: np.ndarray, R: np.ndarray, rows: np.ndarray) -> dict:
-    """Per-curve weighted sums shared by both diagnostics, for one block."""
-    w0 = np.where(rows, W, 0.0)
-    y0 = np.where(rows, Y, 0.0)
-    r0 = np.where(rows, R, 0.0)
-    wy = w0 * y0
-    with np.errstate(invalid="ignore", divide="ignore"):
-        ybar = np.sum(wy, axis=0) / np.sum(w0, axis=0)
-        centred = y0 - ybar
-    return {
-        "w0": w0, "y0": y0, "r0": r0,
-        "weighted_ss": _dot(w0 * r0, r0),
-        "spread": _dot(w0 * centred, centred),
-        "uncentred": _dot(wy, y0),
-    }
-
-
-def _dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    return np.einsum("ij,ij->j", a, b)
-
-
-def _negligible_residuals(ss: np.ndarray, sums: dict) -> np.ndarray:
-    """:func:`calib.fit.curve.residuals_negligible` per curve."""
-    return ss <= np.maximum(_ROUNDING * sums["spread"], _ROUNDING_UNCENTRED * sums["uncentred"])
 
 
 def batch_influence(fit: BatchFit) -> BatchInfluence:
@@ -297,67 +263,19 @@ def batch_influence(fit: BatchFit) -> BatchInfluence:
     # One buffer for the five (K, n) results, laid out points × curves like the batch.
     out = np.full((5, n, K), np.nan)
     scatterless = np.zeros(K, dtype=bool)
-    few = ~(nu >= 2)
+    few = np.zeros(K, dtype=bool)
     for at, X, Y, W, R, rows in _blocks(fit):
-        sums = _sums(Y, W, R, rows)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            e = np.sqrt(sums["w0"]) * sums["r0"]
-            ss = _dot(e, e)
-        gone = (ss <= _ROUNDING * sums["spread"]) | _negligible_residuals(sums["weighted_ss"],
-                                                                          sums)
-        scatterless[at] = gone
-        judged = rows & ~(gone | few[at])
-        h = _leverage(X, sums["w0"], root[at], fit.model)
-        b_nu = nu[at]
-        with np.errstate(invalid="ignore", divide="ignore"):
-            one_minus_h = 1.0 - h
-            free = judged & (one_minus_h > _FIXED)
-            sigma2 = ss / b_nu
-            e2 = e * e
-            leverage, weighted, standardized, studentized, cooks = out[:, :, at]
-            np.copyto(leverage, h, where=judged)
-            np.copyto(weighted, e, where=judged)
-            np.copyto(standardized, e / np.sqrt(sigma2 * one_minus_h), where=free)
-            deleted = np.maximum(ss - e2 / one_minus_h, 0.0) / (b_nu - 1)
-            np.copyto(studentized, e / np.sqrt(deleted * one_minus_h), where=free)
-            np.copyto(cooks, e2 * h / (p * sigma2 * one_minus_h * one_minus_h), where=free)
+        block = case_figures(X, Y, W, R, rows, root[at], nu[at], fit.model)
+        out[:, :, at] = block.figures
+        scatterless[at] = block.scatterless
+        few[at] = block.few
     # The reasons in influence's order: no fit, too few degrees of freedom, no scatter.
     reasons: list[str | None] = [None] * K
     for k in np.flatnonzero(~ok | few | scatterless):
-        problem = fit.problems[k]
-        if problem is not None:
-            reasons[k] = _not_fitted(problem)
-        elif few[k]:
-            reasons[k] = (f"studentized residuals need at least 2 residual degrees of "
-                          f"freedom; the fit has {int(nu[k])}")
-        else:
-            reasons[k] = ("the curve passes through every standard, so there is no residual "
-                          "scatter to judge outliers against")
+        reasons[k] = influence_reason(fit.problems[k], bool(few[k]), nu[k])
     out.flags.writeable = False
     return BatchInfluence(*(a.T for a in out), mask=fit.mask, n_params=p,
                           residual_df=nu, reasons=tuple(reasons))
-
-
-def _leverage(X: np.ndarray, w0: np.ndarray, root: np.ndarray, model: Model) -> np.ndarray:
-    """hᵢᵢ = wᵢ‖xᵢᵀL‖², at most 1, points × curves (L the batch's upper factor)."""
-    x0 = np.where(w0 > 0, X, 0.0)
-    if model in (Model.ORIGIN, Model.MEAN_RF):
-        columns = [x0]
-    elif model is Model.LINEAR:
-        columns = [None, x0]
-    else:
-        columns = [None, x0, x0 * x0]
-    total = None
-    with np.errstate(invalid="ignore"):
-        for j in range(len(columns)):
-            # (xᵢᵀL)ⱼ = Σₗ xᵢₗ Lₗⱼ, over l ≤ j as L is upper triangular.
-            u = None
-            for i, column in enumerate(columns[: j + 1]):
-                coef = root[:, i, j]
-                term = coef if column is None else column * coef
-                u = term if u is None else u + term
-            total = u * u if total is None else total + u * u
-        return np.minimum(w0 * total, 1.0)
 
 
 def batch_lack_of_fit(fit: BatchFit) -> BatchLackOfFit:
@@ -404,39 +322,22 @@ def batch_lack_of_fit(fit: BatchFit) -> BatchLackOfFit:
     K = fit.n_curves
     p = len(fit.names)
     ok = fit.fitted_ok
-    names = ("pure", "residual", "spread", "uncentred", "levels", "used", "weighted")
+    names = ("pure", "residual", "levels", "used", "weighted", "negligible")
     per_curve = {name: np.zeros(K) for name in names}
     for at, X, Y, W, R, rows in _blocks(fit):
-        sums = _sums(Y, W, R, rows)
-        block = _pure_error(X, sums["w0"], sums["y0"], rows)
-        block.update(residual=sums["weighted_ss"], spread=sums["spread"],
-                     uncentred=sums["uncentred"])
-        with np.errstate(invalid="ignore"):
-            block["weighted"] = (np.max(np.where(rows, W, -np.inf), axis=0)
-                                 - np.min(np.where(rows, W, np.inf), axis=0)) > 0
+        sums = level_sums(X, Y, W, R, rows)
+        block = {"pure": sums.pure, "residual": sums.residual, "levels": sums.levels,
+                 "used": sums.used, "weighted": sums.weighted,
+                 "negligible": sums.negligible_pure()}
         for name in names:
             per_curve[name][at] = block[name]
     pure, levels, n_used = per_curve["pure"], per_curve["levels"], per_curve["used"]
-    spread, uncentred = per_curve["spread"], per_curve["uncentred"]
-    total = np.where(spread > 0, spread, uncentred)
-    negligible = (pure <= _ROUNDING * total) | (
-        pure <= np.maximum(_ROUNDING * spread, _ROUNDING_UNCENTRED * uncentred))
     # The reasons in lack_of_fit's order: no fit, no replicates, too few levels, no scatter.
     reasons: list[str | None] = [None] * K
-    untested = ~ok | (n_used == levels) | (levels <= p) | negligible
+    untested = ~ok | (n_used == levels) | (levels <= p) | per_curve["negligible"].astype(bool)
     for k in np.flatnonzero(untested):
-        m = int(levels[k])
-        if not ok[k]:
-            reasons[k] = _not_fitted(str(fit.problems[k]))
-        elif n_used[k] == m:
-            reasons[k] = ("no concentration level has replicates, so there is no pure error "
-                          "to test against")
-        elif m <= p:
-            reasons[k] = (f"{m} concentration level{'s' if m != 1 else ''} for {p} fitted "
-                          "parameters; lack of fit needs more levels than parameters")
-        else:
-            reasons[k] = ("the replicates agree exactly at every level, so there is no pure "
-                          "error to test against")
+        reasons[k] = lack_of_fit_reason(fit.problems[k] if not ok[k] else None,
+                                        int(n_used[k]), int(levels[k]), p)
     tested = ~untested
     missing = np.where(ok, 0.0, np.nan)
     df_lack = levels - p + missing
@@ -452,31 +353,3 @@ def batch_lack_of_fit(fit: BatchFit) -> BatchLackOfFit:
     for a in arrays:
         a.flags.writeable = False
     return BatchLackOfFit(*arrays, reasons=tuple(reasons))
-
-
-def _pure_error(X: np.ndarray, w0: np.ndarray, y0: np.ndarray, rows: np.ndarray) -> dict:
-    """Levels, used points and SS_pure of each curve of a block (points × curves)."""
-    # Curves along rows here, so that each curve's sorted points are contiguous: a stable
-    # sort of the concentrations puts each level's points together, in their order.
-    xc = np.ascontiguousarray(np.where(rows, X, np.inf).T)
-    B, n = xc.shape
-    order = np.argsort(xc, axis=1, kind="stable")
-    xs = np.take_along_axis(xc, order, axis=1)
-    ws = np.take_along_axis(w0.T, order, axis=1)
-    ys = np.take_along_axis(y0.T, order, axis=1)
-    first = np.ones((B, n), dtype=bool)
-    first[:, 1:] = xs[:, 1:] != xs[:, :-1]
-    pure = np.zeros(B)
-    if B and n:
-        # Sums over each run of equal concentrations (unused points, at +inf, form one
-        # run of weight 0 at the end of each curve).
-        starts = np.flatnonzero(first)
-        sum_w = np.add.reduceat(ws.ravel(), starts)
-        sum_wy = np.add.reduceat((ws * ys).ravel(), starts)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            means = np.where(sum_w > 0, sum_wy / sum_w, 0.0)
-        lengths = np.diff(np.append(starts, B * n))
-        deviation = ys - np.repeat(means, lengths).reshape(B, n)
-        pure = np.einsum("ij,ij->i", ws * deviation, deviation)
-    return {"pure": pure, "levels": np.count_nonzero(first & np.isfinite(xs), axis=1),
-            "used": np.count_nonzero(rows, axis=0)}

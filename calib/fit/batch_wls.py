@@ -16,6 +16,15 @@ them keep their digits even when the scatter is a tiny fraction of the responses
 
 A curve that cannot be solved (a column of zeros, a singular design) does not
 stop the others: it is reported in ``problems`` and its figures are ``nan``.
+
+This is calib's one least-squares engine: :func:`calib.fit.curve.fit_curve` and
+:func:`calib.fit.wls.solve_wls` are a stack of one curve through it.  A curve's figures
+must not depend on what else is in the stack, so every operation is either elementwise
+(the same rounding for each curve whatever the stack) or a sum over a curve's points
+added in point order (:func:`point_sum`); the zeros of padding and of unused rows add
+nothing.  ``np.sum`` and ``np.einsum`` would not do: they add in pairs or in vector
+lanes chosen by the array's shape and layout, so a curve alone and the same curve
+among others would round differently in the last bits.
 """
 
 from __future__ import annotations
@@ -25,14 +34,49 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["BatchWlsSolution", "Factor", "factor", "residuals_exactly", "solve_block",
-           "solve_wls_batch", "solve_wls_columns"]
+__all__ = ["BatchWlsSolution", "Factor", "factor", "point_sum", "residuals_exactly",
+           "solve_block", "solve_wls_batch", "solve_wls_columns"]
 
 _EPS = np.finfo(float).eps
+
+#: Up to this many curves (values per point) :func:`point_sum` takes a running sum; a
+#: running sum along the points visits each curve's column separately, which beyond a few
+#: dozen curves is slower than adding whole rows.
+_RUNNING_SUM_LIMIT = 32
 
 #: 2²⁷ + 1: Veltkamp's constant, splitting a double into two halves of at most 26 bits
 #: whose products with the halves of another double are exact.
 _SPLIT = 134217729.0
+
+
+def point_sum(a: np.ndarray, axis: int = 0) -> np.ndarray:
+    """Σ along the points axis ``axis``, each curve's terms added one after another in order.
+
+    Strictly left to right, whatever the number of curves and the memory layout: a few
+    curves by a running sum (``np.add.accumulate``, in order by definition), many by adding
+    the points' rows one at a time (each an elementwise addition over the curves).  Both
+    are the same additions in the same order, so the same doubles.  Zeros in the sum
+    (padding, unused rows) change nothing, so a curve's sum is the same at any padded
+    length.  ``np.sum`` is not: it adds a single column pairwise, many columns row by row
+    or pairwise depending on the layout.
+
+    Examples
+    --------
+    >>> a = np.array([[1e16, 3.0], [1.0, 4.0], [-1e16, 0.0]])   # two curves, one per column
+    >>> point_sum(a).tolist()   # (1e16 + 1) − 1e16 in that order: the 1 is rounded away
+    [0.0, 7.0]
+    """
+    axis %= a.ndim
+    n = a.shape[axis]
+    if n == 0:
+        return np.zeros(a.shape[:axis] + a.shape[axis + 1:])
+    if a.size <= _RUNNING_SUM_LIMIT * n:
+        return np.add.accumulate(a, axis=axis)[(slice(None),) * axis + (-1,)]
+    rows = np.moveaxis(a, axis, 0)
+    total = rows[0].copy()
+    for row in rows[1:]:
+        total += row
+    return total
 
 
 @dataclass(frozen=True, eq=False)
@@ -254,9 +298,9 @@ def solve_block(
         # semi-normal equations RᵀR δ = XᵀW r; then the residuals follow the (tiny) change
         # in plain arithmetic, which loses nothing.
         wr = w * r0
-        g = np.einsum("ij,kij->jk", wr, design)
+        g = point_sum(wr * design, axis=1).T
         if intercept:
-            g = np.concatenate([np.sum(wr, axis=0)[:, None], g], axis=1)
+            g = np.concatenate([point_sum(wr)[:, None], g], axis=1)
         beta = beta0 + _back_substitute(R, _forward_substitute(R, g))
         step = beta - beta0
         residuals = r0 - _combine(design, step, intercept=intercept)
@@ -271,47 +315,50 @@ def factor(
 
     Curves ``active`` whose design has a column of zeros (or non-finite values), or
     is singular, get their reason in ``problems`` and are not ``solved``.  The
-    entries are handled one by one as (K,) arrays: with p ≤ 3 that beats reducing
-    over the tiny trailing axes.
+    inverse factor is formed entry by entry as (K,) arrays: with p ≤ 3 that beats
+    reducing over the tiny trailing axes.
     """
     K, p, _ = R.shape
     active = active.copy()
-    r = {(i, j): np.ascontiguousarray(R[:, i, j]) for j in range(p) for i in range(j + 1)}
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        # ‖column j‖ = ‖column j of R‖; with the columns scaled to unit length the
-        # test is solve_wls's.
-        norms = [np.sqrt(sum(r[i, j] * r[i, j] for i in range(j + 1))) for j in range(p)]
-        bad_norm = np.zeros(K, dtype=bool)
-        for norm in norms:
-            bad_norm |= ~(norm > 0) | ~np.isfinite(norm)
-        bad_norm &= active
+        # ‖column j‖ = ‖column j of R‖ (R is 0 below its diagonal); with the columns
+        # scaled to unit length the test is solve_wls's.
+        squares = R * R
+        norms = squares[:, 0, :]
+        for i in range(1, p):
+            norms = norms + squares[:, i, :]
+        norms = np.sqrt(norms)  # (K, p)
+        pivots = np.diagonal(R, axis1=1, axis2=2)  # (K, p)
+        # After a pivot of 0 (a column that depends on the earlier ones) the later entries
+        # of R are 0/0: the design is singular, which the rank test below reports.
+        pivots_ok = np.ones((K, p), dtype=bool)
+        pivots_ok[:, 1:] = np.logical_and.accumulate(np.isfinite(pivots) & (pivots != 0),
+                                                     axis=1)[:, :-1]
+        bad_norm = (pivots_ok & (~(norms > 0) | ~np.isfinite(norms))).any(axis=1) & active
         for k in np.flatnonzero(bad_norm):
             problems[k] = "the design matrix has a column of zeros or non-finite values"
         active &= ~bad_norm
-        diag = [np.abs(r[j, j]) / norms[j] for j in range(p)]
-        tol = diag[0]
-        for d in diag[1:]:
-            tol = np.maximum(tol, d)
-        tol = tol * np.maximum(n_used, 1) * _EPS
-        rank = sum((d > tol).astype(int) for d in diag)
+        diag = np.abs(pivots) / norms
+        # A 0/0 entry (nan) counts as a zero pivot: fmax passes over it.
+        tol = np.fmax.reduce(diag, axis=1) * np.maximum(n_used, 1) * _EPS
+        rank = np.count_nonzero(diag > tol[:, None], axis=1)
         singular = active & (rank < p)
         for k in np.flatnonzero(singular):
             problems[k] = f"the design is singular (rank {rank[k]} < {p} parameters)"
         active &= ~singular
-        # L = R⁻¹ column by column (back substitution on the unit vectors), then L Lᵀ.
-        inv: dict[tuple[int, int], np.ndarray] = {}
-        for j in range(p):
-            inv[j, j] = 1.0 / r[j, j]
-            for i in range(j - 1, -1, -1):
-                inv[i, j] = -sum(r[i, l] * inv[l, j] for l in range(i + 1, j + 1)) / r[i, i]
+        # L = R⁻¹ row by row from the last (back substitution on every unit vector at
+        # once), then L Lᵀ; each entry's terms are added in the order of their index.
         root = np.zeros((K, p, p))
-        unscaled = np.empty((K, p, p))
-        for j in range(p):
-            for i in range(j + 1):
-                root[:, i, j] = inv[i, j]
-                # (L Lᵀ)ᵢⱼ = Σₗ Lᵢₗ Lⱼₗ over l ≥ j (L upper triangular).
-                unscaled[:, i, j] = unscaled[:, j, i] = sum(inv[i, l] * inv[j, l]
-                                                            for l in range(j, p))
+        for i in range(p - 1, -1, -1):
+            row = np.zeros((K, p - i))  # columns i… of row i (L is 0 below its diagonal)
+            row[:, 0] = 1.0
+            for l in range(i + 1, p):
+                row = row - R[:, i, l, None] * root[:, l, i:]
+            root[:, i, i:] = row / R[:, i, i, None]
+        unscaled = root[:, :, 0, None] * root[:, None, :, 0]
+        for l in range(1, p):
+            # (L Lᵀ)ᵢⱼ = Σₗ Lᵢₗ Lⱼₗ.
+            unscaled = unscaled + root[:, :, l, None] * root[:, None, :, l]
     off = ~active
     if off.any():
         root[off] = np.nan
@@ -337,8 +384,8 @@ def _gram_schmidt(
     centred_ss = None
     if intercept:
         # The first column is 1 on the used rows: projecting it out is weighted centring.
-        d = np.sum(w, axis=0)
-        s = np.einsum("ij,kij->kj", w, design)
+        d = point_sum(w)
+        s = point_sum(w * design, axis=1)
         sy = _dot(w, y)
         length = np.sqrt(d)
         R[:, 0, 0] = length
@@ -351,7 +398,7 @@ def _gram_schmidt(
         j = i + intercept
         v = V[i]
         wv = w * v
-        s = np.einsum("ij,kij->kj", wv, V[i:])
+        s = point_sum(wv * V[i:], axis=1)
         sy = _dot(wv, Vy)
         length = np.sqrt(s[0])
         R[:, j, j] = length
@@ -366,8 +413,8 @@ def _gram_schmidt(
 
 
 def _dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Σᵢ aᵢbᵢ per curve: (n, B) and (n, B) → (B,)."""
-    return np.einsum("ij,ij->j", a, b)
+    """Σᵢ aᵢbᵢ per curve in point order: (n, B) and (n, B) → (B,)."""
+    return point_sum(a * b)
 
 
 def _back_substitute(R: np.ndarray, c: np.ndarray) -> np.ndarray:
@@ -458,7 +505,10 @@ def residuals_exactly(
     b_hi, b_lo = _split(b)
     # Dekker: the exact error of each rounded product.
     e_products = ((d_hi * b_hi - products) + d_hi * b_lo + d_lo * b_hi) + d_lo * b_lo
-    error = -np.sum(e_products, axis=0) if len(e_products) > 1 else -e_products[0]
+    total = e_products[0]
+    for more in e_products[1:]:
+        total = total + more
+    error = -total
     terms = ([beta[:, 0]] if intercept else []) + list(products)
     r = y
     for term in terms[:-1]:

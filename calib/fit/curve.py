@@ -6,25 +6,24 @@ import functools
 import math
 import weakref
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, TypeVar
 
 import numpy as np
 
 from calib.fit.bands import mean_band, prediction_band, weight_at
+from calib.fit.batch_block import StackFit, fit_stack
 from calib.fit.design import (
     COEFFICIENTS,
-    design_matrix,
-    fit_weights,
     level_variances,
     raw_weights,
     variance_function,
     weight_basis,
 )
+from calib.fit.diagnostics_core import ROUNDING, ROUNDING_UNCENTRED, Sums, weighted_sums
 from calib.fit.distributions import t_ppf, t_sf
 from calib.fit.inverse import quadratic_root
 from calib.fit.response_factor import ResponseFactors, response_factors
-from calib.fit.wls import solve_wls
 from calib.options import Model, Weighting, check_confidence, parse_option
 from calib.tabular import Tabular
 
@@ -33,7 +32,8 @@ if TYPE_CHECKING:
 
 __all__ = [
     "CoefficientRow", "CoefficientTest", "CurveFit", "fit_curve", "once_per_fit",
-    "residuals_negligible", "response_sums", "weighted_ss",
+    "residuals_negligible", "response_sums", "scatter_negligible", "stacked_curve",
+    "weighted_ss",
 ]
 
 _T = TypeVar("_T")
@@ -130,6 +130,10 @@ class CurveFit(Tabular):
         ŷᵢ and yᵢ − ŷᵢ.
     r_squared : float
         Weighted R², uncentred for ``origin`` and ``mean-rf``.
+    covariance_root : ndarray or None
+        An upper triangular L with (XᵀWX)⁻¹ = L Lᵀ from the engine's factorisation (the
+        leverages of :func:`calib.fit.outliers.influence` come from it); None on a fit
+        built by other means.
     """
 
     model: Model
@@ -145,6 +149,7 @@ class CurveFit(Tabular):
     fitted: np.ndarray
     residuals: np.ndarray
     r_squared: float
+    covariance_root: np.ndarray | None = field(default=None, repr=False)
 
     def to_frame(self) -> pd.DataFrame:
         """The coefficient table as a pandas DataFrame (shown as a table in Jupyter)."""
@@ -424,6 +429,10 @@ def fit_curve(
     R² = 1 − Σwr²/Σw(y − ȳ_w)², and 1 − Σwr²/Σwy² (uncentred) for ``origin``
     and ``mean-rf``.
 
+    The fit is a batch of one through the engine of :func:`calib.fit.batch.fit_batch`
+    (:func:`calib.fit.batch_block.fit_stack`): the same curve in any batch gives the same
+    doubles, so the same record.
+
     ``mean-rf``: RF̄ = Σ(yᵢ/xᵢ)/n minimises Σ (yᵢ − RF·xᵢ)²/xᵢ², so it is
     fitted as y = RF·x with weights 1/xᵢ²; then SE(RF̄) = s(RF)/√n and t has
     n − 1 degrees of freedom, the figures of US EPA SW-846 Method 8000D
@@ -450,41 +459,47 @@ def fit_curve(
     ys = np.asarray(y, dtype=float).ravel()
     if xs.shape != ys.shape:
         raise ValueError(f"x and y must have the same length; got {xs.size} and {ys.size}")
-    if not (np.all(np.isfinite(xs)) and np.all(np.isfinite(ys))):
-        raise ValueError("x and y must be finite numbers")
-    names = COEFFICIENTS[model]
-    p = len(names)
-    if xs.size <= p:
-        raise ValueError(f"model {model.value} needs at least {p + 1} points; got {xs.size}")
-    basis = weight_basis(model, weighting)
-    if model is Model.MEAN_RF and np.any(~(xs > 0)):
-        raise ValueError("model mean-rf needs concentrations above 0 (each response is "
-                         "divided by its concentration)")
-    w = fit_weights(xs, basis, y=ys)
-    X = design_matrix(xs, model)
-    sol = solve_wls(X, ys, w)
-    nu = xs.size - p
-    sigma2 = sol.weighted_ss / nu
-    if model in (Model.ORIGIN, Model.MEAN_RF):
-        total = float(np.sum(w * ys**2))
-    else:
-        ybar = float(np.sum(w * ys) / np.sum(w))
-        total = float(np.sum(w * (ys - ybar) ** 2))
-    r_squared = 1.0 - sol.weighted_ss / total if total > 0 else math.nan
+    # A stack of one curve through the engine that fits batches (calib.fit.batch_block),
+    # so this curve's figures are those it gets in any batch.
+    points = np.empty((4, xs.size, 1))
+    points[0, :, 0] = xs
+    points[1, :, 0] = ys
+    used = np.ones((xs.size, 1), dtype=bool)
+    fitted = fit_stack(points[0], points[1], used, None, model=model,
+                       basis=weight_basis(model, weighting), weights_out=points[2],
+                       residuals_out=points[3])
+    if fitted.problems[0] is not None:
+        raise ValueError(fitted.problems[0])
+    return stacked_curve(fitted, 0, x=points[0, :, 0], y=points[1, :, 0], used=used[:, 0],
+                         model=model, weighting=weighting, confidence=confidence)
+
+
+def stacked_curve(fitted: StackFit, k: int, *, x: np.ndarray, y: np.ndarray, used: np.ndarray,
+                  model: Model, weighting: Weighting, confidence: float) -> CurveFit:
+    """Curve ``k`` of the engine's result as a :class:`CurveFit` over its ``used`` points.
+
+    The one place a fit is made from the engine's arrays, by :func:`fit_curve` and by
+    :meth:`calib.fit.batch.BatchFit.curve` alike: ``x``, ``y`` and ``used`` are the
+    curve's row of the stack (padding included).
+    """
+    residuals = fitted.residuals[used, k]
+    ys = y[used]
+    root = fitted.root[k].copy()
     return CurveFit(
         model=model,
         weighting=weighting,
         confidence=confidence,
-        x=xs,
+        x=x[used],
         y=ys,
-        weights=w,
-        coefficients={n: float(b) for n, b in zip(names, sol.beta)},
-        covariance=sigma2 * sol.unscaled_covariance,
-        residual_df=nu,
-        residual_sd=math.sqrt(sigma2),
-        fitted=ys - sol.residuals,
-        residuals=sol.residuals,
-        r_squared=r_squared,
+        weights=fitted.weights[used, k],
+        coefficients={n: float(b) for n, b in zip(COEFFICIENTS[model], fitted.coefficients[k])},
+        covariance=fitted.covariance[k].copy(),
+        residual_df=int(fitted.residual_df[k]),
+        residual_sd=float(fitted.residual_sd[k]),
+        fitted=ys - residuals,
+        residuals=residuals,
+        r_squared=float(fitted.r_squared[k]),
+        covariance_root=root if np.isfinite(root).all() else None,
     )
 
 
@@ -529,7 +544,7 @@ def weighted_ss(fit: CurveFit) -> float:
     >>> round(weighted_ss(fit_curve([1, 2, 3], [1.0, 2.5, 3.0])), 12)   # residuals −1/6, 1/3, −1/6
     0.166666666667
     """
-    return float(np.sum(fit.weights * fit.residuals**2))
+    return float(_sums(fit).weighted_ss[0])
 
 
 @once_per_fit
@@ -539,11 +554,16 @@ def response_sums(fit: CurveFit) -> tuple[float, float]:
     The weighted spread of y about its weighted mean ȳ_w, and its uncentred sum
     of squares: the scales against which a residual sum counts as rounding noise.
     """
-    w = fit.weights
-    uncentred = float(np.sum(w * fit.y**2))
-    ybar = float(np.sum(w * fit.y) / np.sum(w))
-    spread = float(np.sum(w * (fit.y - ybar) ** 2))
-    return spread, uncentred
+    sums = _sums(fit)
+    return float(sums.spread[0]), float(sums.uncentred[0])
+
+
+@once_per_fit
+def _sums(fit: CurveFit) -> Sums:
+    """The engine's weighted sums of the fit, as a batch of one curve (diagnostics_core)."""
+    column = (fit.n_points, 1)
+    return weighted_sums(fit.y.reshape(column), fit.weights.reshape(column),
+                         fit.residuals.reshape(column), np.ones(column, dtype=bool))
 
 
 def residuals_negligible(ss: float, fit: CurveFit) -> bool:
@@ -552,4 +572,16 @@ def residuals_negligible(ss: float, fit: CurveFit) -> bool:
     See :attr:`CurveFit.exact` for the thresholds.
     """
     spread, uncentred = response_sums(fit)
-    return ss <= max(1e-20 * spread, 1e-24 * uncentred)
+    return ss <= max(ROUNDING * spread, ROUNDING_UNCENTRED * uncentred)
+
+
+def scatter_negligible(ss: float, fit: CurveFit) -> bool:
+    """Whether a weighted sum of squares ``ss`` on ``fit``'s points (of a test's residuals,
+    of the replicates about their level means) is rounding noise, not scatter.
+
+    At most 1e-20 of the weighted spread of y (of its uncentred sum of squares when the
+    responses do not vary), or :func:`residuals_negligible`.  No test on such a sum means
+    anything: the curve (or the comparison model) passes through the points.
+    """
+    spread, uncentred = response_sums(fit)
+    return ss <= ROUNDING * (spread if spread > 0 else uncentred) or residuals_negligible(ss, fit)

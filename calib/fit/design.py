@@ -12,6 +12,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from calib.fit.wls import solve_wls
 from calib.options import Model, Weighting, combination_problem, own_weighting
 
 __all__ = [
@@ -230,8 +231,7 @@ def variance_function(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndar
     design = np.column_stack([np.ones_like(levels), np.log(levels)])
     # Var ln s² = ψ′(ν/2) (trigamma; closed form for a χ²_ν/ν variable): weight by its inverse.
     weight = 1.0 / polygamma(1, nu / 2)
-    root = np.sqrt(weight)
-    coef, *_ = np.linalg.lstsq(design * root[:, None], target * root, rcond=None)
+    coef = solve_wls(design, target, weight).beta
     return levels, np.exp(design @ coef), counts
 
 
@@ -260,9 +260,10 @@ def variance_power_problem(x: np.ndarray, y: np.ndarray) -> str | None:
     nu = (counts - 1).astype(float)
     weight = 1.0 / polygamma(1, nu / 2)
     design = np.column_stack([np.ones_like(levels), np.log(levels)])
-    cov = np.linalg.inv(design.T @ (weight[:, None] * design))
-    power_se = float(np.sqrt(cov[1, 1]))
-    theta = float(np.polyfit(np.log(levels), np.log(s2), 1, w=np.sqrt(weight))[0])
+    # The slope of ln s² on ln x with the weights 1/ψ′(ν/2): θ and its SE from (XᵀWX)⁻¹.
+    sol = solve_wls(design, np.log(s2), weight)
+    power_se = float(np.sqrt(sol.unscaled_covariance[1, 1]))
+    theta = float(sol.beta[1])
     if power_se <= MAX_POWER_SE:
         return None
     return (f"weighting 1/s2 needs the replicate variances to fix the power of the variance "

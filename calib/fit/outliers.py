@@ -13,21 +13,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from calib.fit.batch_wls import solve_wls_columns
 from calib.fit.curve import CurveFit
 from calib.fit.design import design_matrix
+from calib.fit.diagnostics_core import case_figures, check_alpha, influence_reason
 from calib.fit.distributions import f_ppf, t_isf
 
 __all__ = ["GrubbsResult", "Influence", "grubbs", "grubbs_critical", "influence"]
-
-# A residual sum of squares this small next to the total is rounding, not scatter.
-_ROUNDING = 1e-20
-
-
-def _alpha(alpha: float) -> float:
-    if isinstance(alpha, bool) or not (isinstance(alpha, (int, float)) and 0 < alpha < 1):
-        raise ValueError(f"alpha must be a number between 0 and 1; got {alpha!r}")
-    return float(alpha)
-
 
 @dataclass(frozen=True, eq=False)
 class Influence:
@@ -78,7 +70,7 @@ class Influence:
         >>> bool(abs(crit - float(stats.t.ppf(1 - 0.05 / 16, 5))) < 1e-12)
         True
         """
-        return t_isf(_alpha(alpha) / (2 * self.n_points), self.residual_df - 1)
+        return t_isf(check_alpha(alpha) / (2 * self.n_points), self.residual_df - 1)
 
     def suggested(self, alpha: float = 0.05) -> np.ndarray:
         """Indices whose |studentized residual| exceeds :meth:`bonferroni_critical`."""
@@ -120,10 +112,12 @@ def influence(fit: CurveFit) -> Influence:
 
     Notes
     -----
-    With eᵢ = √wᵢ·rᵢ and hᵢᵢ from a QR decomposition of the column-scaled W½X,
+    With eᵢ = √wᵢ·rᵢ and hᵢᵢ = wᵢ‖xᵢᵀL‖², L the fit's factor of (XᵀWX)⁻¹ = L Lᵀ,
     s₍ᵢ₎² = (Σe² − eᵢ²/(1 − hᵢᵢ)) / (ν − 1) is the residual variance with point i
     deleted, so tᵢ = eᵢ / (s₍ᵢ₎√(1 − hᵢᵢ)) needs no refit.  Scaling the weights
-    leaves all of these unchanged.
+    leaves all of these unchanged.  The figures are those of
+    :func:`calib.fit.batch_diagnostics.batch_influence` for a batch of this one curve
+    (the same code, :func:`calib.fit.diagnostics_core.case_figures`).
 
     References
     ----------
@@ -145,29 +139,30 @@ def influence(fit: CurveFit) -> Influence:
     n, nu = fit.n_points, fit.residual_df
     p = n - nu
     if nu < 2:
-        raise ValueError(f"studentized residuals need at least 2 residual degrees of freedom; "
-                         f"the fit has {nu}")
-    w = fit.weights
-    e = np.sqrt(w) * fit.residuals
-    ss = float(np.sum(e * e))
-    ybar = float(np.sum(w * fit.y) / np.sum(w))
-    if ss <= _ROUNDING * float(np.sum(w * (fit.y - ybar) ** 2)) or fit.exact:
-        raise ValueError("the curve passes through every standard, so there is no residual "
-                         "scatter to judge outliers against")
-    A = design_matrix(fit.x, fit.model) * np.sqrt(w)[:, None]
-    A = A / np.linalg.norm(A, axis=0)
-    q, _ = np.linalg.qr(A)
-    h = np.minimum(np.sum(q * q, axis=1), 1.0)
-    sigma2 = ss / nu
-    one_minus_h = 1.0 - h
-    with np.errstate(divide="ignore", invalid="ignore"):
-        # h = 1 to rounding: the point fixes the curve and has no residual to judge.
-        free = one_minus_h > 1e-10
-        standardized = np.where(free, e / np.sqrt(sigma2 * one_minus_h), np.nan)
-        deleted = np.maximum(ss - e * e / one_minus_h, 0.0) / (nu - 1)
-        studentized = np.where(free, e / np.sqrt(deleted * one_minus_h), np.nan)
-        cooks = np.where(free, e * e * h / (p * sigma2 * one_minus_h**2), np.nan)
+        raise ValueError(influence_reason(None, True, nu))
+    root = fit.covariance_root
+    if root is None:
+        root = _factor_root(fit)
+    column = (n, 1)
+    block = case_figures(fit.x.reshape(column), fit.y.reshape(column),
+                         fit.weights.reshape(column), fit.residuals.reshape(column),
+                         np.ones(column, dtype=bool), root[None], np.array([float(nu)]),
+                         fit.model)
+    if block.scatterless[0]:
+        raise ValueError(influence_reason(None, False, nu))
+    h, e, standardized, studentized, cooks = block.figures[:, :, 0]
     return Influence(h, e, standardized, studentized, cooks, p, nu)
+
+
+def _factor_root(fit: CurveFit) -> np.ndarray:
+    """L with (XᵀWX)⁻¹ = L Lᵀ for a fit that does not carry it (built by other means)."""
+    X = design_matrix(fit.x, fit.model)
+    used = np.ones((fit.n_points, 1), dtype=bool)
+    sol = solve_wls_columns([X[:, [j]] for j in range(X.shape[1])], fit.y[:, None],
+                            fit.weights[:, None], mask=used)
+    if sol.problems[0] is not None:
+        raise ValueError(f"the curve's design cannot be factored: {sol.problems[0]}")
+    return sol.covariance_root[0]
 
 
 def grubbs_critical(n: int, alpha: float = 0.05) -> float:
@@ -201,7 +196,7 @@ def grubbs_critical(n: int, alpha: float = 0.05) -> float:
     """
     if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 3:
         raise ValueError(f"Grubbs' test needs a whole number of at least 3 values; got {n!r}")
-    return _grubbs_critical(int(n), _alpha(alpha))
+    return _grubbs_critical(int(n), check_alpha(alpha))
 
 
 @functools.lru_cache(maxsize=512)

@@ -17,6 +17,7 @@ import numpy as np
 from scipy import special  # the noncentral F, which calib.fit.distributions lacks
 
 from calib.fit.distributions import f_ppf, nct_cdf, norm_cdf, norm_ppf, t_ppf
+from calib.fit.wls import solve_wls
 
 __all__ = ["detectable_bend_pct", "detectable_f_noncentrality", "detectable_t_noncentrality"]
 
@@ -122,12 +123,13 @@ def detectable_bend_pct(x: np.ndarray, weights: np.ndarray, fitted: np.ndarray, 
     ...                           1.0, 6.0), 6)
     10.0
     """
-    X = np.column_stack([np.ones_like(x), x])
-    sw = np.sqrt(weights)
-    q = x * x
-    coef, *_ = np.linalg.lstsq(X * sw[:, None], q * sw, rcond=None)
-    perp = q - X @ coef
-    energy = float(np.sum(weights * perp * perp))
+    try:
+        # x² regressed on [1, x] with the fit's weights: q⊥ are the residuals.
+        sol = solve_wls(np.column_stack([np.ones_like(x), x]), x * x, weights)
+    except ValueError:  # a single concentration: no straight line to compare with
+        return math.nan
+    perp = sol.residuals
+    energy = sol.weighted_ss
     top = int(np.argmax(x))
     if energy <= 0 or sigma2 <= 0 or fitted[top] == 0:
         return math.nan

@@ -2,10 +2,10 @@
 
 The curves of a run usually share their standards (concentrations, weights, injection
 order): the diagnostics that refit something on that design (the comparison quadratic,
-the residual trend with injection order) then need one QR factorisation for all of them.
-The arithmetic is :func:`calib.fit.wls.solve_wls`'s — column scaling, QR of the weighted
-design, one step of iterative refinement — with the factorisation made once, so each
-response's solution is ``solve_wls``'s on it, digit for digit.
+the residual trend with injection order) then solve many problems on one design.  They go
+through calib's one engine (:func:`calib.fit.batch_wls.solve_wls_batch`) as one stack, so
+each response's solution is :func:`calib.fit.wls.solve_wls`'s on it, digit for digit: the
+engine's figures for a curve never depend on the other curves of the stack.
 """
 
 from __future__ import annotations
@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calib.fit.wls import _factor, _solve_upper
+from calib.fit.batch_wls import solve_wls_batch
 
 __all__ = ["ManySolution", "solve_wls_many"]
 
@@ -56,22 +56,14 @@ def solve_wls_many(X: np.ndarray, Y: np.ndarray, w: np.ndarray | None = None) ->
     """
     X = np.asarray(X, dtype=float)
     Y = np.asarray(Y, dtype=float)
+    K = Y.shape[0]
     n, p = X.shape
     w = np.ones(n) if w is None else np.asarray(w, dtype=float)
-    sw = np.sqrt(w)
-    Yw = (Y * sw).T  # (N, K): one right-hand side per column
-    A, Q, R, norms, _ = _factor(X * sw[:, None], Yw)
-    # One factorisation; each column then goes through solve_wls's own steps (matrix-vector
-    # products, a triangular solve, one refinement), so its figures are solve_wls's digit
-    # for digit whatever the other columns.
-    beta = np.empty((Y.shape[0], p))
-    ss = np.empty(Y.shape[0])
-    for k, yw in enumerate(Yw.T):
-        z = _solve_upper(R, Q.T @ yw)
-        z = z + _solve_upper(R, Q.T @ (yw - A @ z))
-        beta[k] = z / norms
-        residuals = Y[k] - X @ beta[k]
-        ss[k] = float(np.sum(w * residuals**2))
-    R_inv = _solve_upper(R, np.eye(p))
-    unscaled = (R_inv @ R_inv.T) / np.outer(norms, norms)
-    return ManySolution(beta, unscaled, ss)
+    if not np.all(np.isfinite(np.sqrt(w) * Y)):
+        raise ValueError("the responses y must be finite numbers")
+    sol = solve_wls_batch(np.broadcast_to(X, (K, n, p)), Y, np.broadcast_to(w, (K, n)),
+                          mask=np.ones((K, n), dtype=bool))
+    problem = next((text for text in sol.problems if text is not None), None)
+    if problem is not None:
+        raise ValueError(problem)
+    return ManySolution(sol.beta, sol.unscaled_covariance[0], sol.weighted_ss)

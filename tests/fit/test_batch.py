@@ -5,7 +5,8 @@ What is compared:
 * For invented multi-analyte batches (fixed seeds; 1 000 curves × 24 points, 8 levels × 3
   replicates, ragged masks that drop up to two replicates of a level and leave ``nan`` in the
   padding), for linear, origin and quadratic × none, 1/x, 1/x2 and for mean-rf: each figure
-  of ``fit_batch`` equals ``fit_curve`` on the same curve to 1e-12 relative — estimates,
+  of ``fit_batch`` equals ``fit_curve`` on the same curve to 1e-12 relative (both are one
+  engine, so in fact bit for bit: ``test_batch_diagnostics.py``) — estimates,
   covariance, ν, σ̂, R², weights, fitted values, residuals, SEs, t and p against 0 and
   against a per-curve reference, t quantiles, confidence intervals, back-calculated
   concentrations, and ``curve(k)`` field by field.

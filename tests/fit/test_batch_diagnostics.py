@@ -120,6 +120,28 @@ def test_lack_of_fit_equals_the_per_curve_test(case) -> None:
     assert sum(r is None for r in test.reasons) >= 0.9 * len(fits)
 
 
+def test_a_curve_alone_is_its_batch_row_bit_for_bit(case) -> None:
+    # One engine (issue 18): a curve fitted alone and the same curve as a row of a padded
+    # batch of 300 are the same doubles, and so are their case diagnostics and lack-of-fit
+    # sums; the tolerances above are for the comparisons with other programs.  This is the
+    # contract that keeps a record's digest independent of the other analytes of its run.
+    batch, fits = case
+    infl, test = batch_influence(batch), batch_lack_of_fit(batch)
+    for k, fit in enumerate(fits):
+        row = batch.curve(k)
+        for name in ("x", "y", "weights", "covariance", "covariance_root", "fitted",
+                     "residuals"):
+            assert getattr(row, name).tobytes() == getattr(fit, name).tobytes(), (k, name)
+        assert row.coefficients == fit.coefficients
+        assert (row.residual_df, row.residual_sd) == (fit.residual_df, fit.residual_sd)
+        assert np.array([row.r_squared]).tobytes() == np.array([fit.r_squared]).tobytes()
+        got, want = infl.curve(k), influence(fit)
+        for name in ("leverage", "weighted_residuals", "standardized", "studentized",
+                     "cooks_distance"):
+            assert getattr(got, name).tobytes() == getattr(want, name).tobytes(), (k, name)
+        assert test.curve(k) == lack_of_fit(fit)
+
+
 def _statsmodels_influence(x, y, model, weights):
     sw = np.sqrt(weights)
     return sm.OLS(y * sw, design_matrix(x, Model(model)) * sw[:, None]).fit().get_influence()

@@ -20,7 +20,7 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
-import calib.fit.batch as batch_module
+import calib.fit.batch_block as block_module
 from calib.fit.batch import fit_batch
 from calib.fit.batch_wls import residuals_exactly, solve_wls_batch, solve_wls_columns
 from calib.fit.wls import solve_wls
@@ -141,11 +141,16 @@ def test_residuals_without_intercept_are_exact_too() -> None:
                                                   ("quadratic", "1/s2")])
 def test_blocks_do_not_change_any_number(model: str, weighting: str,
                                          monkeypatch: pytest.MonkeyPatch) -> None:
-    # The default blocks (hundreds of curves) against blocks of two curves each.
+    # The default blocks (hundreds of curves) against blocks of two curves and of one each.
     x, y, mask = invented_batch(model, 61, curves=150, replicates=2)
     whole = fit_batch(x, y, model=model, weighting=weighting, mask=mask)
-    monkeypatch.setattr(batch_module, "BLOCK_VALUES", 2 * x.shape[1] * 2)
-    small = fit_batch(x, y, model=model, weighting=weighting, mask=mask)
+    for values in (2 * x.shape[1] * 2, 1):
+        monkeypatch.setattr(block_module, "BLOCK_VALUES", values)
+        small = fit_batch(x, y, model=model, weighting=weighting, mask=mask)
+        _assert_same_bits(small, whole)
+
+
+def _assert_same_bits(small, whole) -> None:
     for field in ("coefficients", "covariance", "residual_df", "residual_sd", "r_squared",
                   "residuals", "weights", "fitted", "covariance_root"):
         np.testing.assert_array_equal(getattr(small, field), getattr(whole, field),

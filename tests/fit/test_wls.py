@@ -1,10 +1,10 @@
-"""The least-squares solver's direct LAPACK calls against scipy.linalg on the same matrices.
+"""solve_wls (a stack of one through the batched engine) against scipy.linalg on the same designs.
 
-``calib.fit.wls`` calls dgeqrf, dorgqr and dtrtrs itself, with the arguments
-``scipy.linalg.qr(mode="economic")`` and ``scipy.linalg.solve_triangular`` pass them, so
-that every downstream figure stays what those functions give (scipy.linalg is the reference;
-the factors must agree to the last digit).  The solution itself is checked against
-statsmodels and the NIST StRD data in test_against_statsmodels.py and test_nist_strd.py.
+``calib.fit.wls.solve_wls`` hands a single problem to ``calib.fit.batch_wls``; the reference
+here is ``scipy.linalg.lstsq`` on W½X, W½y and ``scipy.linalg.inv`` of XᵀWX, on the column
+shapes calib solves (p = 1, 2, 3) and on a 4-column design (two lines compared).  The solution
+is also checked against statsmodels and the NIST StRD data in test_against_statsmodels.py and
+test_nist_strd.py.
 """
 
 from __future__ import annotations
@@ -15,49 +15,54 @@ import numpy as np
 import pytest
 from scipy import linalg
 
+from calib.fit.batch_wls import solve_wls_batch
 from calib.fit.design import design_matrix
-from calib.fit.wls import _economic_qr, _solve_upper, solve_wls
+from calib.fit.wls import solve_wls
 from calib.options import Model
 
 
 def designs():
-    """Column-scaled weighted designs of the three shapes calib solves (p = 1, 2, 3)."""
+    """Designs of the three calibration shapes (p = 1, 2, 3), weights 1/x, responses noisy."""
     rng = np.random.default_rng(20261202)
     for model in (Model.ORIGIN, Model.LINEAR, Model.QUADRATIC):
         for n in (4, 7, 24, 40):
             x = np.sort(rng.uniform(0.05, 10.0 ** rng.uniform(0, 4), n))
-            w = 1 / x
-            a = design_matrix(x, model) * np.sqrt(w / w.mean())[:, None]
-            yield model.value, a / np.linalg.norm(a, axis=0), rng.normal(size=n)
+            X = design_matrix(x, model)
+            y = X @ rng.uniform(0.5, 2.0, X.shape[1]) * (1 + 0.01 * rng.normal(size=n))
+            yield model.value, X, y, 1 / x
 
 
-@pytest.mark.parametrize(("model", "a", "b"), list(designs()))
-def test_factors_and_solves_equal_scipy_linalg(model, a, b):
-    q, r = _economic_qr(a)
-    q_ref, r_ref = linalg.qr(a, mode="economic")
-    np.testing.assert_array_equal(q, q_ref)
-    np.testing.assert_array_equal(r, r_ref)
-    rhs = q.T @ b
-    np.testing.assert_array_equal(_solve_upper(r, rhs), linalg.solve_triangular(r, rhs))
-    eye = np.eye(r.shape[0])
-    np.testing.assert_array_equal(_solve_upper(r, eye), linalg.solve_triangular(r, eye))
+@pytest.mark.parametrize(("model", "X", "y", "w"), list(designs()))
+def test_solution_equals_scipy_linalg(model, X, y, w):
+    sol = solve_wls(X, y, w)
+    sw = np.sqrt(w)
+    beta, *_ = linalg.lstsq(X * sw[:, None], y * sw)
+    np.testing.assert_allclose(sol.beta, beta, rtol=1e-9)
+    np.testing.assert_allclose(sol.unscaled_covariance, linalg.inv(X.T @ (w[:, None] * X)),
+                               rtol=1e-7)
+    residuals = y - X @ beta
+    np.testing.assert_allclose(sol.weighted_ss, np.sum(w * residuals**2), rtol=1e-7)
+    assert sol.rank == X.shape[1]
 
 
-def test_solve_upper_takes_fortran_and_c_ordered_factors():
-    r = np.array([[2.0, 1.0, -1.0], [0.0, 4.0, 0.5], [0.0, 0.0, 0.25]])
-    b = np.array([1.0, 2.0, 3.0])
-    expected = linalg.solve_triangular(r, b)
-    np.testing.assert_array_equal(_solve_upper(np.ascontiguousarray(r), b), expected)
-    np.testing.assert_array_equal(_solve_upper(np.asfortranarray(r), b),
-                                  linalg.solve_triangular(np.asfortranarray(r), b))
-    np.testing.assert_allclose(r @ _solve_upper(r, b), b, rtol=1e-15)
+def test_is_the_batched_engine_on_a_stack_of_one():
+    # Not merely close: the same arithmetic, so the same bits as in any stack.
+    _, X, y, w = next(designs())
+    rng = np.random.default_rng(7)
+    stack_X = np.stack([X, X * 3.0, X + rng.uniform(size=X.shape)])
+    stack_y = np.stack([y, y * 2.0, y + 1.0])
+    stack_w = np.stack([w, w, w * 5.0])
+    batch = solve_wls_batch(stack_X, stack_y, stack_w, mask=np.ones(stack_y.shape, dtype=bool))
+    sol = solve_wls(X, y, w)
+    assert sol.beta.tobytes() == batch.beta[0].tobytes()
+    assert sol.unscaled_covariance.tobytes() == batch.unscaled_covariance[0].tobytes()
+    assert sol.residuals.tobytes() == batch.residuals[0].tobytes()
 
 
-def test_singular_triangle_is_reported():
-    r = np.array([[1.0, 2.0], [0.0, 0.0]])
-    with pytest.raises(linalg.LinAlgError,
-                       match=re.escape("singular matrix: resolution failed at diagonal 1")):
-        _solve_upper(r, np.array([1.0, 1.0]))
+def test_singular_design_is_reported():
+    X = np.column_stack([np.ones(4), np.full(4, 2.0)])
+    with pytest.raises(ValueError, match=re.escape("the design is singular (rank 1 < 2 parameters)")):
+        solve_wls(X, np.array([1.0, 2.0, 3.0, 5.0]))
 
 
 def test_solver_rejects_responses_that_are_not_finite():

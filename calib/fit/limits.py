@@ -18,8 +18,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from scipy import optimize
-
 from calib.fit.curve import CurveFit
 from calib.fit.distributions import nct_cdf, t_ppf
 from calib.options import LimitMethod, Model, Weighting, parse_option
@@ -146,6 +144,9 @@ class Iso11843Limits:
 
 def _noncentrality(df: int, alpha: float, beta: float) -> float:
     """δ with P(T'(ν, δ) ≤ t(1 − α; ν)) = β, T' non-central Student's t."""
+    # scipy.optimize takes a fifth of a second to load: only this method needs it.
+    from scipy import optimize
+
     t_alpha = t_ppf(1 - alpha, df)
     upper = t_alpha + t_ppf(1 - beta, df) + 10.0
     return float(optimize.brentq(lambda d: nct_cdf(t_alpha, df, d) - beta,

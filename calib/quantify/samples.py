@@ -39,15 +39,18 @@ from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+import numpy as np
+
 from calib.errors import InputError
 from calib.io.cells import Cell, CellError, is_blank, to_flag, to_integer, to_number, to_text
 from calib.io.columns import column_letter
 from calib.io.files import load_file
-from calib.io.limits import check_magnitudes
+from calib.io.limits import LARGEST_VALUE, check_magnitudes
 from calib.io.numbers import find_marker
 from calib.io.sampletypes import SampleTyper, type_from_name
 from calib.io.table import Grid, cell_reference
 from calib.options import SampleType
+from calib.quantify.sampletable import SampleRows, merge_rows, read_plain_rows
 from calib.quantify.samplefile import (
     DILUTION_HEADINGS,
     SAMPLE_MAP_COLUMNS,
@@ -101,8 +104,8 @@ class SampleSheet:
     ----------
     source : SourceInfo
         The file (name, SHA-256, sheet).
-    readings : tuple of Reading
-        Unknowns and QCs in file order.
+    rows : SampleRows
+        Unknowns and QCs in file order, as columns (:attr:`readings` as objects).
     units : dict
         ``{"concentration": unit}`` when the nominal heading gives one.
     notes : tuple of str
@@ -113,10 +116,15 @@ class SampleSheet:
     """
 
     source: SourceInfo
-    readings: tuple[Reading, ...]
+    rows: SampleRows
     units: dict[str, str]
     notes: tuple[str, ...] = ()
     internal_standard: str | None = None
+
+    @property
+    def readings(self) -> tuple[Reading, ...]:
+        """Unknowns and QCs in file order, as :class:`Reading` objects (built on first use)."""
+        return self.rows.readings
 
 
 _PLAIN_NUMBER = re.compile(r"-?[0-9]{1,30}(?:\.[0-9]{1,30})?")
@@ -172,6 +180,7 @@ class _TableReader:
         self.dilution_below_one = dilution_below_one
         self.typer = SampleTyper(patterns=dict(patterns or {}))
         self.readings: list[Reading] = []
+        self.read_at: list[int] = []
         self.notes: list[str] = []
         if "analyte" not in columns and analyte is None:
             raise grid.error("the samples table has no analyte column; add one, or quantify "
@@ -360,22 +369,43 @@ class _TableReader:
         )
         if not point.analyte:
             raise self.fail(row_index, "analyte", "found an empty cell; expected the analyte name")
+        self.read_at.append(row_index)
         self.readings.append(Reading(
             point, 1.0 if dilution is None else float(dilution),
             mass_kg=None if mass is None else mass * self.mass_unit,
             volume_l=None if volume is None else volume * self.volume_unit))
 
-    def read(self) -> None:
+    def read(self) -> SampleRows:
+        """The table's readings: plain rows a column at a time, the others row by row."""
+        rows = self.grid.rows
+        start = self.header_row + 1
+        # Up to the first row without a response (a blank line, or notes under the table)
+        # every row is a reading, a set-aside injection or a sample left out.
+        stop = start
+        index = self.at.get("response")
+        if index is not None:
+            for line in rows[start:]:
+                value = line[index] if index < len(line) else None
+                if type(value) is str and value and not value[0].isspace() or (
+                        value is not None and type(value) is not str):
+                    stop += 1
+                else:
+                    break
+        plain, at, left = read_plain_rows(self, start, stop)
+        for row_index in left:
+            self.row(row_index, list(rows[row_index]))
         seen_gap = False
-        for row_index in range(self.header_row + 1, len(self.grid.rows)):
-            row = list(self.grid.rows[row_index])
+        for row_index in range(stop, len(rows)):
+            row = list(rows[row_index])
             if all(is_blank(c) for c in row):
-                seen_gap = bool(self.readings) or seen_gap
+                seen_gap = bool(self.readings) or bool(at) or seen_gap
                 continue
             # Notes under the table, after a blank line, carry no response.
             if seen_gap and is_blank(self.cell(row, "response")):
                 break
             self.row(row_index, row)
+        return merge_rows([(plain, at),
+                           (SampleRows.from_readings(self.readings), self.read_at)])
 
 
 def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None,
@@ -453,8 +483,8 @@ def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None
                           internal_standard=internal_standard,
                           dilution_below_one=dilution_below_one,
                           patterns=base.sample_types if base is not None else None)
-    reader.read()
-    check_magnitudes((r.point for r in reader.readings), file=raw.given)
+    rows = reader.read()
+    _check_magnitudes(rows, file=raw.given)
     units = {}
     if "concentration" in columns and columns["concentration"][2]:
         units["concentration"] = str(columns["concentration"][2])
@@ -464,5 +494,23 @@ def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None
     if reader.ratios:
         index, heading, _ = columns["is_response"]
         is_column = f"column {column_letter(index)} ({heading})"
-    return SampleSheet(replace(source, layout="long"), tuple(reader.readings), units,
-                       tuple(reader.notes), internal_standard=is_column)
+    return SampleSheet(replace(source, layout="long"), rows, units, tuple(reader.notes),
+                       internal_standard=is_column)
+
+
+def _check_magnitudes(rows: SampleRows, *, file: str) -> None:
+    """:func:`calib.io.limits.check_magnitudes` of the readings, a column at a time."""
+    values = [rows.response, rows.nominal]
+    values += [np.array(rows.extra[k], dtype=float) for k in ("is_response", "analyte_response")
+               if k in rows.extra and None not in rows.extra[k]]
+    if any(k in rows.extra and None in rows.extra[k] for k in ("is_response",
+                                                               "analyte_response")):
+        check_magnitudes(rows.points(), file=file)
+        return
+    size = np.abs(np.vstack(values)) if len(rows) else np.empty((0, 0))
+    with np.errstate(invalid="ignore"):
+        wrong = ((size > LARGEST_VALUE) | ((size < 1.0 / LARGEST_VALUE) & (size != 0.0))).any(
+            axis=0) if size.size else np.zeros(0, dtype=bool)
+    if wrong.any():
+        # The first offending reading, refused in check_magnitudes' own words.
+        check_magnitudes(rows.points()[: int(np.argmax(wrong)) + 1], file=file)

@@ -34,16 +34,19 @@ import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from enum import StrEnum
-from typing import TYPE_CHECKING
+from functools import cached_property
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from calib.errors import InputError
 from calib.fit.calcurve import CalibrationCurve
-from calib.fit.inverse import InversePrediction, inverse_predict, inverse_predict_many
+from calib.fit.inverse import InversePrediction, inverse_predict
 from calib.fit.qc import QcRule, QcSummary, judge_qcs
 from calib.options import SampleType
+from calib.quantify.results import ResultColumns, quantify_rows
 from calib.quantify.samples import Reading
+from calib.quantify.sampletable import SampleRows
 from calib.tabular import Tabular
 
 if TYPE_CHECKING:
@@ -91,6 +94,25 @@ class ReportingConvention:
         exponent = math.floor(math.log10(abs(float(f"{value:.{self.digits}g}"))))
         decimals = max(self.digits - 1 - exponent, 0)
         return f"{round(value, decimals):.{decimals}f}"
+
+    def numbers(self, values: np.ndarray) -> list[str]:
+        """:meth:`number` of every value, the exponents worked out a column at a time."""
+        values = np.asarray(values, dtype=float)
+        d = self.digits
+        size = np.abs(values)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            exponent = np.floor(np.log10(size))
+            mantissa = size / 10.0 ** exponent
+        # Where rounding to d digits may reach a power of ten (or log10 may be off by one
+        # next to one), the value takes the one-at-a-time path.
+        step = 10.0 ** (1 - d)
+        clear = np.isfinite(mantissa) & (mantissa >= 1 + step) & (mantissa <= 10 - step) \
+            & (size != 0)
+        decimals = np.maximum(d - 1 - np.where(clear, exponent, 0), 0).astype(int).tolist()
+        out = []
+        for v, n, ok in zip(values.tolist(), decimals, clear.tolist(), strict=True):
+            out.append(f"{round(v, n):.{n}f}" if ok else self.number(v))
+        return out
 
 
 @dataclass(frozen=True)
@@ -318,46 +340,26 @@ def _mean_response(usable: Sequence[Reading]) -> float | None:
     return float(np.mean([r.point.response for r in usable]))
 
 
-def _read_back(curves: Mapping[str, CalibrationCurve], groups: Sequence[Sequence[Reading]],
-               refused: Mapping[str, str], confidence: float | None
-               ) -> list[InversePrediction | None]:
-    """Every usable sample read back, one vectorised pass per analyte's curve."""
-    out: list[InversePrediction | None] = [None] * len(groups)
-    todo: dict[str, tuple[list[int], list[float], list[int]]] = {}
-    for i, group in enumerate(groups):
-        analyte = group[0].point.analyte
-        if analyte not in curves or analyte in refused:
-            continue
-        usable = _usable(group)
-        mean = _mean_response(usable)
-        if mean is None:
-            continue
-        at, ys, ms = todo.setdefault(analyte, ([], [], []))
-        at.append(i)
-        ys.append(mean)
-        ms.append(len(usable))
-    for analyte, (at, ys, ms) in todo.items():
-        many = inverse_predict_many(curves[analyte], np.array(ys), np.array(ms),
-                                    confidence=confidence)
-        for i, pred in zip(at, many.predictions(), strict=True):
-            out[i] = pred
-    return out
-
-
 def _content_factor(curve: CalibrationCurve | None, reading: Reading
                     ) -> tuple[float, str] | None:
     """V/m and the content unit when the sample has a weight and a final volume."""
     if curve is None or reading.mass_kg is None or reading.volume_l is None:
         return None
+    point = reading.point
+    return _amount_factor(curve.unit, reading.volume_l, reading.mass_kg,
+                          f"{point.sample_id or point.source_cell} ({point.source_cell})")
+
+
+def _amount_factor(unit: str | None, volume_l: float, mass_kg: float, sample: str
+                   ) -> tuple[float, str]:
     from calib.quantify.amounts import content_factor
 
     try:
-        return content_factor(curve.unit, reading.volume_l, reading.mass_kg)
+        return content_factor(unit, volume_l, mass_kg)
     except ValueError as exc:
-        raise InputError(f"sample {reading.point.sample_id or reading.point.source_cell} "
-                         f"({reading.point.source_cell}) gives a sample weight and a final "
-                         f"volume, but {exc}: the content cannot be worked out (give the "
-                         f"curve's unit, for example with --map [units])") from None
+        raise InputError(f"sample {sample} gives a sample weight and a final volume, but {exc}: "
+                         f"the content cannot be worked out (give the curve's unit, for example "
+                         f"with --map [units])") from None
 
 
 def group_readings(readings: Sequence[Reading]) -> list[list[Reading]]:
@@ -403,8 +405,9 @@ class Batch(Tabular):
     ----------
     curves : dict of analyte to CalibrationCurve
         The curves the samples were read against.
-    samples : tuple of SampleResult
-        Every sample, in order of first appearance.
+    table : ResultColumns
+        Every sample, in order of first appearance, as columns (:attr:`samples`
+        gives them as :class:`SampleResult` objects).
     qc : tuple of QcSummary
         One per analyte of the samples whose curve was used, in order of first appearance
         (``not-evaluated`` when it has no QCs).
@@ -421,13 +424,18 @@ class Batch(Tabular):
     """
 
     curves: dict[str, CalibrationCurve]
-    samples: tuple[SampleResult, ...]
+    table: ResultColumns
     qc: tuple[QcSummary, ...]
     confidence: float | None
     forced: tuple[str, ...]
     refused: dict[str, str]
     verdict: str
     reasons: tuple[str, ...] = field(default=())
+
+    @cached_property
+    def samples(self) -> tuple[SampleResult, ...]:
+        """Every sample, in order of first appearance (built from :attr:`table` on first use)."""
+        return self.table.results()
 
     def to_frame(self) -> pd.DataFrame:
         """One row per sample, as a pandas DataFrame (shown as a table in Jupyter)."""
@@ -441,7 +449,7 @@ _RANK = {"accepted": 0, "needs-review": 1, "rejected": 2}
 
 def quantify(
     curves: Mapping[str, CalibrationCurve],
-    readings: Sequence[Reading],
+    readings: Sequence[Reading] | SampleRows,
     *,
     confidence: float | None = None,
     force: bool = False,
@@ -456,8 +464,9 @@ def quantify(
     ----------
     curves : mapping of analyte to CalibrationCurve
         The curves, each with its verdict.
-    readings : sequence of Reading
-        The unknowns' and QCs' injections.
+    readings : sequence of Reading, or SampleRows
+        The unknowns' and QCs' injections (a samples file's columns,
+        :attr:`calib.quantify.samples.SampleSheet.rows`, are read a column at a time).
     confidence : float, optional
         Interval level; each curve's own when None.
     force : bool
@@ -487,11 +496,13 @@ def quantify(
         When a reading's analyte has no curve at all.
     """
     unfitted = dict(unfitted or {})
-    for r in readings:
-        if r.point.analyte not in curves and r.point.analyte not in unfitted:
+    rows = readings if isinstance(readings, SampleRows) else SampleRows.from_readings(readings)
+    for analyte in dict.fromkeys(rows.analyte):
+        if analyte not in curves and analyte not in unfitted:
+            r = rows.analyte.index(analyte)
+            sid, cell = rows.sample_id[r], rows.source_cell[r]
             known = ", ".join(list(curves) + list(unfitted)) or "none"
-            raise InputError(f"sample {r.point.sample_id or r.point.source_cell} "
-                             f"({r.point.source_cell}) is of analyte {r.point.analyte!r}, which "
+            raise InputError(f"sample {sid or cell} ({cell}) is of analyte {analyte!r}, which "
                              f"has no curve (curves: {known})")
     refused: dict[str, str] = {a: f"no fitted curve: {why}" for a, why in unfitted.items()}
     forced: list[str] = []
@@ -502,16 +513,34 @@ def quantify(
             else:
                 refused[analyte] = ("the curve was rejected; its samples are not quantified "
                                     "(force quantifies them anyway, flagged)")
-    groups = group_readings(readings)
-    predictions = _read_back(curves, groups, refused, confidence)
-    results = tuple(
-        quantify_sample(curves.get(g[0].point.analyte), g, confidence=confidence,
-                        convention=_convention(convention, digits, g[0].point.analyte),
-                        refused=refused.get(g[0].point.analyte),
-                        forced=g[0].point.analyte in forced, prediction=pred)
-        for g, pred in zip(groups, predictions, strict=True)
-    )
-    needed = list(dict.fromkeys(r.analyte for r in results))
+    conventions: dict[str, ReportingConvention] = {}
+
+    def convention_of(analyte: str) -> ReportingConvention:
+        if analyte not in conventions:
+            conventions[analyte] = _convention(convention, digits, analyte) \
+                or ReportingConvention()
+        return conventions[analyte]
+
+    def content_of(curve: CalibrationCurve, r: int) -> tuple[float, str] | None:
+        mass, volume = rows.mass_kg[r], rows.volume_l[r]
+        if mass is None or volume is None:
+            return None
+        key = (curve.unit, volume, mass)
+        if key not in factors:
+            sid, cell = rows.sample_id[r], rows.source_cell[r]
+            factors[key] = _amount_factor(curve.unit, volume, mass, f"{sid or cell} ({cell})")
+        return factors[key]
+
+    factors: dict[tuple[Any, ...], tuple[float, str]] = {}
+    table = quantify_rows(curves, rows, refused=refused, forced=forced, confidence=confidence,
+                          convention_of=convention_of, content_factor=content_of)
+    needed = list(dict.fromkeys(table.rows.analyte[r] for r in table.first.tolist()))
+    qcs: dict[str, list[tuple[str, float, float | None]]] = {}
+    ids = table.sample_ids()
+    for g, r in enumerate(table.first.tolist()):
+        if rows.sample_type[r] is SampleType.QC:
+            qcs.setdefault(rows.analyte[r], []).append(
+                (ids[g], float(rows.nominal[r]), table.found[g]))
     summaries = []
     verdict, reasons = "accepted", []
     for analyte in needed:
@@ -524,8 +553,8 @@ def quantify(
             verdict = max(verdict, curve.verdict, key=_RANK.__getitem__)
             state = "was rejected (quantified on request)" if analyte in forced else "needs review"
             reasons.append(f"{analyte}: the curve {state}")
-        summary = judge_qc_samples([r for r in results if r.analyte == analyte], curve=curve,
-                                   rule=qc_rule, analyte=analyte)
+        summary = judge_qcs(qcs.get(analyte, []), lloq=curve.lloq, rule=qc_rule,
+                            analyte=analyte, unit=curve.unit, uloq=curve.uloq)
         summaries.append(summary)
         if summary.verdict == "fail" and summary.rule.severity in ("reject", "review"):
             verdict = max(verdict, "rejected" if summary.rule.severity == "reject"
@@ -534,7 +563,7 @@ def quantify(
         elif summary.verdict == "not-evaluated" and summary.rule.severity == "reject":
             verdict = max(verdict, "needs-review", key=_RANK.__getitem__)
             reasons.append(f"{analyte}: the QC rule could not be evaluated (no QC samples)")
-    return Batch(dict(curves), results, tuple(summaries), confidence, tuple(forced),
+    return Batch(dict(curves), table, tuple(summaries), confidence, tuple(forced),
                  {a: refused[a] for a in needed if a in refused}, verdict, tuple(reasons))
 
 

@@ -29,7 +29,6 @@ from typing import Any
 from calib import __version__
 from calib.cautions import CAUTIONS
 from calib.options import Model
-from calib.quantify.batch import SampleResult
 from calib.quantify.inverse import CLOSED_FORM, DELTA_METHOD
 from calib.quantify.qc import QcSummary
 from calib.quantify.workflow import QuantifyReport
@@ -44,43 +43,6 @@ def _num(value: float | None) -> float | None:
         return None
     value = float(value)
     return value if math.isfinite(value) else None
-
-
-def _sample(r: SampleResult) -> dict[str, Any]:
-    p = r.prediction
-    first = r.readings[0]
-    cells, set_aside = [], []
-    for x in r.readings:
-        point = x.point
-        cells.append(point.source_cell)
-        if not (point.included and math.isfinite(point.response)):
-            set_aside.append({"source_cell": point.source_cell,
-                              "reason": point.exclusion_reason or "no usable response"})
-    return {
-        "sample_id": r.sample_id,
-        "analyte": r.analyte,
-        "sample_type": r.sample_type.value,
-        "n_replicates": r.n_replicates,
-        "mean_response": _num(r.mean_response),
-        "concentration": _num(r.concentration),
-        "std_error": _num(r.std_error),
-        "ci_low": _num(r.ci_low),
-        "ci_high": _num(r.ci_high),
-        "confidence": p.confidence if p is not None else None,
-        "dilution_factor": r.dilution_factor,
-        "flags": list(r.flags),
-        "reported": r.reported,
-        "note": r.note,
-        "nominal": _num(r.nominal),
-        "found": _num(r.found),
-        "deviation_pct": _num(r.deviation_pct),
-        "content": _num(r.content),
-        "content_unit": r.content_unit,
-        "sample_weight_kg": first.mass_kg,
-        "final_volume_l": first.volume_l,
-        "source_cells": cells,
-        "set_aside": set_aside,
-    }
 
 
 def _qc(summary: QcSummary) -> dict[str, Any]:
@@ -151,7 +113,7 @@ def quantify_document(report: QuantifyReport) -> dict[str, Any]:
         "forced_analytes": list(batch.forced),
         "refused": dict(batch.refused),
         "curves": curves,
-        "samples": [_sample(r) for r in batch.samples],
+        "samples": batch.table.document_samples(),
         "qc": {"rule": source.qc_rule.as_dict(), "verdict": overall, "analytes": summaries},
         "verdict": batch.verdict,
         "reasons": list(batch.reasons),

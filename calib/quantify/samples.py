@@ -50,7 +50,6 @@ from calib.io.numbers import find_marker
 from calib.io.sampletypes import SampleTyper, type_from_name
 from calib.io.table import Grid, cell_reference
 from calib.options import SampleType
-from calib.quantify.sampletable import SampleRows, merge_rows, read_plain_rows
 from calib.quantify.samplefile import (
     DILUTION_HEADINGS,
     SAMPLE_MAP_COLUMNS,
@@ -63,6 +62,7 @@ from calib.quantify.samplefile import (
     no_header,
     text_grid,
 )
+from calib.quantify.sampletable import SampleRows, merge_rows, read_plain_rows
 from calib.run import Point, Run, SourceInfo
 
 __all__ = ["DILUTION_HEADINGS", "SAMPLE_MAP_COLUMNS", "VOLUME_HEADINGS", "WEIGHT_HEADINGS",

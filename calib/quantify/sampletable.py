@@ -257,17 +257,9 @@ def read_plain_rows(reader: Any, start: int, stop: int) -> tuple[SampleRows, lis
             bad[i] = True
             continue
         nom, dil = nominal[i], dilution[i]
-        if kind is SampleType.QC and (nom is None or nom <= 0):
-            bad[i] = True
-        elif dil is not None and (not dil > 0 or (dil < 1 and not below_one)):
-            bad[i] = True
-        elif amounts and not (mass[i] is not None and mass[i] > 0 and volume[i] is not None
+        if kind is SampleType.QC and (nom is None or nom <= 0) or dil is not None and (not dil > 0 or (dil < 1 and not below_one)) or amounts and not (mass[i] is not None and mass[i] > 0 and volume[i] is not None
                               and volume[i] > 0) and not (
-                kind is SampleType.QC and mass[i] is None and volume[i] is None):
-            bad[i] = True
-        elif response[i] is None or not (analytes[i] or fallback):
-            bad[i] = True
-        elif is_value is not None and (is_value[i] is None or not is_value[i] > 0):
+                kind is SampleType.QC and mass[i] is None and volume[i] is None) or response[i] is None or not (analytes[i] or fallback) or is_value is not None and (is_value[i] is None or not is_value[i] > 0):
             bad[i] = True
     keep = [i for i in range(n) if not bad[i]]
     left = [start + i for i in range(n) if bad[i]]

@@ -1,0 +1,335 @@
+"""A batch's results as columns: every sample's figures, flags and reported value at once.
+
+:func:`quantify_rows` applies the rules of :func:`calib.quantify.batch.quantify_sample`
+to all samples together (one pass of :func:`calib.fit.inverse.inverse_predict_many`
+per curve, flags and reported values per column); :class:`ResultColumns`
+builds :class:`~calib.quantify.batch.SampleResult` objects only when a caller
+asks for them, and gives the ``samples`` of the ``calib.quantify/1`` document.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from calib.fit.calcurve import CalibrationCurve
+from calib.fit.inverse import InversePrediction, inverse_predict_many
+from calib.options import SampleType
+from calib.quantify.sampletable import SampleRows
+
+if TYPE_CHECKING:
+    from calib.quantify.batch import ReportingConvention, SampleResult
+
+__all__ = ["ResultColumns", "quantify_rows"]
+
+# Flag bits, in the order the flags are listed.
+_FORCED, _REVIEW, _NO_READING, _ABOVE, _OUTSIDE, _LLOQ, _LOD, _REJECTED = (
+    1, 2, 4, 8, 16, 32, 64, 128)
+_WORDS = ((_FORCED, "forced"), (_REVIEW, "curve-needs-review"), (_NO_READING, "no-reading"),
+          (_ABOVE, "above-uloq"), (_ABOVE, "outside-range"), (_OUTSIDE, "outside-range"),
+          (_LLOQ, "below-lloq"), (_LOD, "below-lod"))
+
+
+def _flags(code: int) -> tuple[str, ...]:
+    if code & _REJECTED:
+        return ("curve-rejected",)
+    return tuple(word for bit, word in _WORDS if code & bit)
+
+
+def _optional(values: np.ndarray, present: np.ndarray) -> list[float | None]:
+    """``values`` as floats, None where absent or not finite."""
+    keep = present & np.isfinite(values)
+    out = values.tolist()
+    if not keep.all():
+        for i in np.flatnonzero(~keep).tolist():
+            out[i] = None
+    return out
+
+
+@dataclass(frozen=True, eq=False)
+class ResultColumns:
+    """Every sample of a batch, one entry per sample in order of first appearance.
+
+    ``first`` is the first injection of each sample in ``rows``; ``members``
+    gives the injections of a sample.  Figures absent for a sample are None.
+    """
+
+    rows: SampleRows
+    first: np.ndarray
+    order: np.ndarray
+    bounds: np.ndarray
+    n_usable: list[int]
+    mean: list[float | None]
+    concentration: list[float | None]
+    std_error: list[float | None]
+    ci_low: list[float | None]
+    ci_high: list[float | None]
+    flags: list[tuple[str, ...]]
+    reported: list[str]
+    note: list[str]
+    found: list[float | None]
+    deviation: list[float | None]
+    content: list[float | None]
+    content_unit: list[str | None]
+    predicted: dict[int, tuple[float, float, float, int, float, str]]
+    """Sample → (ȳ₀, x₀, s(x₀), ν, t, method) where it was read back, and ``confidence`` below."""
+    confidence: dict[int, float]
+
+    def __len__(self) -> int:
+        return int(self.first.size)
+
+    def members(self, i: int) -> list[int]:
+        """The injections of sample ``i``, in file order."""
+        return self.order[self.bounds[i]:self.bounds[i + 1]].tolist()
+
+    def sample_ids(self) -> list[str]:
+        rows, first = self.rows, self.first.tolist()
+        return [rows.sample_id[r] or rows.source_cell[r] for r in first]
+
+    def prediction(self, i: int) -> InversePrediction | None:
+        found = self.predicted.get(i)
+        if found is None:
+            return None
+        y0, x0, se, df, t, method = found
+        return InversePrediction(y0, self.n_usable[i], x0, se, df, t, self.confidence[i], method)
+
+    def results(self) -> tuple[SampleResult, ...]:
+        """Every sample as a :class:`~calib.quantify.batch.SampleResult`."""
+        from calib.quantify.batch import SampleResult
+
+        rows = self.rows
+        readings = rows.readings
+        ids = self.sample_ids()
+        out = []
+        for i, r in enumerate(self.first.tolist()):
+            kind = rows.sample_type[r]
+            out.append(SampleResult(
+                sample_id=ids[i], analyte=rows.analyte[r], sample_type=kind,
+                readings=tuple(readings[j] for j in self.members(i)),
+                n_replicates=self.n_usable[i], mean_response=self.mean[i],
+                dilution_factor=float(rows.dilution[r]), prediction=self.prediction(i),
+                concentration=self.concentration[i], std_error=self.std_error[i],
+                ci_low=self.ci_low[i], ci_high=self.ci_high[i], flags=self.flags[i],
+                reported=self.reported[i], note=self.note[i],
+                nominal=float(rows.nominal[r]) if kind is SampleType.QC else None,
+                found=self.found[i], deviation_pct=self.deviation[i], content=self.content[i],
+                content_unit=self.content_unit[i]))
+        return tuple(out)
+
+    def document_samples(self) -> list[dict[str, Any]]:
+        """The ``samples`` of the ``calib.quantify/1`` document."""
+        rows, first = self.rows, self.first.tolist()
+        n = len(first)
+        usable = (rows.included & np.isfinite(rows.response)).tolist()
+        cells, aside = [], []
+        single = (self.bounds[1:] - self.bounds[:-1] == 1).tolist()
+        for i in range(n):
+            if single[i]:
+                r = first[i]
+                cells.append([rows.source_cell[r]])
+                aside.append([] if usable[r] else [_aside(rows, r)])
+            else:
+                members = self.members(i)
+                cells.append([rows.source_cell[j] for j in members])
+                aside.append([_aside(rows, j) for j in members if not usable[j]])
+        kinds = [rows.sample_type[r] for r in first]
+        nominal = _optional(rows.nominal[self.first], np.array(
+            [k is SampleType.QC for k in kinds], dtype=bool))
+        dilution = rows.dilution[self.first].tolist()
+        confidence = [self.confidence.get(i) for i in range(n)]
+        mass = [rows.mass_kg[r] for r in first]
+        volume = [rows.volume_l[r] for r in first]
+        columns = (self.sample_ids(), [rows.analyte[r] for r in first], [k.value for k in kinds],
+                   self.n_usable, self.mean, self.concentration, self.std_error, self.ci_low,
+                   self.ci_high, confidence, dilution, [list(f) for f in self.flags],
+                   self.reported, self.note, nominal, self.found,
+                   [None if d is None or not math.isfinite(d) else d for d in self.deviation],
+                   self.content,
+                   self.content_unit, mass, volume, cells, aside)
+        return [dict(zip(SAMPLE_KEYS, values, strict=True)) for values in zip(*columns)]
+
+
+SAMPLE_KEYS = ("sample_id", "analyte", "sample_type", "n_replicates", "mean_response",
+               "concentration", "std_error", "ci_low", "ci_high", "confidence",
+               "dilution_factor", "flags", "reported", "note", "nominal", "found",
+               "deviation_pct", "content", "content_unit", "sample_weight_kg", "final_volume_l",
+               "source_cells", "set_aside")
+"""Keys of a sample in the ``calib.quantify/1`` document, in order."""
+
+
+def _aside(rows: SampleRows, j: int) -> dict[str, str]:
+    return {"source_cell": rows.source_cell[j],
+            "reason": rows.reason[j] or "no usable response"}
+
+
+def _group(rows: SampleRows) -> np.ndarray:
+    """Sample number of each injection: same analyte, type, id, dilution, weight and volume."""
+    index: dict[tuple[object, ...], int] = {}
+    ids = [s if s else c for s, c in zip(rows.sample_id, rows.source_cell, strict=True)]
+    kinds = [k.value for k in rows.sample_type]
+    found = [index.setdefault(key, len(index)) for key in zip(
+        rows.analyte, kinds, ids, rows.dilution.tolist(), rows.mass_kg, rows.volume_l,
+        strict=True)]
+    return np.array(found, dtype=np.int64)
+
+
+def _means(rows: SampleRows, gid: np.ndarray, order: np.ndarray, bounds: np.ndarray,
+           groups: int) -> tuple[np.ndarray, np.ndarray]:
+    """m and ȳ₀ of each sample: a plain left-to-right sum below 8 readings, np.mean above."""
+    usable = rows.included & np.isfinite(rows.response)
+    m = np.bincount(gid[usable], minlength=groups)
+    # bincount adds each sample's readings in file order, one after the other, as sum() does.
+    total = np.bincount(gid[usable], weights=rows.response[usable], minlength=groups)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = total / m
+    for g in np.flatnonzero(m >= 8).tolist():
+        members = order[bounds[g]:bounds[g + 1]]
+        mean[g] = float(np.mean(rows.response[members[usable[members]]]))
+    return m, mean
+
+
+def quantify_rows(
+    curves: Mapping[str, CalibrationCurve],
+    rows: SampleRows,
+    *,
+    refused: Mapping[str, str],
+    forced: Sequence[str],
+    confidence: float | None,
+    convention_of: Callable[[str], ReportingConvention],
+    content_factor: Callable[[CalibrationCurve, int], tuple[float, str] | None],
+) -> ResultColumns:
+    """Every sample's result, worked out a column at a time.
+
+    ``convention_of(analyte)`` gives the analyte's reporting convention and
+    ``content_factor(curve, row)`` the V/m factor and content unit of an
+    injection (None without a weight and volume; it raises for a unit that
+    cannot take one).
+    """
+    gid = _group(rows)
+    groups = int(gid.max()) + 1 if gid.size else 0
+    order = np.argsort(gid, kind="stable")
+    bounds = np.searchsorted(gid[order], np.arange(groups + 1))
+    first = order[bounds[:-1]] if groups else np.empty(0, dtype=np.int64)
+    m, mean = _means(rows, gid, order, bounds, groups)
+    first_l = first.tolist()
+    analytes = [rows.analyte[r] for r in first_l]
+    dilution = rows.dilution[first]
+    code = np.zeros(groups, dtype=np.int64)
+    reported: list[Any] = [None] * groups
+    note: list[str] = [""] * groups
+    x0 = np.full(groups, np.nan)
+    se = np.full(groups, np.nan)
+    half = np.full(groups, np.nan)
+    shown = np.zeros(groups, dtype=bool)
+    read = np.zeros(groups, dtype=bool)
+    predicted: dict[int, tuple[float, float, float, int, float, str]] = {}
+    level: dict[int, float] = {}
+    by_analyte: dict[str, list[int]] = {}
+    for g, a in enumerate(analytes):
+        by_analyte.setdefault(a, []).append(g)
+    content = np.full(groups, np.nan)
+    units: list[str | None] = [None] * groups
+    factors: dict[int, tuple[float, str]] = {}
+    if any(v is not None for v in rows.mass_kg):
+        for g, a in enumerate(analytes):
+            curve = curves.get(a)
+            if curve is not None and a not in refused:
+                factor = content_factor(curve, first_l[g])
+                if factor is not None:
+                    factors[g] = factor
+    for analyte, members in by_analyte.items():
+        at = np.array(members, dtype=np.int64)
+        curve = curves.get(analyte)
+        why = refused.get(analyte)
+        conv = convention_of(analyte)
+        if curve is None or why is not None:
+            code[at] = _REJECTED
+            for g in members:
+                reported[g], note[g] = conv.refused, why or "no curve"
+            continue
+        base = (_FORCED if analyte in forced else 0) | (
+            _REVIEW if curve.verdict == "needs-review" else 0)
+        code[at] = base
+        has = m[at] > 0
+        for g in at[~has].tolist():
+            code[g] |= _NO_READING
+            reported[g] = conv.no_reading
+            note[g] = "; ".join(dict.fromkeys(rows.reason[j] or "no reading"
+                                              for j in order[bounds[g]:bounds[g + 1]].tolist()))
+        at = at[has]
+        if not at.size:
+            continue
+        many = inverse_predict_many(curve, mean[at], m[at], confidence=confidence)
+        x, s = many.concentration, many.std_error
+        x0[at], se[at], read[at] = x, s, True
+        half[at] = many.t_critical * s
+        for g, y, xv, sv in zip(at.tolist(), many.response.tolist(), x.tolist(), s.tolist(),
+                                strict=True):
+            predicted[g] = (y, xv, sv, many.df, many.t_critical, many.method)
+            level[g] = many.confidence
+        eps = 1e-9 * max(curve.x_max - curve.x_min, abs(curve.x_max), 1e-300)
+        finite = np.isfinite(x)
+        above = finite & (x > curve.x_max + eps)
+        below = finite & (x < curve.x_min - eps)
+        if not finite.all():
+            from calib.quantify.batch import _side
+
+            for k in np.flatnonzero(~finite).tolist():
+                side = _side(curve, x[k], float(mean[at[k]]))
+                above[k], below[k] = side == "above", side == "below"
+        with np.errstate(invalid="ignore"):
+            below_lod = (~finite | (x < curve.lod)) if curve.lod is not None \
+                else np.zeros(x.shape, dtype=bool)
+            below_lloq = below | (x < curve.lloq * (1 - 1e-9))
+        below_lod &= ~above
+        below_lloq &= ~above
+        code[at] |= np.where(above, _ABOVE, 0) | np.where(below, _OUTSIDE, 0) \
+            | np.where(below_lloq, _LLOQ, 0) | np.where(below_lod, _LOD, 0)
+        shown[at] = ~above & ~below
+        numbers = conv.numbers(dilution[at] * x)
+        for k, g in enumerate(at.tolist()):
+            if above[k]:
+                reported[g], note[g] = conv.above_uloq, "dilute and re-run"
+            else:
+                reported[g] = (conv.below_lod if below_lod[k] else conv.below_lloq
+                               if below_lloq[k] else numbers[k])
+                if below[k]:
+                    note[g] = "below the calibrated range"
+    values = dilution * x0
+    concentration = _optional(values, shown)
+    std_error = _optional(dilution * se, shown)
+    ci_low = _optional(dilution * (x0 - half), shown)
+    ci_high = _optional(dilution * (x0 + half), shown)
+    for g, (factor, unit) in factors.items():
+        units[g] = unit
+        if concentration[g] is not None:
+            content[g] = concentration[g] * factor
+            value = content[g] if math.isfinite(content[g]) else None
+            conv = convention_of(analytes[g])
+            if not code[g] & (_LLOQ | _LOD) and value is not None:
+                reported[g] = f"{conv.number(value)} {unit}"
+            r = first_l[g]
+            note[g] = "; ".join(filter(None, [note[g], (
+                f"content = C × V / m with V = {rows.volume_l[r]:g} L, "
+                f"m = {rows.mass_kg[r]:g} kg")]))
+    qc = np.array([rows.sample_type[r] is SampleType.QC for r in first_l], dtype=bool)
+    found = _optional(values, qc & read)
+    deviation: list[float | None] = [None] * groups
+    for g in np.flatnonzero(qc & read).tolist():
+        nominal = float(rows.nominal[first_l[g]])
+        if found[g] is not None and nominal:
+            deviation[g] = 100 * (found[g] - nominal) / nominal  # type: ignore[operator]
+    codes = code.tolist()
+    table = {c: _flags(c) for c in set(codes)}
+    return ResultColumns(
+        rows=rows, first=first, order=order, bounds=bounds, n_usable=m.tolist(),
+        mean=[None if k == 0 else v for k, v in zip(m.tolist(), mean.tolist(), strict=True)],
+        concentration=concentration, std_error=std_error, ci_low=ci_low, ci_high=ci_high,
+        flags=[table[c] for c in codes], reported=reported, note=note, found=found,
+        deviation=deviation,
+        content=_optional(content, np.isfinite(content)), content_unit=units,
+        predicted=predicted, confidence=level)

@@ -23,17 +23,19 @@ never live objects.
 
 from __future__ import annotations
 
+import json
 import math
 from typing import Any
 
 from calib import __version__
 from calib.cautions import CAUTIONS
 from calib.options import Model
+from calib.quantify.batch import Batch
 from calib.quantify.inverse import CLOSED_FORM, DELTA_METHOD
 from calib.quantify.qc import QcSummary
 from calib.quantify.workflow import QuantifyReport
 
-__all__ = ["QUANTIFY_SCHEMA", "quantify_document"]
+__all__ = ["QUANTIFY_SCHEMA", "quantify_document", "quantify_json"]
 
 QUANTIFY_SCHEMA = "calib.quantify/1"
 
@@ -120,3 +122,16 @@ def quantify_document(report: QuantifyReport) -> dict[str, Any]:
         "notes": list(report.notes),
         "cautions": CAUTIONS,
     }
+
+
+def quantify_json(document: dict[str, Any], batch: Batch) -> str:
+    """``json.dumps(document, ensure_ascii=False, allow_nan=False)``, its samples written a column at a time.
+
+    ``document`` is :func:`quantify_document` of a report whose batch is ``batch``.
+    """
+    parts = []
+    for key, value in document.items():
+        text = batch.table.samples_json() if key == "samples" else json.dumps(
+            value, ensure_ascii=False, allow_nan=False)
+        parts.append(f"{json.dumps(key, ensure_ascii=False)}: {text}")
+    return "{" + ", ".join(parts) + "}"

@@ -9,9 +9,12 @@ asks for them, and gives the ``samples`` of the ``calib.quantify/1`` document.
 
 from __future__ import annotations
 
+import json
 import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
+from functools import cached_property
+from json.encoder import encode_basestring as _encode
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -120,37 +123,63 @@ class ResultColumns:
                 content_unit=self.content_unit[i]))
         return tuple(out)
 
-    def document_samples(self) -> list[dict[str, Any]]:
-        """The ``samples`` of the ``calib.quantify/1`` document."""
+    @cached_property
+    def document_columns(self) -> tuple[list[Any], ...]:
+        """The values of each of :data:`SAMPLE_KEYS`, a list per key, one entry per sample."""
         rows, first = self.rows, self.first.tolist()
         n = len(first)
         usable = (rows.included & np.isfinite(rows.response)).tolist()
-        cells, aside = [], []
+        cells: list[list[str]] = []
+        aside: list[list[dict[str, str]]] = []
         single = (self.bounds[1:] - self.bounds[:-1] == 1).tolist()
+        source = rows.source_cell
         for i in range(n):
             if single[i]:
                 r = first[i]
-                cells.append([rows.source_cell[r]])
+                cells.append([source[r]])
                 aside.append([] if usable[r] else [_aside(rows, r)])
             else:
                 members = self.members(i)
-                cells.append([rows.source_cell[j] for j in members])
+                cells.append([source[j] for j in members])
                 aside.append([_aside(rows, j) for j in members if not usable[j]])
         kinds = [rows.sample_type[r] for r in first]
         nominal = _optional(rows.nominal[self.first], np.array(
             [k is SampleType.QC for k in kinds], dtype=bool))
-        dilution = rows.dilution[self.first].tolist()
         confidence = [self.confidence.get(i) for i in range(n)]
-        mass = [rows.mass_kg[r] for r in first]
-        volume = [rows.volume_l[r] for r in first]
-        columns = (self.sample_ids(), [rows.analyte[r] for r in first], [k.value for k in kinds],
-                   self.n_usable, self.mean, self.concentration, self.std_error, self.ci_low,
-                   self.ci_high, confidence, dilution, [list(f) for f in self.flags],
-                   self.reported, self.note, nominal, self.found,
-                   [None if d is None or not math.isfinite(d) else d for d in self.deviation],
-                   self.content,
-                   self.content_unit, mass, volume, cells, aside)
-        return [dict(zip(SAMPLE_KEYS, values, strict=True)) for values in zip(*columns)]
+        deviation = [None if d is None or not math.isfinite(d) else d for d in self.deviation]
+        return (self.sample_ids(), [rows.analyte[r] for r in first], [k.value for k in kinds],
+                self.n_usable, self.mean, self.concentration, self.std_error, self.ci_low,
+                self.ci_high, confidence, rows.dilution[self.first].tolist(),
+                [list(f) for f in self.flags], self.reported, self.note, nominal, self.found,
+                deviation, self.content, self.content_unit, [rows.mass_kg[r] for r in first],
+                [rows.volume_l[r] for r in first], cells, aside)
+
+    def document_samples(self) -> list[dict[str, Any]]:
+        """The ``samples`` of the ``calib.quantify/1`` document (keys :data:`SAMPLE_KEYS`)."""
+        return [{"sample_id": a, "analyte": b, "sample_type": c, "n_replicates": d,
+                 "mean_response": e, "concentration": f, "std_error": g, "ci_low": h,
+                 "ci_high": i, "confidence": j, "dilution_factor": k, "flags": l,
+                 "reported": m, "note": n, "nominal": o, "found": p, "deviation_pct": q,
+                 "content": r, "content_unit": s, "sample_weight_kg": t, "final_volume_l": u,
+                 "source_cells": v, "set_aside": w}
+                for a, b, c, d, e, f, g, h, i, j, k, l, m, n, o, p, q, r, s, t, u, v, w
+                in zip(*self.document_columns, strict=True)]
+
+    def samples_json(self) -> str:
+        """``json.dumps(self.document_samples(), ensure_ascii=False)``, written a column at a time."""
+        n = len(self)
+        if n == 0:
+            return "[]"
+        pieces = [_json_column(key, values) for key, values in
+                  zip(SAMPLE_KEYS, self.document_columns, strict=True)]
+        width = 2 * len(SAMPLE_KEYS)
+        parts: list[str] = [""] * (width * n)
+        for j, key in enumerate(SAMPLE_KEYS):
+            head = f"{'}, {' if j == 0 else ', '}{_encode(key)}: "
+            parts[2 * j::width] = [head] * n
+            parts[2 * j + 1::width] = pieces[j]
+        parts[0] = parts[0][3:]
+        return "[" + "".join(parts) + "}]"
 
 
 SAMPLE_KEYS = ("sample_id", "analyte", "sample_type", "n_replicates", "mean_response",
@@ -159,6 +188,37 @@ SAMPLE_KEYS = ("sample_id", "analyte", "sample_type", "n_replicates", "mean_resp
                "deviation_pct", "content", "content_unit", "sample_weight_kg", "final_volume_l",
                "source_cells", "set_aside")
 """Keys of a sample in the ``calib.quantify/1`` document, in order."""
+
+
+def _json_column(key: str, values: list[Any]) -> list[str]:
+    """Each value as json.dumps (ensure_ascii=False) writes it."""
+    if key == "source_cells":
+        return ["[" + ", ".join(map(_encode, cells)) + "]" for cells in values]
+    if key in ("flags", "set_aside"):
+        seen: dict[tuple[Any, ...], str] = {}
+        out = []
+        for v in values:
+            if not v:
+                out.append("[]")
+                continue
+            found = seen.get(tuple(map(repr, v)))
+            if found is None:
+                found = seen[tuple(map(repr, v))] = json.dumps(v, ensure_ascii=False,
+                                                               allow_nan=False)
+            out.append(found)
+        return out
+    kinds = {type(v) for v in values}
+    if kinds <= {str, type(None)}:
+        out = list(map(_encode, [v or "" for v in values]))
+    elif kinds <= {float, int, type(None)}:
+        out = list(map(repr, values))
+        if float in kinds and ("nan" in out or "inf" in out or "-inf" in out):
+            raise ValueError(f"{key}: a value that is not finite has no JSON form")
+    else:
+        return [json.dumps(v, ensure_ascii=False, allow_nan=False) for v in values]
+    if None in values:
+        out = ["null" if v is None else text for v, text in zip(values, out, strict=True)]
+    return out
 
 
 def _aside(rows: SampleRows, j: int) -> dict[str, str]:

@@ -86,7 +86,7 @@ def run(args: argparse.Namespace) -> int:
         profile=args.profile, model=args.model, weighting=args.weighting,
         confidence=args.confidence, force=args.force, samples_map=args.map,
         ignore_internal_standard=args.ignore_internal_standard,
-        dilution_below_one=args.dilution_below_one)
+        dilution_below_one=args.dilution_below_one, sample_entries=not args.json)
     document = outcome.document
     if args.json:
         from calib.quantify.document import quantify_json

@@ -64,13 +64,16 @@ def _qc(summary: QcSummary) -> dict[str, Any]:
     }
 
 
-def quantify_document(report: QuantifyReport) -> dict[str, Any]:
+def quantify_document(report: QuantifyReport, *, samples: bool = True) -> dict[str, Any]:
     """Build the ``calib.quantify/1`` document of a quantified batch.
 
     Parameters
     ----------
     report : QuantifyReport
         From :func:`calib.quantify.workflow.quantify_files`.
+    samples : bool
+        False leaves ``samples`` an empty list (for :func:`quantify_json`, which
+        writes them from the batch's columns).
 
     Returns
     -------
@@ -115,7 +118,7 @@ def quantify_document(report: QuantifyReport) -> dict[str, Any]:
         "forced_analytes": list(batch.forced),
         "refused": dict(batch.refused),
         "curves": curves,
-        "samples": batch.table.document_samples(),
+        "samples": batch.table.document_samples() if samples else [],
         "qc": {"rule": source.qc_rule.as_dict(), "verdict": overall, "analytes": summaries},
         "verdict": batch.verdict,
         "reasons": list(batch.reasons),
@@ -125,9 +128,11 @@ def quantify_document(report: QuantifyReport) -> dict[str, Any]:
 
 
 def quantify_json(document: dict[str, Any], batch: Batch) -> str:
-    """``json.dumps(document, ensure_ascii=False, allow_nan=False)``, its samples written a column at a time.
+    """The document as ``json.dumps(..., ensure_ascii=False, allow_nan=False)`` writes it.
 
-    ``document`` is :func:`quantify_document` of a report whose batch is ``batch``.
+    The samples are written from ``batch`` a column at a time, so ``document``
+    may leave them out (:func:`quantify_document` with ``samples=False``); it
+    must be the document of a report whose batch is ``batch``.
     """
     parts = []
     for key, value in document.items():

@@ -9,6 +9,7 @@ asks for them, and gives the ``samples`` of the ``calib.quantify/1`` document.
 
 from __future__ import annotations
 
+import itertools
 import json
 import math
 from collections.abc import Callable, Mapping, Sequence
@@ -124,35 +125,56 @@ class ResultColumns:
         return tuple(out)
 
     @cached_property
-    def document_columns(self) -> tuple[list[Any], ...]:
-        """The values of each of :data:`SAMPLE_KEYS`, a list per key, one entry per sample."""
+    def _scalars(self) -> dict[str, list[Any]]:
+        """The document's values that are not lists, by key."""
         rows, first = self.rows, self.first.tolist()
         n = len(first)
-        usable = (rows.included & np.isfinite(rows.response)).tolist()
-        cells: list[list[str]] = []
-        aside: list[list[dict[str, str]]] = []
-        single = (self.bounds[1:] - self.bounds[:-1] == 1).tolist()
-        source = rows.source_cell
-        for i in range(n):
-            if single[i]:
-                r = first[i]
-                cells.append([source[r]])
-                aside.append([] if usable[r] else [_aside(rows, r)])
-            else:
-                members = self.members(i)
-                cells.append([source[j] for j in members])
-                aside.append([_aside(rows, j) for j in members if not usable[j]])
         kinds = [rows.sample_type[r] for r in first]
         nominal = _optional(rows.nominal[self.first], np.array(
             [k is SampleType.QC for k in kinds], dtype=bool))
-        confidence = [self.confidence.get(i) for i in range(n)]
-        deviation = [None if d is None or not math.isfinite(d) else d for d in self.deviation]
-        return (self.sample_ids(), [rows.analyte[r] for r in first], [k.value for k in kinds],
-                self.n_usable, self.mean, self.concentration, self.std_error, self.ci_low,
-                self.ci_high, confidence, rows.dilution[self.first].tolist(),
-                [list(f) for f in self.flags], self.reported, self.note, nominal, self.found,
-                deviation, self.content, self.content_unit, [rows.mass_kg[r] for r in first],
-                [rows.volume_l[r] for r in first], cells, aside)
+        return {
+            "sample_id": self.sample_ids(), "analyte": [rows.analyte[r] for r in first],
+            "sample_type": [k.value for k in kinds], "n_replicates": self.n_usable,
+            "mean_response": self.mean, "concentration": self.concentration,
+            "std_error": self.std_error, "ci_low": self.ci_low, "ci_high": self.ci_high,
+            "confidence": [self.confidence.get(i) for i in range(n)],
+            "dilution_factor": rows.dilution[self.first].tolist(), "reported": self.reported,
+            "note": self.note, "nominal": nominal, "found": self.found,
+            "deviation_pct": [None if d is None or not math.isfinite(d) else d
+                              for d in self.deviation],
+            "content": self.content, "content_unit": self.content_unit,
+            "sample_weight_kg": [rows.mass_kg[r] for r in first],
+            "final_volume_l": [rows.volume_l[r] for r in first]}
+
+    def _cells(self, convert: Callable[[str], str] | None = None) -> list[Any]:
+        """Each sample's source cells (``convert`` of each, joined as a JSON list, if given)."""
+        ends = self.bounds.tolist()
+        source = self.rows.source_cell
+        ordered = [source[j] for j in self.order.tolist()]
+        if convert is None:
+            return [ordered[a:b] for a, b in itertools.pairwise(ends)]
+        ordered = list(map(convert, ordered))
+        return ["[" + ", ".join(ordered[a:b]) + "]" for a, b in itertools.pairwise(ends)]
+
+    def _aside(self) -> list[list[dict[str, str]]]:
+        """Each sample's readings set aside, with the reason."""
+        rows = self.rows
+        n = len(self)
+        aside: list[list[dict[str, str]]] = [[] for _ in range(n)]
+        usable = rows.included & np.isfinite(rows.response)
+        if not usable.all():
+            gid = np.empty(len(rows), dtype=np.int64)
+            gid[self.order] = np.repeat(np.arange(n), np.diff(self.bounds))
+            for j in np.flatnonzero(~usable).tolist():
+                aside[int(gid[j])].append(_aside(rows, j))
+        return aside
+
+    @property
+    def document_columns(self) -> tuple[list[Any], ...]:
+        """The values of each of :data:`SAMPLE_KEYS`, a list per key, one entry per sample."""
+        found = dict(self._scalars, flags=[list(f) for f in self.flags],
+                     source_cells=self._cells(), set_aside=self._aside())
+        return tuple(found[key] for key in SAMPLE_KEYS)
 
     def document_samples(self) -> list[dict[str, Any]]:
         """The ``samples`` of the ``calib.quantify/1`` document (keys :data:`SAMPLE_KEYS`)."""
@@ -166,18 +188,47 @@ class ResultColumns:
                 in zip(*self.document_columns, strict=True)]
 
     def samples_json(self) -> str:
-        """``json.dumps(self.document_samples(), ensure_ascii=False)``, written a column at a time."""
+        """``json.dumps(self.document_samples(), ensure_ascii=False)``, written a column at a time.
+
+        A key whose value is the same for every sample is written once into
+        the text between the others.
+        """
         n = len(self)
         if n == 0:
             return "[]"
-        pieces = [_json_column(key, values) for key, values in
-                  zip(SAMPLE_KEYS, self.document_columns, strict=True)]
-        width = 2 * len(SAMPLE_KEYS)
+        texts: list[str | list[str]] = []
+        scalars = self._scalars
+        for key in SAMPLE_KEYS:
+            if key == "source_cells":
+                texts.append(self._cells(_encode))
+                continue
+            if key in ("flags", "set_aside"):
+                values: list[Any] = list(self.flags) if key == "flags" else self._aside()
+                same = values.count(values[0]) == n
+                texts.append(_json_value(list(values[0])) if same else _json_column(key, values))
+                continue
+            values = scalars[key]
+            same = values.count(values[0]) == n and type(values[0]) in (str, int, float,
+                                                                        type(None))
+            texts.append(_json_value(values[0]) if same else _json_column(key, values))
+        # Runs of constant text between the columns that vary.
+        joints, columns, joint = [], [], ""
+        for j, (key, text) in enumerate(zip(SAMPLE_KEYS, texts, strict=True)):
+            joint += f"{', ' if j else ''}{_encode(key)}: "
+            if isinstance(text, str):
+                joint += text
+            else:
+                joints.append(joint)
+                columns.append(text)
+                joint = ""
+        width = 2 * len(columns) + 1
         parts: list[str] = [""] * (width * n)
-        for j, key in enumerate(SAMPLE_KEYS):
-            head = f"{'}, {' if j == 0 else ', '}{_encode(key)}: "
-            parts[2 * j::width] = [head] * n
-            parts[2 * j + 1::width] = pieces[j]
+        for j, (head, column) in enumerate(zip(joints, columns, strict=True)):
+            parts[2 * j::width] = [("}, {" if j == 0 else "") + head] * n
+            parts[2 * j + 1::width] = column
+        parts[width - 1::width] = [joint] * n
+        if not columns:
+            parts[0::width] = ["}, {" + joint] * n
         parts[0] = parts[0][3:]
         return "[" + "".join(parts) + "}]"
 
@@ -190,32 +241,33 @@ SAMPLE_KEYS = ("sample_id", "analyte", "sample_type", "n_replicates", "mean_resp
 """Keys of a sample in the ``calib.quantify/1`` document, in order."""
 
 
+_STRINGS = frozenset(("sample_id", "analyte", "sample_type", "reported", "note", "content_unit"))
+
+
+def _json_value(value: Any) -> str:
+    return json.dumps(value, ensure_ascii=False, allow_nan=False)
+
+
 def _json_column(key: str, values: list[Any]) -> list[str]:
     """Each value as json.dumps (ensure_ascii=False) writes it."""
-    if key == "source_cells":
-        return ["[" + ", ".join(map(_encode, cells)) + "]" for cells in values]
     if key in ("flags", "set_aside"):
-        seen: dict[tuple[Any, ...], str] = {}
+        seen: dict[str, str] = {}
         out = []
         for v in values:
             if not v:
                 out.append("[]")
                 continue
-            found = seen.get(tuple(map(repr, v)))
-            if found is None:
-                found = seen[tuple(map(repr, v))] = json.dumps(v, ensure_ascii=False,
-                                                               allow_nan=False)
-            out.append(found)
+            mark = repr(v)
+            if mark not in seen:
+                seen[mark] = _json_value(list(v))
+            out.append(seen[mark])
         return out
-    kinds = {type(v) for v in values}
-    if kinds <= {str, type(None)}:
+    if key in _STRINGS:
         out = list(map(_encode, [v or "" for v in values]))
-    elif kinds <= {float, int, type(None)}:
-        out = list(map(repr, values))
-        if float in kinds and ("nan" in out or "inf" in out or "-inf" in out):
-            raise ValueError(f"{key}: a value that is not finite has no JSON form")
     else:
-        return [json.dumps(v, ensure_ascii=False, allow_nan=False) for v in values]
+        out = list(map(repr, values))
+        if "nan" in out or "inf" in out or "-inf" in out:
+            raise ValueError(f"{key}: a value that is not finite has no JSON form")
     if None in values:
         out = ["null" if v is None else text for v, text in zip(values, out, strict=True)]
     return out

@@ -386,8 +386,8 @@ class _TableReader:
         if index is not None:
             for line in rows[start:]:
                 value = line[index] if index < len(line) else None
-                if type(value) is str and value and not value[0].isspace() or (
-                        value is not None and type(value) is not str):
+                if type(value) is str and value and (not value[0].isspace() or value.strip()) \
+                        or (value is not None and type(value) is not str):
                     stop += 1
                 else:
                     break

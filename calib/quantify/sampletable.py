@@ -35,6 +35,7 @@ __all__ = ["SampleRows", "read_plain_rows"]
 
 _QUANTIFIED = (SampleType.UNKNOWN, SampleType.QC)
 _WHOLE = re.compile(r"-?[0-9]{1,15}")
+_EXTRA = ("replicate", "injection_order", "is_response", "analyte_response", "level")
 
 
 @dataclass(frozen=True, eq=False)
@@ -94,7 +95,7 @@ class SampleRows:
                               for p in points], dtype=float),
             dilution=np.array([r.dilution_factor for r in readings], dtype=float),
             mass_kg=[r.mass_kg for r in readings], volume_l=[r.volume_l for r in readings],
-            extra={})
+            extra={key: [getattr(p, key) for p in points] for key in _EXTRA})
         rows.__dict__["readings"] = tuple(readings)
         return rows
 
@@ -105,8 +106,7 @@ class SampleRows:
 
         n = len(self)
         none = [None] * n
-        extra = {k: self.extra.get(k) or none for k in
-                 ("replicate", "injection_order", "is_response", "analyte_response", "level")}
+        extra = {k: self.extra.get(k) or none for k in _EXTRA}
         conc = [v if k is SampleType.QC else math.nan
                 for v, k in zip(self.nominal.tolist(), self.sample_type, strict=True)]
         return tuple(

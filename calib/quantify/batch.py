@@ -42,9 +42,9 @@ import numpy as np
 from calib.errors import InputError
 from calib.fit.calcurve import CalibrationCurve
 from calib.fit.inverse import InversePrediction, inverse_predict
-from calib.fit.qc import QcRule, QcSummary, judge_qcs
+from calib.fit.qc import QcRule, QcSummary, judge_qcs, sample_means
 from calib.options import SampleType
-from calib.quantify.results import ResultColumns, quantify_rows
+from calib.quantify.results import ResultColumns, SampleResult, _finite, _side, quantify_rows
 from calib.quantify.samples import Reading
 from calib.quantify.sampletable import SampleRows
 from calib.tabular import Tabular
@@ -113,94 +113,6 @@ class ReportingConvention:
         for v, n, ok in zip(values.tolist(), decimals, clear.tolist(), strict=True):
             out.append(f"{round(v, n):.{n}f}" if ok else self.number(v))
         return out
-
-
-@dataclass(frozen=True)
-class SampleResult:
-    """One sample's result.
-
-    Attributes
-    ----------
-    sample_id : str
-        Sample name (the source cell of its first reading when the file names none).
-    analyte : str
-        Analyte.
-    sample_type : SampleType
-        Unknown or QC.
-    readings : tuple of Reading
-        Every injection of the sample, set-aside ones included.
-    n_replicates : int
-        m, the readings averaged.
-    mean_response : float or None
-        ȳ₀.
-    dilution_factor : float
-        The factor applied.
-    prediction : InversePrediction or None
-        The read-back on the measured scale (before dilution); None without a
-        usable reading or curve.
-    concentration, std_error, ci_low, ci_high : float or None
-        D·x₀, D·s(x₀) and D·(x₀ ∓ t·s(x₀)); None outside the calibrated range.
-    flags : tuple of str
-        :class:`Flag` values.
-    reported : str
-        The value as reported: a number, or the convention's words.
-    note : str
-        What to do or why, in plain words ("" when nothing).
-    nominal : float or None
-        A QC's nominal concentration.
-    found : float or None
-        A QC's read-back concentration D·x₀, also just outside the range (for
-        its deviation only).
-    deviation_pct : float or None
-        A QC's 100·(found − nominal)/nominal.
-    content : float or None
-        The sample's content D·x₀·V/m when the file gives its weight m and
-        final volume V (:mod:`calib.quantify.amounts`); None otherwise or
-        outside the calibrated range.  ``reported`` then gives it with its unit.
-    content_unit : str or None
-        The content's unit (``mg/kg``) when weight and volume were given.
-    """
-
-    sample_id: str
-    analyte: str
-    sample_type: SampleType
-    readings: tuple[Reading, ...]
-    n_replicates: int
-    mean_response: float | None
-    dilution_factor: float
-    prediction: InversePrediction | None
-    concentration: float | None
-    std_error: float | None
-    ci_low: float | None
-    ci_high: float | None
-    flags: tuple[str, ...]
-    reported: str
-    note: str = ""
-    nominal: float | None = None
-    found: float | None = None
-    deviation_pct: float | None = None
-    content: float | None = None
-    content_unit: str | None = None
-
-
-def _finite(value: float) -> float | None:
-    return float(value) if math.isfinite(value) else None
-
-
-def _side(curve: CalibrationCurve, x0: float, response: float) -> str:
-    """``above``, ``below`` or ``inside`` the calibrated range."""
-    eps = 1e-9 * max(curve.x_max - curve.x_min, abs(curve.x_max), 1e-300)
-    if math.isfinite(x0):
-        if x0 > curve.x_max + eps:
-            return "above"
-        if x0 < curve.x_min - eps:
-            return "below"
-        return "inside"
-    # The curve never reaches the response (a quadratic beyond its turning point):
-    # the side is the one the response lies beyond.
-    low, high = (float(v) for v in curve.predict(np.array([curve.x_min, curve.x_max])))
-    rising = high >= low
-    return "above" if (response > high) == rising else "below"
 
 
 def quantify_sample(
@@ -331,13 +243,12 @@ def _usable(readings: Sequence[Reading]) -> list[Reading]:
 
 
 def _mean_response(usable: Sequence[Reading]) -> float | None:
-    """ȳ₀; a plain sum for a few readings (the same figure as ``np.mean`` below 8 terms)."""
+    """ȳ₀ of the usable readings (:func:`calib.fit.qc.sample_means`); None without one."""
     if not usable:
         return None
-    if len(usable) < 8:
-        # numpy adds fewer than 8 terms one after the other, as sum() does.
-        return sum(r.point.response for r in usable) / len(usable)
-    return float(np.mean([r.point.response for r in usable]))
+    response = np.array([r.point.response for r in usable], dtype=float)
+    return float(sample_means(np.zeros(response.size, dtype=np.int64), response,
+                              np.ones(response.size, dtype=bool), 1)[1][0])
 
 
 def _content_factor(curve: CalibrationCurve | None, reading: Reading

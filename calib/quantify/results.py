@@ -22,13 +22,102 @@ import numpy as np
 
 from calib.fit.calcurve import CalibrationCurve
 from calib.fit.inverse import InversePrediction, inverse_predict_many
+from calib.fit.qc import sample_means, sample_numbers
 from calib.options import SampleType
-from calib.quantify.sampletable import SampleRows
+from calib.quantify.sampletable import Reading, SampleRows
 
 if TYPE_CHECKING:
-    from calib.quantify.batch import ReportingConvention, SampleResult
+    from calib.quantify.batch import ReportingConvention
 
-__all__ = ["ResultColumns", "quantify_rows"]
+__all__ = ["SAMPLE_KEYS", "ResultColumns", "SampleResult", "quantify_rows"]
+
+@dataclass(frozen=True)
+class SampleResult:
+    """One sample's result.
+
+    Attributes
+    ----------
+    sample_id : str
+        Sample name (the source cell of its first reading when the file names none).
+    analyte : str
+        Analyte.
+    sample_type : SampleType
+        Unknown or QC.
+    readings : tuple of Reading
+        Every injection of the sample, set-aside ones included.
+    n_replicates : int
+        m, the readings averaged.
+    mean_response : float or None
+        ȳ₀.
+    dilution_factor : float
+        The factor applied.
+    prediction : InversePrediction or None
+        The read-back on the measured scale (before dilution); None without a
+        usable reading or curve.
+    concentration, std_error, ci_low, ci_high : float or None
+        D·x₀, D·s(x₀) and D·(x₀ ∓ t·s(x₀)); None outside the calibrated range.
+    flags : tuple of str
+        :class:`Flag` values.
+    reported : str
+        The value as reported: a number, or the convention's words.
+    note : str
+        What to do or why, in plain words ("" when nothing).
+    nominal : float or None
+        A QC's nominal concentration.
+    found : float or None
+        A QC's read-back concentration D·x₀, also just outside the range (for
+        its deviation only).
+    deviation_pct : float or None
+        A QC's 100·(found − nominal)/nominal.
+    content : float or None
+        The sample's content D·x₀·V/m when the file gives its weight m and
+        final volume V (:mod:`calib.quantify.amounts`); None otherwise or
+        outside the calibrated range.  ``reported`` then gives it with its unit.
+    content_unit : str or None
+        The content's unit (``mg/kg``) when weight and volume were given.
+    """
+
+    sample_id: str
+    analyte: str
+    sample_type: SampleType
+    readings: tuple[Reading, ...]
+    n_replicates: int
+    mean_response: float | None
+    dilution_factor: float
+    prediction: InversePrediction | None
+    concentration: float | None
+    std_error: float | None
+    ci_low: float | None
+    ci_high: float | None
+    flags: tuple[str, ...]
+    reported: str
+    note: str = ""
+    nominal: float | None = None
+    found: float | None = None
+    deviation_pct: float | None = None
+    content: float | None = None
+    content_unit: str | None = None
+
+
+def _finite(value: float) -> float | None:
+    return float(value) if math.isfinite(value) else None
+
+
+def _side(curve: CalibrationCurve, x0: float, response: float) -> str:
+    """``above``, ``below`` or ``inside`` the calibrated range."""
+    eps = 1e-9 * max(curve.x_max - curve.x_min, abs(curve.x_max), 1e-300)
+    if math.isfinite(x0):
+        if x0 > curve.x_max + eps:
+            return "above"
+        if x0 < curve.x_min - eps:
+            return "below"
+        return "inside"
+    # The curve never reaches the response (a quadratic beyond its turning point):
+    # the side is the one the response lies beyond.
+    low, high = (float(v) for v in curve.predict(np.array([curve.x_min, curve.x_max])))
+    rising = high >= low
+    return "above" if (response > high) == rising else "below"
+
 
 # Flag bits, in the order the flags are listed.
 _FORCED, _REVIEW, _NO_READING, _ABOVE, _OUTSIDE, _LLOQ, _LOD, _REJECTED = (
@@ -103,8 +192,6 @@ class ResultColumns:
 
     def results(self) -> tuple[SampleResult, ...]:
         """Every sample as a :class:`~calib.quantify.batch.SampleResult`."""
-        from calib.quantify.batch import SampleResult
-
         rows = self.rows
         readings = rows.readings
         ids = self.sample_ids()
@@ -280,28 +367,10 @@ def _aside(rows: SampleRows, j: int) -> dict[str, str]:
 
 def _group(rows: SampleRows) -> np.ndarray:
     """Sample number of each injection: same analyte, type, id, dilution, weight and volume."""
-    index: dict[tuple[object, ...], int] = {}
     ids = [s if s else c for s, c in zip(rows.sample_id, rows.source_cell, strict=True)]
     kinds = [k.value for k in rows.sample_type]
-    found = [index.setdefault(key, len(index)) for key in zip(
-        rows.analyte, kinds, ids, rows.dilution.tolist(), rows.mass_kg, rows.volume_l,
-        strict=True)]
-    return np.array(found, dtype=np.int64)
-
-
-def _means(rows: SampleRows, gid: np.ndarray, order: np.ndarray, bounds: np.ndarray,
-           groups: int) -> tuple[np.ndarray, np.ndarray]:
-    """m and ȳ₀ of each sample: a plain left-to-right sum below 8 readings, np.mean above."""
-    usable = rows.included & np.isfinite(rows.response)
-    m = np.bincount(gid[usable], minlength=groups)
-    # bincount adds each sample's readings in file order, one after the other, as sum() does.
-    total = np.bincount(gid[usable], weights=rows.response[usable], minlength=groups)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = total / m
-    for g in np.flatnonzero(m >= 8).tolist():
-        members = order[bounds[g]:bounds[g + 1]]
-        mean[g] = float(np.mean(rows.response[members[usable[members]]]))
-    return m, mean
+    return sample_numbers(zip(rows.analyte, kinds, ids, rows.dilution.tolist(), rows.mass_kg,
+                              rows.volume_l, strict=True))
 
 
 def quantify_rows(
@@ -326,7 +395,8 @@ def quantify_rows(
     order = np.argsort(gid, kind="stable")
     bounds = np.searchsorted(gid[order], np.arange(groups + 1))
     first = order[bounds[:-1]] if groups else np.empty(0, dtype=np.int64)
-    m, mean = _means(rows, gid, order, bounds, groups)
+    m, mean = sample_means(gid, rows.response, rows.included & np.isfinite(rows.response),
+                           groups)
     first_l = first.tolist()
     analytes = [rows.analyte[r] for r in first_l]
     dilution = rows.dilution[first]
@@ -388,8 +458,6 @@ def quantify_rows(
         above = finite & (x > curve.x_max + eps)
         below = finite & (x < curve.x_min - eps)
         if not finite.all():
-            from calib.quantify.batch import _side
-
             for k in np.flatnonzero(~finite).tolist():
                 side = _side(curve, x[k], float(mean[at[k]]))
                 above[k], below[k] = side == "above", side == "below"

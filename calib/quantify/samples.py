@@ -42,6 +42,7 @@ from pathlib import Path
 import numpy as np
 
 from calib.errors import InputError
+from calib.fit.qc import dilution_of
 from calib.io.cells import Cell, CellError, is_blank, to_flag, to_integer, to_number, to_text
 from calib.io.columns import column_letter
 from calib.io.files import load_file
@@ -62,7 +63,7 @@ from calib.quantify.samplefile import (
     no_header,
     text_grid,
 )
-from calib.quantify.sampletable import SampleRows, merge_rows, read_plain_rows
+from calib.quantify.sampletable import Reading, SampleRows, merge_rows, read_plain_rows
 from calib.run import Point, Run, SourceInfo
 
 __all__ = ["DILUTION_HEADINGS", "SAMPLE_MAP_COLUMNS", "VOLUME_HEADINGS", "WEIGHT_HEADINGS",
@@ -72,28 +73,6 @@ __all__ = ["DILUTION_HEADINGS", "SAMPLE_MAP_COLUMNS", "VOLUME_HEADINGS", "WEIGHT
 _TEXT = (".csv", ".tsv", ".txt")
 _BOOKS = (".xlsx", ".xlsm", ".xls", ".ods")
 _WHAT = "a samples table (.xlsx, .xlsm, .xls, .ods, .csv, .tsv or .txt)"
-
-
-@dataclass(frozen=True)
-class Reading:
-    """One injection of a sample to quantify.
-
-    Attributes
-    ----------
-    point : Point
-        The injection as read (``sample_type`` unknown or QC; a QC's
-        ``concentration`` is its nominal, an unknown's is ``nan``).
-    dilution_factor : float
-        Factor the measured concentration is multiplied by (1 = undiluted).
-    mass_kg, volume_l : float or None
-        Sample weight (kg) and final volume (L) when the file gives them: the
-        result is then the content C × V / m (:mod:`calib.quantify.amounts`).
-    """
-
-    point: Point
-    dilution_factor: float = 1.0
-    mass_kg: float | None = None
-    volume_l: float | None = None
 
 
 @dataclass(frozen=True)
@@ -128,16 +107,6 @@ class SampleSheet:
 
 
 _PLAIN_NUMBER = re.compile(r"-?[0-9]{1,30}(?:\.[0-9]{1,30})?")
-
-
-def dilution_of(point: Point) -> float:
-    """The dilution factor of a run-file point: its own when the importer gives one, else 1."""
-    # A run importer that carries a dilution factor on the point is used as is.
-    value = getattr(point, "dilution_factor", None)
-    if isinstance(value, (int, float)) and not isinstance(value, bool) and value > 0 \
-            and math.isfinite(value):
-        return float(value)
-    return 1.0
 
 
 def readings_from_run(run: Run) -> tuple[Reading, ...]:

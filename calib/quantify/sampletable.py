@@ -18,7 +18,7 @@ import re
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from functools import cached_property
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
@@ -28,14 +28,33 @@ from calib.io.sampletypes import type_from_name
 from calib.options import SampleType
 from calib.run import Point
 
-if TYPE_CHECKING:
-    from calib.quantify.samples import Reading
-
-__all__ = ["SampleRows", "read_plain_rows"]
+__all__ = ["Reading", "SampleRows", "merge_rows", "read_plain_rows"]
 
 _QUANTIFIED = (SampleType.UNKNOWN, SampleType.QC)
 _WHOLE = re.compile(r"-?[0-9]{1,15}")
 _EXTRA = ("replicate", "injection_order", "is_response", "analyte_response", "level")
+
+
+@dataclass(frozen=True)
+class Reading:
+    """One injection of a sample to quantify.
+
+    Attributes
+    ----------
+    point : Point
+        The injection as read (``sample_type`` unknown or QC; a QC's
+        ``concentration`` is its nominal, an unknown's is ``nan``).
+    dilution_factor : float
+        Factor the measured concentration is multiplied by (1 = undiluted).
+    mass_kg, volume_l : float or None
+        Sample weight (kg) and final volume (L) when the file gives them: the
+        result is then the content C × V / m (:mod:`calib.quantify.amounts`).
+    """
+
+    point: Point
+    dilution_factor: float = 1.0
+    mass_kg: float | None = None
+    volume_l: float | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -102,8 +121,6 @@ class SampleRows:
     @cached_property
     def readings(self) -> tuple[Reading, ...]:
         """Every injection as a :class:`~calib.quantify.samples.Reading` (built once)."""
-        from calib.quantify.samples import Reading
-
         n = len(self)
         none = [None] * n
         extra = {k: self.extra.get(k) or none for k in _EXTRA}

@@ -168,9 +168,12 @@ class ResultColumns:
     deviation: list[float | None]
     content: list[float | None]
     content_unit: list[str | None]
-    predicted: dict[int, tuple[float, float, float, int, float, str]]
-    """Sample → (ȳ₀, x₀, s(x₀), ν, t, method) where it was read back, and ``confidence`` below."""
-    confidence: dict[int, float]
+    read: np.ndarray
+    """Whether each sample was read back from its curve (then ``x0`` and ``se`` hold x₀, s(x₀))."""
+    x0: np.ndarray
+    se: np.ndarray
+    how: dict[str, tuple[int, float, float, str]]
+    """Analyte → (ν, t, confidence, method) of the read-back from its curve."""
 
     def __len__(self) -> int:
         return int(self.first.size)
@@ -184,11 +187,19 @@ class ResultColumns:
         return [rows.sample_id[r] or rows.source_cell[r] for r in first]
 
     def prediction(self, i: int) -> InversePrediction | None:
-        found = self.predicted.get(i)
-        if found is None:
+        """Sample ``i``'s read-back on the measured scale; None where it was not read back."""
+        if not self.read[i]:
             return None
-        y0, x0, se, df, t, method = found
-        return InversePrediction(y0, self.n_usable[i], x0, se, df, t, self.confidence[i], method)
+        df, t, level, method = self.how[self.rows.analyte[int(self.first[i])]]
+        y0 = float(self.mean[i])  # type: ignore[arg-type]
+        return InversePrediction(y0, self.n_usable[i], float(self.x0[i]), float(self.se[i]), df,
+                                 t, level, method)
+
+    def confidence(self) -> list[float | None]:
+        """The interval level of each sample read back; None for the others."""
+        rows, how = self.rows, self.how
+        return [how[rows.analyte[r]][2] if ok else None
+                for r, ok in zip(self.first.tolist(), self.read.tolist(), strict=True)]
 
     def results(self) -> tuple[SampleResult, ...]:
         """Every sample as a :class:`~calib.quantify.batch.SampleResult`."""
@@ -215,7 +226,6 @@ class ResultColumns:
     def _scalars(self) -> dict[str, list[Any]]:
         """The document's values that are not lists, by key."""
         rows, first = self.rows, self.first.tolist()
-        n = len(first)
         kinds = [rows.sample_type[r] for r in first]
         nominal = _optional(rows.nominal[self.first], np.array(
             [k is SampleType.QC for k in kinds], dtype=bool))
@@ -224,7 +234,7 @@ class ResultColumns:
             "sample_type": [k.value for k in kinds], "n_replicates": self.n_usable,
             "mean_response": self.mean, "concentration": self.concentration,
             "std_error": self.std_error, "ci_low": self.ci_low, "ci_high": self.ci_high,
-            "confidence": [self.confidence.get(i) for i in range(n)],
+            "confidence": self.confidence(),
             "dilution_factor": rows.dilution[self.first].tolist(), "reported": self.reported,
             "note": self.note, "nominal": nominal, "found": self.found,
             "deviation_pct": [None if d is None or not math.isfinite(d) else d
@@ -401,15 +411,14 @@ def quantify_rows(
     analytes = [rows.analyte[r] for r in first_l]
     dilution = rows.dilution[first]
     code = np.zeros(groups, dtype=np.int64)
-    reported: list[Any] = [None] * groups
-    note: list[str] = [""] * groups
+    reported = np.empty(groups, dtype=object)
+    note = np.full(groups, "", dtype=object)
     x0 = np.full(groups, np.nan)
     se = np.full(groups, np.nan)
     half = np.full(groups, np.nan)
     shown = np.zeros(groups, dtype=bool)
     read = np.zeros(groups, dtype=bool)
-    predicted: dict[int, tuple[float, float, float, int, float, str]] = {}
-    level: dict[int, float] = {}
+    how: dict[str, tuple[int, float, float, str]] = {}
     by_analyte: dict[str, list[int]] = {}
     for g, a in enumerate(analytes):
         by_analyte.setdefault(a, []).append(g)
@@ -430,8 +439,7 @@ def quantify_rows(
         conv = convention_of(analyte)
         if curve is None or why is not None:
             code[at] = _REJECTED
-            for g in members:
-                reported[g], note[g] = conv.refused, why or "no curve"
+            reported[at], note[at] = conv.refused, why or "no curve"
             continue
         base = (_FORCED if analyte in forced else 0) | (
             _REVIEW if curve.verdict == "needs-review" else 0)
@@ -449,10 +457,7 @@ def quantify_rows(
         x, s = many.concentration, many.std_error
         x0[at], se[at], read[at] = x, s, True
         half[at] = many.t_critical * s
-        for g, y, xv, sv in zip(at.tolist(), many.response.tolist(), x.tolist(), s.tolist(),
-                                strict=True):
-            predicted[g] = (y, xv, sv, many.df, many.t_critical, many.method)
-            level[g] = many.confidence
+        how[analyte] = (many.df, many.t_critical, many.confidence, many.method)
         eps = 1e-9 * max(curve.x_max - curve.x_min, abs(curve.x_max), 1e-300)
         finite = np.isfinite(x)
         above = finite & (x > curve.x_max + eps)
@@ -470,15 +475,14 @@ def quantify_rows(
         code[at] |= np.where(above, _ABOVE, 0) | np.where(below, _OUTSIDE, 0) \
             | np.where(below_lloq, _LLOQ, 0) | np.where(below_lod, _LOD, 0)
         shown[at] = ~above & ~below
-        numbers = conv.numbers(dilution[at] * x)
-        for k, g in enumerate(at.tolist()):
-            if above[k]:
-                reported[g], note[g] = conv.above_uloq, "dilute and re-run"
-            else:
-                reported[g] = (conv.below_lod if below_lod[k] else conv.below_lloq
-                               if below_lloq[k] else numbers[k])
-                if below[k]:
-                    note[g] = "below the calibrated range"
+        words = np.empty(at.size, dtype=object)
+        words[:] = conv.numbers(dilution[at] * x)
+        words[below_lloq & ~below_lod] = conv.below_lloq
+        words[below_lod] = conv.below_lod
+        words[above] = conv.above_uloq
+        reported[at] = words
+        note[at[above]] = "dilute and re-run"
+        note[at[below]] = "below the calibrated range"
     values = dilution * x0
     concentration = _optional(values, shown)
     std_error = _optional(dilution * se, shown)
@@ -509,7 +513,8 @@ def quantify_rows(
         rows=rows, first=first, order=order, bounds=bounds, n_usable=m.tolist(),
         mean=[None if k == 0 else v for k, v in zip(m.tolist(), mean.tolist(), strict=True)],
         concentration=concentration, std_error=std_error, ci_low=ci_low, ci_high=ci_high,
-        flags=[table[c] for c in codes], reported=reported, note=note, found=found,
+        flags=[table[c] for c in codes], reported=reported.tolist(), note=note.tolist(),
+        found=found,
         deviation=deviation,
         content=_optional(content, np.isfinite(content)), content_unit=units,
-        predicted=predicted, confidence=level)
+        read=read, x0=x0, se=se, how=how)

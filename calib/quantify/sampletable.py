@@ -141,8 +141,21 @@ class SampleRows:
         return [r.point for r in self.readings]
 
 
+_PLAIN_COLUMN = re.compile(r"(?:-?[0-9]{1,30}(?:\.[0-9]{1,30})?)?(?:\n(?:-?[0-9]{1,30}"
+                           r"(?:\.[0-9]{1,30})?)?)*")
+
+
 def _numbers(values: list[Cell], plain: re.Pattern[str] | None) -> list[Any]:
     """Each cell as a float, None for an empty cell, or ``...`` where the row reader must decide."""
+    if plain is not None and values:
+        # A column of plain numbers and empty cells (a text file's, as a rule) in one match.
+        try:
+            joined = "\n".join(values)  # type: ignore[arg-type]
+        except TypeError:
+            joined = None
+        if joined is not None and joined.count("\n") == len(values) - 1 \
+                and _PLAIN_COLUMN.fullmatch(joined):
+            return [float(v) if v else None for v in values]  # type: ignore[arg-type]
     out: list[Any] = []
     append = out.append
     for v in values:

@@ -251,7 +251,8 @@ class ResultColumns:
         if convert is None:
             return [ordered[a:b] for a, b in itertools.pairwise(ends)]
         ordered = list(map(convert, ordered))
-        return ["[" + ", ".join(ordered[a:b]) + "]" for a, b in itertools.pairwise(ends)]
+        return ["[" + ordered[a] + "]" if b - a == 1 else "[" + ", ".join(ordered[a:b]) + "]"
+                for a, b in itertools.pairwise(ends)]
 
     def _aside(self) -> list[list[dict[str, str]]]:
         """Each sample's readings set aside, with the reason."""
@@ -361,6 +362,10 @@ def _json_column(key: str, values: list[Any]) -> list[str]:
         return out
     if key in _STRINGS:
         out = list(map(_encode, [v or "" for v in values]))
+    elif key in ("n_replicates", "dilution_factor", "confidence"):
+        # Few distinct values: each written once.
+        shown = {v: repr(v) for v in set(values)}
+        out = [shown[v] for v in values]
     else:
         out = list(map(repr, values))
         if "nan" in out or "inf" in out or "-inf" in out:

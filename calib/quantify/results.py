@@ -300,6 +300,9 @@ class ResultColumns:
             if key == "source_cells":
                 texts.append(self._cells(_encode))
                 continue
+            if key == "set_aside" and (self.rows.included & np.isfinite(self.rows.response)).all():
+                texts.append("[]")
+                continue
             if key in ("flags", "set_aside"):
                 values: list[Any] = list(self.flags) if key == "flags" else self._aside()
                 same = values.count(values[0]) == n

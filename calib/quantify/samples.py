@@ -45,6 +45,7 @@ from calib.errors import InputError
 from calib.fit.qc import dilution_of
 from calib.io.cells import Cell, CellError, is_blank, to_flag, to_integer, to_number, to_text
 from calib.io.columns import column_letter
+from calib.io.fastrows import column_of
 from calib.io.files import load_file
 from calib.io.limits import LARGEST_VALUE, check_magnitudes
 from calib.io.numbers import find_marker
@@ -353,13 +354,12 @@ class _TableReader:
         stop = start
         index = self.at.get("response")
         if index is not None:
-            for line in rows[start:]:
-                value = line[index] if index < len(line) else None
-                if type(value) is str and value and (not value[0].isspace() or value.strip()) \
-                        or (value is not None and type(value) is not str):
-                    stop += 1
-                else:
-                    break
+            body = rows[start:]
+            column = column_of(body, index, min(map(len, body), default=0))
+            # Cells that may be blank (a rare few), then the first that is.
+            maybe = [k for k, v in enumerate(column)
+                     if type(v) is not str or not v or v[0].isspace()]
+            stop = start + next((k for k in maybe if is_blank(column[k])), len(column))
         plain, at, left = read_plain_rows(self, start, stop)
         for row_index in left:
             self.row(row_index, list(rows[row_index]))

@@ -155,6 +155,8 @@ def _numbers(values: list[Cell], plain: re.Pattern[str] | None) -> list[Any]:
             joined = None
         if joined is not None and joined.count("\n") == len(values) - 1 \
                 and _PLAIN_COLUMN.fullmatch(joined):
+            if "" not in values:
+                return list(map(float, values))  # type: ignore[arg-type]
             return [float(v) if v else None for v in values]  # type: ignore[arg-type]
     out: list[Any] = []
     append = out.append
@@ -176,8 +178,26 @@ def _numbers(values: list[Cell], plain: re.Pattern[str] | None) -> list[Any]:
     return out
 
 
-def _texts(values: list[Cell]) -> list[str | None]:
-    return [(v.strip() or None) if type(v) is str else to_text(v) for v in values]
+def _texts(values: list[Cell], *, few: bool = False) -> list[str | None]:
+    """:func:`calib.io.cells.to_text` of each cell (``few``: of each distinct cell once)."""
+    if few:
+        seen: dict[Any, str | None] = {}
+        try:
+            if set(map(type, values)) == {str}:
+                return [seen[v] if v in seen else seen.setdefault(v, to_text(v))
+                        for v in values]
+            # Keyed with the type: True, 1 and 1.0 are equal keys but different cells.
+            return [seen[k] if k in seen else seen.setdefault(k, to_text(v))
+                    for v, k in zip(values, zip(map(type, values), values), strict=True)]
+        except TypeError:  # a cell that cannot be a key (none does today)
+            pass
+    try:
+        out: list[Any] = list(map(str.strip, values))  # type: ignore[arg-type]
+    except TypeError:  # not all text (a workbook's numbers, empty cells)
+        return [(v.strip() or None) if type(v) is str else to_text(v) for v in values]
+    if "" in out:
+        out = [v or None for v in out]
+    return out
 
 
 def _each(values: list[Cell], parse: Callable[[Cell], Any]) -> list[Any]:
@@ -185,14 +205,15 @@ def _each(values: list[Cell], parse: Callable[[Cell], Any]) -> list[Any]:
     seen: dict[Any, Any] = {}
     out = []
     for v in values:
+        key = (type(v), v)  # True, 1 and 1.0 are equal keys but different cells
         try:
-            found = seen[v]
+            found = seen[key]
         except KeyError:
             try:
                 found = parse(v)
             except CellError:
                 found = ...
-            seen[v] = found
+            seen[key] = found
         except TypeError:  # a cell that cannot be a key (none does today)
             found = ...
         out.append(found)
@@ -230,7 +251,7 @@ def read_plain_rows(reader: Any, start: int, stop: int) -> tuple[SampleRows, lis
         rule that refuses or sets aside, standards and blanks.
     """
     block = reader.grid.rows[start:stop]
-    width = min((len(r) for r in block), default=0)
+    width = min(map(len, block), default=0)
     cols = {name: column_of(block, spec[0], width) for name, spec in reader.columns.items()}
     n = len(block)
     bad = [False] * n
@@ -266,11 +287,11 @@ def read_plain_rows(reader: Any, start: int, stop: int) -> tuple[SampleRows, lis
                 bad[i] = True  # excluded, or a cell the row reader refuses
     kinds: list[Any]
     if "sample_type" in cols:
-        kinds = _each(_texts(cols["sample_type"]),
+        kinds = _each(_texts(cols["sample_type"], few=True),
                       lambda t: None if t is None else reader.typer.from_cell(t))
     else:
         kinds = [None] * n
-    analytes = _texts(cols["analyte"]) if "analyte" in cols else [None] * n
+    analytes = _texts(cols["analyte"], few=True) if "analyte" in cols else [None] * n
     fallback = reader.analyte or ""
     below_one = reader.dilution_below_one
     amounts = "sample_weight" in reader.columns
@@ -294,7 +315,7 @@ def read_plain_rows(reader: Any, start: int, stop: int) -> tuple[SampleRows, lis
     keep = [i for i in range(n) if not bad[i]]
     left = [start + i for i in range(n) if bad[i]]
     at = [start + i for i in keep]
-    y = np.array([response[i] for i in keep], dtype=float)
+    y = np.array(response if len(keep) == n else [response[i] for i in keep], dtype=float)
     extra: dict[str, list[Any]] = {}
     if is_value is not None:
         raw = y
@@ -311,6 +332,17 @@ def read_plain_rows(reader: Any, start: int, stop: int) -> tuple[SampleRows, lis
         extra["level"] = [levels[i] for i in keep]
     mass_unit, volume_unit = reader.mass_unit, reader.volume_unit
     prefix = reader.response_at
+    if len(keep) == n and not (fallback and None in analytes) and SampleType.QC not in kinds \
+            and "sample_weight" not in reader.columns:
+        # Every row an unknown read here, as in a large batch: the columns as they are.
+        rows = SampleRows(
+            analyte=analytes, sample_id=names, sample_type=kinds,  # type: ignore[arg-type]
+            source_cell=[f"{prefix}{r}" for r in range(start + 1, stop + 1)],
+            response=y, included=np.ones(n, dtype=bool), reason=[None] * n,
+            nominal=np.full(n, math.nan),
+            dilution=np.array([1.0 if d is None else d for d in dilution], dtype=float),
+            mass_kg=[None] * n, volume_l=[None] * n, extra=extra)
+        return rows, at, left
     rows = SampleRows(
         analyte=[analytes[i] or fallback for i in keep],
         sample_id=[names[i] for i in keep],

@@ -29,7 +29,7 @@ from calib.quantify.sampletable import Reading, SampleRows
 if TYPE_CHECKING:
     from calib.quantify.batch import ReportingConvention
 
-__all__ = ["SAMPLE_KEYS", "ResultColumns", "SampleResult", "quantify_rows"]
+__all__ = ["ResultColumns", "SampleResult", "quantify_rows"]
 
 @dataclass(frozen=True)
 class SampleResult:
@@ -269,13 +269,13 @@ class ResultColumns:
 
     @property
     def document_columns(self) -> tuple[list[Any], ...]:
-        """The values of each of :data:`SAMPLE_KEYS`, a list per key, one entry per sample."""
+        """The values of each of :data:`_SAMPLE_KEYS`, a list per key, one entry per sample."""
         found = dict(self._scalars, flags=[list(f) for f in self.flags],
                      source_cells=self._cells(), set_aside=self._aside())
-        return tuple(found[key] for key in SAMPLE_KEYS)
+        return tuple(found[key] for key in _SAMPLE_KEYS)
 
     def document_samples(self) -> list[dict[str, Any]]:
-        """The ``samples`` of the ``calib.quantify/1`` document (keys :data:`SAMPLE_KEYS`)."""
+        """The ``samples`` of the ``calib.quantify/1`` document (keys :data:`_SAMPLE_KEYS`)."""
         return [{"sample_id": a, "analyte": b, "sample_type": c, "n_replicates": d,
                  "mean_response": e, "concentration": f, "std_error": g, "ci_low": h,
                  "ci_high": i, "confidence": j, "dilution_factor": k, "flags": l,
@@ -296,7 +296,7 @@ class ResultColumns:
             return "[]"
         texts: list[str | list[str]] = []
         scalars = self._scalars
-        for key in SAMPLE_KEYS:
+        for key in _SAMPLE_KEYS:
             if key == "source_cells":
                 texts.append(self._cells(_encode))
                 continue
@@ -314,7 +314,7 @@ class ResultColumns:
             texts.append(_json_value(values[0]) if same else _json_column(key, values))
         # Runs of constant text between the columns that vary.
         joints, columns, joint = [], [], ""
-        for j, (key, text) in enumerate(zip(SAMPLE_KEYS, texts, strict=True)):
+        for j, (key, text) in enumerate(zip(_SAMPLE_KEYS, texts, strict=True)):
             joint += f"{', ' if j else ''}{_encode(key)}: "
             if isinstance(text, str):
                 joint += text
@@ -334,7 +334,7 @@ class ResultColumns:
         return "[" + "".join(parts) + "}]"
 
 
-SAMPLE_KEYS = ("sample_id", "analyte", "sample_type", "n_replicates", "mean_response",
+_SAMPLE_KEYS = ("sample_id", "analyte", "sample_type", "n_replicates", "mean_response",
                "concentration", "std_error", "ci_low", "ci_high", "confidence",
                "dilution_factor", "flags", "reported", "note", "nominal", "found",
                "deviation_pct", "content", "content_unit", "sample_weight_kg", "final_volume_l",

@@ -330,6 +330,7 @@ def quantify(
     xlsx: str | os.PathLike[str] | None = None,
     pdf: str | os.PathLike[str] | None = None,
     workbook: bool = False,
+    sample_entries: bool = True,
     **options: Any,
 ) -> QuantifyOutcome:
     """Quantify samples against a checked curve; write the workbook and PDF (both, or neither).
@@ -338,13 +339,16 @@ def quantify(
     (sheet, samples_sheet, profile, model, weighting, confidence, force...).
     The PDF is laid out with ``template`` (default: the lab's, see :func:`issue`).
     With ``workbook`` the results workbook is returned as bytes (for a download)
-    even when no ``xlsx`` file is written.
+    even when no ``xlsx`` file is written.  ``sample_entries=False`` leaves the
+    document's ``samples`` empty when nothing is written (for the JSON text only:
+    :func:`calib.quantify.document.quantify_json` writes them from the batch).
     """
     from calib.quantify.document import quantify_document
     from calib.quantify.workflow import quantify_files
 
     report = quantify_files(curve, samples, **options)
-    document = quantify_document(report)
+    document = quantify_document(report, samples=sample_entries or workbook or xlsx is not None
+                                 or pdf is not None)
     outputs = []
     book = None
     if xlsx is not None or workbook:

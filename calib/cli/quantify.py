@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 
 from calib.cli.common import (
@@ -96,11 +95,13 @@ def run(args: argparse.Namespace) -> int:
         profile=args.profile, model=args.model, weighting=args.weighting,
         confidence=args.confidence, force=args.force, samples_map=args.map,
         ignore_internal_standard=args.ignore_internal_standard,
-        dilution_below_one=args.dilution_below_one)
+        dilution_below_one=args.dilution_below_one, sample_entries=not args.json)
     document = outcome.document
     if args.json:
-        # One piece: json.dumps runs in C, json.dump streams through the Python encoder.
-        sys.stdout.write(json.dumps(document, ensure_ascii=False, allow_nan=False) + "\n")
+        from calib.quantify.document import quantify_json
+
+        # One piece, the samples written a column at a time (json.dumps' bytes).
+        sys.stdout.write(quantify_json(document, outcome.report.batch) + "\n")
         print(f"calib: caution: {document['cautions']}", file=sys.stderr)
     else:
         print(batch_text(document))

@@ -1,7 +1,10 @@
 """QC acceptance: how many quality-control samples read back within tolerance of nominal.
 
 Shared by the checks (the profile's ``qc`` rule) and ``calib quantify``, so it
-lives below both.
+lives below both, with what both do before judging: a point's dilution factor
+(:func:`dilution_of`), injections grouped into samples (:func:`sample_numbers`),
+the mean of each sample's usable readings (:func:`sample_means`) and the QCs
+read back from a curve (:func:`qc_found`).
 
 The rule (ICH M10, 2022, section 4.4, from memory): at least 2/3 of all QC
 samples within ±15 % of their nominal concentration (±20 % at the LLOQ), and
@@ -16,11 +19,18 @@ reaches) counts as outside tolerance.  Shares are compared after rounding to
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Hashable, Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-__all__ = ["QcLevel", "QcOutcome", "QcRule", "QcSummary", "judge_qcs"]
+import numpy as np
+
+if TYPE_CHECKING:
+    from calib.fit.calcurve import CalibrationCurve
+    from calib.run import Point
+
+__all__ = ["QcLevel", "QcOutcome", "QcRule", "QcSummary", "dilution_of", "judge_qcs",
+           "qc_found", "sample_means", "sample_numbers"]
 
 _PASS, _FAIL, _NOT_EVALUATED = "pass", "fail", "not-evaluated"
 
@@ -280,3 +290,89 @@ def judge_qcs(
     verdict = _PASS if overall and not weak and not short else _FAIL
     return QcSummary(analyte, rule, tuple(outcomes), tuple(levels), n, n_within, share, verdict,
                      detail + ".")
+
+
+def dilution_of(point: Any) -> float:
+    """The dilution factor of a point: its own when its reader gives a usable one, else 1.
+
+    Examples
+    --------
+    >>> from calib.run import Point
+    >>> dilution_of(Point("A", float("nan"), 1.0, "S!C2"))
+    1.0
+    """
+    value = getattr(point, "dilution_factor", None)
+    if isinstance(value, (int, float)) and not isinstance(value, bool) and value > 0 \
+            and math.isfinite(value):
+        return float(value)
+    return 1.0
+
+
+def sample_numbers(keys: Iterable[Hashable]) -> np.ndarray:
+    """The sample of each injection: equal keys are one sample, numbered by first appearance.
+
+    Examples
+    --------
+    >>> sample_numbers([("QC-L", 1.0), ("QC-M", 1.0), ("QC-L", 1.0), ("QC-L", 10.0)]).tolist()
+    [0, 1, 0, 2]
+    """
+    index: dict[Hashable, int] = {}
+    return np.array([index.setdefault(key, len(index)) for key in keys], dtype=np.int64)
+
+
+def sample_means(sample: np.ndarray, response: np.ndarray, usable: np.ndarray,
+                 count: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """m and ȳ₀ of each sample: the number and mean of its usable readings.
+
+    Below 8 readings the readings are added one after the other in file order
+    (the figure of Python's ``sum``, and of numpy's for so few terms); from 8
+    on, ``np.mean`` of them.  A sample without a usable reading has m = 0 and
+    ȳ₀ ``nan``.
+
+    Examples
+    --------
+    >>> m, mean = sample_means(np.array([0, 0, 1]), np.array([1.0, 2.0, 5.0]),
+    ...                        np.array([True, True, False]))
+    >>> m.tolist(), mean.tolist()
+    ([2, 0], [1.5, nan])
+    """
+    count = int(sample.max()) + 1 if count is None and sample.size else (count or 0)
+    m = np.bincount(sample[usable], minlength=count)
+    # bincount adds each sample's readings in file order, one after the other, as sum() does.
+    total = np.bincount(sample[usable], weights=response[usable], minlength=count)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = total / m
+    big = np.flatnonzero(m >= 8)
+    if big.size:
+        order = np.argsort(sample, kind="stable")
+        bounds = np.searchsorted(sample[order], np.arange(count + 1))
+        for g in big.tolist():
+            members = order[bounds[g]:bounds[g + 1]]
+            mean[g] = float(np.mean(response[members[usable[members]]]))
+    return m, mean
+
+
+def qc_found(curve: CalibrationCurve, qcs: Sequence[Point]
+             ) -> list[tuple[str, float, float | None]]:
+    """(sample id, nominal, D·x₀) of each QC sample read back from ``curve``; None when it is not.
+
+    Injections of one sample id at one dilution are one sample (a QC without
+    an id is one injection); its usable readings are averaged
+    (:func:`sample_means`) and read back from the curve, in order of first
+    appearance, as ``calib quantify`` reads them.
+    """
+    dilution = [dilution_of(p) for p in qcs]
+    sample = sample_numbers(zip((p.sample_id or p.source_cell for p in qcs), dilution))
+    response = np.array([p.response for p in qcs], dtype=float)
+    usable = np.array([p.included for p in qcs], dtype=bool) & np.isfinite(response)
+    m, mean = sample_means(sample, response, usable)
+    first = np.unique(sample, return_index=True)[1].tolist()
+    out: list[tuple[str, float, float | None]] = []
+    for g, i in enumerate(first):
+        point, found = qcs[i], None
+        if m[g]:
+            x0 = float(curve.concentration_at(float(mean[g]))[0])
+            found = dilution[i] * x0 if math.isfinite(dilution[i] * x0) else None
+        out.append((point.sample_id or point.source_cell, float(point.concentration or 0.0),
+                    found))
+    return out

@@ -36,7 +36,7 @@ from calib.io.limits import check_text_rows, check_text_width
 from calib.io.table import HEADER_SEARCH_ROWS, Grid
 from calib.run import Run, SourceInfo
 
-__all__ = ["DELIMITERS", "CsvReader", "decode_text"]
+__all__ = ["DELIMITERS", "CsvReader", "decode_text", "delimiters_for", "split_rows"]
 
 DELIMITERS = (",", ";", "\t", "|")
 """Delimiters tried, in this order after the sniffed one."""
@@ -130,7 +130,9 @@ def decode_text(raw: RawFile, *, encoding: str | None = None) -> tuple[str, str]
         raise _undecodable(raw, exc, "cp1252") from None
 
 
-def _rows(text: str, delimiter: str, *, raw: RawFile, limit: int | None) -> list[list[Cell]]:
+def split_rows(text: str, delimiter: str, *, raw: RawFile, limit: int | None
+               ) -> list[list[Cell]]:
+    """The first ``limit`` rows of the text (all when None) split at ``delimiter``."""
     check_text_width(text, delimiter, file=raw.given)
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     try:
@@ -150,6 +152,17 @@ def _candidates(text: str, *, first: str | None) -> list[str]:
     except csv.Error:
         sniffed = []
     return list(dict.fromkeys([*([first] if first else []), *sniffed, *DELIMITERS]))
+
+
+def delimiters_for(raw: RawFile, text: str, *, given: str | None = None) -> list[str]:
+    """The delimiters to try, in order: ``given`` (an import map's) alone, else the sniffed
+    one (a ``.tsv`` file's tab before it), then :data:`DELIMITERS`.
+
+    The caller keeps the first under which a row makes a header row.
+    """
+    if given:
+        return [given]
+    return _candidates(text, first="\t" if raw.path.suffix.lower() == ".tsv" else None)
 
 
 class CsvReader:
@@ -197,24 +210,20 @@ class CsvReader:
         imap = map
         text, encoding = decode_text(raw, encoding=imap.encoding if imap else None)
         check_text_rows(text.count("\n"), file=raw.given)
-        preferred = imap.delimiter if imap and imap.delimiter else (
-            "\t" if raw.path.suffix.lower() == ".tsv" else None)
-        candidates = _candidates(text, first=preferred)
-        if imap is not None and imap.delimiter:
-            candidates = [imap.delimiter]
+        candidates = delimiters_for(raw, text, given=imap.delimiter if imap else None)
         decimal = imap.decimal if imap is not None else None
         for delimiter in candidates:
-            head = _rows(text, delimiter, raw=raw, limit=HEADER_SEARCH_ROWS)
+            head = split_rows(text, delimiter, raw=raw, limit=HEADER_SEARCH_ROWS)
             if find_first_header(self._grid(head, raw, delimiter, decimal), imap=imap) is None:
                 continue
-            grid = self._grid(_rows(text, delimiter, raw=raw, limit=None), raw, delimiter,
+            grid = self._grid(split_rows(text, delimiter, raw=raw, limit=None), raw, delimiter,
                               decimal)
             source = SourceInfo(file=raw.name, sha256=raw.sha256, encoding=encoding,
                                 delimiter=delimiter, decimal_mark=decimal)
             return assemble([grid], source=source, analyte=analyte, imap=imap)
         # No delimiter gives a header: let the table builder say what it found.
         delimiter = candidates[0]
-        grid = self._grid(_rows(text, delimiter, raw=raw, limit=HEADER_SEARCH_ROWS), raw,
+        grid = self._grid(split_rows(text, delimiter, raw=raw, limit=HEADER_SEARCH_ROWS), raw,
                           delimiter, decimal)
         source = SourceInfo(file=raw.name, sha256=raw.sha256, encoding=encoding,
                             delimiter=delimiter)

@@ -37,7 +37,7 @@ from calib.io.table import HEADER_SEARCH_ROWS, Grid
 from calib.options import SampleType
 from calib.run import Run, SourceInfo
 
-__all__ = ["WorkbookReader"]
+__all__ = ["WorkbookReader", "sheet_named"]
 
 _WHAT = {
     ".xlsx": "an .xlsx workbook", ".xlsm": "an .xlsm workbook", ".xls": "an .xls workbook",
@@ -161,9 +161,19 @@ def _xls_empty(row: int, column: int) -> str:
 
 
 def _named(book: _Book, sheet: str | int) -> str:
-    names, file = book.names, book.raw.given
+    return sheet_named(book.names, sheet, file=book.raw.given, what=_what(book.raw))
+
+
+def sheet_named(names: Sequence[str], sheet: str | int, *, file: str, what: str) -> str:
+    """The sheet a caller names: by 0-based index, by name, or by name ignoring case.
+
+    Raises
+    ------
+    InputError
+        When no sheet (or more than one, ignoring case) answers to ``sheet``.
+    """
     if not names:
-        raise InputError(f"the workbook has no sheets; expected {_what(book.raw)}", file=file)
+        raise InputError(f"the workbook has no sheets; expected {what}", file=file)
     if isinstance(sheet, int):
         if sheet >= len(names):
             raise InputError(

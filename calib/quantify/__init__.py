@@ -4,15 +4,20 @@ The pipeline::
 
     calib.quantify.source    load_curves(path) -> CurveSource      run file (checked now) or record
     calib.quantify.samples   read_samples(path) -> SampleSheet     unknowns and QCs, dilution factors
+    calib.quantify.sampletable  SampleRows                         the injections as columns
     calib.quantify.inverse   inverse_predict(curve, y0, m=...)     x₀, s(x₀) and its interval
     calib.quantify.batch     quantify(curves, readings) -> Batch   flags, reported values, verdict
+    calib.quantify.results   ResultColumns                         every sample's result as columns
     calib.quantify.qc        judge_qcs(...) -> QcSummary           QC acceptance (2/3, half per level)
     calib.quantify.workflow  quantify_files(curve, samples)        all of the above in one call
     calib.quantify.document  quantify_document(report)             the calib.quantify/1 JSON
 
-The curve object, inverse prediction and the QC judgement live in
-:mod:`calib.fit` (``calcurve``, ``inverse``, ``qc``), below both this package
-and :mod:`calib.checks`: neither imports the other.  Names are imported
+The curve object, inverse prediction and the QC judgement (with the grouping
+of injections into samples and their means) live in :mod:`calib.fit`
+(``calcurve``, ``inverse``, ``qc``), below both this package and
+:mod:`calib.checks`: neither imports the other.  A samples file is read and
+quantified a column at a time; :class:`Reading` and :class:`SampleResult`
+objects are built only when asked for.  Names are imported
 lazily, so that ``import calib.quantify`` stays light.
 """
 

@@ -34,16 +34,19 @@ import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from enum import StrEnum
-from typing import TYPE_CHECKING
+from functools import cached_property
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from calib.errors import InputError
 from calib.fit.calcurve import CalibrationCurve
-from calib.fit.inverse import InversePrediction, inverse_predict, inverse_predict_many
-from calib.fit.qc import QcRule, QcSummary, judge_qcs
+from calib.fit.inverse import InversePrediction, inverse_predict
+from calib.fit.qc import QcRule, QcSummary, judge_qcs, sample_means
 from calib.options import SampleType
+from calib.quantify.results import ResultColumns, SampleResult, _finite, _side, quantify_rows
 from calib.quantify.samples import Reading
+from calib.quantify.sampletable import SampleRows
 from calib.tabular import Tabular
 
 if TYPE_CHECKING:
@@ -92,93 +95,24 @@ class ReportingConvention:
         decimals = max(self.digits - 1 - exponent, 0)
         return f"{round(value, decimals):.{decimals}f}"
 
-
-@dataclass(frozen=True)
-class SampleResult:
-    """One sample's result.
-
-    Attributes
-    ----------
-    sample_id : str
-        Sample name (the source cell of its first reading when the file names none).
-    analyte : str
-        Analyte.
-    sample_type : SampleType
-        Unknown or QC.
-    readings : tuple of Reading
-        Every injection of the sample, set-aside ones included.
-    n_replicates : int
-        m, the readings averaged.
-    mean_response : float or None
-        ȳ₀.
-    dilution_factor : float
-        The factor applied.
-    prediction : InversePrediction or None
-        The read-back on the measured scale (before dilution); None without a
-        usable reading or curve.
-    concentration, std_error, ci_low, ci_high : float or None
-        D·x₀, D·s(x₀) and D·(x₀ ∓ t·s(x₀)); None outside the calibrated range.
-    flags : tuple of str
-        :class:`Flag` values.
-    reported : str
-        The value as reported: a number, or the convention's words.
-    note : str
-        What to do or why, in plain words ("" when nothing).
-    nominal : float or None
-        A QC's nominal concentration.
-    found : float or None
-        A QC's read-back concentration D·x₀, also just outside the range (for
-        its deviation only).
-    deviation_pct : float or None
-        A QC's 100·(found − nominal)/nominal.
-    content : float or None
-        The sample's content D·x₀·V/m when the file gives its weight m and
-        final volume V (:mod:`calib.quantify.amounts`); None otherwise or
-        outside the calibrated range.  ``reported`` then gives it with its unit.
-    content_unit : str or None
-        The content's unit (``mg/kg``) when weight and volume were given.
-    """
-
-    sample_id: str
-    analyte: str
-    sample_type: SampleType
-    readings: tuple[Reading, ...]
-    n_replicates: int
-    mean_response: float | None
-    dilution_factor: float
-    prediction: InversePrediction | None
-    concentration: float | None
-    std_error: float | None
-    ci_low: float | None
-    ci_high: float | None
-    flags: tuple[str, ...]
-    reported: str
-    note: str = ""
-    nominal: float | None = None
-    found: float | None = None
-    deviation_pct: float | None = None
-    content: float | None = None
-    content_unit: str | None = None
-
-
-def _finite(value: float) -> float | None:
-    return float(value) if math.isfinite(value) else None
-
-
-def _side(curve: CalibrationCurve, x0: float, response: float) -> str:
-    """``above``, ``below`` or ``inside`` the calibrated range."""
-    eps = 1e-9 * max(curve.x_max - curve.x_min, abs(curve.x_max), 1e-300)
-    if math.isfinite(x0):
-        if x0 > curve.x_max + eps:
-            return "above"
-        if x0 < curve.x_min - eps:
-            return "below"
-        return "inside"
-    # The curve never reaches the response (a quadratic beyond its turning point):
-    # the side is the one the response lies beyond.
-    low, high = (float(v) for v in curve.predict(np.array([curve.x_min, curve.x_max])))
-    rising = high >= low
-    return "above" if (response > high) == rising else "below"
+    def numbers(self, values: np.ndarray) -> list[str]:
+        """:meth:`number` of every value, the exponents worked out a column at a time."""
+        values = np.asarray(values, dtype=float)
+        d = self.digits
+        size = np.abs(values)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            exponent = np.floor(np.log10(size))
+            mantissa = size / 10.0 ** exponent
+        # Where rounding to d digits may reach a power of ten (or log10 may be off by one
+        # next to one), the value takes the one-at-a-time path.
+        step = 10.0 ** (1 - d)
+        clear = np.isfinite(mantissa) & (mantissa >= 1 + step) & (mantissa <= 10 - step) \
+            & (size != 0)
+        decimals = np.maximum(d - 1 - np.where(clear, exponent, 0), 0).astype(int).tolist()
+        out = []
+        for v, n, ok in zip(values.tolist(), decimals, clear.tolist(), strict=True):
+            out.append(f"{round(v, n):.{n}f}" if ok else self.number(v))
+        return out
 
 
 def quantify_sample(
@@ -309,39 +243,12 @@ def _usable(readings: Sequence[Reading]) -> list[Reading]:
 
 
 def _mean_response(usable: Sequence[Reading]) -> float | None:
-    """ȳ₀; a plain sum for a few readings (the same figure as ``np.mean`` below 8 terms)."""
+    """ȳ₀ of the usable readings (:func:`calib.fit.qc.sample_means`); None without one."""
     if not usable:
         return None
-    if len(usable) < 8:
-        # numpy adds fewer than 8 terms one after the other, as sum() does.
-        return sum(r.point.response for r in usable) / len(usable)
-    return float(np.mean([r.point.response for r in usable]))
-
-
-def _read_back(curves: Mapping[str, CalibrationCurve], groups: Sequence[Sequence[Reading]],
-               refused: Mapping[str, str], confidence: float | None
-               ) -> list[InversePrediction | None]:
-    """Every usable sample read back, one vectorised pass per analyte's curve."""
-    out: list[InversePrediction | None] = [None] * len(groups)
-    todo: dict[str, tuple[list[int], list[float], list[int]]] = {}
-    for i, group in enumerate(groups):
-        analyte = group[0].point.analyte
-        if analyte not in curves or analyte in refused:
-            continue
-        usable = _usable(group)
-        mean = _mean_response(usable)
-        if mean is None:
-            continue
-        at, ys, ms = todo.setdefault(analyte, ([], [], []))
-        at.append(i)
-        ys.append(mean)
-        ms.append(len(usable))
-    for analyte, (at, ys, ms) in todo.items():
-        many = inverse_predict_many(curves[analyte], np.array(ys), np.array(ms),
-                                    confidence=confidence)
-        for i, pred in zip(at, many.predictions(), strict=True):
-            out[i] = pred
-    return out
+    response = np.array([r.point.response for r in usable], dtype=float)
+    return float(sample_means(np.zeros(response.size, dtype=np.int64), response,
+                              np.ones(response.size, dtype=bool), 1)[1][0])
 
 
 def _content_factor(curve: CalibrationCurve | None, reading: Reading
@@ -349,15 +256,21 @@ def _content_factor(curve: CalibrationCurve | None, reading: Reading
     """V/m and the content unit when the sample has a weight and a final volume."""
     if curve is None or reading.mass_kg is None or reading.volume_l is None:
         return None
+    point = reading.point
+    return _amount_factor(curve.unit, reading.volume_l, reading.mass_kg,
+                          f"{point.sample_id or point.source_cell} ({point.source_cell})")
+
+
+def _amount_factor(unit: str | None, volume_l: float, mass_kg: float, sample: str
+                   ) -> tuple[float, str]:
     from calib.quantify.amounts import content_factor
 
     try:
-        return content_factor(curve.unit, reading.volume_l, reading.mass_kg)
+        return content_factor(unit, volume_l, mass_kg)
     except ValueError as exc:
-        raise InputError(f"sample {reading.point.sample_id or reading.point.source_cell} "
-                         f"({reading.point.source_cell}) gives a sample weight and a final "
-                         f"volume, but {exc}: the content cannot be worked out (give the "
-                         f"curve's unit, for example with --map [units])") from None
+        raise InputError(f"sample {sample} gives a sample weight and a final volume, but {exc}: "
+                         f"the content cannot be worked out (give the curve's unit, for example "
+                         f"with --map [units])") from None
 
 
 def group_readings(readings: Sequence[Reading]) -> list[list[Reading]]:
@@ -403,8 +316,9 @@ class Batch(Tabular):
     ----------
     curves : dict of analyte to CalibrationCurve
         The curves the samples were read against.
-    samples : tuple of SampleResult
-        Every sample, in order of first appearance.
+    table : ResultColumns
+        Every sample, in order of first appearance, as columns (:attr:`samples`
+        gives them as :class:`SampleResult` objects).
     qc : tuple of QcSummary
         One per analyte of the samples whose curve was used, in order of first appearance
         (``not-evaluated`` when it has no QCs).
@@ -421,13 +335,18 @@ class Batch(Tabular):
     """
 
     curves: dict[str, CalibrationCurve]
-    samples: tuple[SampleResult, ...]
+    table: ResultColumns
     qc: tuple[QcSummary, ...]
     confidence: float | None
     forced: tuple[str, ...]
     refused: dict[str, str]
     verdict: str
     reasons: tuple[str, ...] = field(default=())
+
+    @cached_property
+    def samples(self) -> tuple[SampleResult, ...]:
+        """Every sample, in order of first appearance (built from :attr:`table` on first use)."""
+        return self.table.results()
 
     def to_frame(self) -> pd.DataFrame:
         """One row per sample, as a pandas DataFrame (shown as a table in Jupyter)."""
@@ -441,7 +360,7 @@ _RANK = {"accepted": 0, "needs-review": 1, "rejected": 2}
 
 def quantify(
     curves: Mapping[str, CalibrationCurve],
-    readings: Sequence[Reading],
+    readings: Sequence[Reading] | SampleRows,
     *,
     confidence: float | None = None,
     force: bool = False,
@@ -456,8 +375,9 @@ def quantify(
     ----------
     curves : mapping of analyte to CalibrationCurve
         The curves, each with its verdict.
-    readings : sequence of Reading
-        The unknowns' and QCs' injections.
+    readings : sequence of Reading, or SampleRows
+        The unknowns' and QCs' injections (a samples file's columns,
+        :attr:`calib.quantify.samples.SampleSheet.rows`, are read a column at a time).
     confidence : float, optional
         Interval level; each curve's own when None.
     force : bool
@@ -487,11 +407,13 @@ def quantify(
         When a reading's analyte has no curve at all.
     """
     unfitted = dict(unfitted or {})
-    for r in readings:
-        if r.point.analyte not in curves and r.point.analyte not in unfitted:
+    rows = readings if isinstance(readings, SampleRows) else SampleRows.from_readings(readings)
+    for analyte in dict.fromkeys(rows.analyte):
+        if analyte not in curves and analyte not in unfitted:
+            r = rows.analyte.index(analyte)
+            sid, cell = rows.sample_id[r], rows.source_cell[r]
             known = ", ".join(list(curves) + list(unfitted)) or "none"
-            raise InputError(f"sample {r.point.sample_id or r.point.source_cell} "
-                             f"({r.point.source_cell}) is of analyte {r.point.analyte!r}, which "
+            raise InputError(f"sample {sid or cell} ({cell}) is of analyte {analyte!r}, which "
                              f"has no curve (curves: {known})")
     refused: dict[str, str] = {a: f"no fitted curve: {why}" for a, why in unfitted.items()}
     forced: list[str] = []
@@ -502,16 +424,34 @@ def quantify(
             else:
                 refused[analyte] = ("the curve was rejected; its samples are not quantified "
                                     "(force quantifies them anyway, flagged)")
-    groups = group_readings(readings)
-    predictions = _read_back(curves, groups, refused, confidence)
-    results = tuple(
-        quantify_sample(curves.get(g[0].point.analyte), g, confidence=confidence,
-                        convention=_convention(convention, digits, g[0].point.analyte),
-                        refused=refused.get(g[0].point.analyte),
-                        forced=g[0].point.analyte in forced, prediction=pred)
-        for g, pred in zip(groups, predictions, strict=True)
-    )
-    needed = list(dict.fromkeys(r.analyte for r in results))
+    conventions: dict[str, ReportingConvention] = {}
+
+    def convention_of(analyte: str) -> ReportingConvention:
+        if analyte not in conventions:
+            conventions[analyte] = _convention(convention, digits, analyte) \
+                or ReportingConvention()
+        return conventions[analyte]
+
+    def content_of(curve: CalibrationCurve, r: int) -> tuple[float, str] | None:
+        mass, volume = rows.mass_kg[r], rows.volume_l[r]
+        if mass is None or volume is None:
+            return None
+        key = (curve.unit, volume, mass)
+        if key not in factors:
+            sid, cell = rows.sample_id[r], rows.source_cell[r]
+            factors[key] = _amount_factor(curve.unit, volume, mass, f"{sid or cell} ({cell})")
+        return factors[key]
+
+    factors: dict[tuple[Any, ...], tuple[float, str]] = {}
+    table = quantify_rows(curves, rows, refused=refused, forced=forced, confidence=confidence,
+                          convention_of=convention_of, content_factor=content_of)
+    needed = list(dict.fromkeys(table.rows.analyte[r] for r in table.first.tolist()))
+    qcs: dict[str, list[tuple[str, float, float | None]]] = {}
+    ids = table.sample_ids()
+    for g, r in enumerate(table.first.tolist()):
+        if rows.sample_type[r] is SampleType.QC:
+            qcs.setdefault(rows.analyte[r], []).append(
+                (ids[g], float(rows.nominal[r]), table.found[g]))
     summaries = []
     verdict, reasons = "accepted", []
     for analyte in needed:
@@ -524,8 +464,8 @@ def quantify(
             verdict = max(verdict, curve.verdict, key=_RANK.__getitem__)
             state = "was rejected (quantified on request)" if analyte in forced else "needs review"
             reasons.append(f"{analyte}: the curve {state}")
-        summary = judge_qc_samples([r for r in results if r.analyte == analyte], curve=curve,
-                                   rule=qc_rule, analyte=analyte)
+        summary = judge_qcs(qcs.get(analyte, []), lloq=curve.lloq, rule=qc_rule,
+                            analyte=analyte, unit=curve.unit, uloq=curve.uloq)
         summaries.append(summary)
         if summary.verdict == "fail" and summary.rule.severity in ("reject", "review"):
             verdict = max(verdict, "rejected" if summary.rule.severity == "reject"
@@ -534,7 +474,7 @@ def quantify(
         elif summary.verdict == "not-evaluated" and summary.rule.severity == "reject":
             verdict = max(verdict, "needs-review", key=_RANK.__getitem__)
             reasons.append(f"{analyte}: the QC rule could not be evaluated (no QC samples)")
-    return Batch(dict(curves), results, tuple(summaries), confidence, tuple(forced),
+    return Batch(dict(curves), table, tuple(summaries), confidence, tuple(forced),
                  {a: refused[a] for a in needed if a in refused}, verdict, tuple(reasons))
 
 

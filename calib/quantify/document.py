@@ -23,18 +23,19 @@ never live objects.
 
 from __future__ import annotations
 
+import json
 import math
 from typing import Any
 
 from calib import __version__
 from calib.cautions import CAUTIONS
 from calib.options import Model
-from calib.quantify.batch import SampleResult
+from calib.quantify.batch import Batch
 from calib.quantify.inverse import CLOSED_FORM, DELTA_METHOD
 from calib.quantify.qc import QcSummary
 from calib.quantify.workflow import QuantifyReport
 
-__all__ = ["QUANTIFY_SCHEMA", "quantify_document"]
+__all__ = ["QUANTIFY_SCHEMA", "quantify_document", "quantify_json"]
 
 QUANTIFY_SCHEMA = "calib.quantify/1"
 
@@ -44,43 +45,6 @@ def _num(value: float | None) -> float | None:
         return None
     value = float(value)
     return value if math.isfinite(value) else None
-
-
-def _sample(r: SampleResult) -> dict[str, Any]:
-    p = r.prediction
-    first = r.readings[0]
-    cells, set_aside = [], []
-    for x in r.readings:
-        point = x.point
-        cells.append(point.source_cell)
-        if not (point.included and math.isfinite(point.response)):
-            set_aside.append({"source_cell": point.source_cell,
-                              "reason": point.exclusion_reason or "no usable response"})
-    return {
-        "sample_id": r.sample_id,
-        "analyte": r.analyte,
-        "sample_type": r.sample_type.value,
-        "n_replicates": r.n_replicates,
-        "mean_response": _num(r.mean_response),
-        "concentration": _num(r.concentration),
-        "std_error": _num(r.std_error),
-        "ci_low": _num(r.ci_low),
-        "ci_high": _num(r.ci_high),
-        "confidence": p.confidence if p is not None else None,
-        "dilution_factor": r.dilution_factor,
-        "flags": list(r.flags),
-        "reported": r.reported,
-        "note": r.note,
-        "nominal": _num(r.nominal),
-        "found": _num(r.found),
-        "deviation_pct": _num(r.deviation_pct),
-        "content": _num(r.content),
-        "content_unit": r.content_unit,
-        "sample_weight_kg": first.mass_kg,
-        "final_volume_l": first.volume_l,
-        "source_cells": cells,
-        "set_aside": set_aside,
-    }
 
 
 def _qc(summary: QcSummary) -> dict[str, Any]:
@@ -100,13 +64,16 @@ def _qc(summary: QcSummary) -> dict[str, Any]:
     }
 
 
-def quantify_document(report: QuantifyReport) -> dict[str, Any]:
+def quantify_document(report: QuantifyReport, *, samples: bool = True) -> dict[str, Any]:
     """Build the ``calib.quantify/1`` document of a quantified batch.
 
     Parameters
     ----------
     report : QuantifyReport
         From :func:`calib.quantify.workflow.quantify_files`.
+    samples : bool
+        False leaves ``samples`` an empty list (for :func:`quantify_json`, which
+        writes them from the batch's columns).
 
     Returns
     -------
@@ -151,10 +118,25 @@ def quantify_document(report: QuantifyReport) -> dict[str, Any]:
         "forced_analytes": list(batch.forced),
         "refused": dict(batch.refused),
         "curves": curves,
-        "samples": [_sample(r) for r in batch.samples],
+        "samples": batch.table.document_samples() if samples else [],
         "qc": {"rule": source.qc_rule.as_dict(), "verdict": overall, "analytes": summaries},
         "verdict": batch.verdict,
         "reasons": list(batch.reasons),
         "notes": list(report.notes),
         "cautions": CAUTIONS,
     }
+
+
+def quantify_json(document: dict[str, Any], batch: Batch) -> str:
+    """The document as ``json.dumps(..., ensure_ascii=False, allow_nan=False)`` writes it.
+
+    The samples are written from ``batch`` a column at a time, so ``document``
+    may leave them out (:func:`quantify_document` with ``samples=False``); it
+    must be the document of a report whose batch is ``batch``.
+    """
+    parts = []
+    for key, value in document.items():
+        text = batch.table.samples_json() if key == "samples" else json.dumps(
+            value, ensure_ascii=False, allow_nan=False)
+        parts.append(f"{json.dumps(key, ensure_ascii=False)}: {text}")
+    return "{" + ", ".join(parts) + "}"

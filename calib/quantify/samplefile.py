@@ -10,8 +10,6 @@ memory limits (:mod:`calib.io.sandbox`), text files with its column limit.
 
 from __future__ import annotations
 
-import csv
-import io
 import os
 import tomllib
 from collections.abc import Mapping
@@ -23,18 +21,18 @@ from calib.errors import InputError
 from calib.io import limits
 from calib.io.cells import Cell, to_text
 from calib.io.columns import column_letter, match_heading, split_unit, squash
-from calib.io.csv_text import DELIMITERS, decode_text
+from calib.io.csv_text import decode_text, delimiters_for, split_rows
 from calib.io.files import RawFile
 from calib.io.importmap import ImportMap
 from calib.io.limits import (
     check_sheet_size,
     check_text_rows,
-    check_text_width,
     check_xls,
     inspect_archive,
 )
 from calib.io.sandbox import failure_error, limits_for, parse_workbook
 from calib.io.table import HEADER_SEARCH_ROWS, Grid
+from calib.io.workbook import sheet_named
 from calib.run import SourceInfo
 
 __all__ = ["DILUTION_HEADINGS", "SAMPLE_MAP_COLUMNS", "VOLUME_HEADINGS", "WEIGHT_HEADINGS",
@@ -233,27 +231,24 @@ def no_header(grid: Grid, imap: SamplesMap | None = None) -> InputError:
 
 
 def text_grid(raw: RawFile, imap: SamplesMap | None) -> tuple[Grid, SourceInfo, str | None]:
+    """The text file's cells, split at the first delimiter under which a samples header shows.
+
+    The delimiters are tried in the run reader's order
+    (:func:`calib.io.csv_text.delimiters_for`).
+    """
     base = imap.base if imap is not None else None
     text, encoding = decode_text(raw, encoding=base.encoding if base else None)
     check_text_rows(text.count("\n"), file=raw.given)
-    order = list(DELIMITERS)
-    if raw.path.suffix.lower() == ".tsv":
-        order.remove("\t")
-        order.insert(0, "\t")
-    if base is not None and base.delimiter:
-        order = [base.delimiter]
+    head = HEADER_SEARCH_ROWS if imap is None or imap.header_row is None else max(
+        HEADER_SEARCH_ROWS, imap.header_row + 1)
     first: Grid | None = None
-    for delimiter in order:
-        check_text_width(text, delimiter, file=raw.given)
-        try:
-            rows: list[list[Cell]] = list(csv.reader(io.StringIO(text, newline=""),
-                                                     delimiter=delimiter))
-        except csv.Error as exc:
-            raise InputError(f"cannot be split into cells ({exc}); expected {_WHAT}",
-                             file=raw.given) from None
-        grid = Grid(rows, file=raw.given, label=raw.name)
+    for delimiter in delimiters_for(raw, text, given=base.delimiter if base else None):
+        grid = Grid(split_rows(text, delimiter, raw=raw, limit=head), file=raw.given,
+                    label=raw.name)
         first = first or grid
         if find_header(grid, imap) is not None:
+            grid = Grid(split_rows(text, delimiter, raw=raw, limit=None), file=raw.given,
+                        label=raw.name)
             source = SourceInfo(file=raw.name, sha256=raw.sha256, encoding=encoding,
                                 delimiter=delimiter)
             decimal = base.decimal if base is not None and base.decimal else (
@@ -273,20 +268,9 @@ def book_grid(raw: RawFile, sheet: str | int | None,
     # The run importer's reader: a child process with time and memory limits.
     book, _ = parse_workbook(raw, what=what, max_rows=limits.MAX_ROWS,
                              max_cells=limits.MAX_CELLS, checks=checks)
-    names = book.names
-    if sheet is not None:
-        if isinstance(sheet, int):
-            if not 0 <= sheet < len(names):
-                raise InputError(f"the workbook has {len(names)} sheet(s); sheet index {sheet} "
-                                 "does not exist (indexes start at 0)", file=raw.given)
-            candidates = [names[sheet]]
-        elif sheet not in names:
-            raise InputError(f"no sheet named {sheet!r}; the sheets are "
-                             f"{', '.join(map(repr, names))}", file=raw.given)
-        else:
-            candidates = [sheet]
-    else:
-        candidates = names
+    # The run reader's sheet choice: a sheet named by index or name, else the visible ones.
+    candidates = ([sheet_named(book.names, sheet, file=raw.given, what=what)]
+                  if sheet is not None else book.worksheets)
     for name in candidates:
         data = book.sheets[name]
         if data.failure is not None:
@@ -300,7 +284,7 @@ def book_grid(raw: RawFile, sheet: str | int | None,
                                     sheets=(name,))
     raise InputError(f"no sheet holds a samples table: expected a header row naming the "
                      f"response and the sample id, analyte, sample type, nominal concentration "
-                     f"or dilution factor (sheets: {', '.join(map(repr, names))})",
+                     f"or dilution factor (sheets: {', '.join(map(repr, book.names))})",
                      file=raw.given)
 
 

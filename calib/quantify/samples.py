@@ -39,11 +39,15 @@ from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+import numpy as np
+
 from calib.errors import InputError
+from calib.fit.qc import dilution_of
 from calib.io.cells import Cell, CellError, is_blank, to_flag, to_integer, to_number, to_text
 from calib.io.columns import column_letter
+from calib.io.fastrows import column_of
 from calib.io.files import load_file
-from calib.io.limits import check_magnitudes
+from calib.io.limits import LARGEST_VALUE, check_magnitudes
 from calib.io.numbers import find_marker
 from calib.io.sampletypes import SampleTyper, type_from_name
 from calib.io.table import Grid, cell_reference
@@ -60,6 +64,7 @@ from calib.quantify.samplefile import (
     no_header,
     text_grid,
 )
+from calib.quantify.sampletable import Reading, SampleRows, merge_rows, read_plain_rows
 from calib.run import Point, Run, SourceInfo
 
 __all__ = ["DILUTION_HEADINGS", "SAMPLE_MAP_COLUMNS", "VOLUME_HEADINGS", "WEIGHT_HEADINGS",
@@ -72,28 +77,6 @@ _WHAT = "a samples table (.xlsx, .xlsm, .xls, .ods, .csv, .tsv or .txt)"
 
 
 @dataclass(frozen=True)
-class Reading:
-    """One injection of a sample to quantify.
-
-    Attributes
-    ----------
-    point : Point
-        The injection as read (``sample_type`` unknown or QC; a QC's
-        ``concentration`` is its nominal, an unknown's is ``nan``).
-    dilution_factor : float
-        Factor the measured concentration is multiplied by (1 = undiluted).
-    mass_kg, volume_l : float or None
-        Sample weight (kg) and final volume (L) when the file gives them: the
-        result is then the content C × V / m (:mod:`calib.quantify.amounts`).
-    """
-
-    point: Point
-    dilution_factor: float = 1.0
-    mass_kg: float | None = None
-    volume_l: float | None = None
-
-
-@dataclass(frozen=True)
 class SampleSheet:
     """The samples read from one file.
 
@@ -101,8 +84,8 @@ class SampleSheet:
     ----------
     source : SourceInfo
         The file (name, SHA-256, sheet).
-    readings : tuple of Reading
-        Unknowns and QCs in file order.
+    rows : SampleRows
+        Unknowns and QCs in file order, as columns (:attr:`readings` as objects).
     units : dict
         ``{"concentration": unit}`` when the nominal heading gives one.
     notes : tuple of str
@@ -113,23 +96,18 @@ class SampleSheet:
     """
 
     source: SourceInfo
-    readings: tuple[Reading, ...]
+    rows: SampleRows
     units: dict[str, str]
     notes: tuple[str, ...] = ()
     internal_standard: str | None = None
 
+    @property
+    def readings(self) -> tuple[Reading, ...]:
+        """Unknowns and QCs in file order, as :class:`Reading` objects (built on first use)."""
+        return self.rows.readings
+
 
 _PLAIN_NUMBER = re.compile(r"-?[0-9]{1,30}(?:\.[0-9]{1,30})?")
-
-
-def dilution_of(point: Point) -> float:
-    """The dilution factor of a run-file point: its own when the importer gives one, else 1."""
-    # A run importer that carries a dilution factor on the point is used as is.
-    value = getattr(point, "dilution_factor", None)
-    if isinstance(value, (int, float)) and not isinstance(value, bool) and value > 0 \
-            and math.isfinite(value):
-        return float(value)
-    return 1.0
 
 
 def readings_from_run(run: Run) -> tuple[Reading, ...]:
@@ -172,6 +150,7 @@ class _TableReader:
         self.dilution_below_one = dilution_below_one
         self.typer = SampleTyper(patterns=dict(patterns or {}))
         self.readings: list[Reading] = []
+        self.read_at: list[int] = []
         self.notes: list[str] = []
         if "analyte" not in columns and analyte is None:
             raise grid.error("the samples table has no analyte column; add one, or quantify "
@@ -360,22 +339,42 @@ class _TableReader:
         )
         if not point.analyte:
             raise self.fail(row_index, "analyte", "found an empty cell; expected the analyte name")
+        self.read_at.append(row_index)
         self.readings.append(Reading(
             point, 1.0 if dilution is None else float(dilution),
             mass_kg=None if mass is None else mass * self.mass_unit,
             volume_l=None if volume is None else volume * self.volume_unit))
 
-    def read(self) -> None:
+    def read(self) -> SampleRows:
+        """The table's readings: plain rows a column at a time, the others row by row."""
+        rows = self.grid.rows
+        start = self.header_row + 1
+        # Up to the first row without a response (a blank line, or notes under the table)
+        # every row is a reading, a set-aside injection or a sample left out.
+        stop = start
+        index = self.at.get("response")
+        if index is not None:
+            body = rows[start:]
+            column = column_of(body, index, min(map(len, body), default=0))
+            # Cells that may be blank (a rare few), then the first that is.
+            maybe = [k for k, v in enumerate(column)
+                     if type(v) is not str or not v or v[0].isspace()]
+            stop = start + next((k for k in maybe if is_blank(column[k])), len(column))
+        plain, at, left = read_plain_rows(self, start, stop)
+        for row_index in left:
+            self.row(row_index, list(rows[row_index]))
         seen_gap = False
-        for row_index in range(self.header_row + 1, len(self.grid.rows)):
-            row = list(self.grid.rows[row_index])
+        for row_index in range(stop, len(rows)):
+            row = list(rows[row_index])
             if all(is_blank(c) for c in row):
-                seen_gap = bool(self.readings) or seen_gap
+                seen_gap = bool(self.readings) or bool(at) or seen_gap
                 continue
             # Notes under the table, after a blank line, carry no response.
             if seen_gap and is_blank(self.cell(row, "response")):
                 break
             self.row(row_index, row)
+        return merge_rows([(plain, at),
+                           (SampleRows.from_readings(self.readings), self.read_at)])
 
 
 def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None,
@@ -453,8 +452,8 @@ def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None
                           internal_standard=internal_standard,
                           dilution_below_one=dilution_below_one,
                           patterns=base.sample_types if base is not None else None)
-    reader.read()
-    check_magnitudes((r.point for r in reader.readings), file=raw.given)
+    rows = reader.read()
+    _check_magnitudes(rows, file=raw.given)
     units = {}
     if "concentration" in columns and columns["concentration"][2]:
         units["concentration"] = str(columns["concentration"][2])
@@ -464,5 +463,23 @@ def read_samples(path: str | os.PathLike[str], *, sheet: str | int | None = None
     if reader.ratios:
         index, heading, _ = columns["is_response"]
         is_column = f"column {column_letter(index)} ({heading})"
-    return SampleSheet(replace(source, layout="long"), tuple(reader.readings), units,
-                       tuple(reader.notes), internal_standard=is_column)
+    return SampleSheet(replace(source, layout="long"), rows, units, tuple(reader.notes),
+                       internal_standard=is_column)
+
+
+def _check_magnitudes(rows: SampleRows, *, file: str) -> None:
+    """:func:`calib.io.limits.check_magnitudes` of the readings, a column at a time."""
+    values = [rows.response, rows.nominal]
+    values += [np.array(rows.extra[k], dtype=float) for k in ("is_response", "analyte_response")
+               if k in rows.extra and None not in rows.extra[k]]
+    if any(k in rows.extra and None in rows.extra[k] for k in ("is_response",
+                                                               "analyte_response")):
+        check_magnitudes(rows.points(), file=file)
+        return
+    size = np.abs(np.vstack(values)) if len(rows) else np.empty((0, 0))
+    with np.errstate(invalid="ignore"):
+        wrong = ((size > LARGEST_VALUE) | ((size < 1.0 / LARGEST_VALUE) & (size != 0.0))).any(
+            axis=0) if size.size else np.zeros(0, dtype=bool)
+    if wrong.any():
+        # The first offending reading, refused in check_magnitudes' own words.
+        check_magnitudes(rows.points()[: int(np.argmax(wrong)) + 1], file=file)

@@ -15,12 +15,12 @@ from calib.io.columns import squash
 from calib.options import Model, Weighting
 from calib.quantify.batch import Batch, ReportingConvention, quantify
 from calib.quantify.samples import (
-    Reading,
     SampleSheet,
     load_samples_map,
     read_samples,
     readings_from_run,
 )
+from calib.quantify.sampletable import SampleRows
 from calib.quantify.source import CurveSource, is_record_file, load_curves
 from calib.run import SourceInfo
 
@@ -72,7 +72,7 @@ def _basis(curve: CurveSource, sheet: SampleSheet, file: str, *,
     The samples must be read as the curve's standards were: raw responses for a
     raw curve, ratios to the internal standard for a ratio curve.
     """
-    analytes = list(dict.fromkeys(r.point.analyte for r in sheet.readings))
+    analytes = list(dict.fromkeys(sheet.rows.analyte))
     notes: list[str] = []
     reread = False
     for analyte in analytes:
@@ -114,20 +114,20 @@ def _basis(curve: CurveSource, sheet: SampleSheet, file: str, *,
     return reread, notes
 
 
-def _check_content(curve: CurveSource, readings: tuple[Reading, ...], file: str) -> list[str]:
+def _check_content(curve: CurveSource, rows: SampleRows, file: str) -> list[str]:
     """Refuse weights and volumes an analyte's unit cannot take; say where they were applied."""
     from calib.quantify.amounts import content_factor
 
     applied: dict[str, str] = {}
-    for r in readings:
-        c = curve.curves.get(r.point.analyte)
-        if r.mass_kg is None or r.volume_l is None or c is None:
+    for analyte, mass, volume in zip(rows.analyte, rows.mass_kg, rows.volume_l, strict=True):
+        c = curve.curves.get(analyte)
+        if mass is None or volume is None or c is None:
             continue
         try:
-            applied[r.point.analyte] = content_factor(c.unit, r.volume_l, r.mass_kg)[1]
+            applied[analyte] = content_factor(c.unit, volume, mass)[1]
         except ValueError as exc:
             raise InputError(f"the samples give a sample weight and a final volume, but for "
-                             f"{r.point.analyte} {exc}; expected a curve in a mass per volume "
+                             f"{analyte} {exc}; expected a curve in a mass per volume "
                              f"(set its unit with the run's heading or an import map's "
                              f"[units])", file=file) from None
     return [f"Sample weights and final volumes were applied: {a} results are contents in "
@@ -204,7 +204,7 @@ def quantify_files(
     source = load_curves(curve, sheet=sheet, profile=profile, model=model, weighting=weighting,
                          confidence=confidence, map=run_map)
     notes = list(source.notes)
-    readings: tuple[Reading, ...]
+    rows: SampleRows
     if samples is not None:
         single = next(iter(source.curves)) if len(source.curves) == 1 and not source.unfitted \
             else None
@@ -217,25 +217,25 @@ def quantify_files(
         if reread:
             sheet_read = read_samples(samples, internal_standard=False, **options)
         _check_units(source, sheet_read.units, str(samples))
-        readings, samples_info, from_run = sheet_read.readings, sheet_read.source, False
+        rows, samples_info, from_run = sheet_read.rows, sheet_read.source, False
         notes += [*sheet_read.notes, *basis_notes,
-                  *_check_content(source, readings, str(samples))]
-        below = sorted({r.dilution_factor for r in readings if r.dilution_factor < 1})
+                  *_check_content(source, rows, str(samples))]
+        below = sorted(set(rows.dilution[rows.dilution < 1].tolist()))
         if below:
             notes.append(f"Dilution factors below 1 ({', '.join(f'{d:g}' for d in below)}) were "
                          f"applied as confirmed (--dilution-below-one): those samples were "
                          f"concentrated before measuring.")
     elif source.run is not None:
-        readings = readings_from_run(source.run)
+        rows = SampleRows.from_readings(readings_from_run(source.run))
         samples_info, from_run = source.run.source, True
     else:
         raise InputError("an issued record holds no samples; give the samples file after the "
                          "record", file=str(curve))
-    if not readings:
+    if not len(rows):
         where = str(samples) if samples is not None else str(curve)
         raise InputError("no unknown or QC samples found to quantify (a run file's unknowns "
                          "and QCs are used when no samples file is given)", file=where)
-    batch = quantify(source.curves, readings, confidence=confidence, force=force,
+    batch = quantify(source.curves, rows, confidence=confidence, force=force,
                      qc_rule=source.qc_rule, unfitted=source.unfitted, convention=convention,
                      digits=source.digits)
     when = (created_at or datetime.now(UTC)).astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")

@@ -3,8 +3,8 @@
 ICH M10 (2022), section 4.4 (from memory): at least 2/3 of the QCs within
 ±15 % of nominal (±20 % at the LLOQ) and at least 50 % at each level.  Each
 QC sample (its replicate injections averaged, the dilution factor applied)
-is read back through :mod:`calib.fit.inverse` and judged by :mod:`calib.fit.qc`,
-as ``calib quantify`` reads and judges it, so the check and the quantified batch
+is read back and judged by :mod:`calib.fit.qc` (grouping, mean and dilution
+included), as ``calib quantify`` reads and judges it, so the check and the quantified batch
 agree without either importing the other.  A QC that cannot be read back counts
 as outside tolerance; so does a QC outside the curve's range (LLOQ to ULOQ of
 the fit, after any narrowing or refit), which would be read by extrapolation.
@@ -16,18 +16,14 @@ standards, the refitted one.
 
 from __future__ import annotations
 
-import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from typing import Any
-
-import numpy as np
 
 from calib.checks.context import CurveContext
 from calib.checks.result import CheckResult, Severity, Verdict
 from calib.checks.rules.base import Param, Rule, not_evaluated, result
 from calib.fit.calcurve import CalibrationCurve
-from calib.fit.qc import QcRule, judge_qcs
-from calib.run import Point
+from calib.fit.qc import QcRule, judge_qcs, qc_found
 
 __all__ = ["QC_RULES"]
 
@@ -40,44 +36,10 @@ def qc_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResu
         return not_evaluated("qc", sev, "The run has no QC samples of this analyte.")
     curve = CalibrationCurve.from_fit(ctx.fit, analyte=ctx.analyte)
     rule = QcRule.from_params(p, severity=sev.value, source="profile rule qc")
-    summary = judge_qcs(_found(curve, ctx.qcs), lloq=curve.lloq, rule=rule,
+    summary = judge_qcs(qc_found(curve, ctx.qcs), lloq=curve.lloq, rule=rule,
                         analyte=ctx.analyte, unit=curve.unit, uloq=curve.uloq)
     verdict = Verdict.PASS if summary.verdict == "pass" else Verdict.FAIL
     return result("qc", sev, verdict, summary.share_pct, rule.min_pass_pct, summary.detail)
-
-
-def _dilution(point: Point) -> float:
-    """The point's dilution factor when its importer gives a usable one, else 1."""
-    value = getattr(point, "dilution_factor", None)
-    if isinstance(value, (int, float)) and not isinstance(value, bool) and value > 0 \
-            and math.isfinite(value):
-        return float(value)
-    return 1.0
-
-
-def _found(curve: CalibrationCurve, qcs: Sequence[Point]
-           ) -> list[tuple[str, float, float | None]]:
-    """(sample id, nominal, read-back D·x₀) of each QC sample; None when not read back.
-
-    Injections of one sample id at one dilution are one sample (a QC without
-    an id is one injection); its usable readings are averaged and read back
-    from the curve, in order of first appearance.
-    """
-    groups: dict[tuple[str, float], list[Point]] = {}
-    for point in qcs:
-        key = (point.sample_id or point.source_cell, _dilution(point))
-        groups.setdefault(key, []).append(point)
-    out: list[tuple[str, float, float | None]] = []
-    for (name, dilution), points in groups.items():
-        usable = [q.response for q in points if q.included and math.isfinite(q.response)]
-        found = None
-        if usable:
-            # The same mean as calib quantify's (a plain sum below 8 terms, as numpy's).
-            mean = sum(usable) / len(usable) if len(usable) < 8 else float(np.mean(usable))
-            x0 = float(curve.concentration_at(mean)[0])
-            found = dilution * x0 if math.isfinite(dilution * x0) else None
-        out.append((name, float(points[0].concentration or 0.0), found))
-    return out
 
 
 def _pct(default: float) -> Param:

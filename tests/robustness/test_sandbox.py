@@ -251,3 +251,14 @@ def test_one_tag_longer_than_a_megabyte_is_refused():
     scanner = XlsxScanner()
     with pytest.raises(ValueError, match="one XML tag runs past 1,000,000 bytes"):
         scanner.feed(b'<c t="n"' + b" " * 1_100_000)
+
+
+@pytest.mark.parametrize("reference", [b"$XFD$7", b"xfd7", b" XFD7", b"XFD7"])
+def test_a_plainly_spelt_part_with_any_cell_reference_is_bounded(reference):
+    # The quick path of the scan (every r spelt r="...") must still see column XFD (16,384)
+    # however its reference is written: with $ signs, small letters or a leading space, the
+    # spellings a spreadsheet reader may tolerate (ECMA-376 Part 1, §18.3.1.4 c: r is an A1
+    # reference).
+    scanner = XlsxScanner(cells=10**6)
+    scanner.feed(b'<row r="7"><c r="A7"><v>1</v></c><c r="' + reference + b'"><v>1</v></c></row>')
+    assert scanner.close() == Extent(rows=7, columns=16_384)

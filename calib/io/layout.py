@@ -550,9 +550,12 @@ def find_tables(grid: Grid, *, imap: ImportMap | None = None) -> list[Table]:
     if imap is None or imap.header_row is None:
         # A data row of the table above has a number in a measured column: skip it at once.
         measures = sorted(first.measurement_indices())
-        for index in range(first.row + 1, len(grid.rows)):
-            row = grid.rows[index]
+        rows = grid.rows
+        for index in range(first.row + 1, len(rows)):
+            row = rows[index]
             width = len(row)
+            if measures and width > measures[0] and type(row[measures[0]]) is float:
+                continue  # the usual data row, decided without the general test
             if any(i < width and _looks_numeric(row[i]) for i in measures):
                 continue
             if _maybe_header(row):

@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from itertools import repeat
 from operator import itemgetter
 from typing import TYPE_CHECKING, Any
@@ -29,7 +29,7 @@ if TYPE_CHECKING:
     from calib.io.columns import Column
     from calib.io.sampletypes import SampleTyper
 
-__all__ = ["column_of", "plan_rows"]
+__all__ = ["BodyColumns", "column_of", "plan_rows"]
 
 _BAD = object()
 """A cell the column-wise reader leaves to the row reader."""
@@ -44,6 +44,27 @@ def column_of(block: Sequence[Sequence[Cell]], index: int | None, width: int) ->
     if width > index:
         return list(map(itemgetter(index), block))
     return [row[index] if index < len(row) else None for row in block]
+
+
+class BodyColumns:
+    """The columns of a table's body rows, each cut out of the rows once however often asked.
+
+    The lists handed out are shared: callers read them and never change them.
+    """
+
+    def __init__(self, block: Sequence[Sequence[Cell]]) -> None:
+        self.block = block
+        self.width = min(map(len, block), default=0)
+        self._cut: dict[int, list[Cell]] = {}
+
+    def __call__(self, index: int | None) -> list[Cell]:
+        """Column ``index`` (0-based; all None for a column the table lacks)."""
+        if index is None:
+            return [None] * len(self.block)
+        found = self._cut.get(index)
+        if found is None:
+            found = self._cut[index] = column_of(self.block, index, self.width)
+        return found
 
 
 def _classify(values: list[Cell], parser: Callable[[Cell], Any]) -> list[Any]:
@@ -115,8 +136,8 @@ def _bad_rows(values: list[Any]) -> set[int]:
 
 def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
               columns: tuple[Column, Column, Column | None], analyte: str | None,
-              typer: SampleTyper, skip: set[int], first_row: int, prefix: str
-              ) -> tuple[list[Point | None], bool]:
+              typer: SampleTyper, skip: set[int], first_row: int, prefix: str,
+              cut: BodyColumns | None = None) -> tuple[list[Point | None], bool]:
     """The point of each plain row of a long table (None for rows to read one by one).
 
     Returns the points, and whether every row is plain.
@@ -139,6 +160,8 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
         0-based row of ``block[0]``.
     prefix : str
         Source cells of the response column start so, ``"Run!C"``.
+    cut : BodyColumns, optional
+        The columns of ``block``, when the caller has cut some out already.
 
     Examples
     --------
@@ -155,20 +178,20 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
     n = len(block)
     if n == 0:
         return [], True
-    width = min(map(len, block))
+    column = cut if cut is not None else BodyColumns(block)
     conc_column, response_column, is_column = columns
     bad = {row - first_row for row in skip if first_row <= row < first_row + n}
     # The row reader takes a float concentration of 0 or more as it is, any finite
     # number (not a bool) as a response, and an internal-standard response above 0.
-    concentration, wrong = _numbers(column_of(block, conc_column.index, width), least=0.0)
+    concentration, wrong = _numbers(column(conc_column.index), least=0.0)
     bad |= wrong
-    found, wrong = _numbers(column_of(block, response_column.index, width))
+    found, wrong = _numbers(column(response_column.index))
     bad |= wrong
 
     def named(name: str, parser: Callable[[Cell], Any]) -> list[Any]:
         if name not in index:
             return [None] * n
-        values = _classify(column_of(block, index[name], width), parser)
+        values = _classify(column(index[name]), parser)
         bad.update(_bad_rows(values))
         return values
 
@@ -184,14 +207,14 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
         if False in flags:
             bad.update(at for at, value in enumerate(flags) if value is not True)
     if "exclusion_reason" in index:
-        reasons = column_of(block, index["exclusion_reason"], width)
+        reasons = column(index["exclusion_reason"])
         bad.update(at for at, value in enumerate(reasons) if not (value is None or value == ""))
     replicates = orders = [None] * n
     if "replicate" in index:
-        replicates = _whole_numbers(column_of(block, index["replicate"], width))
+        replicates = _whole_numbers(column(index["replicate"]))
         bad.update(_bad_rows(replicates))
     if "injection_order" in index:
-        orders = _whole_numbers(column_of(block, index["injection_order"], width))
+        orders = _whole_numbers(column(index["injection_order"]))
         bad.update(_bad_rows(orders))
     levels = named("level", to_text)
     kinds = named("sample_type", lambda v: typer.from_cell(to_text(v)))
@@ -204,33 +227,35 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
     ratios: list[Any] = found
     own: list[Any] = [None] * n
     if is_column is not None:
-        standards, wrong = _numbers(column_of(block, is_column.index, width))
+        standards, wrong = _numbers(column(is_column.index))
         bad |= wrong
         bad.update(at for at, value in enumerate(standards) if value is not None and value <= 0)
         ratios = [r / s if r is not None and s is not None and s > 0 else math.nan
                   for r, s in zip(found, standards)]
         own = found
-    ok = [True] * n
-    for at in bad:
-        ok[at] = False
     cells = [f"{prefix}{row}" for row in range(first_row + 1, first_row + n + 1)]
-    return [
-        _point(values[1:]) if values[0] else None
-        for values in zip(ok, analytes, concentration, ratios, cells, kinds, replicates,
-                          repeat(True), repeat(None), names, orders, standards, own, levels)
-    ], not bad
+    points: list[Point | None] = _points(zip(
+        analytes, concentration, ratios, cells, kinds, replicates, repeat(True), repeat(None),
+        names, orders, standards, own, levels))
+    for at in bad:
+        points[at] = None
+    return points, not bad
 
 
 _FIELDS = tuple(field.name for field in dataclasses.fields(Point))
-_NEW = object.__new__
 
 
-def _point(values: tuple[Any, ...]) -> Point:
-    """``Point(*values)``, made without the frozen dataclass's one guarded assignment per field.
+def _points(rows: Iterable[tuple[Any, ...]]) -> list[Point | None]:
+    """``[Point(*values) for values in rows]``, made without the frozen dataclass's guarded
+    assignment of each field.
 
-    The values are in field order and already checked; the point is equal to, hashes and
+    The values are in field order and already checked; each point is equal to, hashes and
     prints as the one ``Point(*values)`` makes (see tests/io/test_fastrows.py).
     """
-    point = _NEW(Point)
-    point.__dict__.update(zip(_FIELDS, values))
-    return point
+    made: list[Point | None] = []
+    append, new, fields = made.append, object.__new__, _FIELDS
+    for values in rows:
+        point = new(Point)
+        point.__dict__.update(zip(fields, values))
+        append(point)
+    return made

@@ -67,7 +67,20 @@ class BodyColumns:
         return found
 
 
-def _classify(values: list[Cell], parser: Callable[[Cell], Any]) -> list[Any]:
+class _Read(list):  # type: ignore[type-arg]
+    """A column's cells as read, with the set of distinct results (:data:`_BAD` among them
+    where a cell failed), so that "is any cell bad, or None?" costs no pass over the rows."""
+
+    outcomes: set[Any]
+
+
+def _read(results: Iterable[Any], outcomes: Iterable[Any]) -> _Read:
+    read = _Read(results)
+    read.outcomes = set(outcomes)
+    return read
+
+
+def _classify(values: list[Cell], parser: Callable[[Cell], Any]) -> _Read:
     """``parser`` of every cell, each distinct cell parsed once; :data:`_BAD` where it fails."""
     distinct = set(values)
     if len(_NUMBERS.intersection(map(type, distinct))) > 1:
@@ -76,9 +89,9 @@ def _classify(values: list[Cell], parser: Callable[[Cell], Any]) -> list[Any]:
         typed: dict[tuple[type, Cell], Any] = {}
         for key in set(keys):
             typed[key] = _parse(parser, key[1])
-        return list(map(typed.__getitem__, keys))
+        return _read(map(typed.__getitem__, keys), typed.values())
     seen = {value: _parse(parser, value) for value in distinct}
-    return list(map(seen.__getitem__, values))
+    return _read(map(seen.__getitem__, values), seen.values())
 
 
 def _parse(parser: Callable[[Cell], Any], value: Cell) -> Any:
@@ -93,11 +106,12 @@ def _all_floats(values: list[Cell]) -> bool:
     return set(map(type, values)) == {float}
 
 
-def _whole_numbers(values: list[Cell]) -> list[Any]:
+def _whole_numbers(values: list[Cell]) -> _Read:
     """Replicate numbers or injection orders as the row reader reads them."""
     if _all_floats(values) and all(map(math.isfinite, values)) and all(
             map(float.is_integer, values)):  # type: ignore[arg-type]
-        return list(map(int, values))  # type: ignore[arg-type]
+        numbers = list(map(int, values))  # type: ignore[arg-type]
+        return _read(numbers, numbers)
     return _classify(values, _whole)
 
 
@@ -128,8 +142,8 @@ def _numbers(values: list[Cell], *, least: float | None = None) -> tuple[list[An
     return out, bad
 
 
-def _bad_rows(values: list[Any]) -> set[int]:
-    if _BAD not in values:
+def _bad_rows(values: _Read) -> set[int]:
+    if _BAD not in values.outcomes:
         return set()
     return {at for at, value in enumerate(values) if value is _BAD}
 
@@ -188,9 +202,9 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
     found, wrong = _numbers(column(response_column.index))
     bad |= wrong
 
-    def named(name: str, parser: Callable[[Cell], Any]) -> list[Any]:
+    def named(name: str, parser: Callable[[Cell], Any]) -> _Read:
         if name not in index:
-            return [None] * n
+            return _read([None] * n, (None,))
         values = _classify(column(index[name]), parser)
         bad.update(_bad_rows(values))
         return values
@@ -198,13 +212,13 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
     names = named("sample_id", to_name)
     if "analyte" in index:
         analytes = named("analyte", to_name)
-        if None in analytes:
+        if None in analytes.outcomes:
             bad.update(at for at, value in enumerate(analytes) if value is None)
     else:
         analytes = [analyte] * n
     if "include" in index:
         flags = named("include", to_flag)
-        if False in flags:
+        if False in flags.outcomes:
             bad.update(at for at, value in enumerate(flags) if value is not True)
     if "exclusion_reason" in index:
         reasons = column(index["exclusion_reason"])
@@ -218,10 +232,12 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
         bad.update(_bad_rows(orders))
     levels = named("level", to_text)
     kinds = named("sample_type", lambda v: typer.from_cell(to_text(v)))
-    if None in kinds:
+    if None in kinds.outcomes:
         # Plain rows have a concentration, so a name that says no type makes a standard.
         from_names = _classify(names, lambda v: typer.from_name(v, has_concentration=True))
-        kinds = [from_names[at] if kind is None else kind for at, kind in enumerate(kinds)]
+        kinds = _read([from_names[at] if kind is None else kind
+                       for at, kind in enumerate(kinds)],
+                      (kinds.outcomes - {None}) | from_names.outcomes)
         bad.update(_bad_rows(kinds))
     standards: list[Any] = [None] * n
     ratios: list[Any] = found

@@ -163,7 +163,7 @@ def _set_aside_copies(points: list[Point], warnings: list[str]) -> None:
     # Responses rarely repeat: look at whole rows only where one does.
     responses = [point.response for point in points]
     repeated = {value for value, count in Counter(responses).items()
-                if count > 1 and value == value}  # (not NaN)
+                if count > 1 and not math.isnan(value)}
     if not repeated:
         return
     by_response: dict[float, list[int]] = {}

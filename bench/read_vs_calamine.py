@@ -15,8 +15,8 @@ CPU time counts its child process too (the parse runs there), so the CPU ratio i
 machine with no core to spare would see; the load average is printed beside the figures, as a
 busy machine shares its cores between the two processes of calib and the one of calamine.  The importer's first step, the scan of
 the archive against the size limits (``calib.io.limits.inspect_archive``), is also timed alone,
-so that the share of each part is seen.  ``--memory`` reads a larger export in a child process
-and prints its peak resident memory.
+so that the share of each part is seen.  ``--memory`` reads a larger export in a fresh process
+and prints the peak resident memory of the larger of that process and its workbook child.
 
 Issue 17 sets the target ratio at 1.5 or less; the script exits 1 above it.
 
@@ -81,7 +81,11 @@ def _timed(work: Callable[[], T], into: list[tuple[float, float]]) -> T:
 
 
 def peak_memory(rows: int) -> int:
-    """Peak resident memory (bytes) of a fresh process reading a ``rows``-row export."""
+    """Peak resident memory (bytes) of a fresh process reading a ``rows``-row export.
+
+    ``ru_maxrss`` of ended children is that of the largest one, the reader's workbook child
+    (its grandchild here) included (getrusage(2)).
+    """
     with tempfile.TemporaryDirectory() as folder:
         path = Path(folder, "export.xlsx")
         read_xlsx.write_export(path, rows)

@@ -350,10 +350,14 @@ def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
     InputError
         Naming the analyte, the levels and what to do.
     """
-    by_level: dict[str, dict[float, list[Point]]] = {}
+    groups: dict[tuple[str, float], list[Point]] = {}
+    standard, finite = SampleType.STANDARD, math.isfinite
     for p in points:
-        if p.sample_type is SampleType.STANDARD and p.included and math.isfinite(p.response):
-            by_level.setdefault(p.analyte, {}).setdefault(p.concentration, []).append(p)
+        if p.sample_type is standard and p.included and finite(p.response):
+            groups.setdefault((p.analyte, p.concentration), []).append(p)
+    by_level: dict[str, dict[float, list[Point]]] = {}
+    for (analyte, concentration), own in groups.items():
+        by_level.setdefault(analyte, {})[concentration] = own
     for analyte, levels in by_level.items():
         crowded = {c: own for c, own in levels.items() if len(own) >= 4 and c > 0}
         if len(crowded) < min_levels:

@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from collections import Counter
 from collections.abc import Sequence
 from pathlib import PurePath
 
@@ -160,10 +161,15 @@ def _set_aside_copies(points: list[Point], warnings: list[str]) -> None:
     :data:`COPY_DIGITS` or more significant digits.
     """
     # Responses rarely repeat: look at whole rows only where one does.
+    responses = [point.response for point in points]
+    repeated = {value for value, count in Counter(responses).items()
+                if count > 1 and not math.isnan(value)}
+    if not repeated:
+        return
     by_response: dict[float, list[int]] = {}
-    for index, point in enumerate(points):
-        if point.response == point.response:  # not NaN
-            by_response.setdefault(point.response, []).append(index)
+    for index, value in enumerate(responses):
+        if value in repeated:
+            by_response.setdefault(value, []).append(index)
     for indices in by_response.values():
         if len(indices) > 1:
             _copies_among(points, indices, warnings)

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import math
+from collections.abc import Sequence
 
 from calib.errors import CellError
 from calib.io.numbers import (
@@ -29,6 +30,7 @@ __all__ = [
     "CellError",
     "describe",
     "is_blank",
+    "is_empty_row",
     "to_flag",
     "to_integer",
     "to_name",
@@ -65,6 +67,20 @@ def is_blank(value: Cell) -> bool:
     if isinstance(value, str):
         return not value.strip()
     return value is None
+
+
+def is_empty_row(row: Sequence[Cell]) -> bool:
+    """Return True for a row whose every cell is ``None`` or ``""``, decided at C speed.
+
+    A stray cell far below a table makes a sheet of a million such rows; a row with
+    only spaces in a cell is left to :func:`is_blank`.
+
+    Examples
+    --------
+    >>> is_empty_row(["", None, ""]), is_empty_row(["", " "]), is_empty_row([])
+    (True, False, True)
+    """
+    return row.count("") + row.count(None) == len(row)
 
 
 def describe(value: Cell) -> str:

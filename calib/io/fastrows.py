@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from itertools import repeat
 from operator import itemgetter
 from typing import TYPE_CHECKING, Any
@@ -29,7 +29,7 @@ if TYPE_CHECKING:
     from calib.io.columns import Column
     from calib.io.sampletypes import SampleTyper
 
-__all__ = ["column_of", "plan_rows"]
+__all__ = ["BodyColumns", "column_of", "plan_rows"]
 
 _BAD = object()
 """A cell the column-wise reader leaves to the row reader."""
@@ -46,7 +46,41 @@ def column_of(block: Sequence[Sequence[Cell]], index: int | None, width: int) ->
     return [row[index] if index < len(row) else None for row in block]
 
 
-def _classify(values: list[Cell], parser: Callable[[Cell], Any]) -> list[Any]:
+class BodyColumns:
+    """The columns of a table's body rows, each cut out of the rows once however often asked.
+
+    The lists handed out are shared: callers read them and never change them.
+    """
+
+    def __init__(self, block: Sequence[Sequence[Cell]]) -> None:
+        self.block = block
+        self.width = min(map(len, block), default=0)
+        self._cut: dict[int, list[Cell]] = {}
+
+    def __call__(self, index: int | None) -> list[Cell]:
+        """Column ``index`` (0-based; all None for a column the table lacks)."""
+        if index is None:
+            return [None] * len(self.block)
+        found = self._cut.get(index)
+        if found is None:
+            found = self._cut[index] = column_of(self.block, index, self.width)
+        return found
+
+
+class _Read(list):  # type: ignore[type-arg]
+    """A column's cells as read, with the set of distinct results (:data:`_BAD` among them
+    where a cell failed), so that "is any cell bad, or None?" costs no pass over the rows."""
+
+    outcomes: set[Any]
+
+
+def _read(results: Iterable[Any], outcomes: Iterable[Any]) -> _Read:
+    read = _Read(results)
+    read.outcomes = set(outcomes)
+    return read
+
+
+def _classify(values: list[Cell], parser: Callable[[Cell], Any]) -> _Read:
     """``parser`` of every cell, each distinct cell parsed once; :data:`_BAD` where it fails."""
     distinct = set(values)
     if len(_NUMBERS.intersection(map(type, distinct))) > 1:
@@ -55,9 +89,9 @@ def _classify(values: list[Cell], parser: Callable[[Cell], Any]) -> list[Any]:
         typed: dict[tuple[type, Cell], Any] = {}
         for key in set(keys):
             typed[key] = _parse(parser, key[1])
-        return list(map(typed.__getitem__, keys))
+        return _read(map(typed.__getitem__, keys), typed.values())
     seen = {value: _parse(parser, value) for value in distinct}
-    return list(map(seen.__getitem__, values))
+    return _read(map(seen.__getitem__, values), seen.values())
 
 
 def _parse(parser: Callable[[Cell], Any], value: Cell) -> Any:
@@ -72,11 +106,12 @@ def _all_floats(values: list[Cell]) -> bool:
     return set(map(type, values)) == {float}
 
 
-def _whole_numbers(values: list[Cell]) -> list[Any]:
+def _whole_numbers(values: list[Cell]) -> _Read:
     """Replicate numbers or injection orders as the row reader reads them."""
     if _all_floats(values) and all(map(math.isfinite, values)) and all(
             map(float.is_integer, values)):  # type: ignore[arg-type]
-        return list(map(int, values))  # type: ignore[arg-type]
+        numbers = list(map(int, values))  # type: ignore[arg-type]
+        return _read(numbers, numbers)
     return _classify(values, _whole)
 
 
@@ -107,16 +142,16 @@ def _numbers(values: list[Cell], *, least: float | None = None) -> tuple[list[An
     return out, bad
 
 
-def _bad_rows(values: list[Any]) -> set[int]:
-    if _BAD not in values:
+def _bad_rows(values: _Read) -> set[int]:
+    if _BAD not in values.outcomes:
         return set()
     return {at for at, value in enumerate(values) if value is _BAD}
 
 
 def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
               columns: tuple[Column, Column, Column | None], analyte: str | None,
-              typer: SampleTyper, skip: set[int], first_row: int, prefix: str
-              ) -> tuple[list[Point | None], bool]:
+              typer: SampleTyper, skip: set[int], first_row: int, prefix: str,
+              cut: BodyColumns | None = None) -> tuple[list[Point | None], bool]:
     """The point of each plain row of a long table (None for rows to read one by one).
 
     Returns the points, and whether every row is plain.
@@ -139,6 +174,8 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
         0-based row of ``block[0]``.
     prefix : str
         Source cells of the response column start so, ``"Run!C"``.
+    cut : BodyColumns, optional
+        The columns of ``block``, when the caller has cut some out already.
 
     Examples
     --------
@@ -155,82 +192,86 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
     n = len(block)
     if n == 0:
         return [], True
-    width = min(map(len, block))
+    column = cut if cut is not None else BodyColumns(block)
     conc_column, response_column, is_column = columns
     bad = {row - first_row for row in skip if first_row <= row < first_row + n}
     # The row reader takes a float concentration of 0 or more as it is, any finite
     # number (not a bool) as a response, and an internal-standard response above 0.
-    concentration, wrong = _numbers(column_of(block, conc_column.index, width), least=0.0)
+    concentration, wrong = _numbers(column(conc_column.index), least=0.0)
     bad |= wrong
-    found, wrong = _numbers(column_of(block, response_column.index, width))
+    found, wrong = _numbers(column(response_column.index))
     bad |= wrong
 
-    def named(name: str, parser: Callable[[Cell], Any]) -> list[Any]:
+    def named(name: str, parser: Callable[[Cell], Any]) -> _Read:
         if name not in index:
-            return [None] * n
-        values = _classify(column_of(block, index[name], width), parser)
+            return _read([None] * n, (None,))
+        values = _classify(column(index[name]), parser)
         bad.update(_bad_rows(values))
         return values
 
     names = named("sample_id", to_name)
     if "analyte" in index:
         analytes = named("analyte", to_name)
-        if None in analytes:
+        if None in analytes.outcomes:
             bad.update(at for at, value in enumerate(analytes) if value is None)
     else:
         analytes = [analyte] * n
     if "include" in index:
         flags = named("include", to_flag)
-        if False in flags:
+        if False in flags.outcomes:
             bad.update(at for at, value in enumerate(flags) if value is not True)
     if "exclusion_reason" in index:
-        reasons = column_of(block, index["exclusion_reason"], width)
+        reasons = column(index["exclusion_reason"])
         bad.update(at for at, value in enumerate(reasons) if not (value is None or value == ""))
     replicates = orders = [None] * n
     if "replicate" in index:
-        replicates = _whole_numbers(column_of(block, index["replicate"], width))
+        replicates = _whole_numbers(column(index["replicate"]))
         bad.update(_bad_rows(replicates))
     if "injection_order" in index:
-        orders = _whole_numbers(column_of(block, index["injection_order"], width))
+        orders = _whole_numbers(column(index["injection_order"]))
         bad.update(_bad_rows(orders))
     levels = named("level", to_text)
     kinds = named("sample_type", lambda v: typer.from_cell(to_text(v)))
-    if None in kinds:
+    if None in kinds.outcomes:
         # Plain rows have a concentration, so a name that says no type makes a standard.
         from_names = _classify(names, lambda v: typer.from_name(v, has_concentration=True))
-        kinds = [from_names[at] if kind is None else kind for at, kind in enumerate(kinds)]
+        kinds = _read([from_names[at] if kind is None else kind
+                       for at, kind in enumerate(kinds)],
+                      (kinds.outcomes - {None}) | from_names.outcomes)
         bad.update(_bad_rows(kinds))
     standards: list[Any] = [None] * n
     ratios: list[Any] = found
     own: list[Any] = [None] * n
     if is_column is not None:
-        standards, wrong = _numbers(column_of(block, is_column.index, width))
+        standards, wrong = _numbers(column(is_column.index))
         bad |= wrong
         bad.update(at for at, value in enumerate(standards) if value is not None and value <= 0)
         ratios = [r / s if r is not None and s is not None and s > 0 else math.nan
                   for r, s in zip(found, standards)]
         own = found
-    ok = [True] * n
-    for at in bad:
-        ok[at] = False
     cells = [f"{prefix}{row}" for row in range(first_row + 1, first_row + n + 1)]
-    return [
-        _point(values[1:]) if values[0] else None
-        for values in zip(ok, analytes, concentration, ratios, cells, kinds, replicates,
-                          repeat(True), repeat(None), names, orders, standards, own, levels)
-    ], not bad
+    points: list[Point | None] = _points(zip(
+        analytes, concentration, ratios, cells, kinds, replicates, repeat(True), repeat(None),
+        names, orders, standards, own, levels))
+    for at in bad:
+        points[at] = None
+    return points, not bad
 
 
 _FIELDS = tuple(field.name for field in dataclasses.fields(Point))
-_NEW = object.__new__
 
 
-def _point(values: tuple[Any, ...]) -> Point:
-    """``Point(*values)``, made without the frozen dataclass's one guarded assignment per field.
+def _points(rows: Iterable[tuple[Any, ...]]) -> list[Point | None]:
+    """``[Point(*values) for values in rows]``, made without the frozen dataclass's guarded
+    assignment of each field.
 
-    The values are in field order and already checked; the point is equal to, hashes and
+    The values are in field order and already checked; each point is equal to, hashes and
     prints as the one ``Point(*values)`` makes (see tests/io/test_fastrows.py).
     """
-    point = _NEW(Point)
-    point.__dict__.update(zip(_FIELDS, values))
-    return point
+    made: list[Point | None] = []
+    append, new, fields = made.append, object.__new__, _FIELDS
+    for values in rows:
+        point = new(Point)
+        point.__dict__.update(zip(fields, values))
+        append(point)
+    return made

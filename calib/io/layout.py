@@ -24,7 +24,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
 from calib.errors import InputError
-from calib.io.cells import Cell, CellError, is_blank, to_text
+from calib.io.cells import Cell, CellError, is_blank, is_empty_row, to_text
 from calib.io.columns import (
     NOT_ANALYTES,
     WIDE_COLUMNS,
@@ -139,6 +139,8 @@ def _maybe_header(row: Sequence[Cell]) -> bool:
     A heading may start with a digit (``2,4-D area``), so a row passes while
     fewer than half as many of its cells look like numbers as hold text.
     """
+    if is_empty_row(row):
+        return False  # (a sheet may hold a million empty rows below a stray cell)
     texts = numbers = 0
     for cell in row:
         if type(cell) is str:
@@ -472,7 +474,7 @@ def no_header_error(grid: Grid, *, limit: int = HEADER_SEARCH_ROWS) -> InputErro
 
 
 def _is_blank_row(row: Sequence[Cell]) -> bool:
-    return all(map(is_blank, row))
+    return is_empty_row(row) or all(map(is_blank, row))
 
 
 def _line_like(row: Sequence[Cell], measures: frozenset[int]) -> bool:
@@ -550,10 +552,13 @@ def find_tables(grid: Grid, *, imap: ImportMap | None = None) -> list[Table]:
     if imap is None or imap.header_row is None:
         # A data row of the table above has a number in a measured column: skip it at once.
         measures = sorted(first.measurement_indices())
-        for index in range(first.row + 1, len(grid.rows)):
-            row = grid.rows[index]
+        rows = grid.rows
+        for index in range(first.row + 1, len(rows)):
+            row = rows[index]
             width = len(row)
-            if any(i < width and _looks_numeric(row[i]) for i in measures):
+            if measures and width > measures[0] and type(row[measures[0]]) is float:
+                continue  # the usual data row, decided without the general test
+            if is_empty_row(row) or any(i < width and _looks_numeric(row[i]) for i in measures):
                 continue
             if _maybe_header(row):
                 header = read_header(grid, index, imap=imap)

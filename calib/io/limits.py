@@ -73,11 +73,17 @@ No measurement in a laboratory comes within many decades of these bounds.
 
 _CHUNK = 1 << 20
 _OVERLAP = 64
+# What marks each feature, in an .xlsx sheet part and in an .ods content.xml: a first search,
+# then the marks themselves where it finds something (each part is searched for its own
+# format's marks only: every search is a pass over the part).
 _FEATURES = {
-    "hidden": (b'hidden="1"', b'hidden="true"', b'table:visibility="collapse"',
-               b'table:visibility="filter"'),
-    "errors": (b't="e"', b'calcext:value-type="error"'),
-    "merged": (b"<mergeCell ", b"number-rows-spanned=", b"number-columns-spanned="),
+    "hidden": ((b'hidden="', (b'hidden="1"', b'hidden="true"')),
+               (b'table:visibility="', (b'table:visibility="collapse"',
+                                        b'table:visibility="filter"'))),
+    "errors": ((b't="e"', (b't="e"',)),
+               (b'calcext:value-type="error"', (b'calcext:value-type="error"',))),
+    "merged": ((b"<mergeCell ", (b"<mergeCell ",)),
+               (b"-spanned=", (b"number-rows-spanned=", b"number-columns-spanned="))),
 }
 _UNICODE_MARKS = (b"\xff\xfe", b"\xfe\xff", b"\x00<", b"<\x00")
 
@@ -137,6 +143,7 @@ def inspect_archive(raw: RawFile, *, what: str) -> ArchiveFacts | None:
             sheet = _is_sheet(info.filename)
             rows = 0
             scanner = _scanner(info.filename) if sheet else None
+            ods = isinstance(scanner, OdsScanner)
             tail = b""
             try:
                 with archive.open(info) as member:
@@ -152,8 +159,10 @@ def inspect_archive(raw: RawFile, *, what: str) -> ArchiveFacts | None:
                         if scanner is None:
                             continue
                         window = tail + chunk
-                        for feature, needles in _FEATURES.items():
-                            if not found[feature] and any(n in window for n in needles):
+                        for feature, marks in _FEATURES.items():
+                            first, needles = marks[ods]
+                            if not found[feature] and first in window and any(
+                                    n in window for n in needles):
                                 found[feature] = True
                         scanner.feed(chunk)
                         tail = chunk[-_OVERLAP:]

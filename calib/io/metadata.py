@@ -14,7 +14,7 @@ import datetime as _dt
 from collections.abc import Mapping, Sequence
 from types import MappingProxyType
 
-from calib.io.cells import Cell, to_text
+from calib.io.cells import Cell, is_empty_row, to_text
 from calib.io.columns import SYNONYMS, squash
 
 __all__ = ["METADATA_KEYS", "metadata_analyte", "metadata_units", "read_metadata"]
@@ -61,6 +61,8 @@ _SEPARATORS = (":", "=", "\t")
 def _texts(row: Sequence[Cell]) -> list[str]:
     """Non-empty cell texts; a merged cell repeated across a row counts once."""
     texts: list[str] = []
+    if is_empty_row(row):
+        return texts
     for cell in row:
         if isinstance(cell, _dt.datetime) and cell.time() == _dt.time(0):
             text: str | None = cell.date().isoformat()

@@ -38,7 +38,7 @@ from calib.io.cells import (
 )
 from calib.io.columns import Column, squash
 from calib.io.decimals import DecimalReader
-from calib.io.fastrows import plan_rows
+from calib.io.fastrows import BodyColumns, plan_rows
 from calib.io.layout import Table
 from calib.io.numbers import (
     Marker,
@@ -445,11 +445,13 @@ class _TableReader:
 
     def read(self) -> TableRead:
         rows = self.grid.rows
-        summaries = find_summary_rows(self.grid, self.table)
-        self.result.warnings.extend(summaries.values())
-        planned = self.plan(summaries)
-        plan = planned[0] if planned is not None else None
         body = self.table.body
+        cut = BodyColumns(rows[body.start:body.stop] if body.step == 1 else
+                          [rows[index] for index in body])
+        summaries = find_summary_rows(self.grid, self.table, cut=cut)
+        self.result.warnings.extend(summaries.values())
+        planned = self.plan(summaries, cut)
+        plan = planned[0] if planned is not None else None
         is_column = self.targets[0][3]
         is_prefix = self.cell_prefix[is_column.index] if is_column is not None else ""
         points, at_rows = self.result.points, self.result.rows
@@ -493,7 +495,8 @@ class _TableReader:
         self._describe()
         return self.result
 
-    def plan(self, summaries: Mapping[int, str]) -> tuple[list[Point | None], bool] | None:
+    def plan(self, summaries: Mapping[int, str], cut: BodyColumns
+             ) -> tuple[list[Point | None], bool] | None:
         """The points of the plain rows of a long table, read column-wise, and whether every
         row is plain (None for other layouts)."""
         if self.table.header.layout != "long" or len(self.targets) != 1:
@@ -506,7 +509,8 @@ class _TableReader:
         return plan_rows(self.grid.rows[body.start:body.stop], index=self.index,
                          columns=(conc_column, response_column, is_column),
                          analyte=self.analyte, typer=self.typer, skip=skip,
-                         first_row=body.start, prefix=self.cell_prefix[response_column.index])
+                         first_row=body.start, prefix=self.cell_prefix[response_column.index],
+                         cut=cut)
 
     def _describe(self) -> None:
         header = self.table.header

@@ -4,12 +4,17 @@ A crafted or damaged workbook can make a spreadsheet parser spin forever
 (an ``.ods`` cut off inside a table), ask for hundreds of gigabytes (a stray
 cell at the last row and column) or panic.  In the command line that would
 hang or abort calib; in ``calib serve`` it would pin a worker thread or kill
-the server.  So the parse runs in a child process (``_calamine_child.py``,
-which imports nothing of calib and starts in a few hundredths of a second)
-that is given
+the server.  So the parse runs in a child process (``_calamine_child.py``).
+A process with no other thread (the command line) forks itself: the copy
+starts at once, with python-calamine loaded and the file's bytes in memory.
+Elsewhere (the web server's threads, or a platform without ``fork``) the
+child is a new interpreter running that module as a script, which imports
+nothing of calib and starts in a few hundredths of a second.  The child is
+given
 
 * a memory limit (address space, ``RLIMIT_AS``) of :data:`BASE_MEMORY` plus
-  :data:`MEMORY_PER_BYTE` times the file size, and
+  :data:`MEMORY_PER_BYTE` times the file size (beyond what a forked copy
+  already holds), and
 * a wall-clock limit of :data:`BASE_SECONDS` plus :data:`SECONDS_PER_MB` per
   megabyte of file (and the same processor-time limit),
 
@@ -27,18 +32,24 @@ parent run code.
 from __future__ import annotations
 
 import datetime
+import faulthandler
 import io
+import os
 import pickle
+import selectors
 import signal
 import subprocess
 import sys
+import threading
 import time
+import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TypeVar
 
 from calib.errors import InputError
+from calib.io import _calamine_child
 from calib.io.files import RawFile
 
 __all__ = ["BASE_MEMORY", "BASE_SECONDS", "BookData", "SheetData", "parse_workbook"]
@@ -125,14 +136,120 @@ def limits_for(size: int) -> tuple[int, float]:
     return BASE_MEMORY + MEMORY_PER_BYTE * size, BASE_SECONDS + SECONDS_PER_MB * size / 1e6
 
 
+def _address_space() -> int | None:
+    """Bytes of address space this process holds now (Linux), or None where it cannot say."""
+    try:
+        with open("/proc/self/statm", "rb") as statm:
+            pages = int(statm.read().split()[0])
+        return pages * os.sysconf("SC_PAGE_SIZE")
+    except (OSError, ValueError, IndexError):
+        return None
+
+
+def _can_fork() -> bool:
+    """Whether the child may be a forked copy of this process.
+
+    Only where this process runs no other thread: a thread could hold a lock at the
+    moment of the fork that the copy would then wait for forever.
+    """
+    return (hasattr(os, "fork") and sys.platform.startswith("linux")
+            and threading.active_count() == 1)
+
+
+class _Forked:
+    """A forked child: its pid and pipes, with the few methods of ``Popen`` :class:`_Child` uses."""
+
+    def __init__(self, pid: int, out: int, err: int) -> None:
+        self.pid = pid
+        self.returncode: int | None = None
+        self._pipes: dict[int, list[bytes]] = {out: [], err: []}
+        self._open = {out, err}
+        self._out, self._err = out, err
+
+    def poll(self) -> int | None:
+        if self.returncode is None:
+            pid, status = os.waitpid(self.pid, os.WNOHANG)
+            if pid:
+                self.returncode = os.waitstatus_to_exitcode(status)
+        return self.returncode
+
+    def kill(self) -> None:
+        if self.returncode is None:
+            try:
+                os.kill(self.pid, signal.SIGKILL)
+            except ProcessLookupError:
+                pass
+
+    def communicate(self, timeout: float | None = None) -> tuple[bytes, bytes]:
+        """Read both pipes to their end and wait for the child (``Popen.communicate``)."""
+        deadline = None if timeout is None else time.monotonic() + timeout
+        with selectors.DefaultSelector() as selector:
+            for fd in self._open:
+                selector.register(fd, selectors.EVENT_READ)
+            while selector.get_map():
+                left = None if deadline is None else deadline - time.monotonic()
+                if left is not None and left <= 0:
+                    raise subprocess.TimeoutExpired("calamine child", timeout or 0.0)
+                for key, _ in selector.select(left):
+                    chunk = os.read(key.fd, 1 << 20)
+                    if chunk:
+                        self._pipes[key.fd].append(chunk)
+                    else:
+                        selector.unregister(key.fd)
+                        self._open.discard(key.fd)
+                        os.close(key.fd)
+        if self.returncode is None:
+            _, status = os.waitpid(self.pid, 0)
+            self.returncode = os.waitstatus_to_exitcode(status)
+        return b"".join(self._pipes[self._out]), b"".join(self._pipes[self._err])
+
+
+def _fork(raw: RawFile, memory: int, seconds: int, max_rows: int, max_cells: int
+          ) -> _Forked | None:
+    """Fork a child that parses ``raw``; None where this process cannot say its own size."""
+    held = _address_space()
+    if held is None:
+        return None
+    import python_calamine  # noqa: F401 - loaded here once, so that every copy has it
+    out_read, out_write = os.pipe()
+    err_read, err_write = os.pipe()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DeprecationWarning)  # Python 3.12 on forking at all
+        pid = os.fork()
+    if pid == 0:  # the child: never returns into calib
+        code = 70
+        try:
+            os.close(out_read)
+            os.close(err_read)
+            os.dup2(err_write, 2)  # a panic message goes to the parent, never to a terminal
+            faulthandler.disable()  # (it may write to a copy of the terminal's descriptor)
+            with open(out_write, "wb", buffering=1 << 20) as out:
+                _calamine_child.serve(raw.data, held + memory, seconds, max_rows, max_cells,
+                                      out)
+            code = 0
+        except BaseException:  # noqa: BLE001 - whatever happens, the copy ends here
+            code = 70
+        finally:
+            os._exit(code)
+    os.close(out_write)
+    os.close(err_write)
+    return _Forked(pid, out_read, err_read)
+
+
 class _Child:
     """The running child: started at once, answered by :meth:`result`."""
 
     def __init__(self, raw: RawFile, max_rows: int, max_cells: int) -> None:
         self.memory, self.seconds = limits_for(len(raw.data))
+        self.started = time.monotonic()
+        self.done = False
+        forked = _fork(raw, self.memory, int(self.seconds) + 1, max_rows, max_cells) \
+            if _can_fork() else None
+        if forked is not None:
+            self.process: subprocess.Popen[bytes] | _Forked = forked
+            return
         command = [sys.executable, "-P", str(_CHILD), str(self.memory),
                    str(int(self.seconds) + 1), str(max_rows), str(max_cells)]
-        self.started = time.monotonic()
         self.process = subprocess.Popen(command, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                                         stderr=subprocess.PIPE)
         # The child reads all its input before it writes anything, so this cannot block for
@@ -144,7 +261,6 @@ class _Child:
         except OSError:  # the child ended early; its return code will say how
             pass
         self.process.stdin = None  # communicate() must not touch the closed pipe
-        self.done = False
 
     def stop(self) -> None:
         """End the child if it still runs (the parent refused the file, or gave up)."""

@@ -48,8 +48,11 @@ _TAG = re.compile(rb'<[^"\'>]*(?:(?:"[^"]*"|\'[^\']*\')[^"\'>]*)*>')
 _R_VALUE = re.compile(rb'r\s*=\s*["\']\s*\$?([A-Za-z]*)\$?0*(\d{0,30})')
 _R_WITH_REFERENCE = re.compile(rb'[\s:]r\s*=\s*["\']([^"\'<]*&[^"\'<]*)["\']')
 # The plain spelling: r="..." right after <row or <c, nothing else anywhere spelt r=.
-_PLAIN_ROWS = re.compile(rb'<row r="0*(\d{1,30})"')
-_PLAIN_WIDE = re.compile(rb'<c r="([A-Za-z]{2,})')
+# Every "<row": the digits of a plain r="7" right after it, else nothing.
+_PLAIN_ROWS = re.compile(rb'<row(?: r="0*(\d{1,30})")?')
+# A plain cell whose reference is not one capital letter and a digit: its letters (none for
+# a reference starting with a space or a $, which the plain scan leaves to the general one).
+_PLAIN_OTHER = re.compile(rb'<c r="(?![A-Z][1-9])([A-Za-z]*)')
 _ROW_ELEMENT = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?row[\s/>]")
 _DIMENSION = re.compile(rb'<(?:[A-Za-z_][\w.-]*:)?dimension\b([^<]*)')
 _REF = re.compile(rb'[\s:]ref\s*=\s*["\']([^"\'<]*)["\']')
@@ -72,17 +75,18 @@ def column_letters(number: int) -> str:
 def _plain(part: bytes, rows: int) -> bool:
     """Whether every r attribute of ``part`` is spelt plainly: ``<row r="7"`` or ``<c r="B7"``.
 
-    ``rows`` is the number of ``<row r="digits"`` found.  A few counts cost little; any
-    other spelling (another attribute first, a namespace prefix, single quotes, white
-    space around = or in the value, a character reference) takes the general scan.
+    ``rows`` is the number of ``<row r="digits"`` found.  Each of those and each ``<c r="``
+    holds one ``r=``; when they account for every ``r=`` of the part, no r attribute is
+    spelt otherwise (another attribute first is fine, a namespace prefix or single quotes
+    are not), save one with white space before ``=`` or a character reference, excluded by
+    a few searches (single bytes are found at memory speed).  Any other spelling takes the
+    general scan.
     """
     if b"\t" in part or b"\n" in part or b"\r" in part or b"&" in part:
-        return False  # (single bytes: found at memory speed)
-    if part.count(b' r="') != rows + part.count(b'<c r="'):
         return False
-    if part.count(b"r=") != part.count(b'r="'):
+    if part.count(b"r=") != rows + part.count(b'<c r="'):
         return False
-    return not any(odd in part for odd in (b":r=", b" =", b'r=" '))
+    return b" =" not in part
 
 
 def _column_number(letters: str) -> int:
@@ -178,31 +182,36 @@ class XlsxScanner:
             self._columns = max(self._columns, _column_number(letters))
 
     def _scan(self, part: bytes) -> None:
-        rows = _PLAIN_ROWS.findall(part)
-        if not (_plain(part, len(rows)) and self._plain_scan(part, rows)):
+        elements = _PLAIN_ROWS.findall(part)
+        rows = [row for row in elements if row]
+        if not (_plain(part, len(rows)) and self._plain_scan(part, rows, len(elements))):
             self._general_scan(part)
         for attributes in _DIMENSION.findall(part) if b"dimension" in part else ():
             for value in _REF.findall(attributes):
                 for end in value.split(b":"):
                     self._position(end)
 
-    def _plain_scan(self, part: bytes, rows: list[bytes]) -> bool:
+    def _plain_scan(self, part: bytes, rows: list[bytes], elements: int) -> bool:
         """Bound the reach of a plainly spelt part cheaply; False when the bound is too loose.
 
         Rows: the farthest ``<row r=``, rounded up to the next power of ten less one.
-        Columns: the widest cell of two or more letters, else at most 26 (Z).  A cell
-        whose own row lies far beyond its row element's (no spreadsheet program writes
-        that) is left to the reader's memory limit in its child process.
+        Columns: the widest cell whose reference is not one letter and a digit, else at
+        most 26 (Z).  A cell whose own row lies far beyond its row element's (no
+        spreadsheet program writes that) is left to the reader's memory limit in its
+        child process.
         """
         farthest = max(map(int, rows)) if rows else 0
-        wide = [_column_number(w.decode()) for w in set(_PLAIN_WIDE.findall(part))]
+        letters = set(_PLAIN_OTHER.findall(part))
+        if b"" in letters:
+            return False  # a reference spelt otherwise ($A$1, a space): count exactly
+        wide = [_column_number(w.decode()) for w in letters]
         columns = max([*wide, 26 if b'<c r="' in part else 0])
         bound = max(10 ** len(str(farthest)) - 1, self._rows)
         if bound > self.rows or bound * max(columns, self._columns, 1) > self.cells:
             return False  # near a limit: count exactly
         self._rows = max(self._rows, farthest)
         self._columns = max(self._columns, *wide) if wide else self._columns
-        self._elements += part.count(b"<row")  # rows written without r count too
+        self._elements += elements  # rows written without r count too
         return True
 
     def _general_scan(self, part: bytes) -> None:

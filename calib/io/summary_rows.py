@@ -23,7 +23,7 @@ from collections.abc import Sequence
 from calib.errors import InputError
 from calib.io.cells import Cell, is_blank
 from calib.io.columns import squash
-from calib.io.fastrows import column_of
+from calib.io.fastrows import BodyColumns
 from calib.io.layout import Table
 from calib.io.table import Grid
 from calib.options import SampleType
@@ -60,8 +60,11 @@ def _cell(row: Sequence[Cell], index: int) -> Cell:
     return row[index] if index < len(row) else None
 
 
-def find_summary_rows(grid: Grid, table: Table) -> dict[int, str]:
+def find_summary_rows(grid: Grid, table: Table, *, cut: BodyColumns | None = None
+                      ) -> dict[int, str]:
     """The summary rows of a table: ``{row: note}`` (0-based rows), each to be set aside.
+
+    ``cut`` holds the columns of the table's body rows when the caller has them already.
 
     Raises
     ------
@@ -84,10 +87,12 @@ def find_summary_rows(grid: Grid, table: Table) -> dict[int, str]:
     # Column by column, each distinct text folded once (exports run to 10^5 rows); a row's
     # note names the leftmost label cell that marks it.
     marked: dict[int, tuple[int, str]] = {}
-    block = [rows[index] for index in body]
-    width = min(map(len, block), default=0)
+    if cut is None:
+        cut = BodyColumns([rows[index] for index in body])
     for column in labels:
-        values = column_of(block, column, width)
+        values = cut(column)
+        if str not in set(map(type, values)):
+            continue  # a column of numbers (the usual measurement column) holds no word
         words = {v for v in set(values) if type(v) is str and squash(v) in SUMMARY_WORDS}
         if not words:
             continue
@@ -103,17 +108,21 @@ def find_summary_rows(grid: Grid, table: Table) -> dict[int, str]:
     shared = table.header.shared
     for name in ("sample_id", "level"):
         if name in shared:
-            _unnamed(grid, table, data, name)
+            _unnamed(grid, table, data, name, cut if len(data) == len(body) else None)
     return found
 
 
-def _unnamed(grid: Grid, table: Table, data: list[int], name: str) -> None:
+def _unnamed(grid: Grid, table: Table, data: list[int], name: str,
+             cut: BodyColumns | None) -> None:
     shared = table.header.shared
     column = shared[name]
     rows = grid.rows
     at = column.index
-    values = [row[at] if at < len(row) else None for row in map(rows.__getitem__, data)]
+    values = cut(at) if cut is not None else [
+        row[at] if at < len(row) else None for row in map(rows.__getitem__, data)]
     blank = {value: is_blank(value) for value in set(values)}  # each distinct cell tested once
+    if not any(blank.values()):
+        return  # every row is named (the usual table)
     named = [i for i, value in zip(data, values) if not blank[value]]
     if len(named) < NAMED_ROWS or len(named) == len(data):
         return

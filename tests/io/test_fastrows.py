@@ -15,7 +15,7 @@ from hypothesis import strategies as st
 
 from calib.errors import InputError
 from calib.io import rows as rows_module
-from calib.io.fastrows import _point
+from calib.io.fastrows import _points
 from calib.io.layout import find_tables
 from calib.io.rows import read_table
 from calib.io.sampletypes import SampleTyper
@@ -30,7 +30,7 @@ HEADER = ["Analyte", "Sample", "Type", "Conc (ng/mL)", "Area", "IS area", "Rep",
 def _read(grid: Grid, *, column_wise: bool, monkeypatch: pytest.MonkeyPatch):
     with monkeypatch.context() as patch:
         if not column_wise:
-            patch.setattr(rows_module._TableReader, "plan", lambda self, summaries: None)
+            patch.setattr(rows_module._TableReader, "plan", lambda self, summaries, cut: None)
         try:
             table = find_tables(grid)[0]
             read = read_table(grid, table, analyte=None, typer=SampleTyper())
@@ -56,7 +56,7 @@ def _same(found, expected) -> None:
 def test_point_made_column_wise_is_the_dataclass_point():
     values = ("KX-214", 2.5, 0.125, "Run!E9", SampleType.QC, 2, True, None, "QC-M", 17,
               101000.0, 12625.0, "M")
-    made, reference = _point(values), Point(*values)
+    (made,), reference = _points([values]), Point(*values)
     assert made == reference and hash(made) == hash(reference) and repr(made) == repr(reference)
     with pytest.raises(AttributeError):  # still frozen
         made.response = 1.0  # type: ignore[misc]

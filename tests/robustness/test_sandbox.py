@@ -27,6 +27,17 @@ from calib.web.security import CSRF_FIELD
 from tests.robustness.test_corpus import BAD, corpus
 
 
+@pytest.fixture(params=["forked", "script"])
+def child_kind(request, monkeypatch):
+    """Each limit is driven through both kinds of child: a forked copy of this process (the
+    command line) and a new interpreter running the child script (threads, or no fork)."""
+    if request.param == "script":
+        monkeypatch.setattr(sandbox, "_can_fork", lambda: False)
+    elif not sandbox._can_fork():
+        pytest.skip("this platform (or this test process's threads) gives no forked child")
+    return request.param
+
+
 def _child_only(name: str, **limits: float):
     """Parse a corpus file in the child with the parent's checks switched off."""
     raw = load_file(BAD / name, what="a workbook")
@@ -34,7 +45,7 @@ def _child_only(name: str, **limits: float):
                                   checks=lambda: None)
 
 
-def test_a_parser_that_spins_is_stopped_at_the_time_limit(monkeypatch):
+def test_a_parser_that_spins_is_stopped_at_the_time_limit(child_kind, monkeypatch):
     # calamine loops on this .ods (table never closed; checked by hand, 10 s without end).
     monkeypatch.setattr(sandbox, "BASE_SECONDS", 2.0)
     started = time.monotonic()
@@ -48,7 +59,7 @@ def test_a_parser_that_spins_is_stopped_at_the_time_limit(monkeypatch):
     )
 
 
-def test_a_parser_that_asks_for_too_much_memory_is_stopped():
+def test_a_parser_that_asks_for_too_much_memory_is_stopped(child_kind):
     # One cell at XFD1048576: a dense grid of 1,048,576 × 16,384 cells (common practice of
     # spreadsheet readers; the issue measured a request of 549,755,813,888 bytes).
     with pytest.raises(InputError) as caught:
@@ -56,7 +67,7 @@ def test_a_parser_that_asks_for_too_much_memory_is_stopped():
     assert "reading it needed more than the 1,024 MB of memory calib allows" in str(caught.value)
 
 
-def test_panic_text_never_reaches_the_message(capfd):
+def test_panic_text_never_reaches_the_message(child_kind, capfd):
     # Cut at 6,656 bytes, the compound file makes calamine panic (found by cutting the sample
     # .xls at every 512 bytes); the parent's own check refuses it first, so the child is
     # driven alone here.
@@ -83,6 +94,29 @@ def test_the_child_is_stopped_when_the_parent_refuses(monkeypatch):
     with pytest.raises(InputError, match="not well formed"):
         read_run(BAD / "ods_table_never_closed.ods")
     assert children and children[0].process.poll() is not None
+
+
+def test_a_reader_in_a_thread_gets_a_script_child_and_the_same_run(tmp_path):
+    # A forked copy of a process with other threads could wait forever for a lock one of
+    # them held at the fork (POSIX fork(): only the calling thread is copied), so a read
+    # from a thread (the web server's) starts the child script; both give the same run.
+    import threading
+
+    from calib.io.workbook import WorkbookReader
+
+    path = Path(__file__).parents[2] / "sample_runs" / "fernbrook_anions_wide_2026-12-01.xlsx"
+    in_main = read_run(path)
+    found = {}
+
+    def read() -> None:
+        found["can_fork"] = sandbox._can_fork()
+        found["run"] = WorkbookReader().read(path)
+
+    thread = threading.Thread(target=read)
+    thread.start()
+    thread.join()
+    assert found["can_fork"] is False
+    assert found["run"].points == in_main.points
 
 
 def test_the_answer_may_hold_only_plain_values():
@@ -251,3 +285,14 @@ def test_one_tag_longer_than_a_megabyte_is_refused():
     scanner = XlsxScanner()
     with pytest.raises(ValueError, match="one XML tag runs past 1,000,000 bytes"):
         scanner.feed(b'<c t="n"' + b" " * 1_100_000)
+
+
+@pytest.mark.parametrize("reference", [b"$XFD$7", b"xfd7", b" XFD7", b"XFD7"])
+def test_a_plainly_spelt_part_with_any_cell_reference_is_bounded(reference):
+    # The quick path of the scan (every r spelt r="...") must still see column XFD (16,384)
+    # however its reference is written: with $ signs, small letters or a leading space, the
+    # spellings a spreadsheet reader may tolerate (ECMA-376 Part 1, §18.3.1.4 c: r is an A1
+    # reference).
+    scanner = XlsxScanner(cells=10**6)
+    scanner.feed(b'<row r="7"><c r="A7"><v>1</v></c><c r="' + reference + b'"><v>1</v></c></row>')
+    assert scanner.close() == Extent(rows=7, columns=16_384)

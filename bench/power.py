@@ -29,15 +29,21 @@ Each curve also has QC samples in duplicate at 3× the lowest level, mid-range a
 top, read with the same true curve and noise (the bioanalytical profile judges them).
 
 Printed per cell: the share of curves not accepted under the profile (false review on sound
-curves, power on defects) and, for sound curves, the share of curves on which each check
-fails or warns (its false-alarm rate) beside its nominal size where it has one.  Binomial
-slack: a rate is flagged ``!`` when above nominal + 2.58·√(α(1−α)/n) (one-sided 99.5 %).
+curves, with its 95 % binomial half-width; power on defects) and, for sound curves, the share
+of curves on which each check fails or warns (its false-alarm rate) beside its nominal size
+where it has one, then the checks that kept sound curves from acceptance and the share kept
+by checks other than the intercept test while that test passed (what the rest adds to its
+5 %).  Binomial slack: a rate is flagged ``!`` when above nominal + 2.58·√(α(1−α)/n)
+(one-sided 99.5 %); a cell's sound rate likewise against 6 %.  Each profile ends with the
+sound curves of all its cells pooled.  ``--theory`` prints instead the theoretical power of
+the tests against these defects per design (noncentral t; see README).
 
 Run from the repository root::
 
     python bench/power.py --quick          # 9–10 designs, 200 curves per cell
     python bench/power.py                  # every design, 400 curves per cell
-    python bench/power.py --profile default --quick --curves 300 --no-defects
+    python bench/power.py --profile default --quick --curves 2000 --no-defects
+    python bench/power.py --profile default --theory
 
 The fits are batched; the rules run curve by curve (about 7 ms a curve), so ``--quick`` takes
 a few minutes per profile on an idle core and the full table about half an hour per profile.

@@ -235,7 +235,7 @@ def designs_for(quick: bool, profile: str) -> list[Design]:
     return [*grid, Design.iso_8466()] if profile == "default" else grid
 
 
-def _t_power(delta: float, df: int, alpha: float, *, sided: int = 2) -> float:
+def t_power(delta: float, df: int, alpha: float, *, sided: int = 2) -> float:
     """Power of a t-test at level α against noncentrality δ (integrated over σ̂, exact)."""
     from scipy import integrate, stats
 
@@ -275,14 +275,14 @@ def theoretical_power(design: Design, noise: str, family_alpha: float, members: 
     d_out = OUTLIER_SD * np.sqrt(1 - h)
 
     def outlier(alpha: float) -> float:
-        return float(np.mean([_t_power(d, n - 3, alpha) for d in d_out]))
+        return float(np.mean([t_power(d, n - 3, alpha) for d in d_out]))
 
     return {
-        "intercept": _t_power(3.0, n - 2, 0.05),
-        "intercept_bound": _t_power(3.0, n - 2, budget),
-        "curvature_holm": _t_power(d_quad, n - 3, family_alpha / k),
-        "curvature_alone": _t_power(d_quad, n - 3, family_alpha),
-        "curvature_bound": _t_power(d_quad, n - 3, budget),
+        "intercept": t_power(3.0, n - 2, 0.05),
+        "intercept_bound": t_power(3.0, n - 2, budget),
+        "curvature_holm": t_power(d_quad, n - 3, family_alpha / k),
+        "curvature_alone": t_power(d_quad, n - 3, family_alpha),
+        "curvature_bound": t_power(d_quad, n - 3, budget),
         "outlier_holm": outlier(family_alpha / (k * n)),
         "outlier_alone": outlier(family_alpha / n),
         "outlier_bound": outlier(budget / n),

@@ -17,7 +17,7 @@ import pytest
 from statsmodels.stats.multitest import multipletests
 from statsmodels.stats.power import FTestPower, TTestPower
 
-from bench.power import Design, run_cell
+from bench.power import Design, t_power, run_cell
 from calib.checks.family import holm_adjust
 from calib.checks.profile import load_profile
 from calib.fit.power import detectable_f_noncentrality, detectable_t_noncentrality
@@ -118,3 +118,14 @@ def test_detectable_f_matches_statsmodels_power(dfn: int, dfd: int) -> None:
                                  power=0.8)
     assert detectable_f_noncentrality(dfn, dfd, 0.05) == pytest.approx(
         f**2 * (dfn + dfd + 1), rel=1e-3)
+
+
+@pytest.mark.parametrize(("df", "delta", "alpha"), [(3, 3.0, 0.05), (26, 3.0, 0.05),
+                                                     (15, 3.86, 0.00125)])
+def test_theoretical_power_matches_statsmodels(df: int, delta: float, alpha: float) -> None:
+    # bench/power.py --theory integrates the noncentral t over σ̂; statsmodels' one-sample
+    # TTestPower on nobs = df + 1 has noncentrality d·√nobs.
+    nobs = df + 1
+    expected = TTestPower().power(effect_size=delta / math.sqrt(nobs), nobs=nobs, alpha=alpha,
+                                  alternative="two-sided")
+    assert t_power(delta, df, alpha) == pytest.approx(expected, abs=1e-6)

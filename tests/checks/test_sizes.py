@@ -17,7 +17,7 @@ import pytest
 from statsmodels.stats.multitest import multipletests
 from statsmodels.stats.power import FTestPower, TTestPower
 
-from bench.power import Design, t_power, run_cell
+from bench.power import Design, run_cell, t_power
 from calib.checks.family import holm_adjust
 from calib.checks.profile import load_profile
 from calib.fit.power import detectable_f_noncentrality, detectable_t_noncentrality

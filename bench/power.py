@@ -29,15 +29,21 @@ Each curve also has QC samples in duplicate at 3× the lowest level, mid-range a
 top, read with the same true curve and noise (the bioanalytical profile judges them).
 
 Printed per cell: the share of curves not accepted under the profile (false review on sound
-curves, power on defects) and, for sound curves, the share of curves on which each check
-fails or warns (its false-alarm rate) beside its nominal size where it has one.  Binomial
-slack: a rate is flagged ``!`` when above nominal + 2.58·√(α(1−α)/n) (one-sided 99.5 %).
+curves, with its 95 % binomial half-width; power on defects) and, for sound curves, the share
+of curves on which each check fails or warns (its false-alarm rate) beside its nominal size
+where it has one, then the checks that kept sound curves from acceptance and the share kept
+by checks other than the intercept test while that test passed (what the rest adds to its
+5 %).  Binomial slack: a rate is flagged ``!`` when above nominal + 2.58·√(α(1−α)/n)
+(one-sided 99.5 %); a cell's sound rate likewise against 6 %.  Each profile ends with the
+sound curves of all its cells pooled.  ``--theory`` prints instead the theoretical power of
+the tests against these defects per design (noncentral t; see README).
 
 Run from the repository root::
 
     python bench/power.py --quick          # 9–10 designs, 200 curves per cell
     python bench/power.py                  # every design, 400 curves per cell
-    python bench/power.py --profile default --quick --curves 300 --no-defects
+    python bench/power.py --profile default --quick --curves 2000 --no-defects
+    python bench/power.py --profile default --theory
 
 The fits are batched; the rules run curve by curve (about 7 ms a curve), so ``--quick`` takes
 a few minutes per profile on an idle core and the full table about half an hour per profile.
@@ -51,29 +57,30 @@ import os
 for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ.setdefault(_var, "1")
 
-import argparse  # noqa: E402
-import math  # noqa: E402
-import sys  # noqa: E402
-import time  # noqa: E402
-from collections import Counter  # noqa: E402
-from collections.abc import Sequence  # noqa: E402
-from dataclasses import dataclass, field  # noqa: E402
-from pathlib import Path  # noqa: E402
+import argparse
+import math
+import sys
+import time
+from collections import Counter
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
 
-import numpy as np  # noqa: E402
+import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from calib.checks.evaluate import evaluate_run  # noqa: E402
-from calib.checks.profile import Profile, load_profile  # noqa: E402
-from calib.options import SampleType  # noqa: E402
-from calib.run import Point, Run, SourceInfo  # noqa: E402
+from calib.checks.evaluate import evaluate_run
+from calib.checks.profile import Profile, load_profile
+from calib.options import SampleType
+from calib.run import Point, Run, SourceInfo
 
 SLOPE = 100.0
 CONST_SD_PCT = 0.25  # σ as % of the top response, constant-noise scenario
 PROP_CV_PCT = 1.0  # CV, proportional-noise scenario
 CURVATURE = 0.03
 OUTLIER_SD = 8.0
+LIMIT = 0.06  # the default profile's largest false-review rate (issue 15)
 DEFECTS = ("intercept", "curvature", "outlier", "prop-unweighted")
 
 
@@ -164,10 +171,24 @@ class Cell:
     raw: Counter = field(default_factory=Counter)
     evaluated: Counter = field(default_factory=Counter)
     nominal: dict = field(default_factory=dict)
+    #: Per check: curves it kept from being accepted (a failing or warning review/reject check).
+    causes: Counter = field(default_factory=Counter)
+    #: Curves kept from acceptance by something other than the intercept t-test.
+    not_intercept: int = 0
+    #: ... and among them, curves whose intercept test passed (what the rest adds to it).
+    other_only: int = 0
 
     @property
     def rate(self) -> float:
         return self.not_accepted / self.n if self.n else float("nan")
+
+
+def _is_reason(check) -> bool:
+    """Whether a check keeps its curve from being accepted (as combine_verdicts decides)."""
+    severity, verdict = check.severity.value, check.verdict.value
+    if severity == "reject":
+        return verdict in ("fail", "warn", "not-evaluated")
+    return severity == "review" and verdict in ("fail", "warn")
 
 
 def run_cell(profile: Profile, design: Design, noise: str, defect: str | None, n_curves: int,
@@ -180,6 +201,10 @@ def run_cell(profile: Profile, design: Design, noise: str, defect: str | None, n
     for curve in result.curves:
         cell.n += 1
         cell.not_accepted += curve.verdict.value != "accepted"
+        reasons = {c.id for c in curve.checks if _is_reason(c)}
+        cell.causes.update(reasons)
+        cell.not_intercept += bool(reasons - {"intercept-zero"})
+        cell.other_only += bool(reasons) and "intercept-zero" not in reasons
         for check in curve.checks:
             if check.verdict.value == "not-evaluated":
                 continue
@@ -210,6 +235,77 @@ def designs_for(quick: bool, profile: str) -> list[Design]:
     return [*grid, Design.iso_8466()] if profile == "default" else grid
 
 
+def t_power(delta: float, df: int, alpha: float, *, sided: int = 2) -> float:
+    """Power of a t-test at level α against noncentrality δ (integrated over σ̂, exact)."""
+    from scipy import integrate, stats
+
+    crit = float(stats.t.ppf(1 - alpha / sided, df))
+
+    def given(v: float) -> float:
+        scale = crit * math.sqrt(v / df)
+        far = stats.norm.cdf(-delta - scale) if sided == 2 else 0.0
+        return float((stats.norm.cdf(delta - scale) + far) * stats.chi2.pdf(v, df))
+
+    return float(integrate.quad(given, 0, np.inf, limit=200)[0])
+
+
+def theoretical_power(design: Design, noise: str, family_alpha: float, members: int,
+                      budget: float) -> dict[str, float]:
+    """Power of the best tests against this harness's defects, from the noncentral t.
+
+    ``intercept``: calib's two-sided intercept t-test at 5 % against the 3-SE offset.
+    ``curvature``: the x² coefficient's t-test (δ from the design) two-sided at the Holm
+    first step α/k and, alone, at the family's α.  ``outlier``: the externally studentized
+    residual of the moved point (δ = 8·√(1 − h), averaged over the points) against
+    Bonferroni at α/k and α.  ``bound``: the same test for that defect alone at the whole
+    verdict's false-review ``budget`` (5 % + the family's α): what a verdict that sends no
+    more sound curves to review could reach with the standard test for the defect.
+    """
+    lv = levels(design, noise)
+    x = np.repeat(lv, design.replicates)
+    top = float(lv[-1])
+    w = 1 / sigma(x, noise, top) ** 2
+    n = x.size
+    k = members if max(design.replicates) > 1 else members - 1  # no lack of fit without
+    X = np.column_stack([np.ones_like(x), x, x**2])
+    cov = np.linalg.inv(X.T @ (w[:, None] * X))
+    d_quad = SLOPE * CURVATURE / top / math.sqrt(cov[2, 2])
+    xw = X[:, :2] * np.sqrt(w)[:, None]
+    h = np.einsum("ij,jk,ik->i", xw, np.linalg.inv(xw.T @ xw), xw)
+    d_out = OUTLIER_SD * np.sqrt(1 - h)
+
+    def outlier(alpha: float) -> float:
+        return float(np.mean([t_power(d, n - 3, alpha) for d in d_out]))
+
+    return {
+        "intercept": t_power(3.0, n - 2, 0.05),
+        "intercept_bound": t_power(3.0, n - 2, budget),
+        "curvature_holm": t_power(d_quad, n - 3, family_alpha / k),
+        "curvature_alone": t_power(d_quad, n - 3, family_alpha),
+        "curvature_bound": t_power(d_quad, n - 3, budget),
+        "outlier_holm": outlier(family_alpha / (k * n)),
+        "outlier_alone": outlier(family_alpha / n),
+        "outlier_bound": outlier(budget / n),
+    }
+
+
+def print_theory(profile: Profile, noises: Sequence[str], quick: bool) -> None:
+    family = profile.review_family
+    alpha = family.alpha if family else 0.05
+    budget = 0.05 + alpha
+    print(f"\n## theoretical power, profile {profile.name} (family α = {alpha:g}, Holm over 4 "
+          f"members, 3 without replicates; bound: that test alone at {budget:g})")
+    print(f"{'noise':<13}{'design':<9}{'intercept':>10}{'bound':>7}{'curv. Holm':>12}{'alone':>7}"
+          f"{'bound':>7}{'outl. Holm':>12}{'alone':>7}{'bound':>7}")
+    for noise in noises:
+        for design in designs_for(quick, "default"):
+            t = theoretical_power(design, noise, alpha, 4, budget)
+            print(f"{noise:<13}{design.name:<9}{t['intercept']:>10.3f}{t['intercept_bound']:>7.3f}"
+                  f"{t['curvature_holm']:>12.3f}{t['curvature_alone']:>7.3f}"
+                  f"{t['curvature_bound']:>7.3f}{t['outlier_holm']:>12.3f}"
+                  f"{t['outlier_alone']:>7.3f}{t['outlier_bound']:>7.3f}")
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--profile", action="append",
@@ -219,25 +315,39 @@ def main(argv: Sequence[str] | None = None) -> int:
     ap.add_argument("--seed", type=int, default=20261202)
     ap.add_argument("--noise", choices=("constant", "proportional"), action="append")
     ap.add_argument("--no-defects", action="store_true", help="sound curves only")
+    ap.add_argument("--theory", action="store_true",
+                    help="print the theoretical power of the best tests per design and stop")
     args = ap.parse_args(argv)
     names = args.profile or ["default", "bioanalytical", "environmental", "iso-8466",
-                             "assay-linearity"]
+                             "assay-linearity", "plasma-spectrometry"]
     n_curves = args.curves or (200 if args.quick else 400)
     noises = args.noise or ["constant", "proportional"]
+    if args.theory:
+        for name in names:
+            print_theory(load_profile(name), noises, args.quick)
+        return 0
     started = time.perf_counter()
     seed = args.seed
     for name in names:
         profile = load_profile(name)
         print(f"\n## profile {name}: share of curves not accepted ({n_curves} curves per cell)")
-        header = f"{'noise':<13}{'design':<9}{'sound':>7}"
+        header = f"{'noise':<13}{'design':<9}{'sound':>7}{'±95 %':>7}"
         defects = () if args.no_defects else DEFECTS
         header += "".join(f"{d:>17}" for d in defects)
         print(header)
+        pooled = Cell()
         for noise in noises:
             for design in designs_for(args.quick, name):
                 seed += 1
                 sound = run_cell(profile, design, noise, None, n_curves, seed)
-                line = f"{noise:<13}{design.name:<9}{sound.rate:>7.3f}"
+                pooled.n += sound.n
+                pooled.not_accepted += sound.not_accepted
+                pooled.causes.update(sound.causes)
+                pooled.not_intercept += sound.not_intercept
+                pooled.other_only += sound.other_only
+                half = 1.96 * math.sqrt(sound.rate * (1 - sound.rate) / sound.n)
+                above = "!" if sound.rate > slack(LIMIT, sound.n) else " "
+                line = f"{noise:<13}{design.name:<9}{sound.rate:>7.3f}{half:>6.3f}{above}"
                 for defect in defects:
                     if defect == "prop-unweighted" and noise == "proportional":
                         line += f"{'=':>17}"
@@ -257,9 +367,20 @@ def main(argv: Sequence[str] | None = None) -> int:
                     elif rate:
                         alarms.append(f"{check} {rate:.3f}")
                 print(f"{'':<22}sound-curve alarms: " + "; ".join(alarms))
+                print(f"{'':<22}{_causes(sound)}")
                 sys.stdout.flush()
+        se = math.sqrt(pooled.rate * (1 - pooled.rate) / pooled.n)
+        print(f"pooled sound curves ({pooled.n}): not accepted {pooled.rate:.4f} ± "
+              f"{1.96 * se:.4f} (95 %); {_causes(pooled)}")
     print(f"\n{time.perf_counter() - started:.0f} s")
     return 0
+
+
+def _causes(cell: Cell) -> str:
+    causes = "; ".join(f"{c} {k / cell.n:.3f}" for c, k in cell.causes.most_common())
+    return (f"not accepted by: {causes or 'nothing'}; by other than the intercept test "
+            f"{cell.not_intercept / cell.n:.4f}, with the intercept test passing "
+            f"{cell.other_only / cell.n:.4f}")
 
 
 if __name__ == "__main__":

@@ -17,7 +17,7 @@ import pytest
 from statsmodels.stats.multitest import multipletests
 from statsmodels.stats.power import FTestPower, TTestPower
 
-from bench.power import Design, run_cell
+from bench.power import Design, run_cell, t_power
 from calib.checks.family import holm_adjust
 from calib.checks.profile import load_profile
 from calib.fit.power import detectable_f_noncentrality, detectable_t_noncentrality
@@ -34,17 +34,31 @@ def default():
     return load_profile("default")
 
 
-def test_sound_triplicate_curves_rarely_go_to_review(default) -> None:
-    # 7 levels × 3 replicates, constant noise, unweighted: intercept at 5 % plus the family
-    # at 1 % → at most 6 % (issue 15's criterion), with binomial slack.
-    cell = run_cell(default, Design.grid(7, 3), "constant", None, CURVES, seed=1501)
-    assert cell.rate <= slack(0.06, CURVES), cell.rate
-    for check, alpha in (("intercept-zero", 0.05), ("outliers", 0.05),
-                         ("lack-of-fit", 0.05), ("quadratic-term", 0.05)):
-        raw = cell.raw[check] / cell.evaluated[check]
-        assert raw <= slack(alpha, cell.evaluated[check]), (check, raw)
-    family = sum(cell.alarms[c] for c in ("outliers", "lack-of-fit", "quadratic-term", "drift"))
-    assert family / CURVES <= slack(0.01, CURVES)
+def test_sound_curves_rarely_go_to_review(default) -> None:
+    # Three designs a laboratory uses (7 × 3 constant noise unweighted, 5 single standards and
+    # 10 × 2 with proportional noise fitted 1/x²), pooled: the intercept t-test at 5 % plus
+    # the review family at 0.5 % → at most 5.5 % of sound curves not accepted (issue 15: ≤ 6 %),
+    # each test within its size, all with binomial slack.
+    cells = [run_cell(default, Design.grid(7, 3), "constant", None, 200, seed=1501),
+             run_cell(default, Design.grid(5, 1), "proportional", None, 200, seed=1511),
+             run_cell(default, Design.grid(10, 2), "proportional", None, 200, seed=1512)]
+    n = sum(c.n for c in cells)
+    rate = sum(c.not_accepted for c in cells) / n
+    assert rate <= slack(0.055, n), rate
+    # What the rest adds to the intercept test: the family, at most its 0.5 %.
+    assert sum(c.other_only for c in cells) / n <= slack(0.005, n)
+    # The intercept test is exact (t on ν df, normal errors): its rate is 5 % within slack on
+    # both sides, so a test that never fires would fail here too.
+    icpt = sum(c.raw["intercept-zero"] for c in cells) / n
+    assert abs(icpt - 0.05) <= slack(0.05, n) - 0.05, icpt
+    checks = {k for c in cells for k in c.nominal}
+    assert {"intercept-zero", "outliers", "quadratic-term", "drift", "lack-of-fit",
+            "mandel", "variance-levels", "weighting-advice"} <= checks
+    for check in checks:
+        evaluated = sum(c.evaluated[check] for c in cells)
+        raw = sum(c.raw[check] for c in cells) / evaluated
+        alpha = cells[0].nominal.get(check) or cells[1].nominal.get(check) or cells[2].nominal[check]
+        assert raw <= slack(alpha, evaluated), (check, raw, alpha, evaluated)
 
 
 def test_runs_test_keeps_its_size_with_replicates(default) -> None:
@@ -104,3 +118,14 @@ def test_detectable_f_matches_statsmodels_power(dfn: int, dfd: int) -> None:
                                  power=0.8)
     assert detectable_f_noncentrality(dfn, dfd, 0.05) == pytest.approx(
         f**2 * (dfn + dfd + 1), rel=1e-3)
+
+
+@pytest.mark.parametrize(("df", "delta", "alpha"), [(3, 3.0, 0.05), (26, 3.0, 0.05),
+                                                     (15, 3.86, 0.00125)])
+def test_theoretical_power_matches_statsmodels(df: int, delta: float, alpha: float) -> None:
+    # bench/power.py --theory integrates the noncentral t over σ̂; statsmodels' one-sample
+    # TTestPower on nobs = df + 1 has noncentrality d·√nobs.
+    nobs = df + 1
+    expected = TTestPower().power(effect_size=delta / math.sqrt(nobs), nobs=nobs, alpha=alpha,
+                                  alternative="two-sided")
+    assert t_power(delta, df, alpha) == pytest.approx(expected, abs=1e-6)

@@ -28,9 +28,9 @@ from pathlib import Path
 
 from calib.errors import ConfigError, TemplateError
 
-__all__ = ["CONFIG_ENV", "LabSettings", "config_path", "read_settings", "write_settings"]
+__all__ = ["LabSettings", "config_path", "read_settings", "write_settings"]
 
-CONFIG_ENV = "CALIB_CONFIG"
+_CONFIG_ENV = "CALIB_CONFIG"
 """Environment variable naming the settings file (tests and shared installations use it)."""
 _MAX_BYTES = 64 * 1024  # a settings file is a few lines; anything larger is not ours
 
@@ -66,14 +66,14 @@ def config_path() -> Path:
     'lab-settings.toml'
     >>> _ = os.environ.pop("CALIB_CONFIG") if old is None else os.environ.update(CALIB_CONFIG=old)
     """
-    named = os.environ.get(CONFIG_ENV)
+    named = os.environ.get(_CONFIG_ENV)
     if named:
         return Path(named)
     base = os.environ.get("XDG_CONFIG_HOME") or os.path.join(os.path.expanduser("~"), ".config")
     return Path(base) / "calib" / "config.toml"
 
 
-def file_sha256(path: str | Path) -> str:
+def _file_sha256(path: str | Path) -> str:
     """SHA-256 (hex) of a file's bytes; a TemplateError naming the file when it cannot be read."""
     try:
         return hashlib.sha256(Path(path).read_bytes()).hexdigest()

@@ -13,7 +13,7 @@ from pathlib import Path
 
 __all__ = ["Output", "disk_message", "file_mode", "safe_file_name", "write_all", "write_atomic"]
 
-PRIVATE_MODE = 0o600
+_PRIVATE_MODE = 0o600
 """Mode of private files (archive copies, frozen baselines, lab settings): owner only."""
 
 
@@ -33,7 +33,7 @@ def file_mode(*, private: bool = False) -> int:
     >>> _ = os.umask(old)
     """
     if private:
-        return PRIVATE_MODE
+        return _PRIVATE_MODE
     # The umask can only be read by setting it; put it straight back.
     mask = os.umask(0o077)
     os.umask(mask)
@@ -44,7 +44,7 @@ def file_mode(*, private: bool = False) -> int:
 _UNSAFE = re.compile(r'[\\/:*?"<>|\x00-\x1f\x7f]')
 _WINDOWS_RESERVED = frozenset({"con", "prn", "aux", "nul", *(f"com{i}" for i in range(1, 10)),
                                *(f"lpt{i}" for i in range(1, 10))})
-MAX_NAME = 120
+_MAX_NAME = 120
 """Longest file name :func:`safe_file_name` returns (characters, before the suffix)."""
 
 
@@ -54,7 +54,7 @@ def safe_file_name(text: str, *, fallback: str = "unnamed") -> str:
     Path separators, runs of dots, characters Windows forbids, control and
     bidirectional characters become ``_``; leading dots and spaces go (no
     hidden files, no ``..``); Windows device names get a ``_`` prefix; the
-    result is at most :data:`MAX_NAME` characters and never empty.
+    result is at most :data:`_MAX_NAME` characters and never empty.
 
     Examples
     --------
@@ -66,7 +66,7 @@ def safe_file_name(text: str, *, fallback: str = "unnamed") -> str:
     name = "".join("_" if unicodedata.category(c) in ("Cc", "Cf", "Zl", "Zp") else c
                    for c in unicodedata.normalize("NFC", text))
     name = re.sub(r"\.{2,}", "_", _UNSAFE.sub("_", name))
-    name = name.lstrip(". ").rstrip(". ")[:MAX_NAME].rstrip(". ")
+    name = name.lstrip(". ").rstrip(". ")[:_MAX_NAME].rstrip(". ")
     if not name:
         return fallback
     if name.split(".")[0].casefold() in _WINDOWS_RESERVED:
@@ -198,7 +198,7 @@ def write_all(outputs: Sequence[Output], *, before_commit: Callable[[], None] | 
     return [Path(out.path) for out in outputs]
 
 
-def _stage(target: Path, data: bytes, mode: int = PRIVATE_MODE) -> str:
+def _stage(target: Path, data: bytes, mode: int = _PRIVATE_MODE) -> str:
     """Write ``data`` to a new temporary file beside ``target``, on disk; returns its name.
 
     The temporary file is created 0600 (no one reads a half-written file) and

@@ -39,13 +39,12 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 
-__all__ = ["HEAD_ENV", "HEAD_KEY_ENV", "HeadReceipt", "default_receipt_path", "read_receipt",
-           "stamp_of", "write_receipt"]
+__all__ = ["HeadReceipt", "default_receipt_path", "read_receipt", "write_receipt"]
 
-HEAD_ENV = "CALIB_ARCHIVE_HEAD"
-HEAD_KEY_ENV = "CALIB_ARCHIVE_HEAD_KEY"
+_HEAD_ENV = "CALIB_ARCHIVE_HEAD"
+_HEAD_KEY_ENV = "CALIB_ARCHIVE_HEAD_KEY"
 SCHEMA = "calib.archive-head/1"
-SUFFIX = ".head.json"
+_SUFFIX = ".head.json"
 
 
 @dataclass(frozen=True)
@@ -81,35 +80,35 @@ def default_receipt_path(location: str, *, database: bool) -> Path | None:
     >>> str(default_receipt_path("lab/records.sqlite", database=False))
     'lab/records.sqlite.head.json'
     """
-    configured = os.environ.get(HEAD_ENV)
+    configured = os.environ.get(_HEAD_ENV)
     if configured:
         return Path(configured)
-    return None if database else Path(location + SUFFIX)
+    return None if database else Path(location + _SUFFIX)
 
 
 def _key() -> bytes | None:
-    path = os.environ.get(HEAD_KEY_ENV)
+    path = os.environ.get(_HEAD_KEY_ENV)
     if not path:
         return None
     try:
         key = Path(path).read_bytes().strip()
     except OSError as exc:
-        raise ValueError(f"{HEAD_KEY_ENV}={path}: the head receipt key cannot be read "
+        raise ValueError(f"{_HEAD_KEY_ENV}={path}: the head receipt key cannot be read "
                          f"({exc.strerror})") from None
     if len(key) < 16:
-        raise ValueError(f"{HEAD_KEY_ENV}={path}: the head receipt key must hold at least 16 "
+        raise ValueError(f"{_HEAD_KEY_ENV}={path}: the head receipt key must hold at least 16 "
                          "bytes")
     return key
 
 
-def stamp_of(receipt: HeadReceipt, kind: str) -> str:
+def _stamp_of(receipt: HeadReceipt, kind: str) -> str:
     """The stamp of ``receipt`` (layout in the module docstring).
 
     Examples
     --------
     >>> r = HeadReceipt("AR-0", 1, "0" * 64, "2026-12-01T09:30:00Z")
     >>> lines = ["calib archive head", "AR-0", "1", "0" * 64, "2026-12-01T09:30:00Z"]
-    >>> stamp_of(r, "sha256") == hashlib.sha256(chr(10).join(lines).encode()).hexdigest()
+    >>> _stamp_of(r, "sha256") == hashlib.sha256(chr(10).join(lines).encode()).hexdigest()
     True
     """
     text = (f"calib archive head\n{receipt.archive_id}\n{receipt.seq}\n{receipt.entry_hash}\n"
@@ -117,7 +116,7 @@ def stamp_of(receipt: HeadReceipt, kind: str) -> str:
     if kind == "hmac-sha256":
         key = _key()
         if key is None:
-            raise ValueError(f"the head receipt is keyed but {HEAD_KEY_ENV} names no key file")
+            raise ValueError(f"the head receipt is keyed but {_HEAD_KEY_ENV} names no key file")
         return hmac.new(key, text, hashlib.sha256).hexdigest()
     return hashlib.sha256(text).hexdigest()
 
@@ -147,9 +146,9 @@ def read_receipt(path: Path) -> HeadReceipt | None:
     if receipt.stamp_kind not in ("sha256", "hmac-sha256"):
         raise ValueError(f"the head receipt {path} has an unknown stamp {receipt.stamp_kind!r}")
     if receipt.stamp_kind == "sha256" and _key() is not None:
-        raise ValueError(f"the head receipt {path} is not keyed although {HEAD_KEY_ENV} is set: "
+        raise ValueError(f"the head receipt {path} is not keyed although {_HEAD_KEY_ENV} is set: "
                          "it was replaced")
-    if not hmac.compare_digest(stamp_of(receipt, receipt.stamp_kind), receipt.stamp):
+    if not hmac.compare_digest(_stamp_of(receipt, receipt.stamp_kind), receipt.stamp):
         raise ValueError(f"the head receipt {path} was edited: its stamp does not match its "
                          "contents")
     return receipt
@@ -172,7 +171,7 @@ def write_receipt(path: Path, archive_id: str, seq: int, entry_hash: str,
     """Write (or move forward) the receipt at ``path``; returns the receipt now in the file."""
     kind = "hmac-sha256" if _key() is not None else "sha256"
     receipt = HeadReceipt(archive_id, seq, entry_hash, written_at, kind)
-    receipt = HeadReceipt(**{**receipt.__dict__, "stamp": stamp_of(receipt, kind)})
+    receipt = HeadReceipt(**{**receipt.__dict__, "stamp": _stamp_of(receipt, kind)})
     with _locked(path):
         try:
             current = read_receipt(path)

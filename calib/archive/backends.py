@@ -33,8 +33,7 @@ from urllib.parse import urlsplit, urlunsplit
 from calib.archive import schema
 from calib.errors import ArchiveError
 
-__all__ = ["ArchiveError", "PostgresStorage", "SqliteStorage", "Storage", "is_database_url",
-           "open_storage", "redact"]
+__all__ = ["ArchiveError", "Storage", "is_database_url", "open_storage", "redact"]
 
 LOCK_KEY = 0x43414C42  # the advisory lock every calib writer takes on PostgreSQL
 
@@ -88,8 +87,8 @@ def redact(location: str) -> str:
 def open_storage(location: str | Path, *, create: bool, timeout: float) -> Storage:
     """Open the archive at ``location`` (see the module docstring for how it is read)."""
     if is_database_url(location):
-        return PostgresStorage(str(location), create=create, timeout=timeout)
-    return SqliteStorage(Path(location), create=create, timeout=timeout)
+        return _PostgresStorage(str(location), create=create, timeout=timeout)
+    return _SqliteStorage(Path(location), create=create, timeout=timeout)
 
 
 def _first_line(exc: BaseException) -> str:
@@ -110,7 +109,7 @@ def _new_archive_rows() -> list[tuple[str, ...]]:
 # ---------------------------------------------------------------------------------- SQLite
 
 
-class SqliteStorage:
+class _SqliteStorage:
     """An archive in one SQLite file (WAL journal, ``synchronous = FULL``)."""
 
     engine = "sqlite"
@@ -260,7 +259,7 @@ class SqliteStorage:
 # ------------------------------------------------------------------------------ PostgreSQL
 
 
-class PostgresStorage:
+class _PostgresStorage:
     """An archive in a PostgreSQL database (the tables of the connection's schema)."""
 
     engine = "postgresql"

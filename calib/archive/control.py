@@ -79,7 +79,7 @@ __all__ = [
 DEFAULT_BASELINE = 10
 MIN_BASELINE = 3
 #: Family false-alarm rate of the baseline screening (over the baseline's values).
-SCREEN_ALPHA = 0.05
+_SCREEN_ALPHA = 0.05
 
 #: Rule id → what it means, in the order they are checked.
 RULES: dict[str, str] = {
@@ -462,7 +462,7 @@ def screened_limits(values: Sequence[float], *, baseline: int | None = DEFAULT_B
     out: list[SetAside] = []
     while len(kept) > floor:
         n = len(kept)
-        critical = max(3.0, float(stats.t.ppf(1 - SCREEN_ALPHA / (2 * n), n - 2))
+        critical = max(3.0, float(stats.t.ppf(1 - _SCREEN_ALPHA / (2 * n), n - 2))
                        * math.sqrt(1 + 1 / (n - 1)))
         worst: SetAside | None = None
         for i in kept:

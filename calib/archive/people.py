@@ -4,9 +4,9 @@ Users live in the archive database (format 3), so every ``calib serve``
 instance in front of one database knows the same people and their sessions.
 
 Passwords
-    At least :data:`MIN_PASSWORD` characters; stored only as an argon2id hash
-    (argon2-cffi's defaults, RFC 9106).  After :data:`MAX_FAILURES` failed
-    sign-ins in a row the account is locked for :data:`LOCK_MINUTES` minutes
+    At least :data:`_MIN_PASSWORD` characters; stored only as an argon2id hash
+    (argon2-cffi's defaults, RFC 9106).  After :data:`_MAX_FAILURES` failed
+    sign-ins in a row the account is locked for :data:`_LOCK_MINUTES` minutes
     (common practice); while locked no password is even tried.  A wrong
     password and an unknown name get the same answer, so the page does not
     tell which names exist.
@@ -15,7 +15,7 @@ Sessions
     A random id (``secrets.token_urlsafe``, 256 bits) given to the browser;
     the database keeps only its SHA-256, so a copy of the database does not let
     anyone in.  A session ends on sign-out, after ``idle`` without use (30
-    minutes by default) and at most :data:`MAX_SESSION_HOURS` after sign-in.
+    minutes by default) and at most :data:`_MAX_SESSION_HOURS` after sign-in.
 
 Names are normalised as printed names are (:func:`calib.record.identity.check_printed_name`)
 and two names that :func:`~calib.record.identity.person_key` makes equal are one person.
@@ -39,20 +39,18 @@ from calib.record.identity import check_printed_name, person_key
 if TYPE_CHECKING:
     from calib.archive.backends import Storage
 
-__all__ = ["IDLE_MINUTES", "LOCK_MINUTES", "MAX_FAILURES", "MIN_PASSWORD", "ROLES", "People",
-           "RefusedAction", "SignInRefused", "User", "check_password_text", "name_key",
-           "parse_roles"]
+__all__ = ["ROLES", "People", "RefusedAction", "SignInRefused", "User", "name_key"]
 
 ROLES = ("analyst", "reviewer", "approver", "administrator")
-MIN_PASSWORD = 12
-MAX_FAILURES = 5
-LOCK_MINUTES = 15
-IDLE_MINUTES = 30
-MAX_SESSION_HOURS = 12
+_MIN_PASSWORD = 12
+_MAX_FAILURES = 5
+_LOCK_MINUTES = 15
+_IDLE_MINUTES = 30
+_MAX_SESSION_HOURS = 12
 _MAX_PASSWORD = 1024  # argon2 reads any length; a megabyte "password" is only a way to load us
 
 
-WRONG = "the name or password is not right"
+_WRONG = "the name or password is not right"
 
 
 def name_key(name: str) -> str:
@@ -66,14 +64,14 @@ def name_key(name: str) -> str:
     return " ".join(person_key(name))
 
 
-def parse_roles(roles: Iterable[str]) -> tuple[str, ...]:
+def _parse_roles(roles: Iterable[str]) -> tuple[str, ...]:
     """Roles checked and in the order of :data:`ROLES`.
 
     Examples
     --------
-    >>> parse_roles(["reviewer", "analyst", "reviewer"])
+    >>> _parse_roles(["reviewer", "analyst", "reviewer"])
     ('analyst', 'reviewer')
-    >>> parse_roles(["chemist"])
+    >>> _parse_roles(["chemist"])
     Traceback (most recent call last):
     ...
     ValueError: unknown role 'chemist'; roles are analyst, reviewer, approver, administrator
@@ -87,20 +85,20 @@ def parse_roles(roles: Iterable[str]) -> tuple[str, ...]:
     return tuple(r for r in ROLES if r in given)
 
 
-def check_password_text(password: str) -> str:
+def _check_password_text(password: str) -> str:
     """``password`` when long enough, else ValueError (nothing of it is echoed).
 
     Examples
     --------
-    >>> check_password_text("short")
+    >>> _check_password_text("short")
     Traceback (most recent call last):
     ...
     ValueError: a password needs at least 12 characters (this one has 5)
     """
     if not isinstance(password, str):
         raise ValueError("a password must be text")
-    if len(password) < MIN_PASSWORD:
-        raise ValueError(f"a password needs at least {MIN_PASSWORD} characters (this one has "
+    if len(password) < _MIN_PASSWORD:
+        raise ValueError(f"a password needs at least {_MIN_PASSWORD} characters (this one has "
                          f"{len(password)})")
     if len(password) > _MAX_PASSWORD:
         raise ValueError(f"a password has at most {_MAX_PASSWORD} characters")
@@ -156,7 +154,7 @@ class People:
         Defaults to argon2id with argon2-cffi's default cost.
     """
 
-    def __init__(self, storage: Storage, *, idle: timedelta = timedelta(minutes=IDLE_MINUTES),
+    def __init__(self, storage: Storage, *, idle: timedelta = timedelta(minutes=_IDLE_MINUTES),
                  clock: Callable[[], datetime] | None = None, hasher: Any = None) -> None:
         from argon2 import PasswordHasher, Type
 
@@ -200,8 +198,8 @@ class People:
     def add(self, name: str, roles: Iterable[str], password: str, *, by: str) -> User:
         """Add a user; ValueError for an unusable name, role or password."""
         printed = check_printed_name(name, what="a user's full name")
-        chosen = parse_roles(roles)
-        hashed = self._hasher.hash(check_password_text(password))
+        chosen = _parse_roles(roles)
+        hashed = self._hasher.hash(_check_password_text(password))
         key, stamp = name_key(printed), self._stamp()
         with self.storage.write():
             clash = self.storage.query("SELECT name FROM users WHERE name_key = ?", (key,))
@@ -238,7 +236,7 @@ class People:
     def reset_password(self, name: str, password: str, *, by: str) -> User:
         """Give a user a new password (clears a lock-out; their sessions end)."""
         user = self._existing(name)
-        hashed = self._hasher.hash(check_password_text(password))
+        hashed = self._hasher.hash(_check_password_text(password))
         with self.storage.write():
             self.storage.execute("UPDATE users SET password_hash = ?, failed = 0, locked_until "
                                  "= NULL, changed_at = ? WHERE name_key = ?",
@@ -251,7 +249,7 @@ class People:
     def set_roles(self, name: str, roles: Iterable[str], *, by: str) -> User:
         """Replace a user's roles."""
         user = self._existing(name)
-        chosen = parse_roles(roles)
+        chosen = _parse_roles(roles)
         if ("administrator" in user.roles and "administrator" not in chosen
                 and not user.disabled and not self._admins_left(user.key)):
             raise RefusedAction(f"{user.name} is the last enabled administrator; the role "
@@ -308,18 +306,18 @@ class People:
         if not rows:
             append_row(self.storage, "failed sign-in", actor=typed[:200], at=now,
                        detail={"purpose": purpose, "reason": "unknown name"})
-            return None, WRONG
+            return None, _WRONG
         user = _user(rows[0])
         if user.locked_until is not None and user.locked_until > now:
             append_row(self.storage, "failed sign-in", actor=user.name, at=now,
                        detail={"purpose": purpose, "reason": "locked"})
-            return user, (f"this account is locked after {MAX_FAILURES} failed sign-ins until "
+            return user, (f"this account is locked after {_MAX_FAILURES} failed sign-ins until "
                           f"{user.locked_until:%Y-%m-%d %H:%M} UTC; try again then, or ask an "
                           "administrator to reset the password")
         if not good:
             failed = (0 if user.locked_until is not None else user.failed) + 1
-            locked = ((now + timedelta(minutes=LOCK_MINUTES)).timestamp()
-                      if failed >= MAX_FAILURES else None)
+            locked = ((now + timedelta(minutes=_LOCK_MINUTES)).timestamp()
+                      if failed >= _MAX_FAILURES else None)
             self.storage.execute("UPDATE users SET failed = ?, locked_until = ? WHERE "
                                  "name_key = ?", (0 if locked else failed, locked, user.key))
             append_row(self.storage, "failed sign-in", actor=user.name, at=now,
@@ -328,8 +326,8 @@ class People:
             if locked is not None:
                 self._end_sessions(user.key)
                 append_row(self.storage, "lock-out", actor=user.name, at=now,
-                           detail={"minutes": LOCK_MINUTES})
-            return user, WRONG
+                           detail={"minutes": _LOCK_MINUTES})
+            return user, _WRONG
         if user.disabled:
             append_row(self.storage, "failed sign-in", actor=user.name, at=now,
                        detail={"purpose": purpose, "reason": "disabled"})
@@ -372,7 +370,7 @@ class People:
         if disabled:
             return None
         if (stamp - float(last_seen) > self.idle.total_seconds()
-                or stamp - float(created) > MAX_SESSION_HOURS * 3600):
+                or stamp - float(created) > _MAX_SESSION_HOURS * 3600):
             with self.storage.write():
                 self.storage.execute("UPDATE sessions SET ended_at = ? WHERE token_hash = ? AND "
                                      "ended_at IS NULL", (stamp, digest))

@@ -14,7 +14,7 @@ Append-only on both engines
     ``TRUNCATE`` on PostgreSQL, which skips row triggers); an insert into
     ``entries`` must extend the chain head (next seq, previous entry's hash);
     JSON, PDF and figures rows are accepted only for the newest entry.  On
-    PostgreSQL the role :data:`WRITER_ROLE` is created (when the connecting
+    PostgreSQL the role :data:`_WRITER_ROLE` is created (when the connecting
     account may) with ``SELECT`` and ``INSERT`` only: give the lab's analyst
     accounts that role, never table ownership.
 
@@ -42,22 +42,13 @@ import sqlite3
 
 from calib.archive.chain import GENESIS_HASH
 
-__all__ = [
-    "APPLICATION_ID",
-    "POSTGRES_TRIGGERS",
-    "SCHEMA_VERSION",
-    "SQLITE_TRIGGERS",
-    "TRAIL_TRIGGERS",
-    "WRITER_ROLE",
-    "migrate_sqlite_1_to_2",
-    "people_schema",
-    "postgres_schema",
-    "sqlite_schema",
-]
+__all__ = ["APPLICATION_ID", "POSTGRES_TRIGGERS", "SCHEMA_VERSION", "SQLITE_TRIGGERS",
+           "TRAIL_TRIGGERS", "migrate_sqlite_1_to_2", "people_schema", "postgres_schema",
+           "sqlite_schema"]
 
 SCHEMA_VERSION = 3
 APPLICATION_ID = 0x43414C42  # "CALB": marks an SQLite file as a calib archive
-WRITER_ROLE = "calib_archive_writer"
+_WRITER_ROLE = "calib_archive_writer"
 PROTECTED = ("entries", "entry_data", "curves", "archive_meta")
 
 _ENTRIES = """CREATE TABLE entries (
@@ -202,14 +193,14 @@ def postgres_schema() -> tuple[str, ...]:
     # The writer role: SELECT and INSERT only.  Creating a role needs CREATEROLE; an account
     # without it still gets a working archive, and README says how the lab's DBA adds the role.
     role = f"""DO $$ BEGIN
-        IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = '{WRITER_ROLE}') THEN
-            CREATE ROLE {WRITER_ROLE} NOLOGIN;
+        IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = '{_WRITER_ROLE}') THEN
+            CREATE ROLE {_WRITER_ROLE} NOLOGIN;
         END IF;
-        EXECUTE format('GRANT USAGE ON SCHEMA %I TO {WRITER_ROLE}', current_schema());
-        GRANT SELECT, INSERT ON entries, entry_data, curves TO {WRITER_ROLE};
-        GRANT SELECT ON archive_meta, schema_version TO {WRITER_ROLE};
+        EXECUTE format('GRANT USAGE ON SCHEMA %I TO {_WRITER_ROLE}', current_schema());
+        GRANT SELECT, INSERT ON entries, entry_data, curves TO {_WRITER_ROLE};
+        GRANT SELECT ON archive_meta, schema_version TO {_WRITER_ROLE};
     EXCEPTION WHEN insufficient_privilege OR duplicate_object OR unique_violation THEN
-        RAISE NOTICE 'calib: role {WRITER_ROLE} not created (no CREATEROLE privilege)';
+        RAISE NOTICE 'calib: role {_WRITER_ROLE} not created (no CREATEROLE privilege)';
     END $$"""
     return tables + _INDEXES + functions + tuple(triggers) + (role,)
 
@@ -293,11 +284,11 @@ def people_schema(engine: str) -> tuple[str, ...]:
         "EXECUTE FUNCTION calib_trail_head()",
         # Users and sessions change; the trail only grows (as for the entries).
         f"""DO $$ BEGIN
-            GRANT SELECT, INSERT, UPDATE ON users TO {WRITER_ROLE};
-            GRANT SELECT, INSERT, UPDATE, DELETE ON sessions TO {WRITER_ROLE};
-            GRANT SELECT, INSERT ON audit_trail TO {WRITER_ROLE};
+            GRANT SELECT, INSERT, UPDATE ON users TO {_WRITER_ROLE};
+            GRANT SELECT, INSERT, UPDATE, DELETE ON sessions TO {_WRITER_ROLE};
+            GRANT SELECT, INSERT ON audit_trail TO {_WRITER_ROLE};
         EXCEPTION WHEN undefined_object OR insufficient_privilege THEN
-            RAISE NOTICE 'calib: role {WRITER_ROLE} not granted the people tables';
+            RAISE NOTICE 'calib: role {_WRITER_ROLE} not granted the people tables';
         END $$""",
     )
 

@@ -80,8 +80,8 @@ if TYPE_CHECKING:
 
 __all__ = ["Archive", "ArchiveError", "PreparedEntry"]
 
-DEFAULT_TIMEOUT = 30.0
-AUTO = "auto"
+_DEFAULT_TIMEOUT = 30.0
+_AUTO = "auto"
 
 @dataclass(frozen=True)
 class PreparedEntry:
@@ -138,9 +138,9 @@ class Archive:
     """
 
     def __init__(self, path: str | Path, *, create: bool = True,
-                 timeout: float = DEFAULT_TIMEOUT,
+                 timeout: float = _DEFAULT_TIMEOUT,
                  clock: Callable[[], datetime] | None = None,
-                 head_receipt: str | Path | None = AUTO) -> None:
+                 head_receipt: str | Path | None = _AUTO) -> None:
         self._clock = clock or _utc_now
         self._store: Storage = open_storage(path, create=create, timeout=timeout)
         database = is_database_url(path)
@@ -148,7 +148,7 @@ class Archive:
         self.location = self._store.location
         self.engine = self._store.engine
         self.archive_id = self._store.archive_id
-        if head_receipt == AUTO:
+        if head_receipt == _AUTO:
             self.receipt_path = anchor.default_receipt_path(str(path), database=database)
         else:
             self.receipt_path = Path(head_receipt) if head_receipt is not None else None

@@ -41,19 +41,10 @@ if TYPE_CHECKING:
     from calib.checks.evaluate import CurveAssessment
     from calib.checks.profile import Profile, RuleSpec
 
-__all__ = [
-    "SETTINGS_ID",
-    "AnalyteOverride",
-    "digits_by_analyte",
-    "given_options",
-    "override_for",
-    "parse_overrides",
-    "profile_for",
-    "settings_by_analyte",
-    "with_settings_line",
-]
+__all__ = ["AnalyteOverride", "digits_by_analyte", "given_options", "override_for",
+           "parse_overrides", "settings_by_analyte", "with_settings_line"]
 
-SETTINGS_ID = "analyte-settings"
+_SETTINGS_ID = "analyte-settings"
 """Id of the information line naming the ``[[analyte]]`` entry a curve was judged with."""
 _KEYS = {"match", "name", "model", "weighting", "digits", "note", "rules"}
 
@@ -249,7 +240,7 @@ def digits_by_analyte(profile: Profile, analytes: Sequence[str]) -> dict[str, in
     return out
 
 
-def profile_for(profile: Profile, entry: AnalyteOverride) -> Profile:
+def _profile_for(profile: Profile, entry: AnalyteOverride) -> Profile:
     """The profile as it stands for the analytes of ``entry``: its model, weighting and limits."""
     rules = tuple(replace(r, params={**r.params, **entry.rules[r.id]}) if r.id in entry.rules
                   else r for r in profile.rules)
@@ -271,7 +262,7 @@ def given_options(profile: Profile, model: Model | str | None = None,
     options = profile.fit_options.given(model, weighting, confidence)
     for entry in profile.overrides:
         try:
-            profile_for(profile, entry).fit_options.given(model, weighting, confidence)
+            _profile_for(profile, entry).fit_options.given(model, weighting, confidence)
         except OptionError as exc:
             raise OptionError(f"{exc} (for the analytes of {entry.label} of profile "
                               f"{profile.name})") from None
@@ -298,7 +289,7 @@ def settings_by_analyte(profile: Profile, analytes: Sequence[str]
             out[analyte] = (profile, None)
             continue
         if entry.index not in made:
-            made[entry.index] = profile_for(profile, entry)
+            made[entry.index] = _profile_for(profile, entry)
         out[analyte] = (made[entry.index], entry)
     return out
 
@@ -307,7 +298,7 @@ def with_settings_line(curve: CurveAssessment, entry: AnalyteOverride) -> CurveA
     """``curve`` with the information line (``analyte-settings``) naming the entry it was
     judged with and what that entry changed."""
     note = f" Note: {entry.note}" if entry.note else ""
-    line = CheckResult(SETTINGS_ID, "Per-analyte settings of the profile", Verdict.PASS,
+    line = CheckResult(_SETTINGS_ID, "Per-analyte settings of the profile", Verdict.PASS,
                        Severity.INFO, None, None,
                        f"Judged with {entry.label}: {entry.changes()}.{note}")
     return replace(curve, checks=(*curve.checks, line))

@@ -20,9 +20,9 @@ if TYPE_CHECKING:
     from calib.checks.evaluate import CurveAssessment, RunAssessment
     from calib.io.standards import Standards
 
-__all__ = ["EXPIRY_ID", "expiry_check", "run_date", "with_standards"]
+__all__ = ["run_date", "with_standards"]
 
-EXPIRY_ID = "standards-expiry"
+_EXPIRY_ID = "standards-expiry"
 TITLE = "Reference materials within their expiry date on the run date"
 
 
@@ -53,7 +53,7 @@ def run_date(text: str | None) -> dt.date | None:
     return None
 
 
-def expiry_check(analyte: str, standards: Standards, on: dt.date | None,
+def _expiry_check(analyte: str, standards: Standards, on: dt.date | None,
                  written: str | None = None) -> CheckResult:
     """Judge the materials behind ``analyte`` against the run date ``on``.
 
@@ -63,29 +63,29 @@ def expiry_check(analyte: str, standards: Standards, on: dt.date | None,
     >>> m = Material("FWL-RM-0412", "stock", "L24-118", 1000.0, 2.0, "mg/L",
     ...              dt.date(2026, 11, 30))
     >>> s = Standards("s.toml", "0" * 64, (m,))
-    >>> expiry_check("Pb", s, dt.date(2026, 12, 3)).detail
+    >>> _expiry_check("Pb", s, dt.date(2026, 12, 3)).detail
     'Expired on the run date 2026-12-03: FWL-RM-0412 lot L24-118 (expired 2026-11-30).'
-    >>> expiry_check("Pb", s, dt.date(2026, 11, 30)).verdict.value
+    >>> _expiry_check("Pb", s, dt.date(2026, 11, 30)).verdict.value
     'pass'
     """
     materials = standards.for_analyte(analyte)
     if not materials:
-        return CheckResult(EXPIRY_ID, TITLE, Verdict.NOT_EVALUATED, Severity.REVIEW, None, None,
+        return CheckResult(_EXPIRY_ID, TITLE, Verdict.NOT_EVALUATED, Severity.REVIEW, None, None,
                            f"The standards file {standards.file} names no material for "
                            f"{analyte}.")
     if on is None:
         why = (f"the run date {written!r} is not written YYYY-MM-DD or DD.MM.YYYY" if written
                else "the run file gives no run date")
-        return CheckResult(EXPIRY_ID, TITLE, Verdict.NOT_EVALUATED, Severity.REVIEW, None, None,
+        return CheckResult(_EXPIRY_ID, TITLE, Verdict.NOT_EVALUATED, Severity.REVIEW, None, None,
                            f"Expiry not judged: {why}.")
     expired = [m for m in materials if m.expires < on]
     if expired:
         names = "; ".join(f"{m.id} lot {m.lot} (expired {m.expires.isoformat()})"
                           for m in expired)
-        return CheckResult(EXPIRY_ID, TITLE, Verdict.FAIL, Severity.REVIEW, float(len(expired)),
+        return CheckResult(_EXPIRY_ID, TITLE, Verdict.FAIL, Severity.REVIEW, float(len(expired)),
                            0.0, f"Expired on the run date {on.isoformat()}: {names}.")
     names = ", ".join(f"{m.id} lot {m.lot} to {m.expires.isoformat()}" for m in materials)
-    return CheckResult(EXPIRY_ID, TITLE, Verdict.PASS, Severity.REVIEW, 0.0, 0.0,
+    return CheckResult(_EXPIRY_ID, TITLE, Verdict.PASS, Severity.REVIEW, 0.0, 0.0,
                        f"Within expiry on the run date {on.isoformat()}: {names}.")
 
 
@@ -93,7 +93,7 @@ def with_standards(assessment: RunAssessment, standards: Standards) -> RunAssess
     """The assessment with the standards attached and ``standards-expiry`` judged per curve."""
     written = assessment.run.metadata.get("run_date")
     on = run_date(written)
-    curves = tuple(_judged(c, expiry_check(c.analyte, standards, on, written))
+    curves = tuple(_judged(c, _expiry_check(c.analyte, standards, on, written))
                    for c in assessment.curves)
     return replace(assessment, curves=curves, standards=standards)
 

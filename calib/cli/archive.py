@@ -21,7 +21,7 @@ from typing import Any
 from calib.cli.common import add_debug
 
 ENV_VAR = "CALIB_ARCHIVE"
-NO_ARCHIVE = (f"no archive given: pass --archive DB or set the {ENV_VAR} environment variable "
+_NO_ARCHIVE = (f"no archive given: pass --archive DB or set the {ENV_VAR} environment variable "
               "to the archive file")
 EXIT_USAGE = 2
 EXIT_INTEGRITY = 5  # calib.cli.exits.INTEGRITY (kept literal: this module loads with the parser)
@@ -63,7 +63,7 @@ def archive_path(args: argparse.Namespace) -> str | None:
 
 def report_no_archive() -> int:
     """Say that no archive was named; returns the usage-error exit code."""
-    print(f"calib: error: {NO_ARCHIVE}", file=sys.stderr)
+    print(f"calib: error: {_NO_ARCHIVE}", file=sys.stderr)
     return EXIT_USAGE
 
 
@@ -99,7 +99,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
         p.set_defaults(handler=handler)
         return p
 
-    p = action("list", "list archive entries, oldest first", run_list)
+    p = action("list", "list archive entries, oldest first", _run_list)
     p.add_argument("--analyte", metavar="A",
                    help="only records with a curve of this analyte (any part of the name, any "
                         "case: Pb finds 'Pb 220.353')")
@@ -116,7 +116,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--offset", type=_count, default=0, metavar="N",
                    help="skip the first N matching entries (with --limit: the next page)")
     p.add_argument("--json", action="store_true", help="print the entries as a JSON list")
-    p = action("lot", "list every record whose standards came from a lot (a recall)", run_lot)
+    p = action("lot", "list every record whose standards came from a lot (a recall)", _run_lot)
     p.add_argument("lot", metavar="LOT", help="the lot, as its certificate names it (whole, any "
                                               "case)")
     p.add_argument("--material", metavar="ID", help="only this reference material id")
@@ -124,12 +124,12 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     p = action("show", "show a record's versions, curves and signatures", run_show)
     p.add_argument("record_id", metavar="RECORD_ID", help="record id, e.g. CR-3F9A1C2B77DE")
     p.add_argument("--json", action="store_true", help="print the versions as JSON")
-    p = action("export", "write a record's PDF and JSON from the archive", run_export)
+    p = action("export", "write a record's PDF and JSON from the archive", _run_export)
     p.add_argument("record_id", metavar="RECORD_ID", help="record id, e.g. CR-3F9A1C2B77DE")
     p.add_argument("--out", metavar="DIR", required=True, help="folder to write into")
     p.add_argument("--all-versions", action="store_true",
                    help="every version, not only the latest")
-    p = action("verify", "check every entry and the hash chain of the archive", run_verify)
+    p = action("verify", "check every entry and the hash chain of the archive", _run_verify)
     p.add_argument("--head", metavar="HASH",
                    help="an entry hash noted earlier; it must still be in the archive")
     p.add_argument("--fast", action="store_true",
@@ -137,7 +137,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--record", metavar="RECORD_ID",
                    help="check only this record's versions: each entry, its links on either "
                         "side, its JSON and PDF, and the head receipt (no pass over the chain)")
-    action("head", "print the archive's head and its receipt line for the logbook", run_head)
+    action("head", "print the archive's head and its receipt line for the logbook", _run_head)
     p = actions.add_parser(
         "migrate", help="copy an archive to another file or database and prove the chain equal",
         description="Copy every entry of SRC, as is, into the new or empty archive DST (an "
@@ -150,7 +150,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                    help="head receipt of DST (default: beside an SQLite DST; none for a "
                         "database, whose head is printed for the logbook)")
     add_debug(p)
-    p.set_defaults(handler=run_migrate)
+    p.set_defaults(handler=_run_migrate)
 
 
 def _count(text: str) -> int:
@@ -166,7 +166,7 @@ def _open(path: str) -> Any:
     return Archive(path, create=False)
 
 
-def run_list(args: argparse.Namespace) -> int:
+def _run_list(args: argparse.Namespace) -> int:
     path = archive_path(args)
     if path is None:
         return report_no_archive()
@@ -186,7 +186,7 @@ def run_list(args: argparse.Namespace) -> int:
     return 0
 
 
-def run_lot(args: argparse.Namespace) -> int:
+def _run_lot(args: argparse.Namespace) -> int:
     """Every issued record whose standards came from ``args.lot`` (record JSON, page by page)."""
     from calib.record.lots import records_with_lot
 
@@ -309,7 +309,7 @@ def _record_text(versions: list[Any], body: dict[str, Any], path: str) -> str:
     return "\n".join(lines)
 
 
-def run_export(args: argparse.Namespace) -> int:
+def _run_export(args: argparse.Namespace) -> int:
     path = archive_path(args)
     if path is None:
         return report_no_archive()
@@ -331,7 +331,7 @@ def run_export(args: argparse.Namespace) -> int:
     return 0
 
 
-def run_verify(args: argparse.Namespace) -> int:
+def _run_verify(args: argparse.Namespace) -> int:
     path = archive_path(args)
     if path is None:
         return report_no_archive()
@@ -402,7 +402,7 @@ def _receipt_note(report: Any) -> str:
             "in the lab's logbook to detect later truncation.")
 
 
-def run_head(args: argparse.Namespace) -> int:
+def _run_head(args: argparse.Namespace) -> int:
     from calib.archive.audit import receipt_problems
 
     path = archive_path(args)
@@ -426,7 +426,7 @@ def run_head(args: argparse.Namespace) -> int:
     return 0
 
 
-def run_migrate(args: argparse.Namespace) -> int:
+def _run_migrate(args: argparse.Namespace) -> int:
     from calib.archive.migrate import migrate_archive
 
     report = migrate_archive(args.source, args.target, target_receipt=args.target_head)

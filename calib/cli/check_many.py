@@ -32,7 +32,7 @@ from calib.verdict_words import VERDICT_WORDS
 if TYPE_CHECKING:
     from calib.service import CheckOutcome
 
-RUN_SUFFIXES = (".xlsx", ".xlsm", ".xls", ".ods", ".csv", ".tsv", ".txt")
+_RUN_SUFFIXES = (".xlsx", ".xlsm", ".xls", ".ods", ".csv", ".tsv", ".txt")
 """Suffixes of the run files a folder is searched for."""
 
 _EXIT = {"accepted": exits.OK, "needs-review": exits.NOT_ACCEPTED, "rejected": exits.NOT_ACCEPTED,
@@ -55,10 +55,10 @@ def expand_runs(names: Sequence[str]) -> list[Path] | None:
         path = Path(name)
         if path.is_dir():
             found = sorted(p for p in path.iterdir()
-                           if p.is_file() and p.suffix.lower() in RUN_SUFFIXES
+                           if p.is_file() and p.suffix.lower() in _RUN_SUFFIXES
                            and not p.name.startswith((".", "~$")))
             if not found:
-                _usage(f"folder {name} holds no run files ({', '.join(RUN_SUFFIXES)})")
+                _usage(f"folder {name} holds no run files ({', '.join(_RUN_SUFFIXES)})")
                 return None
             runs += found
         else:
@@ -73,15 +73,15 @@ def expand_runs(names: Sequence[str]) -> list[Path] | None:
     return runs
 
 
-def output_names(runs: Sequence[Path]) -> dict[Path, str] | None:
+def _output_names(runs: Sequence[Path]) -> dict[Path, str] | None:
     """Each run's output stem; None (after saying why) when two runs would share one.
 
     Examples
     --------
-    >>> names = output_names([Path("x/a.xlsx"), Path("y/b.csv")])
+    >>> names = _output_names([Path("x/a.xlsx"), Path("y/b.csv")])
     >>> [names[p] for p in (Path("x/a.xlsx"), Path("y/b.csv"))]
     ['a', 'b']
-    >>> output_names([Path("x/a.xlsx"), Path("y/a.csv")]) is None
+    >>> _output_names([Path("x/a.xlsx"), Path("y/a.csv")]) is None
     True
     """
     from calib.output import safe_file_name
@@ -116,7 +116,7 @@ def run_many(args: argparse.Namespace, runs: Sequence[Path], imap: Any, *,
             _usage(f"{option} applies to one run file; check that file on its own "
                    f"({len(runs)} run files given)")
             return 2
-    names = output_names(runs)
+    names = _output_names(runs)
     if names is None:
         return 2
     folders = {}

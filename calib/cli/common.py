@@ -13,7 +13,7 @@ MODELS = tuple(m.value for m in Model)
 WEIGHTINGS = tuple(w.value for w in Weighting)
 
 
-def confidence_level(text: str) -> float:
+def _confidence_level(text: str) -> float:
     """argparse type: a confidence level, a fraction from 0.5 to below 1 (``95`` is refused).
 
     The rule of :func:`calib.options.check_confidence`, as in the web form, the
@@ -48,7 +48,7 @@ def add_fit_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--weighting", type=_weighting, metavar="{" + ",".join(WEIGHTINGS) + "}",
                         help="weights of the standards, e.g. --weighting 1/x2; mean-rf takes "
                              "1/x2 and no other (default: the profile's)")
-    parser.add_argument("--confidence", type=confidence_level, metavar="C",
+    parser.add_argument("--confidence", type=_confidence_level, metavar="C",
                         help="confidence level of intervals, a fraction from 0.5 to below 1, "
                              "e.g. --confidence 0.99 (95 is refused: write 0.95; default: the "
                              "profile's)")

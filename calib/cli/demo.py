@@ -7,7 +7,7 @@ from pathlib import Path
 
 from calib.cli.common import add_debug, add_force, add_template_option, refuse_existing
 
-DEMO_RUNS = ("fernbrook_nitrate_2026-11-30.xlsx", "fernbrook_fluoride_2026-11-30.csv")
+_DEMO_RUNS = ("fernbrook_nitrate_2026-11-30.xlsx", "fernbrook_fluoride_2026-11-30.csv")
 
 EXAMPLES = """\
 examples:
@@ -37,12 +37,12 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.set_defaults(handler=run)
 
 
-def demo_runs() -> list[Path]:
+def _demo_runs() -> list[Path]:
     """Paths of the bundled demo runs."""
     from calib.resources import bundled_folder
 
     folder = bundled_folder("sample_runs")
-    return [folder / name for name in DEMO_RUNS]
+    return [folder / name for name in _DEMO_RUNS]
 
 
 def run(args: argparse.Namespace) -> int:
@@ -53,14 +53,14 @@ def run(args: argparse.Namespace) -> int:
     from calib.report.template import demo_template
 
     out = Path(args.out)
-    targets = [out / f"{safe_file_name(path.stem)}{suffix}" for path in demo_runs()
+    targets = [out / f"{safe_file_name(path.stem)}{suffix}" for path in _demo_runs()
                for suffix in (".pdf", ".record.json")]
     if refuse_existing("demo", targets, force=args.force):
         return 2
     # The demo lab's letterhead unless another is asked for: never the user's lab template,
     # so a demo record cannot pass for one of the lab's own.
     template = args.template or demo_template()
-    for path in demo_runs():
+    for path in _demo_runs():
         bar = progress_for(label=f"checking {path.name}")
         try:
             outcome = service.check(path, progress=bar)

@@ -8,8 +8,8 @@ import sys
 
 from calib.cli.common import add_debug
 
-PASSPHRASE_ENV = "CALIB_KEY_PASSPHRASE"
-AUTHORITY_ENV = "CALIB_AUTHORITY_PASSPHRASE"
+_PASSPHRASE_ENV = "CALIB_KEY_PASSPHRASE"
+_AUTHORITY_ENV = "CALIB_AUTHORITY_PASSPHRASE"
 
 EXAMPLES = f"""\
 examples:
@@ -21,15 +21,15 @@ examples:
 The lab makes its signing authority once (keep lab-authority.key.json offline, with its
 passphrase known to the people who issue keys).  Each signer gets a key whose certificate
 names them by their full printed name: a signature made with it always carries that name.
-Passphrases (at least 12 characters) come from {PASSPHRASE_ENV} (the new or used key) and
-{AUTHORITY_ENV} (the authority key), or, on a terminal, are asked for.
+Passphrases (at least 12 characters) come from {_PASSPHRASE_ENV} (the new or used key) and
+{_AUTHORITY_ENV} (the authority key), or, on a terminal, are asked for.
 
 exit codes: 0 written, 2 usage error, 3 no or short passphrase, files exist, unreadable or
             unprotected authority key
 """
 
 
-def read_passphrase(*, purpose: str, confirm: bool = False, env: str = PASSPHRASE_ENV) -> bytes:
+def read_passphrase(*, purpose: str, confirm: bool = False, env: str = _PASSPHRASE_ENV) -> bytes:
     """The passphrase from the environment variable ``env`` or, only on a terminal, a prompt.
 
     Without either it fails at once with a clear error: a command run from a
@@ -84,7 +84,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                       help='the laboratory\'s name, e.g. "Fernbrook Water Laboratory"')
     init.add_argument("--out", required=True, metavar="DIR", help="folder to write to")
     add_debug(init)
-    init.set_defaults(handler=run_lab_init)
+    init.set_defaults(handler=_run_lab_init)
     new = actions.add_parser(
         "new", help="make a signer's key and certificate, issued by the lab authority",
         description="Make a signer's ECDSA P-256 key (encrypted with their passphrase) and an "
@@ -98,10 +98,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     new.add_argument("--out", required=True, metavar="DIR",
                      help="folder to write NAME.key.json and NAME.cert.pem to")
     add_debug(new)
-    new.set_defaults(handler=run_new)
+    new.set_defaults(handler=_run_new)
 
 
-def run_lab_init(args: argparse.Namespace) -> int:
+def _run_lab_init(args: argparse.Namespace) -> int:
     from calib.record.keys import lab_init
 
     passphrase = read_passphrase(purpose="the lab authority key", confirm=True)
@@ -113,11 +113,11 @@ def run_lab_init(args: argparse.Namespace) -> int:
     return 0
 
 
-def run_new(args: argparse.Namespace) -> int:
+def _run_new(args: argparse.Namespace) -> int:
     from calib.record.keys import load_signing_key, new_key
 
     authority = load_signing_key(args.authority, passphrase=read_passphrase(
-        purpose=f"the lab authority key {args.authority}", env=AUTHORITY_ENV))
+        purpose=f"the lab authority key {args.authority}", env=_AUTHORITY_ENV))
     if not authority.is_authority:
         print(f"calib keys new: error: {args.authority} is the key of {authority.holder}, not "
               "the lab authority key (lab-authority.key.json from calib keys lab-init)",

@@ -38,7 +38,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     init.add_argument("--template", required=True, metavar="PATH",
                       help="the lab's report template (TOML; see report_templates/default.toml)")
     add_debug(init)
-    init.set_defaults(handler=run_init)
+    init.set_defaults(handler=_run_init)
     show = actions.add_parser("show", help="show the lab's template and whether it is unchanged",
                               epilog=EXAMPLES,
                               formatter_class=argparse.RawDescriptionHelpFormatter)
@@ -47,7 +47,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.set_defaults(debug=False)
 
 
-def run_init(args: argparse.Namespace) -> int:
+def _run_init(args: argparse.Namespace) -> int:
     from calib.report.template import load_template, set_lab_template
 
     settings = set_lab_template(args.template)

@@ -28,10 +28,10 @@ from calib.cli import (
     verify,
 )
 
-EXIT_OK, EXIT_NOT_ACCEPTED, EXIT_USAGE, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3, 4
-EXIT_INTEGRITY, EXIT_REFUSED, EXIT_FLAGGED = exits.INTEGRITY, exits.REFUSED, exits.FLAGGED
+_EXIT_OK, _EXIT_NOT_ACCEPTED, EXIT_USAGE, _EXIT_INPUT, _EXIT_INTERNAL = 0, 1, 2, 3, 4
+EXIT_INTEGRITY, EXIT_REFUSED, _EXIT_FLAGGED = exits.INTEGRITY, exits.REFUSED, exits.FLAGGED
 
-DESCRIPTION = """\
+_DESCRIPTION = """\
 Validate calibration curves from instrument exports and issue calibration records.
 
 examples:
@@ -53,10 +53,10 @@ exit codes:
 """ + "\n".join(f"  {code}  {meaning}" for code, meaning in exits.TABLE) + "\n"
 
 
-def build_parser() -> argparse.ArgumentParser:
+def _build_parser() -> argparse.ArgumentParser:
     """The argument parser of every command."""
     parser = argparse.ArgumentParser(
-        prog="calib", description=DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter
+        prog="calib", description=_DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter
     )
     parser.add_argument("--version", action="version", version=f"calib {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
@@ -69,7 +69,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit code."""
-    parser = build_parser()
+    parser = _build_parser()
     args = parser.parse_args(argv)
     from calib.errors import CalibError
 
@@ -87,7 +87,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         import os
 
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
-        return EXIT_OK
+        return _EXIT_OK
     except KeyboardInterrupt:
         print("calib: interrupted; no output file was written", file=sys.stderr)
         return 130
@@ -107,7 +107,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             "(run again with --debug for the traceback, and please report it)",
             file=sys.stderr,
         )
-        return EXIT_INTERNAL
+        return _EXIT_INTERNAL
 
 
 def _one_line(text: str) -> str:

@@ -56,7 +56,7 @@ def curve_text(curve: CurveAssessment, *, unit: str | None = None) -> str:
     lines = [f"{curve.analyte}: {_VERDICT_WORDS[curve.verdict.value]}"
              + (f" ({', '.join(failing)})" if failing else "")]
     if curve.refit is not None:
-        lines.append(textwrap.fill(refit_words(curve), width=100, initial_indent="  ",
+        lines.append(textwrap.fill(_refit_words(curve), width=100, initial_indent="  ",
                                    subsequent_indent="  "))
     fit = curve.fit
     if fit is None:
@@ -86,7 +86,7 @@ def curve_text(curve: CurveAssessment, *, unit: str | None = None) -> str:
     return "\n".join(lines)
 
 
-def refit_words(curve: CurveAssessment) -> str:
+def _refit_words(curve: CurveAssessment) -> str:
     """Why the curve was refitted, and the first fit's key figures beside the refit's."""
     refit = curve.refit
     if refit is None:

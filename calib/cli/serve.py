@@ -8,7 +8,7 @@ import sys
 from calib.cli.archive import add_archive_option, archive_path
 from calib.cli.common import add_debug
 
-DEFAULT_PORT = 8750
+_DEFAULT_PORT = 8750
 
 EXAMPLES = """\
 examples:
@@ -40,8 +40,8 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "quantify, sign, verify, archive and trend do, in a browser.",
         epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    parser.add_argument("--port", type=int, default=DEFAULT_PORT, metavar="N",
-                        help=f"port to listen on (default {DEFAULT_PORT})")
+    parser.add_argument("--port", type=int, default=_DEFAULT_PORT, metavar="N",
+                        help=f"port to listen on (default {_DEFAULT_PORT})")
     parser.add_argument("--host", default="127.0.0.1", metavar="H",
                         help="interface to listen on (default 127.0.0.1, this computer only)")
     add_archive_option(parser, help_text="archive to search and file records in; default: "
@@ -72,14 +72,14 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.set_defaults(handler=run)
 
 
-def server_url(host: str, port: int, token: str | None = None, *, tls: bool = False) -> str:
+def _server_url(host: str, port: int, token: str | None = None, *, tls: bool = False) -> str:
     """The address to open.
 
     Examples
     --------
-    >>> server_url("127.0.0.1", 8750)
+    >>> _server_url("127.0.0.1", 8750)
     'http://127.0.0.1:8750/'
-    >>> server_url("::1", 8750, "abc", tls=True)
+    >>> _server_url("::1", 8750, "abc", tls=True)
     'https://[::1]:8750/?token=abc'
     """
     shown = f"[{host}]" if ":" in host else host
@@ -87,7 +87,7 @@ def server_url(host: str, port: int, token: str | None = None, *, tls: bool = Fa
             + (f"?token={token}" if token else ""))
 
 
-WILDCARDS = ("0.0.0.0", "::", "")
+_WILDCARDS = ("0.0.0.0", "::", "")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -134,7 +134,7 @@ def run(args: argparse.Namespace) -> int:
               file=sys.stderr)
         return 2
     allowed = list(args.allow_host)
-    if not loopback and args.host not in WILDCARDS:
+    if not loopback and args.host not in _WILDCARDS:
         allowed.append(args.host)  # the name it listens on is one browsers may use
     if args.signing_keys and not os.path.isdir(args.signing_keys):
         print(f"calib serve: error: --signing-keys {args.signing_keys} is not a folder",
@@ -154,7 +154,7 @@ def run(args: argparse.Namespace) -> int:
     except ValueError as exc:
         print(f"calib serve: error: {exc}", file=sys.stderr)
         return 2
-    url = server_url(args.host, args.port, token, tls=tls)
+    url = _server_url(args.host, args.port, token, tls=tls)
     print(f"calib: serving on {url}", flush=True)
     if token:
         print("calib: listening beyond this computer; every browser needs the access token "

@@ -157,13 +157,13 @@ def run(args: argparse.Namespace) -> int:
     else:
         if outcome.note:
             print(outcome.note + "\n")
-        print(trend_text(trend, path=path))
+        print(_trend_text(trend, path=path))
         if args.pdf:
             print(f"\nControl charts written to {args.pdf}")
     return exits.FLAGGED if trend.flagged else exits.OK
 
 
-def trend_text(trend: AnalyteTrend, *, path: str) -> str:
+def _trend_text(trend: AnalyteTrend, *, path: str) -> str:
     """The trend as terminal tables: limits, every point with the rules that fired, flags."""
     from calib.archive import RULES
     from calib.cli.render import num

@@ -17,11 +17,11 @@ from typing import Any
 from calib.cli.archive import add_archive_option, archive_path, report_no_archive
 from calib.cli.common import add_debug
 
-PASSWORD_ENV = "CALIB_USER_PASSWORD"
+_PASSWORD_ENV = "CALIB_USER_PASSWORD"
 ROLES = ("analyst", "reviewer", "approver", "administrator")  # calib.archive.people.ROLES
 EXIT_USAGE, EXIT_INTEGRITY = 2, 5
 
-USERS_EXAMPLES = f"""\
+_USERS_EXAMPLES = f"""\
 examples:
   calib users add "Mira Holt" --role administrator --archive records.sqlite
   calib users add "Osric Venn" --role analyst --archive postgresql://calib@lab-db/records
@@ -33,12 +33,12 @@ examples:
   calib users roles "Osric Venn" --role analyst --role reviewer
 
 Roles: analyst (check, issue, quantify), reviewer and approver (sign in that role),
-administrator (users).  The password comes from {PASSWORD_ENV} or is asked twice; at least
+administrator (users).  The password comes from {_PASSWORD_ENV} or is asked twice; at least
 12 characters.  Once an archive has users, calib serve with it asks everyone to sign in.
 Every change is written to the audit trail (calib audit list).
 """
 
-AUDIT_EXAMPLES = """\
+_AUDIT_EXAMPLES = """\
 examples:
   calib audit list --archive records.sqlite              the newest 50 rows
   calib audit list --actor "Osric Venn" --since 2026-10-01 --limit 500
@@ -54,7 +54,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                                          "disable, enable, reset-password, roles",
                            description="Manage the people of a shared calib serve, kept in "
                                        "the archive database.",
-                           epilog=USERS_EXAMPLES,
+                           epilog=_USERS_EXAMPLES,
                            formatter_class=argparse.RawDescriptionHelpFormatter)
     actions = users.add_subparsers(dest="action", metavar="ACTION")
     actions.required = True
@@ -64,7 +64,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                        ("reset-password", "give a person a new password"),
                        ("roles", "replace a person's roles")):
         action = actions.add_parser(name, help=text, description=text[0].upper() + text[1:] + ".",
-                                    epilog=USERS_EXAMPLES,
+                                    epilog=_USERS_EXAMPLES,
                                     formatter_class=argparse.RawDescriptionHelpFormatter)
         if name != "list":
             action.add_argument("name", metavar='"FULL NAME"', help="the person's printed name")
@@ -77,16 +77,16 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                                      "this computer's account name)")
         add_archive_option(action)
         add_debug(action)
-        action.set_defaults(handler=run_users)
+        action.set_defaults(handler=_run_users)
 
     audit = sub.add_parser("audit", help="the audit trail: list or verify it",
                            description="List or verify the audit trail of a shared calib serve.",
-                           epilog=AUDIT_EXAMPLES,
+                           epilog=_AUDIT_EXAMPLES,
                            formatter_class=argparse.RawDescriptionHelpFormatter)
     steps = audit.add_subparsers(dest="action", metavar="ACTION")
     steps.required = True
     listing = steps.add_parser("list", help="rows of the trail, oldest first",
-                               epilog=AUDIT_EXAMPLES,
+                               epilog=_AUDIT_EXAMPLES,
                                formatter_class=argparse.RawDescriptionHelpFormatter)
     listing.add_argument("--actor", metavar="NAME", help="only what this person did")
     listing.add_argument("--event", metavar="EVENT", help="only this event, e.g. 'sign-in'")
@@ -94,20 +94,20 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     listing.add_argument("--limit", type=int, default=50, metavar="N",
                          help="the newest N rows (default 50)")
     verify = steps.add_parser("verify", help="recompute every row's hash and link",
-                              epilog=AUDIT_EXAMPLES,
+                              epilog=_AUDIT_EXAMPLES,
                               formatter_class=argparse.RawDescriptionHelpFormatter)
     for step in (listing, verify):
         add_archive_option(step)
         add_debug(step)
-        step.set_defaults(handler=run_audit)
+        step.set_defaults(handler=_run_audit)
 
 
 def _password(name: str) -> str:
-    given = os.environ.get(PASSWORD_ENV)
+    given = os.environ.get(_PASSWORD_ENV)
     if given is not None:
         return given
     if not sys.stdin.isatty():
-        raise ValueError(f"no password: set {PASSWORD_ENV} or run this at a terminal to be "
+        raise ValueError(f"no password: set {_PASSWORD_ENV} or run this at a terminal to be "
                          "asked for it")
     first = getpass.getpass(f"Password for {name}: ")
     if getpass.getpass("The same password again: ") != first:
@@ -132,7 +132,7 @@ def _state(user: Any, now: Any) -> str:
     return "enabled"
 
 
-def run_users(args: argparse.Namespace) -> int:
+def _run_users(args: argparse.Namespace) -> int:
     from calib.archive import Archive
     from calib.archive.people import People
 
@@ -177,7 +177,7 @@ def run_users(args: argparse.Namespace) -> int:
     return 0
 
 
-def run_audit(args: argparse.Namespace) -> int:
+def _run_audit(args: argparse.Namespace) -> int:
     from calib.archive import Archive
     from calib.archive.trail import EVENTS, trail_rows, verify_trail
 

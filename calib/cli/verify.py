@@ -15,7 +15,7 @@ from calib.cli.common import add_debug
 if TYPE_CHECKING:
     from calib.record.verify import VerifyReport
 
-EXIT_VERIFIED, EXIT_NOT_SIGNED, EXIT_INTEGRITY = exits.OK, exits.NOT_ACCEPTED, exits.INTEGRITY
+_EXIT_VERIFIED, _EXIT_NOT_SIGNED, EXIT_INTEGRITY = exits.OK, exits.NOT_ACCEPTED, exits.INTEGRITY
 
 EXAMPLES = f"""\
 examples:
@@ -75,20 +75,20 @@ def run(args: argparse.Namespace) -> int:
         json.dump(report.to_json(), sys.stdout, ensure_ascii=False, allow_nan=False)
         sys.stdout.write("\n")
     else:
-        print(report_text(report))
-    return exit_code(report, require_signed=args.require_signed)
+        print(_report_text(report))
+    return _exit_code(report, require_signed=args.require_signed)
 
 
-def exit_code(report: VerifyReport, *, require_signed: bool = False) -> int:
+def _exit_code(report: VerifyReport, *, require_signed: bool = False) -> int:
     """0 intact (verified, or a draft unless ``require_signed``), 1 not signed, 5 not verified."""
     if report.verdict == "not verified":
         return EXIT_INTEGRITY
     if report.verdict == "intact" and require_signed:
-        return EXIT_NOT_SIGNED
-    return EXIT_VERIFIED
+        return _EXIT_NOT_SIGNED
+    return _EXIT_VERIFIED
 
 
-def report_text(report: VerifyReport) -> str:
+def _report_text(report: VerifyReport) -> str:
     """Verdict line, then one line per problem, then what was checked."""
     from calib.cli import render
 

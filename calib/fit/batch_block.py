@@ -27,7 +27,7 @@ from calib.fit.batch_wls import factor, point_sum, solve_block
 from calib.fit.design import COEFFICIENTS, raw_weights
 from calib.options import Model, Weighting
 
-__all__ = ["BLOCK_VALUES", "Stack", "StackFit", "fit_block", "fit_stack"]
+__all__ = ["BLOCK_VALUES", "StackFit", "fit_stack"]
 
 #: Values per working array of a block (8 bytes each): curves per block = this / points
 #: (half that for the quadratic, whose two design columns travel together).  96 KiB keeps
@@ -43,7 +43,7 @@ _BY_X = (Weighting.INV_X, Weighting.INV_X2)
 _ONCE = (Weighting.INV_X, Weighting.INV_Y)
 
 
-class Stack:
+class _Stack:
     """The figures of a whole batch, filled in block by block.
 
     Point arrays are points × curves (n, K), given by the caller; ``weights`` and
@@ -110,12 +110,12 @@ def fit_stack(
     """
     n, K = X.shape
     p = len(COEFFICIENTS[model])
-    stack = Stack(K, p, weights=weights_out, residuals=residuals_out)
+    stack = _Stack(K, p, weights=weights_out, residuals=residuals_out)
     # The quadratic's two design columns travel as one (2, n, B) array: half the curves.
     step = max(1, BLOCK_VALUES // (max(n, 1) * (2 if model is Model.QUADRATIC else 1)))
     for start in range(0, K, step):
         at = slice(start, start + step)
-        fit_block(X[:, at], Y[:, at], U[:, at], None if given is None else given[:, at],
+        _fit_block(X[:, at], Y[:, at], U[:, at], None if given is None else given[:, at],
                   model=model, basis=basis, out=stack, at=at)
     # What takes one number per curve, once for the whole stack.
     fitted_rows = stack.ok.copy()
@@ -160,7 +160,7 @@ class _Problems:
             self.ok[k] = False
 
 
-def fit_block(
+def _fit_block(
     X: np.ndarray,
     Y: np.ndarray,
     U: np.ndarray,
@@ -168,7 +168,7 @@ def fit_block(
     *,
     model: Model,
     basis: Weighting,
-    out: Stack,
+    out: _Stack,
     at: slice,
 ) -> None:
     """Fit the curves ``at`` of ``out``; arrays points × curves, (n, B).

@@ -178,7 +178,7 @@ MIN_VARIANCE_LEVELS = 3
 #: loosely fixed power are weights the data chose: in simulation (6 levels over two decades,
 #: proportional noise) nominal 95 % slope intervals covered 87 % at 2 replicates (SE(θ̂) ≈
 #: 0.56), 92 % at 3 (0.33), 93.5 % at 5 (0.20) and 94 % at 10 (0.13).
-MAX_POWER_SE = 0.2
+_MAX_POWER_SE = 0.2
 
 
 def variance_function(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -191,7 +191,7 @@ def variance_function(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndar
     ln(ν/2) of a log sample variance (so levels with different replicate counts are
     comparable), weighted by 1/Var ln s²ⱼ = 1/ψ′(νⱼ/2).  Two parameters estimated from all
     levels make the weights nearly fixed once the power θ is known to within
-    :data:`MAX_POWER_SE`; with fewer replicates the checks refuse the weighting
+    :data:`_MAX_POWER_SE`; with fewer replicates the checks refuse the weighting
     (:func:`variance_power_problem`), because weights the data chose loosely cost the
     intervals their coverage (tests/fit/test_variance_function.py).
 
@@ -239,7 +239,7 @@ def variance_power_problem(x: np.ndarray, y: np.ndarray) -> str | None:
     """Why the replicate variances fix the ``1/s2`` variance function too loosely, or None.
 
     The standard error of the power θ of s² = a·x^θ, from the levels' spread in ln x and
-    Var ln s²ⱼ = ψ′(νⱼ/2), must not exceed :data:`MAX_POWER_SE`.  The checks refuse
+    Var ln s²ⱼ = ψ′(νⱼ/2), must not exceed :data:`_MAX_POWER_SE`.  The checks refuse
     ``1/s2`` otherwise (the fit engine itself still fits it, for comparison).
 
     Examples
@@ -264,10 +264,10 @@ def variance_power_problem(x: np.ndarray, y: np.ndarray) -> str | None:
     sol = solve_wls(design, np.log(s2), weight)
     power_se = float(np.sqrt(sol.unscaled_covariance[1, 1]))
     theta = float(sol.beta[1])
-    if power_se <= MAX_POWER_SE:
+    if power_se <= _MAX_POWER_SE:
         return None
     return (f"weighting 1/s2 needs the replicate variances to fix the power of the variance "
-            f"function s² = a·x^θ to within a standard error of {MAX_POWER_SE:g}; these "
+            f"function s² = a·x^θ to within a standard error of {_MAX_POWER_SE:g}; these "
             f"{levels.size} levels give θ = {theta:.2f} ± {power_se:.2f} (more replicates or a "
             f"wider range would; or use 1/x or 1/x2, chosen in validation)")
 

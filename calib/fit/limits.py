@@ -22,10 +22,8 @@ from calib.fit.curve import CurveFit
 from calib.fit.distributions import nct_cdf, t_ppf
 from calib.options import LimitMethod, Model, Weighting, parse_option
 
-__all__ = [
-    "DetectionLimit", "Iso11843Limits", "MethodSd", "detection_limits", "ich_limits",
-    "iso11843_limits", "method_sd", "sigma_at",
-]
+__all__ = ["DetectionLimit", "Iso11843Limits", "MethodSd", "detection_limits", "ich_limits",
+           "iso11843_limits", "method_sd"]
 
 _SIGMA_CHOICES = ("residual-sd", "intercept-se")
 
@@ -80,7 +78,7 @@ def ich_limits(fit: CurveFit, *, sigma: str = "residual-sd") -> tuple[DetectionL
         # standards are in the fit; σ̂/√w(x) at a stated concentration does not depend on
         # that scaling.  Near the limits the lowest standard's σ is the relevant one.
         low = _lowest(fit)
-        value = sigma_at(fit, low)
+        value = _sigma_at(fit, low)
         note = (f"ICH Q2: {{k}}·σ/S, σ = residual SD at the lowest standard (x = {low:g}; "
                 f"σ̂/√w(x), weighting {fit.weight_basis.value}), S = slope")
     elif sigma == "residual-sd":
@@ -266,7 +264,7 @@ def _lowest(fit: CurveFit) -> float:
     return float(positive.min()) if positive.size else float(fit.x.min())
 
 
-def sigma_at(fit: CurveFit, x: float) -> float:
+def _sigma_at(fit: CurveFit, x: float) -> float:
     """Residual SD of one reading at concentration ``x``: σ̂/√w(x) (σ̂ when unweighted).
 
     Independent of the scale of the weights: σ̂² scales as the weights' mean does.
@@ -275,7 +273,7 @@ def sigma_at(fit: CurveFit, x: float) -> float:
     --------
     >>> from calib.fit.curve import fit_curve
     >>> fit = fit_curve([1, 2, 4, 8], [1.02, 1.97, 4.1, 7.9], weighting="1/x2")
-    >>> bool(abs(sigma_at(fit, 2.0) / sigma_at(fit, 1.0) - 2.0) < 1e-12)  # σ ∝ x under 1/x²
+    >>> bool(abs(_sigma_at(fit, 2.0) / _sigma_at(fit, 1.0) - 2.0) < 1e-12)  # σ ∝ x under 1/x²
     True
     """
     if fit.weight_basis is Weighting.NONE:
@@ -307,7 +305,7 @@ def method_sd(fit: CurveFit) -> MethodSd:
     if fit.model is Model.QUADRATIC:
         b = b + 2 * fit.coefficients["quadratic"] * xbar
     # Weighted: σ of one reading at the mean concentration x̄, independent of weight scaling.
-    sd = sigma_at(fit, xbar) if xbar > 0 else float(fit.residual_sd)
+    sd = _sigma_at(fit, xbar) if xbar > 0 else float(fit.residual_sd)
     value = sd / abs(b) if b else math.nan
     relative = 100 * value / xbar if xbar else math.nan
     return MethodSd(sd, b, xbar, value, relative)

@@ -21,11 +21,10 @@ from calib.fit.diagnostics_core import check_alpha
 from calib.fit.distributions import norm_cdf, t_sf
 from calib.fit.wls import solve_wls
 
-__all__ = ["EXACT_RUNS_LIMIT", "DriftTest", "RunsTest", "residual_drift", "residual_runs",
-           "runs_test"]
+__all__ = ["DriftTest", "RunsTest", "residual_drift", "residual_runs", "runs_test"]
 
 #: Up to this many signed residuals the runs test uses the exact distribution.
-EXACT_RUNS_LIMIT = 200
+_EXACT_RUNS_LIMIT = 200
 
 
 # ---------------------------------------------------------------------------------------------
@@ -62,7 +61,7 @@ class RunsTest:
     @property
     def method(self) -> str:
         """``"exact"`` (combinatorial distribution) up to 200 signs, ``"normal"`` above."""
-        return "exact" if self.n <= EXACT_RUNS_LIMIT else "normal"
+        return "exact" if self.n <= _EXACT_RUNS_LIMIT else "normal"
 
     @property
     def expected_runs(self) -> float:

@@ -325,7 +325,7 @@ def variance_levels(
 # --- Weighting recommendation ------------------------------------------------------------------
 
 #: Candidate weightings in order of simplicity (the recommendation prefers the earlier).
-SIMPLICITY = tuple(Weighting)
+_SIMPLICITY = tuple(Weighting)
 
 
 @dataclass(frozen=True)
@@ -516,7 +516,7 @@ def recommend_weighting(
     if not chosen:
         raise ValueError("candidates must name at least one weighting")
     xs, ys, _ = _arrays(x, y, None)
-    tried = tuple(_candidate(xs, ys, model, w, alpha) for w in SIMPLICITY if w in chosen)
+    tried = tuple(_candidate(xs, ys, model, w, alpha) for w in _SIMPLICITY if w in chosen)
     recommended, explanation = _decide(tried, slack_pct)
     return WeightingAdvice(model, tried, recommended, explanation)
 

@@ -57,7 +57,7 @@ def _sheet(book, name: str, max_rows: int, max_cells: int) -> dict:
     return found
 
 
-def read_book(data: bytes, max_rows: int, max_cells: int) -> dict:
+def _read_book(data: bytes, max_rows: int, max_cells: int) -> dict:
     """Every sheet of the workbook in ``data`` as plain values, or the failure met."""
     import python_calamine as calamine
 
@@ -98,7 +98,7 @@ def serve(data: bytes, memory: int, seconds: int, max_rows: int, max_cells: int,
     # cycle collector would only scan them again and again (a tenth of the time).
     gc.disable()
     limit(memory, seconds)
-    write(read_book(data, max_rows, max_cells), out)
+    write(_read_book(data, max_rows, max_cells), out)
 
 
 def main(argv: list[str]) -> int:
@@ -106,7 +106,7 @@ def main(argv: list[str]) -> int:
     limit(memory, seconds)
     gc.disable()
     data = sys.stdin.buffer.read()
-    write(read_book(data, max_rows, max_cells), sys.stdout.buffer)
+    write(_read_book(data, max_rows, max_cells), sys.stdout.buffer)
     return 0
 
 

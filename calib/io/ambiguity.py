@@ -40,17 +40,9 @@ from calib.io.table import Grid
 from calib.options import SampleType
 from calib.run import Point
 
-__all__ = [
-    "ANALYTE_LIKE",
-    "GAP_RATIO",
-    "check_populations",
-    "check_replicates",
-    "ignored_columns",
-    "promote",
-    "split_column",
-]
+__all__ = ["check_populations", "check_replicates", "ignored_columns", "promote", "split_column"]
 
-ANALYTE_LIKE: frozenset[str] = frozenset(squash(word) for word in (
+_ANALYTE_LIKE: frozenset[str] = frozenset(squash(word) for word in (
     "line", "label", "emission line", "wavelength", "mass", "isotope", "channel", "detector",
     "lambda", "wellenlänge", "linie", "longueur d'onde", "raie", "longitud de onda", "línea",
     "etiqueta", "etikett", "libellé", "masse", "masa", "isotop", "isotope",
@@ -65,7 +57,7 @@ _BENIGN: frozenset[str] = frozenset(squash(word) for word in (
 ))
 """Headings of columns that vary from row to row without splitting a curve."""
 
-GAP_RATIO = 4.0
+_GAP_RATIO = 4.0
 """Two groups of responses at one level are separate when the gap between them is this many
 pooled standard deviations of the groups or more (it must hold at every level)."""
 
@@ -194,7 +186,7 @@ def split_column(grid: Grid, table: Table, read: TableRead, *, imap: ImportMap |
         return None
     for analyte, standards in _standards_by_analyte(read).items():
         for index, text in candidates:
-            analyte_like = _heading_key(text) in ANALYTE_LIKE or squash(text) in ANALYTE_LIKE
+            analyte_like = _heading_key(text) in _ANALYTE_LIKE or squash(text) in _ANALYTE_LIKE
             groups = _split(grid, index, standards, analyte_like=analyte_like,
                             min_levels=min_levels)
             if groups is None:
@@ -338,7 +330,7 @@ def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
 
     Looked at only where :data:`min_levels` or more levels have 4 or more
     included standards: at every such level the widest split of the sorted
-    responses must leave a gap of :data:`GAP_RATIO` pooled standard
+    responses must leave a gap of :data:`_GAP_RATIO` pooled standard
     deviations or more, and the ratio of the groups' means must agree
     within 2 % from level to level (a constant ratio is what two analytes
     of different sensitivity give; chance splits do not repeat it).  Groups
@@ -365,7 +357,7 @@ def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
         ratios = []
         for own in crowded.values():
             split = _best_split([p.response for p in own])
-            if split is None or split[0] < GAP_RATIO or split[1] <= 0 or _in_time(own, split):
+            if split is None or split[0] < _GAP_RATIO or split[1] <= 0 or _in_time(own, split):
                 break
             ratios.append(split[2] / split[1])
         else:

@@ -45,15 +45,15 @@ from calib.io.table import Grid, reference_prefix
 from calib.options import SampleType
 from calib.run import Point, Run, SourceInfo
 
-__all__ = ["COPY_DIGITS", "IS_OUTLIER_FRACTION", "MIN_LEVELS", "assemble", "build_run"]
+__all__ = ["MIN_LEVELS", "assemble"]
 
 MIN_LEVELS = 3
 """Fewest distinct standard concentrations an analyte needs."""
 
-COPY_DIGITS = 6
+_COPY_DIGITS = 6
 """Significant digits from which two equal responses without replicate numbers are a copy."""
 
-IS_OUTLIER_FRACTION = 0.5
+_IS_OUTLIER_FRACTION = 0.5
 """Internal-standard responses further than this fraction from their mean are flagged
 (common practice: 50 %)."""
 
@@ -158,7 +158,7 @@ def _set_aside_copies(points: list[Point], warnings: list[str]) -> None:
     Replicates may agree when responses are written with few digits (an
     absorbance of 0.213 twice), so rows count as copies only when they also
     agree on a replicate number or injection order, or their response has
-    :data:`COPY_DIGITS` or more significant digits.
+    :data:`_COPY_DIGITS` or more significant digits.
     """
     # Responses rarely repeat: look at whole rows only where one does.
     responses = [point.response for point in points]
@@ -181,7 +181,7 @@ def _copies_among(points: list[Point], indices: list[int], warnings: list[str]) 
         point = points[index]
         if point.replicate is None and point.injection_order is None and _significant_digits(
             point.analyte_response if point.analyte_response is not None else point.response
-        ) < COPY_DIGITS:
+        ) < _COPY_DIGITS:
             continue
         key = (point.analyte, point.sample_type, point.concentration, point.response,
                point.analyte_response, point.is_response, point.sample_id, point.replicate,
@@ -208,13 +208,13 @@ def _screen_internal_standards(reads: Sequence[TableRead], warnings: list[str]) 
         mean = math.fsum(v for v, _ in cells.values()) / len(cells)
         for cell, (value, sample) in cells.items():
             off = (value - mean) / mean
-            if abs(off) > IS_OUTLIER_FRACTION:
+            if abs(off) > _IS_OUTLIER_FRACTION:
                 who = f" ({sample})" if sample else ""
                 warnings.append(
                     f"{cell}{who}: {group} responded {value:,.6g}, {100 * abs(off):.0f} % "
                     f"{'above' if off > 0 else 'below'} the run's mean of {mean:,.6g}; common "
                     f"practice flags internal-standard responses more than "
-                    f"{100 * IS_OUTLIER_FRACTION:.0f} % from the mean (check spiking and "
+                    f"{100 * _IS_OUTLIER_FRACTION:.0f} % from the mean (check spiking and "
                     f"matrix suppression)"
                 )
 
@@ -357,7 +357,7 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
                analyte_units=own_units, warnings=tuple(all_warnings))
 
 
-def build_run(grid: Grid, *, source: SourceInfo, analyte: str | None = None,
+def _build_run(grid: Grid, *, source: SourceInfo, analyte: str | None = None,
               imap: ImportMap | None = None) -> Run:
     """Build the run held in one grid of raw cells.
 
@@ -372,7 +372,7 @@ def build_run(grid: Grid, *, source: SourceInfo, analyte: str | None = None,
     ...     ["Cal-3", 2.0, 4051.0, "", ""],
     ... ]
     >>> grid = Grid(rows, file="nitrate.csv", label="nitrate.csv")
-    >>> run = build_run(grid, source=SourceInfo("nitrate.csv", "0" * 64))
+    >>> run = _build_run(grid, source=SourceInfo("nitrate.csv", "0" * 64))
     >>> run.metadata
     {'title': 'Fernbrook Water Laboratory', 'method': 'Nitrate-N by IC'}
     >>> run.units, run.analytes, run.source.layout, run.source.tables

@@ -28,24 +28,9 @@ from types import MappingProxyType
 from calib.io.cells import Cell, CellError, to_text
 from calib.io.numbers import is_unit
 
-__all__ = [
-    "CANONICAL",
-    "IGNORED",
-    "NOT_ANALYTES",
-    "REQUIRED",
-    "SYNONYMS",
-    "UNIT_COLUMNS",
-    "WIDE_COLUMNS",
-    "Column",
-    "Heading",
-    "column_letter",
-    "duplicate_error",
-    "map_headings",
-    "match_heading",
-    "read_heading",
-    "split_unit",
-    "squash",
-]
+__all__ = ["CANONICAL", "IGNORED", "NOT_ANALYTES", "SYNONYMS", "WIDE_COLUMNS", "Column", "Heading",
+           "column_letter", "duplicate_error", "map_headings", "match_heading", "read_heading",
+           "split_unit", "squash"]
 
 SYNONYMS: Mapping[str, tuple[str, ...]] = MappingProxyType(
     {
@@ -150,10 +135,10 @@ IGNORED: tuple[str, ...] = (
 CANONICAL: tuple[str, ...] = tuple(SYNONYMS)
 """The canonical column names, in the order the synonyms are listed."""
 
-REQUIRED: tuple[str, ...] = ("concentration", "response")
+_REQUIRED: tuple[str, ...] = ("concentration", "response")
 """Columns every long-layout table must have."""
 
-UNIT_COLUMNS: frozenset[str] = frozenset({"concentration", "response", "is_response"})
+_UNIT_COLUMNS: frozenset[str] = frozenset({"concentration", "response", "is_response"})
 """Columns whose unit is kept in ``Run.units``; other brackets are ignored."""
 
 WIDE_COLUMNS: tuple[str, ...] = ("concentration", "is_response", "response")
@@ -247,7 +232,7 @@ class Heading:
     name : str or None
         Canonical column, or None when the heading is not recognised.
     unit : str or None
-        Unit from the heading (only for :data:`UNIT_COLUMNS`).
+        Unit from the heading (only for :data:`_UNIT_COLUMNS`).
     analyte : str or None
         The analyte named in a compound heading (``Nitrate area``), else None.
     ignored : bool
@@ -330,7 +315,7 @@ def read_heading(text: str) -> Heading:
     key = squash(name)
     canonical = _LOOKUP.get(key)
     if canonical is not None:
-        return Heading(canonical, unit if canonical in UNIT_COLUMNS else None)
+        return Heading(canonical, unit if canonical in _UNIT_COLUMNS else None)
     if whole in _LOOKUP:
         return Heading(_LOOKUP[whole])
     if key in _IGNORED:
@@ -364,7 +349,7 @@ def match_heading(text: str) -> tuple[str | None, str | None]:
     """Return the canonical column a heading names (or None) and its unit.
 
     Only whole headings count here (``Peak area``, not ``Nitrate area``).  The
-    unit is kept only for :data:`UNIT_COLUMNS`; elsewhere brackets are a hint
+    unit is kept only for :data:`_UNIT_COLUMNS`; elsewhere brackets are a hint
     to the reader, as in ``Include (y/n)``.
 
     Examples
@@ -413,7 +398,7 @@ class Column:
     index : int
         0-based column index.
     unit : str or None
-        Unit from the heading (only for :data:`UNIT_COLUMNS`).
+        Unit from the heading (only for :data:`_UNIT_COLUMNS`).
     analyte : str or None
         For a wide table, the analyte the column belongs to; None for a column
         every analyte shares.

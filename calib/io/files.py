@@ -13,12 +13,12 @@ from pathlib import Path
 
 from calib.errors import InputError
 
-__all__ = ["MAX_FILE_BYTES", "RUN_FILES", "RawFile", "check_path", "load_file"]
+__all__ = ["RawFile", "check_path", "load_file"]
 
-RUN_FILES = "a run file (.xlsx, .xlsm, .xls, .ods, .csv, .tsv or .txt)"
+_RUN_FILES = "a run file (.xlsx, .xlsm, .xls, .ods, .csv, .tsv or .txt)"
 """What a run file is, for messages."""
 
-MAX_FILE_BYTES = 256 * 1024 * 1024
+_MAX_FILE_BYTES = 256 * 1024 * 1024
 """Largest run file read (an instrument export is far smaller; this guards memory)."""
 
 
@@ -61,9 +61,9 @@ def check_path(path: str | os.PathLike[str]) -> Path:
     """
     path = Path(path)
     if path.is_dir():
-        raise InputError(f"this is a folder; expected {RUN_FILES}", file=str(path))
+        raise InputError(f"this is a folder; expected {_RUN_FILES}", file=str(path))
     if not path.exists():
-        raise InputError(f"no such file; expected {RUN_FILES}", file=str(path))
+        raise InputError(f"no such file; expected {_RUN_FILES}", file=str(path))
     return path
 
 
@@ -94,10 +94,10 @@ def load_file(path: str | os.PathLike[str], *, what: str) -> RawFile:
     path = check_path(path)
     try:
         size = path.stat().st_size
-        if size > MAX_FILE_BYTES:
+        if size > _MAX_FILE_BYTES:
             raise InputError(
                 f"the file holds {size:,} bytes; expected {what} of at most "
-                f"{MAX_FILE_BYTES:,} bytes",
+                f"{_MAX_FILE_BYTES:,} bytes",
                 file=str(path),
             )
         data = path.read_bytes()

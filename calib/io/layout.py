@@ -39,7 +39,7 @@ from calib.io.metadata import read_metadata
 from calib.io.numbers import find_marker, parse_number_text, split_unit_suffix
 from calib.io.table import HEADER_SEARCH_ROWS, Grid
 
-__all__ = ["Header", "Table", "find_first_header", "find_tables", "no_header_error", "read_header"]
+__all__ = ["Header", "Table", "find_first_header", "find_tables"]
 
 # Headings named in the message when no header row is found.
 _EXAMPLES = {"concentration": ("concentration", "conc", "amount"),
@@ -357,7 +357,7 @@ def _mapped_header(grid: Grid, index: int, imap: ImportMap, *, strict: bool) -> 
     return Header(index, index, "long", shared_cols)
 
 
-def read_header(grid: Grid, index: int, *, imap: ImportMap | None = None,
+def _read_header(grid: Grid, index: int, *, imap: ImportMap | None = None,
                 strict: bool = False) -> Header | None:
     """Read row ``index`` as a header row, or return None when it is not one.
 
@@ -382,7 +382,7 @@ def read_header(grid: Grid, index: int, *, imap: ImportMap | None = None,
     --------
     >>> grid = Grid([["Level", "Conc (µg/L)", "Atrazine", "Simazine"], [1, 0.1, 1520.0, 980.0]],
     ...             file="screen.csv", label="screen.csv")
-    >>> header = read_header(grid, 0)
+    >>> header = _read_header(grid, 0)
     >>> header.layout, sorted(header.analytes), header.shared["concentration"].unit
     ('wide', ['Atrazine', 'Simazine'], 'µg/L')
     """
@@ -439,16 +439,16 @@ def find_first_header(grid: Grid, *, imap: ImportMap | None = None,
     if imap is not None and imap.header_row is not None:
         if imap.header_row >= len(grid.rows):
             return None
-        return read_header(grid, imap.header_row, imap=imap, strict=True)
+        return _read_header(grid, imap.header_row, imap=imap, strict=True)
     for index, row in enumerate(grid.rows[:limit]):
         if _maybe_header(row):
-            header = read_header(grid, index, imap=imap)
+            header = _read_header(grid, index, imap=imap)
             if header is not None:
                 return header
     return None
 
 
-def no_header_error(grid: Grid, *, limit: int = HEADER_SEARCH_ROWS) -> InputError:
+def _no_header_error(grid: Grid, *, limit: int = HEADER_SEARCH_ROWS) -> InputError:
     """The message for a grid with no header row: what the closest row holds."""
     searched = grid.rows[:limit]
     shown: tuple[int, Sequence[Cell]] | None = None
@@ -547,7 +547,7 @@ def find_tables(grid: Grid, *, imap: ImportMap | None = None) -> list[Table]:
     """
     first = find_first_header(grid, imap=imap)
     if first is None:
-        raise no_header_error(grid)
+        raise _no_header_error(grid)
     headers = [first]
     if imap is None or imap.header_row is None:
         # A data row of the table above has a number in a measured column: skip it at once.
@@ -561,7 +561,7 @@ def find_tables(grid: Grid, *, imap: ImportMap | None = None) -> list[Table]:
             if is_empty_row(row) or any(i < width and _looks_numeric(row[i]) for i in measures):
                 continue
             if _maybe_header(row):
-                header = read_header(grid, index, imap=imap)
+                header = _read_header(grid, index, imap=imap)
                 if header is not None and header.first_row > headers[-1].row:
                     headers.append(header)
                     measures = sorted(header.measurement_indices())

@@ -2,7 +2,7 @@
 
 A formula's rounding writes 999.9999999999999 where the analyst meant 1000:
 counted as two levels, the curve would gain a level it does not have.
-Concentrations within :data:`LEVEL_TOLERANCE` (relative) of each other are
+Concentrations within :data:`_LEVEL_TOLERANCE` (relative) of each other are
 read as one level, the shortest written value, with a note naming the cells.
 
 A level label (``L4``, ``Cal 4``) given at two concentrations means one of
@@ -19,18 +19,18 @@ from calib.errors import InputError
 from calib.options import SampleType
 from calib.run import Point
 
-__all__ = ["LEVEL_TOLERANCE", "check_level_labels", "merge_close_levels"]
+__all__ = ["check_level_labels", "merge_close_levels"]
 
-LEVEL_TOLERANCE = 1e-9
+_LEVEL_TOLERANCE = 1e-9
 """Relative difference under which two standard concentrations are one level."""
 
 
 def _close(a: float, b: float) -> bool:
-    return abs(a - b) <= LEVEL_TOLERANCE * max(abs(a), abs(b))
+    return abs(a - b) <= _LEVEL_TOLERANCE * max(abs(a), abs(b))
 
 
 def merge_close_levels(points: list[Point], warnings: list[str]) -> None:
-    """Read standard concentrations within :data:`LEVEL_TOLERANCE` of each other as one.
+    """Read standard concentrations within :data:`_LEVEL_TOLERANCE` of each other as one.
 
     ``points`` is changed in place; a note per merged level is appended to ``warnings``.
 
@@ -86,7 +86,7 @@ def merge_close_levels(points: list[Point], warnings: list[str]) -> None:
                     points[i] = dataclasses.replace(points[i], concentration=chosen)
             warnings.append(
                 f"{analyte}: the concentrations {' and '.join(shown)} differ by less than "
-                f"{LEVEL_TOLERANCE:g} relative and were read as one level, {chosen:g}")
+                f"{_LEVEL_TOLERANCE:g} relative and were read as one level, {chosen:g}")
 
 
 def check_level_labels(points: Sequence[Point], *, file: str, sheet: str | None) -> None:

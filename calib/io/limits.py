@@ -13,7 +13,7 @@ in any attribute order, quoting or namespace prefix, the repeat counts of
 The same pass notes whether any sheet hides rows, merges cells, holds error
 values or carries macros, so that the slower cell-detail reader runs only for
 workbooks that need it.  Sheets are held to the same limits once parsed, text
-files to :data:`MAX_ROWS` lines of at most :data:`MAX_COLUMNS` cells, and
+files to :data:`MAX_ROWS` lines of at most :data:`_MAX_COLUMNS` cells, and
 values to :data:`LARGEST_VALUE` in magnitude.
 
 The parser itself (python-calamine, which expands no entities) runs in a
@@ -35,21 +35,9 @@ from calib.errors import InputError
 from calib.io.files import RawFile
 from calib.io.sheetscan import XLSX_COLUMNS, Extent, OdsScanner, XlsxScanner
 
-__all__ = [
-    "LARGEST_VALUE",
-    "MAX_CELLS",
-    "MAX_COLUMNS",
-    "MAX_ROWS",
-    "MAX_UNZIPPED_BYTES",
-    "ArchiveFacts",
-    "check_compound",
-    "check_magnitudes",
-    "check_sheet_size",
-    "check_text_rows",
-    "check_text_width",
-    "check_xls",
-    "inspect_archive",
-]
+__all__ = ["LARGEST_VALUE", "MAX_CELLS", "MAX_ROWS", "MAX_UNZIPPED_BYTES", "ArchiveFacts",
+           "check_magnitudes", "check_sheet_size", "check_text_rows", "check_text_width",
+           "check_xls", "inspect_archive"]
 
 MAX_UNZIPPED_BYTES = 500_000_000
 """Largest decompressed size of a workbook archive (500 MB)."""
@@ -60,7 +48,7 @@ MAX_ROWS = 2_000_000
 MAX_CELLS = 40_000_000
 """Most cells (rows × columns of the used range) read from one sheet."""
 
-MAX_COLUMNS = 16_384
+_MAX_COLUMNS = 16_384
 """Most cells in one line of a text file (as many columns as an .xlsx sheet holds)."""
 
 LARGEST_VALUE = 1e30
@@ -263,7 +251,7 @@ def check_text_rows(lines: int, *, file: str) -> None:
 
 
 def check_text_width(text: str, delimiter: str, *, file: str) -> None:
-    """Refuse a text file with a line of more than :data:`MAX_COLUMNS` cells, before splitting it.
+    """Refuse a text file with a line of more than :data:`_MAX_COLUMNS` cells, before splitting it.
 
     Counting delimiters costs little; splitting a line of a million cells would
     build a million strings.  Delimiters inside quotes are counted too, so the
@@ -277,13 +265,13 @@ def check_text_width(text: str, delimiter: str, *, file: str) -> None:
     calib.errors.InputError: wide.csv, row 2: the line holds 20,001 cells separated by ','; \
 calib reads at most 16,384 columns (a damaged file, or not a table?)
     """
-    if text.count(delimiter) < MAX_COLUMNS:
+    if text.count(delimiter) < _MAX_COLUMNS:
         return
     for number, line in enumerate(text.split("\n"), start=1):
-        if len(line) >= MAX_COLUMNS and (cells := line.count(delimiter) + 1) > MAX_COLUMNS:
+        if len(line) >= _MAX_COLUMNS and (cells := line.count(delimiter) + 1) > _MAX_COLUMNS:
             raise InputError(
                 f"the line holds {cells:,} cells separated by {delimiter!r}; calib reads at "
-                f"most {MAX_COLUMNS:,} columns (a damaged file, or not a table?)",
+                f"most {_MAX_COLUMNS:,} columns (a damaged file, or not a table?)",
                 file=file, row=number,
             )
 
@@ -449,7 +437,7 @@ def _compound_names(data: bytes) -> set[str]:
     return names
 
 
-def check_compound(raw: RawFile, *, what: str) -> None:
+def _check_compound(raw: RawFile, *, what: str) -> None:
     """Refuse a compound (OLE) file the workbook reader cannot safely open.
 
     Office stores a password-protected ``.xlsx`` as a compound file holding an
@@ -478,9 +466,9 @@ def check_xls(raw: RawFile, *, what: str = "an .xls workbook") -> None:
     A damaged or crafted record naming column 20,000 would make the reader build
     a grid of billions of cells; a well-formed file never names such a cell.
     A compound file whose sector tables cannot be followed, or that holds an
-    encrypted workbook, is refused first (:func:`check_compound`).
+    encrypted workbook, is refused first (:func:`_check_compound`).
     """
-    check_compound(raw, what=what)
+    _check_compound(raw, what=what)
     try:
         stream = _xls_stream(raw.data)
     except (struct.error, ValueError, IndexError):

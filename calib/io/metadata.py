@@ -17,7 +17,7 @@ from types import MappingProxyType
 from calib.io.cells import Cell, is_empty_row, to_text
 from calib.io.columns import SYNONYMS, squash
 
-__all__ = ["METADATA_KEYS", "metadata_analyte", "metadata_units", "read_metadata"]
+__all__ = ["METADATA_KEYS", "metadata_units", "read_metadata"]
 
 METADATA_KEYS: Mapping[str, tuple[str, ...]] = MappingProxyType(
     {
@@ -164,6 +164,6 @@ def metadata_units(metadata: Mapping[str, str]) -> dict[str, str]:
     return units
 
 
-def metadata_analyte(metadata: Mapping[str, str]) -> str | None:
+def _metadata_analyte(metadata: Mapping[str, str]) -> str | None:
     """The analyte an ``Analyte: ...`` line names, if any."""
     return metadata.get("analyte")

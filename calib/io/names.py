@@ -25,7 +25,7 @@ from calib.io.rows import TableRead
 from calib.io.table import Grid
 from calib.run import Point
 
-__all__ = ["normalise_analytes", "skeleton"]
+__all__ = ["normalise_analytes"]
 
 # Letters of other scripts drawn like Latin ones (Cyrillic and Greek), with the Latin letter.
 _LOOK_ALIKE = {
@@ -53,12 +53,12 @@ def _char_name(char: str) -> str:
     return f"U+{ord(char):04X} {unicodedata.name(char, 'unnamed character')}"
 
 
-def skeleton(name: str) -> str:
+def _skeleton(name: str) -> str:
     """The name as compared for look-alikes: NFKC, case folded, look-alike letters made Latin.
 
     Examples
     --------
-    >>> skeleton("Sulfаte") == skeleton("sulfate"), skeleton("Ｎｉｔｒａｔｅ")
+    >>> _skeleton("Sulfаte") == _skeleton("sulfate"), _skeleton("Ｎｉｔｒａｔｅ")
     (True, 'nitrate')
     """
     return unicodedata.normalize("NFKC", name).translate(_TO_LATIN).casefold()
@@ -125,7 +125,7 @@ def normalise_analytes(reads: Sequence[tuple[Grid, Table, TableRead]], points: l
                 f"the analyte name {name!r} in {cell} mixes Latin letters with "
                 f"{_char_name(odd)}, which looks like the Latin {_LOOK_ALIKE[odd]!r}; expected "
                 f"one spelling: retype the name in the file", file=file, sheet=sheet)
-        key = skeleton(name)
+        key = _skeleton(name)
         other = by_skeleton.setdefault(key, raw)
         if other != raw and " ".join(unicodedata.normalize("NFKC", other).split()) != name:
             raise InputError(

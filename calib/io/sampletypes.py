@@ -27,7 +27,7 @@ from calib.io.cells import CellError, describe
 from calib.io.columns import squash
 from calib.options import SampleType
 
-__all__ = ["SAMPLE_TYPE_WORDS", "SampleTyper", "read_name", "type_from_name"]
+__all__ = ["SAMPLE_TYPE_WORDS", "SampleTyper", "type_from_name"]
 
 SAMPLE_TYPE_WORDS: dict[SampleType, tuple[str, ...]] = {
     SampleType.STANDARD: (
@@ -101,16 +101,16 @@ def _kinds_in(name: str) -> list[str]:
     return list(dict.fromkeys(k for w in _WORD.findall(folded) if (k := _WORD_KINDS.get(w))))
 
 
-def read_name(name: str | None) -> SampleType | str | None:
+def _read_name(name: str | None) -> SampleType | str | None:
     """The type a sample name says, None when it says none, or why it is ambiguous (a str).
 
     Examples
     --------
-    >>> [read_name(n).value for n in ("Check Std 5", "Std QC", "Verification 12", "CRM 7")]
+    >>> [_read_name(n).value for n in ("Check Std 5", "Std QC", "Verification 12", "CRM 7")]
     ['qc', 'qc', 'qc', 'qc']
-    >>> read_name("Cal Blank")
+    >>> _read_name("Cal Blank")
     'names both a calibration standard and a blank'
-    >>> read_name("Spike 1")
+    >>> _read_name("Spike 1")
     'names a spike, which may be a QC or a sample'
     """
     if name is None:
@@ -222,7 +222,7 @@ class SampleTyper:
         >>> SampleTyper().from_name("Sample 4", has_concentration=False).value
         'unknown'
         """
-        kind = self._from_patterns(name) or read_name(name)
+        kind = self._from_patterns(name) or _read_name(name)
         if type(kind) is str:  # SampleType is a str enum too
             raise CellError(
                 f"found the sample name {name!r}, which {kind}; calib does not guess whether it "

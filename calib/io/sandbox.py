@@ -12,10 +12,10 @@ child is a new interpreter running that module as a script, which imports
 nothing of calib and starts in a few hundredths of a second.  The child is
 given
 
-* a memory limit (address space, ``RLIMIT_AS``) of :data:`BASE_MEMORY` plus
-  :data:`MEMORY_PER_BYTE` times the file size (beyond what a forked copy
+* a memory limit (address space, ``RLIMIT_AS``) of :data:`_BASE_MEMORY` plus
+  :data:`_MEMORY_PER_BYTE` times the file size (beyond what a forked copy
   already holds), and
-* a wall-clock limit of :data:`BASE_SECONDS` plus :data:`SECONDS_PER_MB` per
+* a wall-clock limit of :data:`BASE_SECONDS` plus :data:`_SECONDS_PER_MB` per
   megabyte of file (and the same processor-time limit),
 
 and returns the cells.  The parent starts the child first and meanwhile runs
@@ -52,18 +52,18 @@ from calib.errors import InputError
 from calib.io import _calamine_child
 from calib.io.files import RawFile
 
-__all__ = ["BASE_MEMORY", "BASE_SECONDS", "BookData", "SheetData", "parse_workbook"]
+__all__ = ["BASE_SECONDS", "BookData", "SheetData", "parse_workbook"]
 
-BASE_MEMORY = 1024**3
+_BASE_MEMORY = 1024**3
 """Address space allowed to the child for any workbook (1 GiB)."""
 
-MEMORY_PER_BYTE = 24
+_MEMORY_PER_BYTE = 24
 """Further address space per byte of the workbook file."""
 
 BASE_SECONDS = 15.0
 """Wall-clock seconds allowed to the child for any workbook."""
 
-SECONDS_PER_MB = 1.0
+_SECONDS_PER_MB = 1.0
 """Further seconds per megabyte of the workbook file."""
 
 _CHILD = Path(__file__).with_name("_calamine_child.py")
@@ -133,7 +133,7 @@ def limits_for(size: int) -> tuple[int, float]:
     >>> memory // 1024**2, seconds
     (1069, 17.0)
     """
-    return BASE_MEMORY + MEMORY_PER_BYTE * size, BASE_SECONDS + SECONDS_PER_MB * size / 1e6
+    return _BASE_MEMORY + _MEMORY_PER_BYTE * size, BASE_SECONDS + _SECONDS_PER_MB * size / 1e6
 
 
 def _address_space() -> int | None:

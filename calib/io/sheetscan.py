@@ -38,7 +38,7 @@ XLSX_COLUMNS = 16_384
 """Columns an .xlsx sheet can hold (A to XFD)."""
 
 # An attribute named r (any namespace prefix), its value up to the closing quote.
-LONGEST_TAG = 1_000_000
+_LONGEST_TAG = 1_000_000
 """Longest tag (with its attributes) a sheet may hold; spreadsheet programs write short ones."""
 
 # A complete tag: its closing > is outside every quoted attribute value.
@@ -153,7 +153,7 @@ class XlsxScanner:
         Raises
         ------
         ValueError
-            When one tag runs past :data:`LONGEST_TAG` bytes.
+            When one tag runs past :data:`_LONGEST_TAG` bytes.
         """
         buffer = self._carry + chunk
         self._carry = b""
@@ -165,8 +165,8 @@ class XlsxScanner:
             return
         self._scan(buffer[:cut])
         self._carry = buffer[cut:]
-        if len(self._carry) > LONGEST_TAG:
-            raise ValueError(f"one XML tag runs past {LONGEST_TAG:,} bytes")
+        if len(self._carry) > _LONGEST_TAG:
+            raise ValueError(f"one XML tag runs past {_LONGEST_TAG:,} bytes")
 
     def close(self) -> Extent:
         """Scan what is left and return the extent."""

@@ -52,7 +52,7 @@ METADATA_KEYS = ("standards file", "standards", "reference materials")
 
 MAX_BYTES = 1_000_000
 """A standards file is a few dozen lines; anything larger is refused before parsing."""
-MAX_ENTRIES = 500
+_MAX_ENTRIES = 500
 
 _MATERIAL_KEYS = {"id", "name", "lot", "value", "uncertainty", "unit", "expires", "analytes"}
 _MATERIAL_REQUIRED = ("id", "name", "lot", "value", "unit", "expires")
@@ -179,8 +179,8 @@ def parse_standards(data: bytes, *, name: str) -> Standards:
                          file=name)
     if not materials:
         raise InputError("no [[material]] entry: name at least one reference material", file=name)
-    if len(materials) + len(levels) > MAX_ENTRIES:
-        raise InputError(f"more than {MAX_ENTRIES} materials and levels", file=name)
+    if len(materials) + len(levels) > _MAX_ENTRIES:
+        raise InputError(f"more than {_MAX_ENTRIES} materials and levels", file=name)
     made = _link_levels(materials, levels, name)
     return Standards(name, hashlib.sha256(data).hexdigest(), tuple(m for m, _ in materials), made)
 

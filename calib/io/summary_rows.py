@@ -9,7 +9,7 @@ and no residual check can see it.  So:
   measurement, include or reason column) is set aside, with a note naming
   its cell;
 - a row with a concentration but no sample name (or no level label) where
-  at least :data:`NAMED_ROWS` other rows have one, and nothing else saying
+  at least :data:`_NAMED_ROWS` other rows have one, and nothing else saying
   what it is, is refused: it may be an unlabelled total;
 - in a table with no names or labels at all, a last standard equal in
   concentration and response to the mean or sum of those above it is refused.
@@ -29,10 +29,9 @@ from calib.io.table import Grid
 from calib.options import SampleType
 from calib.run import Point
 
-__all__ = ["NAMED_ROWS", "SUMMARY_TOLERANCE", "SUMMARY_WORDS", "check_unlabelled_summary",
-           "find_summary_rows"]
+__all__ = ["check_unlabelled_summary", "find_summary_rows"]
 
-SUMMARY_WORDS: frozenset[str] = frozenset(squash(word) for word in (
+_SUMMARY_WORDS: frozenset[str] = frozenset(squash(word) for word in (
     "mean", "average", "avg", "mittelwert", "moyenne", "media", "promedio",
     "sd", "s.d.", "stdev", "std dev", "standard deviation", "stabw", "standardabweichung",
     "écart type", "desviación estándar", "rsd", "%rsd", "rsd%", "rsd %", "% rsd", "cv", "%cv",
@@ -41,7 +40,7 @@ SUMMARY_WORDS: frozenset[str] = frozenset(squash(word) for word in (
 ))
 """Cell texts (compared after folding) that label a summary row, not an injection."""
 
-NAMED_ROWS = 3
+_NAMED_ROWS = 3
 """Fewest named rows from which an unnamed row with a concentration is suspect."""
 
 _NOT_LABELS = ("include", "exclusion_reason", "sample_type")
@@ -93,7 +92,7 @@ def find_summary_rows(grid: Grid, table: Table, *, cut: BodyColumns | None = Non
         values = cut(column)
         if str not in set(map(type, values)):
             continue  # a column of numbers (the usual measurement column) holds no word
-        words = {v for v in set(values) if type(v) is str and squash(v) in SUMMARY_WORDS}
+        words = {v for v in set(values) if type(v) is str and squash(v) in _SUMMARY_WORDS}
         if not words:
             continue
         for index, value in zip(body, values):
@@ -124,7 +123,7 @@ def _unnamed(grid: Grid, table: Table, data: list[int], name: str,
     if not any(blank.values()):
         return  # every row is named (the usual table)
     named = [i for i, value in zip(data, values) if not blank[value]]
-    if len(named) < NAMED_ROWS or len(named) == len(data):
+    if len(named) < _NAMED_ROWS or len(named) == len(data):
         return
     conc = shared.get("concentration")
     concs = [conc.index] if conc is not None else [
@@ -155,7 +154,7 @@ def _unnamed(grid: Grid, table: Table, data: list[int], name: str,
         )
 
 
-SUMMARY_TOLERANCE = 1e-4
+_SUMMARY_TOLERANCE = 1e-4
 """Relative agreement at which a row's concentration and response equal the others' mean or sum
 (a summary row is usually written rounded, to 4 or 5 significant digits)."""
 
@@ -200,8 +199,8 @@ export
             ("mean", math.fsum(concs) / len(concs), math.fsum(responses) / len(responses)),
             ("sum", math.fsum(concs), math.fsum(responses)),
         ):
-            if math.isclose(last.concentration, conc, rel_tol=SUMMARY_TOLERANCE) and \
-                    math.isclose(last.response, response, rel_tol=SUMMARY_TOLERANCE):
+            if math.isclose(last.concentration, conc, rel_tol=_SUMMARY_TOLERANCE) and \
+                    math.isclose(last.response, response, rel_tol=_SUMMARY_TOLERANCE):
                 raise InputError(
                     f"{analyte}: the row of {last.source_cell} holds the {what} of the standards "
                     f"above it (concentration {last.concentration:g}, response "

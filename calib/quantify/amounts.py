@@ -18,15 +18,15 @@ from __future__ import annotations
 
 import re
 
-__all__ = ["MASS_UNITS", "VOLUME_UNITS", "content_factor", "mass_in_kg", "volume_in_litres"]
+__all__ = ["content_factor", "mass_in_kg", "volume_in_litres"]
 
-MASS_UNITS: dict[str, float] = {
+_MASS_UNITS: dict[str, float] = {
     "pg": 1e-15, "ng": 1e-12, "µg": 1e-9, "μg": 1e-9, "ug": 1e-9, "mcg": 1e-9, "mg": 1e-6,
     "g": 1e-3, "kg": 1.0,
 }
 """Mass units calib reads, in kilograms."""
 
-VOLUME_UNITS: dict[str, float] = {
+_VOLUME_UNITS: dict[str, float] = {
     "pl": 1e-15, "nl": 1e-9, "µl": 1e-6, "μl": 1e-6, "ul": 1e-6, "ml": 1e-3, "cl": 1e-2,
     "dl": 0.1, "l": 1.0, "cm3": 1e-3, "cm³": 1e-3, "dm3": 1.0, "dm³": 1.0,
 }
@@ -46,7 +46,7 @@ def mass_in_kg(unit: str | None) -> float | None:
     if unit is None:
         return None
     text = unit.strip()
-    return MASS_UNITS.get(text) or MASS_UNITS.get(text.lower())
+    return _MASS_UNITS.get(text) or _MASS_UNITS.get(text.lower())
 
 
 def volume_in_litres(unit: str | None) -> float | None:
@@ -59,7 +59,7 @@ def volume_in_litres(unit: str | None) -> float | None:
     """
     if unit is None:
         return None
-    return VOLUME_UNITS.get(unit.strip().lower())
+    return _VOLUME_UNITS.get(unit.strip().lower())
 
 
 def content_factor(concentration_unit: str | None, volume_l: float, mass_kg: float

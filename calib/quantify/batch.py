@@ -52,9 +52,8 @@ from calib.tabular import Tabular
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["Batch", "Flag", "ReportingConvention", "SampleResult", "group_readings",
-           "judge_qc_samples",
-           "quantify", "quantify_sample"]
+__all__ = ["Batch", "Flag", "ReportingConvention", "SampleResult", "group_readings", "quantify",
+           "quantify_sample"]
 
 
 class Flag(StrEnum):
@@ -298,7 +297,7 @@ def group_readings(readings: Sequence[Reading]) -> list[list[Reading]]:
     return list(groups.values())
 
 
-def judge_qc_samples(results: Sequence[SampleResult], *, curve: CalibrationCurve | None,
+def _judge_qc_samples(results: Sequence[SampleResult], *, curve: CalibrationCurve | None,
                      rule: QcRule | None = None, analyte: str = "") -> QcSummary:
     """The QC rule applied to the QC results of one analyte."""
     qcs = [(r.sample_id, float(r.nominal or 0.0), r.found) for r in results

@@ -100,7 +100,7 @@ def is_record_file(path: str | Path) -> bool:
     return head.startswith((b"%PDF-", b"{"))
 
 
-def qc_rule_of(profile: Profile) -> tuple[QcRule, str | None]:
+def _qc_rule_of(profile: Profile) -> tuple[QcRule, str | None]:
     """The profile's ``qc`` rule, or the defaults and a note saying so."""
     where = f"profile {profile.name} v{profile.version}"
     for spec in profile.rules:
@@ -124,7 +124,7 @@ def _from_assessment(assessment: RunAssessment) -> CurveSource:
             unfitted[c.analyte] = c.unfitted_reason
         else:
             curves[c.analyte] = curve
-    rule, note = qc_rule_of(assessment.profile)
+    rule, note = _qc_rule_of(assessment.profile)
     p = assessment.profile
     return CurveSource(
         kind="run", file=run.source.file, sha256=run.source.sha256, curves=curves,
@@ -164,11 +164,11 @@ def _record_source(path: str | Path, *, profile: str | Path | None) -> CurveSour
     prof = None
     if profile is not None:
         prof = load_profile(profile)
-        rule, note = qc_rule_of(prof)
+        rule, note = _qc_rule_of(prof)
     else:
         try:
             prof = parse_profile(str(stored.get("text") or ""), origin=f"{label}, profile")
-            rule, note = qc_rule_of(prof)
+            rule, note = _qc_rule_of(prof)
         except ProfileError as exc:
             rule = QcRule()
             note = (f"The record's profile cannot be read by this calib ({exc}); the QCs were "

@@ -47,7 +47,7 @@ def check_document(assessment: RunAssessment) -> dict[str, Any]:
         "source": {"file": run.source.file, "sha256": run.source.sha256, "sheet": run.source.sheet,
                    "layout": run.source.layout},
         "profile": {"name": profile.name, "version": profile.version, "sha256": profile.sha256},
-        "curves": [curve_document(c) for c in assessment.curves],
+        "curves": [_curve_document(c) for c in assessment.curves],
         "verdict": assessment.verdict.value,
         "exclusions": [
             {"target": e.target, "reason": e.reason, "cells": list(e.cells),
@@ -62,7 +62,7 @@ def check_document(assessment: RunAssessment) -> dict[str, Any]:
     return document
 
 
-def curve_document(curve: CurveAssessment) -> dict[str, Any]:
+def _curve_document(curve: CurveAssessment) -> dict[str, Any]:
     """One entry of ``curves`` in the ``calib.check/1`` document."""
     fit = curve.fit
     coefficients: dict[str, Any] = {}

@@ -17,7 +17,7 @@ associated data, so a file whose holder, certificate or KDF parameters were
 edited does not unlock.  Files whose parameters are weaker are refused, so a
 weakened copy cannot be slipped in.
 
-The passphrase must be at least :data:`MIN_PASSPHRASE` characters when a key
+The passphrase must be at least :data:`_MIN_PASSPHRASE` characters when a key
 is made.  A key file, or its folder, that other users could write is refused
 (they could replace it with a key of their own); the message says how to
 fix it.
@@ -35,16 +35,16 @@ from typing import Any
 
 from calib.errors import KeyFileError, PassphraseError
 
-__all__ = ["KEY_FORMAT", "MIN_PASSPHRASE", "KeyFileError", "PassphraseError", "check_passphrase",
-           "check_private_permissions", "decrypt_key_file", "encrypt_key_file", "write_new"]
+__all__ = ["KeyFileError", "PassphraseError", "check_passphrase", "check_private_permissions",
+           "decrypt_key_file", "encrypt_key_file", "write_new"]
 
-KEY_FORMAT = "calib.private-key/1"
-MIN_PASSPHRASE = 12
-SCRYPT_N, SCRYPT_R, SCRYPT_P = 2 ** 17, 8, 1
+_KEY_FORMAT = "calib.private-key/1"
+_MIN_PASSPHRASE = 12
+_SCRYPT_N, _SCRYPT_R, _SCRYPT_P = 2 ** 17, 8, 1
 
 
 def check_passphrase(passphrase: bytes) -> bytes:
-    """``passphrase`` if it may protect a new key: at least :data:`MIN_PASSPHRASE` characters.
+    """``passphrase`` if it may protect a new key: at least :data:`_MIN_PASSPHRASE` characters.
 
     Examples
     --------
@@ -59,9 +59,9 @@ def check_passphrase(passphrase: bytes) -> bytes:
         length = len(passphrase.decode("utf-8"))
     except UnicodeDecodeError:
         raise PassphraseError("the passphrase is not UTF-8 text") from None
-    if length < MIN_PASSPHRASE:
+    if length < _MIN_PASSPHRASE:
         raise PassphraseError(f"the passphrase has {length} characters; a key needs at least "
-                              f"{MIN_PASSPHRASE} (a few words are easier to remember than "
+                              f"{_MIN_PASSPHRASE} (a few words are easier to remember than "
                               "symbols)")
     return passphrase
 
@@ -86,14 +86,14 @@ def encrypt_key_file(private_der: bytes, *, passphrase: bytes, holder: str,
     check_passphrase(passphrase)
     salt, nonce = os.urandom(16), os.urandom(12)
     doc: dict[str, Any] = {
-        "format": KEY_FORMAT,
+        "format": _KEY_FORMAT,
         "holder": holder,
-        "kdf": {"name": "scrypt", "n": SCRYPT_N, "r": SCRYPT_R, "p": SCRYPT_P,
+        "kdf": {"name": "scrypt", "n": _SCRYPT_N, "r": _SCRYPT_R, "p": _SCRYPT_P,
                 "salt": base64.b64encode(salt).decode("ascii")},
         "cipher": {"name": "aes-256-gcm", "nonce": base64.b64encode(nonce).decode("ascii")},
         "certificate": certificate_pem,
     }
-    key = _kdf(passphrase, salt, SCRYPT_N, SCRYPT_R, SCRYPT_P)
+    key = _kdf(passphrase, salt, _SCRYPT_N, _SCRYPT_R, _SCRYPT_P)
     doc["encrypted_key"] = base64.b64encode(
         AESGCM(key).encrypt(nonce, private_der, _header_bytes(doc))).decode("ascii")
     return (json.dumps(doc, ensure_ascii=False, indent=1) + "\n").encode("utf-8")
@@ -119,7 +119,7 @@ def decrypt_key_file(data: bytes, *, passphrase: bytes, path: Path) -> tuple[byt
             "signatures made with it still verify)")
     try:
         doc = json.loads(data)
-        if doc.get("format") != KEY_FORMAT:
+        if doc.get("format") != _KEY_FORMAT:
             raise ValueError
         kdf, cipher = doc["kdf"], doc["cipher"]
         salt = base64.b64decode(kdf["salt"], validate=True)
@@ -127,12 +127,12 @@ def decrypt_key_file(data: bytes, *, passphrase: bytes, path: Path) -> tuple[byt
         encrypted = base64.b64decode(doc["encrypted_key"], validate=True)
         n, r, p = int(kdf["n"]), int(kdf["r"]), int(kdf["p"])
     except (ValueError, KeyError, TypeError, AttributeError):
-        raise KeyFileError(f"{path}: not a calib private key file ({KEY_FORMAT})") from None
+        raise KeyFileError(f"{path}: not a calib private key file ({_KEY_FORMAT})") from None
     if (kdf.get("name") != "scrypt" or cipher.get("name") != "aes-256-gcm"
-            or n < SCRYPT_N or r < SCRYPT_R or p < 1 or n > 2 ** 20 or r > 32 or p > 16
+            or n < _SCRYPT_N or r < _SCRYPT_R or p < 1 or n > 2 ** 20 or r > 32 or p > 16
             or len(salt) < 16):
         raise KeyFileError(f"{path}: the key's passphrase protection is not what calib accepts "
-                           f"(scrypt N ≥ {SCRYPT_N}, r ≥ {SCRYPT_R}, AES-256-GCM); it may have "
+                           f"(scrypt N ≥ {_SCRYPT_N}, r ≥ {_SCRYPT_R}, AES-256-GCM); it may have "
                            "been weakened: make a new key")
     try:
         der = AESGCM(_kdf(passphrase, salt, n, r, p)).decrypt(nonce, encrypted,

@@ -45,38 +45,19 @@ from calib.record.keyfile import (
     write_new,
 )
 
-__all__ = [
-    "AUTHORITY_STEM",
-    "CERT_SUFFIX",
-    "KEY_ALGORITHM",
-    "LEGACY_ALGORITHM",
-    "PRIVATE_SUFFIX",
-    "PUBLIC_SUFFIX",
-    "Authority",
-    "KeyFileError",
-    "Keyring",
-    "NewKey",
-    "PassphraseError",
-    "PublicKey",
-    "SigningKey",
-    "certificate_holder",
-    "key_file_stem",
-    "key_id_of",
-    "lab_init",
-    "load_certificate",
-    "load_keyring",
-    "load_signing_key",
-    "new_key",
-]
+__all__ = ["KEY_ALGORITHM", "LEGACY_ALGORITHM", "PRIVATE_SUFFIX", "Authority", "KeyFileError",
+           "Keyring", "NewKey", "PassphraseError", "PublicKey", "SigningKey", "certificate_holder",
+           "key_file_stem", "key_id_of", "lab_init", "load_certificate", "load_keyring",
+           "load_signing_key", "new_key"]
 
 KEY_ALGORITHM = "ecdsa-p256-sha256"
 LEGACY_ALGORITHM = "ed25519"
 PRIVATE_SUFFIX = ".key.json"
-CERT_SUFFIX = ".cert.pem"
-PUBLIC_SUFFIX = ".pub.pem"
-AUTHORITY_STEM = "lab-authority"
-PERSON_YEARS = 10
-AUTHORITY_YEARS = 40
+_CERT_SUFFIX = ".cert.pem"
+_PUBLIC_SUFFIX = ".pub.pem"
+_AUTHORITY_STEM = "lab-authority"
+_PERSON_YEARS = 10
+_AUTHORITY_YEARS = 40
 _KEY_ID_DIGITS = 32
 
 
@@ -226,7 +207,7 @@ def _write_pair(folder: Path, stem: str, key: Any, cert: Any, holder: str,
         folder.mkdir(parents=True, exist_ok=True, mode=0o700)
     except OSError as exc:
         raise KeyFileError(f"{folder}: cannot make the key folder ({exc.strerror})") from None
-    private_path, cert_path = folder / f"{stem}{PRIVATE_SUFFIX}", folder / f"{stem}{CERT_SUFFIX}"
+    private_path, cert_path = folder / f"{stem}{PRIVATE_SUFFIX}", folder / f"{stem}{_CERT_SUFFIX}"
     for path in (private_path, cert_path):
         if path.exists():
             raise KeyFileError(f"{path}: already exists; keys are never overwritten (choose "
@@ -279,8 +260,8 @@ def lab_init(lab_name: str, *, folder: str | Path, passphrase: bytes,
     name = x509.Name([x509.NameAttribute(NameOID.COMMON_NAME, holder),
                       x509.NameAttribute(NameOID.ORGANIZATION_NAME, lab)])
     cert = _build_certificate(subject=name, issuer=name, public_key=key.public_key(), signer=key,
-                              authority=True, years=AUTHORITY_YEARS, now=now)
-    return _write_pair(Path(folder), AUTHORITY_STEM, key, cert, holder, passphrase)
+                              authority=True, years=_AUTHORITY_YEARS, now=now)
+    return _write_pair(Path(folder), _AUTHORITY_STEM, key, cert, holder, passphrase)
 
 
 def new_key(holder: str, *, folder: str | Path, passphrase: bytes, authority: SigningKey,
@@ -324,7 +305,7 @@ def new_key(holder: str, *, folder: str | Path, passphrase: bytes, authority: Si
                            for _ in org[:1]])
     cert = _build_certificate(subject=subject, issuer=authority.certificate.subject,
                               public_key=key.public_key(), signer=authority._key,
-                              authority=False, years=PERSON_YEARS, now=now)
+                              authority=False, years=_PERSON_YEARS, now=now)
     return _write_pair(Path(folder), key_file_stem(person), key, cert, person, passphrase)
 
 
@@ -475,7 +456,7 @@ def load_keyring(folder: str | Path) -> Keyring:
     if not folder.is_dir():
         raise KeyFileError(f"keyring {folder}: not a folder")
     authorities = []
-    for path in sorted(folder.glob(f"*{CERT_SUFFIX}")):
+    for path in sorted(folder.glob(f"*{_CERT_SUFFIX}")):
         try:
             cert = load_certificate(_read(path, "certificate"))
         except ValueError:
@@ -488,16 +469,16 @@ def load_keyring(folder: str | Path) -> Keyring:
                                    "a keyring holds the lab's own authority") from None
             authorities.append(Authority(certificate_holder(cert) or path.name, cert, path))
     keys = []
-    for path in sorted(folder.glob(f"*{PUBLIC_SUFFIX}")):
+    for path in sorted(folder.glob(f"*{_PUBLIC_SUFFIX}")):
         try:
             key = serialization.load_pem_public_key(_read(path, "public key"))
         except (ValueError, TypeError):
             raise KeyFileError(f"{path}: not a public key in PEM form") from None
         if not isinstance(key, Ed25519PublicKey):
             raise KeyFileError(f"{path}: not an Ed25519 public key")
-        keys.append(PublicKey(path.name.removesuffix(PUBLIC_SUFFIX), key_id_of(key), path, key))
+        keys.append(PublicKey(path.name.removesuffix(_PUBLIC_SUFFIX), key_id_of(key), path, key))
     if not authorities and not keys:
         raise KeyFileError(f"keyring {folder}: trusts nothing: it holds no lab authority "
-                           f"certificate (*{CERT_SUFFIX}) and no calib 0.1.0 public key "
-                           f"(*{PUBLIC_SUFFIX})")
+                           f"certificate (*{_CERT_SUFFIX}) and no calib 0.1.0 public key "
+                           f"(*{_PUBLIC_SUFFIX})")
     return Keyring(folder, tuple(authorities), tuple(keys))

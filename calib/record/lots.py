@@ -14,7 +14,7 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from typing import Any, TypeVar
 
-__all__ = ["LotUse", "lots_of", "records_with_lot"]
+__all__ = ["LotUse", "records_with_lot"]
 
 K = TypeVar("K")
 
@@ -30,14 +30,14 @@ class LotUse:
     analytes: tuple[str, ...]
 
 
-def lots_of(body: Mapping[str, Any]) -> list[tuple[str, str]]:
+def _lots_of(body: Mapping[str, Any]) -> list[tuple[str, str]]:
     """``(material id, lot)`` of each material a record body names; empty for older records.
 
     Examples
     --------
-    >>> lots_of({"standards": {"materials": [{"id": "FWL-RM-0412", "lot": "L24-118"}]}})
+    >>> _lots_of({"standards": {"materials": [{"id": "FWL-RM-0412", "lot": "L24-118"}]}})
     [('FWL-RM-0412', 'L24-118')]
-    >>> lots_of({"schema": "calib.record/1"})
+    >>> _lots_of({"schema": "calib.record/1"})
     []
     """
     section = body.get("standards")

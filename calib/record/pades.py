@@ -35,9 +35,9 @@ from calib.record.keys import SigningKey, certificate_holder
 from calib.record.record import canonical_bytes
 from calib.verdict_words import VERDICT_LABELS
 
-__all__ = ["ENTRY_KEY", "PdfSignature", "add_pdf_signature", "read_pdf_signatures"]
+__all__ = ["PdfSignature", "add_pdf_signature", "read_pdf_signatures"]
 
-ENTRY_KEY = "/CalibSignOff"
+_ENTRY_KEY = "/CalibSignOff"
 _PAGE_MARK = "/CalibSignaturePage"
 _SLOTS = {"prepared": 0, "reviewed": 1, "approved": 2, "rejected": 2}
 _ROLE_WORDS = {"prepared": "Prepared and issued", "reviewed": "Reviewed", "approved": "Approved",
@@ -250,7 +250,7 @@ def add_pdf_signature(pdf: bytes, *, key: SigningKey, entry: Mapping[str, Any],
     class Props(BuildProps):
         def as_pdf_object(self) -> Any:
             props = super().as_pdf_object()
-            props[generic.pdf_name(ENTRY_KEY)] = generic.TextStringObject(entry_text)
+            props[generic.pdf_name(_ENTRY_KEY)] = generic.TextStringObject(entry_text)
             return props
 
     class TimedSigner(signers.PdfSigner):
@@ -363,7 +363,7 @@ def _validate_one(sig: Any, roots: list[Any], found: list[PdfSignature],
 
 def _entry_of(sig_object: Any) -> dict[str, Any] | None:
     try:
-        text = sig_object["/Prop_Build"]["/App"][ENTRY_KEY]
+        text = sig_object["/Prop_Build"]["/App"][_ENTRY_KEY]
         entry = json.loads(str(text))
     except (KeyError, TypeError, ValueError):
         return None

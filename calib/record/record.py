@@ -25,8 +25,7 @@ from calib.fit.bands import band_figures
 from calib.record.document import check_document, finite_or_none
 from calib.record.identity import check_printed_name
 
-__all__ = ["JCS", "READ_SCHEMAS", "RECORD_SCHEMA", "Record", "build_record", "canonical_bytes",
-           "canonical_json"]
+__all__ = ["JCS", "RECORD_SCHEMA", "Record", "build_record", "canonical_bytes", "canonical_json"]
 
 #: Schema of the records calib issues.  Version 2 states each curve's weighting once, as
 #: ``check.curves[i].weighting``: the weighting the fit used (``1/x2`` for ``mean-rf``).
@@ -34,7 +33,7 @@ __all__ = ["JCS", "READ_SCHEMAS", "RECORD_SCHEMA", "Record", "build_record", "ca
 #: fit's weights, which for ``mean-rf`` were 1/x2 where ``weighting`` said ``none``).
 RECORD_SCHEMA = "calib.record/2"
 #: Schemas calib reads, verifies and renders: every version it has issued.
-READ_SCHEMAS = ("calib.record/1", RECORD_SCHEMA)
+_READ_SCHEMAS = ("calib.record/1", RECORD_SCHEMA)
 #: Value of a record's ``canonicalization`` field: its digests are over RFC 8785 (JCS) bytes.
 #: Records without the field (calib 0.1.0) use :func:`canonical_json`, kept for them.
 JCS = "RFC 8785"
@@ -126,8 +125,8 @@ class Record:
     def from_json(cls, data: bytes | str) -> Record:
         """Read a record back from its JSON."""
         body = json.loads(data)
-        if not isinstance(body, dict) or body.get("schema") not in READ_SCHEMAS:
-            raise ValueError(f"not a {' or '.join(READ_SCHEMAS)} document")
+        if not isinstance(body, dict) or body.get("schema") not in _READ_SCHEMAS:
+            raise ValueError(f"not a {' or '.join(_READ_SCHEMAS)} document")
         return cls(body)
 
 

@@ -18,7 +18,7 @@ The content digest ties the signature to what was calibrated and judged; the
 previous digest (absent for the issuer's ``prepared`` signature, which is part
 of the first version) to the versions before it.  calib 0.1.0 signed the
 manifest ``calib.signature/1`` with Ed25519 keys; those still verify with the
-old public keys in the keyring (:func:`legacy_manifest`).
+old public keys in the keyring (:func:`_legacy_manifest`).
 
 A key signature is *valid* only when all of these hold: the certificate was
 issued by a lab authority in the keyring, it was valid at the signing time,
@@ -47,10 +47,9 @@ from calib.record.keys import (
 from calib.record.record import Record, canonical_bytes, canonical_json
 from calib.record.versions import describe_signature, signatures_of
 
-__all__ = ["MANIFEST_SCHEMA", "SignatureCheck", "check_signatures", "entry_certificate",
-           "legacy_manifest", "parse_time", "signature_manifest"]
+__all__ = ["SignatureCheck", "check_signatures", "parse_time", "signature_manifest"]
 
-MANIFEST_SCHEMA = "calib.signature/2"
+_MANIFEST_SCHEMA = "calib.signature/2"
 _LEGACY_SCHEMA = "calib.signature/1"
 
 
@@ -83,7 +82,7 @@ def signature_manifest(content_digest: str, entry: Mapping[str, Any]) -> bytes:
     """
     cert = entry.get("certificate")
     manifest = {
-        "schema": MANIFEST_SCHEMA,
+        "schema": _MANIFEST_SCHEMA,
         "content_digest": content_digest,
         "previous_digest": entry.get("previous_digest"),
         "role": entry.get("role"),
@@ -97,7 +96,7 @@ def signature_manifest(content_digest: str, entry: Mapping[str, Any]) -> bytes:
     return canonical_bytes(manifest, jcs=True)
 
 
-def legacy_manifest(content_digest: str, entry: Mapping[str, Any]) -> bytes:
+def _legacy_manifest(content_digest: str, entry: Mapping[str, Any]) -> bytes:
     """The bytes calib 0.1.0 signed with Ed25519 (kept so its signatures still verify)."""
     manifest = {
         "schema": _LEGACY_SCHEMA,
@@ -113,7 +112,7 @@ def legacy_manifest(content_digest: str, entry: Mapping[str, Any]) -> bytes:
     return canonical_json(manifest)
 
 
-def entry_certificate(entry: Mapping[str, Any]) -> Any:
+def _entry_certificate(entry: Mapping[str, Any]) -> Any:
     """The certificate of a signature entry, or None when it has none or it cannot be read."""
     try:
         return load_certificate(base64.b64decode(str(entry.get("certificate")), validate=True))
@@ -206,7 +205,7 @@ def _check_one(index: int, entry: Mapping[str, Any], content_digest: str,
     if not isinstance(key_id, str) or algorithm != KEY_ALGORITHM:
         return result("damaged", f"{label}: the key signature is damaged (key id {key_id!r}, "
                                  f"algorithm {algorithm!r})")
-    cert = entry_certificate(entry)
+    cert = _entry_certificate(entry)
     signature = _decode(entry.get("signature"))
     if cert is None or not signature:
         return result("damaged", f"{label}: the key signature is damaged (its certificate or "
@@ -256,7 +255,7 @@ def _check_legacy(entry: Mapping[str, Any], content_digest: str, keyring: Keyrin
     if key is None:
         return result("unknown-key", f"{label} was made with calib 0.1.0 key {key_id}, which is "
                                      f"not in the keyring {keyring.folder}")
-    if key.verifies(signature, legacy_manifest(content_digest, entry)):
+    if key.verifies(signature, _legacy_manifest(content_digest, entry)):
         return result("legacy-valid", f"{label}: valid signature by calib 0.1.0 key {key_id} "
                                       f"({key.name}); such keys were not bound to a person's "
                                       "name", key.name)

@@ -8,7 +8,7 @@ signature over the manifest (:mod:`calib.record.signatures`); the printed name
 is then the key holder's, always.  Without a key it is a printed name only,
 and every output says so.
 
-The rules of :func:`sign_off_problem`, checked when signing and replayed by
+The rules of :func:`_sign_off_problem`, checked when signing and replayed by
 verification:
 
 - the roles after ``prepared`` are ``reviewed``, ``approved`` and ``rejected``;
@@ -50,22 +50,10 @@ from calib.record.versions import (
     version_at,
 )
 
-__all__ = [
-    "DEFAULT_MEANINGS",
-    "SIGN_ROLES",
-    "SignOffError",
-    "SignatureCheck",
-    "check_signatures",
-    "issue_signed",
-    "record_policy",
-    "rule_problems",
-    "same_person",
-    "sign_off_problem",
-    "sign_record",
-    "signature_manifest",
-]
+__all__ = ["DEFAULT_MEANINGS", "SignOffError", "SignatureCheck", "check_signatures", "issue_signed",
+           "rule_problems", "same_person", "sign_record", "signature_manifest"]
 
-SIGN_ROLES = ("reviewed", "approved", "rejected")
+_SIGN_ROLES = ("reviewed", "approved", "rejected")
 
 #: Meanings used when the signer gives none (the bundled report template words them alike).
 DEFAULT_MEANINGS = {
@@ -76,7 +64,7 @@ DEFAULT_MEANINGS = {
 _VERBS = {"reviewed": "review", "approved": "approve", "rejected": "reject"}
 
 
-def record_policy(record: Record) -> SignoffPolicy:
+def _record_policy(record: Record) -> SignoffPolicy:
     """The sign-off policy of the profile stored in the record (defaults when it has none).
 
     Raises
@@ -116,7 +104,7 @@ def _when(entry: Mapping[str, Any]) -> str:
     return str(entry.get("signed_at") or "?").replace("T", " ").replace("Z", " UTC")
 
 
-def sign_off_problem(record: Record, *, role: str, name: str, policy: SignoffPolicy,
+def _sign_off_problem(record: Record, *, role: str, name: str, policy: SignoffPolicy,
                      key_id: str | None = None, signed_at: str | None = None) -> str | None:
     """Why ``name`` (with key ``key_id``) may not add a ``role`` signature; None when allowed.
 
@@ -124,13 +112,13 @@ def sign_off_problem(record: Record, *, role: str, name: str, policy: SignoffPol
     --------
     >>> r = Record({"schema": "calib.record/1", "check": {"verdict": "rejected"},
     ...             "signatures": [{"role": "prepared", "name": "A"}]})
-    >>> sign_off_problem(r, role="approved", name="B", policy=SignoffPolicy())
+    >>> _sign_off_problem(r, role="approved", name="B", policy=SignoffPolicy())
     "the run's verdict is rejected, so the record can be signed only as rejected"
-    >>> sign_off_problem(r, role="rejected", name="B", policy=SignoffPolicy()) is None
+    >>> _sign_off_problem(r, role="rejected", name="B", policy=SignoffPolicy()) is None
     True
     """
-    if role not in SIGN_ROLES:
-        raise ValueError(f"role must be one of {', '.join(SIGN_ROLES)}; got {role!r}")
+    if role not in _SIGN_ROLES:
+        raise ValueError(f"role must be one of {', '.join(_SIGN_ROLES)}; got {role!r}")
     done = {str(e.get("role")): e for e in signatures_of(record) if isinstance(e, Mapping)}
     for final in ("rejected", "approved"):
         if final in done:
@@ -319,8 +307,8 @@ def sign_record(
 also approve it: the profile does not allow it (its [signoff] table would need \
 allow_preparer_to_approve = true)
     """
-    if role not in SIGN_ROLES:
-        raise ValueError(f"role must be one of {', '.join(SIGN_ROLES)}; got {role!r}")
+    if role not in _SIGN_ROLES:
+        raise ValueError(f"role must be one of {', '.join(_SIGN_ROLES)}; got {role!r}")
     if key is not None:
         name = _key_fields(key, name, role=_VERBS[role])
     elif not isinstance(name, str) or not name.strip():
@@ -331,9 +319,9 @@ allow_preparer_to_approve = true)
     broken = chain_problems(record)
     if broken:
         raise SignOffError("the record's earlier signatures do not verify: " + "; ".join(broken))
-    policy = record_policy(record) if policy is None else policy
+    policy = _record_policy(record) if policy is None else policy
     when = (signed_at or datetime.now(UTC)).astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
-    problem = sign_off_problem(record, role=role, name=name, policy=policy,
+    problem = _sign_off_problem(record, role=role, name=name, policy=policy,
                                key_id=key.key_id if key else None, signed_at=when)
     if problem:
         raise SignOffError(problem)
@@ -362,7 +350,7 @@ def rule_problems(record: Record, policy: SignoffPolicy | None = None) -> list[s
     ProfileError
         If ``policy`` is None and the stored profile's ``[signoff]`` table is malformed.
     """
-    policy = record_policy(record) if policy is None else policy
+    policy = _record_policy(record) if policy is None else policy
     problems = []
     for index, entry in enumerate(signatures_of(record)):
         if not isinstance(entry, Mapping):
@@ -381,9 +369,9 @@ def rule_problems(record: Record, policy: SignoffPolicy | None = None) -> list[s
                 problems.append(f"{label} is dated {_when(entry)}, not at the issue of the "
                                 f"record ({_when({'signed_at': record.body.get('created_at')})})")
             continue
-        if role not in SIGN_ROLES:
+        if role not in _SIGN_ROLES:
             continue
-        problem = sign_off_problem(version_at(record, index), role=str(role),
+        problem = _sign_off_problem(version_at(record, index), role=str(role),
                                    name=str(entry.get("name") or ""), policy=policy,
                                    key_id=entry.get("key_id"),
                                    signed_at=str(entry.get("signed_at") or ""))

@@ -59,17 +59,17 @@ from calib.record.signatures import SignatureCheck, check_signatures
 from calib.record.signing import rule_problems
 from calib.record.versions import chain_problems, signatures_of
 
-__all__ = ["AREAS", "Finding", "RecordFile", "VerifyReport", "read_record_file", "verify_bytes",
+__all__ = ["Finding", "RecordFile", "VerifyReport", "read_record_file", "verify_bytes",
            "verify_file"]
 
 #: Kinds of finding, in the order a report lists them.
-AREAS = ("data", "pdf", "pages", "signatures", "unchecked", "rules", "archive")
-DRAFT_NOTE = "draft: not signed by an issuer"
+_AREAS = ("data", "pdf", "pages", "signatures", "unchecked", "rules", "archive")
+_DRAFT_NOTE = "draft: not signed by an issuer"
 
 
 @dataclass(frozen=True)
 class Finding:
-    """One problem found: its area (see :data:`AREAS`) and what is wrong, in plain words."""
+    """One problem found: its area (see :data:`_AREAS`) and what is wrong, in plain words."""
 
     area: str
     message: str
@@ -138,7 +138,7 @@ class VerifyReport:
         if self.verdict == "verified":
             return ("verified: intact, signed by its issuer, every signature verified with a key "
                     "certified by the lab")
-        gaps = [] if self.issuer_signed else [DRAFT_NOTE]
+        gaps = [] if self.issuer_signed else [_DRAFT_NOTE]
         gaps += [f"signature {s.index + 1} ({s.role} by {s.name}) is a printed name only, not "
                  "key-verified" for s in self.unkeyed if s.role != "prepared"]
         return "intact, origin not verified throughout: " + "; ".join(gaps)
@@ -420,10 +420,10 @@ def verify_bytes(data: bytes, *, name: str = "record", keyring: Keyring | None =
     problems += found
     notes += more_notes
     if not (checks and checks[0].role == "prepared" and checks[0].keyed):
-        notes.insert(0, DRAFT_NOTE + " (anyone with calib could have made this file)")
+        notes.insert(0, _DRAFT_NOTE + " (anyone with calib could have made this file)")
     if file.kind == "pdf" and pages is not None:
         notes += _render_note(file, attached, pages, pdf_count > 0)
-    problems.sort(key=lambda p: AREAS.index(p.area))
+    problems.sort(key=lambda p: _AREAS.index(p.area))
     return VerifyReport(name, file.kind, record, tuple(problems), tuple(notes), checks, pdf_count)
 
 

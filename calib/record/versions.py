@@ -39,18 +39,10 @@ from typing import Any
 
 from calib.record.record import Record
 
-__all__ = [
-    "SIGNATURE_ROLES",
-    "chain_problems",
-    "content_of",
-    "describe_signature",
-    "next_version",
-    "signatures_of",
-    "version_at",
-    "version_digests",
-]
+__all__ = ["chain_problems", "content_of", "describe_signature", "next_version", "signatures_of",
+           "version_at", "version_digests"]
 
-SIGNATURE_ROLES = ("prepared", "reviewed", "approved", "rejected")
+_SIGNATURE_ROLES = ("prepared", "reviewed", "approved", "rejected")
 _TEXT_FIELDS = ("role", "name", "signed_at", "meaning")
 
 
@@ -158,7 +150,7 @@ def chain_problems(record: Record) -> list[str]:
         missing = [f for f in _TEXT_FIELDS if not isinstance(entry.get(f), str) or not entry[f]]
         if missing:
             problems.append(f"{name} lacks {', '.join(missing)}")
-        if entry.get("role") not in SIGNATURE_ROLES:
+        if entry.get("role") not in _SIGNATURE_ROLES:
             problems.append(f"{name} has an unknown role {entry.get('role')!r}")
         link = entry.get("previous_digest")
         if link is None:

@@ -45,7 +45,7 @@ CURVE = colors.HexColor("#1c6e8c")
 BAND = colors.HexColor("#cde2ea")
 
 LABEL_SIZE = 6.5
-TITLE_SIZE = 7
+_TITLE_SIZE = 7
 
 
 @dataclass(frozen=True)
@@ -182,8 +182,8 @@ def _frame(d: Drawing, xa: _Axis, ya: _Axis, *, x_title: str, y_title: str) -> N
         py = ya(t)
         d.add(Line(x0, py, x0 - 2.5, py, strokeColor=INK, strokeWidth=0.5))
         d.add(_text(x0 - 4, py - 2.2, _tick_label(t, ya.ticks, ya.log), anchor="end"))
-    d.add(_text((x0 + x1) / 2, y0 - 19, x_title, size=TITLE_SIZE, anchor="middle"))
-    label = Group(_text(0, 0, y_title, size=TITLE_SIZE, anchor="middle"))
+    d.add(_text((x0 + x1) / 2, y0 - 19, x_title, size=_TITLE_SIZE, anchor="middle"))
+    label = Group(_text(0, 0, y_title, size=_TITLE_SIZE, anchor="middle"))
     label.transform = (0, 1, -1, 0, 7, (y0 + y1) / 2)
     d.add(label)
 

@@ -68,7 +68,7 @@ from calib.report.wording import (
     weighting_words,
 )
 
-__all__ = ["build_story", "story_sections"]
+__all__ = ["story_sections"]
 
 _LOGO_HEIGHT = 40.0  # points (14 mm)
 _LOGO_WIDTH = 130.0
@@ -524,7 +524,7 @@ def story_sections(
 
     A record of hundreds of analytes is laid out section by section, so only
     one analyte's tables and charts are held at a time.  Parameters as for
-    :func:`build_story`.
+    :func:`_build_story`.
 
     Examples
     --------
@@ -538,7 +538,7 @@ def story_sections(
                     width=width).sections()
 
 
-def build_story(
+def _build_story(
     record: Mapping[str, Any],
     *,
     record_id: str,
@@ -566,7 +566,7 @@ def build_story(
     Examples
     --------
     >>> from calib.report.template import load_template
-    >>> story = build_story({"check": {"curves": []}}, record_id="CR-0", digest="0" * 64,
+    >>> story = _build_story({"check": {"curves": []}}, record_id="CR-0", digest="0" * 64,
     ...                     template=load_template(), width=480)
     >>> len(story) > 5
     True

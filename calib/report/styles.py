@@ -18,7 +18,7 @@ from reportlab.platypus import TableStyle
 from calib.fonts import BOLD, REGULAR, register_fonts
 
 __all__ = ["BOLD", "INK", "LINE", "MUTED", "REGULAR", "SHADE", "Styles", "get_styles",
-           "grid_style", "register_fonts"]
+           "register_fonts"]
 
 # A sober palette that still reads when printed in black and white.
 INK = colors.HexColor("#1d1d1f")
@@ -79,7 +79,7 @@ def get_styles() -> Styles:
     )
 
 
-def grid_style(*, header_rows: int = 1, font_size: float = 7,
+def _grid_style(*, header_rows: int = 1, font_size: float = 7,
                right_from: int | None = None) -> TableStyle:
     """Style of a data table: bold shaded header, hairlines between rows.
 
@@ -94,7 +94,7 @@ def grid_style(*, header_rows: int = 1, font_size: float = 7,
 
     Examples
     --------
-    >>> ("FONTNAME", (0, 0), (-1, 0), BOLD) in grid_style().getCommands()
+    >>> ("FONTNAME", (0, 0), (-1, 0), BOLD) in _grid_style().getCommands()
     True
     """
     commands: list[tuple] = [

@@ -14,7 +14,7 @@ from calib.report.grid import PAD_BOTTOM, PAD_TOP, Grid, GridRow, grid_row, layo
 __all__ = ["TableMaker"]
 
 #: Extra room above and below a blank sign-off row, to sign a printed copy by hand.
-HAND_PADDING = 9.0
+_HAND_PADDING = 9.0
 
 
 class TableMaker:
@@ -84,7 +84,7 @@ class TableMaker:
             else:
                 cells = [layout_cell(text, widths[c], is_head or (c, r) in bold, c in right)
                          for c, text in enumerate(row)]
-            pad = HAND_PADDING if r in tall else None
+            pad = _HAND_PADDING if r in tall else None
             laid.append(grid_row(cells, pad_top=pad or PAD_TOP, pad_bottom=pad or PAD_BOTTOM))
         return Grid(laid, widths, header=header)
 

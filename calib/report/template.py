@@ -69,7 +69,7 @@ __all__ = [
 
 NOT_CONFIGURED = "Laboratory not configured"
 """The lab name of the bundled template: what a record says until ``calib lab init`` is run."""
-DEMO_TEMPLATE = "fernbrook-demo.toml"
+_DEMO_TEMPLATE = "fernbrook-demo.toml"
 """The bundled letterhead of the fictional demo lab (``calib demo`` only)."""
 
 PAGE_SIZES = ("A4", "Letter")
@@ -277,7 +277,7 @@ def demo_template() -> ReportTemplate:
     >>> demo_template().lab.name
     'Fernbrook Water Laboratory'
     """
-    return load_template(bundled_folder() / DEMO_TEMPLATE)
+    return load_template(bundled_folder() / _DEMO_TEMPLATE)
 
 
 def resolve_template(template: str | Path | ReportTemplate | None = None) -> ReportTemplate:
@@ -512,7 +512,7 @@ def template_section(template: ReportTemplate) -> dict[str, Any]:
         layout.pop(key)
     if template.lab.name == NOT_CONFIGURED:
         laboratory = "not configured"
-    elif template.source == DEMO_TEMPLATE and template.sha256 == demo_template().sha256:
+    elif template.source == _DEMO_TEMPLATE and template.sha256 == demo_template().sha256:
         laboratory = "demonstration"
     else:
         laboratory = "configured"

@@ -44,7 +44,7 @@ from calib.report.tables import TableMaker
 __all__ = ["control_chart_drawing", "write_trend_pdf"]
 
 ACTION = colors.HexColor("#8c2d19")
-WARNING = colors.HexColor("#b07a00")
+_WARNING = colors.HexColor("#b07a00")
 PATH = colors.HexColor("#7d8fa3")
 _CHART_HEIGHT = 160
 _TITLE = "Control charts"
@@ -89,7 +89,7 @@ def _legend(d: Drawing, *, x: float, y: float, width: float, shade_label: str, f
         elif kind == "shade":
             d.add(Rect(col, cy - 3, 11, 6, fillColor=SHADE, strokeColor=None))
         else:
-            color, dash, stroke = {"mean": (MUTED, None, 0.8), "warn": (WARNING, [2.5, 1.5], 0.7),
+            color, dash, stroke = {"mean": (MUTED, None, 0.8), "warn": (_WARNING, [2.5, 1.5], 0.7),
                                    "action": (ACTION, None, 0.8)}[kind]
             d.add(Line(col, cy, col + 11, cy, strokeColor=color, strokeWidth=stroke,
                        strokeDashArray=dash))
@@ -213,7 +213,7 @@ def control_chart_drawing(chart: ControlChart, *, width: float, height: float, y
         x0 = max(xa.start, xa(xs[first] - min(gap_before, 0.5)))
         x1 = min(right, xa(xs[last] + min(gap_after, 0.5)))
         d.add(Rect(x0, ya.start, x1 - x0, ya.length, fillColor=SHADE, strokeColor=None))
-        for k, color, dash in ((3, ACTION, None), (2, WARNING, [2.5, 1.5])):
+        for k, color, dash in ((3, ACTION, None), (2, _WARNING, [2.5, 1.5])):
             for value, sign in zip(lim.limit(k), ("−", "+")):
                 y = ya(value)
                 if ya.start <= y <= ya.start + ya.length:

@@ -279,7 +279,7 @@ def range_sentences(curve: Mapping[str, Any], words: Callable[[Any], str]) -> li
 
 
 #: A reason at least this long, shared by at least two points, is printed once below the table.
-SHARED_REASON_LENGTH = 40
+_SHARED_REASON_LENGTH = 40
 
 
 def shared_reasons(reasons: Iterable[Any]) -> dict[str, str]:
@@ -298,7 +298,7 @@ def shared_reasons(reasons: Iterable[Any]) -> dict[str, str]:
     for reason in reasons:
         text = str(reason or "")
         counts[text] = counts.get(text, 0) + 1
-    shared = [r for r, n in counts.items() if n >= 2 and len(r) >= SHARED_REASON_LENGTH]
+    shared = [r for r, n in counts.items() if n >= 2 and len(r) >= _SHARED_REASON_LENGTH]
     return {r: _mark(i) for i, r in enumerate(shared)}
 
 

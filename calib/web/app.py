@@ -74,7 +74,7 @@ async def home(request: Request) -> Response:
     return _render(request, "home.html", choices=pages.choices(request.app.state.profiles))
 
 
-async def check_upload(request: Request) -> Response:
+async def _check_upload(request: Request) -> Response:
     form = await _form(request)
     name, data = await _file(form, "run", what="run file (the instrument export)")
     run = OpenRun(name=name, data=data, **_settings(form, request))
@@ -105,7 +105,7 @@ def _assess(run: OpenRun) -> None:
     run.filed = ""
 
 
-async def run_page(request: Request) -> Response:
+async def _run_page(request: Request) -> Response:
     run_id, run = _open_run(request)
     return _run_view(request, run_id, run)
 
@@ -122,7 +122,7 @@ def _run_view(request: Request, run_id: str, run: OpenRun, *, error: str = "",
                    choices=pages.choices(request.app.state.profiles))
 
 
-async def curve_page(request: Request) -> Response:
+async def _curve_page(request: Request) -> Response:
     run_id, run = _open_run(request)
     index = request.path_params["index"]
     if not 0 <= index < len(run.assessment.curves):
@@ -131,7 +131,7 @@ async def curve_page(request: Request) -> Response:
                    curve=pages.curve_view(run.assessment, index))
 
 
-async def run_settings(request: Request) -> Response:
+async def _run_settings(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
     before = (run.profile, run.model, run.weighting, run.confidence)
@@ -146,7 +146,7 @@ async def run_settings(request: Request) -> Response:
     return RedirectResponse(f"/run/{run_id}", 303)
 
 
-async def run_exclude(request: Request) -> Response:
+async def _run_exclude(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
     target, reason = _text(form, "target"), _text(form, "reason")
@@ -171,7 +171,7 @@ async def run_exclude(request: Request) -> Response:
     return RedirectResponse(_back(run_id, run, place), 303)
 
 
-async def run_include(request: Request) -> Response:
+async def _run_include(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
     target, reason = _text(form, "target"), _text(form, "reason")
@@ -221,7 +221,7 @@ def _back(run_id: str, run: OpenRun, place: tuple[int | None, int | None]) -> st
     return f"/run/{run_id}/curve/{curve}{anchor}"
 
 
-async def run_close(request: Request) -> Response:
+async def _run_close(request: Request) -> Response:
     await _form(request)
     run_id, _ = _open_run(request)
     _runs(request).close_run(run_id)
@@ -230,7 +230,7 @@ async def run_close(request: Request) -> Response:
 
 # ---------------------------------------------------------------------- issue the record
 
-async def issue_page(request: Request) -> Response:
+async def _issue_page(request: Request) -> Response:
     run_id, run = _open_run(request)
     return _render(request, "issue.html", run_id=run_id, run=run,
                    templates=request.app.state.report_templates,
@@ -251,7 +251,7 @@ def _lab_template_label() -> str:
     return f"the lab's, {template.source} ({template.lab.name})"
 
 
-async def issue_post(request: Request) -> Response:
+async def _issue_post(request: Request) -> Response:
     form = await _form(request)
     run_id, run = _open_run(request)
     # Signed in: the record is prepared by that person, whatever the form says.
@@ -290,7 +290,7 @@ def _template_path(request: Request, name: str) -> Path | None:
     return found
 
 
-async def issued_page(request: Request) -> Response:
+async def _issued_page(request: Request) -> Response:
     run_id, run = _open_run(request)
     if run.issued is None:
         return RedirectResponse(f"/run/{run_id}/issue", 303)
@@ -316,11 +316,11 @@ async def download(request: Request) -> Response:
 
 # ---------------------------------------------------------------------- quantify
 
-async def quantify_page(request: Request) -> Response:
+async def _quantify_page(request: Request) -> Response:
     return _render(request, "quantify.html", result=None)
 
 
-async def quantify_post(request: Request) -> Response:
+async def _quantify_post(request: Request) -> Response:
     form = await _form(request)
     curve = await _file(form, "curve", what="curve (an issued record, or a run file)")
     samples = await _file(form, "samples", what="samples file", required=False)
@@ -441,16 +441,16 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
 
     routes = [
         Route("/", home),
-        Route("/check", _closing(check_upload), methods=["POST"]),
-        Route("/run/{run_id}", run_page),
-        Route("/run/{run_id}/curve/{index:int}", curve_page),
-        Route("/run/{run_id}/settings", _closing(run_settings), methods=["POST"]),
-        Route("/run/{run_id}/exclude", _closing(run_exclude), methods=["POST"]),
-        Route("/run/{run_id}/include", _closing(run_include), methods=["POST"]),
-        Route("/run/{run_id}/close", _closing(run_close), methods=["POST"]),
-        Route("/run/{run_id}/issue", issue_page),
-        Route("/run/{run_id}/issue", _closing(issue_post), methods=["POST"]),
-        Route("/run/{run_id}/issued", issued_page),
+        Route("/check", _closing(_check_upload), methods=["POST"]),
+        Route("/run/{run_id}", _run_page),
+        Route("/run/{run_id}/curve/{index:int}", _curve_page),
+        Route("/run/{run_id}/settings", _closing(_run_settings), methods=["POST"]),
+        Route("/run/{run_id}/exclude", _closing(_run_exclude), methods=["POST"]),
+        Route("/run/{run_id}/include", _closing(_run_include), methods=["POST"]),
+        Route("/run/{run_id}/close", _closing(_run_close), methods=["POST"]),
+        Route("/run/{run_id}/issue", _issue_page),
+        Route("/run/{run_id}/issue", _closing(_issue_post), methods=["POST"]),
+        Route("/run/{run_id}/issued", _issued_page),
         Route("/run/{run_id}/record.pdf", issued_pdf),
         Route("/run/{run_id}/sign", _closing(sign_issued), methods=["POST"]),
         Route("/sign", sign_page),
@@ -465,8 +465,8 @@ def create_app(*, archive: str | os.PathLike[str] | None = None,
         Route("/archive/record/{record_id}/verify", archive_verify_record),
         Route("/archive/record/{record_id}/sign", _closing(sign_archived), methods=["POST"]),
         Route("/archive/record/{record_id}/{seq:int}.pdf", archive_pdf),
-        Route("/quantify", quantify_page),
-        Route("/quantify", _closing(quantify_post), methods=["POST"]),
+        Route("/quantify", _quantify_page),
+        Route("/quantify", _closing(_quantify_post), methods=["POST"]),
         Mount("/static", StaticFiles(packages=[("calib.web", "static")]), name="static"),
     ]
     with_users = auth.server_has_users(archive) if users is None else users

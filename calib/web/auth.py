@@ -37,26 +37,25 @@ from starlette.responses import RedirectResponse, Response
 
 from calib.web.base import PageError, _closing, _form, _render, _text, acting_name
 
-__all__ = ["USER_COOKIE", "SignInGate", "Signer", "acting_name", "audit", "needed_roles",
-           "routes", "signer_for"]
+__all__ = ["USER_COOKIE", "SignInGate", "Signer", "acting_name", "audit", "routes", "signer_for"]
 
 USER_COOKIE = "calib_user"
 #: Which roles may do what a meaning says (a rejection is a reviewer's or an approver's call).
-SIGNING_ROLES = {"reviewed": ("reviewer",), "approved": ("approver",),
+_SIGNING_ROLES = {"reviewed": ("reviewer",), "approved": ("approver",),
                  "rejected": ("reviewer", "approver")}
 _OPEN = ("/signin", "/static/")
 
 
-def needed_roles(method: str, path: str) -> tuple[str, ...]:
+def _needed_roles(method: str, path: str) -> tuple[str, ...]:
     """The roles of which one is needed for a request (empty: any signed-in person).
 
     Examples
     --------
-    >>> needed_roles("POST", "/check"), needed_roles("GET", "/archive")
+    >>> _needed_roles("POST", "/check"), _needed_roles("GET", "/archive")
     (('analyst',), ())
-    >>> needed_roles("POST", "/sign"), needed_roles("GET", "/users")
+    >>> _needed_roles("POST", "/sign"), _needed_roles("GET", "/users")
     (('reviewer', 'approver'), ('administrator',))
-    >>> needed_roles("POST", "/run/r1/sign"), needed_roles("POST", "/archive/record/CR-1/sign")
+    >>> _needed_roles("POST", "/run/r1/sign"), _needed_roles("POST", "/archive/record/CR-1/sign")
     (('reviewer', 'approver'), ('reviewer', 'approver'))
     """
     if path == "/users" or path.startswith("/users/"):
@@ -72,7 +71,7 @@ def needed_roles(method: str, path: str) -> tuple[str, ...]:
 
 
 @contextlib.contextmanager
-def people_of(app: Any) -> Iterator[Any]:
+def _people_of(app: Any) -> Iterator[Any]:
     """The archive's :class:`~calib.archive.people.People`, open for one request."""
     from calib.archive import Archive
     from calib.archive.people import People
@@ -95,7 +94,7 @@ async def audit(request: Request, event: str, *, subject: str = "",
     def write() -> None:
         from calib.archive.trail import record_event
 
-        with people_of(request.app) as people:
+        with _people_of(request.app) as people:
             record_event(people.storage, event, actor=user.name, subject=subject,
                          detail=detail or {}, at=people.now())
 
@@ -112,7 +111,7 @@ class SignInGate(BaseHTTPMiddleware):
         token = request.cookies.get(USER_COOKIE)
 
         def look_up() -> Any:
-            with people_of(app) as people:
+            with _people_of(app) as people:
                 return people.session_user(token)
 
         user = await run_in_threadpool(look_up) if token else None
@@ -128,7 +127,7 @@ class SignInGate(BaseHTTPMiddleware):
         # Open runs belong to this sign-in, not to the browser: another person signing in
         # on the same browser sees none of them.
         request.state.session = "user-" + token[:40]
-        roles = needed_roles(request.method, request.url.path)
+        roles = _needed_roles(request.method, request.url.path)
         if roles and not user.has(*roles):
             return _render(request, "error.html", status=403, message=(
                 f"This needs the role {' or '.join(roles)}; {user.name} has "
@@ -145,12 +144,12 @@ def _next(target: str) -> str:
     return target
 
 
-async def signin_page(request: Request) -> Response:
+async def _signin_page(request: Request) -> Response:
     return _render(request, "signin.html", next=_next(request.query_params.get("next", "/")),
                    error="")
 
 
-async def signin_post(request: Request) -> Response:
+async def _signin_post(request: Request) -> Response:
     from calib.archive.people import SignInRefused
 
     form = await _form(request)
@@ -159,7 +158,7 @@ async def signin_post(request: Request) -> Response:
     password = password if isinstance(password, str) else ""
 
     def sign_in() -> tuple[str, Any]:
-        with people_of(request.app) as people:
+        with _people_of(request.app) as people:
             return people.sign_in(name, password)
 
     try:
@@ -173,12 +172,12 @@ async def signin_post(request: Request) -> Response:
     return response
 
 
-async def signout_post(request: Request) -> Response:
+async def _signout_post(request: Request) -> Response:
     await _form(request)
     token = request.cookies.get(USER_COOKIE)
 
     def sign_out() -> None:
-        with people_of(request.app) as people:
+        with _people_of(request.app) as people:
             people.sign_out(token)
 
     await run_in_threadpool(sign_out)
@@ -187,9 +186,9 @@ async def signout_post(request: Request) -> Response:
     return response
 
 
-async def users_page(request: Request) -> Response:
+async def _users_page(request: Request) -> Response:
     def listing() -> tuple[list[Any], Any]:
-        with people_of(request.app) as people:
+        with _people_of(request.app) as people:
             return people.users(), people.now()
 
     users, now = await run_in_threadpool(listing)
@@ -200,10 +199,10 @@ def routes() -> list[Any]:
     """The sign-in, sign-out and users routes (added only when the server has users)."""
     from starlette.routing import Route
 
-    return [Route("/signin", signin_page), Route("/signin", _closing(signin_post),
+    return [Route("/signin", _signin_page), Route("/signin", _closing(_signin_post),
                                                   methods=["POST"]),
-            Route("/signout", _closing(signout_post), methods=["POST"]),
-            Route("/users", users_page)]
+            Route("/signout", _closing(_signout_post), methods=["POST"]),
+            Route("/users", _users_page)]
 
 
 # ----------------------------------------------------------------------------- signing
@@ -233,7 +232,7 @@ async def signer_for(request: Request, form: FormData, role: str) -> Signer | No
     user = getattr(request.state, "user", None)
     if not _users_on(request.app) or user is None:
         return None
-    allowed = SIGNING_ROLES.get(role, ())
+    allowed = _SIGNING_ROLES.get(role, ())
     if not user.has(*allowed):
         raise PageError(f"A signature meaning {role} needs the role {' or '.join(allowed)}; "
                         f"{user.name} has {', '.join(user.roles)}. Nothing was signed.", 403)
@@ -248,7 +247,7 @@ async def signer_for(request: Request, form: FormData, role: str) -> Signer | No
     passphrase = passphrase if isinstance(passphrase, str) else ""
 
     def establish() -> Signer:
-        with people_of(request.app) as people:
+        with _people_of(request.app) as people:
             people.check_password(user.name, password, purpose="signature")
         return _with_key(request, user.name, passphrase)
 

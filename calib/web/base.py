@@ -22,7 +22,7 @@ from calib.web.state import OpenRun, Store, scrub
 
 __all__ = ["PageError", "acting_name", "one_line"]
 
-Handler = Callable[[Request], Awaitable[Response]]
+_Handler = Callable[[Request], Awaitable[Response]]
 
 
 def one_line(text: str) -> str:
@@ -78,7 +78,7 @@ async def _form(request: Request) -> FormData:
     return form
 
 
-def _closing(handler: Handler) -> Handler:
+def _closing(handler: _Handler) -> _Handler:
     """``handler``, closing the uploaded files' spools when it is done, however it ends."""
 
     async def handle(request: Request) -> Response:

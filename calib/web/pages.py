@@ -13,16 +13,15 @@ from typing import Any
 
 from calib.verdict_words import VERDICT_LABELS
 
-__all__ = [
-    "check_word", "choices", "curve_view", "flagged_cells", "neighbours", "num", "quantify_view", "record_view", "run_summary",
-    "short_check_name", "size_text", "summary_order", "trend_view", "verdict_word", "verify_view",
-]
+__all__ = ["check_word", "choices", "curve_view", "flagged_cells", "neighbours", "num",
+           "quantify_view", "record_view", "run_summary", "size_text", "summary_order",
+           "trend_view", "verdict_word", "verify_view"]
 
 #: Verdicts in words, each with a symbol so that no verdict rests on colour.
 _VERDICTS = {code: (VERDICT_LABELS[code], mark)
              for code, mark in (("accepted", "✓"), ("rejected", "✗"), ("needs-review", "!"))}
 _CHECKS = {"pass": "Pass", "fail": "Fail", "warn": "Warning", "not-evaluated": "Not evaluated"}
-FILTERS = (("all", "All curves"),
+_FILTERS = (("all", "All curves"),
            *((code, VERDICT_LABELS[code]) for code in ("rejected", "needs-review", "accepted")))
 
 
@@ -132,14 +131,14 @@ _SEVERITY = {"rejected": 0, "needs-review": 1, "accepted": 2}
 _WEIGHTY = {"reject", "review"}
 
 
-def short_check_name(title: str) -> str:
+def _short_check_name(title: str) -> str:
     """A check's title without its parenthesised method, for a summary cell.
 
     Examples
     --------
-    >>> short_check_name("Lack of fit against replicate error (F-test)")
+    >>> _short_check_name("Lack of fit against replicate error (F-test)")
     'Lack of fit against replicate error'
-    >>> short_check_name("Weighting advice")
+    >>> _short_check_name("Weighting advice")
     'Weighting advice'
     """
     return title.split(" (", 1)[0].strip() or title
@@ -162,7 +161,7 @@ def flagged_cells(curve: Any) -> dict[str, str]:
         if not check.cells or (check.id != "back-calculation"
                                and check.verdict.value not in ("warn", "fail")):
             continue
-        why = _FLAG_WORDS.get(check.id, short_check_name(check.title))
+        why = _FLAG_WORDS.get(check.id, _short_check_name(check.title))
         for cell in check.cells:
             out[cell] = f"{out[cell]}; {why}" if cell in out else why
     return out
@@ -179,7 +178,7 @@ def _worst(curve: Any) -> tuple[float | None, str]:
     return best
 
 
-def failed_checks(checks: Sequence[tuple[str, str, str]], verdict: str) -> list[str]:
+def _failed_checks(checks: Sequence[tuple[str, str, str]], verdict: str) -> list[str]:
     """Short names of the checks behind a verdict, from (title, result, severity) triples.
 
     The failed rules that reject or ask for review; for a curve needing review
@@ -187,13 +186,13 @@ def failed_checks(checks: Sequence[tuple[str, str, str]], verdict: str) -> list[
 
     Examples
     --------
-    >>> failed_checks([("Suggested outliers (Grubbs)", "warn", "review"),
+    >>> _failed_checks([("Suggested outliers (Grubbs)", "warn", "review"),
     ...                ("Weighting advice", "warn", "info")], "needs-review")
     ['Suggested outliers']
     """
-    names = [short_check_name(t) for t, r, sev in checks if r == "fail" and sev in _WEIGHTY]
+    names = [_short_check_name(t) for t, r, sev in checks if r == "fail" and sev in _WEIGHTY]
     if not names and verdict != "accepted":
-        names = [short_check_name(t) for t, r, sev in checks if r == "warn" and sev in _WEIGHTY]
+        names = [_short_check_name(t) for t, r, sev in checks if r == "warn" and sev in _WEIGHTY]
     return names
 
 
@@ -217,7 +216,7 @@ def run_summary(assessment: Any, *, show: str = "all") -> dict[str, Any]:
         verdict = curve.verdict.value
         if show not in ("all", verdict):
             continue
-        failed = failed_checks([(c.title, c.verdict.value, c.severity.value)
+        failed = _failed_checks([(c.title, c.verdict.value, c.severity.value)
                                 for c in curve.checks], verdict)
         if curve.fit is None and curve.unfitted_reason:
             failed.insert(0, "Not fitted")
@@ -229,7 +228,7 @@ def run_summary(assessment: Any, *, show: str = "all") -> dict[str, Any]:
                      "n": len(curve.standards),
                      "slope": curve.fit.coefficients.get("slope") if curve.fit else None,
                      "r_squared": curve.fit.r_squared if curve.fit else None})
-    return {"rows": rows, "counts": counts, "filters": FILTERS, "total": len(assessment.curves)}
+    return {"rows": rows, "counts": counts, "filters": _FILTERS, "total": len(assessment.curves)}
 
 
 def neighbours(assessment: Any, index: int) -> tuple[int | None, int | None]:
@@ -273,7 +272,7 @@ def curve_view(assessment: Any, index: int) -> dict[str, Any]:
         "index": index, "analyte": curve.analyte, "verdict": curve.verdict.value,
         "sentence": sentence, "reasons": curve.reasons, "model": curve.model.value,
         "weighting": curve.weighting.value, "confidence": curve.confidence,
-        "charts": curve_plots(curve, index, unit_x=units.get("concentration", ""),
+        "charts": _curve_plots(curve, index, unit_x=units.get("concentration", ""),
                               unit_y=units.get("response", "")),
         "coefficients": fit.coefficient_table() if fit else (),
         "fit": fit, "unfitted": curve.unfitted_reason, "lod": curve.lod, "loq": curve.loq,
@@ -289,7 +288,7 @@ def _titles(unit_x: str, unit_y: str) -> tuple[str, str, str]:
             "Residual" + (f" ({unit_y})" if unit_y else ""))
 
 
-def curve_plots(curve: Any, index: int, *, unit_x: str = "", unit_y: str = "") -> list[str]:
+def _curve_plots(curve: Any, index: int, *, unit_x: str = "", unit_y: str = "") -> list[str]:
     """Calibration plot (with the fitted curve and its confidence band) and residual plot.
 
     Each standard is a link to its row of the standards table (``#std-CURVE-ROW``)
@@ -356,7 +355,7 @@ def record_curves(body: Mapping[str, Any], *, plots: bool = True) -> list[dict[s
     curves = check.get("curves") if isinstance(check.get("curves"), list) else []
     for index, c in enumerate(x for x in curves if isinstance(x, Mapping)):
         checks = [k for k in c.get("checks") or () if isinstance(k, Mapping)]
-        failed = failed_checks([(str(k.get("title") or k.get("id")), str(k.get("verdict")),
+        failed = _failed_checks([(str(k.get("title") or k.get("id")), str(k.get("verdict")),
                                  str(k.get("severity"))) for k in checks],
                                str(c.get("verdict", "")))
         points = [p for p in c.get("points") or () if isinstance(p, Mapping)]
@@ -430,7 +429,7 @@ def trend_view(trend: Any) -> dict[str, Any]:
                      "fired": fired})
     fired_rules = [f"{r}: {RULES[r]}" for r in RULES
                    if any(h.rule == r for c in trend.charts for h in c.hits)]
-    return {"analyte": trend.analyte, "charts": trend_plots(trend) if trend.evaluated else [],
+    return {"analyte": trend.analyte, "charts": _trend_plots(trend) if trend.evaluated else [],
             "limits": trend.charts, "rows": rows, "flagged": trend.flagged,
             "fired_rules": fired_rules, "notes": trend.notes, "evaluated": trend.evaluated,
             "left_out": len(trend.left_out), "baseline": min(trend.baseline, len(trend.points))}
@@ -439,7 +438,7 @@ def trend_view(trend: Any) -> dict[str, Any]:
 _QUANTITIES = {"slope": "Slope b", "intercept": "Intercept a", "residual_sd": "Residual SD"}
 
 
-def trend_plots(trend: Any) -> list[tuple[str, str]]:
+def _trend_plots(trend: Any) -> list[tuple[str, str]]:
     """(title, svg) of each control chart with limits, drawn against the run dates."""
     from calib.web.plot import trend_svg
 

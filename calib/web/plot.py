@@ -18,12 +18,12 @@ from xml.sax.saxutils import escape, quoteattr
 
 from calib.report.charts import nice_ticks, wants_log_axis
 
-__all__ = ["FONT_SIZE", "VIEW_WIDTH", "Mark", "chart_svg", "residual_marks", "trend_svg"]
+__all__ = ["FONT_SIZE", "Mark", "chart_svg", "residual_marks", "trend_svg"]
 
 #: ViewBox width and label size in its units.  A chart is at least ~340 CSS px wide on a
 #: 390 px screen (main's padding aside), so labels render at 17 · 340 / 460 ≈ 12.6 px there
 #: at the very least, and larger on wider windows.
-VIEW_WIDTH = 460
+_VIEW_WIDTH = 460
 FONT_SIZE = 17
 _FONT = "system-ui, sans-serif"
 _INK, _MUTED, _LINE = "#1d2329", "#5b6570", "#c9d0d6"
@@ -165,7 +165,7 @@ def _marks(out: list[str], xs: _Scale, ys: _Scale, marks: Sequence[Mark]) -> Non
 
 
 def _svg(body: list[str], height: float, label: str) -> str:
-    return (f'<svg class="chart" viewBox="0 0 {VIEW_WIDTH} {height:.0f}" role="group" '
+    return (f'<svg class="chart" viewBox="0 0 {_VIEW_WIDTH} {height:.0f}" role="group" '
             f'aria-label={quoteattr(label)} font-family="{_FONT}" '
             f'preserveAspectRatio="xMidYMid meet">' + "".join(body) + "</svg>")
 
@@ -208,7 +208,7 @@ def chart_svg(marks: Sequence[Mark], *, x_title: str, y_title: str, label: str,
     plot_top, plot_h = 12, 230
     legend_top = plot_top + plot_h + 2 * FONT_SIZE + 34
     height = legend_top + len(items) * (FONT_SIZE + 6)
-    xs = _Scale(xs_all, 74, VIEW_WIDTH - 16, log=log_x, target=4)
+    xs = _Scale(xs_all, 74, _VIEW_WIDTH - 16, log=log_x, target=4)
     if zero_line:
         scale = [m.y for m in marks if m.used] or [m.y for m in marks]
         ys = _Scale(scale or [0.0], plot_top + plot_h, plot_top, symmetric=True, target=4)
@@ -292,7 +292,7 @@ def trend_svg(dates: Sequence[str], values: Sequence[float], *, y_title: str, la
     height = legend_top + len(items) * (FONT_SIZE + 6)
     lo, hi = (min(days), max(days)) if days else (0, 1)
     pad = max(1, round((hi - lo) * 0.04))
-    xs = _Scale([lo - pad, hi + pad], 74, VIEW_WIDTH - 16, target=3)
+    xs = _Scale([lo - pad, hi + pad], 74, _VIEW_WIDTH - 16, target=3)
     xs.ticks = (lo - pad, hi + pad)
     xs._lo, xs._hi = float(lo - pad), float(hi + pad)
     ys = _Scale(ys_all or [0.0, 1.0], plot_top + plot_h, plot_top, target=4)

@@ -30,30 +30,16 @@ from urllib.parse import urlsplit
 
 from calib.output import safe_file_name
 
-__all__ = [
-    "ACCESS_COOKIE",
-    "CSRF_COOKIE",
-    "CSRF_FIELD",
-    "DEFAULT_MAX_UPLOAD",
-    "LOOPBACK_NAMES",
-    "SECURITY_HEADERS",
-    "SESSION_COOKIE",
-    "host_allowed",
-    "host_name",
-    "is_loopback",
-    "key_upload_allowed",
-    "new_token",
-    "safe_filename",
-    "same_origin",
-    "same_token",
-]
+__all__ = ["ACCESS_COOKIE", "CSRF_COOKIE", "CSRF_FIELD", "DEFAULT_MAX_UPLOAD", "SECURITY_HEADERS",
+           "SESSION_COOKIE", "host_allowed", "is_loopback", "key_upload_allowed", "new_token",
+           "safe_filename", "same_origin", "same_token"]
 
 CSRF_COOKIE = "calib_form"
 CSRF_FIELD = "form_token"
 ACCESS_COOKIE = "calib_access"
 SESSION_COOKIE = "calib_session"
 #: Host names every server answers to: this computer's own.
-LOOPBACK_NAMES = ("localhost", "127.0.0.1", "::1")
+_LOOPBACK_NAMES = ("localhost", "127.0.0.1", "::1")
 #: Sent with every response.  The pages use only our own script and style sheet, so
 #: nothing inline is allowed; no other site may frame them (clickjacking on the sign form).
 SECURITY_HEADERS = {
@@ -110,14 +96,14 @@ def same_origin(origin: str | None, host: str | None) -> bool:
     return urlsplit(origin).netloc.lower() == host.lower()
 
 
-def host_name(host: str | None) -> str:
+def _host_name(host: str | None) -> str:
     """The name part of a ``Host`` header or URL authority, lower-case, without port or brackets.
 
     Examples
     --------
-    >>> host_name("127.0.0.1:8750"), host_name("[::1]:8750"), host_name("LabPC.example")
+    >>> _host_name("127.0.0.1:8750"), _host_name("[::1]:8750"), _host_name("LabPC.example")
     ('127.0.0.1', '::1', 'labpc.example')
-    >>> host_name(None), host_name("a b")
+    >>> _host_name(None), _host_name("a b")
     ('', '')
     """
     text = (host or "").strip().lower()
@@ -145,8 +131,8 @@ def host_allowed(host: str | None, allowed: tuple[str, ...] = ()) -> bool:
     >>> host_allowed(None)
     False
     """
-    name = host_name(host)
-    return bool(name) and (name in LOOPBACK_NAMES or name in {host_name(a) for a in allowed})
+    name = _host_name(host)
+    return bool(name) and (name in _LOOPBACK_NAMES or name in {_host_name(a) for a in allowed})
 
 
 def key_upload_allowed(scheme: str, client_host: str | None) -> bool:

@@ -33,11 +33,11 @@ _PREFIX = "calib-web-"
 _PRIVATE = re.compile(re.escape(os.path.join(tempfile.gettempdir(), _PREFIX)) + r"[^/\\]+[/\\]")
 
 #: How many runs and downloads are kept, per browser, before the oldest is forgotten.
-KEEP = 64
+_KEEP = 64
 #: Most bytes of uploads (and, separately, of downloads) kept for one browser.
 MAX_BYTES = 256 * 1024 * 1024
 #: How many browsers may have runs open at once (a further one is refused, no one is evicted).
-KEEP_SESSIONS = 256
+_KEEP_SESSIONS = 256
 #: Seconds without use after which a browser's open runs and downloads are forgotten.
 IDLE = 12 * 3600
 
@@ -108,7 +108,7 @@ class Download:
 class Store:
     """One browser's open runs and downloads by random id.
 
-    The oldest of each kind is forgotten past :data:`KEEP` items or past
+    The oldest of each kind is forgotten past :data:`_KEEP` items or past
     ``max_bytes`` of file data (uploads are held in memory), so one browser
     cannot fill the server's memory; the newest item is always kept.
 
@@ -149,7 +149,7 @@ class Store:
         key = new_token()[:22]
         with self._lock:
             table[key] = item
-            while len(table) > KEEP or (
+            while len(table) > _KEEP or (
                     len(table) > 1 and sum(len(v.data or b"") for v in table.values())
                     > self._max_bytes):
                 table.popitem(last=False)
@@ -164,7 +164,7 @@ class Sessions:
     (in a shared screen, a log, a link) answers "no such run" to them.  A store
     is made when a browser first opens a run or makes a download (a page view
     makes none), and forgotten after :data:`IDLE` seconds without use.  When
-    :data:`KEEP_SESSIONS` browsers are active, a new one is refused
+    :data:`_KEEP_SESSIONS` browsers are active, a new one is refused
     (:class:`SessionsFull`) rather than another user's runs being dropped.
 
     Examples
@@ -177,7 +177,7 @@ class Sessions:
     1
     """
 
-    def __init__(self, keep: int = KEEP_SESSIONS, idle: float = IDLE,
+    def __init__(self, keep: int = _KEEP_SESSIONS, idle: float = IDLE,
                  clock: Callable[[], float] = time.monotonic) -> None:
         self._stores: OrderedDict[str, tuple[Store, float]] = OrderedDict()
         self._keep, self._idle, self._clock = keep, idle, clock
@@ -189,7 +189,7 @@ class Sessions:
         Raises
         ------
         SessionsFull
-            With ``create``, when :data:`KEEP_SESSIONS` other browsers are active.
+            With ``create``, when :data:`_KEEP_SESSIONS` other browsers are active.
         """
         now = self._clock()
         with self._lock:

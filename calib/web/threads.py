@@ -15,10 +15,10 @@ import os
 import sys
 from collections.abc import MutableMapping
 
-__all__ = ["BLAS_VARIABLES", "limit_blas_threads"]
+__all__ = ["limit_blas_threads"]
 
 #: The variables OpenBLAS, MKL, BLIS and OpenMP read when they load.
-BLAS_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS",
+_BLAS_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS",
                   "BLIS_NUM_THREADS", "VECLIB_MAXIMUM_THREADS", "NUMEXPR_NUM_THREADS")
 
 
@@ -36,7 +36,7 @@ def limit_blas_threads(environ: MutableMapping[str, str] | None = None) -> str:
     ('1', '2')
     """
     env = os.environ if environ is None else environ
-    for name in BLAS_VARIABLES:
+    for name in _BLAS_VARIABLES:
         env.setdefault(name, "1")
     if "numpy" not in sys.modules or environ is not None:
         return "BLAS threads: 1 per request (set before numpy loaded)"

@@ -18,7 +18,7 @@ from calib.checks.rules.base import Param, Rule, as_shown, fmt, not_evaluated, r
 from calib.options import Model, SampleType, Weighting
 from calib.run import Point
 
-__all__ = ["ACCEPTANCE_RULES", "relative_standard_error"]
+__all__ = ["ACCEPTANCE_RULES"]
 
 #: Rules that judge how well the curve reads back or fits, one of which must stand beside
 #: ``correlation`` (AMC Technical Brief No. 3; Van Loco et al. 2002).
@@ -65,7 +65,7 @@ def correlation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Check
                   f"{figures}: the standards scatter too much about the curve.")
 
 
-def relative_standard_error(x: list[float], x_back: list[float], n_params: int) -> float:
+def _relative_standard_error(x: list[float], x_back: list[float], n_params: int) -> float:
     """RSE = 100·√(Σ((x̂ᵢ − xᵢ)/xᵢ)² / (N − p)) of back-calculated concentrations.
 
     Parameters
@@ -88,7 +88,7 @@ def relative_standard_error(x: list[float], x_back: list[float], n_params: int) 
     --------
     Deviations of +10 %, −10 %, +5 % and 0 % with p = 2: √(0.0225 / 2) = 10.607 %.
 
-    >>> round(relative_standard_error([1, 2, 4, 8], [1.1, 1.8, 4.2, 8.0], 2), 3)
+    >>> round(_relative_standard_error([1, 2, 4, 8], [1.1, 1.8, 4.2, 8.0], 2), 3)
     10.607
     """
     dof = len(x) - n_params
@@ -109,7 +109,7 @@ def rse(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
         return not_evaluated("rse", sev, "these standards cannot be read back from the curve: "
                              + ", ".join(unreadable))
     n_params = len(fit.coefficients)
-    value = relative_standard_error([s.point.concentration for s in judged],
+    value = _relative_standard_error([s.point.concentration for s in judged],
                                     [float(s.back_calculated or 0.0) for s in judged], n_params)
     if not math.isfinite(value):
         return not_evaluated("rse", sev, f"{len(judged)} non-zero standards and {n_params} "
@@ -122,7 +122,7 @@ def rse(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
                   figures + ("." if ok else ": the standards read back too far from nominal."))
 
 
-def intercept_fraction(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _intercept_fraction(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """|intercept| as a percentage of the fitted response at a chosen concentration.
 
     The concentration is ``concentration`` when given, else the ``level``-th
@@ -313,7 +313,7 @@ ACCEPTANCE_RULES: tuple[Rule, ...] = (
           "bound_confidence": Param(float, low=0.5, high=0.999),
           # Refused with the reason by _fraction_params; declared so the message says why.
           "or_zero_alpha": Param(float, low=0, high=0.5, low_open=True)},
-         intercept_fraction, validate=_fraction_params),
+         _intercept_fraction, validate=_fraction_params),
     Rule("blank", "Blank responses against the LLOQ response",
          {"max_pct_of_lloq": Param(float, low=0, high=100, default=20, low_open=True),
           "max_is_pct_of_lloq": Param(float, low=0, high=100, low_open=True)},

@@ -29,7 +29,7 @@ def min_levels(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckR
     return result("min-levels", sev, verdict, float(n), float(limit), detail)
 
 
-def slope_reference(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _slope_reference(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """Slope against the expected slope: t-test, or the % change against a tolerance."""
     fit = ctx.fit
     if fit is None:
@@ -110,5 +110,5 @@ BASIC_RULES: tuple[Rule, ...] = (
          {"expected": Param(float, nonzero=True), "tolerance_pct": Param(float, low=0, low_open=True),
           "alpha": Param(float, low=0, high=0.5, default=0.05, low_open=True),
           "recent_curves": Param(int, low=2), "min_curves": Param(int, low=2, default=3)},
-         slope_reference, validate=_slope_params),
+         _slope_reference, validate=_slope_params),
 )

@@ -35,7 +35,7 @@ def _lowest_response(ctx: CurveContext) -> float:
     return float(np.asarray(fit.predict(min(levels))).reshape(-1)[0])
 
 
-def intercept_zero(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _intercept_zero(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """Two-sided t-test of H₀: intercept = 0 on ν = N − p degrees of freedom.
 
     ``value`` is the p-value and ``limit`` α (as before); the test is named in the
@@ -105,5 +105,5 @@ def intercept_zero(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Ch
 INTERCEPT_RULES: tuple[Rule, ...] = (
     Rule("intercept-zero", "Intercept against zero (t-test)",
          {"alpha": Param(float, low=0, high=0.5, default=0.05, low_open=True),
-          "negligible_pct": Param(float, low=0, high=100, low_open=True)}, intercept_zero),
+          "negligible_pct": Param(float, low=0, high=100, low_open=True)}, _intercept_zero),
 )

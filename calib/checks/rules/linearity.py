@@ -36,7 +36,7 @@ def _weights_note(weighted: bool, fit: CurveFit) -> str:
     return f", weighting {fit.weighting.value}" if weighted else ""
 
 
-def lack_of_fit_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _lack_of_fit_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """Lack-of-fit F-test against replicate (pure) error; value F, limit α."""
     fit = ctx.fit
     if fit is None:
@@ -82,7 +82,7 @@ def lack_of_fit_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> 
                 f"scatter.{caution}{power_words}")
 
 
-def mandel_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _mandel_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """Mandel's fitting test (ISO 8466-1); value PG, limit F(confidence; 1, N − 3)."""
     fit = ctx.fit
     if fit is None:
@@ -113,7 +113,7 @@ def mandel_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Check
                 f"({figures}): the linear calibration function is adequate.")
 
 
-def quadratic_term_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _quadratic_term_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """t-test of the quadratic coefficient; value p, limit α."""
     fit = ctx.fit
     if fit is None:
@@ -159,7 +159,7 @@ def quadratic_term_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) 
     return result("quadratic-term", sev, Verdict.WARN, term.p_value, alpha, detail)
 
 
-def runs_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _runs_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """Runs test on residual signs ordered by concentration; value p, limit α."""
     fit = ctx.fit
     if fit is None:
@@ -190,7 +190,7 @@ def runs_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckRe
     return done(Verdict.PASS, f"No pattern in the residual signs ({figures}; p ≥ {alpha:g}).")
 
 
-def drift_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _drift_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """Trend of residuals with injection order; value p, limit α."""
     fit = ctx.fit
     if fit is None:
@@ -237,13 +237,13 @@ def _alpha_param() -> dict[str, Param]:
 
 LINEARITY_RULES: tuple[Rule, ...] = (
     Rule("lack-of-fit", "Lack of fit against replicate error (F-test)", _alpha_param(),
-         lack_of_fit_rule),
+         _lack_of_fit_rule),
     Rule("mandel", "Mandel's fitting test, straight line against quadratic (ISO 8466-1)",
-         {"confidence": Param(float, low=0.5, high=0.9999, default=0.99)}, mandel_rule),
+         {"confidence": Param(float, low=0.5, high=0.9999, default=0.99)}, _mandel_rule),
     Rule("quadratic-term", "Significance of a quadratic term (curvature)", _alpha_param(),
-         quadratic_term_rule),
+         _quadratic_term_rule),
     Rule("residual-runs", "Runs of level-mean residual signs along the concentration (one-sided)",
          _alpha_param(),
-         runs_rule),
-    Rule("drift", "Residual trend with injection order (drift)", _alpha_param(), drift_rule),
+         _runs_rule),
+    Rule("drift", "Residual trend with injection order (drift)", _alpha_param(), _drift_rule),
 )

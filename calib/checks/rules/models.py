@@ -15,7 +15,7 @@ from calib.options import Model
 __all__ = ["MODELS_RULES"]
 
 
-def rf_rsd(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _rf_rsd(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """%RSD of the response factors against ``max_rsd_pct``; judged for the mean-rf model only.
 
     For another model the figure is still worked out from the fitted
@@ -49,7 +49,7 @@ def rf_rsd(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResul
                   "factor; fit a line or a curve instead.")
 
 
-def method_sd_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _method_sd_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """ISO 8466-1 method standard deviation s_x0 = σ̂/b; value = relative V_x0 in %."""
     fit = ctx.fit
     if fit is None:
@@ -75,7 +75,7 @@ def method_sd_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> Ch
 
 MODELS_RULES: tuple[Rule, ...] = (
     Rule("rf-rsd", "Spread of the response factors (%RSD)",
-         {"max_rsd_pct": Param(float, low=0, high=100, default=20, low_open=True)}, rf_rsd),
+         {"max_rsd_pct": Param(float, low=0, high=100, default=20, low_open=True)}, _rf_rsd),
     Rule("method-sd", "Method standard deviation (ISO 8466-1)",
-         {"max_relative_pct": Param(float, low=0, high=100, low_open=True)}, method_sd_rule),
+         {"max_relative_pct": Param(float, low=0, high=100, low_open=True)}, _method_sd_rule),
 )

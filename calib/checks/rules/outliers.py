@@ -31,7 +31,7 @@ def _grubbs_by_level(used: tuple[StandardResult, ...], y: np.ndarray, alpha: flo
     With 3 replicates G cannot exceed (n − 1)/√n = 1.1547 and reaches its critical value
     whenever two replicates nearly coincide, whatever the third: the test is degenerate
     there and is not evaluated.  The findings never decide the rule (one test decides,
-    see :func:`outliers_rule`); they say at which level a suspect stands out.
+    see :func:`_outliers_rule`); they say at which level a suspect stands out.
     """
     by_level: dict[int, list[int]] = {}
     for i, standard in enumerate(used):
@@ -78,7 +78,7 @@ def _influence_note(infl: Influence, cells: list[str]) -> str:
             f"{ref:.2f}")
 
 
-def outliers_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _outliers_rule(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """Suggested outliers; value max |studentized residual|, limit the Bonferroni t.
 
     One test decides, at ``alpha`` for the whole curve: the largest externally
@@ -152,5 +152,5 @@ OUTLIERS_RULES: tuple[Rule, ...] = (
     Rule("outliers", "Suggested outliers (studentized residuals, Cook's distance, Grubbs)",
          {"alpha": Param(float, low=0, high=0.5, default=0.05, low_open=True),
           "grubbs_alpha": Param(float, low=0, high=0.5, low_open=True)},
-         outliers_rule),
+         _outliers_rule),
 )

@@ -28,12 +28,12 @@ def _nonzero(standards: tuple[StandardResult, ...]) -> list[StandardResult]:
 
 
 #: Deviations are printed with one decimal ("+15.0 %") and compared as printed.
-DEVIATION_DECIMALS = 1
+_DEVIATION_DECIMALS = 1
 
 
 def _within(s: StandardResult, allowed: float) -> bool:
     dev = s.deviation_pct
-    return dev is not None and math.isfinite(dev) and abs(as_shown(dev, DEVIATION_DECIMALS)) <= allowed
+    return dev is not None and math.isfinite(dev) and abs(as_shown(dev, _DEVIATION_DECIMALS)) <= allowed
 
 
 def _shown(s: StandardResult) -> str:
@@ -134,7 +134,7 @@ def rejected_standards(standards: tuple[StandardResult, ...],
     return [s for s in failing if s.point.concentration not in keep_ends]
 
 
-def back_calculation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
+def _back_calculation(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> CheckResult:
     """Share of standards whose back-calculated concentration is within tolerance.
 
     The lowest level of the fit (the LLOQ) and, when the profile says so, the
@@ -309,7 +309,7 @@ STANDARDS_RULES: tuple[Rule, ...] = (
           "count_excluded": Param(bool, default=False),
           "narrowed_ends_at_main_tolerance": Param(bool, default=False),
           "refit_without_rejected": Param(bool, default=False)},
-         back_calculation,
+         _back_calculation,
          validate=lambda p: ("min_level_pass_pct needs min_passing_levels beside it"
                              if "min_level_pass_pct" in p and "min_passing_levels" not in p
                              else None)),

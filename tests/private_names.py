@@ -12,8 +12,11 @@ the module never uses it as an attribute, a parameter, a keyword argument or an 
 Within the module every whole-word occurrence is renamed (code, docstrings, doctests,
 comments); the name leaves the module's ``__all__``.
 
-    python tools/private_names.py            # list the candidates
-    python tools/private_names.py --apply    # rename them
+    python -m tests.private_names            # list the candidates
+    python -m tests.private_names --apply    # rename them
+
+``tests/test_private_names.py`` fails while there is any candidate, so a helper added later
+is either used elsewhere or given its underscore.
 """
 
 from __future__ import annotations

@@ -18,11 +18,11 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import special
 
 from calib.fit.batch_block import StackFit, fit_stack
 from calib.fit.curve import CurveFit, stacked_curve
 from calib.fit.design import COEFFICIENTS, weight_basis
+from calib.fit.distributions import t_ppf, t_sf
 from calib.fit.inverse import quadratic_root
 from calib.options import Model, Weighting, check_confidence, parse_option
 
@@ -349,14 +349,13 @@ class BatchFit:
         key = ("t_critical", level)
         if key not in self._cache:
             # Curves share few distinct ν (whole numbers): one quantile each, spread back
-            # over the curves.  special.stdtrit is the function scipy.stats.t.ppf
-            # evaluates, without its per-call argument checks.
+            # over the curves, from the same t quantile as CurveFit's.
             nu = self.residual_df
             fitted = np.isfinite(nu)
             index = np.where(fitted, nu, 0).astype(np.intp)
             table = np.full(index.max(initial=0) + 1, np.nan)
             present = np.flatnonzero(np.bincount(index[fitted], minlength=table.size))
-            table[present] = special.stdtrit(present.astype(float), 0.5 + level / 2)
+            table[present] = t_ppf(0.5 + level / 2, present.astype(float))
             self._cache[key] = np.where(fitted, table[index], np.nan)
         return self._cache[key]
 
@@ -375,9 +374,8 @@ def _t_ratio(diff: np.ndarray, se: np.ndarray) -> np.ndarray:
 
 
 def _two_sided_p(t: np.ndarray, nu: np.ndarray) -> np.ndarray:
-    # special.stdtr(ν, −|t|) is what scipy.stats.t.sf(|t|, ν) evaluates, so the figures are
-    # those of CurveFit.p_value; one call covers every curve and coefficient.
-    return 2 * special.stdtr(nu, -np.abs(t))
+    # The tail CurveFit.p_value takes; one call covers every curve and coefficient.
+    return 2 * t_sf(np.abs(t), nu)
 
 
 def _per_curve(value: float | np.ndarray, K: int, name: str) -> np.ndarray:

@@ -36,6 +36,12 @@ def test_pontius_straight_line_intercept_is_significant():
     assert check.value == pytest.approx(reference.pvalues[0], rel=1e-8)
     assert "differs significantly from zero" in check.detail
     assert "blank contamination" in check.detail
+    # Its size is stated beside its significance: intercept / fitted response at the lowest
+    # standard, both from the same statsmodels fit.
+    a, b = reference.params
+    share = 100 * abs(a) / abs(a + b * min(v for v in x if v > 0))
+    assert f"the intercept is {share:.3g} % of the fitted response at the lowest standard" in (
+        check.detail)
 
 
 def test_origin_model_has_no_intercept_to_test(norris_run):

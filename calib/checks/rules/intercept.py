@@ -96,6 +96,11 @@ def _intercept_zero(ctx: CurveContext, p: Mapping[str, Any], sev: Severity) -> C
         relevance = (f"; its {100 * level:g} % interval reaches {reach:.3g} % of the fitted "
                      f"response at the lowest standard, beyond the ±{margin:g} % the profile "
                      "treats as negligible")
+    elif math.isfinite(lowest) and lowest != 0:
+        # No margin in the profile: the size is still stated, so the reviewer sees whether
+        # a significant intercept matters at the LLOQ.
+        relevance = (f"; the intercept is {100 * abs(est) / abs(lowest):.3g} % of the fitted "
+                     "response at the lowest standard")
     else:
         relevance = ""
     return done(Verdict.FAIL, f"{significant}{relevance}. Look for blank contamination, an "

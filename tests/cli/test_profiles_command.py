@@ -42,8 +42,9 @@ def run(capsys, *args):
 def test_profiles_lists_the_shipped_profiles(capsys):
     code, out, _ = run(capsys, "profiles")
     assert code == 0
-    for name in ("default", "bioanalytical", "environmental", "assay-linearity", "iso-8466"):
-        assert f"\n{name} (version 1, " in "\n" + out
+    for name, version in (("default", 2), ("bioanalytical", 1), ("environmental", 1),
+                          ("assay-linearity", 1), ("iso-8466", 1), ("plasma-spectrometry", 2)):
+        assert f"\n{name} (version {version}, " in "\n" + out
     assert "confirm every limit" in out
 
 

@@ -481,7 +481,7 @@ def test_quantify_shows_units_source_range_detection_limit_and_qc_deviation(clie
     with PHOSPHATE.open("rb") as f:
         html = post(client, "/quantify", {}, {"curve": (PHOSPHATE.name, f)}).text
     assert f"run file <strong>{PHOSPHATE.name}</strong>, checked now" in html
-    assert "with profile default (version 1)" in html
+    assert "with profile default (version 2)" in html
     row = html[html.index('<th scope="row">Orthophosphate-P</th>'):]
     row = row[:row.index("</tr>")]
     assert "0.05 to 0.8" in row and "mg/L" in row

@@ -28,7 +28,7 @@ from __future__ import annotations
 import importlib
 from typing import Any
 
-__version__ = "0.2.0"
+__version__ = "0.3.0"
 
 _EXPORTS = {
     "ArchiveError": "calib.errors",

@@ -33,6 +33,7 @@ GOLDEN = Path(__file__).parents[1] / "data" / "golden"
 LEGACY = GOLDEN / "0.1.0"
 CURRENT = GOLDEN / "2026-12-02"
 RELEASE_020 = GOLDEN / "0.2.0"
+RELEASE_030 = GOLDEN / "0.3.0"  # calib.record/2
 # From each SOURCE.md.
 LEGACY_DIGESTS = {
     "issued": "2b093d9b796b0710e34d2760458a4721b47b896bfc6f0c15886e609065c97572",
@@ -49,7 +50,13 @@ RELEASE_020_DIGESTS = {
     "reviewed": "90a0a181e5f8628998422401319ddd4860e44654bee32d10f08c01bcf1c66cb9",
     "approved": "eeafa1fd4844b746e2073503f6d5c435bde68922ac7bf7acc993e6d5a3f09a4c",
 }
-SIGNED_SETS = [(CURRENT, CURRENT_DIGESTS), (RELEASE_020, RELEASE_020_DIGESTS)]
+RELEASE_030_DIGESTS = {
+    "issued": "9735db18280decaed6a9a32fc02e6b939022f908e5b460123ee12a9bc3c87eac",
+    "reviewed": "29841312894e322d437210dfef5fedbc00f54f9f5a4416ca8ad99f6650975b5d",
+    "approved": "1ece96124230f99dd290660e07a12f5e129046c8284ddec016cd15d0ba1bb5d8",
+}
+SIGNED_SETS = [(CURRENT, CURRENT_DIGESTS), (RELEASE_020, RELEASE_020_DIGESTS),
+               (RELEASE_030, RELEASE_030_DIGESTS)]
 
 
 @pytest.fixture
@@ -115,7 +122,8 @@ def test_legacy_record_verifies_and_signs_after_a_layout_change(moved_margin, tm
     assert verify_bytes(printed.pdf, name="v2.pdf").ok
 
 
-@pytest.mark.parametrize(("folder", "digests"), SIGNED_SETS, ids=["2026-12-02", "0.2.0"])
+@pytest.mark.parametrize(("folder", "digests"), SIGNED_SETS,
+                         ids=["2026-12-02", "0.2.0", "0.3.0"])
 @pytest.mark.parametrize("stage", ["issued", "reviewed", "approved"])
 def test_current_golden_records_verify(stage, folder, digests):
     ring = load_keyring(folder / "keyring")
@@ -130,7 +138,8 @@ def test_current_golden_records_verify(stage, folder, digests):
     assert hashlib.sha256(data).hexdigest() == digests[stage]
 
 
-@pytest.mark.parametrize("folder", [CURRENT, RELEASE_020], ids=["2026-12-02", "0.2.0"])
+@pytest.mark.parametrize("folder", [CURRENT, RELEASE_020, RELEASE_030],
+                         ids=["2026-12-02", "0.2.0", "0.3.0"])
 def test_current_golden_records_verify_and_sign_after_a_layout_change(moved_margin, tmp_path,
                                                                       folder):
     ring = load_keyring(folder / "keyring")
@@ -156,7 +165,7 @@ def test_current_golden_records_verify_and_sign_after_a_layout_change(moved_marg
 def test_golden_approved_records_are_closed():
     from calib.record.signing import SignOffError
 
-    for folder in (LEGACY, CURRENT, RELEASE_020):
+    for folder in (LEGACY, CURRENT, RELEASE_020, RELEASE_030):
         with pytest.raises(SignOffError, match="^sign-off is closed: the record was approved by "):
             sign_file(folder / "nitrate.approved.pdf", role="rejected", key=person_key(REVIEWER),
                       pages=record_pages())

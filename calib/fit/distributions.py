@@ -15,14 +15,14 @@ positive real number.
 ==============  ======================  ========================================
 distribution    functions               scipy.special routine
 ==============  ======================  ========================================
-Student's t     t_cdf, t_sf             stdtr(ν, x), stdtr(ν, −x)
+Student's t     t_sf                    stdtr(ν, −x)
                 t_ppf, t_isf            stdtrit(ν, q), −stdtrit(ν, q)
-F               f_cdf, f_sf             fdtr, fdtrc
+F               f_sf                    fdtrc
                 f_ppf, f_isf            fdtri(ν₁, ν₂, q), fdtri(ν₁, ν₂, 1 − q)
-normal          norm_cdf, norm_sf       ndtr(x), ndtr(−x)
-                norm_ppf, norm_isf      ndtri(q), −ndtri(q)
-χ²              chi2_cdf, chi2_sf       chdtr, chdtrc
-                chi2_ppf, chi2_isf      2·gammaincinv(ν/2, q), chdtri(ν, q)
+normal          norm_cdf                ndtr(x)
+                norm_ppf                ndtri(q)
+χ²              chi2_sf                 chdtrc
+                chi2_isf                chdtri(ν, q)
 non-central t   nct_cdf                 nctdtr(ν, δ, x)
 ==============  ======================  ========================================
 
@@ -39,8 +39,8 @@ import numpy as np
 from scipy import special
 
 __all__ = [
-    "chi2_cdf", "chi2_isf", "chi2_ppf", "chi2_sf", "f_cdf", "f_isf", "f_ppf", "f_sf",
-    "nct_cdf", "norm_cdf", "norm_isf", "norm_ppf", "norm_sf", "t_cdf", "t_isf", "t_ppf", "t_sf",
+    "chi2_isf", "chi2_sf", "f_isf", "f_ppf", "f_sf", "nct_cdf", "norm_cdf", "norm_ppf", "t_isf",
+    "t_ppf", "t_sf",
 ]
 
 ArrayLike = float | np.ndarray
@@ -100,16 +100,6 @@ def _quantile(q: ArrayLike, valid: ArrayLike, inside: ArrayLike,
 # --- Student's t -------------------------------------------------------------------------------
 
 
-def t_cdf(x: ArrayLike, df: ArrayLike) -> ArrayLike:
-    """P(T ≤ x) for Student's t with ``df`` degrees of freedom.
-
-    Examples
-    --------
-    >>> t_cdf(0.0, 5)
-    0.5
-    """
-    x, df = _floats(x, df)
-    return _probability(x, _valid(df), special.stdtr(df, x), _REAL_LINE, upper=False)
 
 
 def t_sf(x: ArrayLike, df: ArrayLike) -> ArrayLike:
@@ -177,17 +167,6 @@ def t_isf(q: ArrayLike, df: ArrayLike) -> ArrayLike:
 # --- F -----------------------------------------------------------------------------------------
 
 
-def f_cdf(x: ArrayLike, dfn: ArrayLike, dfd: ArrayLike) -> ArrayLike:
-    """P(F ≤ x) for the F distribution on (``dfn``, ``dfd``) degrees of freedom.
-
-    Examples
-    --------
-    >>> f_cdf(-1.0, 2, 3)
-    0.0
-    """
-    x, dfn, dfd = _floats(x, dfn, dfd)
-    return _probability(x, _valid(dfn, dfd), special.fdtr(dfn, dfd, x), _POSITIVE,
-                        upper=False)
 
 
 def f_sf(x: ArrayLike, dfn: ArrayLike, dfd: ArrayLike) -> ArrayLike:
@@ -260,16 +239,6 @@ def norm_cdf(x: ArrayLike) -> ArrayLike:
     return _probability(x, True, special.ndtr(x), _REAL_LINE, upper=False)
 
 
-def norm_sf(x: ArrayLike) -> ArrayLike:
-    """1 − Φ(x), computed as Φ(−x) so the far upper tail keeps its digits.
-
-    Examples
-    --------
-    >>> norm_sf(30.0) > 0   # 1 − Φ(30) would round to 0
-    True
-    """
-    (x,) = _floats(x)
-    return _probability(x, True, special.ndtr(-x), _REAL_LINE, upper=True)
 
 
 def norm_ppf(q: ArrayLike) -> ArrayLike:
@@ -284,31 +253,11 @@ def norm_ppf(q: ArrayLike) -> ArrayLike:
     return _quantile(q, True, special.ndtri(q), _REAL_LINE, upper=False)
 
 
-def norm_isf(q: ArrayLike) -> ArrayLike:
-    """The z with 1 − Φ(z) = q.
-
-    Examples
-    --------
-    >>> round(norm_isf(0.025), 6)
-    1.959964
-    """
-    (q,) = _floats(q)
-    return _quantile(q, True, -special.ndtri(q), _REAL_LINE, upper=True)
 
 
 # --- χ² ----------------------------------------------------------------------------------------
 
 
-def chi2_cdf(x: ArrayLike, df: ArrayLike) -> ArrayLike:
-    """P(χ² ≤ x) on ``df`` degrees of freedom.
-
-    Examples
-    --------
-    >>> round(chi2_cdf(3.841458820694124, 1), 12)
-    0.95
-    """
-    x, df = _floats(x, df)
-    return _probability(x, _valid(df), special.chdtr(df, x), _POSITIVE, upper=False)
 
 
 def chi2_sf(x: ArrayLike, df: ArrayLike) -> ArrayLike:
@@ -323,17 +272,6 @@ def chi2_sf(x: ArrayLike, df: ArrayLike) -> ArrayLike:
     return _probability(x, _valid(df), special.chdtrc(df, x), _POSITIVE, upper=True)
 
 
-def chi2_ppf(q: ArrayLike, df: ArrayLike) -> ArrayLike:
-    """The x with P(χ² ≤ x) = q.
-
-    Examples
-    --------
-    >>> round(chi2_ppf(0.95, 1), 4)   # 3.8415 in published tables
-    3.8415
-    """
-    q, df = _floats(q, df)
-    return _quantile(q, _valid(df), 2 * special.gammaincinv(df / 2, q), _POSITIVE,
-                     upper=False)
 
 
 def chi2_isf(q: ArrayLike, df: ArrayLike) -> ArrayLike:
@@ -360,7 +298,7 @@ def nct_cdf(x: ArrayLike, df: ArrayLike, nc: ArrayLike) -> ArrayLike:
     --------
     With δ = 0 it is Student's t:
 
-    >>> nct_cdf(1.5, 7, 0.0) == t_cdf(1.5, 7)
+    >>> abs(nct_cdf(1.5, 7, 0.0) - (1 - t_sf(1.5, 7))) < 1e-12
     True
     """
     x, df, nc = _floats(x, df, nc)

@@ -59,7 +59,7 @@ import statistics
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from scipy import stats
+from calib.fit.distributions import t_ppf
 
 __all__ = [
     "DEFAULT_BASELINE",
@@ -462,7 +462,7 @@ def screened_limits(values: Sequence[float], *, baseline: int | None = DEFAULT_B
     out: list[SetAside] = []
     while len(kept) > floor:
         n = len(kept)
-        critical = max(3.0, float(stats.t.ppf(1 - _SCREEN_ALPHA / (2 * n), n - 2))
+        critical = max(3.0, float(t_ppf(1 - _SCREEN_ALPHA / (2 * n), n - 2))
                        * math.sqrt(1 + 1 / (n - 1)))
         worst: SetAside | None = None
         for i in kept:

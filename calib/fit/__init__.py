@@ -5,7 +5,7 @@ Diagnostics take a fit and return named result objects: linearity
 (:func:`lack_of_fit`, :func:`mandel_test`, :func:`quadratic_term`,
 :func:`residual_runs`, :func:`residual_drift`; the last two in
 ``residual_patterns``), variance (:func:`variance_ends`,
-:func:`variance_levels`, :func:`recommend_weighting`), outliers
+:func:`variance_levels`), outliers
 (:func:`influence`, :func:`grubbs`), limits (:func:`detection_limits`,
 :func:`ich_limits`, :func:`iso11843_limits`, :func:`method_sd`), bands
 (:func:`mean_band`, :func:`prediction_band`) and two-curve comparison
@@ -49,8 +49,6 @@ if TYPE_CHECKING:
     from calib.fit.variance import (
         LevelVarianceTest,
         VarianceEndsTest,
-        WeightingAdvice,
-        recommend_weighting,
         variance_ends,
         variance_levels,
     )
@@ -73,7 +71,6 @@ _EXPORTS = {
     "ResponseFactors": "calib.fit.response_factor",
     "RunsTest": "calib.fit.residual_patterns",
     "VarianceEndsTest": "calib.fit.variance",
-    "WeightingAdvice": "calib.fit.variance",
     "compare_curves": "calib.fit.compare",
     "detection_limits": "calib.fit.limits",
     "fit_batch": "calib.fit.batch",
@@ -88,7 +85,6 @@ _EXPORTS = {
     "method_sd": "calib.fit.limits",
     "prediction_band": "calib.fit.bands",
     "quadratic_term": "calib.fit.linearity",
-    "recommend_weighting": "calib.fit.variance",
     "residual_drift": "calib.fit.residual_patterns",
     "residual_runs": "calib.fit.residual_patterns",
     "response_factors": "calib.fit.response_factor",
@@ -100,10 +96,10 @@ __all__ = [
     "BatchFit", "CoefficientRow", "CurveComparison", "CurveFit", "DetectionLimit", "DriftTest",
     "GrubbsResult", "Influence", "Iso11843Limits", "LackOfFit", "LevelVarianceTest",
     "MandelTest", "MethodSd", "QuadraticTerm", "ResponseFactors", "RunsTest",
-    "VarianceEndsTest", "WeightingAdvice", "compare_curves", "detection_limits", "fit_batch",
+    "VarianceEndsTest", "compare_curves", "detection_limits", "fit_batch",
     "fit_curve", "grubbs", "ich_limits", "influence", "iso11843_limits", "lack_of_fit",
     "mandel_test", "mean_band", "method_sd", "prediction_band", "quadratic_term",
-    "recommend_weighting", "residual_drift", "residual_runs", "response_factors",
+    "residual_drift", "residual_runs", "response_factors",
     "variance_ends", "variance_levels",
 ]
 

@@ -9,14 +9,12 @@ table), and small examples worked by hand.
 from __future__ import annotations
 
 import math
-import re
 
 import numpy as np
 import pytest
 from scipy import stats
 
-from calib.fit.variance import recommend_weighting, variance_ends, variance_levels
-from calib.options import Model, Weighting
+from calib.fit.variance import variance_ends, variance_levels
 
 
 def replicated(levels, n, *, cv=0.0, sd=0.0, seed=5, slope=2.0):
@@ -140,89 +138,3 @@ def test_variance_levels_not_made_says_why(x, y, reason) -> None:
 def test_wrong_center_is_refused() -> None:
     with pytest.raises(ValueError, match=r"^center must be one of median, mean; got 'trimmed'$"):
         variance_levels([1, 1, 2, 2], [1, 2, 3, 4], center="trimmed")
-
-
-# --- Weighting advice ---------------------------------------------------------------------------
-
-LEVELS = [1, 2, 5, 10, 50, 100, 500, 1000]
-
-
-def test_constant_relative_spread_gets_1_over_x2() -> None:
-    # Noise proportional to the response over three decades (the usual LC-MS case): weighting
-    # 1/x² makes the weighted residuals even and reads the low standards back best.
-    x, y = replicated(LEVELS, 3, cv=0.04, seed=12)
-    advice = recommend_weighting(x, y)
-    assert advice.recommended is Weighting.INV_X2
-    assert [c.weighting for c in advice.candidates] == [Weighting.NONE, Weighting.INV_X,
-                                                       Weighting.INV_X2]
-    none, inv_x2 = advice.candidate("none"), advice.candidate("1/x2")
-    assert not none.even and inv_x2.even
-    assert inv_x2.sum_abs_deviation_pct < none.sum_abs_deviation_pct
-    assert advice.explanation.startswith("1/x2 is recommended: the simplest weighting")
-    assert "Others: none: ratio" in advice.explanation
-
-
-def test_constant_spread_keeps_equal_weights() -> None:
-    # Constant SD over a narrow range: no weighting needed, and the simplest one wins.
-    x, y = replicated([2, 4, 6, 8, 10, 12], 4, sd=0.05, seed=4)
-    advice = recommend_weighting(x, y)
-    assert advice.recommended is Weighting.NONE
-    assert advice.candidate(Weighting.NONE).even
-
-
-def test_sums_by_hand_for_each_candidate() -> None:
-    # Each candidate's sum is Σ|100·(x̂ − x)/x| of its own curve, worked out here from the fit.
-    x, y = replicated(LEVELS, 2, cv=0.05, seed=2)
-    advice = recommend_weighting(x, y, candidates=["none", "1/x2", "1/y"])
-    for c in advice.candidates:
-        back = c.fit.back_calculate(y)
-        assert c.sum_abs_deviation_pct == pytest.approx(
-            np.sum(np.abs(100 * (back - x) / x)), rel=1e-12)
-        lower = x <= 10
-        e2 = c.fit.weights * c.fit.residuals**2
-        ratio = e2[~lower].mean() / e2[lower].mean()
-        assert c.spread == pytest.approx(max(ratio, 1 / ratio), rel=1e-12)
-        assert c.spread_limit == pytest.approx(stats.f.ppf(0.975, 8, 8), rel=1e-12)
-
-
-def test_candidates_that_cannot_use_a_standard_leave_it_out() -> None:
-    # A fitted blank at concentration 0: 1/x candidates leave it out (and say how many).
-    x, y = replicated([0, 1, 2, 5, 10, 20], 3, cv=0.03, sd=0.01, seed=6)
-    advice = recommend_weighting(x, y)
-    assert advice.candidate("none").left_out == 0
-    assert advice.candidate("1/x").left_out == 3 and advice.candidate("1/x").fit.n_points == 15
-
-
-def test_no_replicates_falls_back_to_the_deviations() -> None:
-    advice = recommend_weighting([1, 2, 3], [2.0, 4.1, 5.9], candidates=["none", "1/x"])
-    assert all(math.isnan(c.spread) for c in advice.candidates)
-    assert "too few levels or replicates to judge the spread" in advice.explanation
-
-
-def test_no_fittable_candidate() -> None:
-    advice = recommend_weighting([1, 2, 3], [2.0, 4.1, 5.9], candidates=["1/s2"])
-    assert advice.recommended is None
-    assert advice.explanation.startswith("No candidate weighting could be fitted (1/s2: ")
-
-
-@pytest.mark.parametrize(
-    ("kwargs", "message"),
-    [
-        ({"model": "mean-rf"}, ("model mean-rf averages the response factors with equal weight; "
-                               "there is no weighting to choose")),
-        ({"candidates": []}, "candidates must name at least one weighting"),
-        ({"candidates": ["1/z"]},
-         "candidates must be one of none, 1/x, 1/x2, 1/y, 1/y2, 1/s2; got '1/z'"),
-    ],
-)
-def test_recommend_weighting_wrong_arguments(kwargs, message) -> None:
-    with pytest.raises(ValueError, match=f"^{re.escape(message)}$"):
-        recommend_weighting([1, 2, 3, 4], [1.0, 2.0, 3.0, 4.0], **kwargs)
-
-
-def test_quadratic_candidates_are_fitted_as_quadratics() -> None:
-    x, y = replicated(LEVELS, 3, cv=0.03, seed=9)
-    y = y - 3e-4 * x**2
-    advice = recommend_weighting(x, y, model="quadratic")
-    assert advice.model is Model.QUADRATIC
-    assert all(c.fit.model is Model.QUADRATIC for c in advice.candidates)

@@ -20,7 +20,6 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special, stats
 
 from calib.fit.batch import BatchFit
 from calib.fit.batch_block import BLOCK_VALUES
@@ -31,6 +30,7 @@ from calib.fit.diagnostics_core import (
     lack_of_fit_reason,
     level_sums,
 )
+from calib.fit.distributions import f_isf, f_ppf, f_sf, t_isf
 from calib.fit.linearity import LackOfFit
 from calib.fit.outliers import Influence
 
@@ -92,7 +92,7 @@ class BatchInfluence:
         """t(1 − α/(2N), ν − 1) per curve: the critical value for the largest of N residuals."""
         q = check_alpha(alpha) / (2 * np.maximum(self.n_points, 1))
         with np.errstate(invalid="ignore"):
-            return np.where(self._judged, stats.t.isf(q, self.residual_df - 1), np.nan)
+            return np.where(self._judged, t_isf(q, self.residual_df - 1), np.nan)
 
     def suggested(self, alpha: float = 0.05) -> np.ndarray:
         """True where |studentized residual| exceeds :meth:`bonferroni_critical` (K, n)."""
@@ -104,7 +104,7 @@ class BatchInfluence:
     def cooks_reference(self) -> np.ndarray:
         """F(0.5; p, ν) per curve, the rule-of-thumb level of :meth:`influential`."""
         with np.errstate(invalid="ignore"):
-            return np.where(self._judged, stats.f.ppf(0.5, self.n_params, self.residual_df),
+            return np.where(self._judged, f_ppf(0.5, self.n_params, self.residual_df),
                             np.nan)
 
     def influential(self) -> np.ndarray:
@@ -175,7 +175,7 @@ class BatchLackOfFit:
         """F(1 − α; ν_lof, ν_pure) per curve."""
         with np.errstate(invalid="ignore"):
             return np.where(np.isnan(self.f_value), np.nan,
-                            stats.f.isf(check_alpha(alpha), self.df_lack, self.df_pure))
+                            f_isf(check_alpha(alpha), self.df_lack, self.df_pure))
 
     def significant(self, alpha: float = 0.05) -> np.ndarray:
         """True where p < α: the curve does not describe the level means."""
@@ -346,8 +346,7 @@ def batch_lack_of_fit(fit: BatchFit) -> BatchLackOfFit:
     with np.errstate(invalid="ignore", divide="ignore"):
         f_value = np.where(tested, (np.maximum(ss_lack, 0.0) / df_lack) / (pure / df_pure),
                            np.nan)
-        # special.fdtrc is what scipy.stats.f.sf evaluates, in one call for every curve.
-        p_value = np.where(tested, special.fdtrc(df_lack, df_pure, f_value), np.nan)
+        p_value = np.where(tested, f_sf(f_value, df_lack, df_pure), np.nan)
     arrays = [ss_lack, df_lack, pure + missing, df_pure, levels + missing,
               per_curve["weighted"].astype(bool) & ok, f_value, p_value]
     for a in arrays:

@@ -70,14 +70,16 @@ def test_quantify_of_a_run_file_asks_for_no_scipy_stats_or_optimize(tmp_path, sa
 
 
 def test_the_probe_sees_an_import(tmp_path):
-    # The hook itself: calib trend's control chart code imports scipy.stats at module level.
-    probe_args = ["-c", "import calib.archive.control"]
+    # The hook itself: the ISO 11843-2 limits find their non-centrality with scipy.optimize,
+    # imported inside calib.fit.limits when they are asked for.
+    probe_args = ["-c", "ISO 11843"]
     probe = tmp_path / "probe.py"
     probe.write_text(PROBE.replace("from calib.cli.main import main",
-                                   "def main(argv):\n    import calib.archive.control\n"
+                                   "def main(argv):\n    from calib.fit import limits\n"
+                                   "    limits._noncentrality(5, 0.05, 0.05)\n"
                                    "    return 0"), encoding="utf-8")
     env = dict(os.environ, PYTHONPATH=str(ROOT))
     done = subprocess.run([sys.executable, str(probe), *probe_args], capture_output=True,
                           text=True, env=env, check=False, timeout=120)
     asked = json.loads(done.stderr.rsplit("IMPORTS ", 1)[-1])["askers"]
-    assert asked.get("scipy.stats") == "archive/control.py"
+    assert asked.get("scipy.optimize") == "fit/limits.py"

@@ -273,7 +273,7 @@ class _Builder:
                 SEVERITIES.get(severity, severity or MISSING),
                 text_or_dash(c.get("detail")),
             ])
-        return self.tables.grid(rows, [0.235, 0.095, 0.07, 0.115, 0.105, 0.38], right=(1, 2),
+        return self.tables.grid(rows, [0.18, 0.14, 0.125, 0.1, 0.095, 0.36], right=(1, 2),
                                 bold=bold)
 
     def standards_table(self, curve: Mapping[str, Any]) -> list[Flowable]:

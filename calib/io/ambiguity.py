@@ -29,6 +29,7 @@ import dataclasses
 import math
 import statistics
 from collections.abc import Sequence
+from operator import attrgetter
 
 from calib.errors import InputError
 from calib.io.cells import Cell, to_text
@@ -332,6 +333,9 @@ def _in_time(own: Sequence[Point], split: tuple[float, float, float]) -> bool:
     return max(low) < min(high) or max(high) < min(low)  # type: ignore[type-var]
 
 
+_GROUPING = attrgetter("sample_type", "included", "response", "analyte", "concentration")
+
+
 def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
                       min_levels: int) -> None:
     """Refuse a curve whose every level holds two separate groups of responses.
@@ -352,9 +356,10 @@ def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
     """
     groups: dict[tuple[str, float], list[Point]] = {}
     standard, finite = SampleType.STANDARD, math.isfinite
-    for p in points:
-        if p.sample_type is standard and p.included and finite(p.response):
-            groups.setdefault((p.analyte, p.concentration), []).append(p)
+    for p, (kind, included, response, analyte, concentration) in zip(points,
+                                                                      map(_GROUPING, points)):
+        if kind is standard and included and finite(response):
+            groups.setdefault((analyte, concentration), []).append(p)
     by_level: dict[str, dict[float, list[Point]]] = {}
     for (analyte, concentration), own in groups.items():
         by_level.setdefault(analyte, {})[concentration] = own

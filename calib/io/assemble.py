@@ -22,6 +22,7 @@ import dataclasses
 import math
 from collections import Counter
 from collections.abc import Sequence
+from operator import attrgetter
 from pathlib import PurePath
 
 from calib.errors import InputError
@@ -110,19 +111,21 @@ def _range(grid: Grid, table: Table) -> str:
             f"{table.header.first_row + 1}:{column_letter(max(indices))}{last}")
 
 
+_LEVEL_KEYS = attrgetter("analyte", "sample_type", "concentration")
+_ANALYTE = attrgetter("analyte")
+_RESPONSE = attrgetter("response")
+
+
 def _check_levels(points: Sequence[Point], grids: Sequence[Grid], units: dict[str, dict[str, str]]
                   ) -> None:
     # One pass for the distinct concentrations; an analyte short of levels is looked at again.
-    concentrations: dict[str, set[float]] = {}
     standard = SampleType.STANDARD
-    for point in points:
-        own_levels = concentrations.setdefault(point.analyte, set())
-        if point.sample_type is standard:
-            own_levels.add(point.concentration)
+    pairs = {(a, c) for a, t, c in map(_LEVEL_KEYS, points) if t is standard}
+    counts = Counter(a for a, _ in pairs)
     grid = grids[0]
     sheet = grid.sheet if len(grids) == 1 else None
-    for analyte, distinct in concentrations.items():
-        if len(distinct) >= MIN_LEVELS:
+    for analyte in dict.fromkeys(map(_ANALYTE, points)):
+        if counts[analyte] >= MIN_LEVELS:
             continue
         own = [p for p in points if p.analyte == analyte]
         standards = [p for p in own if p.sample_type is SampleType.STANDARD]
@@ -161,7 +164,7 @@ def _set_aside_copies(points: list[Point], warnings: list[str]) -> None:
     :data:`COPY_DIGITS` or more significant digits.
     """
     # Responses rarely repeat: look at whole rows only where one does.
-    responses = [point.response for point in points]
+    responses = list(map(_RESPONSE, points))
     repeated = {value for value, count in Counter(responses).items()
                 if count > 1 and not math.isnan(value)}
     if not repeated:

@@ -12,8 +12,10 @@ the two cells is wrong; calib cannot tell which, so it stops.
 from __future__ import annotations
 
 import dataclasses
+import math
 from collections.abc import Sequence
 from itertools import pairwise
+from operator import attrgetter
 
 from calib.errors import InputError
 from calib.options import SampleType
@@ -23,6 +25,10 @@ __all__ = ["LEVEL_TOLERANCE", "check_level_labels", "merge_close_levels"]
 
 LEVEL_TOLERANCE = 1e-9
 """Relative difference under which two standard concentrations are one level."""
+
+
+_KEYS = attrgetter("sample_type", "analyte", "concentration")
+_LEVEL = attrgetter("level")
 
 
 def _close(a: float, b: float) -> bool:
@@ -48,9 +54,10 @@ def merge_close_levels(points: list[Point], warnings: list[str]) -> None:
     """
     standard = SampleType.STANDARD
     distinct: dict[str, set[float]] = {}
-    for point in points:
-        if point.sample_type is standard and point.concentration == point.concentration:
-            distinct.setdefault(point.analyte, set()).add(point.concentration)
+    # Each distinct (analyte, concentration) of the standards once (runs reach 10^5 points).
+    for analyte, concentration in {(a, c) for t, a, c in map(_KEYS, points) if t is standard}:
+        if not math.isnan(concentration):
+            distinct.setdefault(analyte, set()).add(concentration)
     near = set()
     for analyte, values in distinct.items():
         ordered = sorted(values)
@@ -108,6 +115,8 @@ def check_level_labels(points: Sequence[Point], *, file: str, sheet: str | None)
 the row of r.csv!C4, 8 in the row of r.csv!C5); expected one concentration per level: correct \
 the level label or the concentration in the file
     """
+    if all(level is None for level in set(map(_LEVEL, points))):
+        return  # no level labels (each distinct value tested once)
     seen: dict[tuple[str, str], dict[float, Point]] = {}
     for point in points:
         if point.sample_type is not SampleType.STANDARD or point.level is None:

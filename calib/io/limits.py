@@ -30,6 +30,9 @@ import io
 import struct
 import zipfile
 from dataclasses import dataclass
+from operator import attrgetter
+
+import numpy as np
 
 from calib.errors import InputError
 from calib.io.files import RawFile
@@ -310,7 +313,10 @@ def check_magnitudes(points: object, *, file: str) -> None:
         :data:`LARGEST_VALUE` or non-zero and smaller than its inverse.
     """
     low = 1.0 / LARGEST_VALUE
-    for point in points:  # type: ignore[attr-defined]
+    points = points if isinstance(points, (list, tuple)) else list(points)  # type: ignore
+    if _all_in_range(points, low):
+        return  # the usual run: one pass per value over arrays, no point looked at alone
+    for point in points:
         for name, words in _VALUES:
             value = getattr(point, name, None)
             if value is None or value != value:
@@ -510,3 +516,23 @@ def check_xls(raw: RawFile, *, what: str = "an .xls workbook") -> None:
                                 f"an .xls sheet can hold")
     if rows * columns > MAX_CELLS:
         raise _too_many_cells(raw, Extent(rows, columns))
+
+
+def _all_in_range(points: list[object] | tuple[object, ...], low: float) -> bool:
+    """True when every value of every point is missing, NaN, zero or of a usable magnitude.
+
+    The values of each kind are tested as one array; False (look point by point) also when
+    a value cannot be put in a float array (an integer too large for a float, say).
+    """
+    for name, _ in _VALUES:
+        try:
+            values = [v for v in map(attrgetter(name), points) if v is not None]
+            sizes = np.abs(np.array(values, dtype=float))
+        except (AttributeError, OverflowError, TypeError, ValueError):
+            return False
+        with np.errstate(invalid="ignore"):
+            usable = np.isnan(sizes) | ((sizes <= LARGEST_VALUE) & (
+                (sizes >= low) | (sizes == 0.0)))
+        if not usable.all():
+            return False
+    return True

@@ -111,21 +111,18 @@ def _range(grid: Grid, table: Table) -> str:
             f"{table.header.first_row + 1}:{column_letter(max(indices))}{last}")
 
 
-_LEVEL_KEYS = attrgetter("analyte", "sample_type", "concentration")
 _ANALYTE = attrgetter("analyte")
 _RESPONSE = attrgetter("response")
 
 
-def _check_levels(points: Sequence[Point], grids: Sequence[Grid], units: dict[str, dict[str, str]]
-                  ) -> None:
-    # One pass for the distinct concentrations; an analyte short of levels is looked at again.
-    standard = SampleType.STANDARD
-    pairs = {(a, c) for a, t, c in map(_LEVEL_KEYS, points) if t is standard}
-    counts = Counter(a for a, _ in pairs)
+def _check_levels(points: Sequence[Point], grids: Sequence[Grid], units: dict[str, dict[str, str]],
+                  counts: dict[str, int]) -> None:
+    # ``counts``: distinct concentrations of each analyte's standards (merge_close_levels);
+    # an analyte short of levels is looked at again.
     grid = grids[0]
     sheet = grid.sheet if len(grids) == 1 else None
     for analyte in dict.fromkeys(map(_ANALYTE, points)):
-        if counts[analyte] >= MIN_LEVELS:
+        if counts.get(analyte, 0) >= MIN_LEVELS:
             continue
         own = [p for p in points if p.analyte == analyte]
         standards = [p for p in own if p.sample_type is SampleType.STANDARD]
@@ -335,9 +332,9 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
     renamed = normalise_analytes(triples, points, all_warnings, file=grids[0].file, sheet=sheet)
     units = {renamed.get(name, name): own for name, own in units.items()}
     check_unlabelled_summary(points, file=grids[0].file, sheet=sheet)
-    merge_close_levels(points, all_warnings)
+    levels = merge_close_levels(points, all_warnings)
     check_level_labels(points, file=grids[0].file, sheet=sheet)
-    _check_levels(points, grids, units)
+    _check_levels(points, grids, units, levels)
     _set_aside_copies(points, all_warnings)
     check_replicates(triples, points, imap=imap)
     check_populations(points, file=grids[0].file, sheet=sheet, min_levels=MIN_LEVELS)

@@ -162,6 +162,8 @@ def _set_aside_copies(points: list[Point], warnings: list[str]) -> None:
     """
     # Responses rarely repeat: look at whole rows only where one does.
     responses = list(map(_RESPONSE, points))
+    if len(set(responses)) == len(responses):
+        return  # no response written twice (NaNs are distinct objects too)
     repeated = {value for value, count in Counter(responses).items()
                 if count > 1 and not math.isnan(value)}
     if not repeated:

@@ -105,7 +105,7 @@ def find_summary_rows(grid: Grid, table: Table, *, cut: BodyColumns | None = Non
         column, value = marked[index]
         found[index] = (f"{grid.reference(column, index)}: row {index + 1} is a summary "
                         f"row ({value.strip()!r}), not an injection; it was set aside")
-    data = [index for index in body if index not in marked]
+    data = [index for index in body if index not in marked] if marked else list(body)
     shared = table.header.shared
     for name in ("sample_id", "level"):
         if name in shared:

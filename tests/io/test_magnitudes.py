@@ -1,4 +1,4 @@
-"""check_magnitudes: the whole-array test of a run agrees with the point-by-point rule.
+"""check_magnitudes: the whole-run pass agrees with the point-by-point rule.
 
 The rule (calib.io.limits.LARGEST_VALUE): a concentration or response is usable when it is
 missing, NaN, zero, or of magnitude between 1/LARGEST_VALUE and LARGEST_VALUE.  The bounds are

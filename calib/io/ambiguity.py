@@ -29,6 +29,8 @@ import dataclasses
 import math
 import statistics
 from collections.abc import Sequence
+from itertools import repeat
+from operator import attrgetter, is_
 
 from calib.errors import InputError
 from calib.io.cells import Cell, to_text
@@ -324,6 +326,12 @@ def _in_time(own: Sequence[Point], split: tuple[float, float, float]) -> bool:
     return max(low) < min(high) or max(high) < min(low)  # type: ignore[type-var]
 
 
+_GROUPING = attrgetter("sample_type", "included", "response")
+_KIND, _INCLUDED, _RESPONSE = (attrgetter(name) for name in ("sample_type", "included",
+                                                               "response"))
+_ANALYTE, _CONCENTRATION = attrgetter("analyte"), attrgetter("concentration")
+
+
 def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
                       min_levels: int) -> None:
     """Refuse a curve whose every level holds two separate groups of responses.
@@ -344,9 +352,15 @@ def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
     """
     groups: dict[tuple[str, float], list[Point]] = {}
     standard, finite = SampleType.STANDARD, math.isfinite
-    for p in points:
-        if p.sample_type is standard and p.included and finite(p.response):
-            groups.setdefault((p.analyte, p.concentration), []).append(p)
+    keys = zip(map(_ANALYTE, points), map(_CONCENTRATION, points))
+    if all(map(is_, map(_KIND, points), repeat(standard))) and all(
+            map(_INCLUDED, points)) and all(map(finite, map(_RESPONSE, points))):
+        for p, key in zip(points, keys):  # every point counts (the usual run)
+            groups.setdefault(key, []).append(p)
+    else:
+        for p, key, (kind, included, response) in zip(points, keys, map(_GROUPING, points)):
+            if kind is standard and included and finite(response):
+                groups.setdefault(key, []).append(p)
     by_level: dict[str, dict[float, list[Point]]] = {}
     for (analyte, concentration), own in groups.items():
         by_level.setdefault(analyte, {})[concentration] = own

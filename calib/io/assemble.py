@@ -22,6 +22,7 @@ import dataclasses
 import math
 from collections import Counter
 from collections.abc import Sequence
+from operator import attrgetter
 from pathlib import PurePath
 
 from calib.errors import InputError
@@ -110,19 +111,18 @@ def _range(grid: Grid, table: Table) -> str:
             f"{table.header.first_row + 1}:{column_letter(max(indices))}{last}")
 
 
-def _check_levels(points: Sequence[Point], grids: Sequence[Grid], units: dict[str, dict[str, str]]
-                  ) -> None:
-    # One pass for the distinct concentrations; an analyte short of levels is looked at again.
-    concentrations: dict[str, set[float]] = {}
-    standard = SampleType.STANDARD
-    for point in points:
-        own_levels = concentrations.setdefault(point.analyte, set())
-        if point.sample_type is standard:
-            own_levels.add(point.concentration)
+_ANALYTE = attrgetter("analyte")
+_RESPONSE = attrgetter("response")
+
+
+def _check_levels(points: Sequence[Point], grids: Sequence[Grid], units: dict[str, dict[str, str]],
+                  counts: dict[str, int]) -> None:
+    # ``counts``: distinct concentrations of each analyte's standards (merge_close_levels);
+    # an analyte short of levels is looked at again.
     grid = grids[0]
     sheet = grid.sheet if len(grids) == 1 else None
-    for analyte, distinct in concentrations.items():
-        if len(distinct) >= MIN_LEVELS:
+    for analyte in dict.fromkeys(map(_ANALYTE, points)):
+        if counts.get(analyte, 0) >= MIN_LEVELS:
             continue
         own = [p for p in points if p.analyte == analyte]
         standards = [p for p in own if p.sample_type is SampleType.STANDARD]
@@ -161,7 +161,9 @@ def _set_aside_copies(points: list[Point], warnings: list[str]) -> None:
     :data:`_COPY_DIGITS` or more significant digits.
     """
     # Responses rarely repeat: look at whole rows only where one does.
-    responses = [point.response for point in points]
+    responses = list(map(_RESPONSE, points))
+    if len(set(responses)) == len(responses):
+        return  # no response written twice (NaNs are distinct objects too)
     repeated = {value for value, count in Counter(responses).items()
                 if count > 1 and not math.isnan(value)}
     if not repeated:
@@ -332,9 +334,9 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
     renamed = normalise_analytes(triples, points, all_warnings, file=grids[0].file, sheet=sheet)
     units = {renamed.get(name, name): own for name, own in units.items()}
     check_unlabelled_summary(points, file=grids[0].file, sheet=sheet)
-    merge_close_levels(points, all_warnings)
+    levels = merge_close_levels(points, all_warnings)
     check_level_labels(points, file=grids[0].file, sheet=sheet)
-    _check_levels(points, grids, units)
+    _check_levels(points, grids, units, levels)
     _set_aside_copies(points, all_warnings)
     check_replicates(triples, points, imap=imap)
     check_populations(points, file=grids[0].file, sheet=sheet, min_levels=MIN_LEVELS)

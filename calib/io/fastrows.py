@@ -222,7 +222,9 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
             bad.update(at for at, value in enumerate(flags) if value is not True)
     if "exclusion_reason" in index:
         reasons = column(index["exclusion_reason"])
-        bad.update(at for at, value in enumerate(reasons) if not (value is None or value == ""))
+        if set(reasons) - {None, ""}:  # each distinct cell looked at once
+            bad.update(at for at, value in enumerate(reasons)
+                       if not (value is None or value == ""))
     replicates = orders = [None] * n
     if "replicate" in index:
         replicates = _whole_numbers(column(index["replicate"]))

@@ -12,8 +12,10 @@ the two cells is wrong; calib cannot tell which, so it stops.
 from __future__ import annotations
 
 import dataclasses
+import math
 from collections.abc import Sequence
 from itertools import pairwise
+from operator import attrgetter
 
 from calib.errors import InputError
 from calib.options import SampleType
@@ -25,14 +27,31 @@ _LEVEL_TOLERANCE = 1e-9
 """Relative difference under which two standard concentrations are one level."""
 
 
+_KEYS = attrgetter("sample_type", "analyte", "concentration")
+_LEVEL = attrgetter("level")
+
+
 def _close(a: float, b: float) -> bool:
     return abs(a - b) <= _LEVEL_TOLERANCE * max(abs(a), abs(b))
 
 
-def merge_close_levels(points: list[Point], warnings: list[str]) -> None:
+def _standard_levels(points: Sequence[Point]) -> dict[str, set[float]]:
+    """The distinct concentrations (NaN left out) of each analyte's standards."""
+    standard = SampleType.STANDARD
+    distinct: dict[str, set[float]] = {}
+    # Each distinct (analyte, concentration) of the standards once (runs reach 10^5 points).
+    for analyte, concentration in {(a, c) for t, a, c in map(_KEYS, points) if t is standard}:
+        if not math.isnan(concentration):
+            distinct.setdefault(analyte, set()).add(concentration)
+    return distinct
+
+
+def merge_close_levels(points: list[Point], warnings: list[str]) -> dict[str, int]:
     """Read standard concentrations within :data:`_LEVEL_TOLERANCE` of each other as one.
 
     ``points`` is changed in place; a note per merged level is appended to ``warnings``.
+    Returns the number of distinct concentrations (NaN left out) of each analyte's
+    standards, once merged.
 
     Examples
     --------
@@ -40,6 +59,7 @@ def merge_close_levels(points: list[Point], warnings: list[str]) -> None:
     ...        enumerate([10.0, 999.9999999999999, 1000.0])]
     >>> notes = []
     >>> merge_close_levels(pts, notes)
+    {'Cu': 2}
     >>> [p.concentration for p in pts]
     [10.0, 1000.0, 1000.0]
     >>> print(notes[0])
@@ -47,17 +67,14 @@ def merge_close_levels(points: list[Point], warnings: list[str]) -> None:
 1e-09 relative and were read as one level, 1000
     """
     standard = SampleType.STANDARD
-    distinct: dict[str, set[float]] = {}
-    for point in points:
-        if point.sample_type is standard and point.concentration == point.concentration:
-            distinct.setdefault(point.analyte, set()).add(point.concentration)
+    distinct = _standard_levels(points)
     near = set()
     for analyte, values in distinct.items():
         ordered = sorted(values)
         if any(_close(a, b) for a, b in pairwise(ordered)):
             near.add(analyte)
-    if not near:
-        return  # the usual run: no two levels of an analyte are that close
+    if not near:  # the usual run: no two levels of an analyte are that close
+        return {analyte: len(values) for analyte, values in distinct.items()}
     by_analyte: dict[str, list[int]] = {}
     for index, point in enumerate(points):
         if point.sample_type is standard and point.concentration == point.concentration \
@@ -87,6 +104,7 @@ def merge_close_levels(points: list[Point], warnings: list[str]) -> None:
             warnings.append(
                 f"{analyte}: the concentrations {' and '.join(shown)} differ by less than "
                 f"{_LEVEL_TOLERANCE:g} relative and were read as one level, {chosen:g}")
+    return {analyte: len(values) for analyte, values in _standard_levels(points).items()}
 
 
 def check_level_labels(points: Sequence[Point], *, file: str, sheet: str | None) -> None:
@@ -108,6 +126,8 @@ def check_level_labels(points: Sequence[Point], *, file: str, sheet: str | None)
 the row of r.csv!C4, 8 in the row of r.csv!C5); expected one concentration per level: correct \
 the level label or the concentration in the file
     """
+    if all(level is None for level in set(map(_LEVEL, points))):
+        return  # no level labels (each distinct value tested once)
     seen: dict[tuple[str, str], dict[float, Point]] = {}
     for point in points:
         if point.sample_type is not SampleType.STANDARD or point.level is None:

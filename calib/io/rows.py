@@ -462,7 +462,7 @@ class _TableReader:
                     (f"the internal standard of {point.analyte}", f"{is_prefix}{index + 1}",
                      point.is_response, point.sample_id)
                     for point, index in zip(plan, body) if point is not None)
-            points.extend(point for point in plan if point is not None)
+            points.extend(plan)  # every row plain: no None among them
             at_rows.extend(body)
             plan, body = None, range(0)
         for index in body:

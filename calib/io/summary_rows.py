@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from operator import attrgetter
 
 from calib.errors import InputError
 from calib.io.cells import Cell, is_blank
@@ -103,7 +104,7 @@ def find_summary_rows(grid: Grid, table: Table, *, cut: BodyColumns | None = Non
         column, value = marked[index]
         found[index] = (f"{grid.reference(column, index)}: row {index + 1} is a summary "
                         f"row ({value.strip()!r}), not an injection; it was set aside")
-    data = [index for index in body if index not in marked]
+    data = [index for index in body if index not in marked] if marked else list(body)
     shared = table.header.shared
     for name in ("sample_id", "level"):
         if name in shared:
@@ -159,6 +160,9 @@ _SUMMARY_TOLERANCE = 1e-4
 (a summary row is usually written rounded, to 4 or 5 significant digits)."""
 
 
+_SAMPLE_ID = attrgetter("sample_id")
+
+
 def check_unlabelled_summary(points: Sequence[Point], *, file: str, sheet: str | None) -> None:
     """Refuse a last standard whose concentration and response are the others' mean or sum.
 
@@ -184,6 +188,8 @@ def check_unlabelled_summary(points: Sequence[Point], *, file: str, sheet: str |
 it (concentration 4.5, response 0.9025): a summary row, not an injection; delete it from the \
 export
     """
+    if None not in set(map(_SAMPLE_ID, points)):
+        return  # every row has a sample name (each distinct name tested once)
     by_analyte: dict[str, list[Point]] = {}
     for point in points:
         if point.sample_type is SampleType.STANDARD and point.sample_id is None and \

@@ -15,6 +15,7 @@ from calib.fit.bands import mean_band, prediction_band, weight_at
 from calib.fit.batch_block import StackFit, fit_stack
 from calib.fit.design import (
     COEFFICIENTS,
+    design_matrix,
     level_variances,
     raw_weights,
     variance_function,
@@ -308,8 +309,9 @@ class CurveFit(Tabular):
         return tuple(rows)
 
     def predict(self, x: np.ndarray | float) -> np.ndarray:
-        """Fitted response ŷ at concentrations ``x``."""
-        return mean_band(self.model, self._beta, self.covariance, 0.0, x)[0]
+        """Fitted response ŷ at concentrations ``x`` (g(x)ᵀβ, as :func:`~calib.fit.bands.mean_band`
+        computes it, without the band)."""
+        return design_matrix(np.atleast_1d(np.asarray(x, dtype=float)), self.model) @ self._beta
 
     def confidence_band(self, x: np.ndarray, confidence: float | None = None) -> np.ndarray:
         """Half-width of the confidence band of the mean response at ``x``.

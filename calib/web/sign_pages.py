@@ -24,7 +24,7 @@ __all__ = ["sign_archived", "sign_issued", "sign_page", "sign_post", "verify_pag
 
 async def sign_page(request: Request) -> Response:
     signed_in = auth.acting_name(request)
-    return _render(request, "sign_user.html" if signed_in else "sign.html", signer=signed_in)
+    return _render(request, "sign.html", signer=signed_in)
 
 
 async def sign_post(request: Request) -> Response:

@@ -386,7 +386,14 @@ class _TableReader:
         remark = squash(column.header) in _REMARK_HEADINGS or squash(
             column.header.split("(")[0]) in _REMARK_HEADINGS
         if remark and ("include" not in self.index or not is_blank(flag)):
-            return  # a remark beside an explicit yes, or a comments column without include
+            # A remark beside an explicit yes, or a comments column without include: the row is
+            # used as it stands, and the remark is said, never dropped.
+            cell = f"{self.cell_prefix[column.index]}{row_index + 1}"
+            self.result.warnings.append(
+                f"{cell}: the remark {text!r} is shown here only; the row is used as it stands "
+                f"(calib does not read remarks as exclusions; to leave a point out, say so in an "
+                f"include column or with --exclude, by cell or sample name)")
+            return
         if "include" not in self.index:
             marked = "the table has no include column, so the row counts as included"
         elif is_blank(flag):

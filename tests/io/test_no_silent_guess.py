@@ -65,6 +65,19 @@ def test_a_remark_beside_an_explicit_yes_is_kept_as_a_remark(write_csv):
     run = read_run(write_csv(text))
     assert [p.included for p in run.points] == [True, True, False, True]
     assert run.points[2].exclusion_reason == "carry-over"
+    # The remark on the included row is not lost: the run says it, with its cell.
+    assert any("D2: the remark 'new vial' is shown here only; the row is used as it stands" in w
+               for w in run.warnings), run.warnings
+
+
+def test_a_comments_column_without_include_keeps_rows_and_says_each_remark(write_csv):
+    # A remark is not an exclusion (the guide: ambiguity is refused or said, data never lost).
+    text = "Conc (mg/L),Area,Comment\n0.5,0.1,\n1,0.2,injection failed\n2,0.4,\n5,1.0,\n"
+    run = read_run(write_csv(text))
+    assert all(p.included for p in run.points)
+    (note,) = [w for w in run.warnings if "the remark" in w]
+    assert "C3: the remark 'injection failed' is shown here only" in note
+    assert "--exclude" in note
 
 
 def test_a_remark_beside_an_empty_include_cell_is_refused(write_csv):

@@ -79,11 +79,32 @@ def _key(text: str) -> str:
 
 
 def _split_pair(text: str) -> tuple[str, str] | None:
+    """``key, value`` of a one-cell line, or None.
+
+    A colon between two digits is part of a time or a ratio, not a separator:
+
+    >>> _split_pair("Injected at: 17:02")
+    ('Injected at', '17:02')
+    >>> _split_pair("Printed 2026-12-01 17:02 by the data system") is None
+    True
+    """
     for separator in _SEPARATORS:
-        key, found, value = text.partition(separator)
-        if found and key.strip() and value.strip() and len(key) <= 60:
+        at = _separator_at(text, separator)
+        if at < 0:
+            continue
+        key, value = text[:at], text[at + 1:]
+        if key.strip() and value.strip() and len(key) <= 60:
             return key, value.strip()
     return None
+
+
+def _separator_at(text: str, separator: str) -> int:
+    """Index of the first ``separator`` in ``text`` (a colon not between two digits), or -1."""
+    at = text.find(separator)
+    while separator == ":" and 0 < at < len(text) - 1 and text[at - 1].isdigit() \
+            and text[at + 1].isdigit():
+        at = text.find(separator, at + 1)
+    return at
 
 
 def _pairs(texts: list[str]) -> list[tuple[str, str]] | None:

@@ -6,12 +6,15 @@ downstream (fitting, checks, records) works on this form only.
 
 from __future__ import annotations
 
-from collections.abc import Iterable
-from dataclasses import dataclass, field
+from collections.abc import Iterable, Iterator, MutableSequence, Sequence
+from dataclasses import dataclass, field, fields
+from operator import attrgetter
+from typing import Any, overload
 
 from calib.options import SampleType
 
-__all__ = ["Point", "Run", "SourceInfo", "response_basis"]
+__all__ = ["Point", "PointColumns", "Run", "SourceInfo", "held_points", "point_values",
+           "response_basis"]
 
 
 @dataclass(frozen=True)
@@ -70,6 +73,149 @@ class Point:
     level: str | None = None
 
 
+_FIELDS = tuple(f.name for f in fields(Point))
+
+
+def _made(rows: Iterable[tuple[Any, ...]]) -> list[Point]:
+    """``[Point(*values) for values in rows]``, made without the frozen dataclass's guarded
+    assignment of each field (the values are in field order and already checked; each point
+    is equal to, hashes and prints as the one ``Point(*values)`` makes)."""
+    made: list[Point] = []
+    append, new, names = made.append, object.__new__, _FIELDS
+    for values in rows:
+        point = new(Point)
+        point.__dict__.update(zip(names, values))
+        append(point)
+    return made
+
+
+class PointColumns(MutableSequence[Point]):
+    """Points held as one list per field: a sequence of :class:`Point` made on demand.
+
+    A long export holds 10^5 injections; checking them a field at a time over
+    lists costs a fraction of making and reading 10^5 objects.  The readers
+    build a run's points so, the import checks read :meth:`column`, and a
+    :class:`Point` is made only when one is asked for (``columns[i]``,
+    iterating).  Setting ``columns[i] = point`` writes the point's fields back.
+
+    The source cells of a block of rows may be given as a column prefix and
+    a first row (``"Run!E"``, 8): the text of each is made when first read.
+
+    Examples
+    --------
+    >>> cols = PointColumns.from_points([Point("Zn", 1.0, 10.0, "A2"), Point("Zn", 2.0, 21.0, "A3")])
+    >>> cols.column("response"), cols[1].source_cell, len(cols)
+    ([10.0, 21.0], 'A3', 2)
+    >>> cols[0] = Point("Cu", 1.0, 10.0, "A2")
+    >>> cols.column("analyte"), cols.points() == [cols[0], cols[1]]
+    (['Cu', 'Zn'], True)
+    """
+
+    def __init__(self, columns: dict[str, list[Any]] | None = None, *,
+                 cells: tuple[str, int] | None = None) -> None:
+        self._columns: dict[str, list[Any]] = {name: [] for name in _FIELDS}
+        self._cells = cells  # (prefix, first 1-based row) of cells not yet written out
+        if columns is not None:
+            self._columns.update(columns)
+        lengths = {len(values) for name, values in self._columns.items()
+                   if not (cells is not None and name == "source_cell")}
+        if len(lengths) > 1:
+            raise ValueError(f"columns of different lengths: {sorted(lengths)}")
+        self._length = lengths.pop() if lengths else 0
+
+    @classmethod
+    def from_points(cls, points: Iterable[Point]) -> PointColumns:
+        """The columns of ``points`` (or ``points`` itself when it is a :class:`PointColumns`)."""
+        if isinstance(points, PointColumns):
+            return points
+        points = points if isinstance(points, (list, tuple)) else list(points)
+        return cls({name: list(map(attrgetter(name), points)) for name in _FIELDS})
+
+    def column(self, name: str) -> list[Any]:
+        """Field ``name`` of every point, in order (a shared list: read it, never change it)."""
+        if name == "source_cell" and self._cells is not None:
+            prefix, first = self._cells
+            self._columns[name] = [f"{prefix}{row}" for row in range(first, first + self._length)]
+            self._cells = None
+        return self._columns[name]
+
+    def points(self) -> list[Point]:
+        """Every point, made at once."""
+        return _made(zip(*(self.column(name) for name in _FIELDS)))
+
+    def __len__(self) -> int:
+        return self._length
+
+    @overload
+    def __getitem__(self, index: int) -> Point: ...
+
+    @overload
+    def __getitem__(self, index: slice) -> list[Point]: ...
+
+    def __getitem__(self, index: int | slice) -> Point | list[Point]:
+        if isinstance(index, slice):
+            return _made(zip(*(self.column(name)[index] for name in _FIELDS)))
+        if not -self._length <= index < self._length:
+            raise IndexError("point index out of range")
+        return _made([tuple(self.column(name)[index] for name in _FIELDS)])[0]
+
+    def __setitem__(self, index: int, point: Point) -> None:  # type: ignore[override]
+        if not -self._length <= index < self._length:
+            raise IndexError("point index out of range")
+        for name in _FIELDS:
+            self.column(name)[index] = getattr(point, name)
+
+    def __delitem__(self, index: int | slice) -> None:
+        for name in _FIELDS:
+            del self.column(name)[index]
+        self._length = len(self._columns["analyte"])
+
+    def insert(self, index: int, point: Point) -> None:
+        for name in _FIELDS:
+            self.column(name).insert(index, getattr(point, name))
+        self._length += 1
+
+    def extend(self, points: Iterable[Point]) -> None:
+        """Append ``points`` (another :class:`PointColumns`: a field at a time)."""
+        other = PointColumns.from_points(points)
+        if not self._length:  # the usual case: the one table of a run
+            self._columns = {name: list(values) for name, values in other._columns.items()}
+            self._cells, self._length = other._cells, len(other)
+            return
+        for name in _FIELDS:
+            self.column(name).extend(other.column(name))
+        self._length += len(other)
+
+    def __iter__(self) -> Iterator[Point]:
+        for start in range(0, self._length, 4096):  # made a block at a time
+            yield from self[start:start + 4096]
+
+    def __eq__(self, other: object) -> bool:
+        if isinstance(other, PointColumns):
+            return self.points() == other.points()
+        if isinstance(other, (list, tuple)):
+            return self.points() == list(other)
+        return NotImplemented
+
+    __hash__ = None  # type: ignore[assignment] - mutable
+
+    def __repr__(self) -> str:
+        return f"PointColumns({self.points()!r})"
+
+
+def point_values(points: Sequence[Point], name: str) -> list[Any]:
+    """Field ``name`` of every point, in order; read from the column when ``points`` is held so.
+
+    Examples
+    --------
+    >>> point_values([Point("Zn", 1.0, 10.0, "A2")], "concentration")
+    [1.0]
+    """
+    if isinstance(points, PointColumns):
+        return points.column(name)
+    return list(map(attrgetter(name), points))
+
+
 def response_basis(points: Iterable[Point]) -> str:
     """``ratio`` when the points' responses are ratios to an internal standard, else ``raw``.
 
@@ -126,6 +272,29 @@ class SourceInfo:
     ignored_columns: tuple[str, ...] = ()
 
 
+class _HeldPoints:
+    """The ``points`` field of :class:`Run`: a tuple of :class:`Point` when read.
+
+    A reader hands the run its :class:`PointColumns`; the points are made the
+    first time ``run.points`` is read (the import checks and
+    :meth:`Run.column` read the columns without making them).
+    """
+
+    def __get__(self, run: object, owner: type | None = None) -> tuple[Point, ...]:
+        if run is None:
+            raise AttributeError("points")  # the field has no default
+        held = run.__dict__["_held_points"]
+        if isinstance(held, PointColumns):
+            held = run.__dict__["_held_points"] = tuple(held.points())
+        return held  # type: ignore[no-any-return]
+
+    def __set__(self, run: object, points: Iterable[Point]) -> None:
+        if run.__dict__.get("_held_points") is not None:
+            raise AttributeError("cannot assign to field 'points'")
+        run.__dict__["_held_points"] = points if isinstance(points, (tuple, PointColumns)) \
+            else tuple(points)
+
+
 @dataclass(frozen=True)
 class Run:
     """A run as read from one file.
@@ -150,7 +319,7 @@ class Run:
     """
 
     source: SourceInfo
-    points: tuple[Point, ...]
+    points: tuple[Point, ...] = _HeldPoints()  # type: ignore[assignment]
     metadata: dict[str, str] = field(default_factory=dict)
     units: dict[str, str] = field(default_factory=dict)
     analyte_units: dict[str, dict[str, str]] = field(default_factory=dict)
@@ -159,7 +328,18 @@ class Run:
     @property
     def analytes(self) -> tuple[str, ...]:
         """Analyte names in order of first appearance."""
-        return tuple(dict.fromkeys(p.analyte for p in self.points))
+        return tuple(dict.fromkeys(self.column("analyte")))
+
+    def column(self, name: str) -> list[Any]:
+        """Field ``name`` of every point, in file order (read it, never change it).
+
+        Examples
+        --------
+        >>> run = Run(SourceInfo("z.csv", "0" * 64), (Point("Zn", 1.0, 10.0, "z.csv!B2"),))
+        >>> run.column("response"), run.column("source_cell")
+        ([10.0], ['z.csv!B2'])
+        """
+        return point_values(held_points(self), name)
 
     def units_of(self, analyte: str) -> dict[str, str]:
         """Units of one analyte's columns: the run's shared units, then its own."""
@@ -172,3 +352,9 @@ class Run:
             for p in self.points
             if p.analyte == analyte and p.sample_type is SampleType.STANDARD
         )
+
+
+def held_points(run: Run) -> Sequence[Point]:
+    """The points of ``run`` as held: the reader's :class:`PointColumns` until
+    ``run.points`` is first read (nothing is made), else the tuple."""
+    return run.__dict__["_held_points"]  # type: ignore[no-any-return]

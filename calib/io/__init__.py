@@ -47,7 +47,7 @@ from calib.io.importmap import ImportMap, load_map
 from calib.io.limits import check_magnitudes
 from calib.io.summary import describe_import
 from calib.io.workbook import WorkbookReader
-from calib.run import Run
+from calib.run import Run, held_points
 
 __all__ = ["READERS", "ImportMap", "Reader", "describe_import", "load_map", "read_run"]
 
@@ -164,7 +164,7 @@ def read_run(
                 else:
                     run = reader.read(checked, sheet=sheet, analyte=analyte,
                                       map=imap)  # type: ignore[call-arg]
-            check_magnitudes(run.points, file=str(checked))
+            check_magnitudes(held_points(run), file=str(checked))
             return run
     supported = ", ".join(s for reader in readers for s in reader.suffixes)
     found = f"the file type {suffix!r}" if suffix else "a file name without an extension"

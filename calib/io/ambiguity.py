@@ -30,7 +30,7 @@ import math
 import statistics
 from collections.abc import Sequence
 from itertools import repeat
-from operator import attrgetter, is_
+from operator import is_
 
 from calib.errors import InputError
 from calib.io.cells import Cell, to_text
@@ -40,7 +40,7 @@ from calib.io.layout import Table
 from calib.io.rows import TableRead
 from calib.io.table import Grid
 from calib.options import SampleType
-from calib.run import Point
+from calib.run import Point, point_values
 
 __all__ = ["check_populations", "check_replicates", "ignored_columns", "promote", "split_column"]
 
@@ -136,22 +136,26 @@ def _candidates(grid: Grid, table: Table, imap: ImportMap | None) -> list[tuple[
             and _heading_key(text) not in skip]
 
 
-def _standards_by_analyte(read: TableRead) -> dict[str, list[tuple[Point, int]]]:
-    found: dict[str, list[tuple[Point, int]]] = {}
-    for point, row in zip(read.points, read.rows, strict=True):
-        if point.sample_type is SampleType.STANDARD:
-            found.setdefault(point.analyte, []).append((point, row))
+def _standards_by_analyte(read: TableRead) -> dict[str, list[tuple[float, int]]]:
+    """(concentration, row) of each standard, by analyte."""
+    found: dict[str, list[tuple[float, int]]] = {}
+    standard = SampleType.STANDARD
+    for kind, analyte, concentration, row in zip(
+            point_values(read.points, "sample_type"), point_values(read.points, "analyte"),
+            point_values(read.points, "concentration"), read.rows, strict=True):
+        if kind is standard:
+            found.setdefault(analyte, []).append((concentration, row))
     return found
 
 
-def _split(grid: Grid, index: int, standards: list[tuple[Point, int]], *, analyte_like: bool,
+def _split(grid: Grid, index: int, standards: list[tuple[float, int]], *, analyte_like: bool,
            min_levels: int) -> dict[str, set[float]] | None:
     """The column's values, each with its concentrations, when they split one curve."""
     groups: dict[str, set[float]] = {}
-    for point, row in standards:
+    for concentration, row in standards:
         value = _value(grid.rows[row], index)
         if value is not None:
-            groups.setdefault(value, set()).add(point.concentration)
+            groups.setdefault(value, set()).add(concentration)
     if len(groups) < 2:
         return None
     if not analyte_like and not any(ch.isalpha() for value in groups for ch in value):
@@ -257,26 +261,34 @@ def check_replicates(reads: Sequence[tuple[Grid, Table, TableRead]], points: Seq
         Naming the analyte, the level, the cells and what to do.
     """
     start = 0
+    columns = {name: point_values(points, name) for name in (
+        "analyte", "concentration", "replicate", "sample_id", "injection_order", "sample_type",
+        "exclusion_reason")}
+    standard = SampleType.STANDARD
     for grid, table, read in reads:
-        own = points[start:start + len(read.points)]
-        start += len(read.points)
-        orders = [point.injection_order for point in own]
+        stop = start + len(read.points)
+        orders = columns["injection_order"][start:stop]
         if None not in orders and len(set(orders)) == len(orders):
+            start = stop
             continue  # every row has its own injection order: no replicate can repeat
-        first: dict[tuple[object, ...], tuple[Point, int]] = {}
-        repeats: dict[tuple[object, ...], list[tuple[Point, int]]] = {}
-        standard = SampleType.STANDARD
-        for point, row in zip(own, read.rows, strict=True):
-            if point.replicate is None or point.sample_type is not standard:
+        first: dict[tuple[object, ...], int] = {}
+        repeats: dict[tuple[object, ...], list[int]] = {}
+        for at in range(start, stop):
+            replicate, reason = columns["replicate"][at], columns["exclusion_reason"][at]
+            if replicate is None or columns["sample_type"][at] is not standard:
                 continue
-            if point.exclusion_reason and _COPIED in point.exclusion_reason:
+            if reason and _COPIED in reason:
                 continue
-            key = (point.analyte, point.concentration, point.replicate, point.sample_id,
-                   point.injection_order)
-            earlier = first.setdefault(key, (point, row))
-            if earlier[0] is not point:
-                repeats.setdefault(key, [earlier]).append((point, row))
-        for (analyte, conc, replicate, sample, _), found in repeats.items():
+            key = (columns["analyte"][at], columns["concentration"][at], replicate,
+                   columns["sample_id"][at], columns["injection_order"][at])
+            earlier = first.setdefault(key, at)
+            if earlier != at:
+                repeats.setdefault(key, [earlier]).append(at)
+        rows = read.rows
+        found_rows = {key: [(points[at], rows[at - start]) for at in ats]
+                      for key, ats in repeats.items()}
+        start = stop
+        for (analyte, conc, replicate, sample, _), found in found_rows.items():
             cells = ", ".join(p.source_cell for p, _ in found[:4])
             who = f" (sample {sample!r})" if sample else ""
             apart = _telling_apart(grid, table, [r for _, r in found], imap)
@@ -315,21 +327,15 @@ def _best_split(values: list[float]) -> tuple[float, float, float] | None:
     return score, math.fsum(low) / len(low), math.fsum(high) / len(high)
 
 
-def _in_time(own: Sequence[Point], split: tuple[float, float, float]) -> bool:
+def _in_time(orders: list[int | None], responses: list[float],
+             split: tuple[float, float, float]) -> bool:
     """True when the two groups were injected one after the other (drift, not two analytes)."""
-    orders = [p.injection_order for p in own]
     if None in orders:
         return False
     cut = (split[1] + split[2]) / 2
-    low = [p.injection_order for p in own if p.response < cut]
-    high = [p.injection_order for p in own if p.response >= cut]
+    low = [order for order, response in zip(orders, responses) if response < cut]
+    high = [order for order, response in zip(orders, responses) if response >= cut]
     return max(low) < min(high) or max(high) < min(low)  # type: ignore[type-var]
-
-
-_GROUPING = attrgetter("sample_type", "included", "response")
-_KIND, _INCLUDED, _RESPONSE = (attrgetter(name) for name in ("sample_type", "included",
-                                                               "response"))
-_ANALYTE, _CONCENTRATION = attrgetter("analyte"), attrgetter("concentration")
 
 
 def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
@@ -350,35 +356,39 @@ def check_populations(points: Sequence[Point], *, file: str, sheet: str | None,
     InputError
         Naming the analyte, the levels and what to do.
     """
-    groups: dict[tuple[str, float], list[Point]] = {}
+    groups: dict[tuple[str, float], list[int]] = {}
     standard, finite = SampleType.STANDARD, math.isfinite
-    keys = zip(map(_ANALYTE, points), map(_CONCENTRATION, points))
-    if all(map(is_, map(_KIND, points), repeat(standard))) and all(
-            map(_INCLUDED, points)) and all(map(finite, map(_RESPONSE, points))):
-        for p, key in zip(points, keys):  # every point counts (the usual run)
-            groups.setdefault(key, []).append(p)
+    kinds, included = point_values(points, "sample_type"), point_values(points, "included")
+    responses = point_values(points, "response")
+    keys = zip(point_values(points, "analyte"), point_values(points, "concentration"))
+    if all(map(is_, kinds, repeat(standard))) and all(included) and all(map(finite, responses)):
+        for at, key in enumerate(keys):  # every point counts (the usual run)
+            groups.setdefault(key, []).append(at)
     else:
-        for p, key, (kind, included, response) in zip(points, keys, map(_GROUPING, points)):
-            if kind is standard and included and finite(response):
-                groups.setdefault(key, []).append(p)
-    by_level: dict[str, dict[float, list[Point]]] = {}
+        for at, (key, kind, kept, response) in enumerate(zip(keys, kinds, included, responses)):
+            if kind is standard and kept and finite(response):
+                groups.setdefault(key, []).append(at)
+    by_level: dict[str, dict[float, list[int]]] = {}
     for (analyte, concentration), own in groups.items():
         by_level.setdefault(analyte, {})[concentration] = own
+    orders = point_values(points, "injection_order")
     for analyte, levels in by_level.items():
         crowded = {c: own for c, own in levels.items() if len(own) >= 4 and c > 0}
         if len(crowded) < min_levels:
             continue
         ratios = []
         for own in crowded.values():
-            split = _best_split([p.response for p in own])
-            if split is None or split[0] < _GAP_RATIO or split[1] <= 0 or _in_time(own, split):
+            values = [responses[at] for at in own]
+            split = _best_split(values)
+            if split is None or split[0] < _GAP_RATIO or split[1] <= 0 or _in_time(
+                    [orders[at] for at in own], values, split):
                 break
             ratios.append(split[2] / split[1])
         else:
             middle = statistics.median(ratios)
             if all(abs(r / middle - 1) <= _RATIO_AGREEMENT for r in ratios) and middle > 1.01:
                 first = min(crowded)
-                cells = ", ".join(p.source_cell for p in crowded[first][:6])
+                cells = ", ".join(points[at].source_cell for at in crowded[first][:6])
                 raise InputError(
                     f"{analyte}: at each of its {len(crowded)} levels the standards' responses "
                     f"fall into two separate groups whose means differ by a factor of "

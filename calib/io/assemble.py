@@ -21,9 +21,9 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections import Counter
-from collections.abc import Sequence
-from operator import attrgetter
+from collections.abc import MutableSequence, Sequence
 from pathlib import PurePath
+from typing import Any
 
 from calib.errors import InputError
 from calib.io.ambiguity import (
@@ -44,7 +44,7 @@ from calib.io.sampletypes import SAMPLE_TYPE_WORDS, SampleTyper
 from calib.io.summary_rows import check_unlabelled_summary
 from calib.io.table import Grid, reference_prefix
 from calib.options import SampleType
-from calib.run import Point, Run, SourceInfo
+from calib.run import Point, PointColumns, Run, SourceInfo, point_values
 
 __all__ = ["MIN_LEVELS", "assemble"]
 
@@ -111,17 +111,13 @@ def _range(grid: Grid, table: Table) -> str:
             f"{table.header.first_row + 1}:{column_letter(max(indices))}{last}")
 
 
-_ANALYTE = attrgetter("analyte")
-_RESPONSE = attrgetter("response")
-
-
 def _check_levels(points: Sequence[Point], grids: Sequence[Grid], units: dict[str, dict[str, str]],
                   counts: dict[str, int]) -> None:
     # ``counts``: distinct concentrations of each analyte's standards (merge_close_levels);
     # an analyte short of levels is looked at again.
     grid = grids[0]
     sheet = grid.sheet if len(grids) == 1 else None
-    for analyte in dict.fromkeys(map(_ANALYTE, points)):
+    for analyte in dict.fromkeys(point_values(points, "analyte")):
         if counts.get(analyte, 0) >= MIN_LEVELS:
             continue
         own = [p for p in points if p.analyte == analyte]
@@ -152,7 +148,7 @@ def _significant_digits(value: float) -> int:
     return len(digits)
 
 
-def _set_aside_copies(points: list[Point], warnings: list[str]) -> None:
+def _set_aside_copies(points: MutableSequence[Point], warnings: list[str]) -> None:
     """Set aside rows that repeat an earlier row exactly.
 
     Replicates may agree when responses are written with few digits (an
@@ -161,7 +157,7 @@ def _set_aside_copies(points: list[Point], warnings: list[str]) -> None:
     :data:`_COPY_DIGITS` or more significant digits.
     """
     # Responses rarely repeat: look at whole rows only where one does.
-    responses = list(map(_RESPONSE, points))
+    responses = point_values(points, "response")
     if len(set(responses)) == len(responses):
         return  # no response written twice (NaNs are distinct objects too)
     repeated = {value for value, count in Counter(responses).items()
@@ -172,26 +168,31 @@ def _set_aside_copies(points: list[Point], warnings: list[str]) -> None:
     for index, value in enumerate(responses):
         if value in repeated:
             by_response.setdefault(value, []).append(index)
+    columns = {name: point_values(points, name) for name in _COPY_KEY}
     for indices in by_response.values():
         if len(indices) > 1:
-            _copies_among(points, indices, warnings)
+            _copies_among(points, columns, indices, warnings)
 
 
-def _copies_among(points: list[Point], indices: list[int], warnings: list[str]) -> None:
-    first: dict[tuple[object, ...], Point] = {}
+_COPY_KEY = ("analyte", "sample_type", "concentration", "response", "analyte_response",
+             "is_response", "sample_id", "replicate", "injection_order", "level")
+
+
+def _copies_among(points: MutableSequence[Point], columns: dict[str, list[Any]],
+                  indices: list[int], warnings: list[str]) -> None:
+    replicates, orders = columns["replicate"], columns["injection_order"]
+    responses, own = columns["response"], columns["analyte_response"]
+    first: dict[tuple[object, ...], int] = {}
     for index in indices:
-        point = points[index]
-        if point.replicate is None and point.injection_order is None and _significant_digits(
-            point.analyte_response if point.analyte_response is not None else point.response
+        if replicates[index] is None and orders[index] is None and _significant_digits(
+            own[index] if own[index] is not None else responses[index]
         ) < _COPY_DIGITS:
             continue
-        key = (point.analyte, point.sample_type, point.concentration, point.response,
-               point.analyte_response, point.is_response, point.sample_id, point.replicate,
-               point.injection_order, point.level)
-        original = first.setdefault(key, point)
-        if original is point:
+        original = first.setdefault(tuple(column[index] for column in columns.values()), index)
+        if original == index:
             continue
-        reason = (f"repeats the row of {original.source_cell} exactly (same sample, "
+        point = points[index]
+        reason = (f"repeats the row of {points[original].source_cell} exactly (same sample, "
                   f"concentration and response): a copied row")
         warnings.append(f"{point.source_cell}: {reason}; set aside")
         reasons = [r for r in (point.exclusion_reason, reason) if r]
@@ -269,7 +270,7 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
     given = analyte if analyte is not None else (imap.analyte if imap is not None else None)
     stem = PurePath(source.file).stem
     reads: list[TableRead] = []
-    points: list[Point] = []
+    points = PointColumns()
     metadata: dict[str, str] = {}
     ranges: list[str] = []
     columns: list[str] = []
@@ -299,7 +300,7 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
                                   default_units=_default_units(table, imap))
                 split_column(grid, table, read, imap=imap, may_promote=False,
                              min_levels=MIN_LEVELS)
-                found = list(dict.fromkeys(p.analyte for p in read.points))
+                found = list(dict.fromkeys(point_values(read.points, "analyte")))
                 read.warnings.append(
                     f"{grid.reference(column.index, table.header.row)}: column {column.label} "
                     f"was read as the analyte column, since its values split the standards "
@@ -347,7 +348,7 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
         layout = "stacked"
     else:
         layout = layouts[0]
-    analytes = list(dict.fromkeys(p.analyte for p in points))
+    analytes = list(dict.fromkeys(points.column("analyte")))
     shared, own_units = _shared_units(units, analytes)
     info = dataclasses.replace(
         source, layout=layout, tables=tuple(ranges), columns=tuple(columns),
@@ -355,7 +356,7 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
         import_map=imap.file if imap is not None else source.import_map,
         ignored_columns=tuple(ignored),
     )
-    return Run(source=info, points=tuple(points), metadata=metadata, units=shared,
+    return Run(source=info, points=points, metadata=metadata, units=shared,
                analyte_units=own_units, warnings=tuple(all_warnings))
 
 

@@ -15,15 +15,13 @@ order are the same whichever reads them.
 
 from __future__ import annotations
 
-import dataclasses
 import math
 from collections.abc import Callable, Iterable, Sequence
-from itertools import repeat
 from operator import itemgetter
 from typing import TYPE_CHECKING, Any
 
 from calib.io.cells import Cell, is_blank, to_flag, to_integer, to_name, to_text
-from calib.run import Point
+from calib.run import Point, PointColumns
 
 if TYPE_CHECKING:
     from calib.io.columns import Column
@@ -151,10 +149,12 @@ def _bad_rows(values: _Read) -> set[int]:
 def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
               columns: tuple[Column, Column, Column | None], analyte: str | None,
               typer: SampleTyper, skip: set[int], first_row: int, prefix: str,
-              cut: BodyColumns | None = None) -> tuple[list[Point | None], bool]:
+              cut: BodyColumns | None = None
+              ) -> tuple[PointColumns | list[Point | None], bool]:
     """The point of each plain row of a long table (None for rows to read one by one).
 
-    Returns the points, and whether every row is plain.
+    Returns the points, and whether every row is plain (the points are then
+    held as :class:`~calib.run.PointColumns`, their source cells made when read).
 
     Parameters
     ----------
@@ -251,29 +251,21 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
         ratios = [r / s if r is not None and s is not None and s > 0 else math.nan
                   for r, s in zip(found, standards)]
         own = found
+    if not bad:  # the usual export: the run holds the columns as they are
+        return PointColumns({
+            "analyte": analytes, "concentration": concentration, "response": ratios,
+            "sample_type": kinds, "replicate": replicates, "included": [True] * n,
+            "exclusion_reason": [None] * n, "sample_id": names, "injection_order": orders,
+            "is_response": standards, "analyte_response": own, "level": levels,
+        }, cells=(prefix, first_row + 1)), True
     cells = [f"{prefix}{row}" for row in range(first_row + 1, first_row + n + 1)]
-    points: list[Point | None] = _points(zip(
-        analytes, concentration, ratios, cells, kinds, replicates, repeat(True), repeat(None),
-        names, orders, standards, own, levels))
+    points: list[Point | None] = list(PointColumns({
+        "analyte": analytes, "concentration": concentration, "response": ratios,
+        "source_cell": cells, "sample_type": kinds, "replicate": replicates,
+        "included": [True] * n, "exclusion_reason": [None] * n, "sample_id": names,
+        "injection_order": orders, "is_response": standards, "analyte_response": own,
+        "level": levels,
+    }))
     for at in bad:
         points[at] = None
-    return points, not bad
-
-
-_FIELDS = tuple(field.name for field in dataclasses.fields(Point))
-
-
-def _points(rows: Iterable[tuple[Any, ...]]) -> list[Point | None]:
-    """``[Point(*values) for values in rows]``, made without the frozen dataclass's guarded
-    assignment of each field.
-
-    The values are in field order and already checked; each point is equal to, hashes and
-    prints as the one ``Point(*values)`` makes (see tests/io/test_fastrows.py).
-    """
-    made: list[Point | None] = []
-    append, new, fields = made.append, object.__new__, _FIELDS
-    for values in rows:
-        point = new(Point)
-        point.__dict__.update(zip(fields, values))
-        append(point)
-    return made
+    return points, False

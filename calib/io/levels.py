@@ -13,22 +13,17 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Sequence
+from collections.abc import MutableSequence, Sequence
 from itertools import pairwise
-from operator import attrgetter
 
 from calib.errors import InputError
 from calib.options import SampleType
-from calib.run import Point
+from calib.run import Point, point_values
 
 __all__ = ["check_level_labels", "merge_close_levels"]
 
 _LEVEL_TOLERANCE = 1e-9
 """Relative difference under which two standard concentrations are one level."""
-
-
-_KEYS = attrgetter("sample_type", "analyte", "concentration")
-_LEVEL = attrgetter("level")
 
 
 def _close(a: float, b: float) -> bool:
@@ -40,13 +35,15 @@ def _standard_levels(points: Sequence[Point]) -> dict[str, set[float]]:
     standard = SampleType.STANDARD
     distinct: dict[str, set[float]] = {}
     # Each distinct (analyte, concentration) of the standards once (runs reach 10^5 points).
-    for analyte, concentration in {(a, c) for t, a, c in map(_KEYS, points) if t is standard}:
+    keys = zip(point_values(points, "sample_type"), point_values(points, "analyte"),
+               point_values(points, "concentration"))
+    for analyte, concentration in {(a, c) for t, a, c in keys if t is standard}:
         if not math.isnan(concentration):
             distinct.setdefault(analyte, set()).add(concentration)
     return distinct
 
 
-def merge_close_levels(points: list[Point], warnings: list[str]) -> dict[str, int]:
+def merge_close_levels(points: MutableSequence[Point], warnings: list[str]) -> dict[str, int]:
     """Read standard concentrations within :data:`_LEVEL_TOLERANCE` of each other as one.
 
     ``points`` is changed in place; a note per merged level is appended to ``warnings``.
@@ -76,12 +73,14 @@ def merge_close_levels(points: list[Point], warnings: list[str]) -> dict[str, in
     if not near:  # the usual run: no two levels of an analyte are that close
         return {analyte: len(values) for analyte, values in distinct.items()}
     by_analyte: dict[str, list[int]] = {}
-    for index, point in enumerate(points):
-        if point.sample_type is standard and point.concentration == point.concentration \
-                and point.analyte in near:
-            by_analyte.setdefault(point.analyte, []).append(index)
+    concentrations = point_values(points, "concentration")
+    for index, (kind, analyte, concentration) in enumerate(zip(
+            point_values(points, "sample_type"), point_values(points, "analyte"),
+            concentrations)):
+        if kind is standard and not math.isnan(concentration) and analyte in near:
+            by_analyte.setdefault(analyte, []).append(index)
     for analyte, indices in by_analyte.items():
-        values = sorted({points[i].concentration for i in indices})
+        values = sorted({concentrations[i] for i in indices})
         clusters: list[list[float]] = []
         for value in values:
             if clusters and _close(clusters[-1][-1], value):
@@ -126,17 +125,21 @@ def check_level_labels(points: Sequence[Point], *, file: str, sheet: str | None)
 the row of r.csv!C4, 8 in the row of r.csv!C5); expected one concentration per level: correct \
 the level label or the concentration in the file
     """
-    if all(level is None for level in set(map(_LEVEL, points))):
+    labels = point_values(points, "level")
+    if all(level is None for level in set(labels)):
         return  # no level labels (each distinct value tested once)
-    seen: dict[tuple[str, str], dict[float, Point]] = {}
-    for point in points:
-        if point.sample_type is not SampleType.STANDARD or point.level is None:
-            continue
-        seen.setdefault((point.analyte, point.level), {}).setdefault(point.concentration, point)
+    seen: dict[tuple[str, str], dict[float, int]] = {}
+    standard = SampleType.STANDARD
+    for at, (kind, analyte, label, concentration) in enumerate(zip(
+            point_values(points, "sample_type"), point_values(points, "analyte"), labels,
+            point_values(points, "concentration"))):
+        if kind is standard and label is not None:
+            seen.setdefault((analyte, label), {}).setdefault(concentration, at)
     for (analyte, label), found in seen.items():
         if len(found) < 2:
             continue
-        where = ", ".join(f"{c:g} in the row of {p.source_cell}" for c, p in found.items())
+        where = ", ".join(f"{c:g} in the row of {points[at].source_cell}"
+                          for c, at in found.items())
         raise InputError(
             f"{analyte}: the level label {label!r} is given at {len(found)} concentrations "
             f"({where}); expected one concentration per level: correct the level label or the "

@@ -29,14 +29,17 @@ from __future__ import annotations
 import io
 import struct
 import zipfile
+from collections.abc import Sequence
 from dataclasses import dataclass
 from functools import partial
 from math import isnan
-from operator import attrgetter, is_not
+from operator import is_not
+from typing import Any
 
 from calib.errors import InputError
 from calib.io.files import RawFile
 from calib.io.sheetscan import XLSX_COLUMNS, Extent, OdsScanner, XlsxScanner
+from calib.run import PointColumns, point_values
 
 __all__ = ["LARGEST_VALUE", "MAX_CELLS", "MAX_ROWS", "MAX_UNZIPPED_BYTES", "ArchiveFacts",
            "check_magnitudes", "check_sheet_size", "check_text_rows", "check_text_width",
@@ -301,7 +304,8 @@ def check_magnitudes(points: object, *, file: str) -> None:
         :data:`LARGEST_VALUE` or non-zero and smaller than its inverse.
     """
     low = 1.0 / LARGEST_VALUE
-    points = points if isinstance(points, (list, tuple)) else list(points)  # type: ignore
+    if not isinstance(points, (list, tuple, PointColumns)):
+        points = list(points)  # type: ignore[call-overload]
     if _all_in_range(points, low):
         return  # the usual run: one pass per value over arrays, no point looked at alone
     for point in points:
@@ -506,7 +510,7 @@ def check_xls(raw: RawFile, *, what: str = "an .xls workbook") -> None:
         raise _too_many_cells(raw, Extent(rows, columns))
 
 
-def _all_in_range(points: list[object] | tuple[object, ...], low: float) -> bool:
+def _all_in_range(points: Sequence[Any], low: float) -> bool:
     """True when every value of every point is missing, NaN, zero or of a usable magnitude.
 
     Each kind of value is tested with a few passes of built-in functions over all the points
@@ -516,7 +520,7 @@ def _all_in_range(points: list[object] | tuple[object, ...], low: float) -> bool
     given = partial(is_not, None)
     for name, _ in _VALUES:
         try:
-            sizes = list(map(abs, filter(given, map(attrgetter(name), points))))
+            sizes = list(map(abs, filter(given, point_values(points, name))))
             if any(map(isnan, sizes)):  # NaN marks a missing value: leave it out
                 sizes = [size for size in sizes if not isnan(size)]
         except (AttributeError, OverflowError, TypeError, ValueError):

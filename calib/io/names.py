@@ -17,13 +17,13 @@ from __future__ import annotations
 
 import dataclasses
 import unicodedata
-from collections.abc import Sequence
+from collections.abc import MutableSequence, Sequence
 
 from calib.errors import InputError
 from calib.io.layout import Table
 from calib.io.rows import TableRead
 from calib.io.table import Grid
-from calib.run import Point
+from calib.run import Point, point_values
 
 __all__ = ["normalise_analytes"]
 
@@ -74,26 +74,31 @@ def _name_cells(reads: Sequence[tuple[Grid, Table, TableRead]],
                 points: Sequence[Point]) -> dict[str, str]:
     """Where each analyte name was read: its cell, or the first point's source cell."""
     cells: dict[str, str] = {}
+    analytes = point_values(points, "analyte")
     start = 0
     for grid, table, read in reads:
-        own = points[start:start + len(read.points)]
-        start += len(read.points)
+        own = analytes[start:start + len(read.points)]
+        # The first row of each name (the last one written wins: the earliest).
+        first = dict(zip(reversed(own), range(len(own) - 1, -1, -1)))
         header = table.header
         column = header.shared.get("analyte")
-        for point, row in zip(own, read.rows, strict=True):
-            if point.analyte in cells:
+        for name in dict.fromkeys(own):
+            if name in cells:
                 continue
             if column is not None:
-                cells[point.analyte] = grid.reference(column.index, row)
-            elif point.analyte in header.analytes:
-                cells[point.analyte] = grid.reference(
-                    header.analytes[point.analyte]["response"].index, header.row)
+                cells[name] = grid.reference(column.index, read.rows[first[name]])
+            elif name in header.analytes:
+                cells[name] = grid.reference(header.analytes[name]["response"].index,
+                                             header.row)
             else:
-                cells[point.analyte] = f"the name given to the table of {point.source_cell}"
+                cells[name] = (f"the name given to the table of "
+                               f"{points[start + first[name]].source_cell}")
+        start += len(own)
     return cells
 
 
-def normalise_analytes(reads: Sequence[tuple[Grid, Table, TableRead]], points: list[Point],
+def normalise_analytes(reads: Sequence[tuple[Grid, Table, TableRead]],
+                       points: MutableSequence[Point],
                        warnings: list[str], *, file: str, sheet: str | None) -> dict[str, str]:
     """Normalise every analyte name in ``points`` (in place), refusing hidden or look-alike ones.
 
@@ -137,7 +142,7 @@ def normalise_analytes(reads: Sequence[tuple[Grid, Table, TableRead]], points: l
             warnings.append(f"{cell}: the analyte name {raw!r} was read as {name!r} (Unicode "
                             f"compatibility form)")
     if renamed:
-        for index, point in enumerate(points):
-            if point.analyte in renamed:
-                points[index] = dataclasses.replace(point, analyte=renamed[point.analyte])
+        for index, name in enumerate(point_values(points, "analyte")):
+            if name in renamed:
+                points[index] = dataclasses.replace(points[index], analyte=renamed[name])
     return renamed

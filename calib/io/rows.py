@@ -21,7 +21,7 @@ per analyte (wide layout).  The rules, in the order a row is read:
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Mapping, MutableSequence, Sequence
 from dataclasses import dataclass, field
 from typing import TypeVar
 
@@ -51,7 +51,7 @@ from calib.io.sampletypes import SampleTyper
 from calib.io.summary_rows import find_summary_rows
 from calib.io.table import Grid, reference_prefix
 from calib.options import SampleType
-from calib.run import Point
+from calib.run import Point, PointColumns, point_values
 
 __all__ = ["TableRead", "read_table"]
 
@@ -72,8 +72,9 @@ class TableRead:
 
     Attributes
     ----------
-    points : list of Point
-        In row order (wide tables: each row's analytes left to right).
+    points : list of Point, or PointColumns
+        In row order (wide tables: each row's analytes left to right); held as
+        :class:`~calib.run.PointColumns` when every row of a long table is plain.
     rows : list of int
         0-based row of each point.
     units : dict
@@ -90,7 +91,7 @@ class TableRead:
         table, per column in a wide one).
     """
 
-    points: list[Point] = field(default_factory=list)
+    points: MutableSequence[Point] = field(default_factory=list)
     rows: list[int] = field(default_factory=list)
     units: dict[str, dict[str, str]] = field(default_factory=dict)
     columns: list[str] = field(default_factory=list)
@@ -462,14 +463,16 @@ class _TableReader:
         is_column = self.targets[0][3]
         is_prefix = self.cell_prefix[is_column.index] if is_column is not None else ""
         points, at_rows = self.result.points, self.result.rows
-        if plan is not None and planned is not None and planned[1]:
-            # Every row is plain (the usual export): take the points as they are.
+        if isinstance(plan, PointColumns):
+            # Every row is plain (the usual export): the run holds the columns as they are.
             if is_column is not None:
                 self.internal_standards.extend(
-                    (f"the internal standard of {point.analyte}", f"{is_prefix}{index + 1}",
-                     point.is_response, point.sample_id)
-                    for point, index in zip(plan, body) if point is not None)
-            points.extend(plan)  # every row plain: no None among them
+                    (f"the internal standard of {analyte}", f"{is_prefix}{index + 1}",
+                     response, sample)
+                    for analyte, index, response, sample in zip(
+                        plan.column("analyte"), body, plan.column("is_response"),
+                        plan.column("sample_id")))
+            self.result.points = plan
             at_rows.extend(body)
             plan, body = None, range(0)
         for index in body:
@@ -503,7 +506,7 @@ class _TableReader:
         return self.result
 
     def plan(self, summaries: Mapping[int, str], cut: BodyColumns
-             ) -> tuple[list[Point | None], bool] | None:
+             ) -> tuple[PointColumns | list[Point | None], bool] | None:
         """The points of the plain rows of a long table, read column-wise, and whether every
         row is plain (None for other layouts)."""
         if self.table.header.layout != "long" or len(self.targets) != 1:
@@ -521,7 +524,7 @@ class _TableReader:
 
     def _describe(self) -> None:
         header = self.table.header
-        analytes = {p.analyte for p in self.result.points}
+        analytes = set(point_values(self.result.points, "analyte"))
         for column in header.all_columns():
             unit = self.units.of(column) if column.name in _MEASURES else None
             text = f"{self.grid.reference(column.index, header.row)} {column.header!r} -> "

@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from operator import attrgetter
 
 from calib.errors import InputError
 from calib.io.cells import Cell, is_blank
@@ -28,7 +27,7 @@ from calib.io.fastrows import BodyColumns
 from calib.io.layout import Table
 from calib.io.table import Grid
 from calib.options import SampleType
-from calib.run import Point
+from calib.run import Point, point_values
 
 __all__ = ["check_unlabelled_summary", "find_summary_rows"]
 
@@ -160,9 +159,6 @@ _SUMMARY_TOLERANCE = 1e-4
 (a summary row is usually written rounded, to 4 or 5 significant digits)."""
 
 
-_SAMPLE_ID = attrgetter("sample_id")
-
-
 def check_unlabelled_summary(points: Sequence[Point], *, file: str, sheet: str | None) -> None:
     """Refuse a last standard whose concentration and response are the others' mean or sum.
 
@@ -188,27 +184,33 @@ def check_unlabelled_summary(points: Sequence[Point], *, file: str, sheet: str |
 it (concentration 4.5, response 0.9025): a summary row, not an injection; delete it from the \
 export
     """
-    if None not in set(map(_SAMPLE_ID, points)):
+    names = point_values(points, "sample_id")
+    if None not in set(names):
         return  # every row has a sample name (each distinct name tested once)
-    by_analyte: dict[str, list[Point]] = {}
-    for point in points:
-        if point.sample_type is SampleType.STANDARD and point.sample_id is None and \
-                point.level is None and math.isfinite(point.response):
-            by_analyte.setdefault(point.analyte, []).append(point)
+    standard, finite = SampleType.STANDARD, math.isfinite
+    kinds, levels = point_values(points, "sample_type"), point_values(points, "level")
+    concentrations = point_values(points, "concentration")
+    responses = point_values(points, "response")
+    by_analyte: dict[str, list[int]] = {}
+    for at, analyte in enumerate(point_values(points, "analyte")):
+        if names[at] is None and kinds[at] is standard and levels[at] is None and \
+                finite(responses[at]):
+            by_analyte.setdefault(analyte, []).append(at)
     for analyte, own in by_analyte.items():
         if len(own) < 5:  # a summary of fewer rows could be a real level on a clean line
             continue
         last, others = own[-1], own[:-1]
-        concs = [p.concentration for p in others]
-        responses = [p.response for p in others]
+        concs = [concentrations[at] for at in others]
+        values = [responses[at] for at in others]
         for what, conc, response in (
-            ("mean", math.fsum(concs) / len(concs), math.fsum(responses) / len(responses)),
-            ("sum", math.fsum(concs), math.fsum(responses)),
+            ("mean", math.fsum(concs) / len(concs), math.fsum(values) / len(values)),
+            ("sum", math.fsum(concs), math.fsum(values)),
         ):
-            if math.isclose(last.concentration, conc, rel_tol=_SUMMARY_TOLERANCE) and \
-                    math.isclose(last.response, response, rel_tol=_SUMMARY_TOLERANCE):
+            if math.isclose(concentrations[last], conc, rel_tol=_SUMMARY_TOLERANCE) and \
+                    math.isclose(responses[last], response, rel_tol=_SUMMARY_TOLERANCE):
+                last_point = points[last]
                 raise InputError(
-                    f"{analyte}: the row of {last.source_cell} holds the {what} of the standards "
-                    f"above it (concentration {last.concentration:g}, response "
-                    f"{last.response:g}): a summary row, not an injection; delete it from the "
+                    f"{analyte}: the row of {last_point.source_cell} holds the {what} of the "
+                    f"standards above it (concentration {last_point.concentration:g}, response "
+                    f"{last_point.response:g}): a summary row, not an injection; delete it from the "
                     f"export", file=file, sheet=sheet)

@@ -217,7 +217,9 @@ def _candidates(book: _Book, imap: ImportMap | None) -> list[str]:
 
 
 def _standard_analytes(run: Run) -> set[str]:
-    return {p.analyte for p in run.points if p.sample_type is SampleType.STANDARD}
+    standard = SampleType.STANDARD
+    return {analyte for analyte, kind in zip(run.column("analyte"), run.column("sample_type"))
+            if kind is standard}
 
 
 class WorkbookReader:

@@ -7,6 +7,7 @@ same internal-standard list, same warnings and the same refusal message).
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import pytest
@@ -15,13 +16,12 @@ from hypothesis import strategies as st
 
 from calib.errors import InputError
 from calib.io import rows as rows_module
-from calib.io.fastrows import _points
 from calib.io.layout import find_tables
 from calib.io.rows import read_table
 from calib.io.sampletypes import SampleTyper
 from calib.io.table import Grid
 from calib.options import SampleType
-from calib.run import Point
+from calib.run import Point, PointColumns
 
 HEADER = ["Analyte", "Sample", "Type", "Conc (ng/mL)", "Area", "IS area", "Rep", "Order",
           "Include", "Reason"]
@@ -56,8 +56,11 @@ def _same(found, expected) -> None:
 def test_point_made_column_wise_is_the_dataclass_point():
     values = ("KX-214", 2.5, 0.125, "Run!E9", SampleType.QC, 2, True, None, "QC-M", 17,
               101000.0, 12625.0, "M")
-    (made,), reference = _points([values]), Point(*values)
+    names = [field.name for field in dataclasses.fields(Point)]
+    columns = PointColumns({name: [value] for name, value in zip(names, values)})
+    (made,), reference = columns.points(), Point(*values)
     assert made == reference and hash(made) == hash(reference) and repr(made) == repr(reference)
+    assert columns[0] == reference and columns[-1:] == [reference]
     with pytest.raises(AttributeError):  # still frozen
         made.response = 1.0  # type: ignore[misc]
 

@@ -20,6 +20,8 @@ from collections.abc import Callable, Iterable, Sequence
 from operator import itemgetter
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
+
 from calib.io.cells import Cell, is_blank, to_flag, to_integer, to_name, to_text
 from calib.run import Point, PointColumns
 
@@ -106,10 +108,11 @@ def _all_floats(values: list[Cell]) -> bool:
 
 def _whole_numbers(values: list[Cell]) -> _Read:
     """Replicate numbers or injection orders as the row reader reads them."""
-    if _all_floats(values) and all(map(math.isfinite, values)) and all(
-            map(float.is_integer, values)):  # type: ignore[arg-type]
-        numbers = list(map(int, values))  # type: ignore[arg-type]
-        return _read(numbers, numbers)
+    if _all_floats(values):
+        array = np.array(values, dtype=float)
+        if np.isfinite(array).all() and (array == np.floor(array)).all() and (
+                np.abs(array) < 2.0**53).all():
+            return _read(array.astype(np.int64).tolist(), ())  # whole numbers: none bad
     return _classify(values, _whole)
 
 

@@ -361,6 +361,8 @@ def _crowded_levels(points: Sequence[Point], min_levels: int
     if not all(included):
         keep &= np.fromiter(map(bool, included), bool, n)
     rows = np.flatnonzero(keep)
+    if not rows.size:
+        return
     rows = rows[np.lexsort((rows, concentration[rows], codes[rows]))]
     code, level = codes[rows], concentration[rows]
     starts = np.flatnonzero(np.r_[True, (code[1:] != code[:-1]) | (level[1:] != level[:-1])])

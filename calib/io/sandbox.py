@@ -46,7 +46,7 @@ import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TypeVar
+from typing import Any, TypeVar
 
 from calib.errors import InputError
 from calib.io import _calamine_child
@@ -162,9 +162,7 @@ class _Forked:
     def __init__(self, pid: int, out: int, err: int) -> None:
         self.pid = pid
         self.returncode: int | None = None
-        self._pipes: dict[int, list[bytes]] = {out: [], err: []}
-        self._open = {out, err}
-        self._out, self._err = out, err
+        self.out, self.err = out, err
 
     def poll(self) -> int | None:
         if self.returncode is None:
@@ -180,28 +178,130 @@ class _Forked:
             except ProcessLookupError:
                 pass
 
-    def communicate(self, timeout: float | None = None) -> tuple[bytes, bytes]:
-        """Read both pipes to their end and wait for the child (``Popen.communicate``)."""
+    def wait(self, timeout: float | None = None) -> int:
+        """Wait for the child to end (``Popen.wait``)."""
         deadline = None if timeout is None else time.monotonic() + timeout
-        with selectors.DefaultSelector() as selector:
-            for fd in self._open:
-                selector.register(fd, selectors.EVENT_READ)
-            while selector.get_map():
-                left = None if deadline is None else deadline - time.monotonic()
-                if left is not None and left <= 0:
-                    raise subprocess.TimeoutExpired("calamine child", timeout or 0.0)
-                for key, _ in selector.select(left):
-                    chunk = os.read(key.fd, 1 << 20)
-                    if chunk:
-                        self._pipes[key.fd].append(chunk)
-                    else:
-                        selector.unregister(key.fd)
-                        self._open.discard(key.fd)
-                        os.close(key.fd)
-        if self.returncode is None:
-            _, status = os.waitpid(self.pid, 0)
-            self.returncode = os.waitstatus_to_exitcode(status)
-        return b"".join(self._pipes[self._out]), b"".join(self._pipes[self._err])
+        while self.poll() is None:
+            if deadline is not None and time.monotonic() >= deadline:
+                raise subprocess.TimeoutExpired("calamine child", timeout or 0.0)
+            time.sleep(0.001)
+        return self.returncode  # type: ignore[return-value]
+
+    def close(self) -> None:
+        for fd in (self.out, self.err):
+            try:
+                os.close(fd)
+            except OSError:
+                pass
+
+
+class _TimedOut(Exception):
+    """The child's answer did not come within its time."""
+
+
+class _Pipes(io.RawIOBase):
+    """The child's standard output as a stream read until a deadline; its error output kept.
+
+    Both pipes are read as data comes, so that a child writing to either never waits
+    for the parent; past ``deadline`` (monotonic seconds) a read raises :class:`_TimedOut`.
+    """
+
+    _ERROR_KEPT = 1 << 20  # a panic message is a few lines; more is dropped
+
+    def __init__(self, out: int, err: int, deadline: float) -> None:
+        self.out, self.err, self.deadline = out, err, deadline
+        self.error = bytearray()
+        self._selector = selectors.DefaultSelector()
+        self._selector.register(out, selectors.EVENT_READ)
+        self._selector.register(err, selectors.EVENT_READ)
+
+    def readable(self) -> bool:
+        return True
+
+    def _wait(self) -> list[int]:
+        left = self.deadline - time.monotonic()
+        if left <= 0:
+            raise _TimedOut
+        ready = [key.fd for key, _ in self._selector.select(left)]
+        if self.err in ready:
+            chunk = os.read(self.err, 1 << 16)
+            if not chunk:
+                self._selector.unregister(self.err)
+            elif len(self.error) < self._ERROR_KEPT:
+                self.error += chunk
+        return ready
+
+    def readinto(self, buffer: Any) -> int:
+        if self.out not in self._selector.get_map():
+            return 0
+        while self.out not in self._wait():
+            pass
+        read = os.readv(self.out, [buffer])
+        if not read:
+            self._selector.unregister(self.out)
+        return read
+
+    @property
+    def at_end(self) -> bool:
+        """Whether the child's standard output has been read to its end."""
+        return self.out not in self._selector.get_map()
+
+    def drain(self) -> None:
+        """Read both pipes to their ends."""
+        while self._selector.get_map():
+            if self.out in self._wait():
+                if not os.read(self.out, 1 << 20):
+                    self._selector.unregister(self.out)
+
+    def close(self) -> None:
+        self._selector.close()
+        super().close()
+
+
+_Book = dict[str, Any]
+
+
+def _read_answer(pipes: _Pipes) -> _Book | None:
+    """The child's messages read into ``{"names", "worksheets", "sheets"}`` (or ``{"failure"}``);
+    None when its answer ends early or is not what :mod:`calib.io._calamine_child` sends.
+
+    Raises
+    ------
+    _TimedOut
+        When the answer does not come in time.
+    """
+    buffered = io.BufferedReader(pipes, 1 << 20)
+    try:
+        return _messages(_PlainValues(buffered))
+    finally:
+        buffered.detach()  # the pipes stay open: the error output is read to its end next
+
+
+def _messages(reader: _PlainValues) -> _Book | None:
+    book: _Book = {"sheets": {}}
+    current: dict[str, Any] = {}
+    try:
+        while (message := reader.load()) != ("done",):
+            kind = message[0]
+            if kind == "rows":
+                current["rows"].extend(message[1])
+            elif kind == "sheet":
+                _, name, end, merges, has_rows = message
+                current = {"end": end, "merges": merges, "rows": [] if has_rows else None}
+                book["sheets"][str(name)] = current
+            elif kind == "book":
+                book["names"], book["worksheets"] = list(message[1]), list(message[2])
+            elif kind == "failure" and message[1] is None:
+                return {"failure": tuple(message[2])}
+            elif kind == "failure":
+                book["sheets"][str(message[1])] = current = {"failure": tuple(message[2])}
+            else:
+                return None
+    except _TimedOut:
+        raise
+    except Exception:  # noqa: BLE001 - an answer cut short or damaged is no answer
+        return None
+    return book if "names" in book else None
 
 
 def _fork(raw: RawFile, memory: int, seconds: int, max_rows: int, max_cells: int
@@ -262,31 +362,56 @@ class _Child:
             pass
         self.process.stdin = None  # communicate() must not touch the closed pipe
 
+    def _fds(self) -> tuple[int, int]:
+        if isinstance(self.process, _Forked):
+            return self.process.out, self.process.err
+        return self.process.stdout.fileno(), self.process.stderr.fileno()  # type: ignore[union-attr]
+
+    def _close(self) -> None:
+        if isinstance(self.process, _Forked):
+            self.process.close()
+        else:
+            self.process.stdout.close()  # type: ignore[union-attr]
+            self.process.stderr.close()  # type: ignore[union-attr]
+
     def stop(self) -> None:
         """End the child if it still runs (the parent refused the file, or gave up)."""
         if self.done:
             return
         if self.process.poll() is None:
             self.process.kill()
-        self.process.communicate()
+        self._close()
+        self.process.wait()
         self.done = True
 
-    def result(self) -> tuple[int, bytes, bytes] | None:
-        """Return code, output and error output; None when the time limit passed.
+    def result(self) -> tuple[int, _Book | None, bytes] | None:
+        """Return code, answer (None when cut short or damaged) and error output; None when
+        the time limit passed.
 
-        A child that finished while the parent was still checking waits to hand over
-        its answer, so it gets a moment after the checks however long they took (a
-        child that spins meanwhile has used up its processor-time limit already).
+        The answer is read as the child sends it, so the first rows are unpickled here
+        while the child is still making the last.  A child that finished while the parent
+        was still checking waits to hand over its answer, so it gets a moment after the
+        checks however long they took (a child that spins meanwhile has used up its
+        processor-time limit already).
         """
         now = time.monotonic()
         left = max(self.started + self.seconds - now, min(2.0, now - self.started), 0.0)
+        pipes = _Pipes(*self._fds(), now + left)
         try:
-            out, err = self.process.communicate(timeout=left)
-        except subprocess.TimeoutExpired:
+            answer = _read_answer(pipes)
+            damaged = answer is None and not pipes.at_end
+            if damaged:
+                self.process.kill()  # an answer not as sent: nothing more to read from it
+            pipes.drain()
+            code = self.process.wait(timeout=max(pipes.deadline - time.monotonic(), 0.0))
+        except (_TimedOut, subprocess.TimeoutExpired):
+            pipes.close()
             self.stop()
             return None
+        pipes.close()
+        self._close()
         self.done = True
-        return self.process.returncode, out, err
+        return (0 if damaged else code), answer, bytes(pipes.error)
 
 
 def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
@@ -323,14 +448,8 @@ def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
             f"says); expected {what} saved by a spreadsheet program",
             file=raw.given,
         )
-    code, out, err = outcome
-    answer = None
-    if code == 0:
-        try:
-            answer = _PlainValues(io.BytesIO(out)).load()
-        except Exception:  # noqa: BLE001 - any damage to the answer is a failed read
-            answer = None
-    if not isinstance(answer, dict):
+    code, answer, err = outcome
+    if code != 0 or answer is None:
         raise _ended(raw, what, code, err, child.memory)
     if "failure" in answer:
         raise failure_error(raw, what, tuple(answer["failure"]), memory=child.memory)

@@ -6,7 +6,7 @@ copy has python-calamine loaded already); elsewhere it runs this file as a
 script, which reads the workbook's bytes from standard input.  Either way
 the child sets its own memory and processor-time limits, parses every sheet
 and writes what it found as a stream of pickles of plain values (lists,
-strings, numbers, dates; see :func:`stream_book`): the parent reads the
+strings, numbers, dates; see :func:`_stream_book`): the parent reads the
 first rows while the child is still making the last ones.  The module imports nothing from calib, so the script
 starts in a few hundredths of a second.
 
@@ -47,7 +47,7 @@ def _failure(exc: BaseException, calamine) -> tuple[str, str]:
     return ("error", str(exc).strip() or type(exc).__name__)
 
 
-ROWS_PER_MESSAGE = 4096
+_ROWS_PER_MESSAGE = 4096
 """Rows sent in one message: the parent reads one while the next is being made."""
 
 
@@ -69,11 +69,11 @@ def _send_sheet(book, name: str, max_rows: int, max_cells: int, send) -> None:
     merges = [tuple(map(tuple, pair)) for pair in (sheet.merged_cell_ranges or [])]
     send("sheet", name, end, merges, True)
     rows = _rows(sheet)
-    while chunk := list(islice(rows, ROWS_PER_MESSAGE)):
+    while chunk := list(islice(rows, _ROWS_PER_MESSAGE)):
         send("rows", chunk)
 
 
-def stream_book(data: bytes, max_rows: int, max_cells: int, out) -> None:
+def _stream_book(data: bytes, max_rows: int, max_cells: int, out) -> None:
     """Parse the workbook in ``data`` and write what was found to the binary file ``out``.
 
     One pickle per message, each a tuple of plain values: ``("book", names,
@@ -120,7 +120,7 @@ def serve(data: bytes, memory: int, seconds: int, max_rows: int, max_cells: int,
     # cycle collector would only scan them again and again (a tenth of the time).
     gc.disable()
     limit(memory, seconds)
-    stream_book(data, max_rows, max_cells, out)
+    _stream_book(data, max_rows, max_cells, out)
 
 
 def main(argv: list[str]) -> int:
@@ -128,7 +128,7 @@ def main(argv: list[str]) -> int:
     limit(memory, seconds)
     gc.disable()
     data = sys.stdin.buffer.read()
-    stream_book(data, max_rows, max_cells, sys.stdout.buffer)
+    _stream_book(data, max_rows, max_cells, sys.stdout.buffer)
     return 0
 
 

@@ -195,15 +195,12 @@ class _Forked:
                 pass
 
 
-class _TimedOut(Exception):
-    """The child's answer did not come within its time."""
-
-
 class _Pipes(io.RawIOBase):
     """The child's standard output as a stream read until a deadline; its error output kept.
 
     Both pipes are read as data comes, so that a child writing to either never waits
-    for the parent; past ``deadline`` (monotonic seconds) a read raises :class:`_TimedOut`.
+    for the parent; past ``deadline`` (monotonic seconds) a read raises
+    ``subprocess.TimeoutExpired``.
     """
 
     _ERROR_KEPT = 1 << 20  # a panic message is a few lines; more is dropped
@@ -221,7 +218,7 @@ class _Pipes(io.RawIOBase):
     def _wait(self) -> list[int]:
         left = self.deadline - time.monotonic()
         if left <= 0:
-            raise _TimedOut
+            raise subprocess.TimeoutExpired("calamine child", 0.0)
         ready = [key.fd for key, _ in self._selector.select(left)]
         if self.err in ready:
             chunk = os.read(self.err, 1 << 16)
@@ -249,9 +246,8 @@ class _Pipes(io.RawIOBase):
     def drain(self) -> None:
         """Read both pipes to their ends."""
         while self._selector.get_map():
-            if self.out in self._wait():
-                if not os.read(self.out, 1 << 20):
-                    self._selector.unregister(self.out)
+            if self.out in self._wait() and not os.read(self.out, 1 << 20):
+                self._selector.unregister(self.out)
 
     def close(self) -> None:
         self._selector.close()
@@ -267,7 +263,7 @@ def _read_answer(pipes: _Pipes) -> _Book | None:
 
     Raises
     ------
-    _TimedOut
+    subprocess.TimeoutExpired
         When the answer does not come in time.
     """
     buffered = io.BufferedReader(pipes, 1 << 20)
@@ -297,7 +293,7 @@ def _messages(reader: _PlainValues) -> _Book | None:
                 book["sheets"][str(message[1])] = current = {"failure": tuple(message[2])}
             else:
                 return None
-    except _TimedOut:
+    except subprocess.TimeoutExpired:
         raise
     except Exception:  # noqa: BLE001 - an answer cut short or damaged is no answer
         return None
@@ -404,7 +400,7 @@ class _Child:
                 self.process.kill()  # an answer not as sent: nothing more to read from it
             pipes.drain()
             code = self.process.wait(timeout=max(pipes.deadline - time.monotonic(), 0.0))
-        except (_TimedOut, subprocess.TimeoutExpired):
+        except subprocess.TimeoutExpired:
             pipes.close()
             self.stop()
             return None

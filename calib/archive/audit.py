@@ -37,6 +37,7 @@ from calib.archive.chain import (
     check_link,
     figures_row,
 )
+from calib.archive.figures import CurveFigures
 from calib.archive.rows import FIGURE_COLUMNS, SELECT_DATA, SELECT_META, entry_from_row
 
 if TYPE_CHECKING:
@@ -157,7 +158,8 @@ def verify_chain(archive: Archive, *, expected_head: str | None = None, deep: bo
         if deep:
             for row in store.rows(f"SELECT seq, {FIGURE_COLUMNS} FROM curves"
                                   " ORDER BY seq, position"):
-                figures.setdefault(int(row[0]), []).append(tuple(row[1:]))
+                # Read as the store reads them (a calib.record/1 mean-rf "none" is "1/x2").
+                figures.setdefault(int(row[0]), []).append(figures_row(CurveFigures(*row[1:])))
         count, prev_seq, prev_hash = 0, 0, GENESIS_HASH
         for row in store.rows(f"{SELECT_DATA if deep else SELECT_META} ORDER BY e.seq"):
             entry = _entry(row)

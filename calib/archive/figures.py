@@ -16,6 +16,13 @@ Run date
 Instrument
     The metadata line ``Instrument``, ``Instrument ID``, ``Instrument name``
     or ``System``, as written; None when the export has none.
+Weighting
+    The weighting the curve's fit used.  A ``mean-rf`` curve is fitted with
+    1/x² weights, which ``calib.record/2`` states as ``1/x2``; records of
+    ``calib.record/1`` said ``none`` for the same fit.  :class:`CurveFigures`
+    reads that ``none`` as ``1/x2``, whether it comes from a record's JSON or
+    from an index row written before, so the index, the trend and the baseline
+    see one weighting for one fit whatever the record format.
 """
 
 from __future__ import annotations
@@ -26,7 +33,9 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
-__all__ = ["CurveFigures", "RecordFacts", "record_facts"]
+from calib.options import Model, Weighting, own_weighting
+
+__all__ = ["CurveFigures", "RecordFacts", "fit_weighting", "record_facts"]
 
 # Normalised metadata keys, most specific first.
 _RUN_DATE_KEYS = ("rundate", "analysisdate", "acquisitiondate", "injectiondate", "date")
@@ -45,7 +54,8 @@ class CurveFigures:
     analyte : str
         Analyte name as the run file wrote it.
     model, weighting : str
-        Calibration model and weighting of the fit.
+        Calibration model and the weighting its fit used (a ``mean-rf`` curve's
+        ``none`` of ``calib.record/1`` reads as ``1/x2``, see the module notes).
     verdict : str
         The curve's verdict: ``accepted``, ``rejected`` or ``needs-review``.
     slope, intercept, residual_sd : float or None
@@ -65,6 +75,9 @@ class CurveFigures:
     residual_sd: float | None
     concentration_unit: str | None = None
     response_unit: str | None = None
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "weighting", fit_weighting(self.model, self.weighting))
 
 
 @dataclass(frozen=True)
@@ -96,6 +109,27 @@ class RecordFacts:
     instrument: str | None
     roles: tuple[str, ...]
     curves: tuple[CurveFigures, ...]
+
+
+def fit_weighting(model: str, weighting: str) -> str:
+    """The weighting a curve's fit used, as ``calib.record/2`` states it.
+
+    Only the ``none`` that ``calib.record/1`` wrote for a model fitted with its
+    own weights (``mean-rf``: 1/x²) changes; anything else is kept as written,
+    so an index row altered to another weighting is still found by verification.
+
+    Examples
+    --------
+    >>> fit_weighting("mean-rf", "none"), fit_weighting("mean-rf", "1/x2")
+    ('1/x2', '1/x2')
+    >>> fit_weighting("linear", "none"), fit_weighting("mean-rf", "1/y")
+    ('none', '1/y')
+    """
+    try:
+        own = own_weighting(Model(model))
+    except ValueError:
+        return weighting
+    return own.value if own is not None and weighting == Weighting.NONE.value else weighting
 
 
 def _dict(value: Any) -> Mapping[str, Any]:

@@ -321,6 +321,7 @@ def assemble(grids: Sequence[Grid], *, source: SourceInfo, analyte: str | None =
             ranges.append(_range(grid, table))
             columns.extend(read.columns)
             all_warnings.extend(read.warnings)
+            all_warnings.extend(table.warnings)
             decimal = decimal or read.decimal
             for key, value in table.metadata.items():
                 if key == "analyte" and (len(tables) > 1 or per_sheet):

@@ -15,7 +15,8 @@ A header row is a row of headings from which calib can read standards:
 
 Several header rows in one sheet make a stack of tables.  The lines above
 each header (title, ``key: value`` lines, the analyte's name) belong to its
-table; lines below the last table after a blank row are notes.
+table; lines below the last table after a blank row are notes, and so are
+lone lines of text right under its data (:mod:`calib.io.footer`).
 """
 
 from __future__ import annotations
@@ -34,6 +35,7 @@ from calib.io.columns import (
     split_unit,
     squash,
 )
+from calib.io.footer import end_before_notes
 from calib.io.importmap import ImportMap
 from calib.io.metadata import read_metadata
 from calib.io.numbers import find_marker, parse_number_text, split_unit_suffix
@@ -110,6 +112,8 @@ class Table:
         names the table's analyte (then it is not in the metadata).
     metadata : dict of str to str
         ``key: value``, title and note lines of the preamble and footer.
+    warnings : tuple of str
+        Note lines read right under the data (:mod:`calib.io.footer`), by cell.
     """
 
     header: Header
@@ -118,6 +122,7 @@ class Table:
     footer: range
     label: str | None
     metadata: dict[str, str]
+    warnings: tuple[str, ...] = ()
 
 
 def _texts(row: Sequence[Cell]) -> list[str]:
@@ -571,7 +576,10 @@ def find_tables(grid: Grid, *, imap: ImportMap | None = None) -> list[Table]:
         last = number == len(headers) - 1
         stop = len(grid.rows) if last else headers[number + 1].first_row
         start = header.row + 1
-        end = _body_end(grid, header, start, stop, last=last)
+        end, warnings = _body_end(grid, header, start, stop, last=last), ()
+        if last:
+            end, warnings = end_before_notes(grid, start, end, shared=header.shared,
+                                             measures=header.measurement_indices())
         preamble = range(preamble_start, header.first_row)
         footer = range(end, stop) if last else range(stop, stop)
         label_row = _label(grid.rows, preamble) if len(headers) > 1 else None
@@ -585,6 +593,7 @@ def find_tables(grid: Grid, *, imap: ImportMap | None = None) -> list[Table]:
                 )
             for key, value in notes.items():
                 metadata.setdefault(key, value)
-        tables.append(Table(header, range(start, end), preamble, footer, label, metadata))
+        tables.append(Table(header, range(start, end), preamble, footer, label, metadata,
+                            warnings))
         preamble_start = end
     return tables

@@ -15,8 +15,14 @@ given
 * a memory limit (address space, ``RLIMIT_AS``) of :data:`_BASE_MEMORY` plus
   :data:`_MEMORY_PER_BYTE` times the file size (beyond what a forked copy
   already holds), and
-* a wall-clock limit of :data:`BASE_SECONDS` plus :data:`_SECONDS_PER_MB` per
-  megabyte of file (and the same processor-time limit),
+* a processor-time limit (``RLIMIT_CPU``) of :data:`BASE_SECONDS` plus
+  :data:`_SECONDS_PER_MB` per megabyte of file, rounded up to whole seconds:
+  what ends a parser spinning on damaged data, and
+* a wall-clock limit of :data:`_WALL_FACTOR` times that: a child on a busy
+  machine (a CI host running many jobs) may wait far longer than it computes,
+  and a healthy file must not be called damaged for it; the wall clock only
+  keeps a stuck child (or a machine too busy to finish) from holding the
+  caller for ever: at most 4 × 36 s for the web's 20 MiB uploads,
 
 and returns the cells.  The parent starts the child first and meanwhile runs
 its own checks of the archive (:mod:`calib.io.limits`), so the checks cost
@@ -34,6 +40,7 @@ from __future__ import annotations
 import datetime
 import faulthandler
 import io
+import math
 import os
 import pickle
 import selectors
@@ -46,7 +53,7 @@ import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, TypeVar
+from typing import Any, ClassVar, NamedTuple, TypeVar
 
 from calib.errors import InputError
 from calib.io import _calamine_child
@@ -61,10 +68,17 @@ _MEMORY_PER_BYTE = 24
 """Further address space per byte of the workbook file."""
 
 BASE_SECONDS = 15.0
-"""Wall-clock seconds allowed to the child for any workbook."""
+"""Processor seconds allowed to the child for any workbook."""
 
 _SECONDS_PER_MB = 1.0
-"""Further seconds per megabyte of the workbook file."""
+"""Further processor seconds per megabyte of the workbook file."""
+
+_WALL_FACTOR = 4.0
+"""Wall-clock seconds allowed per processor second: a busy machine gives the child a
+quarter of a core and it still finishes."""
+
+_CPU_LIMITED = sys.platform != "win32"
+"""Whether the child can limit its own processor time (``resource`` is POSIX only)."""
 
 _CHILD = Path(__file__).with_name("_calamine_child.py")
 _T = TypeVar("_T")
@@ -115,8 +129,8 @@ class BookData:
 class _PlainValues(pickle.Unpickler):
     """Unpickle lists, strings, numbers and the date and time types, nothing else."""
 
-    _ALLOWED = {("datetime", name) for name in ("datetime", "date", "time", "timedelta",
-                                                "timezone")}
+    _ALLOWED: ClassVar[frozenset[tuple[str, str]]] = frozenset(
+        ("datetime", name) for name in ("datetime", "date", "time", "timedelta", "timezone"))
 
     def find_class(self, module: str, name: str) -> object:
         if (module, name) in self._ALLOWED:
@@ -124,16 +138,27 @@ class _PlainValues(pickle.Unpickler):
         raise pickle.UnpicklingError(f"{module}.{name} is not a cell value")
 
 
-def limits_for(size: int) -> tuple[int, float]:
-    """Memory (bytes) and wall-clock seconds allowed for a workbook of ``size`` bytes.
+class Limits(NamedTuple):
+    """What the child may use: address space (bytes), processor and wall-clock seconds."""
+
+    memory: int
+    cpu_seconds: int
+    wall_seconds: float
+
+
+def limits_for(size: int) -> Limits:
+    """The limits of the child reading a workbook of ``size`` bytes.
 
     Examples
     --------
-    >>> memory, seconds = limits_for(2_000_000)
-    >>> memory // 1024**2, seconds
-    (1069, 17.0)
+    >>> limits = limits_for(2_000_000)
+    >>> limits.memory // 1024**2, limits.cpu_seconds, limits.wall_seconds
+    (1069, 17, 68.0)
+    >>> limits_for(2_500_000).cpu_seconds
+    18
     """
-    return _BASE_MEMORY + _MEMORY_PER_BYTE * size, BASE_SECONDS + _SECONDS_PER_MB * size / 1e6
+    cpu = math.ceil(BASE_SECONDS + _SECONDS_PER_MB * size / 1e6)
+    return Limits(_BASE_MEMORY + _MEMORY_PER_BYTE * size, cpu, _WALL_FACTOR * cpu)
 
 
 def _address_space() -> int | None:
@@ -336,16 +361,17 @@ class _Child:
     """The running child: started at once, answered by :meth:`result`."""
 
     def __init__(self, raw: RawFile, max_rows: int, max_cells: int) -> None:
-        self.memory, self.seconds = limits_for(len(raw.data))
+        self.limits = limits_for(len(raw.data))
+        self.memory = self.limits.memory
         self.started = time.monotonic()
         self.done = False
-        forked = _fork(raw, self.memory, int(self.seconds) + 1, max_rows, max_cells) \
+        forked = _fork(raw, self.memory, self.limits.cpu_seconds, max_rows, max_cells) \
             if _can_fork() else None
         if forked is not None:
             self.process: subprocess.Popen[bytes] | _Forked = forked
             return
         command = [sys.executable, "-P", str(_CHILD), str(self.memory),
-                   str(int(self.seconds) + 1), str(max_rows), str(max_cells)]
+                   str(self.limits.cpu_seconds), str(max_rows), str(max_cells)]
         self.process = subprocess.Popen(command, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                                         stderr=subprocess.PIPE)
         # The child reads all its input before it writes anything, so this cannot block for
@@ -382,7 +408,7 @@ class _Child:
 
     def result(self) -> tuple[int, _Book | None, bytes] | None:
         """Return code, answer (None when cut short or damaged) and error output; None when
-        the time limit passed.
+        the wall-clock limit passed.
 
         The answer is read as the child sends it, so the first rows are unpickled here
         while the child is still making the last.  A child that finished while the parent
@@ -391,7 +417,8 @@ class _Child:
         processor-time limit already).
         """
         now = time.monotonic()
-        left = max(self.started + self.seconds - now, min(2.0, now - self.started), 0.0)
+        left = max(self.started + self.limits.wall_seconds - now, min(2.0, now - self.started),
+                   0.0)
         pipes = _Pipes(*self._fds(), now + left)
         try:
             answer = _read_answer(pipes)
@@ -429,7 +456,10 @@ def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
     ------
     InputError
         When the child runs out of time or memory, stops on damaged data, or
-        the workbook as a whole cannot be read.
+        the workbook as a whole cannot be read.  Out of processor time means a
+        parser spinning on damaged data; out of wall-clock time with processor
+        time to spare means a machine too busy to finish, and the message says
+        so (try again) instead of blaming the file.
     """
     child = _Child(raw, max_rows, max_cells)
     try:
@@ -438,15 +468,10 @@ def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
     finally:
         child.stop()
     if outcome is None:
-        raise InputError(
-            f"cannot be read as a workbook (reading it took longer than {child.seconds:.0f} s, "
-            f"the limit for a file of this size; the file is damaged or not what its name "
-            f"says); expected {what} saved by a spreadsheet program",
-            file=raw.given,
-        )
+        raise _out_of_wall_time(raw, what, child.limits)
     code, answer, err = outcome
     if code != 0 or answer is None:
-        raise _ended(raw, what, code, err, child.memory)
+        raise _ended(raw, what, code, err, child.limits)
     if "failure" in answer:
         raise failure_error(raw, what, tuple(answer["failure"]), memory=child.memory)
     sheets = {name: SheetData(rows=s.get("rows"), end=s.get("end"),
@@ -456,17 +481,38 @@ def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
     return BookData(list(answer["names"]), list(answer["worksheets"]), sheets), checked
 
 
-def _ended(raw: RawFile, what: str, code: int, err: bytes, memory: int) -> InputError:
+def _out_of_wall_time(raw: RawFile, what: str, limits: Limits) -> InputError:
+    """The refusal when the wall clock ran out before the child finished."""
+    if not _CPU_LIMITED:  # no processor-time limit here: the wall clock alone cannot tell
+        return InputError(
+            f"cannot be read as a workbook (reading it took longer than "
+            f"{limits.wall_seconds:g} s, the limit for a file of this size: the file is "
+            f"damaged, or the machine too busy; try again); expected {what} saved by a "
+            f"spreadsheet program",
+            file=raw.given,
+        )
+    return InputError(
+        f"was not read in time: the workbook reader was stopped after {limits.wall_seconds:g} "
+        f"s, the wait allowed for a file of this size, before it had used its "
+        f"{limits.cpu_seconds} s of processor time, so the machine was too busy to finish it "
+        f"(which says nothing against the file); try again, when the machine is less busy",
+        file=raw.given,
+    )
+
+
+def _ended(raw: RawFile, what: str, code: int, err: bytes, limits: Limits) -> InputError:
     memory_words = (b"memory allocation", b"MemoryError", b"out of memory", b"capacity overflow")
     out_of_time = {-getattr(signal, name) for name in ("SIGXCPU", "SIGKILL")
                    if hasattr(signal, name)}
     if code in out_of_time and b"memory" not in err:
         return InputError(
-            f"cannot be read as a workbook (reading it used up the processor time allowed; "
-            f"the file is damaged or not what its name says); expected {what} saved by a "
-            f"spreadsheet program",
+            f"cannot be read as a workbook (the reader used up the {limits.cpu_seconds} s of "
+            f"processor time allowed for a file of this size, going round data it could not "
+            f"finish: the file is damaged or not what its name says); expected {what} saved "
+            f"by a spreadsheet program",
             file=raw.given,
         )
+    memory = limits.memory
     if any(word in err for word in memory_words) or code == -signal.SIGABRT:
         return failure_error(raw, what, ("memory", ""), memory=memory)
     return failure_error(raw, what, ("panic", ""), memory=memory)

@@ -6,6 +6,7 @@ downstream (fitting, checks, records) works on this form only.
 
 from __future__ import annotations
 
+import gc
 from collections.abc import Iterable, Iterator, MutableSequence, Sequence
 from dataclasses import dataclass, field, fields
 from operator import attrgetter
@@ -285,7 +286,15 @@ class _HeldPoints:
             raise AttributeError("points")  # the field has no default
         held = run.__dict__["_held_points"]
         if isinstance(held, PointColumns):
-            held = run.__dict__["_held_points"] = tuple(held.points())
+            # 10^5 new objects, none in a cycle: the collector would only scan them
+            # (and everything else) again and again while they are made.
+            paused = gc.isenabled()
+            gc.disable()
+            try:
+                held = run.__dict__["_held_points"] = tuple(held.points())
+            finally:
+                if paused:
+                    gc.enable()
         return held  # type: ignore[no-any-return]
 
     def __set__(self, run: object, points: Iterable[Point]) -> None:

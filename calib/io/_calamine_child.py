@@ -15,7 +15,8 @@ panic ends this process only; the parent turns that into a one-line message.
 Whatever the parser prints (a Rust panic message) goes to standard error,
 which the parent reads but never shows.
 
-Script arguments: ``MEMORY_BYTES CPU_SECONDS MAX_ROWS MAX_CELLS``.
+Script arguments: ``MEMORY_BYTES CPU_SECONDS MAX_ROWS MAX_CELLS [SHEET]`` (``SHEET``:
+``#`` and a 0-based index, or ``=`` and a name; only that sheet is parsed).
 """
 
 import gc
@@ -73,7 +74,19 @@ def _send_sheet(book, name: str, max_rows: int, max_cells: int, send) -> None:
         send("rows", chunk)
 
 
-def _stream_book(data: bytes, max_rows: int, max_cells: int, out) -> None:
+def _wanted(names: list, sheet) -> set | None:
+    """The sheets whose cells are sent: all (None), or the one ``sheet`` names: a 0-based
+    index, a name, or a name written in another case (the parent says which, or why none)."""
+    if sheet is None:
+        return None
+    if isinstance(sheet, int):
+        return {names[sheet]} if 0 <= sheet < len(names) else set()
+    if sheet in names:
+        return {sheet}
+    return {name for name in names if name.casefold() == sheet.strip().casefold()}
+
+
+def _stream_book(data: bytes, max_rows: int, max_cells: int, out, sheet=None) -> None:
     """Parse the workbook in ``data`` and write what was found to the binary file ``out``.
 
     One pickle per message, each a tuple of plain values: ``("book", names,
@@ -106,7 +119,11 @@ def _stream_book(data: bytes, max_rows: int, max_cells: int, out) -> None:
         send("done")
         return
     send("book", names, worksheets)
+    wanted = _wanted(names, sheet)
     for name in names:
+        if wanted is not None and name not in wanted:
+            send("sheet", name, None, [], False)  # not asked for: not even parsed
+            continue
         try:
             _send_sheet(book, name, max_rows, max_cells, send)
         except BaseException as exc:  # noqa: BLE001 - reported to the parent, per sheet
@@ -114,21 +131,29 @@ def _stream_book(data: bytes, max_rows: int, max_cells: int, out) -> None:
     send("done")
 
 
-def serve(data: bytes, memory: int, seconds: int, max_rows: int, max_cells: int, out) -> None:
-    """Limit this process, parse ``data`` and send what was found to ``out``."""
+def serve(data: bytes, memory: int, seconds: int, max_rows: int, max_cells: int, out,
+          sheet=None) -> None:
+    """Limit this process, parse ``data`` (every sheet, or the one ``sheet`` names) and send
+    what was found to ``out``."""
     # The cells are a tree of new objects freed all at once when the process ends: the
     # cycle collector would only scan them again and again (a tenth of the time).
     gc.disable()
     limit(memory, seconds)
-    _stream_book(data, max_rows, max_cells, out)
+    _stream_book(data, max_rows, max_cells, out, sheet)
+
+
+def sheet_argument(text: str):
+    """The sheet a script argument names: ``#3`` the 0-based index 3, ``=Run 2`` the name."""
+    return int(text[1:]) if text.startswith("#") else text[1:]
 
 
 def main(argv: list[str]) -> int:
-    memory, seconds, max_rows, max_cells = map(int, argv)
+    memory, seconds, max_rows, max_cells = map(int, argv[:4])
+    sheet = sheet_argument(argv[4]) if len(argv) > 4 else None
     limit(memory, seconds)
     gc.disable()
     data = sys.stdin.buffer.read()
-    _stream_book(data, max_rows, max_cells, sys.stdout.buffer)
+    _stream_book(data, max_rows, max_cells, sys.stdout.buffer, sheet)
     return 0
 
 

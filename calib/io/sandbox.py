@@ -325,8 +325,8 @@ def _messages(reader: _PlainValues) -> _Book | None:
     return book if "names" in book else None
 
 
-def _fork(raw: RawFile, memory: int, seconds: int, max_rows: int, max_cells: int
-          ) -> _Forked | None:
+def _fork(raw: RawFile, memory: int, seconds: int, max_rows: int, max_cells: int,
+          sheet: str | int | None) -> _Forked | None:
     """Fork a child that parses ``raw``; None where this process cannot say its own size."""
     held = _address_space()
     if held is None:
@@ -346,7 +346,7 @@ def _fork(raw: RawFile, memory: int, seconds: int, max_rows: int, max_cells: int
             faulthandler.disable()  # (it may write to a copy of the terminal's descriptor)
             with open(out_write, "wb", buffering=1 << 20) as out:
                 _calamine_child.serve(raw.data, held + memory, seconds, max_rows, max_cells,
-                                      out)
+                                      out, sheet)
             code = 0
         except BaseException:  # noqa: BLE001 - whatever happens, the copy ends here
             code = 70
@@ -360,18 +360,21 @@ def _fork(raw: RawFile, memory: int, seconds: int, max_rows: int, max_cells: int
 class _Child:
     """The running child: started at once, answered by :meth:`result`."""
 
-    def __init__(self, raw: RawFile, max_rows: int, max_cells: int) -> None:
+    def __init__(self, raw: RawFile, max_rows: int, max_cells: int,
+                 sheet: str | int | None = None) -> None:
         self.limits = limits_for(len(raw.data))
         self.memory = self.limits.memory
         self.started = time.monotonic()
         self.done = False
-        forked = _fork(raw, self.memory, self.limits.cpu_seconds, max_rows, max_cells) \
-            if _can_fork() else None
+        forked = _fork(raw, self.memory, self.limits.cpu_seconds, max_rows, max_cells,
+                       sheet) if _can_fork() else None
         if forked is not None:
             self.process: subprocess.Popen[bytes] | _Forked = forked
             return
         command = [sys.executable, "-P", str(_CHILD), str(self.memory),
                    str(self.limits.cpu_seconds), str(max_rows), str(max_cells)]
+        if sheet is not None:
+            command.append(f"#{sheet}" if isinstance(sheet, int) else f"={sheet}")
         self.process = subprocess.Popen(command, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                                         stderr=subprocess.PIPE)
         # The child reads all its input before it writes anything, so this cannot block for
@@ -438,7 +441,8 @@ class _Child:
 
 
 def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
-                   checks: Callable[[], _T]) -> tuple[BookData, _T]:
+                   checks: Callable[[], _T], sheet: str | int | None = None
+                   ) -> tuple[BookData, _T]:
     """Parse ``raw`` in a child process while ``checks`` runs here; return both results.
 
     Parameters
@@ -451,6 +455,9 @@ def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
         Sheets reaching past these are not read (their ``end`` says how far they reach).
     checks : callable
         Run in this process meanwhile; when it raises, the child is stopped.
+    sheet : str or int, optional
+        The one sheet whose cells are wanted (a name, in any case, or a 0-based
+        index); the others are listed but not parsed (their ``rows`` are None).
 
     Raises
     ------
@@ -461,7 +468,7 @@ def parse_workbook(raw: RawFile, *, what: str, max_rows: int, max_cells: int,
         time to spare means a machine too busy to finish, and the message says
         so (try again) instead of blaming the file.
     """
-    child = _Child(raw, max_rows, max_cells)
+    child = _Child(raw, max_rows, max_cells, sheet)
     try:
         checked = checks()
         outcome = child.result()

@@ -278,7 +278,7 @@ class WorkbookReader:
             return facts
 
         data, facts = parse_workbook(raw, what=_what(raw), max_rows=limits.MAX_ROWS,
-                                     max_cells=limits.MAX_CELLS, checks=checks)
+                                     max_cells=limits.MAX_CELLS, checks=checks, sheet=sheet)
         warnings = []
         if facts is not None and facts.macros:
             warnings.append("the workbook carries macros; calib read the saved cell values and "

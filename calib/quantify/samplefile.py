@@ -267,7 +267,7 @@ def book_grid(raw: RawFile, sheet: str | int | None,
 
     # The run importer's reader: a child process with time and memory limits.
     book, _ = parse_workbook(raw, what=what, max_rows=limits.MAX_ROWS,
-                             max_cells=limits.MAX_CELLS, checks=checks)
+                             max_cells=limits.MAX_CELLS, checks=checks, sheet=sheet)
     # The run reader's sheet choice: a sheet named by index or name, else the visible ones.
     candidates = ([sheet_named(book.names, sheet, file=raw.given, what=what)]
                   if sheet is not None else book.worksheets)

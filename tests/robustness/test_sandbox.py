@@ -380,3 +380,31 @@ def test_a_plainly_spelt_part_with_any_cell_reference_is_bounded(reference):
     scanner = XlsxScanner(cells=10**6)
     scanner.feed(b'<row r="7"><c r="A7"><v>1</v></c><c r="' + reference + b'"><v>1</v></c></row>')
     assert scanner.close() == Extent(rows=7, columns=16_384)
+
+
+def test_a_sheet_asked_for_is_the_only_one_parsed(child_kind, tmp_path):
+    # Two sheets; asked for one (by name in another case, or by index), the child sends the
+    # cells of that one only: the other is listed but never parsed.
+    import openpyxl
+
+    path = tmp_path / "two.xlsx"
+    book = openpyxl.Workbook()
+    book.active.title = "Notes"
+    book.active.append(["free text", 1.0])
+    second = book.create_sheet("Run 2")
+    second.append(["Conc", "Area"])
+    second.append([1.0, 10.0])
+    book.save(path)
+    raw = load_file(path, what="a workbook")
+    for asked in ("run 2", 1):
+        data, _ = sandbox.parse_workbook(raw, what="a workbook", max_rows=10**6,
+                                         max_cells=10**9, checks=lambda: None, sheet=asked)
+        assert data.names == ["Notes", "Run 2"]
+        assert data.sheets["Notes"].rows is None
+        assert data.sheets["Run 2"].rows == [["Conc", "Area"], [1.0, 10.0]]
+    every, _ = sandbox.parse_workbook(raw, what="a workbook", max_rows=10**6, max_cells=10**9,
+                                      checks=lambda: None)
+    assert every.sheets["Notes"].rows == [["free text", 1.0]]
+    nothing, _ = sandbox.parse_workbook(raw, what="a workbook", max_rows=10**6,
+                                        max_cells=10**9, checks=lambda: None, sheet="Other")
+    assert all(sheet.rows is None for sheet in nothing.sheets.values())

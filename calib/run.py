@@ -313,7 +313,9 @@ class Run:
     source : SourceInfo
         The file the run was read from.
     points : tuple of Point
-        Every injection in file order.
+        Every injection in file order.  A reader may hand over
+        :class:`PointColumns`; the tuple is then made when ``points`` is first
+        read (:meth:`column` reads a field without making it).
     metadata : dict
         ``key: value`` lines found above the table (instrument, method...).
     units : dict

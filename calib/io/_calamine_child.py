@@ -142,14 +142,14 @@ def serve(data: bytes, memory: int, seconds: int, max_rows: int, max_cells: int,
     _stream_book(data, max_rows, max_cells, out, sheet)
 
 
-def sheet_argument(text: str):
+def _sheet_argument(text: str):
     """The sheet a script argument names: ``#3`` the 0-based index 3, ``=Run 2`` the name."""
     return int(text[1:]) if text.startswith("#") else text[1:]
 
 
 def main(argv: list[str]) -> int:
     memory, seconds, max_rows, max_cells = map(int, argv[:4])
-    sheet = sheet_argument(argv[4]) if len(argv) > 4 else None
+    sheet = _sheet_argument(argv[4]) if len(argv) > 4 else None
     limit(memory, seconds)
     gc.disable()
     data = sys.stdin.buffer.read()

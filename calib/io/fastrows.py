@@ -254,21 +254,15 @@ def plan_rows(block: Sequence[Sequence[Cell]], *, index: dict[str, int],
         ratios = [r / s if r is not None and s is not None and s > 0 else math.nan
                   for r, s in zip(found, standards)]
         own = found
-    if not bad:  # the usual export: the run holds the columns as they are
-        return PointColumns({
-            "analyte": analytes, "concentration": concentration, "response": ratios,
-            "sample_type": kinds, "replicate": replicates, "included": [True] * n,
-            "exclusion_reason": [None] * n, "sample_id": names, "injection_order": orders,
-            "is_response": standards, "analyte_response": own, "level": levels,
-        }, cells=(prefix, first_row + 1)), True
-    cells = [f"{prefix}{row}" for row in range(first_row + 1, first_row + n + 1)]
-    points: list[Point | None] = list(PointColumns({
+    held = {
         "analyte": analytes, "concentration": concentration, "response": ratios,
-        "source_cell": cells, "sample_type": kinds, "replicate": replicates,
-        "included": [True] * n, "exclusion_reason": [None] * n, "sample_id": names,
-        "injection_order": orders, "is_response": standards, "analyte_response": own,
-        "level": levels,
-    }))
+        "sample_type": kinds, "replicate": replicates, "included": [True] * n,
+        "exclusion_reason": [None] * n, "sample_id": names, "injection_order": orders,
+        "is_response": standards, "analyte_response": own, "level": levels,
+    }
+    if not bad:  # the usual export: the run holds the columns as they are
+        return PointColumns(held, cells=(prefix, first_row + 1)), True
+    points: list[Point | None] = list(PointColumns(held, cells=(prefix, first_row + 1)))
     for at in bad:
         points[at] = None
     return points, False

@@ -136,6 +136,28 @@ def own_weighting(model: Model) -> Weighting | None:
     return Weighting.INV_X2 if model is Model.MEAN_RF else None
 
 
+def recorded_weighting(model: str, weighting: str) -> str:
+    """The weighting a curve's fit used, as ``calib.record/2`` states it, from what a record
+    (or an archive row) of either format says.
+
+    Only the ``none`` that ``calib.record/1`` wrote for a model fitted with its
+    own weights (``mean-rf``: 1/x²) changes; anything else is kept as written,
+    so an index row altered to another weighting is still found by verification.
+
+    Examples
+    --------
+    >>> recorded_weighting("mean-rf", "none"), recorded_weighting("mean-rf", "1/x2")
+    ('1/x2', '1/x2')
+    >>> recorded_weighting("linear", "none"), recorded_weighting("mean-rf", "1/y")
+    ('none', '1/y')
+    """
+    try:
+        own = own_weighting(Model(model))
+    except ValueError:
+        return weighting
+    return own.value if own is not None and weighting == Weighting.NONE.value else weighting
+
+
 def combination_problem(model: Model, weighting: Weighting) -> str | None:
     """Why ``weighting`` cannot go with ``model``, or None.
 

@@ -33,9 +33,9 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
-from calib.options import Model, Weighting, own_weighting
+from calib.options import recorded_weighting
 
-__all__ = ["CurveFigures", "RecordFacts", "fit_weighting", "record_facts"]
+__all__ = ["CurveFigures", "RecordFacts", "record_facts"]
 
 # Normalised metadata keys, most specific first.
 _RUN_DATE_KEYS = ("rundate", "analysisdate", "acquisitiondate", "injectiondate", "date")
@@ -77,7 +77,7 @@ class CurveFigures:
     response_unit: str | None = None
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "weighting", fit_weighting(self.model, self.weighting))
+        object.__setattr__(self, "weighting", recorded_weighting(self.model, self.weighting))
 
 
 @dataclass(frozen=True)
@@ -109,27 +109,6 @@ class RecordFacts:
     instrument: str | None
     roles: tuple[str, ...]
     curves: tuple[CurveFigures, ...]
-
-
-def fit_weighting(model: str, weighting: str) -> str:
-    """The weighting a curve's fit used, as ``calib.record/2`` states it.
-
-    Only the ``none`` that ``calib.record/1`` wrote for a model fitted with its
-    own weights (``mean-rf``: 1/x²) changes; anything else is kept as written,
-    so an index row altered to another weighting is still found by verification.
-
-    Examples
-    --------
-    >>> fit_weighting("mean-rf", "none"), fit_weighting("mean-rf", "1/x2")
-    ('1/x2', '1/x2')
-    >>> fit_weighting("linear", "none"), fit_weighting("mean-rf", "1/y")
-    ('none', '1/y')
-    """
-    try:
-        own = own_weighting(Model(model))
-    except ValueError:
-        return weighting
-    return own.value if own is not None and weighting == Weighting.NONE.value else weighting
 
 
 def _dict(value: Any) -> Mapping[str, Any]:

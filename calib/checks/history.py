@@ -14,7 +14,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 from typing import Any
 
-from calib.options import Model, Weighting
+from calib.options import Model, Weighting, recorded_weighting
 
 __all__ = ["SlopeHistory", "slope_history"]
 
@@ -88,12 +88,13 @@ def slope_history(curves: Iterable[Any], *, model: Model | str, weighting: Weigh
     >>> h.slopes, h.records
     ((1.0, 1.02), ('CR-1', 'CR-2'))
     """
-    model, weighting = str(model), str(weighting)
+    model = str(model)
     # A mean-rf curve is weighted 1/x2 whatever its record says (calib.record/1 said none).
-    same = {weighting, "none", "1/x2"} if model == Model.MEAN_RF.value else {weighting}
+    weighting = recorded_weighting(model, str(weighting))
     chosen = [
         c for c in curves
-        if c.accepted and c.figures.model == model and c.figures.weighting in same
+        if c.accepted and c.figures.model == model
+        and recorded_weighting(model, c.figures.weighting) == weighting
         and c.figures.slope is not None and math.isfinite(c.figures.slope)
     ]
     chosen.sort(key=lambda c: (c.run_date, c.seq))

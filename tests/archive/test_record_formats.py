@@ -129,7 +129,7 @@ def test_an_index_written_before_still_verifies_and_reads_as_one_fit(tmp_path, m
     # Archives filled by earlier releases hold the /1 record's "none" in their curves table.
     path = tmp_path / "a.sqlite"
     with monkeypatch.context() as m:
-        m.setattr(figures_module, "fit_weighting", lambda model, weighting: weighting)
+        m.setattr(figures_module, "recorded_weighting", lambda model, weighting: weighting)
         _fill(path, [_as_format_1(_record(0)), _as_format_1(_record(1))])
     _fill(path, [_record(2), _record(3)])
     with sqlite3.connect(path) as db:

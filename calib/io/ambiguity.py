@@ -262,16 +262,15 @@ def check_replicates(reads: Sequence[tuple[Grid, Table, TableRead]], points: Seq
     InputError
         Naming the analyte, the level, the cells and what to do.
     """
-    start = 0
+    stop = 0
     columns = {name: point_values(points, name) for name in (
         "analyte", "concentration", "replicate", "sample_id", "injection_order", "sample_type",
         "exclusion_reason")}
     standard = SampleType.STANDARD
     for grid, table, read in reads:
-        stop = start + len(read.points)
+        start, stop = stop, stop + len(read.points)
         orders = columns["injection_order"][start:stop]
         if None not in orders and len(set(orders)) == len(orders):
-            start = stop
             continue  # every row has its own injection order: no replicate can repeat
         first: dict[tuple[object, ...], int] = {}
         repeats: dict[tuple[object, ...], list[int]] = {}
@@ -286,14 +285,10 @@ def check_replicates(reads: Sequence[tuple[Grid, Table, TableRead]], points: Seq
             earlier = first.setdefault(key, at)
             if earlier != at:
                 repeats.setdefault(key, [earlier]).append(at)
-        rows = read.rows
-        found_rows = {key: [(points[at], rows[at - start]) for at in ats]
-                      for key, ats in repeats.items()}
-        start = stop
-        for (analyte, conc, replicate, sample, _), found in found_rows.items():
-            cells = ", ".join(p.source_cell for p, _ in found[:4])
+        for (analyte, conc, replicate, sample, _), found in repeats.items():
+            cells = ", ".join(points[at].source_cell for at in found[:4])
             who = f" (sample {sample!r})" if sample else ""
-            apart = _telling_apart(grid, table, [r for _, r in found], imap)
+            apart = _telling_apart(grid, table, [read.rows[at - start] for at in found], imap)
             hint = (f"{apart}: if it names the analyte or line, name it as the analyte column in "
                     f"an import map ([columns] analyte = ...) and pass it with --map"
                     if apart else "if the rows hold different analytes or lines, give the file "

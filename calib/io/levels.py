@@ -94,11 +94,11 @@ def merge_close_levels(points: MutableSequence[Point], warnings: list[str]) -> d
             shown = []
             for value in cluster:
                 first = next(points[i].source_cell for i in indices
-                             if points[i].concentration == value)
+                             if concentrations[i] == value)
                 shown.append(f"{value!r} ({first})" if value != chosen else
                              f"{value:g} ({first})")
-            for i in indices:
-                if points[i].concentration in cluster and points[i].concentration != chosen:
+            for i in indices:  # (clusters do not overlap: a value is changed once)
+                if concentrations[i] in cluster and concentrations[i] != chosen:
                     points[i] = dataclasses.replace(points[i], concentration=chosen)
             warnings.append(
                 f"{analyte}: the concentrations {' and '.join(shown)} differ by less than "

@@ -37,7 +37,7 @@ from calib.io.table import HEADER_SEARCH_ROWS, Grid
 from calib.options import SampleType
 from calib.run import Run, SourceInfo
 
-__all__ = ["WorkbookReader", "sheet_named"]
+__all__ = ["WorkbookReader", "checked_sheet", "sheet_named"]
 
 _WHAT = {
     ".xlsx": "an .xlsx workbook", ".xlsm": "an .xlsm workbook", ".xls": "an .xls workbook",
@@ -93,13 +93,7 @@ class _Book:
         self._details: dict[str, SheetDetail] = {}
 
     def _sheet(self, name: str) -> SheetData:
-        sheet = self._data.sheets[name]
-        if sheet.failure is not None:
-            raise failure_error(self.raw, _what(self.raw), sheet.failure,
-                                memory=limits_for(len(self.raw.data))[0], sheet=name)
-        if sheet.end is not None:
-            check_sheet_size(sheet.end[0] + 1, sheet.end[1] + 1, file=self.raw.given, sheet=name)
-        return sheet
+        return checked_sheet(self.raw, self._data, name, what=_what(self.raw))
 
     def _rows(self, name: str, limit: int | None) -> list[list[Cell]]:
         """The sheet's rows; the first full read gets the child's lists, later reads copies."""
@@ -152,6 +146,23 @@ class _Book:
     def visible(self) -> list[str]:
         """Names of the visible worksheets (no chart sheets), in workbook order."""
         return list(self._data.worksheets)
+
+
+def checked_sheet(raw: RawFile, book: BookData, name: str, *, what: str) -> SheetData:
+    """A sheet the workbook child read, once it is known to be readable and within the limits.
+
+    Raises
+    ------
+    InputError
+        When the child could not read the sheet, or it reaches past the size limits.
+    """
+    sheet = book.sheets[name]
+    if sheet.failure is not None:
+        raise failure_error(raw, what, sheet.failure, memory=limits_for(len(raw.data)).memory,
+                            sheet=name)
+    if sheet.end is not None:
+        check_sheet_size(sheet.end[0] + 1, sheet.end[1] + 1, file=raw.given, sheet=name)
+    return sheet
 
 
 def _xls_empty(row: int, column: int) -> str:

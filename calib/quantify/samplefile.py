@@ -24,15 +24,10 @@ from calib.io.columns import column_letter, match_heading, split_unit, squash
 from calib.io.csv_text import decode_text, delimiters_for, split_rows
 from calib.io.files import RawFile
 from calib.io.importmap import ImportMap
-from calib.io.limits import (
-    check_sheet_size,
-    check_text_rows,
-    check_xls,
-    inspect_archive,
-)
-from calib.io.sandbox import failure_error, limits_for, parse_workbook
+from calib.io.limits import check_text_rows, check_xls, inspect_archive
+from calib.io.sandbox import parse_workbook
 from calib.io.table import HEADER_SEARCH_ROWS, Grid
-from calib.io.workbook import sheet_named
+from calib.io.workbook import checked_sheet, sheet_named
 from calib.run import SourceInfo
 
 __all__ = ["DILUTION_HEADINGS", "SAMPLE_MAP_COLUMNS", "VOLUME_HEADINGS", "WEIGHT_HEADINGS",
@@ -272,12 +267,7 @@ def book_grid(raw: RawFile, sheet: str | int | None,
     candidates = ([sheet_named(book.names, sheet, file=raw.given, what=what)]
                   if sheet is not None else book.worksheets)
     for name in candidates:
-        data = book.sheets[name]
-        if data.failure is not None:
-            raise failure_error(raw, what, data.failure, memory=limits_for(len(raw.data))[0],
-                                sheet=name)
-        if data.end is not None:
-            check_sheet_size(data.end[0] + 1, data.end[1] + 1, file=raw.given, sheet=name)
+        data = checked_sheet(raw, book, name, what=what)
         grid = Grid(data.rows or [], file=raw.given, label=name, sheet=name)
         if find_header(grid, imap) is not None or sheet is not None:
             return grid, SourceInfo(file=raw.name, sha256=raw.sha256, sheet=name,
